@@ -1,0 +1,35 @@
+"""``analyze(dataset, view, spec)``: the one pure entry point from a view to results."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .dataset import Dataset
+from .oneway import fit_oneway
+from .results import Results
+from .spec import ModelSpec
+from .view import DataView
+
+__all__ = ["analyze"]
+
+
+def analyze(dataset: Dataset, view: DataView, spec: ModelSpec) -> Results:
+    """Fit ``spec`` on the kept rows of ``view``; raise :class:`DesignError` if it cannot be fitted."""
+    positions = np.flatnonzero(view.kept)
+    dropped = view.dropped_ids(dataset)
+    y = dataset.y[positions]
+    if spec.is_oneway:
+        f = spec.factors[0]
+        return fit_oneway(
+            y,
+            view.codes[f][positions],
+            view.levels[f],
+            row_ids=dataset.row_ids[positions],
+            positions=positions,
+            offset=dataset.offset,
+            spec=spec,
+            dropped=dropped,
+        )
+    from .factorial import fit_factorial  # the general least-squares engine
+
+    return fit_factorial(dataset, view, spec, positions=positions, dropped=dropped)

@@ -1,0 +1,295 @@
+"""The user's table, copied once and never changed: stable row ids, clean codes, provenance.
+
+A :class:`Dataset` is built once per study. It sets aside rows that cannot enter the
+analysis (missing response or factor value) with the reason for each, turns every
+factor into integer codes with string level names, and keeps the response shifted by
+an exact offset (see :mod:`.decimal_shift`). Its fingerprint guards replays of a saved
+edit log.
+"""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import re
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Union
+
+import numpy as np
+import pandas as pd
+
+from .decimal_shift import shift_float, shift_text
+from .errors import ColumnError, DataError, EditError, closest_names, preview
+from .loading import read_table
+
+__all__ = ["Dataset", "SetAsideRow", "RowId", "build_dataset"]
+
+RowId = Union[int, str]
+
+
+@dataclass(frozen=True)
+class SetAsideRow:
+    """A row that could not enter the analysis, and why."""
+
+    row: RowId
+    reason: str
+
+
+def _natural_key(s: str) -> tuple:
+    return tuple(int(t) if t.isdigit() else t.lower() for t in re.split(r"(\d+)", s))
+
+
+def _level_order(col: pd.Series, labels: pd.Series) -> tuple[list[str], list[str]]:
+    """Level names in display order, and any unused categorical levels."""
+    present = pd.unique(labels)
+    unused: list[str] = []
+    if isinstance(col.dtype, pd.CategoricalDtype):
+        cats = [str(c) for c in col.cat.categories]
+        present_set = set(present)
+        unused = [c for c in cats if c not in present_set]
+        return [c for c in cats if c in present_set], unused
+    if pd.api.types.is_numeric_dtype(col.dtype) and not pd.api.types.is_bool_dtype(col.dtype):
+        nums = sorted({(float(v), s) for v, s in zip(col.dropna(), labels)})
+        seen: list[str] = []
+        for _, s in nums:
+            if s not in seen:
+                seen.append(s)
+        return seen, unused
+    return sorted((str(p) for p in present), key=_natural_key), unused
+
+
+def _label(v: object) -> str:
+    if isinstance(v, (float, np.floating)) and float(v).is_integer():
+        return str(int(v))
+    return str(v)
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class Dataset:
+    """An immutable, analysis-ready copy of the user's table.
+
+    Attributes
+    ----------
+    table : the table as loaded (a private copy; all rows, set-aside ones included).
+    response, factors : the column names in use.
+    row_ids : ids of the usable rows, in table order.
+    y : response of the usable rows minus ``offset`` (read-only float64).
+    codes, levels : per factor, integer codes of the usable rows and the level names.
+    set_aside : rows left out at load, each with its reason.
+    id_source : ``"index"`` when the table's index gave the ids, ``"position"`` otherwise.
+    """
+
+    table: pd.DataFrame
+    response: str
+    factors: tuple[str, ...]
+    row_ids: np.ndarray
+    y: np.ndarray
+    offset: float
+    offset_text: str
+    codes: Mapping[str, np.ndarray]
+    levels: Mapping[str, tuple[str, ...]]
+    set_aside: tuple[SetAsideRow, ...]
+    id_source: str
+    source: str
+    fingerprint: str
+    row_digests: np.ndarray
+    all_row_ids: np.ndarray
+    notes: tuple[str, ...] = field(default=())
+    _positions: dict = field(default_factory=dict, repr=False)
+
+    @property
+    def n(self) -> int:
+        return int(self.y.size)
+
+    @property
+    def y_original(self) -> np.ndarray:
+        return self.y + self.offset
+
+    def positions(self, rows: Iterable[RowId] | RowId) -> np.ndarray:
+        """Positions (among usable rows) of the given row ids; clear error for unknown ids."""
+        if isinstance(rows, (str, int, np.integer)):
+            rows = [rows]
+        rows = list(rows)
+        if not self._positions:
+            self._positions.update({_py(r): i for i, r in enumerate(self.row_ids.tolist())})
+        out, missing, aside = [], [], []
+        set_aside_ids = {s.row for s in self.set_aside}
+        for r in rows:
+            key = _py(r)
+            pos = self._positions.get(key)
+            if pos is None and isinstance(key, str) and key.lstrip("-").isdigit():
+                pos = self._positions.get(int(key))
+            if pos is None:
+                (aside if key in set_aside_ids else missing).append(key)
+            else:
+                out.append(pos)
+        if aside:
+            raise EditError(f"rows {preview(aside)} were set aside when the data were loaded (see study.set_aside)")
+        if missing:
+            sample = preview(self.row_ids[:5].tolist(), 5)
+            raise EditError(f"no rows with ids {preview(missing)}; row ids look like {sample} ({self.id_source})")
+        return np.asarray(out, dtype=np.int64)
+
+    def row_id(self, position: int) -> RowId:
+        return _py(self.row_ids[position])
+
+    def describe_ids(self) -> str:
+        if self.id_source == "index":
+            return "row ids are the table's index labels"
+        return "row ids are row positions 0..n-1 (the table's index was not unique or not usable as ids)"
+
+
+def _py(v: object) -> RowId:
+    if isinstance(v, np.integer):
+        return int(v)
+    if isinstance(v, (int, str)):
+        return v
+    return str(v)
+
+
+def _resolve_columns(frame: pd.DataFrame, response: str, factors: Sequence[str]) -> None:
+    cols = [str(c) for c in frame.columns]
+    for role, name in [("response", response)] + [("factor", f) for f in factors]:
+        if name not in frame.columns:
+            near = closest_names(name, cols)
+            hint = f" Did you mean {', '.join(repr(n) for n in near)}?" if near else ""
+            raise ColumnError(f"{role} column {name!r} is not in the table.{hint} Columns: {preview(cols, 12)}")
+    if response in factors:
+        raise ColumnError(f"column {response!r} is named as both the response and a factor; pick one role")
+    if len(set(factors)) != len(factors):
+        raise ColumnError(f"a factor is named twice in {list(factors)}")
+
+
+def build_dataset(
+    data: pd.DataFrame | str | Path,
+    response: str,
+    factors: Sequence[str],
+) -> Dataset:
+    """Copy and validate the table; see :class:`Dataset`."""
+    texts: dict[str, pd.Series] = {}
+    if isinstance(data, (str, Path)):
+        source = str(Path(data).name)
+        frame, texts = read_table(data, (response,))
+    elif isinstance(data, pd.DataFrame):
+        source = "DataFrame"
+        frame = data.copy(deep=True)
+    else:
+        raise DataError(f"data must be a pandas DataFrame or a file path, not {type(data).__name__}")
+    factors = tuple(factors)
+    if not factors:
+        raise ColumnError("name at least one factor column (the grouping, e.g. factors='machine')")
+    _resolve_columns(frame, response, factors)
+    notes: list[str] = []
+
+    # Row ids: the index when it is unique and made of ints or strings.
+    idx = frame.index
+    usable_index = idx.is_unique and (pd.api.types.is_integer_dtype(idx.dtype) or all(isinstance(v, str) for v in idx))
+    if usable_index:
+        ids = np.asarray([_py(v) for v in idx], dtype=object) if not pd.api.types.is_integer_dtype(idx.dtype) else np.asarray(idx, dtype=np.int64)
+        id_source = "index"
+    else:
+        ids = np.arange(len(frame), dtype=np.int64)
+        id_source = "position"
+        why = "not unique" if not idx.is_unique else "neither integers nor strings"
+        notes.append(f"The table's index is {why}, so rows are identified by position 0..{len(frame) - 1}.")
+
+    # Response: numeric, finite.
+    col = frame[response]
+    if pd.api.types.is_bool_dtype(col.dtype):
+        raise DataError(f"response column {response!r} is true/false; the analysis of variance needs a numeric response")
+    numeric = pd.to_numeric(col, errors="coerce")
+    bad = numeric.isna() & col.notna()
+    if bad.any():
+        bad_ids = ids[np.flatnonzero(bad.to_numpy())].tolist()
+        examples = preview([str(v) for v in col[bad].head(3)], 3)
+        raise DataError(
+            f"response column {response!r} has non-numeric values in rows {preview(bad_ids)} (e.g. {examples}); "
+            "fix or remove them, or pick another response"
+        )
+    yv = numeric.to_numpy(dtype=np.float64, na_value=np.nan)
+    inf = np.isinf(yv)
+    if inf.any():
+        raise DataError(
+            f"response column {response!r} has infinite values in rows {preview(ids[inf].tolist())}; "
+            "replace them with real measurements or drop those rows before loading"
+        )
+
+    # Rows with a missing response or factor value are set aside with a reason.
+    missing_y = np.isnan(yv)
+    reasons: dict[int, list[str]] = {}
+    for i in np.flatnonzero(missing_y):
+        reasons.setdefault(int(i), []).append(f"missing {response}")
+    for f in factors:
+        fcol = frame[f]
+        for i in np.flatnonzero(fcol.isna().to_numpy()):
+            reasons.setdefault(int(i), []).append(f"missing {f}")
+        if pd.api.types.is_float_dtype(fcol.dtype) or pd.api.types.is_integer_dtype(fcol.dtype):
+            notes.append(f"Factor {f!r} is numeric; each distinct value is treated as a level, not as a quantity.")
+    usable = np.ones(len(frame), dtype=bool)
+    usable[list(reasons)] = False
+    set_aside = tuple(SetAsideRow(_py(ids[i]), "; ".join(r)) for i, r in sorted(reasons.items()))
+    if set_aside:
+        notes.append(f"{len(set_aside)} row(s) set aside at load for missing values (see study.set_aside).")
+    if not usable.any():
+        raise DataError(f"every row has a missing {response!r} or factor value; nothing to analyse")
+
+    # Exact shift of the response.
+    if response in texts:
+        t = texts[response][usable].str.strip().tolist()
+        y, offset, offset_text = shift_text(t)
+    else:
+        y, offset, offset_text = shift_float(yv[usable])
+    y = np.ascontiguousarray(y, dtype=np.float64)
+    y.setflags(write=False)
+
+    codes: dict[str, np.ndarray] = {}
+    levels: dict[str, tuple[str, ...]] = {}
+    for f in factors:
+        fcol = frame[f][usable]
+        labels = fcol.map(_label).astype(object)
+        order, unused = _level_order(fcol, labels)
+        if unused:
+            notes.append(f"Factor {f!r}: unused categories {preview(unused)} are left out.")
+        lookup = {lab: i for i, lab in enumerate(order)}
+        c = labels.map(lookup).to_numpy(dtype=np.int32)
+        c.setflags(write=False)
+        codes[f], levels[f] = c, tuple(order)
+
+    row_ids = ids[usable]
+    row_ids.setflags(write=False)
+    hashed = pd.util.hash_pandas_object(
+        pd.DataFrame({"id": pd.Series(ids, dtype=object).astype(str), "y": yv, **{f: frame[f].astype(str) for f in factors}}),
+        index=False,
+    ).to_numpy()
+    head = f"{response}|{'|'.join(factors)}|{len(frame)}".encode()
+    fingerprint = hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
+    return Dataset(
+        table=frame,
+        response=response,
+        factors=factors,
+        row_ids=row_ids,
+        y=y,
+        offset=offset,
+        offset_text=offset_text,
+        codes=codes,
+        levels=levels,
+        set_aside=set_aside,
+        id_source=id_source,
+        source=source,
+        fingerprint=fingerprint,
+        row_digests=(hashed & 0xFFFFFFFF).astype(np.uint32),
+        all_row_ids=ids,
+        notes=tuple(notes),
+    )
+
+
+def encode_digests(ids: np.ndarray, digests: np.ndarray) -> dict:
+    """Compact per-row digests for a saved file (ids as a list, digests base64)."""
+    return {"ids": [_py(i) for i in ids.tolist()], "digests": base64.b64encode(digests.astype("<u4").tobytes()).decode()}
+
+
+def decode_digests(blob: dict) -> dict[RowId, int]:
+    raw = np.frombuffer(base64.b64decode(blob["digests"]), dtype="<u4")
+    return {(_py(i)): int(d) for i, d in zip(blob["ids"], raw)}

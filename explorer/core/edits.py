@@ -1,0 +1,271 @@
+"""Edits are small frozen values: each maps one :class:`~.view.DataView` to the next.
+
+Every edit carries a reason (free text; the API invites one) and the UTC time it was
+made. ``to_dict``/``edit_from_dict`` round-trip through JSON losslessly. New kinds of
+edit register themselves with :func:`register_edit` and plug into the study unchanged.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from typing import Any, ClassVar
+
+import numpy as np
+
+from .dataset import Dataset, RowId
+from .errors import EditError, ReplayError, closest_names, preview
+from .view import DataView
+
+__all__ = [
+    "Edit",
+    "DropRows",
+    "RestoreRows",
+    "Reassign",
+    "MergeLevels",
+    "RenameLevel",
+    "edit_from_dict",
+    "register_edit",
+    "utc_now",
+]
+
+EDIT_KINDS: dict[str, type["Edit"]] = {}
+
+
+def utc_now() -> str:
+    return datetime.now(timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
+
+
+def register_edit(cls: type["Edit"]) -> type["Edit"]:
+    EDIT_KINDS[cls.kind] = cls
+    return cls
+
+
+def _ro(a: np.ndarray) -> np.ndarray:
+    a.setflags(write=False)
+    return a
+
+
+def _check_factor(view: DataView, factor: str) -> None:
+    if factor not in view.levels:
+        near = closest_names(factor, view.levels)
+        hint = f" Did you mean {near[0]!r}?" if near else ""
+        raise EditError(f"{factor!r} is not a factor of this study (factors: {list(view.levels)}).{hint}")
+
+
+def _check_levels(view: DataView, factor: str, levels: tuple[str, ...]) -> list[int]:
+    known = view.levels[factor]
+    missing = [lv for lv in levels if lv not in known]
+    if missing:
+        raise EditError(f"factor {factor!r} has no level(s) {preview(missing)}; its levels now are {list(known)}")
+    return [known.index(lv) for lv in levels]
+
+
+@dataclass(frozen=True, kw_only=True)
+class Edit:
+    """Base of every edit: a reason and a UTC timestamp."""
+
+    kind: ClassVar[str] = "edit"
+    reason: str = ""
+    at: str = field(default_factory=utc_now)
+
+    def apply(self, view: DataView, dataset: Dataset) -> DataView:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    def describe(self) -> str:  # pragma: no cover - abstract
+        raise NotImplementedError
+
+    def to_dict(self) -> dict[str, Any]:
+        out: dict[str, Any] = {"kind": self.kind}
+        for f in dataclasses.fields(self):
+            v = getattr(self, f.name)
+            out[f.name] = list(v) if isinstance(v, tuple) else v
+        return out
+
+
+def edit_from_dict(d: dict[str, Any]) -> Edit:
+    """Rebuild an edit saved with :meth:`Edit.to_dict`."""
+    kind = d.get("kind")
+    cls = EDIT_KINDS.get(str(kind))
+    if cls is None:
+        raise ReplayError(f"unknown edit kind {kind!r} in the saved log; known kinds: {sorted(EDIT_KINDS)}")
+    names = {f.name: f for f in dataclasses.fields(cls)}
+    kwargs: dict[str, Any] = {}
+    for k, v in d.items():
+        if k == "kind":
+            continue
+        if k not in names:
+            raise ReplayError(f"edit of kind {kind!r} has an unknown field {k!r}")
+        kwargs[k] = tuple(v) if isinstance(v, list) else v
+    return cls(**kwargs)
+
+
+def _rows(rows: object) -> tuple[RowId, ...]:
+    if isinstance(rows, (str, int, np.integer)):
+        rows = [rows]
+    out = []
+    for r in rows:  # type: ignore[union-attr]
+        out.append(int(r) if isinstance(r, np.integer) else r)
+    return tuple(out)
+
+
+@register_edit
+@dataclass(frozen=True, kw_only=True)
+class DropRows(Edit):
+    """Leave rows out of the analysis (they stay in the data and can be restored)."""
+
+    kind: ClassVar[str] = "drop"
+    rows: tuple[RowId, ...]
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "rows", _rows(self.rows))
+        if not self.rows:
+            raise EditError("drop needs at least one row id")
+
+    def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        pos = dataset.positions(self.rows)
+        already = [dataset.row_id(int(p)) for p in pos if not view.kept[p]]
+        if already and len(already) == len(pos):
+            raise EditError(f"rows {preview(already)} are already left out")
+        kept = view.kept.copy()
+        kept[pos] = False
+        return view.replace(kept=_ro(kept))
+
+    def describe(self) -> str:
+        return f"leave out row(s) {preview(list(self.rows))}"
+
+
+@register_edit
+@dataclass(frozen=True, kw_only=True)
+class RestoreRows(Edit):
+    """Bring left-out rows back into the analysis."""
+
+    kind: ClassVar[str] = "restore"
+    rows: tuple[RowId, ...]
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "rows", _rows(self.rows))
+        if not self.rows:
+            raise EditError("restore needs at least one row id")
+
+    def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        pos = dataset.positions(self.rows)
+        kept_already = [dataset.row_id(int(p)) for p in pos if view.kept[p]]
+        if kept_already and len(kept_already) == len(pos):
+            raise EditError(f"rows {preview(kept_already)} are not left out; nothing to restore")
+        kept = view.kept.copy()
+        kept[pos] = True
+        return view.replace(kept=_ro(kept))
+
+    def describe(self) -> str:
+        return f"restore row(s) {preview(list(self.rows))}"
+
+
+@register_edit
+@dataclass(frozen=True, kw_only=True)
+class Reassign(Edit):
+    """Move one row to another level of a factor (e.g. a unit logged under the wrong machine)."""
+
+    kind: ClassVar[str] = "reassign"
+    row: RowId
+    factor: str
+    level: str
+
+    def __post_init__(self) -> None:
+        if isinstance(self.row, np.integer):
+            object.__setattr__(self, "row", int(self.row))
+        object.__setattr__(self, "level", str(self.level))
+
+    def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        _check_factor(view, self.factor)
+        pos = int(dataset.positions([self.row])[0])
+        levels = view.levels[self.factor]
+        if self.level == levels[view.codes[self.factor][pos]]:
+            raise EditError(f"row {self.row} is already at level {self.level!r} of {self.factor!r}")
+        if self.level not in levels:
+            levels = levels + (self.level,)
+        codes = view.codes[self.factor].copy()
+        codes[pos] = levels.index(self.level)
+        return view.replace(
+            codes={**view.codes, self.factor: _ro(codes)}, levels={**view.levels, self.factor: levels}
+        )
+
+    def describe(self) -> str:
+        return f"move row {self.row} to {self.factor} = {self.level}"
+
+
+@register_edit
+@dataclass(frozen=True, kw_only=True)
+class MergeLevels(Edit):
+    """Pool several levels of a factor into one (new or existing) level."""
+
+    kind: ClassVar[str] = "merge"
+    factor: str
+    levels: tuple[str, ...]
+    into: str
+
+    def __post_init__(self) -> None:
+        if isinstance(self.levels, str):
+            raise EditError("merge_levels takes a list of level names, e.g. ['N2', 'N3']")
+        object.__setattr__(self, "levels", tuple(str(x) for x in self.levels))
+        object.__setattr__(self, "into", str(self.into))
+
+    def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        _check_factor(view, self.factor)
+        known = view.levels[self.factor]
+        sources = _check_levels(view, self.factor, self.levels)
+        if self.into in known and self.into not in self.levels:
+            sources.append(known.index(self.into))
+        sources = sorted(set(sources))
+        if len(sources) < 2:
+            raise EditError(f"merging needs two or more distinct levels of {self.factor!r}; got {list(self.levels)}")
+        target = known.index(self.into) if self.into in known else sources[0]
+        new_levels: list[str] = []
+        remap = np.empty(len(known), dtype=np.int32)
+        for i, name in enumerate(known):
+            if i in sources and i != target:
+                continue
+            remap[i] = len(new_levels)
+            new_levels.append(self.into if i == target else name)
+        for i in sources:
+            remap[i] = remap[target]
+        codes = remap[view.codes[self.factor]]
+        return view.replace(
+            codes={**view.codes, self.factor: _ro(codes)},
+            levels={**view.levels, self.factor: tuple(new_levels)},
+        )
+
+    def describe(self) -> str:
+        return f"merge {self.factor} levels {', '.join(self.levels)} into {self.into}"
+
+
+@register_edit
+@dataclass(frozen=True, kw_only=True)
+class RenameLevel(Edit):
+    """Give a level of a factor a new name."""
+
+    kind: ClassVar[str] = "rename"
+    factor: str
+    old: str
+    new: str
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "old", str(self.old))
+        object.__setattr__(self, "new", str(self.new))
+
+    def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        _check_factor(view, self.factor)
+        (i,) = _check_levels(view, self.factor, (self.old,))
+        known = view.levels[self.factor]
+        if self.new in known:
+            raise EditError(
+                f"factor {self.factor!r} already has a level {self.new!r}; to pool the two, merge them instead"
+            )
+        if not self.new.strip():
+            raise EditError("a level name cannot be empty")
+        levels = known[:i] + (self.new,) + known[i + 1 :]
+        return view.replace(levels={**view.levels, self.factor: levels})
+
+    def describe(self) -> str:
+        return f"rename {self.factor} level {self.old} to {self.new}"

@@ -1,0 +1,174 @@
+"""Result values of an analysis: frozen, full precision, with ``to_frame`` and HTML reprs."""
+
+from __future__ import annotations
+
+import html
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .groupstats import GroupStats
+from .spec import ModelSpec
+from .tables import AnovaTable, fmt, html_table
+
+__all__ = ["LevelTable", "TwoSampleT", "Fit", "Results"]
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class LevelTable:
+    """Per-level summary: n, mean, SD, standard error and two confidence intervals.
+
+    ``pooled_ci`` uses the residual mean square of the model (df of the residual);
+    ``own_ci`` uses the level's own SD (df n-1). Undefined entries are NaN in the
+    arrays and listed in ``notes``.
+    """
+
+    factor: str
+    labels: tuple[str, ...]
+    n: np.ndarray
+    mean: np.ndarray
+    sd: np.ndarray
+    se: np.ndarray
+    pooled_low: np.ndarray
+    pooled_high: np.ndarray
+    own_low: np.ndarray
+    own_high: np.ndarray
+    confidence: float = 0.95
+    notes: tuple[str, ...] = ()
+
+    def to_frame(self) -> pd.DataFrame:
+        pct = f"{self.confidence:.0%}"
+        return pd.DataFrame(
+            {
+                "level": list(self.labels),
+                "n": self.n,
+                "mean": self.mean,
+                "SD": self.sd,
+                "standard error": self.se,
+                f"{pct} CI low (pooled SD)": self.pooled_low,
+                f"{pct} CI high (pooled SD)": self.pooled_high,
+                f"{pct} CI low (own SD)": self.own_low,
+                f"{pct} CI high (own SD)": self.own_high,
+            }
+        )
+
+    def _repr_html_(self) -> str:
+        return html_table(self.to_frame(), f"Levels of {self.factor}", self.notes)
+
+
+@dataclass(frozen=True, kw_only=True)
+class TwoSampleT:
+    """Pooled-variance two-sample t test of the difference ``first - second``.
+
+    With two levels, ``statistic**2`` equals the partition's F and the p-values agree.
+    """
+
+    first: str
+    second: str
+    difference: float
+    statistic: float | None
+    df: int
+    pvalue: float | None
+    ci_low: float | None
+    ci_high: float | None
+    confidence: float = 0.95
+
+    def confidence_interval(self) -> tuple[float | None, float | None]:
+        return (self.ci_low, self.ci_high)
+
+    def _repr_html_(self) -> str:
+        return (
+            f"<div>Pooled t test, {html.escape(self.first)} − {html.escape(self.second)}: difference "
+            f"{fmt(self.difference)}, t = {fmt(self.statistic)} on {self.df} df, p = {fmt(self.pvalue)}, "
+            f"{self.confidence:.0%} CI ({fmt(self.ci_low)}, {fmt(self.ci_high)})</div>"
+        )
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class Fit:
+    """Per-row quantities of the fitted model for the kept rows (original response scale)."""
+
+    row_ids: np.ndarray
+    positions: np.ndarray
+    y: np.ndarray
+    fitted: np.ndarray
+    residuals: np.ndarray
+    leverage: np.ndarray
+    group: np.ndarray  # group (or cell) code of each kept row, into Results.groups
+
+    def to_frame(self) -> pd.DataFrame:
+        return pd.DataFrame(
+            {"row": self.row_ids, "observed": self.y, "fitted": self.fitted,
+             "residual": self.residuals, "leverage": self.leverage}
+        )
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class Results:
+    """Everything the analysis of one view produces.
+
+    ``partition`` is the corrected partition (terms, residual, corrected total);
+    ``uncorrected`` the raw decomposition (correction for the mean + terms + residual =
+    raw sum of squares). ``levels`` maps each treatment factor to its level table
+    (least-squares means for factorial designs). ``groups`` are the sufficient
+    statistics of the groups (one-way) or cells (factorial) that were fitted.
+    """
+
+    spec: ModelSpec
+    partition: AnovaTable
+    uncorrected: AnovaTable
+    r_squared: float
+    residual_sd: float | None
+    df_resid: int
+    ms_resid: float | None
+    levels: Mapping[str, LevelTable]
+    groups: GroupStats
+    fit: Fit
+    n_used: int
+    dropped: tuple = ()
+    two_groups: TwoSampleT | None = None
+    method: str = "least squares, one-way"
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def main_term(self) -> str:
+        """The term the decision is read from: the first treatment factor (its main effect)."""
+        return self.spec.factors[0]
+
+    def pvalue(self, term: str | None = None) -> float | None:
+        return self.partition.row(term or self.main_term).pvalue
+
+    def statistic(self, term: str | None = None) -> float | None:
+        return self.partition.row(term or self.main_term).statistic
+
+    def significant(self, term: str | None = None, alpha: float | None = None) -> bool:
+        """Whether the term's F test rejects at ``alpha`` (the spec's alpha by default)."""
+        p = self.pvalue(term)
+        return p is not None and p < (self.spec.alpha if alpha is None else alpha)
+
+    def decision(self, term: str | None = None, alpha: float | None = None) -> str:
+        a = self.spec.alpha if alpha is None else alpha
+        t = term or self.main_term
+        p = self.pvalue(t)
+        if p is None:
+            return f"{t}: no F test (see notes)"
+        verdict = "differences detected" if p < a else "no differences detected"
+        return f"{t}: {verdict} at alpha {a:g} (p = {fmt(p, 4)})"
+
+    def to_frame(self) -> pd.DataFrame:
+        return self.partition.to_frame()
+
+    def _repr_html_(self) -> str:
+        parts = [self.partition._repr_html_()]
+        parts.append(
+            f"<div>n = {self.n_used}, R² = {fmt(self.r_squared, 4)}, residual SD = {fmt(self.residual_sd, 4)}; "
+            f"{html.escape(self.decision())}</div>"
+        )
+        for table in self.levels.values():
+            parts.append(table._repr_html_())
+        if self.two_groups is not None:
+            parts.append(self.two_groups._repr_html_())
+        parts.extend(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)
+        return "<div class='vx-results'>" + "".join(parts) + "</div>"

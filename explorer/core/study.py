@@ -1,0 +1,287 @@
+"""A study: a dataset, a model spec and an edit log with undo/redo, events and save/load.
+
+The study is the only stateful object of the core. Its state is the list of edits and
+a cursor into it; the current view is the fold of the edits up to the cursor over the
+dataset's initial view, and ``results`` is ``analyze`` of that view (memoised per
+cursor position, so undo and redo cost nothing).
+"""
+
+from __future__ import annotations
+
+import json
+import warnings
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from .analysis import analyze
+from .dataset import Dataset, RowId, SetAsideRow, build_dataset
+from .edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows
+from .errors import DesignError, EditError, ReplayError
+from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
+from .results import Results
+from .spec import ModelSpec
+from .view import DataView, initial_view
+
+__all__ = ["Study", "StudyEvent", "Disclosure"]
+
+
+@dataclass(frozen=True)
+class StudyEvent:
+    """What changed: ``kind`` is 'edit', 'undo', 'redo', 'reset' or 'search'."""
+
+    kind: str
+    edit: Edit | None
+    position: int
+
+
+@dataclass(frozen=True)
+class Disclosure:
+    """How much searching stands behind the current state.
+
+    ``edits_made`` counts every edit ever applied (undone ones too); ``specifications``
+    counts alternative analyses computed by sensitivity tools (sweeps, scans).
+    """
+
+    edits_in_effect: int
+    edits_made: int
+    undos: int
+    specifications: int
+
+    def sentence(self) -> str:
+        return (
+            f"{self.edits_in_effect} edit(s) in effect; {self.edits_made} made in all ({self.undos} undone); "
+            f"{self.specifications} alternative analyses examined"
+        )
+
+
+class Study:
+    """An analysis of variance whose data can be edited, with every edit logged.
+
+    Parameters
+    ----------
+    data : DataFrame or path to a CSV/Parquet/Excel file (copied once, never changed).
+    response : numeric column to analyse.
+    factors : one factor name or a list of them (treatment factors).
+    blocks : additive block factors (randomized complete block designs).
+    interactions : cross the treatment factors (full factorial) when True.
+    ss_type : 'I', 'II' or 'III' sums of squares for multi-factor designs.
+    alpha : level at which decisions are read.
+    """
+
+    def __init__(
+        self,
+        data: pd.DataFrame | str | Path,
+        response: str,
+        factors: str | Sequence[str],
+        *,
+        blocks: str | Sequence[str] = (),
+        interactions: bool = True,
+        ss_type: str = "II",
+        alpha: float = 0.05,
+    ) -> None:
+        factors_t = (factors,) if isinstance(factors, str) else tuple(factors)
+        blocks_t = (blocks,) if isinstance(blocks, str) else tuple(blocks)
+        spec = ModelSpec(response=response, factors=factors_t, blocks=blocks_t,
+                         interactions=interactions, ss_type=ss_type, alpha=alpha)  # type: ignore[arg-type]
+        self._init(build_dataset(data, response, spec.columns), spec)
+
+    def _init(self, dataset: Dataset, spec: ModelSpec) -> None:
+        self.dataset = dataset
+        self.spec = spec
+        self._log: list[Edit] = []
+        self._views: list[DataView] = [initial_view(dataset)]
+        self._results: dict[int, Results] = {}
+        self._position = 0
+        self._made = 0
+        self._undos = 0
+        self._searches: list[dict[str, Any]] = []
+        self._listeners: list[Callable[["Study", StudyEvent], None]] = []
+        self._results[0] = analyze(dataset, self._views[0], spec)
+
+    @classmethod
+    def from_dataset(cls, dataset: Dataset, spec: ModelSpec) -> "Study":
+        study = cls.__new__(cls)
+        study._init(dataset, spec)
+        return study
+
+    # ----------------------------------------------------------------- state
+    @property
+    def edits(self) -> tuple[Edit, ...]:
+        """The edits in effect, oldest first."""
+        return tuple(self._log[: self._position])
+
+    @property
+    def redo_edits(self) -> tuple[Edit, ...]:
+        return tuple(self._log[self._position :])
+
+    @property
+    def view(self) -> DataView:
+        return self._views[self._position]
+
+    @property
+    def results(self) -> Results:
+        """Results on the current view."""
+        return self._results_at(self._position)
+
+    @property
+    def baseline(self) -> Results:
+        """Results on the unedited data."""
+        return self._results[0]
+
+    @property
+    def set_aside(self) -> tuple[SetAsideRow, ...]:
+        return self.dataset.set_aside
+
+    @property
+    def dropped(self) -> tuple[RowId, ...]:
+        return self.view.dropped_ids(self.dataset)
+
+    @property
+    def disclosure(self) -> Disclosure:
+        return Disclosure(
+            edits_in_effect=self._position,
+            edits_made=self._made,
+            undos=self._undos,
+            specifications=sum(int(s.get("count", 0)) for s in self._searches),
+        )
+
+    def _results_at(self, pos: int) -> Results:
+        if pos not in self._results:
+            self._results[pos] = analyze(self.dataset, self._views[pos], self.spec)
+        return self._results[pos]
+
+    def levels(self, factor: str) -> tuple[str, ...]:
+        return self.view.levels[factor]
+
+    # ----------------------------------------------------------------- edits
+    def apply(self, edit: Edit) -> Results:
+        """Apply any edit; refuse it (state unchanged) if the result cannot be analysed."""
+        new_view = edit.apply(self.view, self.dataset)
+        try:
+            res = analyze(self.dataset, new_view, self.spec)
+        except DesignError as exc:
+            raise EditError(f"edit refused ({edit.describe()}): {exc}") from None
+        del self._log[self._position :]
+        del self._views[self._position + 1 :]
+        for k in [k for k in self._results if k > self._position]:
+            del self._results[k]
+        self._log.append(edit)
+        self._views.append(new_view)
+        self._position += 1
+        self._results[self._position] = res
+        self._made += 1
+        self._emit("edit", edit)
+        return res
+
+    def drop(self, rows: RowId | Iterable[RowId], reason: str = "") -> Results:
+        """Leave rows out of the analysis; give the reason (lab note, deviation number...)."""
+        return self.apply(DropRows(rows=rows, reason=reason))  # type: ignore[arg-type]
+
+    def restore(self, rows: RowId | Iterable[RowId], reason: str = "") -> Results:
+        return self.apply(RestoreRows(rows=rows, reason=reason))  # type: ignore[arg-type]
+
+    def reassign(self, row: RowId, factor: str, level: str, reason: str = "") -> Results:
+        return self.apply(Reassign(row=row, factor=factor, level=level, reason=reason))
+
+    def merge_levels(self, factor: str, levels: Sequence[str], into: str, reason: str = "") -> Results:
+        return self.apply(MergeLevels(factor=factor, levels=tuple(levels), into=into, reason=reason))
+
+    def rename_level(self, factor: str, old: str, new: str, reason: str = "") -> Results:
+        return self.apply(RenameLevel(factor=factor, old=old, new=new, reason=reason))
+
+    def undo(self) -> Results:
+        if self._position == 0:
+            raise EditError("nothing to undo: the study is at its baseline")
+        self._position -= 1
+        self._undos += 1
+        self._emit("undo", self._log[self._position])
+        return self.results
+
+    def redo(self) -> Results:
+        if self._position >= len(self._log):
+            raise EditError("nothing to redo")
+        self._position += 1
+        self._emit("redo", self._log[self._position - 1])
+        return self.results
+
+    def reset(self) -> Results:
+        """Go back to the baseline; the edits stay available to redo."""
+        if self._position:
+            self._undos += self._position
+            self._position = 0
+            self._emit("reset", None)
+        return self.results
+
+    def record_search(self, what: str, count: int) -> None:
+        """Count alternative analyses a sensitivity tool examined (shown in the disclosure)."""
+        self._searches.append({"what": what, "count": int(count)})
+        self._emit("search", None)
+
+    # ----------------------------------------------------------------- events
+    def on_change(self, callback: Callable[["Study", StudyEvent], None]) -> Callable[[], None]:
+        """Call ``callback(study, event)`` after every change; returns a function that unsubscribes."""
+        self._listeners.append(callback)
+
+        def unsubscribe() -> None:
+            if callback in self._listeners:
+                self._listeners.remove(callback)
+
+        return unsubscribe
+
+    def _emit(self, kind: str, edit: Edit | None) -> None:
+        event = StudyEvent(kind, edit, self._position)
+        for cb in list(self._listeners):
+            try:
+                cb(self, event)
+            except Exception as exc:  # a broken listener must not corrupt the study
+                warnings.warn(f"a change listener failed: {exc!r}", RuntimeWarning, stacklevel=2)
+
+    # ----------------------------------------------------------------- files
+    def to_dict(self) -> dict[str, Any]:
+        return study_to_dict(self.dataset, self.spec, self._log, self._position, self._searches)
+
+    def save(self, path: str | Path) -> Path:
+        """Write the spec, data fingerprint and edit log (with undone edits) as JSON."""
+        p = Path(path)
+        p.write_text(json.dumps(self.to_dict(), indent=1), encoding="utf-8")
+        return p
+
+    @classmethod
+    def load(cls, path: str | Path, data: pd.DataFrame | str | Path, *, allow_mismatch: bool = False) -> "Study":
+        """Replay a saved log on ``data``; refuse (saying what differs) if the data changed."""
+        doc = read_study_file(path)
+        return cls.from_dict(doc, data, allow_mismatch=allow_mismatch)
+
+    @classmethod
+    def from_dict(cls, doc: dict[str, Any], data: pd.DataFrame | str | Path, *, allow_mismatch: bool = False) -> "Study":
+        spec = ModelSpec.from_dict(doc["spec"])
+        dataset = build_dataset(data, spec.response, spec.columns)
+        problem = describe_mismatch(doc, dataset)
+        if problem and not allow_mismatch:
+            raise ReplayError(problem + ". Pass allow_mismatch=True to replay anyway (edits that no longer apply fail).")
+        study = cls.from_dataset(dataset, spec)
+        edits = edits_from_doc(doc)
+        position = int(doc.get("position", len(edits)))
+        for i, e in enumerate(edits):
+            try:
+                study.apply(e)
+            except EditError as exc:
+                raise ReplayError(f"edit {i + 1} of the saved log ({e.describe()}) does not apply: {exc}") from None
+        study._searches = list(doc.get("searches", []))
+        while study._position > position:
+            study.undo()
+        study._made, study._undos = len(edits), 0
+        return study
+
+    def __repr__(self) -> str:
+        return (
+            f"Study(response={self.spec.response!r}, factors={list(self.spec.columns)}, n={self.dataset.n}, "
+            f"edits={self._position})"
+        )
+
+    def _repr_html_(self) -> str:
+        return self.results._repr_html_()

@@ -1,0 +1,104 @@
+"""Frozen table values shared by every analysis: partition rows and tables.
+
+Numbers keep full precision here; rounding happens only in ``to_frame`` display
+helpers and HTML reprs. A statistic that is undefined is ``None`` and the table's
+``notes`` say why; there are no bare NaNs.
+"""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass, field
+from typing import Any
+
+import pandas as pd
+
+__all__ = ["TermRow", "AnovaTable", "COLUMNS", "html_table", "fmt"]
+
+#: Column headings of a partition table (plain trade words).
+COLUMNS = ("source", "df", "sum of squares", "mean square", "F", "p-value")
+
+
+def fmt(x: Any, digits: int = 6) -> str:
+    """Display a number with ``digits`` significant digits; '—' for undefined."""
+    if x is None:
+        return "—"
+    if isinstance(x, (int,)) and not isinstance(x, bool):
+        return str(x)
+    try:
+        xf = float(x)
+    except (TypeError, ValueError):
+        return html.escape(str(x))
+    if xf != xf:
+        return "—"
+    if xf == 0:
+        return "0"
+    if abs(xf) < 1e-4:
+        return f"{xf:.{max(digits - 3, 2)}e}"
+    return f"{xf:.{digits}g}"
+
+
+def html_table(frame: pd.DataFrame, caption: str = "", notes: tuple[str, ...] = (), digits: int = 6) -> str:
+    """A small self-contained HTML table (no styling framework needed)."""
+    head = "".join(f"<th>{html.escape(str(c))}</th>" for c in frame.columns)
+    body = []
+    for _, row in frame.iterrows():
+        cells = "".join(
+            f"<td>{fmt(v, digits) if not isinstance(v, str) else html.escape(v)}</td>" for v in row.tolist()
+        )
+        body.append(f"<tr>{cells}</tr>")
+    cap = f"<caption style='text-align:left;font-weight:600'>{html.escape(caption)}</caption>" if caption else ""
+    foot = "".join(f"<div style='font-size:90%;color:#555'>{html.escape(n)}</div>" for n in notes)
+    return (
+        f"<table class='vx-table'>{cap}<thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>{foot}"
+    )
+
+
+@dataclass(frozen=True, kw_only=True)
+class TermRow:
+    """One line of a partition: a source of variation with its test."""
+
+    source: str
+    df: int
+    sum_sq: float
+    mean_sq: float | None = None
+    statistic: float | None = None
+    pvalue: float | None = None
+
+    def as_tuple(self) -> tuple[Any, ...]:
+        return (self.source, self.df, self.sum_sq, self.mean_sq, self.statistic, self.pvalue)
+
+
+@dataclass(frozen=True, kw_only=True)
+class AnovaTable:
+    """A sums-of-squares partition: one row per source, then the residual and the total.
+
+    ``ss_type`` and ``coding`` record how the term sums of squares were computed.
+    """
+
+    rows: tuple[TermRow, ...]
+    title: str = "Partition of the sum of squares"
+    ss_type: str = "I"
+    coding: str = "treatment"
+    notes: tuple[str, ...] = field(default=())
+
+    def row(self, source: str) -> TermRow:
+        for r in self.rows:
+            if r.source == source:
+                return r
+        raise KeyError(f"no row {source!r} in the partition; rows are {[r.source for r in self.rows]}")
+
+    @property
+    def sources(self) -> tuple[str, ...]:
+        return tuple(r.source for r in self.rows)
+
+    def to_frame(self) -> pd.DataFrame:
+        """The table as a DataFrame with the trade's column names (full precision)."""
+        frame = pd.DataFrame([r.as_tuple() for r in self.rows], columns=list(COLUMNS))
+        for c in COLUMNS[2:]:
+            frame[c] = pd.array(frame[c].tolist(), dtype="Float64")
+        return frame
+
+    def _repr_html_(self) -> str:
+        caption = f"{self.title} (type {self.ss_type} sums of squares)"
+        return html_table(self.to_frame(), caption, self.notes)
