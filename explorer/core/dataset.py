@@ -260,7 +260,9 @@ def build_dataset(
     row_ids = ids[usable]
     row_ids.setflags(write=False)
     hashed = pd.util.hash_pandas_object(
-        pd.DataFrame({"id": pd.Series(ids, dtype=object).astype(str), "y": yv, **{f: frame[f].astype(str) for f in factors}}),
+        pd.DataFrame(
+            {"id": [str(i) for i in ids.tolist()], "y": yv, **{f: frame[f].astype(str).to_numpy() for f in factors}}
+        ),
         index=False,
     ).to_numpy()
     head = f"{response}|{'|'.join(factors)}|{len(frame)}".encode()

@@ -6,6 +6,7 @@ the exact decimal offset out, so no digits are lost before the analysis starts.
 
 from __future__ import annotations
 
+import importlib.util
 from pathlib import Path
 
 import pandas as pd
@@ -58,10 +59,12 @@ def read_table(source: str | Path, text_columns: tuple[str, ...] = ()) -> tuple[
         except ImportError:
             raise DataError("reading Parquet needs pyarrow: pip install pyarrow") from None
     elif suffix in _EXCEL:
+        if importlib.util.find_spec("openpyxl") is None:
+            raise DataError("reading Excel files needs openpyxl: pip install openpyxl (or save the sheet as CSV)")
         try:
             frame = pd.read_excel(path)
-        except ImportError:
-            raise DataError("reading Excel files needs openpyxl: pip install openpyxl (or save the sheet as CSV)") from None
+        except (ValueError, OSError) as exc:
+            raise DataError(f"could not read {path.name!r} as an Excel workbook: {exc}") from None
     else:
         raise DataError(f"unknown file type {suffix!r} for {path.name!r}: use .csv, .tsv, .parquet or .xlsx")
     if frame.columns.duplicated().any():
