@@ -88,10 +88,12 @@ class Study:
         spec = ModelSpec(response=response, factors=factors_t, blocks=blocks_t,
                          interactions=interactions, ss_type=ss_type, alpha=alpha)  # type: ignore[arg-type]
         self._init(build_dataset(data, response, spec.columns), spec)
+        self.data_source = data if isinstance(data, (str, Path)) else None
 
     def _init(self, dataset: Dataset, spec: ModelSpec) -> None:
         self.dataset = dataset
         self.spec = spec
+        self.data_source: str | Path | None = None  # the file the data came from, for replay code
         self._log: list[Edit] = []
         self._views: list[DataView] = [initial_view(dataset)]
         self._results: dict[int, Results] = {}
@@ -264,6 +266,7 @@ class Study:
         if problem and not allow_mismatch:
             raise ReplayError(problem + ". Pass allow_mismatch=True to replay anyway (edits that no longer apply fail).")
         study = cls.from_dataset(dataset, spec)
+        study.data_source = data if isinstance(data, (str, Path)) else None
         edits = edits_from_doc(doc)
         position = int(doc.get("position", len(edits)))
         for i, e in enumerate(edits):
@@ -276,6 +279,19 @@ class Study:
             study.undo()
         study._made, study._undos = len(edits), 0
         return study
+
+    # ----------------------------------------------------------------- hand-off
+    def report(self, path: str | Path, *, title: str | None = None, scenario: str | None = None) -> Path:
+        """Write a self-contained HTML report (opens offline); see :mod:`explorer.report`."""
+        from ..report import write_report  # lazy: the report may draw charts with altair
+
+        return write_report(self, path, title=title, scenario=scenario)
+
+    def to_code(self, data: str | Path | None = None) -> str:
+        """Python source that rebuilds this state from the original data (load, then each edit)."""
+        from ..report import study_to_code
+
+        return study_to_code(self, data)
 
     def __repr__(self) -> str:
         return (

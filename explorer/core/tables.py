@@ -21,7 +21,7 @@ COLUMNS = ("source", "df", "sum of squares", "mean square", "F", "p-value")
 
 def fmt(x: Any, digits: int = 6) -> str:
     """Display a number with ``digits`` significant digits; '—' for undefined."""
-    if x is None:
+    if x is None or x is pd.NA:
         return "—"
     if isinstance(x, (int,)) and not isinstance(x, bool):
         return str(x)

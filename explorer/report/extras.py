@@ -1,0 +1,92 @@
+"""Optional parts of a hand-off: the test battery and the sensitivity summary.
+
+These come from other parts of the kit (``study.battery()`` and the sensitivity engine
+in ``explorer/core``). Each is looked up when the report is written; a part that is
+missing or fails leaves a short note in its place instead of stopping the report, so a
+hand-off can always be written. Every part is a :class:`Part` with an HTML and a text
+form, shared by the HTML report and the command line.
+"""
+
+from __future__ import annotations
+
+import html
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
+
+import pandas as pd
+
+if TYPE_CHECKING:
+    from ..core.study import Study
+
+__all__ = ["Part", "battery_part", "sensitivity_part", "as_html", "as_text"]
+
+
+@dataclass(frozen=True, kw_only=True)
+class Part:
+    """One section of a hand-off: a title, its HTML and its plain text; ``note`` when absent."""
+
+    title: str
+    html: str = ""
+    text: str = ""
+    note: str | None = None
+
+    @property
+    def present(self) -> bool:
+        return self.note is None
+
+
+def as_html(obj: Any) -> str:
+    """HTML of a result object (its ``_repr_html_``, else its frame, else its text)."""
+    if hasattr(obj, "_repr_html_"):
+        out = obj._repr_html_()
+        if out:
+            return str(out)
+    if hasattr(obj, "to_frame"):
+        from ..core.tables import html_table
+
+        return html_table(obj.to_frame())
+    return f"<pre>{html.escape(str(obj))}</pre>"
+
+
+def as_text(obj: Any) -> str:
+    """Plain text of a result object (``to_text``, else its frame, else ``str``)."""
+    if hasattr(obj, "to_text"):
+        return str(obj.to_text())
+    if hasattr(obj, "to_frame"):
+        frame = obj.to_frame()
+        if isinstance(frame, pd.DataFrame):
+            return frame.to_string(index=False)
+    return str(obj)
+
+
+def _call(title: str, fn: Callable[[], Any], missing: str) -> Part:
+    try:
+        value = fn()
+    except (AttributeError, ImportError):
+        return Part(title=title, note=missing)
+    except Exception as exc:  # a failing optional part must not stop the hand-off
+        return Part(title=title, note=f"could not be computed on this study: {exc}")
+    return Part(title=title, html=as_html(value), text=as_text(value))
+
+
+def battery_part(study: "Study") -> Part:
+    """The one-way test battery on the current state (``study.battery()``)."""
+    return _call(
+        "Checks, comparisons and effect sizes",
+        lambda: study.battery(),  # type: ignore[attr-defined]
+        "the test battery is not part of this version of the kit",
+    )
+
+
+def sensitivity_part(study: "Study") -> Part:
+    """The sensitivity summary on the current state (``study.sensitivity()``).
+
+    It names the rows whose removal flips the decision, the regroupings that flip it, and
+    the share of examined alternatives that keep the decision.
+    """
+    return _call(
+        "Sensitivity of the decision",
+        lambda: study.sensitivity(),  # type: ignore[attr-defined]
+        "the sensitivity engine is not part of this version of the kit",
+    )

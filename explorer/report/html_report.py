@@ -1,0 +1,188 @@
+"""One self-contained HTML file that hands a study to a colleague who has no Jupyter.
+
+The page needs no network: styles are inline, charts are inline SVG, there is no
+script, and a content-security policy in the page forbids loading anything else. It
+shows, in order: the scenario and the data's provenance, the disclosure count, the
+cautions, baseline and current results side by side, every edit with its reason and
+time, the test battery, the sensitivity summary and the replay code. The saved study
+(the same JSON as ``study.save``) is embedded, so the edit log can be taken out again.
+"""
+
+from __future__ import annotations
+
+import html
+import json
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from ..core.tables import fmt, html_table
+from .cautions import cautions_html
+from .extras import Part, battery_part, sensitivity_part
+from .replay_code import study_to_code
+from .svg_charts import results_svg
+
+if TYPE_CHECKING:
+    from ..core.results import Results
+    from ..core.study import Study
+
+__all__ = ["report_html", "write_report"]
+
+CSP = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; font-src data:"
+
+STYLE = """
+body{font-family:system-ui,-apple-system,"Segoe UI",Roboto,sans-serif;margin:2em auto;max-width:1180px;
+ padding:0 1em;color:#1d1d1d;line-height:1.4}
+h1{font-size:1.6em;margin-bottom:.2em} h2{font-size:1.2em;border-bottom:1px solid #ccc;padding-bottom:.2em;margin-top:1.6em}
+.scenario{font-size:1.1em;color:#333}
+.side{display:grid;grid-template-columns:1fr 1fr;gap:1.5em}
+.side>div{overflow-x:auto}
+.side table.vx-table{font-size:80%}
+table.vx-table{border-collapse:collapse;margin:.5em 0;font-size:90%}
+table.vx-table th,table.vx-table td{border:1px solid #ddd;padding:2px 6px;text-align:right}
+table.vx-table td:first-child,table.vx-table th:first-child{text-align:left}
+.disclosure{background:#fff6e0;border-left:4px solid #d08c00;padding:.4em .8em}
+.vx-cautions li{margin:.3em 0}
+.note{color:#8a4b00}
+pre{background:#f6f6f6;padding:.8em;overflow-x:auto;font-size:85%}
+@media print{.side{grid-template-columns:1fr}}
+"""
+
+
+def _kv_table(rows: list[tuple[str, str]]) -> str:
+    body = "".join(f"<tr><th>{html.escape(k)}</th><td>{v}</td></tr>" for k, v in rows)
+    return f"<table class='vx-table'>{body}</table>"
+
+
+def _provenance(study: "Study") -> str:
+    ds = study.dataset
+    rows = [
+        ("data file", html.escape(ds.source)),
+        ("fingerprint", f"<code>{html.escape(ds.fingerprint)}</code>"),
+        ("rows in the file", str(len(ds.table))),
+        ("rows usable", str(ds.n)),
+        ("row ids", html.escape(ds.describe_ids())),
+        ("response", html.escape(study.spec.response)),
+        ("factors", html.escape(", ".join(study.spec.factors))),
+    ]
+    if study.spec.blocks:
+        rows.append(("blocks", html.escape(", ".join(study.spec.blocks))))
+    if not study.spec.is_oneway:
+        rows.append(("sums of squares", f"type {html.escape(study.spec.ss_type)}"))
+    rows.append(("decisions read at alpha", f"{study.spec.alpha:g}"))
+    out = _kv_table(rows)
+    if ds.set_aside:
+        items = "".join(f"<li>row {html.escape(str(s.row))}: {html.escape(s.reason)}</li>" for s in ds.set_aside)
+        out += f"<p>{len(ds.set_aside)} row(s) set aside when the data were loaded:</p><ul>{items}</ul>"
+    else:
+        out += "<p>No rows were set aside when the data were loaded.</p>"
+    out += "".join(f"<p class='note'>{html.escape(n)}</p>" for n in ds.notes)
+    return out
+
+
+def _headline(study: "Study") -> str:
+    base, cur = study.baseline, study.results
+    term = base.main_term
+
+    def line(label: str, a: object, b: object) -> tuple[str, str, str]:
+        return (label, fmt(a, 6) if not isinstance(a, str) else html.escape(a),
+                fmt(b, 6) if not isinstance(b, str) else html.escape(b))
+
+    rows = [
+        line("observations used", base.n_used, cur.n_used),
+        line(f"F for {term}", base.statistic(term), cur.statistic(term)),
+        line(f"p-value for {term}", base.pvalue(term), cur.pvalue(term)),
+        line("R²", base.r_squared, cur.r_squared),
+        line("residual SD", base.residual_sd, cur.residual_sd),
+        line("decision", base.decision(term), cur.decision(term)),
+    ]
+    body = "".join(f"<tr><th>{k}</th><td>{a}</td><td>{b}</td></tr>" for k, a, b in rows)
+    return (
+        "<table class='vx-table vx-headline'><thead><tr><th></th><th>baseline (unedited)</th>"
+        f"<th>current (after {len(study.edits)} edit(s))</th></tr></thead><tbody>{body}</tbody></table>"
+    )
+
+
+def _results_column(res: "Results", heading: str, charts: bool) -> str:
+    parts = [f"<h3>{html.escape(heading)}</h3>"]
+    if charts:
+        svg, why = results_svg(res, heading)
+        parts.append(f"<figure class='vx-chart'>{svg}</figure>" if svg else f"<p class='note'>{html.escape(why or '')}</p>")
+    parts.append(res._repr_html_())
+    return "<div>" + "".join(parts) + "</div>"
+
+
+def _edits(study: "Study") -> str:
+    rows = []
+    for i, e in enumerate(study.edits, 1):
+        rows.append((str(i), e.describe(), e.reason or "(no reason given)", e.at, "in effect"))
+    for j, e in enumerate(study.redo_edits, len(study.edits) + 1):
+        rows.append((str(j), e.describe(), e.reason or "(no reason given)", e.at, "undone (kept for redo)"))
+    if not rows:
+        return "<p>No edits: the current results are the baseline.</p>"
+    head = "".join(f"<th>{h}</th>" for h in ("#", "edit", "reason", "made (UTC)", "status"))
+    body = "".join(
+        "<tr>" + "".join(f"<td>{html.escape(c)}</td>" for c in r) + "</tr>" for r in rows
+    )
+    return f"<table class='vx-table vx-edits'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+def _part(part: Part) -> str:
+    if part.present:
+        return part.html
+    return f"<p class='note'>Not included: {html.escape(part.note or '')}.</p>"
+
+
+def report_html(study: "Study", *, title: str | None = None, scenario: str | None = None, charts: bool = True) -> str:
+    """The report page as a string (see the module docstring for its contents)."""
+    from .. import __version__
+
+    spec = study.spec
+    title = title or f"{spec.response} by {' and '.join(spec.factors)}: analysis of variance"
+    scenario = scenario or (
+        f"Does the mean {spec.response} differ between the levels of {', '.join(spec.factors)}? "
+        f"Data: {study.dataset.source}."
+    )
+    battery = battery_part(study)
+    sensitivity = sensitivity_part(study)
+    disclosure = study.disclosure  # read after the sensitivity scan, which may add to it
+    now = datetime.now(timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
+    saved = json.dumps(study.to_dict(), indent=1).replace("<", "\\u003c")  # inert inside <script>
+    code = study_to_code(study)
+    sections = [
+        f"<header><h1>{html.escape(title)}</h1><p class='scenario'>{html.escape(scenario)}</p>"
+        f"<p class='disclosure'><strong>Disclosure:</strong> {html.escape(disclosure.sentence())}.</p></header>",
+        f"<section id='provenance'><h2>Data and provenance</h2>{_provenance(study)}</section>",
+        f"<section id='cautions'><h2>Cautions</h2>{cautions_html()}</section>",
+        "<section id='comparison'><h2>Baseline and current results</h2>" + _headline(study)
+        + "<div class='side'>"
+        + _results_column(study.baseline, "Baseline (unedited data)", charts)
+        + _results_column(study.results, f"Current (after {len(study.edits)} edit(s))", charts)
+        + "</div></section>",
+        f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}</section>",
+        f"<section id='battery'><h2>{html.escape(battery.title)}</h2>{_part(battery)}</section>",
+        f"<section id='sensitivity'><h2>{html.escape(sensitivity.title)}</h2>{_part(sensitivity)}"
+        f"<p>{html.escape(disclosure.sentence())}.</p></section>",
+        "<section id='replay'><h2>Rerun this analysis</h2><p>Run this Python (with the kit installed, "
+        f"next to the data file) to rebuild the current state:</p><pre>{html.escape(code)}</pre></section>",
+        f"<footer><p>Written {now} by variance-explorer {html.escape(__version__)}. The saved study (edit log "
+        "with reasons) is embedded in this file as JSON (element id <code>vx-study</code>).</p></footer>",
+        f"<script type='application/json' id='vx-study'>{saved}</script>",
+    ]
+    return (
+        "<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
+        f"<meta http-equiv='Content-Security-Policy' content=\"{CSP}\">"
+        "<meta name='viewport' content='width=device-width, initial-scale=1'>"
+        f"<title>{html.escape(title)}</title><style>{STYLE}</style></head><body>"
+        + "\n".join(sections)
+        + "</body></html>\n"
+    )
+
+
+def write_report(
+    study: "Study", path: str | Path, *, title: str | None = None, scenario: str | None = None, charts: bool = True
+) -> Path:
+    """Write :func:`report_html` to ``path`` (UTF-8) and return the path."""
+    p = Path(path)
+    p.write_text(report_html(study, title=title, scenario=scenario, charts=charts), encoding="utf-8")
+    return p

@@ -1,0 +1,64 @@
+"""Charts for the static report, drawn to inline SVG offline with vl-convert.
+
+An SVG written into the page needs no script and no network, so the report opens
+anywhere. The chart is the per-level view of one result (observations, level means and
+their pooled-SD intervals). Altair and vl-convert belong to the ``widget`` extra; without
+them the report is written without charts and says so.
+"""
+
+from __future__ import annotations
+
+import re
+from typing import TYPE_CHECKING, Any
+
+import pandas as pd
+
+if TYPE_CHECKING:
+    from ..core.results import Results
+
+__all__ = ["level_chart", "chart_to_svg", "results_svg"]
+
+
+def level_chart(results: "Results", title: str) -> Any:
+    """Altair chart: observations by level of the first factor, with mean and interval."""
+    import altair as alt
+
+    factor = results.main_term
+    table = results.levels[factor]
+    labels = list(table.labels)
+    fit = results.fit
+    group_names = list(results.groups.labels)
+    if len(group_names) == len(fit.y) or results.spec.is_oneway:
+        level_of_row = [group_names[int(g)] for g in fit.group]
+    else:  # factorial cells: fall back to the plain points without a level axis
+        level_of_row = ["all"] * len(fit.y)
+    points = pd.DataFrame({"level": level_of_row, "value": fit.y, "row": [str(r) for r in fit.row_ids]})
+    summary = pd.DataFrame(
+        {"level": labels, "mean": table.mean, "low": table.pooled_low, "high": table.pooled_high}
+    )
+    x = alt.X("level:N", sort=labels, title=factor)
+    y_title = results.spec.response
+    dots = alt.Chart(points).mark_circle(size=28, opacity=0.45, color="#4c72b0").encode(
+        x=x, y=alt.Y("value:Q", title=y_title, scale=alt.Scale(zero=False)), tooltip=["row", "value"]
+    )
+    bars = alt.Chart(summary).mark_rule(strokeWidth=2.5, color="#222").encode(x=x, y="low:Q", y2="high:Q")
+    means = alt.Chart(summary).mark_tick(thickness=3, size=22, color="#c44e52").encode(x=x, y="mean:Q")
+    return (dots + bars + means).properties(width=280, height=220, title=title)
+
+
+def chart_to_svg(chart: Any) -> str:
+    """SVG text of an Altair chart (vl-convert, no network), without the XML prologue."""
+    import vl_convert as vlc
+
+    svg = vlc.vegalite_to_svg(chart.to_dict())
+    return re.sub(r"^<\?xml[^>]*>\s*", "", svg)
+
+
+def results_svg(results: "Results", title: str) -> tuple[str | None, str | None]:
+    """``(svg, None)`` or ``(None, why)`` when the chart libraries are not installed."""
+    try:
+        import altair  # noqa: F401
+        import vl_convert  # noqa: F401
+    except ImportError:
+        return None, "charts need the widget extra (altair, vl-convert-python): pip install 'variance-explorer[widget]'"
+    return chart_to_svg(level_chart(results, title)), None
