@@ -5,6 +5,7 @@ from __future__ import annotations
 import html
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -12,6 +13,12 @@ import pandas as pd
 from .groupstats import GroupStats
 from .spec import ModelSpec
 from .tables import AnovaTable, fmt, html_table
+
+if TYPE_CHECKING:  # multi-factor result parts (see factorial.py)
+    from .blocking import BlockingEfficiency
+    from .cells import CellTable
+    from .marginal_means import MarginalMeans
+    from .term_effects import TermEffects
 
 __all__ = ["LevelTable", "TwoSampleT", "Fit", "Results"]
 
@@ -131,6 +138,19 @@ class Results:
     two_groups: TwoSampleT | None = None
     method: str = "least squares, one-way"
     notes: tuple[str, ...] = field(default=())
+    # Multi-factor designs (factorial.py); empty/None for one-way results.
+    partitions: Mapping[str, AnovaTable] = field(default_factory=dict)  # SS type ("I", "II", "III") -> partition
+    marginal_means: Mapping[str, "MarginalMeans"] = field(default_factory=dict)  # least-squares means per factor
+    term_effects: "TermEffects | None" = None  # partial eta² and omega² per term
+    cells: "CellTable | None" = None  # counts and raw means of the observed cells
+    blocking: "BlockingEfficiency | None" = None  # relative efficiency of blocks vs no blocks
+
+    def compare_means(self, factor: str | None = None, confidence: float | None = None) -> Any:
+        """Tukey-Kramer comparisons of the marginal (least-squares) means of ``factor``."""
+        f = factor or self.main_term
+        if f not in self.marginal_means:
+            raise KeyError(f"no marginal means for {f!r}; they exist for {list(self.marginal_means)}")
+        return self.marginal_means[f].compare(confidence)
 
     @property
     def main_term(self) -> str:
@@ -168,6 +188,10 @@ class Results:
         )
         for table in self.levels.values():
             parts.append(table._repr_html_())
+        extras = [*self.marginal_means.values(), self.term_effects, self.blocking]
+        if self.cells is not None and not self.cells.balanced:
+            extras.append(self.cells)
+        parts.extend(x._repr_html_() for x in extras if x is not None)
         if self.two_groups is not None:
             parts.append(self.two_groups._repr_html_())
         parts.extend(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)

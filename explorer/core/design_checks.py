@@ -1,0 +1,146 @@
+"""Checks of a crossed design before it is fitted, with messages that say what to do.
+
+A factorial analysis can fail quietly: an empty cell makes an interaction partly
+inestimable, one observation per cell leaves no residual, a factor nested in another
+cannot be separated from it. These checks find such problems from the cell layout
+(no rows needed) and either raise :class:`DesignError` naming the cells, terms and
+remedies, or return notes for the results.
+
+References
+----------
+Searle, S. R. (1987). Linear Models for Unbalanced Data, ch. 4 and 5 (empty cells,
+estimability, connectedness).
+Montgomery, D. C. Design and Analysis of Experiments, ch. 5 (one observation per
+cell) and ch. 14 (nested designs).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from itertools import combinations
+
+import numpy as np
+
+from .cells import CellLayout
+from .design import model_terms, term_name
+from .errors import DesignError, preview
+from .spec import ModelSpec
+
+__all__ = ["check_design"]
+
+
+def _role(column: str, spec: ModelSpec) -> str:
+    return "block column" if column in spec.blocks else "factor"
+
+
+def _check_levels(layout: CellLayout, spec: ModelSpec) -> list[str]:
+    notes = []
+    for col, lv in zip(layout.columns, layout.levels):
+        if len(lv) < 2:
+            raise DesignError(
+                f"{_role(col, spec)} {col!r} has observations at one level only ({lv[0]!r}) in this view, "
+                f"so it has no effect to estimate; restore rows, undo a merge, or leave {col!r} out of the model"
+            )
+        absent = layout.absent_levels.get(col)
+        if absent:
+            notes.append(f"Level(s) {preview(list(absent))} of {col!r} have no observations in this view and are left out.")
+    return notes
+
+
+def _check_nesting(layout: CellLayout, spec: ModelSpec) -> None:
+    """Raise when one grouping column is nested in (or confounded with) another."""
+    for i, j in combinations(range(len(layout.columns)), 2):
+        a, b = layout.columns[i], layout.columns[j]
+        pairs = np.unique(layout.cell_levels[:, [i, j]], axis=0)
+        per_b = np.bincount(pairs[:, 1], minlength=len(layout.levels[j]))
+        per_a = np.bincount(pairs[:, 0], minlength=len(layout.levels[i]))
+        b_in_a = bool(np.all(per_b == 1))
+        a_in_b = bool(np.all(per_a == 1))
+        if not (b_in_a or a_in_b):
+            continue
+        examples = [f"{layout.levels[j][bl]!r} with {layout.levels[i][al]!r}" for al, bl in pairs[:4].tolist()]
+        if b_in_a and a_in_b:
+            raise DesignError(
+                f"{a!r} and {b!r} group the rows the same way (each level of one occurs with exactly one level "
+                f"of the other: {', '.join(examples)}, ...), so their effects cannot be separated; "
+                "keep only one of them in the model"
+            )
+        inner, outer = (b, a) if b_in_a else (a, b)
+        raise DesignError(
+            f"{inner!r} is nested in {outer!r}: each level of {inner!r} occurs under one level of {outer!r} only "
+            f"({', '.join(examples)}, ...). A crossed analysis cannot separate the two; analyse "
+            f"factors=[{outer!r}] (the {inner!r}-to-{inner!r} variation then sits in the residual) or "
+            f"factors=[{inner!r}] alone; a nested analysis is not offered here"
+        )
+
+
+def _check_empty_cells(layout: CellLayout, spec: ModelSpec) -> list[str]:
+    factors = list(spec.factors)
+    missing = layout.missing_combinations(factors)
+    if not missing:
+        return []
+    shown = preview([", ".join(f"{f}={lv}" for f, lv in zip(factors, combo)) for combo in missing], 6)
+    interactions = [t for t in model_terms(spec) if len(t) > 1]
+    if interactions:
+        bad = [term_name(t) for t in interactions if layout.missing_combinations(list(t))]
+        raise DesignError(
+            f"empty cells: no observations at {shown}. With empty cells the interaction term(s) "
+            f"{', '.join(bad)} cannot be estimated in full and the marginal means of the levels involved are "
+            "undefined. Fit the additive model (interactions=False), merge a sparse level into a neighbouring one "
+            "(merge_levels), or restore left-out rows"
+        )
+    return [
+        f"Empty cells ({shown}): the additive model predicts them from the main effects; "
+        "its marginal means assume there is no interaction."
+    ]
+
+
+def _n_params(layout: CellLayout, spec: ModelSpec) -> int:
+    sizes = dict(zip(layout.columns, layout.n_levels))
+    return 1 + sum(int(np.prod([sizes[c] - 1 for c in t])) for t in model_terms(spec))
+
+
+def _check_replication(layout: CellLayout, cell_n: np.ndarray, spec: ModelSpec) -> list[str]:
+    if not np.all(cell_n == 1):
+        return []
+    n = int(cell_n.sum())
+    cols = " and ".join(repr(c) for c in layout.columns)
+    if n - _n_params(layout, spec) < 1:
+        raise DesignError(
+            f"every cell (combination of {cols}) has one observation, so no residual degrees of freedom remain "
+            "and the interaction cannot be tested; fit the additive model (interactions=False), whose residual "
+            "is the interaction (assumed absent)"
+        )
+    if spec.blocks:
+        return [
+            "One observation per cell: the residual is the block-by-treatment variation, assumed to be "
+            "random error (the usual randomized complete block assumption)."
+        ]
+    if len(spec.factors) > 1 and not spec.interactions:
+        return ["One observation per cell: the interaction cannot be tested; the additive model's residual "
+                "contains any interaction (assumed absent)."]
+    return ["One observation per cell: the highest-order interaction is not in the model and serves as the residual."]
+
+
+def _dataset_notes(spec: ModelSpec, dataset_notes: Sequence[str]) -> list[str]:
+    """Notes the dataset made about the model's columns (e.g. a numeric column used as a factor)."""
+    return [note for note in dataset_notes if any(f"{c!r}" in note for c in spec.columns)]
+
+
+def check_design(
+    layout: CellLayout, cell_n: np.ndarray, spec: ModelSpec, dataset_notes: Sequence[str] = ()
+) -> tuple[str, ...]:
+    """Check a crossed design before fitting; return notes or raise :class:`DesignError`.
+
+    Checks, in order: every column has two or more observed levels; no column is
+    nested in or confounded with another; no empty cells when interactions are in the
+    model (which cells; which terms become inestimable; remedies); one observation per
+    cell (no residual for a saturated model; offer the additive model); and passes on
+    the dataset's notes about the model's columns (a numeric column used as a factor).
+    """
+    notes = _dataset_notes(spec, dataset_notes)
+    notes += _check_levels(layout, spec)
+    _check_nesting(layout, spec)
+    notes += _check_empty_cells(layout, spec)
+    notes += _check_replication(layout, cell_n, spec)
+    return tuple(notes)

@@ -1,0 +1,226 @@
+"""Multi-factor analysis of variance: crossed factors, interactions, additive blocks.
+
+``fit_factorial`` takes the kept rows of a view to cells (one O(n) pass), checks the
+design (:mod:`.design_checks`), fits the model to the cell summaries
+(:func:`.cellfit.fit_cells`) and assembles :class:`~.results.Results`: the partition
+for each type of sums of squares (the spec's type is ``partition``), per-term effect
+sizes, marginal means of each factor, the relative efficiency of blocking, the cell
+counts, and the per-row fit (fitted value, residual and leverage of each kept row).
+
+References
+----------
+Montgomery, D. C. Design and Analysis of Experiments, ch. 4 (randomized complete
+block design) and ch. 5 (factorial designs).
+Searle, S. R. (1987). Linear Models for Unbalanced Data. Wiley.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+from scipy import stats
+
+from .blocking import BlockingEfficiency, blocking_efficiency
+from .cellfit import SS_TYPES, CellFit, fit_cells
+from .cells import CellLayout, CellTable, layout_cells
+from .dataset import Dataset
+from .design import term_name
+from .design_checks import check_design
+from .groupstats import GroupStats, group_stats
+from .marginal_means import MarginalMeans, marginal_means
+from .results import Fit, LevelTable, Results
+from .spec import ModelSpec
+from .tables import AnovaTable, TermRow, fmt
+from .term_effects import term_effects
+from .view import DataView
+
+__all__ = ["fit_factorial", "factorial_tables"]
+
+CODING = "sum-to-zero"
+
+
+def _zero_residual(fit: CellFit) -> bool:
+    st = fit.stats
+    scale = max(abs(st.offset), float(np.max(np.abs(st.mean))), 1e-300)
+    return fit.ss_resid <= fit.n * (8 * np.finfo(float).eps * scale) ** 2
+
+
+def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:
+    ms_e = fit.ss_resid / fit.df_resid
+    rows = []
+    for t in fit.terms:
+        ss, df = fit.ss[ss_type][t], fit.df[ss_type][t]
+        ms = ss / df
+        F = p = None
+        if not zero_resid:
+            F = ms / ms_e
+            p = float(stats.f.sf(F, df, fit.df_resid))
+        rows.append(TermRow(source=term_name(t), df=df, sum_sq=ss, mean_sq=ms, statistic=F, pvalue=p))
+    rows.append(TermRow(source="residual", df=fit.df_resid, sum_sq=fit.ss_resid, mean_sq=0.0 if zero_resid else ms_e))
+    rows.append(TermRow(source="total (corrected)", df=fit.n - 1, sum_sq=fit.ss_total))
+    notes: list[str] = []
+    if ss_type == "I":
+        order = ", ".join(term_name(t) for t in fit.sequence)
+        notes.append(f"Sequential sums of squares, terms entered in the order {order}.")
+    elif ss_type == "II":
+        notes.append("Each term adjusted for every other term that does not contain it.")
+    else:
+        notes.append("Each term adjusted for every other term, sum-to-zero coding.")
+    if zero_resid:
+        notes.append("F is undefined: the residual sum of squares is zero (the model fits every observation).")
+    return AnovaTable(rows=tuple(rows), ss_type=ss_type, coding=CODING, notes=tuple(notes))
+
+
+def _type_notes(tables: dict[str, AnovaTable], fit: CellFit, balanced: bool, alpha: float) -> list[str]:
+    if balanced:
+        return [
+            "Balanced design (every combination of levels has the same count): types I, II and III give the "
+            "same sums of squares."
+        ]
+    counts = fit.stats.n
+    notes = [
+        f"Unbalanced design: cell counts run from {int(counts.min())} to {int(counts.max())} over "
+        f"{fit.stats.k} cells (see results.cells); types I, II and III can differ."
+    ]
+    for t in fit.terms:
+        name = term_name(t)
+        ps = {k: tables[k].row(name).pvalue for k in SS_TYPES}
+        if any(p is None for p in ps.values()):
+            continue
+        verdicts = {k: p < alpha for k, p in ps.items()}  # type: ignore[operator]
+        if len(set(verdicts.values())) > 1:
+            detail = ", ".join(f"type {k} p = {fmt(p, 4)}" for k, p in ps.items())
+            notes.append(f"The types disagree about {name!r} at alpha {alpha:g}: {detail}.")
+    return notes
+
+
+def _uncorrected(fit: CellFit) -> AnovaTable:
+    gm = float(np.dot(fit.stats.n, fit.stats.mean) / fit.n) + fit.stats.offset
+    ct = fit.n * gm * gm
+    rows = [TermRow(source="mean (correction term)", df=1, sum_sq=ct)]
+    rows += [TermRow(source=term_name(t), df=fit.df["I"][t], sum_sq=fit.ss["I"][t]) for t in fit.terms]
+    rows += [
+        TermRow(source="residual", df=fit.df_resid, sum_sq=fit.ss_resid),
+        TermRow(source="total (uncorrected)", df=fit.n, sum_sq=ct + fit.ss_total),
+    ]
+    return AnovaTable(
+        title="Uncorrected decomposition of the raw sum of squares (sequential terms)",
+        rows=tuple(rows), ss_type="I", coding=CODING,
+    )
+
+
+def factorial_tables(fit: CellFit, spec: ModelSpec, balanced: bool) -> tuple[dict[str, AnovaTable], list[str]]:
+    """The partition for each SS type, and notes on balance and disagreement between types."""
+    zero = _zero_residual(fit)
+    tables = {k: _partition(fit, k, zero) for k in SS_TYPES}
+    return tables, _type_notes(tables, fit, balanced, spec.alpha)
+
+
+def _level_table(gs: GroupStats, factor: str, ms_resid: float, df_resid: int, confidence: float) -> LevelTable:
+    """Raw level means with pooled-SD (model residual) and own-SD intervals."""
+    nn = gs.n.astype(float)
+    with np.errstate(invalid="ignore"):
+        sd = np.sqrt(gs.variances())
+        t_own = np.where(gs.n > 1, stats.t.ppf(0.5 + confidence / 2, np.maximum(gs.n - 1, 1)), np.nan)
+    se = sd / np.sqrt(nn)
+    means = gs.original_means
+    half_pool = stats.t.ppf(0.5 + confidence / 2, df_resid) * np.sqrt(ms_resid / nn)
+    half_own = t_own * se
+    singles = [lab for lab, c in zip(gs.labels, gs.n) if c == 1]
+    notes = (f"Level(s) {singles} have one observation: their own SD and own-SD interval are undefined.",) if singles else ()
+    return LevelTable(
+        factor=factor, labels=gs.labels, n=gs.n, mean=means, sd=sd, se=se,
+        pooled_low=means - half_pool, pooled_high=means + half_pool,
+        own_low=means - half_own, own_high=means + half_own, confidence=confidence, notes=notes,
+    )
+
+
+def _blocking(table: AnovaTable, fit: CellFit, spec: ModelSpec, balanced: bool) -> BlockingEfficiency | None:
+    if not spec.blocks:
+        return None
+    blk = [table.row(b) for b in spec.blocks]
+    trt = [table.row(term_name(t)) for t in fit.terms if not (len(t) == 1 and t[0] in spec.blocks)]
+    eff = blocking_efficiency(
+        ss_blocks=sum(r.sum_sq for r in blk), df_blocks=sum(r.df for r in blk),
+        ss_resid=fit.ss_resid, df_resid=fit.df_resid, df_treatments=sum(r.df for r in trt),
+    )
+    if not balanced and eff.relative_efficiency is not None:
+        eff = replace(eff, notes=eff.notes + (
+            f"The design is not a complete balanced block design; the efficiency uses the type {table.ss_type} "
+            "block sum of squares and is approximate.",
+        ))
+    return eff
+
+
+def fit_factorial(
+    dataset: Dataset,
+    view: DataView,
+    spec: ModelSpec,
+    *,
+    positions: np.ndarray,
+    dropped: tuple = (),
+    confidence: float = 0.95,
+) -> Results:
+    """Analyse the kept rows ``positions`` of ``view`` with the multi-factor model ``spec``.
+
+    Raises :class:`DesignError` (from the design checks or the fit) when the model
+    cannot be fitted on this view, saying which cells or terms are the problem and
+    what to do.
+    """
+    columns = spec.columns
+    y = dataset.y[positions]
+    codes = [view.codes[c][positions] for c in columns]
+    layout, row_cell = layout_cells(codes, [view.levels[c] for c in columns], columns)
+    cells = group_stats(y, row_cell, layout.cell_labels(), dataset.offset)
+    notes = list(check_design(layout, cells.n, spec, dataset.notes))
+    fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec)
+    cell_table = CellTable.from_stats(layout, cells)
+    tables, type_notes = factorial_tables(fit, spec, cell_table.balanced)
+    notes += type_notes
+    table = tables[spec.ss_type]
+    zero = table.row("residual").mean_sq == 0.0
+    ms_e = 0.0 if zero else fit.ms_resid
+
+    levels: dict[str, LevelTable] = {}
+    means: dict[str, MarginalMeans] = {}
+    for j, f in enumerate(spec.factors):
+        gs = group_stats(y, layout.cell_levels[row_cell, j], layout.levels[j], dataset.offset)
+        levels[f] = _level_table(gs, f, ms_e, fit.df_resid, confidence)
+        means[f] = marginal_means(fit, f, layout.levels[j], gs.original_means, gs.n, ms_e, confidence)
+    effects = term_effects(table, fit.term_names(), fit.n)
+
+    fitted_shift = fit.cell_fitted[row_cell]
+    row_fit = Fit(
+        row_ids=dataset.row_ids[positions], positions=positions, y=y + dataset.offset,
+        fitted=fitted_shift + dataset.offset, residuals=y - fitted_shift,
+        leverage=fit.cell_leverage[row_cell], group=row_cell,
+    )
+    kind = "randomized block" if spec.blocks else "factorial"
+    return Results(
+        spec=spec,
+        partition=table,
+        uncorrected=_uncorrected(fit),
+        r_squared=1.0 - fit.ss_resid / fit.ss_total if fit.ss_total > 0 else 0.0,
+        residual_sd=float(np.sqrt(ms_e)),
+        df_resid=fit.df_resid,
+        ms_resid=ms_e,
+        levels=levels,
+        groups=cells,
+        fit=row_fit,
+        n_used=fit.n,
+        dropped=dropped,
+        method=f"least squares, {kind} (cell sufficient statistics, QR)",
+        notes=tuple(notes),
+        partitions=tables,
+        marginal_means=means,
+        term_effects=effects,
+        cells=cell_table,
+        blocking=_blocking(table, fit, spec, cell_table.balanced),
+    )
+
+
+def layout_of(dataset: Dataset, view: DataView, spec: ModelSpec) -> CellLayout:
+    """The cell layout of the kept rows of ``view`` (for displays and sensitivity tools)."""
+    positions = np.flatnonzero(view.kept)
+    return layout_cells([view.codes[c][positions] for c in spec.columns], [view.levels[c] for c in spec.columns], spec.columns)[0]

@@ -1,0 +1,173 @@
+"""Least-squares (marginal) means of a factor and Tukey-Kramer comparisons of them.
+
+The least-squares mean of level i of factor A is the model's fitted cell mean
+averaged with equal weight over the levels of every other factor and block (Searle,
+Speed and Milliken 1980). Under sum-to-zero coding on a complete grid of levels every
+other term averages to zero, so it is ``b_0 + c_A(i)' b_A`` (``c_A(i)`` the level's
+row of the contrast matrix) and its covariance is ``L V L'`` with ``V`` the
+coefficient covariance. With balanced data it equals the raw level mean; with
+unbalanced data it removes the imbalance of the other factors.
+
+Pairs are compared with the Tukey-Kramer procedure on the model's residual df:
+``q = |d| sqrt(2) / se(d)`` referred to the studentized range with k means
+(Tukey 1953; Kramer 1956; Hayter 1984 for its conservativeness).
+
+References
+----------
+Searle, S. R., Speed, F. M. and Milliken, G. A. (1980). Population marginal means in
+the linear model: an alternative to least squares means. The American Statistician
+34(4), 216-221.
+Kramer, C. Y. (1956). Extension of multiple range tests to group means with unequal
+numbers of replications. Biometrics 12, 307-310.
+Hayter, A. J. (1984). A proof of the conjecture that the Tukey-Kramer multiple
+comparisons procedure is conservative. Annals of Statistics 12, 61-75.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from .cellfit import CellFit
+from .tables import html_table
+
+__all__ = ["MarginalMeans", "MeanDifferences", "marginal_means", "tukey_kramer_pairs"]
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class MeanDifferences:
+    """Simultaneous (Tukey-Kramer) comparisons of every pair of means, ``first - second``."""
+
+    factor: str
+    first: tuple[str, ...]
+    second: tuple[str, ...]
+    difference: np.ndarray
+    se: np.ndarray
+    statistic: np.ndarray  # studentized range statistic q = |d| sqrt(2) / se
+    pvalue: np.ndarray
+    ci_low: np.ndarray
+    ci_high: np.ndarray
+    df: int
+    confidence: float = 0.95
+    method: str = "Tukey-Kramer"
+
+    def to_frame(self) -> pd.DataFrame:
+        pct = f"{self.confidence:.0%}"
+        return pd.DataFrame(
+            {
+                "first": list(self.first), "second": list(self.second), "difference": self.difference,
+                "standard error": self.se, "q": self.statistic, "p-value (adjusted)": self.pvalue,
+                f"{pct} simultaneous CI low": self.ci_low, f"{pct} simultaneous CI high": self.ci_high,
+            }
+        )
+
+    def _repr_html_(self) -> str:
+        return html_table(self.to_frame(), f"{self.method} comparisons of the marginal means of {self.factor}")
+
+
+def tukey_kramer_pairs(
+    factor: str, labels: Sequence[str], estimates: np.ndarray, cov: np.ndarray, df: int, confidence: float = 0.95
+) -> MeanDifferences:
+    """Tukey-Kramer comparisons of correlated estimates with covariance ``cov`` (scipy's studentized range)."""
+    k = len(labels)
+    i, j = np.triu_indices(k, 1)
+    diff = estimates[i] - estimates[j]
+    var = np.diag(cov)
+    se = np.sqrt(np.maximum(var[i] + var[j] - 2 * cov[i, j], 0.0))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        q = np.where(se > 0, np.abs(diff) * np.sqrt(2) / np.where(se > 0, se, 1.0), np.inf)
+    p = np.where(np.isfinite(q), stats.studentized_range.sf(np.where(np.isfinite(q), q, 0.0), k, df), 0.0)
+    half = stats.studentized_range.ppf(confidence, k, df) / np.sqrt(2) * se
+    return MeanDifferences(
+        factor=factor, first=tuple(labels[a] for a in i), second=tuple(labels[b] for b in j),
+        difference=diff, se=se, statistic=q, pvalue=np.minimum(p, 1.0), ci_low=diff - half, ci_high=diff + half,
+        df=df, confidence=confidence,
+    )
+
+
+def _shared_pairs() -> Any:
+    """The project's shared simultaneous-comparison routine, when available."""
+    try:
+        from .comparisons import simultaneous_pairs  # type: ignore[attr-defined]
+    except ImportError:
+        return None
+    return simultaneous_pairs
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class MarginalMeans:
+    """Least-squares means of one factor's levels (original scale) with pooled-SD intervals.
+
+    ``covariance`` is the estimates' covariance matrix (residual mean square included);
+    ``raw_mean`` and ``n`` are the plain level means and counts, for comparison.
+    """
+
+    factor: str
+    labels: tuple[str, ...]
+    estimate: np.ndarray
+    se: np.ndarray
+    ci_low: np.ndarray
+    ci_high: np.ndarray
+    covariance: np.ndarray
+    raw_mean: np.ndarray
+    n: np.ndarray
+    df: int
+    confidence: float = 0.95
+    notes: tuple[str, ...] = ()
+
+    def compare(self, confidence: float | None = None) -> Any:
+        """Tukey-Kramer simultaneous comparisons of every pair of these means.
+
+        Uses the project's shared ``comparisons.simultaneous_pairs`` when present, else
+        :func:`tukey_kramer_pairs` (scipy's studentized range).
+        """
+        conf = self.confidence if confidence is None else confidence
+        shared = _shared_pairs()
+        if shared is not None:
+            var = np.diag(self.covariance)
+            se_diff = np.sqrt(np.maximum(var[:, None] + var[None, :] - 2 * self.covariance, 0.0))
+            return shared(self.labels, self.estimate, se_diff, self.df, confidence=conf, method="tukey")
+        return tukey_kramer_pairs(self.factor, self.labels, self.estimate, self.covariance, self.df, conf)
+
+    def to_frame(self) -> pd.DataFrame:
+        pct = f"{self.confidence:.0%}"
+        return pd.DataFrame(
+            {
+                "level": list(self.labels), "n": self.n, "raw mean": self.raw_mean,
+                "marginal mean": self.estimate, "standard error": self.se,
+                f"{pct} CI low": self.ci_low, f"{pct} CI high": self.ci_high,
+            }
+        )
+
+    def _repr_html_(self) -> str:
+        return html_table(self.to_frame(), f"Marginal (least-squares) means of {self.factor}", self.notes)
+
+
+def marginal_means(
+    fit: CellFit,
+    factor: str,
+    labels: tuple[str, ...],
+    raw_mean: np.ndarray,
+    n: np.ndarray,
+    ms_resid: float,
+    confidence: float = 0.95,
+) -> MarginalMeans:
+    """Least-squares means of ``factor`` from a sum-to-zero coded cell fit (see module docstring)."""
+    design = fit.design
+    contrast = design.contrasts[factor]
+    L = np.zeros((len(labels), design.n_params))
+    L[:, 0] = 1.0
+    L[:, design.slices[(factor,)]] = contrast
+    est = L @ fit.coef + fit.stats.offset
+    cov = ms_resid * (L @ fit.cov_unscaled @ L.T)
+    se = np.sqrt(np.maximum(np.diag(cov), 0.0))
+    half = stats.t.ppf(0.5 + confidence / 2, fit.df_resid) * se
+    return MarginalMeans(
+        factor=factor, labels=labels, estimate=est, se=se, ci_low=est - half, ci_high=est + half,
+        covariance=cov, raw_mean=raw_mean, n=n, df=fit.df_resid, confidence=confidence,
+    )
