@@ -14,8 +14,8 @@ NIST/SEMATECH e-Handbook of Statistical Methods, section 7.4.3 (one-way ANOVA).
 from __future__ import annotations
 
 import numpy as np
-from scipy import stats
 
+from .distributions import f_sf, t_ppf, t_two_sided_p
 from .errors import DesignError, preview
 from .groupstats import GroupStats, group_stats
 from .results import Fit, LevelTable, Results, TwoSampleT
@@ -46,7 +46,7 @@ def oneway_partition(gs: GroupStats, factor: str) -> tuple[AnovaTable, AnovaTabl
         )
     else:
         F = msb / msw
-        p = float(stats.f.sf(F, df_b, df_w))
+        p = float(f_sf(F, df_b, df_w))
     table = AnovaTable(
         rows=(
             TermRow(source=factor, df=df_b, sum_sq=ssb, mean_sq=msb, statistic=F, pvalue=p),
@@ -120,10 +120,10 @@ def fit_oneway(
     nn = gs.n.astype(float)
     se = sd / np.sqrt(nn)
     means = gs.original_means
-    t_pool = float(stats.t.ppf(0.5 + confidence / 2, df_w))
+    t_pool = float(t_ppf(0.5 + confidence / 2, df_w))
     half_pool = t_pool * np.sqrt(msw / nn)
     with np.errstate(invalid="ignore"):
-        t_own = np.where(gs.n > 1, stats.t.ppf(0.5 + confidence / 2, np.maximum(gs.n - 1, 1)), np.nan)
+        t_own = np.where(gs.n > 1, t_ppf(0.5 + confidence / 2, np.maximum(gs.n - 1, 1)), np.nan)
     half_own = t_own * se
     singles = [lab for lab, c in zip(gs.labels, gs.n) if c == 1]
     lt_notes = ()
@@ -142,7 +142,7 @@ def fit_oneway(
         se_d = float(np.sqrt(msw * (1 / nn[0] + 1 / nn[1])))
         if se_d > 0:
             t_stat = diff / se_d
-            p2 = float(2 * stats.t.sf(abs(t_stat), df_w))
+            p2 = float(t_two_sided_p(t_stat, df_w))
             lo, hi = diff - t_pool * se_d, diff + t_pool * se_d
         else:
             t_stat = p2 = lo = hi = None
