@@ -1,0 +1,184 @@
+"""The studentized range distribution, vectorised over the degrees of freedom.
+
+``Q = R / S`` where ``R`` is the range of ``k`` independent standard normals and
+``nu S^2`` is an independent chi-square on ``nu`` df. Its distribution function is
+
+    P(Q <= q) = int_0^inf f_nu(s) P_R(q s) ds,
+    P_R(w) = k int phi(z) [Phi(z) - Phi(z - w)]^(k-1) dz,
+
+(Hartley 1944; Copenhaver and Holland 1988). Both integrals are taken with the
+trapezoidal rule on the whole line (in ``z`` and in ``t = log s``), which converges
+geometrically for these smooth, fast-decaying integrands; the outer grid is scaled to
+the spread of ``log S`` for each ``nu``. The upper tail is integrated directly (never
+``1 - cdf``), so small p-values keep their relative accuracy down to about 1e-15.
+Checked against ``scipy.stats.studentized_range`` in the tests; the point of this
+module is speed: Tukey-Kramer and Games-Howell tables need many tail probabilities and
+quantiles at different df, and an adaptive integrator costs tens of milliseconds each.
+
+References
+----------
+Hartley, H. O. (1944). Studentizing the range. Biometrika 33, 305-308.
+Copenhaver, M. D. and Holland, B. (1988). Computation of the distribution of the
+maximum studentized range statistic. J. Stat. Comput. Simul. 30, 1-15.
+Trefethen, L. N. and Weideman, J. A. C. (2014). The exponentially convergent
+trapezoidal rule. SIAM Review 56(3), 385-458.
+"""
+
+from __future__ import annotations
+
+from functools import lru_cache
+
+import numpy as np
+from scipy import special
+
+__all__ = ["srange_sf", "srange_cdf", "srange_ppf"]
+
+_LOG_CUTOFF = 40.0  # outer grid spans log-density within e^-40 of its peak
+_HW = 1.0 / 32.0  # step of the table of the range distribution
+_W_MAX = 20.0
+
+
+@lru_cache(maxsize=32)
+def _range_table(k: int) -> tuple[np.ndarray, np.ndarray]:
+    """log P(range > w) and its derivative on a grid of w (cached per k).
+
+    The upper tail of the range of k standard normals is
+    ``k int phi(z) Phi(z)^(k-1) [1 - (1 - Phi(z-w)/Phi(z))^(k-1)] dz``, written so that
+    no two nearly equal numbers are subtracted; its density is
+    ``k (k-1) int phi(z) phi(z-w) [Phi(z) - Phi(z-w)]^(k-2) dz``.
+    """
+    h = 1.0 / 16.0
+    z = np.arange(-9.0, _W_MAX / 2 + 10.0 + h / 2, h)
+    phi = np.exp(-0.5 * z * z) / np.sqrt(2 * np.pi)
+    cdf = special.ndtr(z)
+    w = np.arange(0.0, _W_MAX + _HW / 2, _HW)
+    zw = z[None, :] - w[:, None]
+    low = special.ndtr(zw)
+    with np.errstate(divide="ignore", invalid="ignore", under="ignore"):
+        ratio = np.clip(low / cdf, 0.0, 1.0)
+        sf_in = cdf ** (k - 1) * -np.expm1((k - 1) * np.log1p(-ratio))
+        pdf_in = (k - 1) * np.exp(-0.5 * zw * zw) / np.sqrt(2 * np.pi) * np.maximum(cdf - low, 0.0) ** (k - 2)
+    sf = k * h * (np.nan_to_num(sf_in, nan=0.0) @ phi)
+    sf[0] = 1.0
+    pdf = k * h * (np.nan_to_num(pdf_in, nan=0.0) @ phi)
+    log_sf = np.log(np.maximum(sf, 1e-300))
+    dlog = -pdf / np.maximum(sf, 1e-300)
+    log_sf.setflags(write=False)
+    dlog.setflags(write=False)
+    return log_sf, dlog
+
+
+def _range_sf_pdf(w: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """P(range > w) and the range density at ``w`` (cubic Hermite interpolation in log P)."""
+    log_sf, dlog = _range_table(k)
+    last = len(log_sf) - 1
+    x = np.clip(w, 0.0, None) / _HW
+    i = np.minimum(x.astype(np.int64), last - 1)
+    t = x - i
+    beyond = x > last
+    t = np.where(beyond, 1.0, t)
+    y0, y1 = log_sf[i], log_sf[i + 1]
+    d0, d1 = dlog[i] * _HW, dlog[i + 1] * _HW
+    t2 = t * t
+    t3 = t2 * t
+    val = (2 * t3 - 3 * t2 + 1) * y0 + (t3 - 2 * t2 + t) * d0 + (-2 * t3 + 3 * t2) * y1 + (t3 - t2) * d1
+    der = ((6 * t2 - 6 * t) * y0 + (3 * t2 - 4 * t + 1) * d0 + (-6 * t2 + 6 * t) * y1 + (3 * t2 - 2 * t) * d1) / _HW
+    # Beyond the table the log tail is continued linearly (p-values below about 1e-40).
+    val = np.where(beyond, log_sf[last] + dlog[last] * (x - last) * _HW, val)
+    der = np.where(beyond, dlog[last], der)
+    with np.errstate(under="ignore"):
+        sf = np.exp(val)
+    return sf, -der * sf
+
+
+def _outer_grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Nodes ``s`` (shape (len(df), M)) and normalised weights of ``S = sqrt(chi2_nu / nu)``.
+
+    Trapezoidal rule in ``t = log s`` over the span where the log-density is within
+    e^-40 of its peak; weights are normalised to sum to one. Infinite df gives the
+    single node ``s = 1``.
+    """
+    df = np.asarray(df, dtype=float)
+    finite = np.isfinite(df)
+    nu = np.where(finite, df, 1.0)
+    a = np.sqrt(_LOG_CUTOFF / nu)
+    t_lo = -(a + _LOG_CUTOFF / nu)
+    t_hi = a + 0.25 * np.sqrt(1 / nu)
+    sigma = 1 / np.sqrt(2 * nu)
+    h_want = np.minimum(0.5 * sigma, 0.15)
+    m = int(np.clip(np.max(np.ceil((t_hi - t_lo) / h_want)) + 1, 9, 600)) if finite.any() else 1
+    x = np.linspace(0.0, 1.0, m)
+    t = t_lo[:, None] + (t_hi - t_lo)[:, None] * x[None, :]
+    logg = nu[:, None] * t - 0.5 * nu[:, None] * np.exp(2 * t)
+    with np.errstate(under="ignore"):
+        g = np.exp(logg - logg.max(axis=1, keepdims=True))
+    g[:, 0] *= 0.5
+    g[:, -1] *= 0.5
+    w = g / g.sum(axis=1, keepdims=True)
+    s = np.exp(t)
+    if not finite.all():
+        s[~finite] = 1.0
+        w[~finite] = 0.0
+        w[~finite, 0] = 1.0
+    return s, w
+
+
+def _sf_pdf(q: np.ndarray, k: int, df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    q, df = np.broadcast_arrays(np.asarray(q, dtype=float), np.asarray(df, dtype=float))
+    shape = q.shape
+    qf, dff = q.ravel(), df.ravel()
+    s, wts = _outer_grid(dff)
+    sf, pdf = _range_sf_pdf(qf[:, None] * s, k)
+    out_sf = np.einsum("ij,ij->i", sf, wts).reshape(shape)
+    out_pdf = np.einsum("ij,ij->i", pdf * s, wts).reshape(shape)
+    return out_sf, out_pdf
+
+
+def _check(k: int) -> int:
+    if int(k) != k or k < 2:
+        raise ValueError(f"the number of means k must be an integer of at least 2, not {k!r}")
+    return int(k)
+
+
+def srange_sf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarray:
+    """Upper-tail probability ``P(Q > q)`` of the studentized range (vectorised over q and df)."""
+    k = _check(k)
+    q = np.asarray(q, dtype=float)
+    sf, _ = _sf_pdf(np.maximum(q, 0.0), k, np.asarray(df, dtype=float))
+    return np.clip(np.where(q <= 0, 1.0, sf), 0.0, 1.0)
+
+
+def srange_cdf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarray:
+    """``P(Q <= q)`` of the studentized range (``1 - sf``; meant for central and upper quantiles)."""
+    return 1.0 - srange_sf(q, k, df)
+
+
+def srange_ppf(p: float, k: int, df: np.ndarray | float, *, tol: float = 1e-12) -> np.ndarray:
+    """Quantile ``q`` with ``P(Q <= q) = p`` for each df (safeguarded Newton iteration)."""
+    k = _check(k)
+    if not 0.5 <= p < 1:
+        raise ValueError(f"probability must be in [0.5, 1) for studentized-range quantiles, not {p!r}")
+    df = np.atleast_1d(np.asarray(df, dtype=float))
+    lo = np.zeros_like(df)
+    hi = np.full_like(df, 4.0)
+    while True:  # bracket
+        sf, _ = _sf_pdf(hi, k, df)
+        if np.all(sf <= 1 - p):
+            break
+        lo = np.where(sf > 1 - p, hi, lo)
+        hi = np.where(sf > 1 - p, hi * 2, hi)
+    q = 0.5 * (lo + hi)
+    for _ in range(100):
+        sf, pdf = _sf_pdf(q, k, df)
+        f = (1 - p) - sf  # cdf(q) - p, computed from the upper tail
+        lo = np.where(f < 0, q, lo)
+        hi = np.where(f >= 0, q, hi)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            step = np.where(pdf > 0, f / pdf, np.inf)
+        done = np.abs(step) <= tol * np.maximum(1.0, q)
+        q_new = q - step
+        bad = ~np.isfinite(q_new) | (q_new < lo) | (q_new > hi)
+        q = np.where(done, q_new, np.where(bad, 0.5 * (lo + hi), q_new))
+        if np.all(done):
+            break
+    return q
