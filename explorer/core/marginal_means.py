@@ -25,78 +25,17 @@ comparisons procedure is conservative. Annals of Statistics 12, 61-75.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 import pandas as pd
 from scipy import stats
 
 from .cellfit import CellFit
+from .comparisons import PairwiseTable, simultaneous_pairs
 from .tables import html_table
 
-__all__ = ["MarginalMeans", "MeanDifferences", "marginal_means", "tukey_kramer_pairs"]
-
-
-@dataclass(frozen=True, kw_only=True, eq=False)
-class MeanDifferences:
-    """Simultaneous (Tukey-Kramer) comparisons of every pair of means, ``first - second``."""
-
-    factor: str
-    first: tuple[str, ...]
-    second: tuple[str, ...]
-    difference: np.ndarray
-    se: np.ndarray
-    statistic: np.ndarray  # studentized range statistic q = |d| sqrt(2) / se
-    pvalue: np.ndarray
-    ci_low: np.ndarray
-    ci_high: np.ndarray
-    df: int
-    confidence: float = 0.95
-    method: str = "Tukey-Kramer"
-
-    def to_frame(self) -> pd.DataFrame:
-        pct = f"{self.confidence:.0%}"
-        return pd.DataFrame(
-            {
-                "first": list(self.first), "second": list(self.second), "difference": self.difference,
-                "standard error": self.se, "q": self.statistic, "p-value (adjusted)": self.pvalue,
-                f"{pct} simultaneous CI low": self.ci_low, f"{pct} simultaneous CI high": self.ci_high,
-            }
-        )
-
-    def _repr_html_(self) -> str:
-        return html_table(self.to_frame(), f"{self.method} comparisons of the marginal means of {self.factor}")
-
-
-def tukey_kramer_pairs(
-    factor: str, labels: Sequence[str], estimates: np.ndarray, cov: np.ndarray, df: int, confidence: float = 0.95
-) -> MeanDifferences:
-    """Tukey-Kramer comparisons of correlated estimates with covariance ``cov`` (scipy's studentized range)."""
-    k = len(labels)
-    i, j = np.triu_indices(k, 1)
-    diff = estimates[i] - estimates[j]
-    var = np.diag(cov)
-    se = np.sqrt(np.maximum(var[i] + var[j] - 2 * cov[i, j], 0.0))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        q = np.where(se > 0, np.abs(diff) * np.sqrt(2) / np.where(se > 0, se, 1.0), np.inf)
-    p = np.where(np.isfinite(q), stats.studentized_range.sf(np.where(np.isfinite(q), q, 0.0), k, df), 0.0)
-    half = stats.studentized_range.ppf(confidence, k, df) / np.sqrt(2) * se
-    return MeanDifferences(
-        factor=factor, first=tuple(labels[a] for a in i), second=tuple(labels[b] for b in j),
-        difference=diff, se=se, statistic=q, pvalue=np.minimum(p, 1.0), ci_low=diff - half, ci_high=diff + half,
-        df=df, confidence=confidence,
-    )
-
-
-def _shared_pairs() -> Any:
-    """The project's shared simultaneous-comparison routine, when available."""
-    try:
-        from .comparisons import simultaneous_pairs  # type: ignore[attr-defined]
-    except ImportError:
-        return None
-    return simultaneous_pairs
+__all__ = ["MarginalMeans", "marginal_means"]
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -120,19 +59,16 @@ class MarginalMeans:
     confidence: float = 0.95
     notes: tuple[str, ...] = ()
 
-    def compare(self, confidence: float | None = None) -> Any:
+    def compare(self, confidence: float | None = None) -> PairwiseTable:
         """Tukey-Kramer simultaneous comparisons of every pair of these means.
 
-        Uses the project's shared ``comparisons.simultaneous_pairs`` when present, else
-        :func:`tukey_kramer_pairs` (scipy's studentized range).
+        The standard error of each difference comes from the means' covariance, so the
+        comparisons respect the imbalance of the other factors.
         """
+        var = np.diag(self.covariance)
+        se_diff = np.sqrt(np.maximum(var[:, None] + var[None, :] - 2 * self.covariance, 0.0))
         conf = self.confidence if confidence is None else confidence
-        shared = _shared_pairs()
-        if shared is not None:
-            var = np.diag(self.covariance)
-            se_diff = np.sqrt(np.maximum(var[:, None] + var[None, :] - 2 * self.covariance, 0.0))
-            return shared(self.labels, self.estimate, se_diff, self.df, confidence=conf, method="tukey")
-        return tukey_kramer_pairs(self.factor, self.labels, self.estimate, self.covariance, self.df, conf)
+        return simultaneous_pairs(self.labels, self.estimate, se_diff, self.df, confidence=conf, method="tukey")
 
     def to_frame(self) -> pd.DataFrame:
         pct = f"{self.confidence:.0%}"
