@@ -1,33 +1,266 @@
-"""Command line: ``python -m explorer check DATA --response Y --factor A``."""
+"""Command line: check a data file, write a report, print replay code, open the demo or the app.
+
+``variance-explorer`` (or ``python -m explorer``) with one of the commands::
+
+    check  DATA --response Y --factor A [--factor B] [--block C] [--edits FILE]
+    report DATA --response Y --factor A [...] [--edits FILE] -o OUT.html
+    code   DATA --response Y --factor A [...] [--edits FILE]
+    demo   [--no-browser] [--dry-run] [--port N] [-- extra JupyterLab options]
+    app    STUDY_FILE --data DATA [--no-browser] [--dry-run] [--port N] [-- extra Voila options]
+
+``--edits`` takes a study file written by ``study.save`` (spec, data fingerprint and the
+edit log with reasons); its spec is used, so ``--response``/``--factor`` may be left out.
+
+Exit codes (:data:`EXIT_CODES`): 0 done; 2 bad input (arguments, data file, columns,
+values); 3 the edit file cannot be used (missing, not a saved study, made on other data,
+an edit that no longer applies); 4 the output file cannot be written; 5 the notebook
+server needed by ``demo``/``app`` is not installed or its notebook is missing. An
+unexpected failure prints a traceback and exits with 1 (a bug: please report it).
+"""
 
 from __future__ import annotations
 
 import argparse
+import os
 import sys
+import tempfile
+from collections.abc import Sequence
+from pathlib import Path
 
-from .core import ExplorerError, Study
+from .core import ExplorerError, ReplayError, Study
+from .core.persistence import read_study_file
+from .core.spec import ModelSpec
 
-EXIT_OK, EXIT_BAD_INPUT = 0, 2
+__all__ = ["main", "EXIT_CODES", "PROG"]
+
+PROG = "variance-explorer"
+EXIT_OK, EXIT_BAD_INPUT, EXIT_BAD_EDITS, EXIT_NO_OUTPUT, EXIT_NO_SERVER = 0, 2, 3, 4, 5
+EXIT_CODES = {
+    EXIT_OK: "done",
+    EXIT_BAD_INPUT: "bad input: arguments, data file, column names or values",
+    EXIT_BAD_EDITS: "the edit file cannot be used with these data",
+    EXIT_NO_OUTPUT: "the output file cannot be written",
+    EXIT_NO_SERVER: "the notebook server or the notebook for demo/app is not available",
+}
+
+#: The source checkout holding notebooks/ and data/ (an editable install points here).
+PROJECT_ROOT = Path(__file__).resolve().parents[1]
 
 
-def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m explorer", description="Analysis of variance you can edit and defend.")
-    sub = parser.add_subparsers(dest="command", required=True)
-    check = sub.add_parser("check", help="print the partition and level tables for a data file")
-    check.add_argument("data")
-    check.add_argument("--response", required=True)
-    check.add_argument("--factor", action="append", required=True)
-    args = parser.parse_args(argv)
-    try:
-        study = Study(args.data, response=args.response, factors=args.factor)
-    except ExplorerError as exc:
-        print(f"error: {exc}", file=sys.stderr)
-        return EXIT_BAD_INPUT
-    res = study.results
-    print(res.partition.to_frame().to_string(index=False))
-    for table in res.levels.values():
-        print()
-        print(table.to_frame().to_string(index=False))
-    print()
-    print(res.decision())
+class CommandError(Exception):
+    """A failure with its exit code and a message for the user."""
+
+    def __init__(self, code: int, message: str) -> None:
+        super().__init__(message)
+        self.code = code
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that exits with EXIT_BAD_INPUT (its default 2, kept explicit) and a hint."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        self.print_usage(sys.stderr)
+        self.exit(EXIT_BAD_INPUT, f"{self.prog}: error: {message}\n(see '{self.prog} --help')\n")
+
+
+def _add_data_args(p: argparse.ArgumentParser) -> None:
+    p.add_argument("data", help="CSV, TSV, Parquet or Excel file, one row per observation")
+    p.add_argument("--response", help="numeric column to analyse")
+    p.add_argument("--factor", action="append", default=[], help="grouping column (repeat for more factors)")
+    p.add_argument("--block", action="append", default=[], help="additive block column (repeatable)")
+    p.add_argument("--alpha", type=float, help="level at which decisions are read (default 0.05)")
+    p.add_argument("--edits", help="study file written by study.save: its edits (with reasons) are replayed")
+
+
+def _server_args(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--port", type=int, default=0, help="port on 127.0.0.1 (default: let the server choose)")
+    p.add_argument("--no-browser", action="store_true", help="start the server without opening a browser")
+    p.add_argument("--dry-run", action="store_true", help="print the command that would run, and stop")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog=PROG, description="Analysis of variance you can edit, defend and hand off.",
+                     epilog="exit codes: " + "; ".join(f"{k} {v}" for k, v in EXIT_CODES.items()))
+    sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    check = sub.add_parser("check", help="print the tables, edits, checks and sensitivity summary as text")
+    _add_data_args(check)
+    check.add_argument("--no-cautions", action="store_true", help="leave the cautions out of the printout")
+    report = sub.add_parser("report", help="write a self-contained HTML report that opens offline")
+    _add_data_args(report)
+    report.add_argument("-o", "--output", required=True, help="HTML file to write")
+    report.add_argument("--title", help="title of the report")
+    report.add_argument("--scenario", help="one line saying what was compared and why")
+    report.add_argument("--no-charts", action="store_true", help="tables only (no altair/vl-convert needed)")
+    code = sub.add_parser("code", help="print Python that rebuilds the study (load, then each edit)")
+    _add_data_args(code)
+    demo = sub.add_parser("demo", help="open the demo notebook in JupyterLab on 127.0.0.1")
+    _server_args(demo)
+    app = sub.add_parser("app", help="serve the explorer for a saved study as a web page (Voila on 127.0.0.1)")
+    app.add_argument("study_file", help="study file written by study.save")
+    app.add_argument("--data", required=True, help="the data file the study was made on")
+    _server_args(app)
+    return parser
+
+
+# --------------------------------------------------------------------------- study
+def _check_path(path: str, what: str) -> Path:
+    p = Path(path)
+    if not p.exists():
+        raise CommandError(EXIT_BAD_INPUT if what == "data file" else EXIT_BAD_EDITS,
+                           f"no {what} at {path!r} (relative paths start from {Path.cwd()})")
+    if p.is_dir():
+        raise CommandError(EXIT_BAD_INPUT if what == "data file" else EXIT_BAD_EDITS,
+                           f"{path!r} is a folder; give the path of the {what}")
+    return p
+
+
+def _spec_conflict(saved: ModelSpec, args: argparse.Namespace) -> str | None:
+    asked = []
+    if args.response and args.response != saved.response:
+        asked.append(f"--response {args.response!r} but the file has {saved.response!r}")
+    if args.factor and tuple(args.factor) != saved.factors:
+        asked.append(f"--factor {args.factor} but the file has {list(saved.factors)}")
+    if args.block and tuple(args.block) != saved.blocks:
+        asked.append(f"--block {args.block} but the file has {list(saved.blocks)}")
+    return "; ".join(asked) or None
+
+
+def load_study(args: argparse.Namespace) -> Study:
+    """The study the data arguments describe, with the edit file replayed when given."""
+    data = _check_path(args.data, "data file")
+    if args.edits:
+        edits = _check_path(args.edits, "edit file")
+        try:
+            doc = read_study_file(edits)
+            saved = ModelSpec.from_dict(doc["spec"])
+        except (ExplorerError, KeyError, TypeError) as exc:
+            raise CommandError(EXIT_BAD_EDITS, f"edit file {edits.name!r}: {exc}") from None
+        conflict = _spec_conflict(saved, args)
+        if conflict:
+            raise CommandError(EXIT_BAD_EDITS, f"edit file {edits.name!r} was saved for another model: {conflict}; "
+                                               "leave out --response/--factor to use the file's")
+        try:
+            study = Study.from_dict(doc, data)
+        except ReplayError as exc:
+            raise CommandError(EXIT_BAD_EDITS, f"edit file {edits.name!r}: {exc}") from None
+        return study
+    if not args.response or not args.factor:
+        missing = [n for n, v in (("--response", args.response), ("--factor", args.factor)) if not v]
+        raise CommandError(EXIT_BAD_INPUT, f"name the {' and '.join(missing)} (or give --edits with a saved study)")
+    kwargs = {"alpha": args.alpha} if args.alpha is not None else {}
+    return Study(data, response=args.response, factors=args.factor, blocks=args.block, **kwargs)
+
+
+# --------------------------------------------------------------------------- commands
+def _check(args: argparse.Namespace) -> int:
+    from .report.text_summary import summary_text
+
+    study = load_study(args)
+    sys.stdout.write(summary_text(study, cautions=not args.no_cautions))
     return EXIT_OK
+
+
+def _report(args: argparse.Namespace) -> int:
+    from .report import write_report
+
+    study = load_study(args)
+    out = Path(args.output)
+    if out.is_dir():
+        raise CommandError(EXIT_NO_OUTPUT, f"{args.output!r} is a folder; give a file name such as report.html")
+    if not out.parent.exists():
+        raise CommandError(EXIT_NO_OUTPUT, f"folder {str(out.parent)!r} does not exist; create it or choose another")
+    try:
+        write_report(study, out, title=args.title, scenario=args.scenario, charts=not args.no_charts)
+    except OSError as exc:
+        raise CommandError(EXIT_NO_OUTPUT, f"cannot write {args.output!r}: {exc.strerror or exc}") from None
+    print(f"wrote {out} ({out.stat().st_size // 1024} KB): {study.results.decision()}")
+    return EXIT_OK
+
+
+def _code(args: argparse.Namespace) -> int:
+    study = load_study(args)
+    sys.stdout.write(study.to_code(data=args.data))
+    return EXIT_OK
+
+
+def _need(module: str, extra_name: str) -> None:
+    import importlib.util
+
+    if importlib.util.find_spec(module) is None:
+        raise CommandError(EXIT_NO_SERVER, f"{module} is not installed: pip install 'variance-explorer[{extra_name}]'")
+
+
+def _run(cmd: list[str], dry_run: bool, cwd: Path) -> int:
+    import shlex
+    import subprocess
+
+    print(f"cd {shlex.quote(str(cwd))} && {shlex.join(cmd)}", flush=True)
+    if dry_run:
+        return EXIT_OK
+    try:
+        return subprocess.call(cmd, cwd=cwd)
+    except KeyboardInterrupt:
+        return EXIT_OK
+
+
+def _demo(args: argparse.Namespace) -> int:
+    notebook = PROJECT_ROOT / "notebooks" / "demo.ipynb"
+    if not notebook.exists():
+        raise CommandError(EXIT_NO_SERVER, f"the demo notebook is not at {str(notebook)!r}: run the demo from a "
+                                           "source checkout installed with pip install -e '.[widget]'")
+    _need("jupyterlab", "widget")
+    cmd = [sys.executable, "-m", "jupyterlab", "--ip=127.0.0.1", f"--port={args.port or 8888}",
+           f"--ServerApp.root_dir={PROJECT_ROOT}", "--LabApp.default_url=/lab/tree/notebooks/demo.ipynb",
+           "--LabApp.news_url=None", "--LabApp.check_for_updates_class=jupyterlab.NeverCheckForUpdate"]
+    if args.no_browser:
+        cmd.append("--no-browser")
+    if hasattr(os, "geteuid") and os.geteuid() == 0:
+        cmd.append("--allow-root")  # JupyterLab refuses to start as root without it
+    cmd += args.extra
+    return _run(cmd, args.dry_run, PROJECT_ROOT)
+
+
+def _app(args: argparse.Namespace) -> int:
+    from .notebooks import app_notebook, write_notebook
+
+    study_file = _check_path(args.study_file, "edit file")
+    data = _check_path(args.data, "data file")
+    try:
+        doc = read_study_file(study_file)
+        Study.from_dict(doc, data)  # refuse here, with a clear message, rather than in the page
+    except ExplorerError as exc:
+        raise CommandError(EXIT_BAD_EDITS, f"study file {study_file.name!r}: {exc}") from None
+    _need("voila", "widget")
+    with tempfile.TemporaryDirectory(prefix="variance-explorer-app-") as tmp:
+        page = Path(tmp) / "explorer.ipynb"
+        if not args.dry_run:
+            write_notebook(app_notebook(study_file.resolve(), data.resolve()), page)
+        cmd = [sys.executable, "-m", "voila", str(page), "--Voila.ip=127.0.0.1", f"--port={args.port or 8866}",
+               "--theme=light"]
+        if args.no_browser:
+            cmd.append("--no-browser")
+        cmd += args.extra
+        return _run(cmd, args.dry_run, Path.cwd())
+
+
+COMMANDS = {"check": _check, "report": _report, "code": _code, "demo": _demo, "app": _app}
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run one command; return its exit code (see :data:`EXIT_CODES`)."""
+    argv = list(sys.argv[1:] if argv is None else argv)
+    extra: list[str] = []
+    if "--" in argv:  # everything after '--' goes to the notebook server (demo, app)
+        cut = argv.index("--")
+        argv, extra = argv[:cut], argv[cut + 1 :]
+    args = build_parser().parse_args(argv)
+    args.extra = extra
+    try:
+        return COMMANDS[args.command](args)
+    except CommandError as exc:
+        print(f"{PROG} {args.command}: error: {exc}", file=sys.stderr)
+        return exc.code
+    except ExplorerError as exc:
+        print(f"{PROG} {args.command}: error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+

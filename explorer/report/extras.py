@@ -19,7 +19,7 @@ import pandas as pd
 if TYPE_CHECKING:
     from ..core.study import Study
 
-__all__ = ["Part", "battery_part", "sensitivity_part", "as_html", "as_text"]
+__all__ = ["Part", "battery_part", "sensitivity_part", "as_html", "as_text", "frame_text"]
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -49,6 +49,11 @@ def as_html(obj: Any) -> str:
     return f"<pre>{html.escape(str(obj))}</pre>"
 
 
+def frame_text(frame: pd.DataFrame) -> str:
+    """A table as aligned text; undefined cells are blank."""
+    return frame.astype(object).where(frame.notna(), "").to_string(index=False)
+
+
 def as_text(obj: Any) -> str:
     """Plain text of a result object (``to_text``, else its frame, else ``str``)."""
     if hasattr(obj, "to_text"):
@@ -56,7 +61,7 @@ def as_text(obj: Any) -> str:
     if hasattr(obj, "to_frame"):
         frame = obj.to_frame()
         if isinstance(frame, pd.DataFrame):
-            return frame.to_string(index=False)
+            return frame_text(frame)
     return str(obj)
 
 

@@ -1,0 +1,112 @@
+"""Builders for the notebooks the kit ships: the demo and the app page for colleagues.
+
+Importing this module has no side effects; it writes files only when asked
+(``notebooks/build_notebooks.py`` regenerates ``notebooks/demo.ipynb``, and the command
+line's ``app`` writes an app page into a temporary folder). ``nbformat`` comes with the
+``widget`` extra and is imported only when a notebook is built.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+__all__ = ["DEMO_CELLS", "app_cells", "demo_notebook", "app_notebook", "write_notebook"]
+
+#: (kind, source) of each demo cell; paths are relative to the notebooks/ folder.
+DEMO_CELLS: tuple[tuple[str, str], ...] = (
+    ("markdown", """\
+# Coating line: do the four nozzles lay down the same film?
+
+The data are **invented** (see `data/README.md`): 114 steel panels sprayed through four
+nozzles, film thickness in micrometres. Two readings look suspect (panels P1007 and
+P1071, rows 6 and 70), and nozzles N2 and N3 may come from one supplier. This notebook
+walks the whole job: load, explore, edit with reasons, test how fragile the decision is,
+save, and hand off. Read the cautions in the README before leaving data out."""),
+    ("code", """\
+import explorer as ex
+
+study = ex.Study("../data/coating_thickness.csv", response="thickness_um", factors="nozzle")
+study.results"""),
+    ("markdown", """\
+## Explore
+
+Click a point to leave it out (you will be asked for a reason), regroup levels, and watch
+the results move beside the unedited baseline. Edits made in code below show up here too."""),
+    ("code", """\
+ex.Explorer(study)"""),
+    ("markdown", """\
+## Edit, with reasons
+
+The same edits in code. Each is logged with its reason and time; `study.baseline` keeps
+the unedited results."""),
+    ("code", """\
+study.drop([6], reason="P1007: gauge slip, see the line log")
+study.drop([70], reason="P1071: recoated by mistake, see the rework sheet")
+print("baseline:", study.baseline.decision())
+print("current: ", study.results.decision())
+study.results"""),
+    ("markdown", """\
+## How fragile is the decision?
+
+Which single panels, and which regroupings of nozzles, would flip it? The scan counts the
+alternatives it examined; the count is shown with the results and in the report."""),
+    ("code", """\
+study.sensitivity()"""),
+    ("code", """\
+study.merge_levels("nozzle", ["N2", "N3"], into="N2+N3", reason="N2 and N3 come from one supplier")
+study.battery()"""),
+    ("markdown", """\
+## Save and hand off
+
+The study file holds the edit log with reasons (not the data); the report opens in any
+browser without a network; the replay code rebuilds this state from the original file."""),
+    ("code", """\
+study.save("coating.study.json")
+study.report("coating-report.html", scenario="Coating line: do the four nozzles lay down the same film?")
+print(study.disclosure.sentence())
+print(study.to_code())"""),
+)
+
+
+def app_cells(study_file: str | Path, data: str | Path) -> tuple[tuple[str, str], ...]:
+    """Cells of the app page: load the saved study on its data and show the explorer."""
+    return (
+        ("code", f"""\
+import explorer as ex
+
+study = ex.Study.load({str(study_file)!r}, data={str(data)!r})
+ex.Explorer(study, save_to={str(study_file)!r})"""),
+    )
+
+
+def _notebook(cells: tuple[tuple[str, str], ...], title: str) -> Any:
+    import nbformat
+
+    make = {"markdown": nbformat.v4.new_markdown_cell, "code": nbformat.v4.new_code_cell}
+    nb = nbformat.v4.new_notebook(cells=[make[kind](src) for kind, src in cells])
+    nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3", "language": "python"}
+    nb.metadata["language_info"] = {"name": "python"}
+    nb.metadata["title"] = title
+    for i, cell in enumerate(nb.cells):
+        cell["id"] = f"cell-{i}"  # stable ids: rebuilding gives the same file
+    return nb
+
+
+def demo_notebook() -> Any:
+    """The demo notebook (an ``nbformat`` node)."""
+    return _notebook(DEMO_CELLS, "variance explorer demo")
+
+
+def app_notebook(study_file: str | Path, data: str | Path) -> Any:
+    """The app page for a saved study, served with Voila by ``variance-explorer app``."""
+    return _notebook(app_cells(study_file, data), "variance explorer")
+
+
+def write_notebook(nb: Any, path: str | Path) -> Path:
+    """Write ``nb`` to ``path`` (nbformat 4) and return the path."""
+    import nbformat
+
+    p = Path(path)
+    nbformat.write(nb, str(p))
+    return p

@@ -1,0 +1,58 @@
+"""A plain-text hand-off for a terminal: the same contents as the report, without charts."""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from ..core.tables import fmt
+from .cautions import cautions_text
+from .extras import battery_part, frame_text, sensitivity_part
+
+if TYPE_CHECKING:
+    from ..core.results import Results
+    from ..core.study import Study
+
+__all__ = ["results_text", "summary_text"]
+
+
+def _heading(title: str) -> str:
+    return f"{title}\n{'=' * len(title)}"
+
+
+def results_text(res: "Results") -> str:
+    """The partition, a one-line summary and the level tables."""
+    parts = [frame_text(res.partition.to_frame())]
+    parts.append(f"n = {res.n_used}, R² = {fmt(res.r_squared, 4)}, residual SD = {fmt(res.residual_sd, 4)}")
+    parts.extend(res.partition.notes)
+    for table in res.levels.values():
+        parts.append("")
+        parts.append(frame_text(table.to_frame()))
+        parts.extend(table.notes)
+    parts.extend(n for n in res.notes if n not in res.partition.notes)
+    parts.append(res.decision())
+    return "\n".join(parts)
+
+
+def summary_text(study: "Study", *, cautions: bool = True) -> str:
+    """Provenance, baseline, edits, current results, battery, sensitivity, disclosure and cautions."""
+    ds = study.dataset
+    out = [
+        _heading(f"{study.spec.response} by {', '.join(study.spec.factors)}"),
+        f"data: {ds.source} ({len(ds.table)} rows, {ds.n} usable), fingerprint {ds.fingerprint}",
+    ]
+    out.extend(f"set aside at load: row {s.row}: {s.reason}" for s in ds.set_aside)
+    out.extend(ds.notes)
+    out += ["", _heading("Baseline (unedited data)"), results_text(study.baseline)]
+    if study.edits or study.redo_edits:
+        out += ["", _heading("Edits, with reasons")]
+        for i, e in enumerate(study.edits, 1):
+            out.append(f"{i}. {e.describe()} -- {e.reason or '(no reason given)'} [{e.at}]")
+        for e in study.redo_edits:
+            out.append(f"   (undone) {e.describe()} -- {e.reason or '(no reason given)'} [{e.at}]")
+        out += ["", _heading(f"Current (after {len(study.edits)} edit(s))"), results_text(study.results)]
+    for part in (battery_part(study), sensitivity_part(study)):
+        out += ["", _heading(part.title), part.text if part.present else f"not included: {part.note}"]
+    out += ["", f"Disclosure: {study.disclosure.sentence()}."]
+    if cautions:
+        out += ["", _heading("Cautions"), cautions_text()]
+    return "\n".join(out) + "\n"
