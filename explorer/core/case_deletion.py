@@ -151,7 +151,7 @@ def _pairwise_change(
             for b in range(k):
                 if b == a:
                     continue
-                ta = (ma - gs.mean[b]) / np.sqrt(m * (1 / na + 1 / nb[b]))
+                ta = np.where(na > 0, (ma - gs.mean[b]) / np.sqrt(m * (1 / na + 1 / nb[b])), np.nan)
                 ch = np.abs(ta - tb[a, b])
                 take = ch > bst
                 bst = np.where(take, ch, bst)

@@ -1,0 +1,344 @@
+"""Robustness sweep: the decision under every combination of defensible analysis choices.
+
+A multiverse analysis (Steegen et al. 2016) of a one-factor study, laid out so that it
+can be drawn as a specification curve (Simonsohn et al. 2020). The choices crossed:
+
+* **outlier rule**: keep every row; leave out rows whose externally studentized
+  residual exceeds 3 in absolute value; rows whose Cook's distance exceeds 4/n; rows
+  the Bonferroni outlier test flags at alpha (one pass on the model of that
+  specification, see :mod:`.influence`);
+* **test**: the classic F test, Welch's F test for unequal variances (Welch 1951), or
+  the rank-based Kruskal-Wallis test (Kruskal and Wallis 1952);
+* **transform** of the response: none, or the natural log (only when every value is
+  positive; otherwise the log specifications are left out and a note says so);
+* **merges**: every subset of the level merges the user marks as plausible.
+
+Every combination is computed. The result gives the share of specifications that
+reach the current decision, the single choice that moves the p-value most from the
+default specification (first option of each choice), and a tidy table with one line
+per specification, ranked by p-value.
+
+References
+----------
+Steegen, S., Tuerlinckx, F., Gelman, A. and Vanpaemel, W. (2016). Increasing
+transparency through a multiverse analysis. Perspectives on Psychological Science
+11(5), 702-712.
+Simonsohn, U., Simmons, J. P. and Nelson, L. D. (2020). Specification curve analysis.
+Nature Human Behaviour 4, 1208-1214.
+Welch, B. L. (1951). On the comparison of several mean values: an alternative
+approach. Biometrika 38, 330-336.
+Kruskal, W. H. and Wallis, W. A. (1952). Use of ranks in one-criterion variance
+analysis. JASA 47, 583-621.
+"""
+
+from __future__ import annotations
+
+import html
+import itertools
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy import special, stats
+
+from .alternatives import OnewayInput, oneway_input
+from .case_deletion import nullable
+from .errors import ExplorerError, closest_names
+from .groupstats import group_stats
+from .influence import influence_measures
+from .study import Disclosure
+from .tables import fmt, html_table
+
+__all__ = ["SweepResult", "robustness_sweep", "OUTLIER_RULES", "TESTS", "TRANSFORMS"]
+
+#: Outlier rules: name -> plain description.
+OUTLIER_RULES = {
+    "none": "keep every row",
+    "studentized": "leave out |external studentized residual| > 3",
+    "cooks": "leave out Cook's distance > 4/n",
+    "outlier_test": "leave out rows the Bonferroni outlier test flags",
+}
+#: Omnibus tests: name -> plain description.
+TESTS = {
+    "classic": "classic F test (equal variances)",
+    "welch": "Welch F test (unequal variances)",
+    "rank": "Kruskal-Wallis rank test",
+}
+#: Response transforms: name -> plain description.
+TRANSFORMS = {"none": "response as measured", "log": "natural log of the response"}
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class SweepResult:
+    """Every specification of the sweep, with summaries for the report and the chart.
+
+    ``table`` has one line per specification (columns: the four choices, n, rows left
+    out, statistic, df, p-value, significant, agrees with the current decision, rank by
+    p-value, note). ``single_choice`` has one line per non-default option: the p-value
+    of the default specification with only that choice changed.
+    """
+
+    alpha: float
+    current_significant: bool
+    default_pvalue: float | None
+    table: pd.DataFrame
+    single_choice: pd.DataFrame
+    share_agreeing: float | None
+    share_significant: float | None
+    n_specifications: int
+    disclosure: Disclosure | None = None
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def strongest_choice(self) -> dict | None:
+        """The single change from the default that moves the p-value most (on the log scale)."""
+        sc = self.single_choice.dropna(subset=["change in log10 p"])
+        if sc.empty:
+            return None
+        row = sc.loc[sc["change in log10 p"].abs().astype(float).idxmax()]
+        return {k: (v.item() if hasattr(v, "item") else v) for k, v in row.items()}
+
+    def to_frame(self) -> pd.DataFrame:
+        """The specification-curve table (a copy)."""
+        return self.table.copy()
+
+    def _repr_html_(self) -> str:
+        verdict = "significant" if self.current_significant else "not significant"
+        share = "—" if self.share_agreeing is None else f"{self.share_agreeing:.0%}"
+        cap = (f"Robustness sweep: {self.n_specifications} specifications; {share} agree with the current decision "
+               f"({verdict} at alpha {self.alpha:g})")
+        best = self.strongest_choice
+        notes = list(self.notes)
+        if best is not None:
+            notes.insert(0, f"The single choice that moves p most: {best['choice']} = {best['option']} "
+                            f"(p {fmt(self.default_pvalue, 3)} -> {fmt(best['p-value'], 3)}).")
+        if self.disclosure is not None:
+            notes.append(self.disclosure.sentence())
+        shown = self.table.drop(columns=["rows left out"])
+        return "<div>" + html_table(shown, html.escape(cap), tuple(notes)) + "</div>"
+
+
+def _welch(gs) -> tuple[float | None, float | None, float | None, float | None, str]:  # type: ignore[no-untyped-def]
+    """Welch (1951) F test from group statistics: (F, df1, df2, p, note)."""
+    n = gs.n.astype(float)
+    if gs.k < 2:
+        return None, None, None, None, "fewer than two levels"
+    if np.any(n < 2):
+        return None, None, None, None, "Welch test needs two or more rows in every level"
+    var = gs.m2 / (n - 1)
+    if np.any(var <= 0):
+        return None, None, None, None, "Welch test undefined: a level has zero variance"
+    w = n / var
+    sw = w.sum()
+    mw = np.dot(w, gs.mean) / sw
+    k = gs.k
+    a = np.dot(w, (gs.mean - mw) ** 2) / (k - 1)
+    tmp = np.sum((1 - w / sw) ** 2 / (n - 1))
+    b = 1 + 2 * (k - 2) / (k * k - 1) * tmp
+    f = a / b
+    df2 = (k * k - 1) / (3 * tmp)
+    return float(f), float(k - 1), float(df2), float(special.fdtrc(k - 1, df2, f)), ""
+
+
+def _kruskal(y: np.ndarray, codes: np.ndarray, labels: tuple[str, ...]):  # type: ignore[no-untyped-def]
+    """Kruskal-Wallis H with the tie correction, as ``(N-1) SS_between / SS_total`` of the ranks."""
+    r = stats.rankdata(y)
+    gs = group_stats(r, codes, labels).nonempty()
+    if gs.k < 2:
+        return None, None, None, None, "fewer than two levels"
+    sst = gs.ss_between + gs.ss_within
+    if sst <= 0:
+        return None, None, None, None, "rank test undefined: every value is tied"
+    h = (gs.n_total - 1) * gs.ss_between / sst
+    return float(h), float(gs.k - 1), None, float(special.chdtrc(gs.k - 1, h)), ""
+
+
+def _classic(gs, scale: float):  # type: ignore[no-untyped-def]
+    from .alternatives import evaluate_alternatives
+
+    fits = evaluate_alternatives(gs.n[None, :], gs.mean[None, :], gs.m2[None, :], scale)
+    if fits.status[0]:
+        from .alternatives import STATUS_NOTES
+
+        return None, None, None, None, STATUS_NOTES[int(fits.status[0])]
+    return (float(fits.statistic[0]), float(fits.df_between[0]), float(fits.df_within[0]),
+            float(fits.pvalue[0]), "")
+
+
+def _merge_codes(data: OnewayInput, merges: Sequence[Sequence[str]], chosen: tuple[int, ...]):  # type: ignore[no-untyped-def]
+    """Level codes and labels after the chosen merges (overlapping merges pool transitively)."""
+    parent = list(range(data.k))
+
+    def find(i: int) -> int:
+        while parent[i] != i:
+            parent[i] = parent[parent[i]]
+            i = parent[i]
+        return i
+
+    for m in chosen:
+        idx = [data.labels.index(lv) for lv in merges[m]]
+        for j in idx[1:]:
+            parent[find(j)] = find(idx[0])
+    roots = sorted({find(i) for i in range(data.k)})
+    new_index = {r: i for i, r in enumerate(roots)}
+    remap = np.array([new_index[find(i)] for i in range(data.k)])
+    labels = tuple("+".join(data.labels[j] for j in range(data.k) if find(j) == r) for r in roots)
+    return remap[data.codes], labels
+
+
+def _check_merges(data: OnewayInput, merges: Sequence[Sequence[str]]) -> list[tuple[str, ...]]:
+    out = []
+    for m in merges:
+        if isinstance(m, str):
+            raise ExplorerError("each plausible merge is a list of level names, e.g. merges=[['N2', 'N3']]")
+        names = tuple(str(x) for x in m)
+        for lv in names:
+            if lv not in data.labels:
+                near = closest_names(lv, data.labels)
+                hint = f" Did you mean {near[0]!r}?" if near else ""
+                raise ExplorerError(f"merge {list(names)}: {data.factor!r} has no level {lv!r} with kept rows "
+                                    f"(levels: {list(data.labels)}).{hint}")
+        if len(set(names)) < 2:
+            raise ExplorerError(f"merge {list(names)} needs two or more different levels")
+        out.append(names)
+    return out
+
+
+def _check_options(name: str, chosen: Sequence[str], known: dict[str, str]) -> tuple[str, ...]:
+    chosen = tuple(chosen)
+    bad = [c for c in chosen if c not in known]
+    if bad or not chosen:
+        raise ExplorerError(f"{name} must be a non-empty list from {list(known)}; got {list(chosen)}")
+    return chosen
+
+
+def robustness_sweep(
+    study: object,
+    *,
+    outlier_rules: Sequence[str] = tuple(OUTLIER_RULES),
+    tests: Sequence[str] = tuple(TESTS),
+    transforms: Sequence[str] = tuple(TRANSFORMS),
+    merges: Sequence[Sequence[str]] = (),
+    alpha: float | None = None,
+    record: bool = True,
+) -> SweepResult:
+    """Run every combination of the listed choices on a one-factor ``study``; see :class:`SweepResult`.
+
+    The first option of each choice is the default specification (by default: no
+    outlier rule, classic F, no transform, no merge). ``merges`` lists level groups the
+    user considers plausible to pool, e.g. ``[["N2", "N3"]]``; every subset of them is
+    a specification.
+    """
+    data = oneway_input(study, "the robustness sweep")
+    a = data.alpha if alpha is None else float(alpha)
+    outlier_rules = _check_options("outlier_rules", outlier_rules, OUTLIER_RULES)
+    tests = _check_options("tests", tests, TESTS)
+    transforms = _check_options("transforms", transforms, TRANSFORMS)
+    merge_list = _check_merges(data, merges)
+    notes: list[str] = []
+    y_orig = data.y + data.offset
+    responses: dict[str, tuple[np.ndarray, float]] = {}
+    for t in transforms:
+        if t == "none":
+            responses[t] = (data.y, data.offset)
+        elif np.all(y_orig > 0):
+            ly = np.log(y_orig)
+            off = float(np.median(ly)) if abs(float(np.median(ly))) >= 1 else 0.0
+            responses[t] = (ly - off, off)
+        else:
+            notes.append("Log transform left out: the response has values of zero or below.")
+    subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
+    rows = []
+    for t, (yt, off) in responses.items():
+        scale = max(abs(off), float(np.max(np.abs(yt))) if yt.size else 0.0)
+        for subset in subsets:
+            codes, labels = _merge_codes(data, merge_list, subset)
+            merge_name = "; ".join("+".join(merge_list[i]) for i in subset) or "none"
+            gs_all = group_stats(yt, codes, labels, off)
+            infl = None
+            for rule in outlier_rules:
+                keep = np.ones(data.n, dtype=bool)
+                if rule != "none":
+                    if infl is None:
+                        nz = gs_all.n[codes]
+                        infl = influence_measures(yt - gs_all.mean[codes], 1.0 / nz, data.n - int((gs_all.n > 0).sum()),
+                                                  alpha=a, scale=scale)
+                    key = {"studentized": "studentized", "cooks": "cooks_4_over_n", "outlier_test": "outlier_test"}[rule]
+                    keep = ~infl.flagged(key)
+                yk, ck = yt[keep], codes[keep]
+                gs = group_stats(yk, ck, labels, off).nonempty()
+                left_out = data.row_ids[~keep].tolist()
+                for test in tests:
+                    if test == "classic":
+                        stat, d1, d2, p, note = _classic(gs, scale) if gs.k >= 2 else (None, None, None, None, "fewer than two levels")
+                    elif test == "welch":
+                        stat, d1, d2, p, note = _welch(gs)
+                    else:
+                        stat, d1, d2, p, note = _kruskal(yk, ck, labels)
+                    rows.append({
+                        "outlier rule": rule, "test": test, "transform": t, "merges": merge_name,
+                        "n": int(keep.sum()), "levels": gs.k, "rows left out": left_out, "left out": len(left_out),
+                        "statistic": stat, "df (term)": d1, "df (residual)": d2, "p-value": p, "note": note,
+                    })
+    table = pd.DataFrame(rows)
+    p = table["p-value"].astype(float).to_numpy()
+    defined = np.isfinite(p)
+    sig = defined & (np.nan_to_num(p, nan=1.0) < a)
+    base = study.results  # type: ignore[attr-defined]
+    current = bool(base.significant(alpha=a))
+    table["significant"] = sig
+    table["agrees with current decision"] = np.where(defined, sig == current, False)
+    rank = np.full(p.size, np.nan)
+    order = np.argsort(np.where(defined, p, np.inf), kind="stable")
+    rank[order[: int(defined.sum())]] = np.arange(1, int(defined.sum()) + 1)
+    table["rank"] = pd.array([None if not np.isfinite(v) else int(v) for v in rank], dtype="Int64")
+    for c in ("statistic", "df (term)", "df (residual)", "p-value"):
+        table[c] = nullable(table[c].astype(float).to_numpy())
+    table = table.sort_values(["rank"], na_position="last").reset_index(drop=True)
+    table.insert(0, "specification", np.arange(1, len(table) + 1))
+    choices = {"outlier rule": outlier_rules, "test": tests, "transform": tuple(responses), "merges": None}
+    defaults = {"outlier rule": outlier_rules[0], "test": tests[0], "transform": next(iter(responses), None), "merges": "none"}
+    merge_names = sorted(set(table["merges"]), key=lambda s: (s != "none", s))
+    choices["merges"] = tuple(merge_names)
+
+    def pick(spec: dict) -> pd.Series:
+        m = np.ones(len(table), dtype=bool)
+        for col, val in spec.items():
+            m &= (table[col] == val).to_numpy()
+        return table[m].iloc[0] if m.any() else None
+
+    d_row = pick(defaults)
+    default_p = None if d_row is None or pd.isna(d_row["p-value"]) else float(d_row["p-value"])
+    single = []
+    for col, opts in choices.items():
+        for opt in opts:
+            if opt == defaults[col]:
+                continue
+            r = pick({**defaults, col: opt})
+            pv = None if r is None or pd.isna(r["p-value"]) else float(r["p-value"])
+            ch = None
+            if pv is not None and default_p is not None and pv > 0 and default_p > 0:
+                ch = float(np.log10(pv) - np.log10(default_p))
+            single.append({"choice": col, "option": opt, "p-value": pv, "change in log10 p": ch,
+                           "significant": pv is not None and pv < a,
+                           "changes decision": pv is not None and default_p is not None and (pv < a) != (default_p < a)})
+    single_df = pd.DataFrame(single, columns=["choice", "option", "p-value", "change in log10 p", "significant",
+                                              "changes decision"])
+    for c in ("p-value", "change in log10 p"):
+        single_df[c] = pd.array([None if v is None or not np.isfinite(v) else float(v) for v in single_df[c]],
+                                dtype="Float64")
+    n_def = int(defined.sum())
+    if n_def < len(table):
+        notes.append(f"{len(table) - n_def} specification(s) have no test (see the note column); shares count the rest.")
+    notes.append("Outlier rules are applied once, on the fit of that specification (transform and merges included), "
+                 "not repeated until nothing is flagged.")
+    if record:
+        study.record_search("robustness sweep", len(table))  # type: ignore[attr-defined]
+    return SweepResult(
+        alpha=a, current_significant=current, default_pvalue=default_p, table=table, single_choice=single_df,
+        share_agreeing=float(table["agrees with current decision"].sum() / n_def) if n_def else None,
+        share_significant=float(sig.sum() / n_def) if n_def else None, n_specifications=len(table),
+        disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        notes=tuple(notes),
+    )
