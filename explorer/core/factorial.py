@@ -27,15 +27,16 @@ from .cells import CellLayout, CellTable, layout_cells
 from .dataset import Dataset
 from .design import term_name
 from .design_checks import check_design
+from .fitrows import RowSet, row_fit
 from .groupstats import GroupStats, group_stats
 from .marginal_means import MarginalMeans, marginal_means
-from .results import Fit, LevelTable, Results
+from .results import LevelTable, Results
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow, fmt
 from .term_effects import term_effects
 from .view import DataView
 
-__all__ = ["fit_factorial", "factorial_tables"]
+__all__ = ["fit_factorial", "factorial_from_cells", "factorial_tables", "level_stats_from_cells"]
 
 CODING = "sum-to-zero"
 
@@ -173,7 +174,54 @@ def fit_factorial(
     codes = [view.codes[c][positions] for c in columns]
     layout, row_cell = layout_cells(codes, [view.levels[c] for c in columns], columns)
     cells = group_stats(y, row_cell, layout.cell_labels(), dataset.offset)
-    notes = list(check_design(layout, cells.n, spec, dataset.notes))
+    level_stats = [
+        group_stats(y, layout.cell_levels[row_cell, j], layout.levels[j], dataset.offset)
+        for j in range(len(spec.factors))
+    ]
+    rows = RowSet(y=y, group=row_cell, row_ids=dataset.row_ids[positions], positions=positions)
+    return factorial_from_cells(
+        layout, cells, spec, rows=rows, level_stats=level_stats, dataset_notes=dataset.notes,
+        dropped=dropped, confidence=confidence,
+    )
+
+
+def level_stats_from_cells(layout: CellLayout, cells: GroupStats, j: int) -> GroupStats:
+    """Statistics of the levels of column ``j``, pooled from the cells (Chan et al. 1983)."""
+    out = GroupStats(labels=layout.levels[j], n=np.zeros(len(layout.levels[j]), dtype=np.int64),
+                     mean=np.zeros(len(layout.levels[j])), m2=np.zeros(len(layout.levels[j])), offset=cells.offset)
+    codes = layout.cell_levels[:, j]
+    n = np.bincount(codes, weights=cells.n, minlength=len(layout.levels[j]))
+    s = np.bincount(codes, weights=cells.n * cells.mean, minlength=len(layout.levels[j]))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mean = np.where(n > 0, s / np.maximum(n, 1), 0.0)
+    dev = cells.mean - mean[codes]
+    # One correction step makes each pooled mean the exact weighted mean of its cells.
+    mean = mean + np.bincount(codes, weights=cells.n * dev, minlength=len(mean)) / np.maximum(n, 1)
+    dev = cells.mean - mean[codes]
+    m2 = np.bincount(codes, weights=cells.m2 + cells.n * dev * dev, minlength=len(mean))
+    return replace(out, n=n.astype(np.int64), mean=mean, m2=m2)
+
+
+def factorial_from_cells(
+    layout: CellLayout,
+    cells: GroupStats,
+    spec: ModelSpec,
+    *,
+    rows: RowSet,
+    level_stats: list[GroupStats] | None = None,
+    dataset_notes: tuple[str, ...] = (),
+    dropped: tuple = (),
+    confidence: float = 0.95,
+    method: str | None = None,
+) -> Results:
+    """Multi-factor results from cell statistics alone (the rows-free entry point).
+
+    ``cells`` are the statistics of the observed cells of ``layout`` (in its order);
+    ``rows`` are the rows whose fitted values and residuals the results report (all kept
+    rows, a sample of them, or none), their ``group`` codes indexing the cells.
+    ``level_stats`` (per treatment factor) default to pooling the cells.
+    """
+    notes = list(check_design(layout, cells.n, spec, dataset_notes))
     fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec)
     cell_table = CellTable.from_stats(layout, cells)
     tables, type_notes = factorial_tables(fit, spec, cell_table.balanced)
@@ -185,17 +233,12 @@ def fit_factorial(
     levels: dict[str, LevelTable] = {}
     means: dict[str, MarginalMeans] = {}
     for j, f in enumerate(spec.factors):
-        gs = group_stats(y, layout.cell_levels[row_cell, j], layout.levels[j], dataset.offset)
+        gs = level_stats[j] if level_stats is not None else level_stats_from_cells(layout, cells, j)
         levels[f] = _level_table(gs, f, ms_e, fit.df_resid, confidence)
         means[f] = marginal_means(fit, f, layout.levels[j], gs.original_means, gs.n, ms_e, confidence)
     effects = term_effects(table, fit.term_names(), fit.n)
 
-    fitted_shift = fit.cell_fitted[row_cell]
-    row_fit = Fit(
-        row_ids=dataset.row_ids[positions], positions=positions, y=y + dataset.offset,
-        fitted=fitted_shift + dataset.offset, residuals=y - fitted_shift,
-        leverage=fit.cell_leverage[row_cell], group=row_cell,
-    )
+    row_fit_ = row_fit(rows, fit.cell_fitted, fit.cell_leverage, cells.offset)
     kind = "randomized block" if spec.blocks else "factorial"
     return Results(
         spec=spec,
@@ -207,10 +250,10 @@ def fit_factorial(
         ms_resid=ms_e,
         levels=levels,
         groups=cells,
-        fit=row_fit,
+        fit=row_fit_,
         n_used=fit.n,
         dropped=dropped,
-        method=f"least squares, {kind} (cell sufficient statistics, QR)",
+        method=method or f"least squares, {kind} (cell sufficient statistics, QR)",
         notes=tuple(notes),
         partitions=tables,
         marginal_means=means,

@@ -17,12 +17,13 @@ import numpy as np
 
 from .distributions import f_sf, t_ppf, t_two_sided_p
 from .errors import DesignError, preview
+from .fitrows import RowSet, row_fit
 from .groupstats import GroupStats, group_stats
-from .results import Fit, LevelTable, Results, TwoSampleT
+from .results import LevelTable, Results, TwoSampleT
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow
 
-__all__ = ["fit_oneway", "oneway_partition"]
+__all__ = ["fit_oneway", "oneway_from_stats", "oneway_partition"]
 
 
 def _zero_residual(ss_within: float, gs: GroupStats) -> bool:
@@ -88,8 +89,28 @@ def fit_oneway(
     Levels without observations are left out (and named in the notes). Raises
     :class:`DesignError` when fewer than two levels remain or no residual df is left.
     """
-    factor = spec.factors[0]
     full = group_stats(y, codes, labels, offset)
+    rows = RowSet(y=y, group=codes, row_ids=row_ids, positions=positions)
+    return oneway_from_stats(full, spec, rows=rows, dropped=dropped, confidence=confidence)
+
+
+def oneway_from_stats(
+    full: GroupStats,
+    spec: ModelSpec,
+    *,
+    rows: RowSet,
+    dropped: tuple = (),
+    confidence: float = 0.95,
+    method: str = "least squares, one-way (group sufficient statistics)",
+) -> Results:
+    """One-way results from group statistics alone (the rows-free entry point).
+
+    ``full`` holds every level of the factor (empty ones allowed); ``rows`` are the rows
+    whose fitted values and residuals the results report (all kept rows, a sample of
+    them, or none), their ``group`` codes indexing ``full``'s levels.
+    """
+    factor = spec.factors[0]
+    offset = full.offset
     notes: list[str] = []
     empty = [lab for lab, c in zip(full.labels, full.n) if c == 0]
     if empty:
@@ -107,7 +128,6 @@ def fit_oneway(
             "the F test needs at least one level with two or more"
         )
     remap = np.cumsum(full.n > 0) - 1
-    gcodes = remap[codes] if empty else codes
     table, raw, part_notes = oneway_partition(gs, factor)
     notes.extend(part_notes)
     df_w = n - k
@@ -149,11 +169,7 @@ def fit_oneway(
         two = TwoSampleT(first=gs.labels[0], second=gs.labels[1], difference=diff, statistic=t_stat, df=df_w,
                          pvalue=p2, ci_low=lo, ci_high=hi, confidence=confidence)
 
-    fitted_shift = gs.mean[gcodes]
-    fit = Fit(
-        row_ids=row_ids, positions=positions, y=y + offset, fitted=fitted_shift + offset,
-        residuals=y - fitted_shift, leverage=1.0 / nn[gcodes], group=gcodes,
-    )
+    fit = row_fit(rows.regrouped(remap) if empty else rows, gs.mean, 1.0 / nn, offset)
     sst = ssb + ssw
     return Results(
         spec=spec,
@@ -169,6 +185,6 @@ def fit_oneway(
         n_used=n,
         dropped=dropped,
         two_groups=two,
-        method="least squares, one-way (group sufficient statistics)",
+        method=method,
         notes=tuple(notes),
     )

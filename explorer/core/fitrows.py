@@ -1,0 +1,52 @@
+"""The rows a fit reports on: all kept rows, or a stated sample of them.
+
+The partition, tests and level tables of a fixed-effects model need only group or
+cell sufficient statistics. The per-row part of the results (fitted values,
+residuals, leverage: what residual charts draw) needs rows. A :class:`RowSet` carries
+whichever rows are at hand: every kept row of an in-memory study, or a seeded sample
+drawn by the engine that holds the data of a summary-backed study.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .results import Fit
+
+__all__ = ["RowSet", "row_fit"]
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class RowSet:
+    """Rows with their group (or cell) code.
+
+    ``y`` is on the shifted scale of the group statistics; ``group`` indexes the
+    groups (or cells) the statistics were computed for; ``positions`` are the rows'
+    positions in the row table they came from.
+    """
+
+    y: np.ndarray
+    group: np.ndarray
+    row_ids: np.ndarray
+    positions: np.ndarray
+
+    @classmethod
+    def empty(cls) -> RowSet:
+        return cls(y=np.empty(0), group=np.empty(0, dtype=np.int64), row_ids=np.empty(0, dtype=np.int64),
+                   positions=np.empty(0, dtype=np.int64))
+
+    def regrouped(self, remap: np.ndarray) -> RowSet:
+        """The same rows with group codes mapped through ``remap``."""
+        return RowSet(y=self.y, group=np.asarray(remap)[self.group], row_ids=self.row_ids, positions=self.positions)
+
+
+def row_fit(rows: RowSet, group_fitted: np.ndarray, group_leverage: np.ndarray, offset: float) -> Fit:
+    """Fitted values, residuals and leverage of ``rows`` from per-group fitted means and hat values."""
+    g = np.asarray(rows.group, dtype=np.int64)
+    fitted = np.asarray(group_fitted)[g]
+    return Fit(
+        row_ids=rows.row_ids, positions=rows.positions, y=rows.y + offset, fitted=fitted + offset,
+        residuals=rows.y - fitted, leverage=np.asarray(group_leverage)[g], group=g,
+    )
