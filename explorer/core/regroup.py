@@ -62,7 +62,7 @@ class RegroupScan:
     @property
     def move_flips(self) -> list[tuple[object, str, str]]:
         idx = np.flatnonzero(self._flips(self.move_fits))
-        return [(self.move_rows[i], self.move_from[i], self.move_to[i]) for i in idx]
+        return list(zip(self.move_rows[idx].tolist(), self.move_from[idx].tolist(), self.move_to[idx].tolist()))
 
     def _frame(self, fits: AlternativeFits, kind: str, change: list[str], row: list, src: list, dst: list) -> pd.DataFrame:
         flips = self._flips(fits)
