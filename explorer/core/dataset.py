@@ -114,7 +114,9 @@ class Dataset:
         rows = list(rows)
         if not self._positions:
             self._positions.update({_py(r): i for i, r in enumerate(self.row_ids.tolist())})
-        out, missing, aside = [], [], []
+        out: list[int] = []
+        missing: list[RowId] = []
+        aside: list[RowId] = []
         set_aside_ids = {s.row for s in self.set_aside}
         for r in rows:
             key = _py(r)

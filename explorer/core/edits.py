@@ -101,13 +101,10 @@ def edit_from_dict(d: dict[str, Any]) -> Edit:
     return cls(**kwargs)
 
 
-def _rows(rows: object) -> tuple[RowId, ...]:
+def _rows(rows: Any) -> tuple[RowId, ...]:
     if isinstance(rows, (str, int, np.integer)):
         rows = [rows]
-    out = []
-    for r in rows:  # type: ignore[union-attr]
-        out.append(int(r) if isinstance(r, np.integer) else r)
-    return tuple(out)
+    return tuple(int(r) if isinstance(r, np.integer) else r for r in rows)
 
 
 @register_edit

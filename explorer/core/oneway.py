@@ -28,7 +28,7 @@ __all__ = ["fit_oneway", "oneway_from_stats", "oneway_partition"]
 
 def _zero_residual(ss_within: float, gs: GroupStats) -> bool:
     scale = max(abs(gs.offset), float(np.max(np.abs(gs.mean))) if gs.k else 0.0, 1e-300)
-    return ss_within <= gs.n_total * (8 * np.finfo(float).eps * scale) ** 2
+    return bool(ss_within <= gs.n_total * (8 * np.finfo(float).eps * scale) ** 2)
 
 
 def oneway_partition(gs: GroupStats, factor: str) -> tuple[AnovaTable, AnovaTable, tuple[str, ...]]:
@@ -146,7 +146,7 @@ def oneway_from_stats(
         t_own = np.where(gs.n > 1, t_ppf(0.5 + confidence / 2, np.maximum(gs.n - 1, 1)), np.nan)
     half_own = t_own * se
     singles = [lab for lab, c in zip(gs.labels, gs.n) if c == 1]
-    lt_notes = ()
+    lt_notes: tuple[str, ...] = ()
     if singles:
         lt_notes = (f"Level(s) {preview(singles)} have one observation: their own SD and own-SD interval are undefined.",)
         notes.extend(lt_notes)
@@ -160,6 +160,10 @@ def oneway_from_stats(
     if k == 2:
         diff = float(gs.mean[0] - gs.mean[1])
         se_d = float(np.sqrt(msw * (1 / nn[0] + 1 / nn[1])))
+        t_stat: float | None
+        p2: float | None
+        lo: float | None
+        hi: float | None
         if se_d > 0:
             t_stat = diff / se_d
             p2 = float(t_two_sided_p(t_stat, df_w))

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -47,7 +48,7 @@ class DataView:
         return np.asarray(self.levels[factor], dtype=object)[self.codes[factor]]
 
     def replace(self, **changes: object) -> "DataView":
-        fields = {"kept": self.kept, "codes": self.codes, "levels": self.levels}
+        fields: dict[str, Any] = {"kept": self.kept, "codes": self.codes, "levels": self.levels}
         fields.update(changes)
         return DataView(**fields)  # type: ignore[arg-type]
 
