@@ -190,7 +190,7 @@ def fit_cells(
         ss["III"][t] = float(np.sum((f_full - reduced) ** 2))
         df["III"][t] = ncols[t]
 
-    rinv = linalg.solve_triangular(r, np.eye(p))
+    rinv = np.linalg.solve(r, np.eye(p))  # R is small and well conditioned (pivoted)
     coef_p = rinv @ (q.T @ zw)
     coef = np.empty(p)
     coef[piv] = coef_p

@@ -19,7 +19,6 @@ from __future__ import annotations
 from dataclasses import replace
 
 import numpy as np
-from scipy import stats
 
 from .blocking import BlockingEfficiency, blocking_efficiency
 from .cellfit import SS_TYPES, CellFit, fit_cells
@@ -27,8 +26,9 @@ from .cells import CellLayout, CellTable, layout_cells
 from .dataset import Dataset
 from .design import term_name
 from .design_checks import check_design
+from .distributions import f_sf, t_ppf
 from .fitrows import RowSet, row_fit
-from .groupstats import GroupStats, group_stats
+from .groupstats import GroupStats, group_stats, pool_groups
 from .marginal_means import MarginalMeans, marginal_means
 from .results import LevelTable, Results
 from .spec import ModelSpec
@@ -56,7 +56,7 @@ def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:
         F = p = None
         if not zero_resid:
             F = ms / ms_e
-            p = float(stats.f.sf(F, df, fit.df_resid))
+            p = float(f_sf(F, df, fit.df_resid))
         rows.append(TermRow(source=term_name(t), df=df, sum_sq=ss, mean_sq=ms, statistic=F, pvalue=p))
     rows.append(TermRow(source="residual", df=fit.df_resid, sum_sq=fit.ss_resid, mean_sq=0.0 if zero_resid else ms_e))
     rows.append(TermRow(source="total (corrected)", df=fit.n - 1, sum_sq=fit.ss_total))
@@ -123,10 +123,10 @@ def _level_table(gs: GroupStats, factor: str, ms_resid: float, df_resid: int, co
     nn = gs.n.astype(float)
     with np.errstate(invalid="ignore"):
         sd = np.sqrt(gs.variances())
-        t_own = np.where(gs.n > 1, stats.t.ppf(0.5 + confidence / 2, np.maximum(gs.n - 1, 1)), np.nan)
+        t_own = np.where(gs.n > 1, t_ppf(0.5 + confidence / 2, np.maximum(gs.n - 1, 1)), np.nan)
     se = sd / np.sqrt(nn)
     means = gs.original_means
-    half_pool = stats.t.ppf(0.5 + confidence / 2, df_resid) * np.sqrt(ms_resid / nn)
+    half_pool = t_ppf(0.5 + confidence / 2, df_resid) * np.sqrt(ms_resid / nn)
     half_own = t_own * se
     singles = [lab for lab, c in zip(gs.labels, gs.n) if c == 1]
     notes = (f"Level(s) {singles} have one observation: their own SD and own-SD interval are undefined.",) if singles else ()
@@ -174,32 +174,17 @@ def fit_factorial(
     codes = [view.codes[c][positions] for c in columns]
     layout, row_cell = layout_cells(codes, [view.levels[c] for c in columns], columns)
     cells = group_stats(y, row_cell, layout.cell_labels(), dataset.offset)
-    level_stats = [
-        group_stats(y, layout.cell_levels[row_cell, j], layout.levels[j], dataset.offset)
-        for j in range(len(spec.factors))
-    ]
     rows = RowSet(y=y, group=row_cell, row_ids=dataset.row_ids[positions], positions=positions)
+    # Level statistics are pooled from the cells (exact merge formula): no further pass over the rows.
     return factorial_from_cells(
-        layout, cells, spec, rows=rows, level_stats=level_stats, dataset_notes=dataset.notes,
+        layout, cells, spec, rows=rows, dataset_notes=dataset.notes,
         dropped=dropped, confidence=confidence,
     )
 
 
 def level_stats_from_cells(layout: CellLayout, cells: GroupStats, j: int) -> GroupStats:
     """Statistics of the levels of column ``j``, pooled from the cells (Chan et al. 1983)."""
-    out = GroupStats(labels=layout.levels[j], n=np.zeros(len(layout.levels[j]), dtype=np.int64),
-                     mean=np.zeros(len(layout.levels[j])), m2=np.zeros(len(layout.levels[j])), offset=cells.offset)
-    codes = layout.cell_levels[:, j]
-    n = np.bincount(codes, weights=cells.n, minlength=len(layout.levels[j]))
-    s = np.bincount(codes, weights=cells.n * cells.mean, minlength=len(layout.levels[j]))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        mean = np.where(n > 0, s / np.maximum(n, 1), 0.0)
-    dev = cells.mean - mean[codes]
-    # One correction step makes each pooled mean the exact weighted mean of its cells.
-    mean = mean + np.bincount(codes, weights=cells.n * dev, minlength=len(mean)) / np.maximum(n, 1)
-    dev = cells.mean - mean[codes]
-    m2 = np.bincount(codes, weights=cells.m2 + cells.n * dev * dev, minlength=len(mean))
-    return replace(out, n=n.astype(np.int64), mean=mean, m2=m2)
+    return pool_groups(cells.n, cells.mean, cells.m2, layout.cell_levels[:, j], layout.levels[j], cells.offset)
 
 
 def factorial_from_cells(

@@ -29,10 +29,10 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .cellfit import CellFit
 from .comparisons import PairwiseTable, simultaneous_pairs
+from .distributions import t_ppf
 from .tables import html_table
 
 __all__ = ["MarginalMeans", "marginal_means"]
@@ -102,7 +102,7 @@ def marginal_means(
     est = L @ fit.coef + fit.stats.offset
     cov = ms_resid * (L @ fit.cov_unscaled @ L.T)
     se = np.sqrt(np.maximum(np.diag(cov), 0.0))
-    half = stats.t.ppf(0.5 + confidence / 2, fit.df_resid) * se
+    half = t_ppf(0.5 + confidence / 2, fit.df_resid) * se
     return MarginalMeans(
         factor=factor, labels=labels, estimate=est, se=se, ci_low=est - half, ci_high=est + half,
         covariance=cov, raw_mean=raw_mean, n=n, df=fit.df_resid, confidence=confidence,
