@@ -1,0 +1,107 @@
+"""Robustness sweep: every specification recomputed with scipy/statsmodels; counts, shares and the single choices."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.formula.api as smf
+from scipy import stats
+from statsmodels.stats.outliers_influence import OLSInfluence
+
+import explorer as ex
+from explorer.core.errors import ExplorerError
+from explorer.core.sweep import robustness_sweep
+
+
+def _data() -> pd.DataFrame:
+    rng = np.random.default_rng(5)
+    g = np.repeat(["L1", "L2", "L3", "L4"], [12, 15, 10, 13])
+    y = 20 + rng.normal(size=g.size) * 1.5 + np.repeat([0.0, 1.2, 1.0, 0.2], [12, 15, 10, 13])
+    y[3] += 9.0
+    y[30] -= 7.0
+    return pd.DataFrame({"g": g, "y": y})
+
+
+def _reference(df: pd.DataFrame, spec: pd.Series) -> tuple[list[int], float]:
+    """Rebuild one specification with pandas and compute it with statsmodels/scipy."""
+    d = df.copy()
+    if spec["transform"] == "log":
+        d["y"] = np.log(d["y"])
+    if spec["merges"] != "none":
+        for m in spec["merges"].split("; "):
+            levels = m.split("+")
+            d.loc[d.g.isin(levels), "g"] = m
+    fit = smf.ols("y ~ C(g)", d).fit()
+    oi = OLSInfluence(fit)
+    flag = np.zeros(len(d), dtype=bool)
+    if spec["outlier rule"] == "studentized":
+        flag = np.abs(oi.resid_studentized_external) > 3
+    elif spec["outlier rule"] == "cooks":
+        flag = oi.cooks_distance[0] > 4 / len(d)
+    elif spec["outlier rule"] == "outlier_test":
+        flag = fit.outlier_test(method="bonf")["bonf(p)"].to_numpy() < 0.05
+    kept = d[~flag]
+    groups = [v.to_numpy() for _, v in kept.groupby("g")["y"]]
+    if spec["test"] == "classic":
+        p = stats.f_oneway(*groups).pvalue
+    elif spec["test"] == "welch":
+        p = stats.f_oneway(*groups, equal_var=False).pvalue
+    else:
+        p = stats.kruskal(*groups).pvalue
+    return sorted(np.flatnonzero(flag).tolist()), float(p)
+
+
+def test_every_specification_matches_reference_libraries():
+    """Rows left out: statsmodels OLSInfluence / outlier_test(method='bonf'); p: scipy f_oneway (classic and
+    equal_var=False for Welch) and scipy kruskal; all 4 x 3 x 2 x 4 = 96 specifications."""
+    df = _data()
+    study = ex.Study(df, "y", "g")
+    sweep = robustness_sweep(study, merges=[["L2", "L3"], ["L1", "L4"]])
+    assert sweep.n_specifications == 96 == len(sweep.table)
+    for _, spec in sweep.table.iterrows():
+        rows, p = _reference(df, spec)
+        assert sorted(spec["rows left out"]) == rows, spec.to_dict()
+        assert spec["p-value"] == pytest.approx(p, rel=1e-9), spec.to_dict()
+    assert any(len(r) for r in sweep.table["rows left out"])
+
+
+def test_summaries_follow_the_table():
+    """Share agreeing, ranks and the single-choice table are read off the specification table."""
+    df = _data()
+    study = ex.Study(df, "y", "g")
+    sweep = robustness_sweep(study, merges=[["L2", "L3"]])
+    t = sweep.table
+    assert len(t) == 4 * 3 * 2 * 2
+    current = study.results.significant()
+    assert sweep.share_agreeing == pytest.approx(((t["p-value"] < 0.05) == current).mean())
+    assert t["rank"].tolist() == list(range(1, len(t) + 1))
+    assert t["p-value"].is_monotonic_increasing
+    default = t[(t["outlier rule"] == "none") & (t["test"] == "classic") & (t["transform"] == "none") & (t["merges"] == "none")]
+    assert sweep.default_pvalue == pytest.approx(float(default["p-value"].iloc[0]))
+    assert sweep.default_pvalue == pytest.approx(study.results.pvalue(), rel=1e-12)
+    sc = sweep.single_choice
+    assert len(sc) == 3 + 2 + 1 + 1
+    best = sweep.strongest_choice
+    assert abs(best["change in log10 p"]) == pytest.approx(sc["change in log10 p"].abs().max())
+    assert "Robustness sweep" in sweep._repr_html_()
+
+
+def test_log_left_out_when_response_not_positive():
+    """A zero in the response: no log specifications, and a note says why."""
+    df = _data()
+    df.loc[0, "y"] = 0.0
+    sweep = robustness_sweep(ex.Study(df, "y", "g"), tests=["classic"])
+    assert set(sweep.table["transform"]) == {"none"}
+    assert any("Log transform left out" in n for n in sweep.notes)
+
+
+def test_counts_and_bad_options():
+    """The specifications computed are added to the disclosure; unknown options and levels are refused clearly."""
+    study = ex.Study(_data(), "y", "g")
+    sweep = robustness_sweep(study, outlier_rules=["none", "cooks"], tests=["classic", "rank"], transforms=["none"])
+    assert sweep.n_specifications == 4 and study.disclosure.specifications == 4
+    with pytest.raises(ExplorerError, match="tests must be"):
+        robustness_sweep(study, tests=["anova"])
+    with pytest.raises(ExplorerError, match="no level 'L9'"):
+        robustness_sweep(study, merges=[["L1", "L9"]])
