@@ -130,3 +130,31 @@ def test_report_opens_offline_in_chromium(page):
         assert tab.locator("#edits td", has_text=REASONS[1]).count() == 1
         browser.close()
     assert requests == [path.as_uri()]
+
+
+def test_sensitivity_summary_matches_the_scans(edited, page):
+    """The summary repeats what the scans find (the scans are checked in their own tests)."""
+    from explorer.core.case_deletion import case_deletion_scan
+    from explorer.core.sweep import robustness_sweep
+
+    doc = outline(page[1])
+    text = doc.section_text("sensitivity")
+    flips = case_deletion_scan(edited, record=False).flip_rows
+    assert "single rows whose removal flips it " + (", ".join(map(str, flips)) or "none") in text
+    sweep = robustness_sweep(edited, record=False)
+    assert f"{sweep.share_agreeing:.0%} of {sweep.n_specifications}" in text
+    assert doc.svg_in.get("sensitivity", 0) == 1  # the specification curve
+
+
+def test_writing_a_report_does_not_add_to_the_disclosure(tmp_path):
+    study = ex.Study(ROOT / "data" / "coating_thickness.csv", response="thickness_um", factors="nozzle")
+    before = study.disclosure
+    study.report(tmp_path / "r.html")
+    assert study.disclosure == before
+
+
+def test_factorial_study_report_notes_one_factor_scans(tmp_path):
+    study = ex.Study(ROOT / "data" / "coating_thickness.csv", response="thickness_um", factors=["nozzle", "shift"])
+    doc = outline(report_html(study, charts=False))
+    assert doc.errors == []
+    assert "one-factor studies" in doc.section_text("sensitivity")

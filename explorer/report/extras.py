@@ -84,14 +84,31 @@ def battery_part(study: "Study") -> Part:
     )
 
 
-def sensitivity_part(study: "Study") -> Part:
-    """The sensitivity summary on the current state (``study.sensitivity()``).
+def sensitivity_part(study: "Study", *, charts: bool = True) -> Part:
+    """The sensitivity summary on the current state.
 
-    It names the rows whose removal flips the decision, the regroupings that flip it, and
-    the share of examined alternatives that keep the decision.
+    ``study.sensitivity()`` when the study offers one; otherwise the summary composed
+    here from the scans (:mod:`.sensitivity_summary`: flip-critical rows, regroup flips,
+    the robustness share and its curve).
     """
-    return _call(
-        "Sensitivity of the decision",
-        lambda: study.sensitivity(),  # type: ignore[attr-defined]
-        "the sensitivity engine is not part of this version of the kit",
-    )
+    title = "Sensitivity of the decision"
+    if hasattr(study, "sensitivity"):
+        return _call(title, lambda: study.sensitivity(), "")  # type: ignore[attr-defined]
+    from ..core.errors import DesignError
+    from .sensitivity_summary import curve_html, sensitivity_summary
+    from .svg_charts import curve_svg
+
+    try:
+        summary = sensitivity_summary(study)
+    except ImportError:
+        return Part(title=title, note="the sensitivity engine is not part of this version of the kit")
+    except DesignError as exc:
+        return Part(title=title, note=str(exc))
+    except Exception as exc:  # a failing optional part must not stop the hand-off
+        return Part(title=title, note=f"could not be computed on this study: {exc}")
+    parts = [summary._repr_html_()]
+    if charts:
+        svg, why = curve_svg(summary.curve, summary.alpha)
+        parts.append(f"<figure class='vx-chart'>{svg}</figure>" if svg else f"<p class='note'>{html.escape(why or '')}</p>")
+    parts.append(curve_html(summary))
+    return Part(title=title, html="".join(parts), text=summary.to_text())

@@ -144,7 +144,7 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
         f"Data: {study.dataset.source}."
     )
     battery = battery_part(study)
-    sensitivity = sensitivity_part(study)
+    sensitivity = sensitivity_part(study, charts=charts)
     disclosure = study.disclosure  # read after the sensitivity scan, which may add to it
     now = datetime.now(timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
     saved = json.dumps(study.to_dict(), indent=1).replace("<", "\\u003c")  # inert inside <script>
@@ -162,7 +162,7 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
         f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}</section>",
         f"<section id='battery'><h2>{html.escape(battery.title)}</h2>{_part(battery)}</section>",
         f"<section id='sensitivity'><h2>{html.escape(sensitivity.title)}</h2>{_part(sensitivity)}"
-        f"<p>{html.escape(disclosure.sentence())}.</p></section>",
+        f"<p><strong>Disclosure:</strong> {html.escape(disclosure.sentence())}.</p></section>",
         "<section id='replay'><h2>Rerun this analysis</h2><p>Run this Python (with the kit installed, "
         f"next to the data file) to rebuild the current state:</p><pre>{html.escape(code)}</pre></section>",
         f"<footer><p>Written {now} by variance-explorer {html.escape(__version__)}. The saved study (edit log "

@@ -16,7 +16,7 @@ import pandas as pd
 if TYPE_CHECKING:
     from ..core.results import Results
 
-__all__ = ["level_chart", "chart_to_svg", "results_svg"]
+__all__ = ["level_chart", "curve_chart", "chart_to_svg", "results_svg", "curve_svg", "charts_available"]
 
 
 def level_chart(results: "Results", title: str) -> Any:
@@ -46,6 +46,36 @@ def level_chart(results: "Results", title: str) -> Any:
     return (dots + bars + means).properties(width=280, height=220, title=title)
 
 
+def curve_chart(curve: pd.DataFrame, alpha: float) -> Any:
+    """Specification curve: each specification's p-value by rank (log scale), a rule at alpha."""
+    import altair as alt
+
+    frame = curve.dropna(subset=["p-value"]).copy()
+    frame["p-value"] = frame["p-value"].astype(float)
+    frame["rank"] = frame["rank"].astype(int)
+    frame["decision"] = ["significant" if s else "not significant" for s in frame["significant"]]
+    frame = frame.drop(columns=["significant"])
+    points = alt.Chart(frame).mark_circle(size=55).encode(
+        x=alt.X("rank:O", title="specification (ranked by p-value)", axis=alt.Axis(labels=False, ticks=False)),
+        y=alt.Y("p-value:Q", scale=alt.Scale(type="log"), title="p-value (log scale)"),
+        color=alt.Color("decision:N", scale=alt.Scale(domain=["significant", "not significant"],
+                                                      range=["#c44e52", "#4c72b0"])),
+        tooltip=["outlier rule", "test", "transform", "merges", "p-value"],
+    )
+    rule = alt.Chart(pd.DataFrame({"alpha": [alpha]})).mark_rule(strokeDash=[4, 3], color="#555").encode(y="alpha:Q")
+    return (points + rule).properties(width=420, height=180, title="Specification curve")
+
+
+def charts_available() -> str | None:
+    """``None`` when altair and vl-convert import, else why not."""
+    try:
+        import altair  # noqa: F401
+        import vl_convert  # noqa: F401
+    except ImportError:
+        return "charts need the widget extra (altair, vl-convert-python): pip install 'variance-explorer[widget]'"
+    return None
+
+
 def chart_to_svg(chart: Any) -> str:
     """SVG text of an Altair chart (vl-convert, no network), without the XML prologue."""
     import vl_convert as vlc
@@ -56,9 +86,11 @@ def chart_to_svg(chart: Any) -> str:
 
 def results_svg(results: "Results", title: str) -> tuple[str | None, str | None]:
     """``(svg, None)`` or ``(None, why)`` when the chart libraries are not installed."""
-    try:
-        import altair  # noqa: F401
-        import vl_convert  # noqa: F401
-    except ImportError:
-        return None, "charts need the widget extra (altair, vl-convert-python): pip install 'variance-explorer[widget]'"
-    return chart_to_svg(level_chart(results, title)), None
+    why = charts_available()
+    return (None, why) if why else (chart_to_svg(level_chart(results, title)), None)
+
+
+def curve_svg(curve: pd.DataFrame, alpha: float) -> tuple[str | None, str | None]:
+    """``(svg, None)`` of :func:`curve_chart`, or ``(None, why)``."""
+    why = charts_available()
+    return (None, why) if why else (chart_to_svg(curve_chart(curve, alpha)), None)

@@ -1,0 +1,129 @@
+"""The sensitivity summary of a hand-off, composed from the kit's sensitivity scans.
+
+For a one-factor study: the single rows whose removal flips the decision (case-deletion
+scan), the fewest rows whose removal flips it (flip finder), the merges of two levels and
+the moves of one row that flip it (regroup scan), and the share of a robustness sweep's
+specifications that reach the current decision, with its specification curve.
+
+The scans run with ``record=False``: a report describes the fragility of the decision
+the analyst reached, it does not search for another one, so writing a report does not
+add to ``study.disclosure``; the number of alternatives the summary examined is stated in
+the summary itself.
+
+References
+----------
+Cook, R. D. and Weisberg, S. (1982). Residuals and Influence in Regression, ch. 3.
+Steegen, S. et al. (2016). Perspectives on Psychological Science 11(5), 702-712.
+Simonsohn, U., Simmons, J. P. and Nelson, L. D. (2020). Nature Human Behaviour 4, 1208-1214.
+"""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+import pandas as pd
+
+from ..core.tables import fmt, html_table
+
+if TYPE_CHECKING:
+    from ..core.study import Study
+
+__all__ = ["SensitivitySummary", "sensitivity_summary"]
+
+
+def _ids(rows: object) -> str:
+    items = [str(r.item() if hasattr(r, "item") else r) for r in rows]  # type: ignore[attr-defined]
+    return ", ".join(items) if items else "none"
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class SensitivitySummary:
+    """Headline fragility figures of the current decision (see the module docstring)."""
+
+    decision: str
+    alpha: float
+    single_flip_rows: tuple
+    smallest_flip_rows: tuple | None
+    smallest_flip_method: str
+    merge_flips: tuple[tuple[str, str], ...]
+    merges_examined: int
+    move_flips: int
+    moves_examined: int
+    share_agreeing: float | None
+    n_specifications: int
+    curve: pd.DataFrame
+    strongest_choice: dict | None
+    examined: int
+    notes: tuple[str, ...] = field(default=())
+
+    def lines(self) -> list[tuple[str, str]]:
+        """(question, answer) pairs, the summary's rows."""
+        if self.smallest_flip_rows is None:
+            smallest = "no set of rows within the search's reach flips it"
+        else:
+            smallest = f"{len(self.smallest_flip_rows)} row(s): {_ids(self.smallest_flip_rows)} ({self.smallest_flip_method} search)"
+        share = "—" if self.share_agreeing is None else f"{self.share_agreeing:.0%} of {self.n_specifications}"
+        merges = ", ".join(f"{a} + {b}" for a, b in self.merge_flips) or "none"
+        out = [
+            ("current decision", self.decision),
+            ("single rows whose removal flips it", _ids(self.single_flip_rows)),
+            ("fewest rows whose removal flips it", smallest),
+            (f"merges of two levels that flip it (of {self.merges_examined})", merges),
+            ("moves of one row to another level that flip it", f"{self.move_flips} of {self.moves_examined}"),
+            ("robustness sweep: specifications reaching the current decision", share),
+        ]
+        if self.strongest_choice:
+            c = self.strongest_choice
+            out.append(("the single analysis choice that moves p most",
+                        f"{c['choice']} = {c['option']} (p = {fmt(c['p-value'], 4)})"))
+        return out
+
+    def to_frame(self) -> pd.DataFrame:
+        return pd.DataFrame(self.lines(), columns=["question", "answer"])
+
+    def to_text(self) -> str:
+        width = max(len(q) for q, _ in self.lines())
+        body = [f"{q.ljust(width)}  {a}" for q, a in self.lines()]
+        return "\n".join(body + list(self.notes))
+
+    def _repr_html_(self) -> str:
+        return html_table(self.to_frame(), "Sensitivity of the current decision", self.notes)
+
+
+def sensitivity_summary(study: "Study") -> SensitivitySummary:
+    """Run the scans on ``study`` (unchanged, nothing recorded) and summarise them."""
+    from ..core.case_deletion import case_deletion_scan
+    from ..core.flip import flip_finder
+    from ..core.regroup import regroup_scan
+    from ..core.sweep import robustness_sweep
+
+    res = study.results
+    deletion = case_deletion_scan(study, record=False)
+    flip = flip_finder(study, record=False)
+    regroup = regroup_scan(study, record=False)
+    sweep = robustness_sweep(study, record=False)
+    examined = (int(deletion.row_ids.size) + int(flip.sets_examined) + len(regroup.merge_levels)
+                + int(regroup.move_rows.size) + int(sweep.n_specifications))
+    notes = (
+        f"These scans examined {examined} alternative analyses of the current state to describe its fragility; "
+        "they are not added to the study's count of alternatives the analyst examined.",
+    )
+    curve = sweep.table[["rank", "outlier rule", "test", "transform", "merges", "p-value", "significant"]].copy()
+    return SensitivitySummary(
+        decision=res.decision(), alpha=study.spec.alpha,
+        single_flip_rows=tuple(deletion.flip_rows),
+        smallest_flip_rows=tuple(flip.rows) if flip.found else None, smallest_flip_method=flip.method,
+        merge_flips=tuple(regroup.merge_flips), merges_examined=len(regroup.merge_levels),
+        move_flips=len(regroup.move_flips), moves_examined=int(regroup.move_rows.size),
+        share_agreeing=sweep.share_agreeing, n_specifications=int(sweep.n_specifications),
+        curve=curve, strongest_choice=sweep.strongest_choice, examined=examined, notes=notes + tuple(sweep.notes),
+    )
+
+
+def curve_html(summary: SensitivitySummary) -> str:
+    """The specification curve as a table (the chart sits beside it in the report)."""
+    shown = summary.curve.assign(significant=["yes" if v else "no" for v in summary.curve["significant"]])
+    return html_table(shown, html.escape(
+        f"Specification curve: {summary.n_specifications} specifications ranked by p-value"))
