@@ -30,8 +30,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special
 
+from .distributions import f_sf
 from .errors import DesignError
 from .groupstats import GroupStats, group_stats
 
@@ -40,7 +40,6 @@ __all__ = [
     "OnewayInput",
     "STATUS_NOTES",
     "evaluate_alternatives",
-    "f_sf",
     "fits_from_sums",
     "leave_one_out",
     "deletion_fits",
@@ -107,6 +106,11 @@ def oneway_input(study: object, what: str = "this scan") -> OnewayInput:
         )
     res = study.results  # type: ignore[attr-defined]
     dataset = study.dataset  # type: ignore[attr-defined]
+    if int(np.asarray(res.fit.positions).size) != int(res.groups.n_total):
+        raise DesignError(
+            f"{what} needs every kept row, but this study's results carry {np.asarray(res.fit.positions).size} "
+            f"of {res.groups.n_total} rows; load the full table to scan it"
+        )
     pos = np.asarray(res.fit.positions)
     y = np.asarray(dataset.y)[pos]
     codes = np.asarray(res.fit.group, dtype=np.int64)
@@ -197,11 +201,6 @@ def fits_from_sums(
         levels=levels, n=total, df_between=df_b, df_within=df_w,
         ss_between=ssb, ss_within=ssw, statistic=stat, pvalue=p, eta_squared=eta, status=status,
     )
-
-
-def f_sf(f: np.ndarray, dfn: np.ndarray, dfd: np.ndarray) -> np.ndarray:
-    """Upper tail ``P(F > f)`` of the F distribution (the regularized incomplete beta function)."""
-    return special.fdtrc(np.asarray(dfn, dtype=np.float64), np.asarray(dfd, dtype=np.float64), f)
 
 
 def leave_one_out(data: OnewayInput) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

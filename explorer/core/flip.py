@@ -33,15 +33,15 @@ import html
 import itertools
 import math
 from dataclasses import dataclass, field
-from functools import lru_cache
 
 import numpy as np
 import pandas as pd
-from scipy import special, stats
+from scipy import special
 
 from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
 from .errors import ExplorerError, closest_names
 from .groupstats import group_stats
+from .studentized_range import srange_ppf, srange_sf
 from .study import Disclosure
 from .tables import fmt, html_table
 
@@ -50,10 +50,9 @@ __all__ = ["FlipSearch", "flip_finder"]
 _CHUNK = 50_000
 
 
-@lru_cache(maxsize=256)
-def _q_crit(alpha: float, k: int, df: int) -> float:
-    """Upper alpha point of the studentized range (cached: it costs a numerical integration)."""
-    return float(stats.studentized_range.ppf(1 - alpha, k, df))
+def _q_crit(alpha: float, k: int, df: np.ndarray) -> np.ndarray:
+    """Upper alpha points of the studentized range for each df (the project's fast quadrature)."""
+    return np.asarray(srange_ppf(1 - alpha, k, np.asarray(df, dtype=float)), dtype=float).reshape(-1)
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -135,9 +134,10 @@ class _Scorer:
         q = np.abs(mean[ok, a] - mean[ok, b]) / np.sqrt(msw / 2 * (1 / n[ok, a] + 1 / n[ok, b]))
         lv, dfw = fits.levels[ok], fits.df_within[ok]
         crit = np.empty(q.size)
-        for key in set(zip(lv.tolist(), dfw.tolist())):
-            sel = (lv == key[0]) & (dfw == key[1])
-            crit[sel] = _q_crit(self.alpha, int(key[0]), int(key[1]))
+        for kk in np.unique(lv):
+            sel = lv == kk
+            dfs, inv = np.unique(dfw[sel], return_inverse=True)
+            crit[sel] = _q_crit(self.alpha, int(kk), dfs)[inv]
         out[ok] = q / crit
         return out, ok
 
@@ -155,7 +155,7 @@ class _Scorer:
             return None
         msw = fits.ss_within[0] / fits.df_within[0]
         q = abs(gs.mean[a] - gs.mean[b]) / math.sqrt(msw / 2 * (1 / gs.n[a] + 1 / gs.n[b]))
-        return float(stats.studentized_range.sf(q, int(fits.levels[0]), int(fits.df_within[0])))
+        return float(srange_sf(q, int(fits.levels[0]), float(fits.df_within[0])).reshape(-1)[0])
 
 
 def _removal_stats(data: OnewayInput, sets: np.ndarray, keep_mask: np.ndarray | None = None):  # type: ignore[no-untyped-def]

@@ -33,6 +33,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from .distributions import t_sf
 from .study import Disclosure
 from .tables import fmt, html_table
 
@@ -152,7 +153,7 @@ def influence_measures(
                 room = df - r * r
                 t = np.where(room > 0, r * np.sqrt((df - 1) / room), np.nan)
                 dff = t * np.sqrt(h / (1 - h))
-                pout = np.minimum(1.0, n * 2 * stats.t.sf(np.abs(t), df - 1))
+                pout = np.minimum(1.0, n * 2 * t_sf(np.abs(t), df - 1))
             else:
                 notes.append("One residual df: leaving a row out leaves none, so external studentized "
                              "residuals, DFFITS and the outlier test are undefined.")
