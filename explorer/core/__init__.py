@@ -17,3 +17,23 @@ __all__ = [
     "ExplorerError", "ReplayError", "GroupStats", "group_stats", "Fit", "LevelTable", "Results", "TwoSampleT",
     "ModelSpec", "Disclosure", "Study", "StudyEvent", "AnovaTable", "TermRow", "DataView",
 ]
+
+# One-way battery: omnibus tests, checks, comparisons, letters, effect sizes, power, screens.
+from .assumptions import CheckResult, Recommendation, bartlett, levene, recommend, shapiro_residuals
+from .battery import Battery, run_battery
+from .comparisons import PairwiseTable, adjust_pvalues, dunnett, games_howell, pairwise_t, simultaneous_pairs, tukey
+from .effect_sizes import EffectSizes, effect_sizes, noncentrality_interval
+from .letters import LetterDisplay, compact_letters
+from .omnibus import OmnibusTest, brown_forsythe_f, classic_f, kruskal_wallis, permutation_f, welch_f
+from .outliers import OutlierScreen, bonferroni_outlier_test, grubbs_critical, grubbs_test, robust_z_screen
+from .power import PowerPlan, f_test_power, group_size_for_power, power_plan
+from .studentized_range import srange_cdf, srange_ppf, srange_sf
+
+__all__ += [
+    "CheckResult", "Recommendation", "bartlett", "levene", "recommend", "shapiro_residuals", "Battery",
+    "run_battery", "PairwiseTable", "adjust_pvalues", "dunnett", "games_howell", "pairwise_t",
+    "simultaneous_pairs", "tukey", "EffectSizes", "effect_sizes", "noncentrality_interval", "LetterDisplay",
+    "compact_letters", "OmnibusTest", "brown_forsythe_f", "classic_f", "kruskal_wallis", "permutation_f",
+    "welch_f", "OutlierScreen", "bonferroni_outlier_test", "grubbs_critical", "grubbs_test", "robust_z_screen",
+    "PowerPlan", "f_test_power", "group_size_for_power", "power_plan", "srange_cdf", "srange_ppf", "srange_sf",
+]

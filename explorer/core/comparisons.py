@@ -22,7 +22,6 @@ Hochberg, Y. and Tamhane, A. C. (1987). Multiple Comparison Procedures. Wiley.
 
 from __future__ import annotations
 
-import html
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Literal
@@ -34,13 +33,19 @@ from scipy import optimize, special, stats
 from .errors import DesignError, ExplorerError, closest_names, preview
 from .groupstats import GroupStats
 from .studentized_range import _outer_grid, srange_ppf, srange_sf
-from .tables import fmt, html_table
+from .tables import html_table
 
 if TYPE_CHECKING:
     from .results import Results
 
 __all__ = [
-    "PairwiseTable", "simultaneous_pairs", "tukey", "games_howell", "dunnett", "pairwise_t", "adjust_pvalues",
+    "PairwiseTable",
+    "adjust_pvalues",
+    "dunnett",
+    "games_howell",
+    "pairwise_t",
+    "simultaneous_pairs",
+    "tukey",
 ]
 
 Alternative = Literal["two-sided", "greater", "less"]
@@ -177,8 +182,8 @@ def _balance_note(n: np.ndarray) -> tuple[bool, tuple[str, ...]]:
     if balanced:
         return True, ()
     return False, (
-        f"Group sizes differ ({int(n.min())} to {int(n.max())}), so Tukey's intervals use Kramer's (1956) "
-        "standard errors; the method is the same one used for equal sizes.",
+        (f"Group sizes differ ({int(n.min())} to {int(n.max())}), so Tukey's intervals use Kramer's (1956) "
+        "standard errors; the method is the same one used for equal sizes."),
     )
 
 
@@ -455,7 +460,7 @@ def dunnett(
         stat_for_p = -t
     p = np.array([_dunnett_exceed(float(x), lam, df, alternative) if x > -40 else 1.0 for x in stat_for_p])
     alpha = 1 - confidence
-    f = lambda c: _dunnett_exceed(c, lam, df, alternative) - alpha  # noqa: E731
+    f = lambda c: _dunnett_exceed(c, lam, df, alternative) - alpha
     hi_c = 4.0
     while f(hi_c) > 0:
         hi_c *= 2

@@ -31,7 +31,7 @@ from functools import lru_cache
 import numpy as np
 from scipy import special
 
-__all__ = ["srange_sf", "srange_cdf", "srange_ppf"]
+__all__ = ["srange_cdf", "srange_ppf", "srange_sf"]
 
 _LOG_CUTOFF = 40.0  # outer grid spans log-density within e^-40 of its peak
 _HW = 1.0 / 32.0  # step of the table of the range distribution
@@ -68,30 +68,53 @@ def _range_table(k: int) -> tuple[np.ndarray, np.ndarray]:
     return log_sf, dlog
 
 
+@lru_cache(maxsize=32)
+def _range_cubics(k: int) -> np.ndarray:
+    """Cubic Hermite coefficients (in the local coordinate t in [0, 1]) of log P(range > w)."""
+    log_sf, dlog = _range_table(k)
+    y0, y1 = log_sf[:-1], log_sf[1:]
+    d0, d1 = dlog[:-1] * _HW, dlog[1:] * _HW
+    coef = np.stack([y0, d0, 3 * (y1 - y0) - 2 * d0 - d1, 2 * (y0 - y1) + d0 + d1], axis=1)
+    coef.setflags(write=False)
+    return coef
+
+
 def _range_sf_pdf(w: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
     """P(range > w) and the range density at ``w`` (cubic Hermite interpolation in log P)."""
-    log_sf, dlog = _range_table(k)
-    last = len(log_sf) - 1
-    x = np.clip(w, 0.0, None) / _HW
+    coef = _range_cubics(k)
+    last = coef.shape[0]
+    x = np.minimum(np.maximum(w, 0.0) / _HW, float(last))
     i = np.minimum(x.astype(np.int64), last - 1)
     t = x - i
-    beyond = x > last
-    t = np.where(beyond, 1.0, t)
-    y0, y1 = log_sf[i], log_sf[i + 1]
-    d0, d1 = dlog[i] * _HW, dlog[i + 1] * _HW
-    t2 = t * t
-    t3 = t2 * t
-    val = (2 * t3 - 3 * t2 + 1) * y0 + (t3 - 2 * t2 + t) * d0 + (-2 * t3 + 3 * t2) * y1 + (t3 - t2) * d1
-    der = ((6 * t2 - 6 * t) * y0 + (3 * t2 - 4 * t + 1) * d0 + (-6 * t2 + 6 * t) * y1 + (3 * t2 - 2 * t) * d1) / _HW
-    # Beyond the table the log tail is continued linearly (p-values below about 1e-40).
-    val = np.where(beyond, log_sf[last] + dlog[last] * (x - last) * _HW, val)
-    der = np.where(beyond, dlog[last], der)
+    c = coef[i]
+    c0, c1, c2, c3 = c[..., 0], c[..., 1], c[..., 2], c[..., 3]
+    val = c0 + t * (c1 + t * (c2 + t * c3))
+    der = (c1 + t * (2 * c2 + 3 * t * c3)) / _HW
+    beyond = w > last * _HW
+    if beyond.any():  # continue the log tail linearly (p-values below about 1e-40)
+        log_sf, dlog = _range_table(k)
+        val = np.where(beyond, log_sf[last] + dlog[last] * (w - last * _HW), val)
+        der = np.where(beyond, dlog[last], der)
     with np.errstate(under="ignore"):
         sf = np.exp(val)
     return sf, -der * sf
 
 
+_GRID_CACHE: dict[bytes, tuple[np.ndarray, np.ndarray]] = {}
+
+
 def _outer_grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Cached :func:`_grid` (the last few df vectors; a pure function of df)."""
+    key = np.ascontiguousarray(df, dtype=float).tobytes()
+    hit = _GRID_CACHE.get(key)
+    if hit is None:
+        if len(_GRID_CACHE) > 16:
+            _GRID_CACHE.clear()
+        hit = _GRID_CACHE[key] = _grid(np.asarray(df, dtype=float))
+    return hit
+
+
+def _grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Nodes ``s`` (shape (len(df), M)) and normalised weights of ``S = sqrt(chi2_nu / nu)``.
 
     Trapezoidal rule in ``t = log s`` over the span where the log-density is within
@@ -120,14 +143,18 @@ def _outer_grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         s[~finite] = 1.0
         w[~finite] = 0.0
         w[~finite, 0] = 1.0
+    s.setflags(write=False)
+    w.setflags(write=False)
     return s, w
 
 
-def _sf_pdf(q: np.ndarray, k: int, df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _sf_pdf(q: np.ndarray, k: int, df: np.ndarray, grid: tuple[np.ndarray, np.ndarray] | None = None
+            ) -> tuple[np.ndarray, np.ndarray]:
+    """Upper tail and density of Q at ``q`` (1-d arrays of equal length, or broadcastable)."""
     q, df = np.broadcast_arrays(np.asarray(q, dtype=float), np.asarray(df, dtype=float))
     shape = q.shape
     qf, dff = q.ravel(), df.ravel()
-    s, wts = _outer_grid(dff)
+    s, wts = _outer_grid(dff) if grid is None else grid
     sf, pdf = _range_sf_pdf(qf[:, None] * s, k)
     out_sf = np.einsum("ij,ij->i", sf, wts).reshape(shape)
     out_pdf = np.einsum("ij,ij->i", pdf * s, wts).reshape(shape)
@@ -153,32 +180,54 @@ def srange_cdf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndar
     return 1.0 - srange_sf(q, k, df)
 
 
+def _newton_from_left(p: float, k: int, df: np.ndarray, q: np.ndarray, tol: float) -> np.ndarray:
+    """Solve ``P(Q > q) = 1 - p`` by Newton steps from a point at or left of the root.
+
+    In the upper tail ``1 - p - sf(q)`` is increasing and concave, so Newton iterates
+    started on the left stay on the left and increase monotonically to the root.
+    """
+    grid = _outer_grid(df)
+    for _ in range(100):
+        sf, pdf = _sf_pdf(q, k, df, grid)
+        f = (1 - p) - sf
+        with np.errstate(divide="ignore", invalid="ignore"):
+            step = np.where(pdf > 0, f / pdf, 0.0)
+        step = np.where(np.isfinite(step), step, 0.0)
+        q = q - step
+        if np.all(np.abs(step) <= tol * np.maximum(1.0, q)):
+            break
+    return q
+
+
+@lru_cache(maxsize=256)
+def _ppf_infinite_df(p: float, k: int) -> float:
+    """Quantile of the range of k standard normals (infinite df), by bisection then Newton."""
+    lo, hi = 0.0, 4.0
+    df = np.array([np.inf])
+    while _sf_pdf(np.array([hi]), k, df)[0][0] > 1 - p:
+        lo, hi = hi, hi * 2
+    for _ in range(60):  # bisection to a point left of the root, close enough for Newton
+        mid = 0.5 * (lo + hi)
+        if _sf_pdf(np.array([mid]), k, df)[0][0] > 1 - p:
+            lo = mid
+        else:
+            hi = mid
+        if hi - lo < 1e-3:
+            break
+    return float(_newton_from_left(p, k, df, np.array([lo]), 1e-13)[0])
+
+
 def srange_ppf(p: float, k: int, df: np.ndarray | float, *, tol: float = 1e-12) -> np.ndarray:
-    """Quantile ``q`` with ``P(Q <= q) = p`` for each df (safeguarded Newton iteration)."""
+    """Quantile ``q`` with ``P(Q <= q) = p`` for each df (``0.5 <= p < 1``).
+
+    Starts from the infinite-df quantile, which lies at or left of every finite-df
+    quantile in the upper tail, and takes Newton steps from there.
+    """
     k = _check(k)
     if not 0.5 <= p < 1:
         raise ValueError(f"probability must be in [0.5, 1) for studentized-range quantiles, not {p!r}")
     df = np.atleast_1d(np.asarray(df, dtype=float))
-    lo = np.zeros_like(df)
-    hi = np.full_like(df, 4.0)
-    while True:  # bracket
-        sf, _ = _sf_pdf(hi, k, df)
-        if np.all(sf <= 1 - p):
-            break
-        lo = np.where(sf > 1 - p, hi, lo)
-        hi = np.where(sf > 1 - p, hi * 2, hi)
-    q = 0.5 * (lo + hi)
-    for _ in range(100):
-        sf, pdf = _sf_pdf(q, k, df)
-        f = (1 - p) - sf  # cdf(q) - p, computed from the upper tail
-        lo = np.where(f < 0, q, lo)
-        hi = np.where(f >= 0, q, hi)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            step = np.where(pdf > 0, f / pdf, np.inf)
-        done = np.abs(step) <= tol * np.maximum(1.0, q)
-        q_new = q - step
-        bad = ~np.isfinite(q_new) | (q_new < lo) | (q_new > hi)
-        q = np.where(done, q_new, np.where(bad, 0.5 * (lo + hi), q_new))
-        if np.all(done):
-            break
-    return q
+    q0 = _ppf_infinite_df(float(p), k)
+    if np.all(np.isinf(df)):
+        return np.full(df.shape, q0)
+    return _newton_from_left(p, k, df, np.full(df.shape, q0), tol)

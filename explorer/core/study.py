@@ -13,7 +13,7 @@ import warnings
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
@@ -25,6 +25,9 @@ from .persistence import describe_mismatch, edits_from_doc, read_study_file, stu
 from .results import Results
 from .spec import ModelSpec
 from .view import DataView, initial_view
+
+if TYPE_CHECKING:
+    from .battery import Battery
 
 __all__ = ["Study", "StudyEvent", "Disclosure"]
 
@@ -292,6 +295,12 @@ class Study:
         from ..report import study_to_code
 
         return study_to_code(self, data)
+
+    def battery(self, **options: Any) -> Battery:
+        """The one-way battery on the current view (see :func:`explorer.core.battery.run_battery` for options)."""
+        from .battery import run_battery
+
+        return run_battery(self.results, **options)
 
     def __repr__(self) -> str:
         return (

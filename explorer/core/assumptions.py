@@ -1,0 +1,244 @@
+"""Checks of the classic F test's assumptions on the current view, and what they point to.
+
+Levene's test of equal spreads with a visible choice of centre, Bartlett's test (from
+the level variances alone), Shapiro-Wilk on the model residuals (not on raw groups),
+each with the sample-size limits it is valid for, and a plain sentence saying which
+omnibus test the checks point to and why. The sentence is advice: nothing here changes
+which tests the kit reports.
+
+References
+----------
+Levene, H. (1960). Robust tests for equality of variances. In Contributions to
+Probability and Statistics, Stanford Univ. Press, 278-292.
+Brown, M. B. and Forsythe, A. B. (1974). Robust tests for the equality of variances.
+JASA 69, 364-367 (median and trimmed-mean centres).
+Bartlett, M. S. (1937). Properties of sufficiency and statistical tests. Proc. R. Soc.
+Lond. A 160, 268-282.
+Shapiro, S. S. and Wilk, M. B. (1965). An analysis of variance test for normality.
+Biometrika 52, 591-611; Royston, P. (1995). Remark AS R94. Appl. Stat. 44, 547-551.
+"""
+
+from __future__ import annotations
+
+import html
+import warnings
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Literal
+
+import numpy as np
+import pandas as pd
+from scipy import special, stats
+
+from .errors import ExplorerError
+from .groupstats import group_stats
+from .tables import fmt
+
+if TYPE_CHECKING:
+    from .results import Results
+
+__all__ = ["CheckResult", "Recommendation", "bartlett", "levene", "recommend", "shapiro_residuals"]
+
+Center = Literal["median", "mean", "trimmed"]
+
+#: Shapiro-Wilk limits of scipy's implementation of Royston's (1995) algorithm.
+SHAPIRO_MIN_N = 3
+SHAPIRO_MAX_N = 5000
+
+
+@dataclass(frozen=True, kw_only=True)
+class CheckResult:
+    """One assumption check: what it tests, its statistic, p-value and the limits it holds in."""
+
+    method: str
+    tests: str
+    statistic: float | None
+    df: tuple[float, ...]
+    pvalue: float | None
+    limits: str
+    within_limits: bool = True
+    details: tuple[tuple[str, float | int | str | None], ...] = ()
+    notes: tuple[str, ...] = field(default=())
+
+    def row(self) -> dict[str, object]:
+        return {"check": self.method, "tests": self.tests, "statistic": self.statistic,
+                "df": ", ".join(fmt(d, 5) for d in self.df), "p-value": self.pvalue, "limits": self.limits}
+
+    def to_frame(self) -> pd.DataFrame:
+        return pd.DataFrame([self.row()])
+
+    def _repr_html_(self) -> str:
+        notes = "".join(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)
+        return (
+            f"<div><b>{html.escape(self.method)}</b> ({html.escape(self.tests)}): statistic {fmt(self.statistic)}, "
+            f"p = {fmt(self.pvalue)}. <i>{html.escape(self.limits)}</i>{notes}</div>"
+        )
+
+
+def _sorted_by_group(values: np.ndarray, g: np.ndarray, n: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Values sorted within groups (groups in code order) and each group's start."""
+    by_value = np.argsort(values)
+    order = by_value[np.argsort(g[by_value].astype(np.int16 if len(n) < 30000 else np.int64), kind="stable")]
+    starts = np.r_[0, np.cumsum(n)[:-1]].astype(np.int64)
+    return values[order], starts
+
+
+def levene(results: Results, *, center: Center = "median", proportion_to_cut: float = 0.05) -> CheckResult:
+    """Levene's test of equal spreads: the one-way F on ``|y - centre of its level|``.
+
+    ``center='median'`` is the Brown-Forsythe (1974) variant (robust, the usual default);
+    ``'mean'`` is Levene's original; ``'trimmed'`` uses the level mean after cutting
+    ``proportion_to_cut`` of the values from each end (as ``scipy.stats.levene``).
+    Computed from the residuals, so the response offset cannot cost digits.
+    """
+    if center not in ("median", "mean", "trimmed"):
+        raise ExplorerError(f"center must be 'median', 'mean' or 'trimmed', not {center!r}")
+    if not 0 <= proportion_to_cut < 0.5:
+        raise ExplorerError(f"proportion_to_cut must be in [0, 0.5), not {proportion_to_cut!r}")
+    fit = results.fit
+    gs = results.groups
+    g, k = fit.group, gs.k
+    n = gs.n
+    e = np.asarray(fit.residuals, dtype=float)
+    if center == "mean":
+        z = np.abs(e)
+    else:
+        srt, starts = _sorted_by_group(e, g, n)
+        if center == "median":
+            lo = starts + (n - 1) // 2
+            hi = starts + n // 2
+            c = 0.5 * (srt[lo] + srt[hi])
+        else:
+            cut = (proportion_to_cut * n).astype(np.int64)
+            cs = np.r_[0.0, np.cumsum(srt)]
+            a, b = starts + cut, starts + n - cut
+            c = (cs[b] - cs[a]) / (b - a)
+        z = np.abs(e - c[g])
+    zs = group_stats(z, g, gs.labels)
+    big_n = int(n.sum())
+    df1, df2 = k - 1, big_n - k
+    names = {"median": "Levene (median centre, Brown-Forsythe)", "mean": "Levene (mean centre)",
+             "trimmed": f"Levene (trimmed-mean centre, {proportion_to_cut:g} cut each end)"}
+    limits = "Needs at least two observations in some level; robust to non-normality with the median centre."
+    if zs.ss_within <= 0:
+        return CheckResult(method=names[center], tests="equal spreads across levels", statistic=None,
+                           df=(df1, df2), pvalue=None, limits=limits,
+                           notes=("Every absolute deviation equals its level's mean deviation: the F is undefined.",))
+    f = (zs.ss_between / df1) / (zs.ss_within / df2)
+    return CheckResult(method=names[center], tests="equal spreads across levels", statistic=float(f),
+                       df=(float(df1), float(df2)), pvalue=float(special.fdtrc(df1, df2, f)), limits=limits,
+                       details=(("centre", center),))
+
+
+def bartlett(results: Results) -> CheckResult:
+    """Bartlett's (1937) test of equal variances, from the level variances alone.
+
+    ``T = [(N-k) ln s_p^2 - sum (n_i-1) ln s_i^2] / C``, chi-square on ``k-1`` df. Exact
+    only for normal data: heavy tails make it reject too often (use Levene then).
+    """
+    gs = results.groups
+    n = gs.n.astype(float)
+    var = gs.variances()
+    k = gs.k
+    limits = "Each level needs two or more observations and some spread; sensitive to non-normality."
+    bad = [lab for lab, c, v in zip(gs.labels, n, var) if c < 2 or not v > 0]
+    if bad:
+        return CheckResult(method="Bartlett", tests="equal variances (normal data)", statistic=None,
+                           df=(float(k - 1),), pvalue=None, limits=limits, within_limits=False,
+                           notes=(f"Undefined: level(s) {', '.join(map(repr, bad))} have one observation or no spread.",))
+    dfw = n - 1
+    big = dfw.sum()
+    sp2 = np.dot(dfw, var) / big
+    num = big * np.log(sp2) - np.dot(dfw, np.log(var))
+    c = 1 + (np.sum(1 / dfw) - 1 / big) / (3 * (k - 1))
+    t = float(num / c)
+    return CheckResult(method="Bartlett", tests="equal variances (normal data)", statistic=t, df=(float(k - 1),),
+                       pvalue=float(special.chdtrc(k - 1, t)), limits=limits)
+
+
+def shapiro_residuals(results: Results) -> CheckResult:
+    """Shapiro-Wilk W on the model residuals (Shapiro and Wilk 1965; Royston 1995).
+
+    Valid for ``3 <= n <= 5000`` residuals; above 5000 W is still computed but the
+    p-value approximation is unverified (said in the result). Residuals of a fitted
+    model are slightly correlated (n - k df), which the test ignores.
+    """
+    e = np.asarray(results.fit.residuals, dtype=float)
+    n = len(e)
+    limits = f"p-value approximation valid for {SHAPIRO_MIN_N} to {SHAPIRO_MAX_N} residuals (Royston 1995)."
+    if n < SHAPIRO_MIN_N:
+        return CheckResult(method="Shapiro-Wilk (residuals)", tests="normal residuals", statistic=None, df=(),
+                           pvalue=None, limits=limits, within_limits=False,
+                           notes=(f"Not computed: {n} residuals, fewer than {SHAPIRO_MIN_N}.",))
+    if np.ptp(e) <= 0:
+        return CheckResult(method="Shapiro-Wilk (residuals)", tests="normal residuals", statistic=None, df=(),
+                           pvalue=None, limits=limits,
+                           notes=("Not computed: every residual is zero.",))
+    notes: list[str] = []
+    within = n <= SHAPIRO_MAX_N
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = stats.shapiro(e)
+    if not within:
+        notes.append(
+            f"{n} residuals is above {SHAPIRO_MAX_N}: the p-value may be inaccurate, and at this size trivial "
+            "departures from normality are detected; judge the normal quantile plot instead."
+        )
+    return CheckResult(method="Shapiro-Wilk (residuals)", tests="normal residuals", statistic=float(res.statistic),
+                       df=(), pvalue=float(res.pvalue), limits=limits, within_limits=within, notes=tuple(notes))
+
+
+@dataclass(frozen=True, kw_only=True)
+class Recommendation:
+    """Which omnibus test the checks point to (``test``), and the plain-language reason."""
+
+    test: str
+    sentence: str
+    spreads_differ: bool | None
+    residuals_non_normal: bool | None
+    balanced: bool
+
+    def _repr_html_(self) -> str:
+        return f"<div><b>Suggested omnibus test: {html.escape(self.test)}.</b> {html.escape(self.sentence)}</div>"
+
+
+def recommend(results: Results, spread: CheckResult, normality: CheckResult, *, alpha: float | None = None,
+              large_group: int = 30) -> Recommendation:
+    """Read the spread and normality checks into a suggested omnibus test, with the reason.
+
+    Rules (Welch 1951; Brown and Forsythe 1974; Kruskal and Wallis 1952):
+    unequal spreads -> Welch F (Games-Howell for pairs), whatever the normality; normal
+    residuals with equal spreads -> classic F (Tukey for pairs); non-normal residuals
+    with equal spreads -> Kruskal-Wallis (or the permutation F) unless every level has
+    at least ``large_group`` observations, when the classic F is robust enough.
+    The suggestion never changes which tests are reported.
+    """
+    a = results.spec.alpha if alpha is None else alpha
+    n = results.groups.n
+    balanced = bool(np.all(n == n[0]))
+    differ = None if spread.pvalue is None else spread.pvalue < a
+    nonnormal = None if normality.pvalue is None else normality.pvalue < a
+    bal = "equal" if balanced else f"unequal ({int(n.min())} to {int(n.max())})"
+    sp = ("spreads look different" if differ else "spreads look similar") if differ is not None else "spreads could not be compared"
+    sp += f" ({spread.method}, p = {fmt(spread.pvalue, 3)})" if spread.pvalue is not None else ""
+    nm = ("residuals depart from normal" if nonnormal else "residuals look normal") if nonnormal is not None else "normality could not be checked"
+    nm += f" (Shapiro-Wilk, p = {fmt(normality.pvalue, 3)})" if normality.pvalue is not None else ""
+    if differ:
+        test = "Welch F"
+        why = (f"Welch's F does not assume equal variances; with {bal} group sizes the classic F can be far off "
+               "when spreads differ. Use Games-Howell for pairs.")
+        if nonnormal:
+            why += " Residuals are also non-normal: read Welch's F with care, and look at the residual plots."
+    elif nonnormal and int(n.min()) < large_group:
+        test = "Kruskal-Wallis H"
+        why = (f"with small groups (smallest {int(n.min())}) the classic F relies on normal residuals; the rank test "
+               "does not (the permutation F is another choice).")
+    else:
+        test = "classic F"
+        why = "its assumptions look reasonable" if not nonnormal else (
+            f"every level has at least {large_group} observations, so the F test is robust to the non-normality")
+        why += "; use Tukey for pairs."
+    if differ is None and nonnormal is None:
+        why += " (No check could be computed; the suggestion is the default, not evidence.)"
+    sentence = f"At alpha {a:g}: {sp}; {nm}. Suggested: {test}, because {why}"
+    return Recommendation(test=test, sentence=sentence, spreads_differ=differ, residuals_non_normal=nonnormal,
+                          balanced=balanced)

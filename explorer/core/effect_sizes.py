@@ -1,0 +1,154 @@
+"""Effect sizes of a one-way analysis with confidence intervals from the noncentral F.
+
+Estimates (Hays 1963; Kelley 1935; Cohen 1988):
+
+* eta squared ``SSB / SST`` (biased upwards),
+* omega squared ``(SSB - (k-1) MSW) / (SST + MSW)``,
+* epsilon squared ``(SSB - (k-1) MSW) / SST``,
+* Cohen's f ``sqrt(eta2 / (1 - eta2))``.
+
+Omega and epsilon squared go negative when F < 1; the reported value is floored at
+zero (a proportion of variance cannot be negative) and the unfloored value is kept in
+``raw`` with a note. All four estimate one population quantity, the proportion of
+variance explained ``P = f^2 / (1 + f^2)``. Its confidence interval comes from
+inverting the noncentral F: find the noncentrality ``lambda`` at which the observed F is
+the upper and the lower ``(1 - confidence)/2`` quantile, then ``f^2 = lambda / N``
+and ``P = lambda / (lambda + N)`` (Steiger 2004). When the observed F is so small that
+no positive ``lambda`` puts it below the upper quantile, the lower limit is zero.
+
+References
+----------
+Steiger, J. H. (2004). Beyond the F test: effect size confidence intervals and tests
+of close fit in the analysis of variance and contrast analysis. Psychol. Methods 9,
+164-182.
+Cohen, J. (1988). Statistical Power Analysis for the Behavioral Sciences, 2nd ed.
+Hays, W. L. (1963). Statistics for Psychologists. Kelley, T. L. (1935). An unbiased
+correlation ratio measure. PNAS 21, 554-559.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
+from scipy import optimize, special
+
+from .errors import ExplorerError
+from .tables import html_table
+
+if TYPE_CHECKING:
+    from .results import Results
+
+__all__ = ["EffectSizes", "effect_sizes", "noncentrality_interval"]
+
+
+@dataclass(frozen=True, kw_only=True)
+class EffectSizes:
+    """Point estimates and the confidence interval of the proportion of variance explained.
+
+    ``ci_proportion`` bounds the population proportion of variance explained (estimated
+    by eta2, omega2 and epsilon2); ``ci_f`` bounds Cohen's f; ``ci_lambda`` the
+    noncentrality. ``raw`` keeps omega2 and epsilon2 before the floor at zero.
+    """
+
+    eta_squared: float
+    omega_squared: float
+    epsilon_squared: float
+    cohens_f: float | None
+    ci_proportion: tuple[float, float] | None
+    ci_f: tuple[float, float] | None
+    ci_lambda: tuple[float, float] | None
+    confidence: float
+    n: int
+    df_num: int
+    df_den: int
+    raw: tuple[tuple[str, float], ...] = ()
+    notes: tuple[str, ...] = field(default=())
+
+    def to_frame(self) -> pd.DataFrame:
+        pct = f"{self.confidence:.0%}"
+        lo_p, hi_p = self.ci_proportion if self.ci_proportion else (None, None)
+        lo_f, hi_f = self.ci_f if self.ci_f else (None, None)
+        frame = pd.DataFrame({
+            "effect size": ["eta squared", "omega squared", "epsilon squared", "Cohen's f"],
+            "estimate": [self.eta_squared, self.omega_squared, self.epsilon_squared, self.cohens_f],
+            f"{pct} CI low": [lo_p, lo_p, lo_p, lo_f],
+            f"{pct} CI high": [hi_p, hi_p, hi_p, hi_f],
+        })
+        for c in frame.columns[1:]:
+            frame[c] = pd.array([None if v is None else float(v) for v in frame[c]], dtype="Float64")
+        return frame
+
+    def _repr_html_(self) -> str:
+        return html_table(self.to_frame(), "Effect sizes (interval: population proportion of variance explained)",
+                          self.notes)
+
+
+def noncentrality_interval(f_obs: float, df1: float, df2: float, confidence: float = 0.95) -> tuple[float, float]:
+    """Confidence limits for the noncentrality of F by inverting the noncentral F cdf.
+
+    Lower limit solves ``P(F <= f_obs; lambda) = (1 + confidence)/2``, upper solves
+    ``= (1 - confidence)/2``; each is 0 when even ``lambda = 0`` puts ``f_obs`` below
+    its target (Steiger 2004).
+    """
+    if not 0 < confidence < 1:
+        raise ExplorerError(f"confidence must be between 0 and 1, not {confidence!r}")
+    if not (f_obs >= 0 and np.isfinite(f_obs)):
+        raise ExplorerError(f"the observed F must be a finite non-negative number, not {f_obs!r}")
+    upper_p, lower_p = (1 - confidence) / 2, (1 + confidence) / 2
+
+    def cdf(lam: float) -> float:
+        return float(special.ncfdtr(df1, df2, lam, f_obs)) if lam > 0 else float(special.fdtr(df1, df2, f_obs))
+
+    def solve(target: float) -> float:
+        if cdf(0.0) <= target:
+            return 0.0
+        hi = max(1.0, f_obs * df1 * 2)
+        while cdf(hi) > target:
+            hi *= 2
+        return float(optimize.brentq(lambda lam: cdf(lam) - target, 0.0, hi, xtol=1e-10, rtol=1e-12))
+
+    return solve(lower_p), solve(upper_p)
+
+
+def effect_sizes(results: Results, *, confidence: float = 0.95) -> EffectSizes:
+    """Eta, omega and epsilon squared and Cohen's f, with noncentral-F intervals (see module notes)."""
+    gs = results.groups
+    ssb, ssw = gs.ss_between, gs.ss_within
+    sst = ssb + ssw
+    k, n = gs.k, gs.n_total
+    df1, df2 = k - 1, n - k
+    msw = ssw / df2
+    notes: list[str] = []
+    if sst <= 0:
+        raise ExplorerError("effect sizes are undefined: every observation in this view has the same value")
+    eta2 = ssb / sst
+    omega_raw = (ssb - df1 * msw) / (sst + msw)
+    eps_raw = (ssb - df1 * msw) / sst
+    omega2, eps2 = max(omega_raw, 0.0), max(eps_raw, 0.0)
+    if omega_raw < 0:
+        notes.append(
+            f"Omega and epsilon squared are negative before the floor ({omega_raw:.4g}, {eps_raw:.4g}) because F < 1; "
+            "shown as 0 (no variance explained)."
+        )
+    cohens_f = float(np.sqrt(eta2 / (1 - eta2))) if eta2 < 1 else None
+    ci_p = ci_f = ci_l = None
+    f_stat = results.partition.row(results.main_term).statistic
+    if f_stat is None:
+        notes.append("No interval: the F statistic is undefined (zero residual sum of squares).")
+        if cohens_f is None:
+            notes.append("Cohen's f is infinite: the residual sum of squares is zero.")
+    else:
+        lo, hi = noncentrality_interval(float(f_stat), df1, df2, confidence)
+        ci_l = (lo, hi)
+        ci_p = (lo / (lo + n), hi / (hi + n))
+        ci_f = (float(np.sqrt(lo / n)), float(np.sqrt(hi / n)))
+        if lo == 0:
+            notes.append("The lower limit is 0: the F test does not exclude no effect at this confidence.")
+    return EffectSizes(
+        eta_squared=float(eta2), omega_squared=float(omega2), epsilon_squared=float(eps2), cohens_f=cohens_f,
+        ci_proportion=ci_p, ci_f=ci_f, ci_lambda=ci_l, confidence=confidence, n=n, df_num=df1, df_den=df2,
+        raw=(("omega squared", float(omega_raw)), ("epsilon squared", float(eps_raw))), notes=tuple(notes),
+    )

@@ -1,0 +1,109 @@
+"""Compact letter display from any table of pairwise comparisons (Piepho 2004).
+
+Levels that share a letter are not declared different by the table's method at the
+chosen alpha. Built with Piepho's insert-and-absorb algorithm: start with one column
+holding every level; for each significant pair split every column that holds both
+into two (one without each member); then drop columns contained in another. Levels are
+listed from the largest estimate down, and letters are handed out in that order.
+Pairs the table did not test (e.g. two treatments in a Dunnett table) count as not
+different, and the result says so.
+
+Reference
+---------
+Piepho, H.-P. (2004). An algorithm for a letter-based representation of all-pairwise
+comparisons. J. Comput. Graph. Stat. 13(2), 456-466.
+"""
+
+from __future__ import annotations
+
+import string
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .comparisons import PairwiseTable
+from .errors import ExplorerError
+from .tables import html_table
+
+__all__ = ["LetterDisplay", "compact_letters"]
+
+_ALPHABET = string.ascii_lowercase + string.ascii_uppercase
+
+
+def _letter(i: int) -> str:
+    out = ""
+    i += 1
+    while i > 0:
+        i, r = divmod(i - 1, len(_ALPHABET))
+        out = _ALPHABET[r] + out
+    return out
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class LetterDisplay:
+    """Levels (largest estimate first), their estimates and letters; the method behind them."""
+
+    labels: tuple[str, ...]
+    estimates: np.ndarray
+    letters: tuple[str, ...]
+    method: str
+    alpha: float
+    notes: tuple[str, ...] = field(default=())
+
+    def letter_of(self, level: str) -> str:
+        try:
+            return self.letters[self.labels.index(level)]
+        except ValueError:
+            raise ExplorerError(f"no level {level!r}; levels are {list(self.labels)}") from None
+
+    def to_frame(self) -> pd.DataFrame:
+        return pd.DataFrame({"level": list(self.labels), "estimate": self.estimates, "letters": list(self.letters)})
+
+    def _repr_html_(self) -> str:
+        cap = f"Letters (same letter: not declared different by {self.method} at alpha {self.alpha:g})"
+        return html_table(self.to_frame(), cap, self.notes)
+
+
+def compact_letters(table: PairwiseTable, *, alpha: float = 0.05) -> LetterDisplay:
+    """Letters for the levels of ``table`` from its significant pairs at ``alpha`` (Piepho 2004)."""
+    if not 0 < alpha < 1:
+        raise ExplorerError(f"alpha must be between 0 and 1, not {alpha!r}")
+    labels = table.labels
+    est = np.asarray(table.estimates, dtype=float)
+    order = np.argsort(-est, kind="stable")
+    rank = {labels[i]: r for r, i in enumerate(order)}
+    sig = table.significant(alpha)
+    columns: list[frozenset[str]] = [frozenset(labels)]
+    for a, b, s in zip(table.first, table.second, sig):
+        if not s:
+            continue
+        split: list[frozenset[str]] = []
+        for col in columns:
+            if a in col and b in col:
+                split.extend((col - {a}, col - {b}))
+            else:
+                split.append(col)
+        # absorb: drop duplicates and columns contained in another
+        uniq = list(dict.fromkeys(split))
+        columns = [c for c in uniq if not any(c < o for o in uniq)]
+    columns = [c for c in columns if c]
+    columns.sort(key=lambda c: sorted(rank[x] for x in c))
+    letters = {lab: "" for lab in labels}
+    for i, col in enumerate(columns):
+        for lab in col:
+            letters[lab] += _letter(i)
+    notes: list[str] = []
+    n_levels = len(labels)
+    if table.family_size < n_levels * (n_levels - 1) // 2:
+        notes.append(
+            f"The table tests {table.family_size} of the {n_levels * (n_levels - 1) // 2} pairs; pairs it did "
+            "not test count as not different."
+        )
+    if not np.all(np.isfinite(table.pvalue)):
+        notes.append("Comparisons with an undefined p-value count as not different.")
+    return LetterDisplay(
+        labels=tuple(labels[i] for i in order), estimates=est[order],
+        letters=tuple(letters[labels[i]] for i in order),
+        method=f"{table.method} ({table.adjustment})", alpha=alpha, notes=tuple(notes),
+    )

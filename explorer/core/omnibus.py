@@ -1,0 +1,250 @@
+"""Omnibus tests of equal level means beside the classic F.
+
+Welch's F and the Brown-Forsythe test of means need only per-level n, mean and
+variance; Kruskal-Wallis and the permutation F read the kept rows once. Each result
+names its method and what it assumes.
+
+References
+----------
+Welch, B. L. (1951). On the comparison of several mean values: an alternative
+approach. Biometrika 38, 330-336.
+Brown, M. B. and Forsythe, A. B. (1974). The small sample behavior of some statistics
+which test the equality of several means. Technometrics 16, 129-132.
+Mehrotra, D. V. (1997). Improving the Brown-Forsythe solution to the generalized
+Behrens-Fisher problem. Commun. Stat. Simul. Comput. 26, 1139-1145.
+Kruskal, W. H. and Wallis, W. A. (1952). Use of ranks in one-criterion variance
+analysis. JASA 47, 583-621.
+Good, P. (2005). Permutation, Parametric and Bootstrap Tests of Hypotheses, 3rd ed.,
+Springer (permutation F; p-value (b + 1) / (B + 1)).
+"""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
+from scipy import special
+
+from .errors import ExplorerError
+from .tables import fmt
+
+if TYPE_CHECKING:
+    from .results import Results
+
+__all__ = ["OmnibusTest", "brown_forsythe_f", "classic_f", "kruskal_wallis", "permutation_f", "welch_f"]
+
+
+@dataclass(frozen=True, kw_only=True)
+class OmnibusTest:
+    """One test of 'all level means (or distributions) are equal'.
+
+    ``statistic``/``pvalue`` are ``None`` when the test is undefined on this view, and
+    ``notes`` say why. ``details`` holds method-specific extras as (name, value) pairs
+    (e.g. the permutation count and the Monte-Carlo standard error of the p-value).
+    """
+
+    method: str
+    statistic: float | None
+    df_num: float | None
+    df_den: float | None
+    pvalue: float | None
+    assumes: str
+    details: tuple[tuple[str, float | int | str | None], ...] = ()
+    notes: tuple[str, ...] = field(default=())
+
+    def detail(self, name: str) -> float | int | str | None:
+        for k, v in self.details:
+            if k == name:
+                return v
+        raise KeyError(f"no detail {name!r}; available: {[k for k, _ in self.details]}")
+
+    def row(self) -> dict[str, object]:
+        return {
+            "test": self.method, "statistic": self.statistic, "df (numerator)": self.df_num,
+            "df (denominator)": self.df_den, "p-value": self.pvalue, "assumes": self.assumes,
+        }
+
+    def to_frame(self) -> pd.DataFrame:
+        return pd.DataFrame([self.row()])
+
+    def _repr_html_(self) -> str:
+        dfs = ", ".join(fmt(x, 5) for x in (self.df_num, self.df_den) if x is not None)
+        extra = "; ".join(f"{html.escape(k)} {fmt(v) if not isinstance(v, str) else html.escape(v)}"
+                          for k, v in self.details)
+        notes = "".join(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)
+        return (
+            f"<div><b>{html.escape(self.method)}</b>: statistic {fmt(self.statistic)}"
+            f"{f' on ({dfs}) df' if dfs else ''}, p = {fmt(self.pvalue)}"
+            f"{'; ' + extra if extra else ''}. <i>Assumes {html.escape(self.assumes)}.</i>{notes}</div>"
+        )
+
+
+def _f_sf(f: float, d1: float, d2: float) -> float:
+    return float(special.fdtrc(d1, d2, f))
+
+
+def _stats(results: Results) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    gs = results.groups
+    return gs.n.astype(float), gs.mean, gs.variances(), gs.k
+
+
+def classic_f(results: Results) -> OmnibusTest:
+    """The classic F test of the one-way partition, as an :class:`OmnibusTest` (Fisher)."""
+    row = results.partition.row(results.main_term)
+    resid = results.partition.rows[1]
+    return OmnibusTest(
+        method="classic F", statistic=row.statistic, df_num=float(row.df), df_den=float(resid.df),
+        pvalue=row.pvalue, assumes="independent observations, normal residuals, equal variances",
+        notes=results.partition.notes,
+    )
+
+
+def _unequal_var_guard(n: np.ndarray, var: np.ndarray, labels: tuple[str, ...], method: str) -> str | None:
+    singles = [lab for lab, c in zip(labels, n) if c < 2]
+    if singles:
+        return f"{method} is undefined: level(s) {', '.join(map(repr, singles))} have one observation, so no own variance."
+    flat = [lab for lab, v in zip(labels, var) if not v > 0]
+    if flat:
+        return f"{method} is undefined: level(s) {', '.join(map(repr, flat))} have zero spread (all values equal)."
+    return None
+
+
+def welch_f(results: Results) -> OmnibusTest:
+    """Welch's (1951) F for equal means without assuming equal variances.
+
+    ``w_i = n_i / s_i^2``; ``F = [sum w_i (m_i - m_w)^2 / (k-1)] / [1 + 2(k-2)/(k^2-1) L]``
+    with ``L = sum (1 - w_i/W)^2 / (n_i - 1)`` and denominator df ``(k^2 - 1) / (3 L)``.
+    """
+    n, mean, var, k = _stats(results)
+    assumes = "independent observations, normal residuals within each level (variances may differ)"
+    problem = _unequal_var_guard(n, var, results.groups.labels, "Welch's F")
+    if problem:
+        return OmnibusTest(method="Welch F", statistic=None, df_num=float(k - 1), df_den=None, pvalue=None,
+                           assumes=assumes, notes=(problem,))
+    w = n / var
+    sw = w.sum()
+    mw = np.dot(w, mean) / sw
+    a = np.dot(w, (mean - mw) ** 2) / (k - 1)
+    lam = np.sum((1 - w / sw) ** 2 / (n - 1))
+    b = 1 + 2 * (k - 2) / (k * k - 1) * lam
+    f = float(a / b)
+    df2 = float((k * k - 1) / (3 * lam))
+    return OmnibusTest(method="Welch F", statistic=f, df_num=float(k - 1), df_den=df2,
+                       pvalue=_f_sf(f, k - 1, df2), assumes=assumes)
+
+
+def brown_forsythe_f(results: Results) -> OmnibusTest:
+    """Brown and Forsythe's (1974) F* test of equal means under unequal variances.
+
+    ``F* = sum n_i (m_i - m)^2 / sum (1 - n_i/N) s_i^2`` on ``k - 1`` and Satterthwaite
+    denominator df. Mehrotra's (1997) corrected numerator df and its p-value are in
+    ``details``. (Not to be confused with the Brown-Forsythe test of equal spreads, which
+    is Levene's test centred at the median, see :mod:`.assumptions`.)
+    """
+    n, _mean, var, k = _stats(results)
+    assumes = "independent observations, normal residuals within each level (variances may differ)"
+    problem = _unequal_var_guard(n, var, results.groups.labels, "The Brown-Forsythe test of means")
+    if problem:
+        return OmnibusTest(method="Brown-Forsythe F* (means)", statistic=None, df_num=float(k - 1), df_den=None,
+                           pvalue=None, assumes=assumes, notes=(problem,))
+    big_n = n.sum()
+    c = 1 - n / big_n
+    denom = np.dot(c, var)
+    f = float(results.groups.ss_between / denom)
+    df2 = float(denom**2 / np.sum((c * var) ** 2 / (n - 1)))
+    p = n / big_n
+    df1_m = float(denom**2 / (np.sum(var**2) + np.dot(p, var) ** 2 - 2 * np.dot(p, var**2)))
+    return OmnibusTest(
+        method="Brown-Forsythe F* (means)", statistic=f, df_num=float(k - 1), df_den=df2,
+        pvalue=_f_sf(f, k - 1, df2), assumes=assumes,
+        details=(("Mehrotra numerator df", df1_m), ("Mehrotra p-value", _f_sf(f, df1_m, df2))),
+    )
+
+
+def _ranks_and_ties(y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Mid-ranks of ``y`` (1-based) and the sizes of its tie blocks."""
+    order = np.argsort(y, kind="stable")
+    ys = y[order]
+    n = len(y)
+    starts = np.flatnonzero(np.r_[True, ys[1:] != ys[:-1]])
+    sizes = np.diff(np.r_[starts, n])
+    mid = starts + (sizes + 1) / 2.0  # average of ranks starts+1 .. starts+sizes
+    ranks = np.empty(n)
+    ranks[order] = np.repeat(mid, sizes)
+    return ranks, sizes
+
+
+def kruskal_wallis(results: Results) -> OmnibusTest:
+    """Kruskal-Wallis H test on mid-ranks, corrected for ties (Kruskal and Wallis 1952).
+
+    ``H = 12 / (N (N+1)) sum n_i (Rbar_i - (N+1)/2)^2 / C`` with
+    ``C = 1 - sum (t^3 - t) / (N^3 - N)``; chi-square on ``k - 1`` df.
+    """
+    fit = results.fit
+    g = fit.group
+    k = results.groups.k
+    n = results.groups.n.astype(float)
+    big_n = float(n.sum())
+    ranks, ties = _ranks_and_ties(np.asarray(fit.y, dtype=float))
+    rbar = np.bincount(g, weights=ranks, minlength=k) / n
+    h = 12.0 / (big_n * (big_n + 1)) * np.dot(n, (rbar - (big_n + 1) / 2) ** 2)
+    t = ties.astype(float)
+    corr = 1 - np.sum(t**3 - t) / (big_n**3 - big_n)
+    assumes = "independent observations; a shift in location with similar shapes and spreads across levels"
+    if not corr > 0:
+        return OmnibusTest(method="Kruskal-Wallis H", statistic=None, df_num=float(k - 1), df_den=None,
+                           pvalue=None, assumes=assumes, notes=("All observations are tied: H is undefined.",))
+    h = float(h / corr)
+    notes = ()
+    if n.min() < 5:
+        notes = ("Some levels have fewer than 5 observations; the chi-square approximation to H is rough there.",)
+    return OmnibusTest(
+        method="Kruskal-Wallis H", statistic=h, df_num=float(k - 1), df_den=None,
+        pvalue=float(special.chdtrc(k - 1, h)), assumes=assumes,
+        details=(("tie correction", float(corr)),), notes=notes,
+    )
+
+
+def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) -> OmnibusTest:
+    """Permutation test of the classic F: shuffle the responses over the kept rows.
+
+    With the group sizes fixed, F is an increasing function of ``sum_i S_i^2 / n_i``
+    (``S_i`` the level sums of the centred response), which is what each permutation
+    computes. The p-value is ``(b + 1) / (B + 1)`` with ``b`` the permutations at least
+    as extreme (Good 2005); its Monte-Carlo standard error ``sqrt(p (1-p) / B)`` is in
+    ``details``. Seeded, so the same seed and count give the same p-value.
+    """
+    b_total = int(permutations)
+    if b_total < 1:
+        raise ExplorerError(f"permutations must be a positive whole number (e.g. 9999), not {permutations!r}")
+    fit = results.fit
+    g = fit.group
+    k = results.groups.k
+    n = results.groups.n.astype(float)
+    y = np.asarray(fit.y, dtype=float)
+    y = y - y.mean()
+    obs_stat = float(np.dot(np.bincount(g, weights=y, minlength=k) ** 2, 1 / n))
+    rng = np.random.default_rng(seed)
+    big_n = len(y)
+    chunk = max(1, min(b_total, 2_000_000 // max(big_n, 1)))
+    hits = 0
+    done = 0
+    offsets = (np.arange(chunk) * k)[:, None]
+    while done < b_total:
+        c = min(chunk, b_total - done)
+        perm = rng.permuted(np.broadcast_to(y, (c, big_n)), axis=1)
+        sums = np.bincount((offsets[:c] + g[None, :]).ravel(), weights=perm.ravel(), minlength=c * k).reshape(c, k)
+        stat = (sums**2) @ (1 / n)
+        hits += int(np.sum(stat >= obs_stat * (1 - 1e-12)))
+        done += c
+    p = (hits + 1) / (b_total + 1)
+    se = float(np.sqrt(p * (1 - p) / b_total))
+    classic = results.partition.row(results.main_term)
+    return OmnibusTest(
+        method="permutation F", statistic=classic.statistic, df_num=None, df_den=None, pvalue=float(p),
+        assumes="exchangeable observations under the null (same distribution in every level)",
+        details=(("permutations", b_total), ("seed", int(seed)), ("Monte-Carlo SE of p", se)),
+    )

@@ -1,0 +1,190 @@
+"""Outlier screens on the residuals of the fitted model. They flag rows; they never edit.
+
+Each screen returns the flagged row ids, the rule's threshold and the per-row score,
+so that the user can look at the rows and decide, with a reason, whether any should
+be left out. A flag is not a reason.
+
+* Studentized residuals with a Bonferroni outlier test: externally studentized
+  residuals ``t_i = e_i / sqrt(MSE_(i) (1 - h_i))`` on ``N - p - 1`` df, two-sided
+  p-values multiplied by ``N`` (Cook and Weisberg 1982, sec. 2.2; Weisberg 2005, 9.1).
+* Grubbs' two-sided test for one outlier among the residuals (Grubbs 1969;
+  NIST/SEMATECH e-Handbook 1.3.5.17.1): ``G = max |e_i - ebar| / s`` against
+  ``((N-1)/sqrt(N)) sqrt(t^2 / (N - 2 + t^2))`` with ``t`` the upper ``alpha/(2N)``
+  point of t on ``N - 2`` df. Not run for fewer than 7 residuals (the Handbook advises
+  against six or fewer).
+* Robust z rule: ``z_i = 0.6745 (e_i - median e) / MAD``, flagged when ``|z_i| > 3.5``
+  (Iglewicz and Hoaglin 1993).
+
+References
+----------
+Cook, R. D. and Weisberg, S. (1982). Residuals and Influence in Regression. Chapman & Hall.
+Grubbs, F. E. (1969). Procedures for detecting outlying observations in samples.
+Technometrics 11, 1-21.
+Iglewicz, B. and Hoaglin, D. C. (1993). How to Detect and Handle Outliers. ASQC.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
+
+import numpy as np
+import pandas as pd
+from scipy import special
+
+from .errors import ExplorerError
+from .tables import fmt, html_table
+
+if TYPE_CHECKING:
+    from .results import Results
+
+__all__ = [
+    "GRUBBS_MIN_N",
+    "OutlierScreen",
+    "bonferroni_outlier_test",
+    "grubbs_critical",
+    "grubbs_test",
+    "robust_z_screen",
+]
+
+#: Grubbs' test is not run on fewer residuals than this (NIST/SEMATECH e-Handbook 1.3.5.17.1).
+GRUBBS_MIN_N = 7
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class OutlierScreen:
+    """Rows a screen flags, the rule's threshold and the score of every kept row.
+
+    ``scores`` align with ``row_ids`` (all kept rows); ``flagged`` lists the ids whose
+    score passes the threshold. ``ran`` is False when the screen's guard stopped it
+    (see ``notes``).
+    """
+
+    method: str
+    rule: str
+    threshold: float | None
+    row_ids: np.ndarray
+    scores: np.ndarray
+    flagged: tuple[object, ...]
+    ran: bool = True
+    details: tuple[tuple[str, float | int | str | None], ...] = ()
+    notes: tuple[str, ...] = field(default=())
+
+    def to_frame(self) -> pd.DataFrame:
+        """Flagged rows with their scores (empty when nothing is flagged)."""
+        ids = list(self.flagged)
+        pos = {r: i for i, r in enumerate(self.row_ids.tolist())}
+        return pd.DataFrame({"row": ids, "score": [float(self.scores[pos[r]]) for r in ids]})
+
+    def _repr_html_(self) -> str:
+        cap = f"{self.method}: {self.rule} (threshold {fmt(self.threshold, 5)}); {len(self.flagged)} row(s) flagged"
+        return html_table(self.to_frame(), cap, self.notes)
+
+
+def _ro(a: np.ndarray) -> np.ndarray:
+    a = np.asarray(a).copy()
+    a.setflags(write=False)
+    return a
+
+
+def _flag(row_ids: np.ndarray, mask: np.ndarray, order_by: np.ndarray) -> tuple[object, ...]:
+    idx = np.flatnonzero(mask)
+    idx = idx[np.argsort(-np.abs(order_by[idx]), kind="stable")]
+    return tuple(row_ids[idx].tolist())
+
+
+def bonferroni_outlier_test(results: Results, *, alpha: float = 0.05) -> OutlierScreen:
+    """Externally studentized residuals; flag rows whose Bonferroni p-value is below ``alpha``.
+
+    The threshold is the ``|t|`` above which a row is flagged, ``t_(1 - alpha/(2N))``
+    on ``N - p - 1`` df (p = number of fitted means). Rows with leverage 1 (a level with
+    one observation) have no studentized residual (score NaN, never flagged).
+    """
+    if not 0 < alpha < 1:
+        raise ExplorerError(f"alpha must be between 0 and 1, not {alpha!r}")
+    fit = results.fit
+    e = np.asarray(fit.residuals, dtype=float)
+    h = np.asarray(fit.leverage, dtype=float)
+    n = len(e)
+    p_fit = n - results.df_resid
+    df = results.df_resid - 1
+    notes: list[str] = []
+    rule = f"|studentized residual| above the t quantile at alpha/(2N), N = {n}"
+    if df < 1 or not (results.ms_resid or 0) > 0:
+        return OutlierScreen(method="studentized residuals (Bonferroni)", rule=rule, threshold=None,
+                             row_ids=fit.row_ids, scores=_ro(np.full(n, np.nan)), flagged=(), ran=False,
+                             notes=("Not run: too few residual df or a zero residual mean square.",))
+    sse = results.ms_resid * results.df_resid
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r2 = e * e / (1 - h)
+        s2_i = (sse - r2) / df
+        t = np.where(h < 1, e / np.sqrt(s2_i * (1 - h)), np.nan)
+    if np.any(h >= 1):
+        notes.append("Rows alone in their level have leverage 1 and no studentized residual.")
+    crit = float(special.stdtrit(df, 1 - alpha / (2 * n)))
+    t_max = float(np.max(np.abs(np.nan_to_num(t))))
+    p_min = min(1.0, float(2 * n * special.stdtr(df, -t_max)))
+    mask = np.isfinite(t) & (np.abs(np.nan_to_num(t)) > crit)
+    return OutlierScreen(
+        method="studentized residuals (Bonferroni)", rule=rule, threshold=crit, row_ids=fit.row_ids,
+        scores=_ro(t), flagged=_flag(fit.row_ids, mask, np.nan_to_num(t)),
+        details=(("df", df), ("fitted means", p_fit), ("smallest Bonferroni p", p_min)),
+        notes=tuple(notes),
+    )
+
+
+def grubbs_critical(n: int, alpha: float = 0.05) -> float:
+    """Two-sided Grubbs critical value (NIST/SEMATECH e-Handbook 1.3.5.17.1)."""
+    if n < 3:
+        raise ExplorerError(f"Grubbs' critical value needs at least 3 observations, not {n}")
+    t = special.stdtrit(n - 2, 1 - alpha / (2 * n))
+    return float((n - 1) / np.sqrt(n) * np.sqrt(t * t / (n - 2 + t * t)))
+
+
+def grubbs_test(results: Results, *, alpha: float = 0.05) -> OutlierScreen:
+    """Grubbs' two-sided test for a single outlier among the residuals (one pass, not repeated).
+
+    Scores are ``|e_i - ebar| / s`` (s with N - 1 df). Only the most extreme row can be
+    flagged. The residuals of a k-level fit have N - k df, not N - 1; with few rows per
+    level the test is approximate.
+    """
+    fit = results.fit
+    e = np.asarray(fit.residuals, dtype=float)
+    n = len(e)
+    rule = "largest |residual - mean| / SD above the two-sided Grubbs critical value"
+    if n < GRUBBS_MIN_N:
+        return OutlierScreen(method="Grubbs (two-sided)", rule=rule, threshold=None, row_ids=fit.row_ids,
+                             scores=_ro(np.full(n, np.nan)), flagged=(), ran=False,
+                             notes=(f"Not run: {n} residuals; Grubbs' test needs at least {GRUBBS_MIN_N}.",))
+    sd = float(np.std(e, ddof=1))
+    if not sd > 0:
+        return OutlierScreen(method="Grubbs (two-sided)", rule=rule, threshold=None, row_ids=fit.row_ids,
+                             scores=_ro(np.full(n, np.nan)), flagged=(), ran=False,
+                             notes=("Not run: every residual is zero.",))
+    z = np.abs(e - e.mean()) / sd
+    crit = grubbs_critical(n, alpha)
+    top = int(np.argmax(z))
+    mask = np.zeros(n, dtype=bool)
+    mask[top] = z[top] > crit
+    return OutlierScreen(method="Grubbs (two-sided)", rule=rule, threshold=crit, row_ids=fit.row_ids,
+                         scores=_ro(z), flagged=_flag(fit.row_ids, mask, z),
+                         details=(("G", float(z[top])), ("alpha", alpha)))
+
+
+def robust_z_screen(results: Results, *, cutoff: float = 3.5) -> OutlierScreen:
+    """Modified z-scores of the residuals from the median and the MAD (Iglewicz and Hoaglin 1993)."""
+    if not cutoff > 0:
+        raise ExplorerError(f"cutoff must be positive, not {cutoff!r}")
+    fit = results.fit
+    e = np.asarray(fit.residuals, dtype=float)
+    med = float(np.median(e))
+    mad = float(np.median(np.abs(e - med)))
+    rule = "|0.6745 (residual - median) / MAD| above the cutoff"
+    if not mad > 0:
+        return OutlierScreen(method="robust z (median/MAD)", rule=rule, threshold=cutoff, row_ids=fit.row_ids,
+                             scores=_ro(np.full(len(e), np.nan)), flagged=(), ran=False,
+                             notes=("Not run: at least half the residuals are equal, so the MAD is zero.",))
+    z = 0.6745 * (e - med) / mad
+    return OutlierScreen(method="robust z (median/MAD)", rule=rule, threshold=cutoff, row_ids=fit.row_ids,
+                         scores=_ro(z), flagged=_flag(fit.row_ids, np.abs(z) > cutoff, z),
+                         details=(("median", med), ("MAD", mad)))
