@@ -21,7 +21,7 @@ DEMO_CELLS: tuple[tuple[str, str], ...] = (
 The data are **invented** (see `data/README.md`): 114 steel panels sprayed through four
 nozzles, film thickness in micrometres. Two readings look suspect (panels P1007 and
 P1071, rows 6 and 70), and nozzles N2 and N3 may come from one supplier. This notebook
-walks the whole job: load, explore, edit with reasons, test how fragile the decision is,
+walks the whole job: load, explore, find how fragile the decision is, edit with reasons,
 save, and hand off. Read the cautions in the README before leaving data out."""),
     ("code", """\
 import explorer as ex
@@ -31,30 +31,34 @@ study.results"""),
     ("markdown", """\
 ## Explore
 
-Click a point to leave it out (you will be asked for a reason), regroup levels, and watch
-the results move beside the unedited baseline. Edits made in code below show up here too."""),
+Click a point to pick it, leave it out with a reason, regroup levels, and watch the
+results move beside the unedited baseline. Edits made in code below show up here too."""),
     ("code", """\
 ex.Explorer(study)"""),
     ("markdown", """\
+## How fragile is the decision?
+
+Which panels, if left out, would flip it? Which regroupings of nozzles would? Each scan
+adds the alternatives it examined to the study's disclosure count."""),
+    ("code", """\
+from explorer.core.flip import flip_finder
+from explorer.core.regroup import regroup_scan
+
+flip_finder(study)"""),
+    ("code", """\
+regroup_scan(study, moves=False)"""),
+    ("markdown", """\
 ## Edit, with reasons
 
-The same edits in code. Each is logged with its reason and time; `study.baseline` keeps
-the unedited results."""),
+Leave out what the line log documents, and pool the two nozzles from one supplier. Each
+edit is logged with its reason and time; `study.baseline` keeps the unedited results, and
+the explorer above redraws."""),
     ("code", """\
 study.drop([6], reason="P1007: gauge slip, see the line log")
 study.drop([70], reason="P1071: recoated by mistake, see the rework sheet")
+study.merge_levels("nozzle", ["N2", "N3"], into="N2+N3", reason="N2 and N3 come from one supplier")
 print("baseline:", study.baseline.decision())
 print("current: ", study.results.decision())
-study.results"""),
-    ("markdown", """\
-## How fragile is the decision?
-
-Which single panels, and which regroupings of nozzles, would flip it? The scan counts the
-alternatives it examined; the count is shown with the results and in the report."""),
-    ("code", """\
-study.sensitivity()"""),
-    ("code", """\
-study.merge_levels("nozzle", ["N2", "N3"], into="N2+N3", reason="N2 and N3 come from one supplier")
 study.battery()"""),
     ("markdown", """\
 ## Save and hand off
