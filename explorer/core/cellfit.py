@@ -36,12 +36,19 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import linalg
 
-from .design import CellDesign, Term, cell_design, model_terms, sequential_order, term_name
+from .design import (
+    CellDesign,
+    Term,
+    cell_design,
+    model_terms,
+    sequential_order,
+    term_name,
+)
 from .errors import DesignError
 from .groupstats import GroupStats
 from .spec import ModelSpec
 
-__all__ = ["CellFit", "fit_cells", "SS_TYPES"]
+__all__ = ["SS_TYPES", "CellFit", "fit_cells"]
 
 SS_TYPES = ("I", "II", "III")
 

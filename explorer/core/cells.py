@@ -123,7 +123,7 @@ class CellTable:
     balanced: bool
 
     @classmethod
-    def from_stats(cls, layout: CellLayout, stats: GroupStats) -> "CellTable":
+    def from_stats(cls, layout: CellLayout, stats: GroupStats) -> CellTable:
         labels = tuple(
             tuple(layout.levels[j][k] for j, k in enumerate(row)) for row in layout.cell_levels.tolist()
         )

@@ -25,7 +25,7 @@ import numpy as np
 
 from .spec import ModelSpec
 
-__all__ = ["Term", "term_name", "model_terms", "sum_contrasts", "CellDesign", "cell_design"]
+__all__ = ["CellDesign", "Term", "cell_design", "model_terms", "sum_contrasts", "term_name"]
 
 Term = tuple[str, ...]
 

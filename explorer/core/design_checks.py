@@ -90,8 +90,8 @@ def _check_empty_cells(layout: CellLayout, spec: ModelSpec) -> list[str]:
             "(merge_levels), or restore left-out rows"
         )
     return [
-        f"Empty cells ({shown}): the additive model predicts them from the main effects; "
-        "its marginal means assume there is no interaction."
+        (f"Empty cells ({shown}): the additive model predicts them from the main effects; "
+        "its marginal means assume there is no interaction.")
     ]
 
 
@@ -113,12 +113,12 @@ def _check_replication(layout: CellLayout, cell_n: np.ndarray, spec: ModelSpec) 
         )
     if spec.blocks:
         return [
-            "One observation per cell: the residual is the block-by-treatment variation, assumed to be "
-            "random error (the usual randomized complete block assumption)."
+            ("One observation per cell: the residual is the block-by-treatment variation, assumed to be "
+            "random error (the usual randomized complete block assumption).")
         ]
     if len(spec.factors) > 1 and not spec.interactions:
-        return ["One observation per cell: the interaction cannot be tested; the additive model's residual "
-                "contains any interaction (assumed absent)."]
+        return [("One observation per cell: the interaction cannot be tested; the additive model's residual "
+                "contains any interaction (assumed absent).")]
     return ["One observation per cell: the highest-order interaction is not in the model and serves as the residual."]
 
 

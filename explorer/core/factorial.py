@@ -36,7 +36,7 @@ from .tables import AnovaTable, TermRow, fmt
 from .term_effects import term_effects
 from .view import DataView
 
-__all__ = ["fit_factorial", "factorial_from_cells", "factorial_tables", "level_stats_from_cells"]
+__all__ = ["factorial_from_cells", "factorial_tables", "fit_factorial", "level_stats_from_cells"]
 
 CODING = "sum-to-zero"
 
@@ -44,7 +44,7 @@ CODING = "sum-to-zero"
 def _zero_residual(fit: CellFit) -> bool:
     st = fit.stats
     scale = max(abs(st.offset), float(np.max(np.abs(st.mean))), 1e-300)
-    return fit.ss_resid <= fit.n * (8 * np.finfo(float).eps * scale) ** 2
+    return bool(fit.ss_resid <= fit.n * (8 * np.finfo(float).eps * scale) ** 2)
 
 
 def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:
@@ -76,13 +76,13 @@ def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:
 def _type_notes(tables: dict[str, AnovaTable], fit: CellFit, balanced: bool, alpha: float) -> list[str]:
     if balanced:
         return [
-            "Balanced design (every combination of levels has the same count): types I, II and III give the "
-            "same sums of squares."
+            ("Balanced design (every combination of levels has the same count): types I, II and III give the "
+            "same sums of squares.")
         ]
     counts = fit.stats.n
     notes = [
-        f"Unbalanced design: cell counts run from {int(counts.min())} to {int(counts.max())} over "
-        f"{fit.stats.k} cells (see results.cells); types I, II and III can differ."
+        (f"Unbalanced design: cell counts run from {int(counts.min())} to {int(counts.max())} over "
+        f"{fit.stats.k} cells (see results.cells); types I, II and III can differ.")
     ]
     for t in fit.terms:
         name = term_name(t)
@@ -148,8 +148,8 @@ def _blocking(table: AnovaTable, fit: CellFit, spec: ModelSpec, balanced: bool) 
     )
     if not balanced and eff.relative_efficiency is not None:
         eff = replace(eff, notes=eff.notes + (
-            f"The design is not a complete balanced block design; the efficiency uses the type {table.ss_type} "
-            "block sum of squares and is approximate.",
+            (f"The design is not a complete balanced block design; the efficiency uses the type {table.ss_type} "
+            "block sum of squares and is approximate."),
         ))
     return eff
 
