@@ -37,3 +37,19 @@ __all__ += [
     "welch_f", "OutlierScreen", "bonferroni_outlier_test", "grubbs_critical", "grubbs_test", "robust_z_screen",
     "PowerPlan", "f_test_power", "group_size_for_power", "power_plan", "srange_cdf", "srange_ppf", "srange_sf",
 ]
+
+# Multi-factor designs: crossed factors, interactions, additive blocks, Types I/II/III.
+from .blocking import BlockingEfficiency, blocking_efficiency
+from .cellfit import CellFit, fit_cells
+from .cells import CellLayout, CellTable, layout_cells
+from .design import model_terms, term_name
+from .design_checks import check_design
+from .factorial import factorial_from_cells, fit_factorial
+from .marginal_means import MarginalMeans, marginal_means
+from .term_effects import TermEffect, TermEffects, term_effects
+
+__all__ += [
+    "BlockingEfficiency", "blocking_efficiency", "CellFit", "fit_cells", "CellLayout", "CellTable", "layout_cells",
+    "model_terms", "term_name", "check_design", "factorial_from_cells", "fit_factorial", "MarginalMeans",
+    "marginal_means", "TermEffect", "TermEffects", "term_effects",
+]
