@@ -107,56 +107,51 @@ def _rows(rows: Any) -> tuple[RowId, ...]:
     return tuple(int(r) if isinstance(r, np.integer) else r for r in rows)
 
 
+@dataclass(frozen=True, kw_only=True)
+class _RowsEdit(Edit):
+    """Shared shape of the edits that set whether rows are kept."""
+
+    keep: ClassVar[bool]
+    verb: ClassVar[str]
+    rows: tuple[RowId, ...]
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "rows", _rows(self.rows))
+        if not self.rows:
+            raise EditError(f"{self.kind} needs at least one row id")
+
+    def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        pos = dataset.positions(self.rows)
+        unchanged = [dataset.row_id(int(p)) for p in pos if bool(view.kept[p]) == self.keep]
+        if unchanged and len(unchanged) == len(pos):
+            state = "in the analysis; nothing to restore" if self.keep else "already left out"
+            raise EditError(f"rows {preview(unchanged)} are {state}")
+        kept = view.kept.copy()
+        kept[pos] = self.keep
+        return view.replace(kept=_ro(kept))
+
+    def describe(self) -> str:
+        return f"{self.verb} row(s) {preview(list(self.rows))}"
+
+
 @register_edit
 @dataclass(frozen=True, kw_only=True)
-class DropRows(Edit):
+class DropRows(_RowsEdit):
     """Leave rows out of the analysis (they stay in the data and can be restored)."""
 
     kind: ClassVar[str] = "drop"
-    rows: tuple[RowId, ...]
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "rows", _rows(self.rows))
-        if not self.rows:
-            raise EditError("drop needs at least one row id")
-
-    def apply(self, view: DataView, dataset: Dataset) -> DataView:
-        pos = dataset.positions(self.rows)
-        already = [dataset.row_id(int(p)) for p in pos if not view.kept[p]]
-        if already and len(already) == len(pos):
-            raise EditError(f"rows {preview(already)} are already left out")
-        kept = view.kept.copy()
-        kept[pos] = False
-        return view.replace(kept=_ro(kept))
-
-    def describe(self) -> str:
-        return f"leave out row(s) {preview(list(self.rows))}"
+    keep: ClassVar[bool] = False
+    verb: ClassVar[str] = "leave out"
 
 
 @register_edit
 @dataclass(frozen=True, kw_only=True)
-class RestoreRows(Edit):
+class RestoreRows(_RowsEdit):
     """Bring left-out rows back into the analysis."""
 
     kind: ClassVar[str] = "restore"
-    rows: tuple[RowId, ...]
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "rows", _rows(self.rows))
-        if not self.rows:
-            raise EditError("restore needs at least one row id")
-
-    def apply(self, view: DataView, dataset: Dataset) -> DataView:
-        pos = dataset.positions(self.rows)
-        kept_already = [dataset.row_id(int(p)) for p in pos if view.kept[p]]
-        if kept_already and len(kept_already) == len(pos):
-            raise EditError(f"rows {preview(kept_already)} are not left out; nothing to restore")
-        kept = view.kept.copy()
-        kept[pos] = True
-        return view.replace(kept=_ro(kept))
-
-    def describe(self) -> str:
-        return f"restore row(s) {preview(list(self.rows))}"
+    keep: ClassVar[bool] = True
+    verb: ClassVar[str] = "restore"
 
 
 @register_edit

@@ -10,8 +10,8 @@ and prints the ratios. Run: python tests/benchmarks/bench_oneway.py [--max-n 1e6
 from __future__ import annotations
 
 import argparse
-import statistics
-import time
+import sys
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -21,14 +21,8 @@ from statsmodels.formula.api import ols
 
 import explorer as ex
 
-
-def _median_time(fn, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
+sys.path.insert(0, str(Path(__file__).parent))
+from bench_support import edit_and_recompute, median_time  # noqa: E402
 
 
 def run(max_n: float = 1e6) -> list[dict]:
@@ -37,17 +31,7 @@ def run(max_n: float = 1e6) -> list[dict]:
         rng = np.random.default_rng(0)
         df = pd.DataFrame({"g": rng.choice([f"L{i}" for i in range(8)], n), "y": rng.normal(50, 3, n)})
         study = ex.Study(df, "y", "g")
-        state = {"i": 0}
-
-        def ours():
-            # One edit per call: drop a row, and on the next call restore it.
-            i = state["i"]
-            if i % 2 == 0:
-                study.drop([i % 50], reason="bench")
-            else:
-                study.restore([(i - 1) % 50], reason="bench")
-            state["i"] += 1
-            return study.results
+        ours = edit_and_recompute(study)
 
         edited = df.drop(index=[0])
 
@@ -59,9 +43,9 @@ def run(max_n: float = 1e6) -> list[dict]:
 
         reps = 30 if n <= 1e4 else (10 if n <= 1e5 else 4)
         ours()  # warm: builds the row-id lookup once
-        t_ours = _median_time(ours, reps)
-        t_sm = _median_time(with_statsmodels, max(3, reps // 3))
-        t_sp = _median_time(with_scipy, reps)
+        t_ours = median_time(ours, reps)
+        t_sm = median_time(with_statsmodels, max(3, reps // 3))
+        t_sp = median_time(with_scipy, reps)
         rows.append({"n": n, "ours_ms": t_ours * 1e3, "statsmodels_ms": t_sm * 1e3, "scipy_ms": t_sp * 1e3,
                      "statsmodels/ours": t_sm / t_ours, "scipy/ours": t_sp / t_ours})
     return rows
