@@ -190,17 +190,37 @@ def _need(module: str, extra_name: str) -> None:
         raise CommandError(EXIT_NO_SERVER, f"{module} is not installed: pip install 'variance-explorer[{extra_name}]'")
 
 
+class _Stop(Exception):
+    """Raised by the SIGTERM handler so the server is stopped and temporary files removed."""
+
+
 def _run(cmd: list[str], dry_run: bool, cwd: Path) -> int:
+    """Print ``cmd``; unless ``dry_run``, run it until it ends, Ctrl-C or SIGTERM (passed on to it)."""
     import shlex
+    import signal
     import subprocess
 
     print(f"cd {shlex.quote(str(cwd))} && {shlex.join(cmd)}", flush=True)
     if dry_run:
         return EXIT_OK
+
+    def stop(signum: int, frame: object) -> None:
+        raise _Stop
+
+    previous = signal.signal(signal.SIGTERM, stop)
+    child = subprocess.Popen(cmd, cwd=cwd)
     try:
-        return subprocess.call(cmd, cwd=cwd)
-    except KeyboardInterrupt:
+        return child.wait()
+    except (KeyboardInterrupt, _Stop):
+        child.terminate()
+        try:
+            child.wait(timeout=20)
+        except subprocess.TimeoutExpired:
+            child.kill()
+            child.wait()
         return EXIT_OK
+    finally:
+        signal.signal(signal.SIGTERM, previous)
 
 
 def _demo(args: argparse.Namespace) -> int:

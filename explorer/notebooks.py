@@ -77,10 +77,9 @@ def app_cells(study_file: str | Path, data: str | Path) -> tuple[tuple[str, str]
     """Cells of the app page: load the saved study on its data and show the explorer."""
     return (
         ("code", f"""\
-import explorer as ex
+from explorer.app import app_page
 
-study = ex.Study.load({str(study_file)!r}, data={str(data)!r})
-ex.Explorer(study, save_to={str(study_file)!r})"""),
+app_page({str(study_file)!r}, {str(data)!r})"""),
     )
 
 

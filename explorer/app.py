@@ -1,0 +1,69 @@
+"""App mode: the explorer as a page for colleagues who do not write code.
+
+``variance-explorer app STUDY.json --data DATA`` serves a one-cell notebook with Voila on
+127.0.0.1; the cell calls :func:`app_page`, which loads the saved study on its data and
+shows the :class:`~explorer.widget.Explorer` with two buttons below it: save the edit
+log (to a new file beside the original, so the colleague's review never overwrites the
+sender's file) and write the offline report.
+"""
+
+from __future__ import annotations
+
+import html
+from pathlib import Path
+
+import ipywidgets as W
+
+from .core import ExplorerError, Study
+from .widget import Explorer
+
+__all__ = ["app_page", "review_paths"]
+
+
+def review_paths(study_file: str | Path) -> tuple[Path, Path]:
+    """Where the page saves the reviewed log and the report: beside the original study file."""
+    p = Path(study_file)
+    stem = p.name.removesuffix(".json").removesuffix(".study")
+    return p.with_name(f"{stem}-reviewed.study.json"), p.with_name(f"{stem}-reviewed-report.html")
+
+
+def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
+    """The app page: a title line, the explorer on the saved study, and save/report buttons."""
+    study = Study.load(study_file, data=data)
+    explorer = Explorer(study)
+    log_path, report_path = review_paths(study_file)
+    title = W.HTML(
+        f"<h2 style='margin:4px 0'>{html.escape(study.spec.response)} by {html.escape(', '.join(study.spec.factors))}</h2>"
+        f"<div class='vx-small'>Saved study <code>{html.escape(Path(study_file).name)}</code> on data "
+        f"<code>{html.escape(Path(data).name)}</code>: {len(study.edits)} edit(s) loaded. Pick points, write a "
+        "reason, edit; then save your review.</div>"
+    )
+    save = W.Button(description="Save the edit log", icon="save", layout=W.Layout(width="auto"))
+    save.add_class("vx-app-save")
+    report = W.Button(description="Write the report", icon="file", layout=W.Layout(width="auto"))
+    report.add_class("vx-app-report")
+    status = W.HTML()
+    status.add_class("vx-app-status")
+
+    def do_save(_: object) -> None:
+        try:
+            explorer.study.save(log_path)
+        except (OSError, ExplorerError) as exc:
+            status.value = f"<span class='vx-status-error'>Not saved: {html.escape(str(exc))}</span>"
+            return
+        status.value = f"<span class='vx-status-ok'>Saved {len(explorer.study.edits)} edit(s) to {html.escape(str(log_path))}</span>"
+
+    def do_report(_: object) -> None:
+        try:
+            explorer.study.report(report_path)
+        except (OSError, ExplorerError) as exc:
+            status.value = f"<span class='vx-status-error'>No report: {html.escape(str(exc))}</span>"
+            return
+        status.value = f"<span class='vx-status-ok'>Wrote the report to {html.escape(str(report_path))}</span>"
+
+    save.on_click(do_save)
+    report.on_click(do_report)
+    page = W.VBox([title, explorer, W.HBox([save, report, status])])
+    page.add_class("vx-app")
+    page.explorer = explorer  # type: ignore[attr-defined]
+    return page

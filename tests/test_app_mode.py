@@ -1,0 +1,116 @@
+"""App mode in a real browser: Voila on 127.0.0.1 serves the explorer for a saved study.
+
+The page shows the saved state, takes one edit through its controls, redraws the table,
+and saves the reviewed log. Drives Debian's chromium with Playwright (no browser download).
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import socket
+import subprocess
+import sys
+import time
+import urllib.error
+import urllib.request
+from pathlib import Path
+
+import pytest
+
+import explorer as ex
+from explorer.core.tables import fmt
+from handoff_support import CHROME_ARGS, chromium_path
+
+pytestmark = pytest.mark.browser
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "data" / "coating_thickness.csv"
+REASON_6 = "P1007 gauge slip, see the line log"
+REASON_70 = "P1071 recoated by mistake"
+
+
+def _free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+@pytest.fixture(scope="module")
+def served(tmp_path_factory):
+    pytest.importorskip("voila")
+    if chromium_path() is None:
+        pytest.skip("chromium is not installed (apt-get install chromium)")
+    root = tmp_path_factory.mktemp("app")
+    study = ex.Study(DEMO, response="thickness_um", factors="nozzle")
+    study.drop([6], reason=REASON_6)
+    study.drop([70], reason=REASON_70)
+    saved = study.save(root / "coating.study.json")
+    port = _free_port()
+    log = open(root / "voila.log", "w")
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "explorer", "app", str(saved), "--data", str(DEMO), "--no-browser", "--port", str(port)],
+        env={**os.environ, "HOME": str(root), "JUPYTER_PLATFORM_DIRS": "1"}, cwd=root,
+        stdout=log, stderr=subprocess.STDOUT, start_new_session=True)  # own group: voila is its child
+    base = f"http://127.0.0.1:{port}"
+    deadline = time.time() + 90
+    while True:
+        try:
+            urllib.request.urlopen(f"{base}/voila/static/no-such-file", timeout=2)
+            break
+        except urllib.error.HTTPError:
+            break  # the server answers
+        except OSError:
+            if proc.poll() is not None or time.time() > deadline:
+                os.killpg(proc.pid, signal.SIGKILL)
+                raise RuntimeError((root / "voila.log").read_text())
+            time.sleep(0.3)
+    yield base, saved, study
+    proc.terminate()  # the command passes SIGTERM on to Voila and removes its page
+    try:
+        proc.wait(timeout=30)
+    except subprocess.TimeoutExpired:
+        os.killpg(proc.pid, signal.SIGKILL)
+        proc.wait()
+
+
+def test_app_shows_saved_state_takes_an_edit_and_saves(served, tmp_path):
+    from playwright.sync_api import expect, sync_playwright
+
+    expect.set_options(timeout=90_000)
+    base, saved, study = served
+    restored = ex.Study.load(saved, DEMO)
+    restored.restore([70], reason="")
+    f_saved, f_after = fmt(study.results.statistic()), fmt(restored.results.statistic())
+    assert f_saved != f_after
+    with sync_playwright() as p:
+        ctx = p.chromium.launch_persistent_context(str(tmp_path / "profile"), executable_path=chromium_path(),
+                                                   args=CHROME_ARGS, headless=True,
+                                                   viewport={"width": 1400, "height": 1000})
+        ctx.route("**/*", lambda r: r.continue_() if r.request.url.startswith(
+            ("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:")) else r.abort())  # loopback only
+        page = ctx.pages[0] if ctx.pages else ctx.new_page()
+        page.set_default_timeout(90_000)
+        page.goto(base)
+        header = page.locator(".vx-header")
+        table = page.locator(".vx-partition").first
+        # The saved state: two rows left out, with their reasons, and the current F.
+        expect(header).to_contain_text("112 rows in analysis, 2 left out")
+        expect(table).to_contain_text(f_saved)
+        left_out = page.locator(".vx-left-out select")
+        expect(left_out.locator("option")).to_have_count(2)
+        expect(left_out).to_contain_text(REASON_70)
+        # One edit through the page: restore row 70 from the list of rows left out.
+        left_out.select_option(label=f"row 70: {REASON_70}")
+        page.get_by_role("button", name="Restore chosen").click()
+        expect(header).to_contain_text("113 rows in analysis, 1 left out")
+        expect(table).to_contain_text(f_after)
+        # The reviewed log is saved beside the original and replays to the same state.
+        page.get_by_role("button", name="Save the edit log").click()
+        expect(page.locator(".vx-app-status")).to_contain_text("Saved 3 edit(s)")
+        page.screenshot(path=str(tmp_path / "app.png"), full_page=True)
+        ctx.close()
+    reviewed = saved.with_name("coating-reviewed.study.json")
+    again = ex.Study.load(reviewed, DEMO)
+    assert again.results.partition == restored.results.partition
+    assert [e.reason for e in again.edits][:2] == [REASON_6, REASON_70]
