@@ -418,3 +418,29 @@ def test_results_display_and_frames():
     assert r.partition.coding == "sum-to-zero" and r.partition.ss_type == "II"
     assert r.compare_means().to_frame().shape[0] == 3
     assert r.main_term == "material"
+
+
+# --------------------------------------------------------------------------- degenerate and hard data
+def test_zero_residual_gives_undefined_tests_not_nan():
+    """Every observation equal to its cell mean: F and p undefined (None) with a note; no warnings, no NaN."""
+    frame = pd.DataFrame([(a, b) for a in "xyz" for b in "pq" for _ in range(2)], columns=["fa", "fb"])
+    frame["y"] = frame.fa.map({"x": 1.0, "y": 2.0, "z": 4.0}) + frame.fb.map({"p": 0.0, "q": 0.5})
+    r = ex.Study(frame, "y", ["fa", "fb"]).results
+    assert r.partition.row("fa").statistic is None and r.partition.row("fa").pvalue is None
+    assert any("F is undefined" in n for n in r.partition.notes)
+    assert r.term_effects is not None and r.term_effects["fa"].partial_omega_squared is None
+    np.testing.assert_allclose(r.marginal_means["fa"].estimate, [1.25, 2.25, 4.25], rtol=1e-12)
+
+
+def test_shift_invariance_with_large_offset():
+    """Sums of squares are invariant to adding a constant (definition); statsmodels anova_lm(typ=2) on the
+    unshifted data as the reference, with a 1e8 offset and unit-scale effects. rtol 1e-7: adding 1e8 in
+    float64 rounds each input by up to 7.5e-9, which bounds the agreement whatever the algorithm."""
+    rng = np.random.default_rng(9)
+    frame = pd.DataFrame({"fa": rng.choice(["a", "b", "c"], 90), "fb": rng.choice(["x", "y", "z"], 90)})
+    frame["y"] = rng.normal(size=90) + (frame.fa == "b") * 0.5
+    shifted = frame.assign(y=frame["y"] + 1e8)
+    r = ex.Study(shifted, "y", ["fa", "fb"]).results
+    ref = anova_lm(ols("y ~ C(fa) * C(fb)", frame).fit(), typ=2)
+    for name, key in (("fa", "C(fa)"), ("fb", "C(fb)"), ("fa × fb", "C(fa):C(fb)"), ("residual", "Residual")):
+        np.testing.assert_allclose(r.partition.row(name).sum_sq, ref.loc[key, "sum_sq"], rtol=1e-7)
