@@ -271,3 +271,17 @@ def test_bad_saved_files(df, tmp_path):
     (tmp_path / "y.json").write_text('{"format": "something else"}')
     with pytest.raises(ex.ReplayError, match="not a saved study"):
         ex.Study.load(tmp_path / "y.json", df)
+
+
+def test_id_column_gives_row_ids_and_survives_save_load(tmp_path):
+    d = pd.DataFrame({"panel": ["P1", "P2", "P3", "P4", "P5", "P6"], "g": list("aabbcc"), "y": [1.0, 2, 3, 5, 4, 6]})
+    s = ex.Study(d, "y", "g", id_column="panel")
+    s.drop("P3", reason="bubble")
+    assert s.dropped == ("P3",)
+    t = ex.Study.load(s.save(tmp_path / "s.json"), d)
+    assert t.dropped == ("P3",) and t.dataset.id_column == "panel"
+    assert "id_column='panel'" in s.to_code()
+    with pytest.raises(ex.DataError, match="repeats ids 'P1'"):
+        ex.Study(d.assign(panel=["P1", "P1", "P3", "P4", "P5", "P6"]), "y", "g", id_column="panel")
+    with pytest.raises(ex.ColumnError, match="Did you mean 'panel'"):
+        ex.Study(d, "y", "g", id_column="Panel")

@@ -78,7 +78,8 @@ class Dataset:
     y : response of the usable rows minus ``offset`` (read-only float64).
     codes, levels : per factor, integer codes of the usable rows and the level names.
     set_aside : rows left out at load, each with its reason.
-    id_source : ``"index"`` when the table's index gave the ids, ``"position"`` otherwise.
+    id_source : ``"index"`` when the table's index gave the ids, ``"column 'x'"`` when an id
+        column did, ``"position"`` otherwise.
     """
 
     table: pd.DataFrame
@@ -96,6 +97,7 @@ class Dataset:
     fingerprint: str
     row_digests: np.ndarray
     all_row_ids: np.ndarray
+    id_column: str | None = None
     notes: tuple[str, ...] = field(default=())
     _positions: dict = field(default_factory=dict, repr=False)
 
@@ -140,6 +142,8 @@ class Dataset:
     def describe_ids(self) -> str:
         if self.id_source == "index":
             return "row ids are the table's index labels"
+        if self.id_source.startswith("column"):
+            return f"row ids are the values of {self.id_source}"
         return "row ids are row positions 0..n-1 (the table's index was not unique or not usable as ids)"
 
 
@@ -149,6 +153,27 @@ def _py(v: object) -> RowId:
     if isinstance(v, (int, str)):
         return v
     return str(v)
+
+
+def _id_index(frame: pd.DataFrame, id_column: str, response: str, factors: Sequence[str]) -> pd.Index:
+    """The id column as an index; clear errors when it is missing, repeated or incomplete."""
+    if id_column not in frame.columns:
+        near = closest_names(id_column, [str(c) for c in frame.columns])
+        hint = f" Did you mean {near[0]!r}?" if near else ""
+        raise ColumnError(f"id column {id_column!r} is not in the table.{hint}")
+    if id_column == response or id_column in factors:
+        raise ColumnError(f"column {id_column!r} cannot be both the row id and the response or a factor")
+    col = frame[id_column]
+    if col.isna().any():
+        rows = [int(i) for i in np.flatnonzero(col.isna().to_numpy())]
+        raise DataError(f"id column {id_column!r} is empty in rows (positions) {preview(rows)}; every row needs an id")
+    dup = col[col.duplicated(keep=False)]
+    if len(dup):
+        raise DataError(
+            f"id column {id_column!r} repeats ids {preview(sorted({str(v) for v in dup}))}; ids must be unique "
+            "(leave id_column out to use row positions)"
+        )
+    return pd.Index(col.to_numpy(), name=None)
 
 
 def _resolve_columns(frame: pd.DataFrame, response: str, factors: Sequence[str]) -> None:
@@ -168,8 +193,13 @@ def build_dataset(
     data: pd.DataFrame | str | Path,
     response: str,
     factors: Sequence[str],
+    id_column: str | None = None,
 ) -> Dataset:
-    """Copy and validate the table; see :class:`Dataset`."""
+    """Copy and validate the table; see :class:`Dataset`.
+
+    ``id_column`` names a column of unique row labels (panel, sample or plot ids) to use
+    as row ids instead of the index.
+    """
     texts: dict[str, pd.Series] = {}
     if isinstance(data, (str, Path)):
         source = str(Path(data).name)
@@ -185,10 +215,16 @@ def build_dataset(
     _resolve_columns(frame, response, factors)
     notes: list[str] = []
 
-    # Row ids: the index when it is unique and made of ints or strings.
+    # Row ids: a named id column, else the index when it is unique and made of ints or strings.
+    if id_column is not None:
+        frame = frame.set_index(_id_index(frame, id_column, response, factors), drop=False)
     idx = frame.index
     usable_index = idx.is_unique and (pd.api.types.is_integer_dtype(idx.dtype) or all(isinstance(v, str) for v in idx))
-    if usable_index:
+    if id_column is not None:
+        ids = np.asarray(idx, dtype=np.int64) if pd.api.types.is_integer_dtype(idx.dtype) else np.asarray(
+            [str(v) for v in idx], dtype=object)
+        id_source = f"column {id_column!r}"
+    elif usable_index:
         ids = np.asarray([_py(v) for v in idx], dtype=object) if not pd.api.types.is_integer_dtype(idx.dtype) else np.asarray(idx, dtype=np.int64)
         id_source = "index"
     else:
@@ -285,6 +321,7 @@ def build_dataset(
         fingerprint=fingerprint,
         row_digests=(hashed & 0xFFFFFFFF).astype(np.uint32),
         all_row_ids=ids,
+        id_column=id_column,
         notes=tuple(notes),
     )
 

@@ -35,6 +35,7 @@ def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position
             "fingerprint": dataset.fingerprint,
             "rows": int(len(dataset.table)),
             "id_source": dataset.id_source,
+            "id_column": dataset.id_column,
             "row_check": encode_digests(dataset.all_row_ids, dataset.row_digests),
         },
         "edits": [e.to_dict() for e in edits],

@@ -73,6 +73,8 @@ class Study:
     interactions : cross the treatment factors (full factorial) when True.
     ss_type : 'I', 'II' or 'III' sums of squares for multi-factor designs.
     alpha : level at which decisions are read.
+    id_column : column of unique row labels (panel, sample or plot ids) used as row ids
+        in edits, charts and saved files; by default the index (or row positions).
     """
 
     def __init__(
@@ -85,12 +87,13 @@ class Study:
         interactions: bool = True,
         ss_type: str = "II",
         alpha: float = 0.05,
+        id_column: str | None = None,
     ) -> None:
         factors_t = (factors,) if isinstance(factors, str) else tuple(factors)
         blocks_t = (blocks,) if isinstance(blocks, str) else tuple(blocks)
         spec = ModelSpec(response=response, factors=factors_t, blocks=blocks_t,
                          interactions=interactions, ss_type=ss_type, alpha=alpha)  # type: ignore[arg-type]
-        self._init(build_dataset(data, response, spec.columns), spec)
+        self._init(build_dataset(data, response, spec.columns, id_column), spec)
         self.data_source = data if isinstance(data, (str, Path)) else None
 
     def _init(self, dataset: Dataset, spec: ModelSpec) -> None:
@@ -264,7 +267,7 @@ class Study:
     @classmethod
     def from_dict(cls, doc: dict[str, Any], data: pd.DataFrame | str | Path, *, allow_mismatch: bool = False) -> "Study":
         spec = ModelSpec.from_dict(doc["spec"])
-        dataset = build_dataset(data, spec.response, spec.columns)
+        dataset = build_dataset(data, spec.response, spec.columns, doc["data"].get("id_column"))
         problem = describe_mismatch(doc, dataset)
         if problem and not allow_mismatch:
             raise ReplayError(problem + ". Pass allow_mismatch=True to replay anyway (edits that no longer apply fail).")

@@ -60,6 +60,8 @@ def _spec_args(study: "Study") -> str:
         args.append(f"ss_type={spec.ss_type!r}")
     if spec.alpha != 0.05:
         args.append(f"alpha={spec.alpha!r}")
+    if study.dataset.id_column is not None:
+        args.append(f"id_column={study.dataset.id_column!r}")
     return ", ".join(args)
 
 
