@@ -247,6 +247,8 @@ def test_fitted_residuals_leverage_match_statsmodels():
     r = ex.Study(frame, "y", ["fa", "fb"]).results
     model = ols("y ~ C(fa) * C(fb)", frame).fit()
     np.testing.assert_allclose(r.fit.fitted, model.fittedvalues.to_numpy(), rtol=1e-9)
+    assert r.cells is not None and r.cells.fitted is not None  # full factorial: fitted cell means = raw means
+    np.testing.assert_allclose(r.cells.fitted, r.cells.mean, rtol=1e-12)
     np.testing.assert_allclose(r.fit.residuals, model.resid.to_numpy(), rtol=1e-7, atol=1e-12)
     np.testing.assert_allclose(r.fit.leverage, OLSInfluence(model).hat_matrix_diag, rtol=1e-9)
     assert r.fit.leverage.sum() == pytest.approx(6)

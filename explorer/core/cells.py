@@ -111,9 +111,11 @@ def layout_cells(
 
 @dataclass(frozen=True, kw_only=True, eq=False)
 class CellTable:
-    """Counts and raw means of the observed cells (original response scale).
+    """Counts, raw means and model-fitted means of the observed cells (original scale).
 
     ``balanced`` is True when every combination of levels occurs with the same count.
+    ``fitted`` (when given) are the model's cell means: equal to the raw means under the
+    full factorial, smoothed towards additivity when interactions are left out.
     """
 
     columns: tuple[str, ...]
@@ -121,20 +123,24 @@ class CellTable:
     n: np.ndarray
     mean: np.ndarray
     balanced: bool
+    fitted: np.ndarray | None = None
 
     @classmethod
-    def from_stats(cls, layout: CellLayout, stats: GroupStats) -> CellTable:
+    def from_stats(cls, layout: CellLayout, stats: GroupStats, fitted: np.ndarray | None = None) -> CellTable:
         labels = tuple(
             tuple(layout.levels[j][k] for j, k in enumerate(row)) for row in layout.cell_levels.tolist()
         )
         full = layout.n_cells == int(np.prod(layout.n_levels))
         balanced = bool(full and np.all(stats.n == stats.n[0]))
-        return cls(columns=layout.columns, labels=labels, n=stats.n, mean=stats.original_means, balanced=balanced)
+        return cls(columns=layout.columns, labels=labels, n=stats.n, mean=stats.original_means, balanced=balanced,
+                   fitted=None if fitted is None else fitted + stats.offset)
 
     def to_frame(self) -> pd.DataFrame:
         frame = pd.DataFrame(list(self.labels), columns=list(self.columns))
         frame["n"] = self.n
         frame["mean"] = self.mean
+        if self.fitted is not None:
+            frame["fitted mean"] = self.fitted
         return frame
 
     def counts(self, rows: str, cols: str) -> pd.DataFrame:
@@ -142,5 +148,5 @@ class CellTable:
         return self.to_frame().pivot_table(index=rows, columns=cols, values="n", aggfunc="sum", fill_value=0, sort=False)
 
     def _repr_html_(self) -> str:
-        caption = "Cells: " + ("balanced" if self.balanced else "unbalanced") + " (count and raw mean of each)"
+        caption = "Cells: " + ("balanced" if self.balanced else "unbalanced") + " (count, raw and fitted mean of each)"
         return html_table(self.to_frame(), caption)

@@ -208,7 +208,7 @@ def factorial_from_cells(
     """
     notes = list(check_design(layout, cells.n, spec, dataset_notes))
     fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec)
-    cell_table = CellTable.from_stats(layout, cells)
+    cell_table = CellTable.from_stats(layout, cells, fit.cell_fitted)
     tables, type_notes = factorial_tables(fit, spec, cell_table.balanced)
     notes += type_notes
     table = tables[spec.ss_type]
