@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["GroupStats", "group_stats"]
+__all__ = ["GroupStats", "group_stats", "pool_groups"]
 
 
 def _readonly(a: np.ndarray) -> np.ndarray:
@@ -135,3 +135,27 @@ def group_stats(y: np.ndarray, codes: np.ndarray, labels: tuple[str, ...], offse
     mean = mean + corr
     m2 = np.maximum(r2 - rs * corr, 0.0)
     return GroupStats(labels=tuple(labels), n=_readonly(n), mean=_readonly(mean), m2=_readonly(m2), offset=offset)
+
+
+def pool_groups(
+    n: np.ndarray, mean: np.ndarray, m2: np.ndarray, codes: np.ndarray, labels: tuple[str, ...], offset: float = 0.0
+) -> GroupStats:
+    """Pool partial statistics (n, mean, centred SS) into ``len(labels)`` groups by ``codes``.
+
+    The k-way form of the parallel-merge formula of Chan, Golub and LeVeque (1983):
+    ``mean = sum n_i mean_i / N`` (made exact by one correction step) and
+    ``m2 = sum m2_i + sum n_i (mean_i - mean)^2``. Partials can be cells, row batches
+    or partitions of a cluster; groups without partials get n = 0.
+    """
+    k = len(labels)
+    codes = np.asarray(codes, dtype=np.int64)
+    nf = np.asarray(n, dtype=np.float64)
+    mean = np.asarray(mean, dtype=np.float64)
+    tot = np.bincount(codes, weights=nf, minlength=k)
+    safe = np.maximum(tot, 1.0)
+    pooled = np.bincount(codes, weights=nf * mean, minlength=k) / safe
+    pooled = pooled + np.bincount(codes, weights=nf * (mean - pooled[codes]), minlength=k) / safe
+    dev = mean - pooled[codes]
+    m2_p = np.bincount(codes, weights=np.asarray(m2, dtype=np.float64) + nf * dev * dev, minlength=k)
+    return GroupStats(labels=tuple(labels), n=_readonly(np.rint(tot).astype(np.int64)), mean=_readonly(pooled),
+                      m2=_readonly(m2_p), offset=offset)

@@ -1,0 +1,117 @@
+"""What a database engine hands back: per-"atom" counts, means and centred sums of squares.
+
+An atom is one combination of the raw values of the factor columns (and, per factor,
+the index of the latest row-move predicate that caught the rows, 0 for none). Atoms
+are the finest grouping any edit can need: merging, renaming or setting aside levels
+and cells only pools or removes atoms, which is exact arithmetic on their statistics
+(:func:`explorer.core.groupstats.pool_groups`), so only predicate edits go back to the
+engine.
+
+The engines compute each atom's statistics with the corrected two-pass algorithm
+(Chan, Golub and LeVeque 1983, eq. 1.7) on the response minus an exact offset: a
+first pass for the means, a second for the sum and the sum of squares of the
+deviations from them. :func:`finish_two_pass` applies the correction.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from decimal import Decimal
+
+import numpy as np
+
+from ..core.dataset import _label, _natural_key
+from ..core.errors import DataError
+
+__all__ = ["MOVE_PREFIX", "AtomTable", "Prepared", "finish_two_pass", "level_order"]
+
+#: Raw key of rows caught by row-move predicate k of a factor: MOVE_PREFIX + str(k).
+MOVE_PREFIX = "\x00move:"
+
+
+@dataclass(frozen=True, kw_only=True)
+class Prepared:
+    """A source checked for one response and factor list, with the response's exact offset.
+
+    ``decimal_scale`` is set when the response is read as an exact decimal (DECIMAL
+    columns, or plain decimal text in CSV files); the engine then subtracts the offset
+    in decimal arithmetic and rounds once to float64.
+    """
+
+    response: str
+    factors: tuple[str, ...]
+    offset: float
+    offset_text: str
+    decimal_scale: int | None
+    numeric_factors: tuple[str, ...]
+    rows_total: int
+    rows_set_aside: int
+    set_aside_detail: tuple[str, ...] = ()
+    notes: tuple[str, ...] = field(default=())
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class AtomTable:
+    """Per-atom statistics on the shifted scale (``mean + offset`` is the response mean).
+
+    ``raw[j]`` holds the raw value of factor ``j`` for each atom; ``move`` is an
+    (atoms x factors) array of row-move indices (0: not moved).
+    """
+
+    factors: tuple[str, ...]
+    raw: tuple[tuple[object, ...], ...]
+    move: np.ndarray
+    n: np.ndarray
+    mean: np.ndarray
+    m2: np.ndarray
+    offset: float
+
+    @property
+    def size(self) -> int:
+        return int(self.n.size)
+
+    @property
+    def n_total(self) -> int:
+        return int(self.n.sum())
+
+    def keys(self, j: int) -> list[str]:
+        """Raw key of each atom for factor ``j``: its level label, or the move key."""
+        return [MOVE_PREFIX + str(int(m)) if m else _label(v) for v, m in zip(self.raw[j], self.move[:, j])]
+
+
+def finish_two_pass(n: np.ndarray, mean1: np.ndarray, rs: np.ndarray, r2: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Corrected two-pass finish: mean and centred SS from pass-one means and pass-two sums.
+
+    ``rs`` and ``r2`` are the sums of ``y - mean1`` and ``(y - mean1)^2`` per atom
+    (Chan, Golub and LeVeque 1983, eq. 1.7).
+    """
+    nf = np.maximum(np.asarray(n, dtype=np.float64), 1.0)
+    corr = np.asarray(rs, dtype=np.float64) / nf
+    mean = np.asarray(mean1, dtype=np.float64) + corr
+    m2 = np.maximum(np.asarray(r2, dtype=np.float64) - np.asarray(rs, dtype=np.float64) * corr, 0.0)
+    return mean, m2
+
+
+def level_order(values: Sequence[object], numeric: bool) -> tuple[str, ...]:
+    """Level labels in display order: numeric values by value, text in natural order (as row studies do)."""
+    labels: dict[str, object] = {}
+    for v in values:
+        labels.setdefault(_label(v), v)
+    if numeric:
+        return tuple(sorted(labels, key=lambda s: float(labels[s])))  # type: ignore[arg-type]
+    return tuple(sorted(labels, key=_natural_key))
+
+
+def choose_offset(value: object) -> tuple[float, str, Decimal | float]:
+    """The offset rule of row studies: a data value near the median, 0 when it is below 1 in size."""
+    if value is None:
+        raise DataError("the response has no usable values (every row has a missing response or factor value)")
+    if isinstance(value, Decimal):
+        if abs(value) < 1:
+            return 0.0, "0", Decimal(0)
+        return float(value), str(value), value
+    f = float(value)  # type: ignore[arg-type]
+    if not np.isfinite(f) or abs(f) < 1.0:
+        return 0.0, "0", 0.0
+    return f, repr(f), f

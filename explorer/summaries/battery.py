@@ -1,0 +1,67 @@
+"""The one-way battery on a summary-backed study: exact parts from summaries, row parts from the sample.
+
+Everything the battery computes from level counts, means and variances (classic F,
+Welch, Brown-Forsythe, Bartlett, Tukey-Kramer, Games-Howell, pairwise t, Dunnett,
+letters, effect sizes, power) is taken from the exact summary results. The parts that
+read rows (Kruskal-Wallis and the permutation F, Levene's spread test, the normality
+check of the residuals, the outlier screens) run on the seeded sample of rows, and the
+battery's notes say so.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any
+
+from ..core.assumptions import bartlett, recommend
+from ..core.battery import Battery, run_battery
+from ..core.comparisons import dunnett, games_howell, pairwise_t, tukey
+from ..core.effect_sizes import effect_sizes
+from ..core.errors import ExplorerError
+from ..core.letters import compact_letters
+from ..core.omnibus import brown_forsythe_f, classic_f, welch_f
+from ..core.power import power_plan
+
+__all__ = ["summary_battery"]
+
+
+def summary_battery(study: Any, **options: Any) -> Battery:
+    """:func:`explorer.core.battery.run_battery` for a :class:`~explorer.summaries.SummaryStudy`.
+
+    Takes the same options; see the module docstring for which parts are exact.
+    """
+    sample = study.sample_results()
+    part = run_battery(sample, **options)
+    full = study.results
+    opts = dict(part.options)
+    a, conf = part.alpha, float(opts["confidence"])
+    tk = tukey(full, confidence=conf)
+    gh = games_howell(full, confidence=conf)
+    pt = pairwise_t(full, adjust=opts["pairwise_adjust"], confidence=conf)  # type: ignore[arg-type]
+    source = {"tukey": tk, "games-howell": gh, "pairwise-t": pt}[str(opts["letters_from"])]
+    control = opts["control"]
+    notes = [n for n in part.notes if not n.startswith(("No effect sizes", "No power", "Group sizes"))]
+    try:
+        sizes = effect_sizes(full, confidence=conf)
+    except ExplorerError as exc:
+        sizes = None
+        notes.append(f"No effect sizes: {exc}.")
+    try:
+        plan = power_plan(full, effect_f=opts["effect_f"], alpha=a, target_power=float(opts["target_power"]))  # type: ignore[arg-type]
+    except ExplorerError as exc:
+        plan = None
+        notes.append(f"No power: {exc}.")
+    notes.append(
+        f"Exact from all {full.n_used} rows: classic F, Welch, Brown-Forsythe, Bartlett, comparisons, letters, effect "
+        f"sizes and power. From a seeded sample of {sample.n_used} rows (seed {study.seed}): Kruskal-Wallis, "
+        "permutation F, Levene, the normality check and the outlier screens."
+    )
+    return dataclasses.replace(
+        part,
+        classic=classic_f(full), welch=welch_f(full), brown_forsythe=brown_forsythe_f(full), bartlett=bartlett(full),
+        recommendation=recommend(full, part.levene, part.shapiro, alpha=a),
+        tukey=tk, games_howell=gh, pairwise_t=pt,
+        dunnett=dunnett(full, control, alternative=opts["dunnett_alternative"], confidence=conf)  # type: ignore[arg-type]
+        if control is not None else None,
+        letters=compact_letters(source, alpha=a), effect_sizes=sizes, power=plan, notes=tuple(notes),
+    )

@@ -1,0 +1,471 @@
+"""A study built on cell summaries computed by the engine that holds the rows.
+
+:class:`SummaryStudy` shares the edit log, undo/redo, events and disclosure of
+:class:`explorer.core.Study`, and returns the same :class:`~explorer.core.Results`.
+The partition, F tests, level tables, marginal means and every test that needs only
+group or cell statistics (Welch, Brown-Forsythe, Tukey-Kramer, Games-Howell, Dunnett,
+effect sizes, Types I/II/III) are exact: they come from per-cell counts, means and
+centred sums of squares of all rows. Per-row quantities (fitted values, residuals,
+leverage; the residual charts and rank-based tests drawn from them) come from a seeded
+sample of the rows drawn by the engine, and the results say so in their notes.
+
+``study.dataset`` and ``study.view`` describe that sample (an ordinary row dataset),
+so charts built for row studies draw the sample unchanged.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from ..core.analysis import analyze
+from ..core.cells import layout_cells
+from ..core.dataset import Dataset, _label, build_dataset
+from ..core.edits import Edit, MergeLevels, RenameLevel, edit_from_dict
+from ..core.errors import DesignError, EditError, ReplayError
+from ..core.factorial import factorial_from_cells
+from ..core.fitrows import RowSet
+from ..core.groupstats import pool_groups
+from ..core.oneway import oneway_from_stats
+from ..core.results import Results
+from ..core.spec import ModelSpec
+from ..core.study import Study, StudyEvent
+from ..core.view import DataView
+from .atoms import MOVE_PREFIX, AtomTable, level_order
+from .edits import (
+    DropCell,
+    DropLevel,
+    DropWhere,
+    MoveWhere,
+    RestoreCell,
+    RestoreLevel,
+    RestoreWhere,
+)
+from .view import SummaryData, SummaryView
+
+__all__ = ["SummaryStudy", "as_source"]
+
+FORMAT = "variance-explorer/summary-study"
+SCHEMA = 1
+
+
+def as_source(data: Any, **options: Any) -> Any:
+    """A summary source for ``data``: a source object as is, a Spark DataFrame, or files/DataFrame for DuckDB."""
+    if hasattr(data, "atoms") and hasattr(data, "prepare"):
+        return data
+    if type(data).__module__.startswith("pyspark"):
+        from .engine_spark import SparkSource
+
+        return SparkSource(data, **options)
+    from .engine_duckdb import DuckDBSource
+
+    return DuckDBSource(data, **options)
+
+
+class SummaryStudy(Study):
+    """An analysis of variance on data too large for memory, edited through cell summaries.
+
+    Parameters
+    ----------
+    source : Parquet/CSV path(s) or a pandas DataFrame (read by DuckDB), a Spark
+        DataFrame (summarised by Spark), or a source object from this package.
+    response, factors, blocks, interactions, ss_type, alpha : as for :class:`~explorer.core.Study`.
+    sample_size : rows drawn (seeded, by the engine) for residuals and charts; 0 for none.
+    seed : the sample's seed.
+    """
+
+    def __init__(
+        self,
+        source: Any,
+        response: str,
+        factors: str | Sequence[str],
+        *,
+        blocks: str | Sequence[str] = (),
+        interactions: bool = True,
+        ss_type: str = "II",
+        alpha: float = 0.05,
+        sample_size: int = 2000,
+        seed: int = 0,
+    ) -> None:
+        factors_t = (factors,) if isinstance(factors, str) else tuple(factors)
+        blocks_t = (blocks,) if isinstance(blocks, str) else tuple(blocks)
+        spec = ModelSpec(response=response, factors=factors_t, blocks=blocks_t,
+                         interactions=interactions, ss_type=ss_type, alpha=alpha)  # type: ignore[arg-type]
+        self._setup(as_source(source), spec, int(sample_size), int(seed))
+
+    def _setup(self, source: Any, spec: ModelSpec, sample_size: int, seed: int) -> None:
+        self.source = source
+        self.spec = spec
+        self.sample_size = max(sample_size, 0)
+        self.seed = seed
+        self.data_source = None
+        self.prepared = source.prepare(spec.response, spec.columns)
+        self.summary_data = SummaryData(source.describe(), tuple(source.columns))
+        self._atom_cache: dict[tuple, AtomTable] = {}
+        self._sample_cache: dict[tuple, tuple[Dataset, pd.DataFrame]] = {}
+        atoms = source.atoms(self.prepared, (), ())
+        keys = {}
+        for j, f in enumerate(spec.columns):
+            keys[f] = level_order(atoms.raw[j], f in self.prepared.numeric_factors)
+        view = SummaryView(
+            filters=(), moves=(), keys=keys, levels=dict(keys),
+            codes={f: _ro(np.arange(len(k), dtype=np.int64)) for f, k in keys.items()},
+        )
+        self._atom_cache[view.engine_state()] = atoms
+        self.fingerprint = _fingerprint(atoms, spec)
+        self._log: list[Edit] = []
+        self._views: list[SummaryView] = [view]  # type: ignore[assignment]
+        self._results: dict[int, Results] = {}
+        self._position = 0
+        self._made = 0
+        self._undos = 0
+        self._searches: list[dict[str, Any]] = []
+        self._listeners: list[Callable[[Study, StudyEvent], None]] = []
+        self._results[0] = self._analyze(view)
+
+    # ------------------------------------------------------------ engine access
+    def _atoms(self, view: SummaryView) -> AtomTable:
+        key = view.engine_state()
+        if key not in self._atom_cache:
+            self._atom_cache[key] = self.source.atoms(self.prepared, view.filters, view.moves)
+        return self._atom_cache[key]
+
+    def _sample(self, view: SummaryView) -> tuple[Dataset, pd.DataFrame]:
+        key = view.engine_state()
+        if key not in self._sample_cache:
+            frame = self.source.sample(self.prepared, view.filters, view.moves, self.sample_size, self.seed)
+            frame = frame.reset_index(drop=True)
+            table = frame[[c for c in frame.columns if not (c == "vx_y" or (c.startswith("m") and c[1:].isdigit()))]]
+            if len(frame):
+                ds = build_dataset(table, self.spec.response, self.spec.columns)
+            else:
+                ds = None
+            self._sample_cache[key] = (ds, frame)  # type: ignore[assignment]
+        return self._sample_cache[key]
+
+    def sample_results(self) -> Results:
+        """The row analysis of the current sample (kept rows only): for tests that need rows.
+
+        Rank-based tests, spread and normality checks read rows; on a summary-backed study
+        they run on this, and its notes say it is a sample.
+        """
+        res = analyze(self.dataset, self.view, self.spec)
+        n_all = self.results.n_used
+        note = (f"Computed on a seeded sample of {res.n_used} of the {n_all} rows in the analysis (seed {self.seed}), "
+                f"drawn by {self.source.engine}; the exact results are study.results.")
+        return dataclasses.replace(res, notes=res.notes + (note,))
+
+    def sample_frame(self) -> pd.DataFrame:
+        """The current seeded sample of kept rows (all columns), e.g. for a row study of it."""
+        ds, _ = self._sample(self._summary_view)
+        return ds.table.copy() if ds is not None else pd.DataFrame()
+
+    # ------------------------------------------------------------ analysis
+    def _codes(self, view: SummaryView, keys_by_factor: list[list[str]]) -> np.ndarray:
+        out = np.empty((len(keys_by_factor[0]) if keys_by_factor else 0, len(self.spec.columns)), dtype=np.int64)
+        for j, f in enumerate(self.spec.columns):
+            idx = view.key_index(f)
+            out[:, j] = [int(view.codes[f][idx[k]]) for k in keys_by_factor[j]]
+        return out
+
+    def _set_aside_mask(self, view: SummaryView, codes: np.ndarray) -> np.ndarray:
+        out = np.zeros(codes.shape[0], dtype=bool)
+        cols = list(self.spec.columns)
+        for cond in view.set_aside:
+            hit = np.ones(codes.shape[0], dtype=bool)
+            for f, lv in cond:
+                if f not in cols:  # pragma: no cover - edits check factors
+                    continue
+                hit &= codes[:, cols.index(f)] == view.levels[f].index(lv)
+            out |= hit
+        return out
+
+    def _analyze(self, view: SummaryView, *, with_sample: bool = True) -> Results:
+        spec = self.spec
+        atoms = self._atoms(view)
+        codes = self._codes(view, [atoms.keys(j) for j in range(len(spec.columns))])
+        keep = ~self._set_aside_mask(view, codes)
+        codes, n, mean, m2 = codes[keep], atoms.n[keep], atoms.mean[keep], atoms.m2[keep]
+        if n.sum() == 0:
+            raise DesignError("no rows are left in the analysis; undo an edit or restore a level")
+        sample_codes, sample_y, sample_pos = self._sample_rows(view) if with_sample and self.sample_size else (
+            np.zeros((0, len(spec.columns)), dtype=np.int64), np.empty(0), np.empty(0, dtype=np.int64))
+        method = f"cell summaries by {self.source.engine}"
+        if spec.is_oneway:
+            f = spec.factors[0]
+            full = pool_groups(n, mean, m2, codes[:, 0], view.levels[f], atoms.offset)
+            rows = RowSet(y=sample_y, group=sample_codes[:, 0], row_ids=sample_pos, positions=sample_pos)
+            res = oneway_from_stats(full, spec, rows=rows, method=f"least squares, one-way ({method})")
+        else:
+            cols = spec.columns
+            layout, atom_cell = layout_cells([codes[:, j] for j in range(len(cols))], [view.levels[c] for c in cols], cols)
+            cells = pool_groups(n, mean, m2, atom_cell, layout.cell_labels(), atoms.offset)
+            cell_index = {tuple(r): i for i, r in enumerate(layout.cell_levels.tolist())}
+            compact = [{view.levels[c].index(name): i for i, name in enumerate(layout.levels[j])} for j, c in enumerate(cols)]
+            group = np.asarray([cell_index[tuple(compact[j][int(c)] for j, c in enumerate(row))]
+                                for row in sample_codes.tolist()], dtype=np.int64)
+            rows = RowSet(y=sample_y, group=group, row_ids=sample_pos, positions=sample_pos)
+            kind = "randomized block" if spec.blocks else "factorial"
+            res = factorial_from_cells(layout, cells, spec, rows=rows, dataset_notes=self.prepared.notes,
+                                       method=f"least squares, {kind} ({method}, QR)")
+        return dataclasses.replace(res, notes=res.notes + self._notes(view, atoms, int(n.sum()), len(sample_y)))
+
+    def _sample_rows(self, view: SummaryView) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Current level codes, shifted response and positions of the kept sample rows."""
+        ds, frame = self._sample(view)
+        k = len(self.spec.columns)
+        if ds is None:
+            return np.zeros((0, k), dtype=np.int64), np.empty(0), np.empty(0, dtype=np.int64)
+        codes = self._codes(view, self._sample_keys(frame))
+        keep = ~self._set_aside_mask(view, codes)
+        pos = np.flatnonzero(keep)
+        return codes[keep], frame["vx_y"].to_numpy(dtype=np.float64)[keep], pos
+
+    def _sample_keys(self, frame: pd.DataFrame) -> list[list[str]]:
+        return [
+            [MOVE_PREFIX + str(int(m)) if m else _label(v) for v, m in zip(frame[f].tolist(), frame[f"m{j}"].tolist())]
+            for j, f in enumerate(self.spec.columns)
+        ]
+
+    def _notes(self, view: SummaryView, atoms: AtomTable, n_used: int, n_sample: int) -> tuple[str, ...]:
+        p = self.prepared
+        base = self._atom_cache[next(iter(self._atom_cache))].n_total
+        notes = [
+            f"Exact from cell summaries: the partition, tests and level tables use all {n_used} rows in the analysis, "
+            f"summarised by {self.source.describe()}.",
+        ]
+        if self.sample_size:
+            notes.append(
+                f"Per-row results (fitted values, residuals, leverage; residual charts, rank-based tests and "
+                f"assumption checks built on them) use a seeded sample of {n_sample} of those rows (seed {self.seed}), "
+                f"drawn by {self.source.engine}."
+            )
+        else:
+            notes.append("No row sample was drawn (sample_size=0): per-row results are empty.")
+        if view.filters:
+            gone = base - atoms.n_total
+            texts = "; ".join(f.text for f in view.filters)
+            notes.append(f"{gone} row(s) left out by condition(s): {texts}.")
+        for pred, f in view.moves:
+            notes.append(f"Rows where {pred.text} moved to another level of {f!r} (see the edit log).")
+        for cond in view.set_aside:
+            notes.append("Set aside: " + ", ".join(f"{f} = {lv}" for f, lv in cond) + ".")
+        notes.extend(p.set_aside_detail)
+        return tuple(notes)
+
+    # ------------------------------------------------------------ state seen by the shell
+    @property
+    def _summary_view(self) -> SummaryView:
+        return self._views[self._position]  # type: ignore[return-value]
+
+    @property
+    def summary_view(self) -> SummaryView:
+        """Conditions, row moves, level mapping and set-aside cells now in effect."""
+        return self._summary_view
+
+    @property
+    def dataset(self) -> Dataset:  # type: ignore[override]
+        """The seeded sample of the kept rows, as a row dataset (what charts draw)."""
+        ds, _ = self._sample(self._summary_view)
+        if ds is None:
+            raise DesignError("no row sample is available (sample_size=0 or no rows left)")
+        return ds
+
+    @property
+    def view(self) -> DataView:  # type: ignore[override]
+        """The sample rows' current levels; rows in set-aside levels or cells are marked left out."""
+        sv = self._summary_view
+        ds, frame = self._sample(sv)
+        if ds is None:
+            raise DesignError("no row sample is available (sample_size=0 or no rows left)")
+        codes = self._codes(sv, self._sample_keys(frame))
+        kept = ~self._set_aside_mask(sv, codes)
+        return DataView(kept=_ro(kept), codes={f: _ro(codes[:, j].astype(np.int32)) for j, f in enumerate(self.spec.columns)},
+                        levels=dict(sv.levels))
+
+    @property
+    def dropped(self) -> tuple:
+        """Ids of the sample rows now left out (in set-aside levels or cells)."""
+        try:
+            v = self.view
+        except DesignError:
+            return ()
+        return v.dropped_ids(self.dataset)
+
+    @property
+    def set_aside(self) -> tuple:  # type: ignore[override]
+        return self.prepared.set_aside_detail
+
+    def levels(self, factor: str) -> tuple[str, ...]:
+        return self._summary_view.levels[factor]
+
+    def _results_at(self, pos: int) -> Results:
+        if pos not in self._results:
+            self._results[pos] = self._analyze(self._views[pos])  # type: ignore[arg-type]
+        return self._results[pos]
+
+    # ------------------------------------------------------------ edits
+    def apply(self, edit: Edit) -> Results:
+        """Apply an edit; refuse it (state unchanged) if the result cannot be analysed."""
+        old = self._summary_view
+        if isinstance(edit, MergeLevels):
+            busy = {lv for cond in old.set_aside for f, lv in cond if f == edit.factor}
+            clash = sorted(busy & (set(edit.levels) | {edit.into}))
+            if clash:
+                raise EditError(f"edit refused ({edit.describe()}): level(s) {clash} of {edit.factor!r} are set aside; "
+                                "restore them first")
+        new = edit.apply(old, self.summary_data)  # type: ignore[arg-type]
+        if isinstance(edit, RenameLevel):
+            new = new.replace(set_aside=tuple(
+                tuple((f, edit.new if (f == edit.factor and lv == edit.old) else lv) for f, lv in cond)
+                for cond in new.set_aside))
+        try:
+            res = self._analyze(new)
+        except DesignError as exc:
+            raise EditError(f"edit refused ({edit.describe()}): {exc}") from None
+        del self._log[self._position :]
+        del self._views[self._position + 1 :]
+        for k in [k for k in self._results if k > self._position]:
+            del self._results[k]
+        self._log.append(edit)
+        self._views.append(new)  # type: ignore[arg-type]
+        self._position += 1
+        self._results[self._position] = res
+        self._made += 1
+        self._emit("edit", edit)
+        return res
+
+    def drop_where(self, predicate: str, reason: str = "") -> Results:
+        """Leave out the rows where ``predicate`` holds, e.g. ``"gauge_reading > 120"`` (pushed down to the engine)."""
+        return self.apply(DropWhere(predicate=predicate, reason=reason))
+
+    def restore_where(self, predicate: str, reason: str = "") -> Results:
+        """Bring back the rows an earlier ``drop_where`` with the same text left out."""
+        return self.apply(RestoreWhere(predicate=predicate, reason=reason))
+
+    def move_where(self, predicate: str, factor: str, level: str, reason: str = "") -> Results:
+        """Move the rows where ``predicate`` holds to ``level`` of ``factor`` (new or existing)."""
+        return self.apply(MoveWhere(predicate=predicate, factor=factor, level=level, reason=reason))
+
+    def drop_level(self, factor: str, level: str, reason: str = "") -> Results:
+        """Set aside every row at ``level`` of ``factor`` (a day, a lot, a line)."""
+        return self.apply(DropLevel(factors=(factor,), levels=(level,), reason=reason))
+
+    def restore_level(self, factor: str, level: str, reason: str = "") -> Results:
+        return self.apply(RestoreLevel(factors=(factor,), levels=(level,), reason=reason))
+
+    def drop_cell(self, cell: dict[str, str], reason: str = "") -> Results:
+        """Set aside one combination of levels, e.g. ``{"line": "L3", "shift": "night"}``."""
+        return self.apply(DropCell(factors=tuple(cell), levels=tuple(str(v) for v in cell.values()), reason=reason))
+
+    def restore_cell(self, cell: dict[str, str], reason: str = "") -> Results:
+        return self.apply(RestoreCell(factors=tuple(cell), levels=tuple(str(v) for v in cell.values()), reason=reason))
+
+    # ------------------------------------------------------------ files
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "format": FORMAT,
+            "schema": SCHEMA,
+            "spec": self.spec.to_dict(),
+            "data": {"source": self.source.describe(), "engine": self.source.engine, "fingerprint": self.fingerprint,
+                     "rows": self.prepared.rows_total},
+            "sample": {"size": self.sample_size, "seed": self.seed},
+            "edits": [e.to_dict() for e in self._log],
+            "position": self._position,
+            "searches": self._searches,
+        }
+
+    def save(self, path: str | Path) -> Path:
+        """Write the spec, the summaries' fingerprint and the edit log (with undone edits) as JSON."""
+        p = Path(path)
+        p.write_text(json.dumps(self.to_dict(), indent=1), encoding="utf-8")
+        return p
+
+    @classmethod
+    def load(cls, path: str | Path, data: Any, *, allow_mismatch: bool = False) -> SummaryStudy:  # type: ignore[override]
+        """Replay a saved log on ``data`` (same kinds of source as the constructor takes)."""
+        p = Path(path)
+        if not p.exists():
+            raise ReplayError(f"no saved study at {str(p)!r}")
+        try:
+            doc = json.loads(p.read_text(encoding="utf-8"))
+        except json.JSONDecodeError as exc:
+            raise ReplayError(f"{p.name!r} is not valid JSON (line {exc.lineno}): {exc.msg}") from None
+        return cls.from_dict(doc, data, allow_mismatch=allow_mismatch)
+
+    @classmethod
+    def from_dict(cls, doc: dict[str, Any], data: Any, *, allow_mismatch: bool = False) -> SummaryStudy:  # type: ignore[override]
+        if not isinstance(doc, dict) or doc.get("format") != FORMAT:
+            raise ReplayError(f"not a saved summary-backed study (no format marker {FORMAT!r}); "
+                              "row studies load with explorer.Study.load")
+        if int(doc.get("schema", 0)) > SCHEMA:
+            raise ReplayError(f"the file uses schema {doc.get('schema')}, newer than this kit reads ({SCHEMA})")
+        spec = ModelSpec.from_dict(doc["spec"])
+        sample = doc.get("sample", {})
+        study = cls.__new__(cls)
+        study._setup(as_source(data), spec, int(sample.get("size", 2000)), int(sample.get("seed", 0)))
+        saved = doc.get("data", {})
+        if saved.get("fingerprint") != study.fingerprint and not allow_mismatch:
+            raise ReplayError(
+                f"the summaries differ from those the log was saved on ({saved.get('rows')} rows then, "
+                f"{study.prepared.rows_total} now, or different values). Pass allow_mismatch=True to replay anyway "
+                "(edits that no longer apply fail)"
+            )
+        edits = []
+        for i, d in enumerate(doc.get("edits", [])):
+            try:
+                edits.append(edit_from_dict(d))
+            except (TypeError, ValueError) as exc:
+                raise ReplayError(f"edit {i + 1} in the saved log cannot be read: {exc}") from None
+        for i, e in enumerate(edits):
+            try:
+                study.apply(e)
+            except EditError as exc:
+                raise ReplayError(f"edit {i + 1} of the saved log ({e.describe()}) does not apply: {exc}") from None
+        study._searches = list(doc.get("searches", []))
+        position = int(doc.get("position", len(edits)))
+        while study._position > position:
+            study.undo()
+        study._made, study._undos = len(edits), 0
+        return study
+
+    def to_code(self, data: str | Path | None = None) -> str:
+        """Python source that rebuilds this state: build the summary study, then apply each edit."""
+        s = self.spec
+        lines = [
+            "from explorer.core.edits import edit_from_dict",
+            "from explorer.summaries import SummaryStudy",
+            f"study = SummaryStudy({str(data) if data is not None else '<your files or Spark DataFrame>'!r}, "
+            f"response={s.response!r}, factors={list(s.factors)!r}, blocks={list(s.blocks)!r}, "
+            f"interactions={s.interactions!r}, ss_type={s.ss_type!r}, alpha={s.alpha!r}, "
+            f"sample_size={self.sample_size!r}, seed={self.seed!r})",
+        ]
+        lines += [f"study.apply(edit_from_dict({e.to_dict()!r}))" for e in self.edits]
+        return "\n".join(lines) + "\n"
+
+    def __repr__(self) -> str:
+        return (f"SummaryStudy(response={self.spec.response!r}, factors={list(self.spec.columns)}, "
+                f"rows={self.prepared.rows_total}, engine={self.source.engine}, edits={self._position})")
+
+
+def _ro(a: np.ndarray) -> np.ndarray:
+    a.setflags(write=False)
+    return a
+
+
+def _fingerprint(atoms: AtomTable, spec: ModelSpec) -> str:
+    """Hash of the baseline summaries (counts exactly; means and SS to 10 significant digits)."""
+    rows = sorted(
+        (tuple(atoms.keys(j)[i] for j in range(len(spec.columns))), int(atoms.n[i]),
+         f"{atoms.mean[i] + atoms.offset:.10g}", f"{atoms.m2[i]:.10g}")
+        for i in range(atoms.size)
+    )
+    head = f"{spec.response}|{'|'.join(spec.columns)}"
+    return hashlib.sha256((head + repr(rows)).encode()).hexdigest()[:32]
