@@ -1,0 +1,95 @@
+"""Assumption checks and the suggestion they point to (explorer.core.assumptions).
+
+Outside references: scipy.stats.levene (centre 'mean', 'median', 'trimmed'),
+scipy.stats.bartlett and scipy.stats.shapiro (scipy 1.17), the latter applied to the
+residuals computed directly as value minus its level mean.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+from groups_support import random_groups, study_from_groups
+from scipy import stats
+
+from explorer.core.assumptions import bartlett, levene, recommend, shapiro_residuals
+from explorer.core.errors import ExplorerError
+
+
+@pytest.fixture(scope="module")
+def groups() -> list[np.ndarray]:
+    return random_groups([25, 28, 42, 36], seed=3, spread_step=0.7, shift=0.5, digits=1)
+
+
+@pytest.fixture(scope="module")
+def results(groups):
+    return study_from_groups(groups).results
+
+
+@pytest.mark.parametrize("center", ["median", "mean", "trimmed"])
+def test_levene_matches_scipy(groups, results, center: str) -> None:
+    """Levene's W for each centre vs scipy.stats.levene(..., center=center)."""
+    ref = stats.levene(*groups, center=center)
+    got = levene(results, center=center)
+    assert got.statistic == pytest.approx(ref.statistic, rel=1e-10)
+    assert got.pvalue == pytest.approx(ref.pvalue, rel=1e-8)
+    assert center.split()[0] in got.method or (center == "median" and "median" in got.method)
+
+
+def test_levene_trimmed_cut_matches_scipy(groups, results) -> None:
+    """A 20% cut each end vs scipy.stats.levene(center='trimmed', proportiontocut=0.2)."""
+    ref = stats.levene(*groups, center="trimmed", proportiontocut=0.2)
+    assert levene(results, center="trimmed", proportion_to_cut=0.2).statistic == pytest.approx(ref.statistic, rel=1e-10)
+    with pytest.raises(ExplorerError, match="center"):
+        levene(results, center="mode")  # type: ignore[arg-type]
+
+
+def test_bartlett_matches_scipy(groups, results) -> None:
+    """Bartlett's T from level variances alone vs scipy.stats.bartlett on the raw groups."""
+    ref = stats.bartlett(*groups)
+    got = bartlett(results)
+    assert got.statistic == pytest.approx(ref.statistic, rel=1e-10)
+    assert got.pvalue == pytest.approx(ref.pvalue, rel=1e-8)
+
+
+def test_shapiro_on_model_residuals(groups, results) -> None:
+    """W on residuals (value minus level mean), not on raw groups, vs scipy.stats.shapiro."""
+    resid = np.concatenate([g - g.mean() for g in groups])
+    ref = stats.shapiro(resid)
+    got = shapiro_residuals(results)
+    assert got.statistic == pytest.approx(ref.statistic, rel=1e-7)
+    assert got.pvalue == pytest.approx(ref.pvalue, rel=1e-5)
+    assert got.within_limits and "5000" in got.limits
+
+
+def test_shapiro_states_its_limits() -> None:
+    """Above 5000 residuals: computed, flagged outside the limits, and no warning escapes."""
+    big = study_from_groups(random_groups([2600, 2600], seed=1)).results
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        got = shapiro_residuals(big)
+    assert not got.within_limits and got.pvalue is not None and "5000" in got.notes[0]
+
+
+def test_bartlett_undefined_with_single_observation() -> None:
+    """A level of one: Bartlett's test is undefined and says which level."""
+    res = study_from_groups([[1.0, 2.0, 3.5], [2.0], [4.0, 5.5, 6.1]]).results
+    got = bartlett(res)
+    assert got.pvalue is None and "'L2'" in got.notes[0]
+
+
+def test_recommendation_sentences() -> None:
+    """Unequal spreads -> Welch; normal and equal -> classic F; skewed small groups -> Kruskal-Wallis."""
+    rng = np.random.default_rng(7)
+    spread = study_from_groups([rng.normal(0, s, 30) for s in (0.5, 1.0, 4.0)]).results
+    rec = recommend(spread, levene(spread), shapiro_residuals(spread))
+    assert rec.test == "Welch F" and "Games-Howell" in rec.sentence and rec.spreads_differ
+    calm = study_from_groups([rng.normal(0, 1, 30) for _ in range(3)]).results
+    rec = recommend(calm, levene(calm), shapiro_residuals(calm))
+    assert rec.test == "classic F" and "Tukey" in rec.sentence
+    skew = study_from_groups([np.exp(rng.normal(0, 1.0, 12)) for _ in range(3)]).results
+    rec = recommend(skew, levene(skew), shapiro_residuals(skew))
+    assert rec.spreads_differ is False and rec.residuals_non_normal
+    assert rec.test == "Kruskal-Wallis H" and "small groups" in rec.sentence
