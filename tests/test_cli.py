@@ -98,9 +98,21 @@ def test_app_dry_run(capsys, saved):
 
 
 def test_module_and_script_exit_codes(tmp_path):
-    """``python -m explorer`` and the installed script pass the exit code to the shell."""
+    """``python -m explorer`` runs the command line and exits 0 on the demo data."""
     ok = subprocess.run([sys.executable, "-m", "explorer", "check", DEMO, *BASE], capture_output=True, text=True)
     assert ok.returncode == 0 and "nozzle" in ok.stdout
+
+
+def test_check_needs_no_chart_libraries():
+    """The text commands work without the widget extra: altair is never imported."""
+    code = ("import sys; from explorer.cli import main; rc = main(['check', %r, *%r]); "
+            "print(rc, 'altair' in sys.modules, 'ipywidgets' in sys.modules)" % (DEMO, BASE))
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert proc.stdout.strip().splitlines()[-1] == "0 False False"
+
+
+def test_installed_script_passes_exit_code(tmp_path):
+    """The `variance-explorer` script (pyproject entry point) passes the exit code to the shell."""
     script = Path(sys.executable).parent / "variance-explorer"
     if script.exists():
         bad = subprocess.run([str(script), "check", str(tmp_path / "nope.csv"), *BASE], capture_output=True, text=True)

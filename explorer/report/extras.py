@@ -75,13 +75,45 @@ def _call(title: str, fn: Callable[[], Any], missing: str) -> Part:
     return Part(title=title, html=as_html(value), text=as_text(value))
 
 
+def _frame_of(obj: Any, method: str = "to_frame") -> str | None:
+    fn = getattr(obj, method, None)
+    frame = fn() if callable(fn) else None
+    return frame_text(frame) if isinstance(frame, pd.DataFrame) else None
+
+
+def battery_text(battery: Any) -> str:
+    """The battery as text: tests, checks, the suggested test, comparisons, letters, effect sizes."""
+    parts = [_frame_of(battery, "omnibus_frame"), _frame_of(battery, "checks_frame")]
+    rec = getattr(battery, "recommendation", None)
+    if rec is not None and hasattr(rec, "test"):
+        parts.append(f"Suggested omnibus test: {rec.test}. {getattr(rec, 'sentence', '')}")
+    for table in getattr(battery, "comparisons", ()):
+        parts.append(f"{getattr(table, 'method', 'comparisons')}:\n{_frame_of(table)}")
+    for name in ("letters", "effect_sizes"):
+        part = getattr(battery, name, None)
+        if part is not None:
+            parts.append(_frame_of(part))
+    flagged = getattr(battery, "flagged_rows", None)
+    if callable(flagged):
+        parts.append("Rows flagged by the outlier screens (none left out): "
+                     + "; ".join(f"{k}: {', '.join(map(str, v)) or 'none'}" for k, v in flagged().items()))
+    return "\n\n".join(p for p in parts if p)
+
+
 def battery_part(study: "Study") -> Part:
     """The one-way test battery on the current state (``study.battery()``)."""
-    return _call(
+    part = _call(
         "Checks, comparisons and effect sizes",
         lambda: study.battery(),  # type: ignore[attr-defined]
         "the test battery is not part of this version of the kit",
     )
+    if part.present:
+        try:
+            text = battery_text(study.battery())  # type: ignore[attr-defined]
+        except Exception:  # keep the generic text
+            return part
+        return Part(title=part.title, html=part.html, text=text)
+    return part
 
 
 def sensitivity_part(study: "Study", *, charts: bool = True) -> Part:

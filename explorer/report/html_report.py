@@ -44,6 +44,7 @@ table.vx-table td:first-child,table.vx-table th:first-child{text-align:left}
 .disclosure{background:#fff6e0;border-left:4px solid #d08c00;padding:.4em .8em}
 .vx-cautions li{margin:.3em 0}
 .note{color:#8a4b00}
+table.vx-edits td{text-align:left}
 pre{background:#f6f6f6;padding:.8em;overflow-x:auto;font-size:85%}
 @media print{.side{grid-template-columns:1fr}}
 """

@@ -68,10 +68,9 @@ def curve_chart(curve: pd.DataFrame, alpha: float) -> Any:
 
 def charts_available() -> str | None:
     """``None`` when altair and vl-convert import, else why not."""
-    try:
-        import altair  # noqa: F401
-        import vl_convert  # noqa: F401
-    except ImportError:
+    import importlib.util
+
+    if importlib.util.find_spec("altair") is None or importlib.util.find_spec("vl_convert") is None:
         return "charts need the widget extra (altair, vl-convert-python): pip install 'variance-explorer[widget]'"
     return None
 

@@ -50,7 +50,7 @@ def summary_text(study: "Study", *, cautions: bool = True) -> str:
         for e in study.redo_edits:
             out.append(f"   (undone) {e.describe()} -- {e.reason or '(no reason given)'} [{e.at}]")
         out += ["", _heading(f"Current (after {len(study.edits)} edit(s))"), results_text(study.results)]
-    for part in (battery_part(study), sensitivity_part(study)):
+    for part in (battery_part(study), sensitivity_part(study, charts=False)):
         out += ["", _heading(part.title), part.text if part.present else f"not included: {part.note}"]
     out += ["", f"Disclosure: {study.disclosure.sentence()}."]
     if cautions:
