@@ -20,7 +20,7 @@ from ..core.tables import fmt, html_table
 from .cautions import cautions_html
 from .extras import Part, battery_part, sensitivity_part
 from .replay_code import study_to_code
-from .svg_charts import results_svg
+from .svg_charts import model_check_svgs, results_svg
 
 if TYPE_CHECKING:
     from ..core.results import Results
@@ -43,6 +43,7 @@ table.vx-table th,table.vx-table td{border:1px solid #ddd;padding:2px 6px;text-a
 table.vx-table td:first-child,table.vx-table th:first-child{text-align:left}
 .disclosure{background:#fff6e0;border-left:4px solid #d08c00;padding:.4em .8em}
 .vx-cautions li{margin:.3em 0}
+.vx-figures{display:flex;flex-wrap:wrap;gap:1em}
 .note{color:#8a4b00}
 table.vx-edits td{text-align:left}
 pre{background:#f6f6f6;padding:.8em;overflow-x:auto;font-size:85%}
@@ -113,6 +114,14 @@ def _results_column(res: "Results", heading: str, charts: bool) -> str:
     return "<div>" + "".join(parts) + "</div>"
 
 
+def _model_checks(study: "Study") -> str:
+    svgs, why = model_check_svgs(study.baseline, study.results)
+    if not svgs:
+        return f"<p class='note'>{html.escape(why or '')}</p>"
+    figures = "".join(f"<figure class='vx-chart'>{svg}</figure>" for svg in svgs)
+    return f"<h3>Partition and model checks</h3><div class='vx-figures'>{figures}</div>"
+
+
 def _edits(study: "Study") -> str:
     rows = []
     for i, e in enumerate(study.edits, 1):
@@ -159,7 +168,7 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
         + "<div class='side'>"
         + _results_column(study.baseline, "Baseline (unedited data)", charts)
         + _results_column(study.results, f"Current (after {len(study.edits)} edit(s))", charts)
-        + "</div></section>",
+        + "</div>" + (_model_checks(study) if charts else "") + "</section>",
         f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}</section>",
         f"<section id='battery'><h2>{html.escape(battery.title)}</h2>{_part(battery)}</section>",
         f"<section id='sensitivity'><h2>{html.escape(sensitivity.title)}</h2>{_part(sensitivity)}"

@@ -16,7 +16,7 @@ import pandas as pd
 if TYPE_CHECKING:
     from ..core.results import Results
 
-__all__ = ["level_chart", "curve_chart", "chart_to_svg", "results_svg", "curve_svg", "charts_available"]
+__all__ = ["level_chart", "curve_chart", "chart_to_svg", "results_svg", "curve_svg", "charts_available", "model_check_svgs"]
 
 
 def level_chart(results: "Results", title: str) -> Any:
@@ -93,3 +93,20 @@ def curve_svg(curve: pd.DataFrame, alpha: float) -> tuple[str | None, str | None
     """``(svg, None)`` of :func:`curve_chart`, or ``(None, why)``."""
     why = charts_available()
     return (None, why) if why else (chart_to_svg(curve_chart(curve, alpha)), None)
+
+
+def model_check_svgs(baseline: "Results", current: "Results") -> tuple[list[str], str | None]:
+    """SVGs of the kit's chart builders (:mod:`explorer.charts`): the partition of the unedited
+    data beside the current one, and the residual checks of the current view.
+
+    ``([], why)`` when the chart libraries or builders are not available.
+    """
+    why = charts_available()
+    if why:
+        return [], why
+    try:
+        from ..charts import normal_probability_chart, partition_chart, residuals_fitted_chart
+    except ImportError as exc:
+        return [], f"the chart builders are not available ({exc})"
+    charts = [partition_chart(baseline, current), residuals_fitted_chart(current), normal_probability_chart(current)]
+    return [chart_to_svg(c) for c in charts], None
