@@ -1,0 +1,31 @@
+"""Pure chart builders: results and studies in, Altair charts out (no widget code).
+
+Each builder is a function of its inputs only and is tested through ``chart.to_dict()``.
+Row-level charts carry a click selection named ``pick`` on the ``row`` field.
+"""
+
+from .frames import MAX_POINTS, fit_frame, observation_frame, thin
+from .history import HistoryStep, history_chart
+from .influence import cooks_distance, cooks_distance_chart
+from .observations import PICK, observations_chart
+from .partition import BASELINE_LABEL, CURRENT_LABEL, partition_chart, partition_frame
+from .residuals import normal_probability_chart, residuals_fitted_chart
+
+__all__ = [
+    "BASELINE_LABEL",
+    "CURRENT_LABEL",
+    "MAX_POINTS",
+    "PICK",
+    "HistoryStep",
+    "cooks_distance",
+    "cooks_distance_chart",
+    "fit_frame",
+    "history_chart",
+    "normal_probability_chart",
+    "observation_frame",
+    "observations_chart",
+    "partition_chart",
+    "partition_frame",
+    "residuals_fitted_chart",
+    "thin",
+]

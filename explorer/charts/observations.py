@@ -1,0 +1,91 @@
+"""Observations by level, with each level's mean and confidence interval.
+
+Every usable row is a point (left-out rows stay drawn, grey diamonds, so nothing
+silently disappears). Points carry a click selection on the ``row`` field, so a
+notebook widget can turn a click into an edit; hovering shows the row id and every
+column of the row.
+"""
+
+from __future__ import annotations
+
+import altair as alt
+import pandas as pd
+
+from explorer.core import Study
+
+from .frames import MAX_POINTS, column_fields, observation_frame
+from .style import HEIGHT, MEAN, PICKED, STATE_SCALE, WIDTH, finish
+
+__all__ = ["PICK", "observations_chart"]
+
+_OFFSET = alt.Scale(domain=[-1.25, 2.0])  # points spread over [-1, 1]; the mean bar at the right
+
+#: Name of the click selection every row-level chart carries.
+PICK = "pick"
+
+
+def pick_param(name: str = PICK) -> alt.Parameter:
+    """Click picks one row; shift-click adds rows; double-click clears."""
+    return alt.selection_point(name=name, fields=["row"], on="click", clear="dblclick", toggle="event.shiftKey")
+
+
+def row_marks(base: alt.Chart, pick: alt.Parameter, tooltip: list, size: int = 70, legend: bool = True) -> alt.Chart:
+    """Points coloured and shaped by state; the picked rows get a thick orange ring."""
+    leg = {} if legend else {"legend": None}
+    return base.mark_point(filled=True, opacity=0.85).encode(
+        color=alt.Color("state:N", scale=STATE_SCALE["color"], title="row", **leg),
+        shape=alt.Shape("state:N", scale=STATE_SCALE["shape"], title="row", **leg),
+        size=alt.when(pick, empty=False).then(alt.value(size * 2.6))
+        .when(alt.datum.state == "left out").then(alt.value(size * 1.6)).otherwise(alt.value(size)),
+        stroke=alt.when(pick, empty=False).then(alt.value(PICKED)).otherwise(alt.value("white")),
+        strokeWidth=alt.when(pick, empty=False).then(alt.value(3)).otherwise(alt.value(0.6)),
+        tooltip=tooltip,
+        description=alt.Description("aria:N"),
+    ).add_params(pick)
+
+
+def observations_chart(study: Study, *, max_points: int = MAX_POINTS, factor: str | None = None,
+                       width: int = WIDTH + 80, height: int = HEIGHT + 80) -> alt.TopLevelMixin:
+    """Points by level, level means with confidence intervals (pooled SD), click selection ``pick``."""
+    f = factor or study.spec.factors[0]
+    res = study.results
+    data, note = observation_frame(study, max_points, f)
+    y_title = study.spec.response
+    levels = list(study.view.levels[f])
+    x = alt.X("level:N", title=f, sort=levels, axis=alt.Axis(labelAngle=0))
+    tooltip = [alt.Tooltip("row:N", title="row id"), alt.Tooltip("level:N", title=f"{f} (now)"),
+               alt.Tooltip("state:N", title="state")]
+    tooltip += [alt.Tooltip(field, title=title) for field, title in column_fields(study.dataset.table)]
+    base = alt.Chart(data).encode(x=x)
+    pick = pick_param()
+    points = row_marks(
+        base.encode(
+            y=alt.Y("value:Q", title=y_title, scale=alt.Scale(zero=False, padding=10)),
+            xOffset=alt.XOffset("jitter:Q", scale=_OFFSET),
+        ),
+        pick, tooltip,
+    )
+    layers = [points]
+    table = res.levels.get(f)
+    subtitle = []
+    if table is not None:
+        pct = f"{table.confidence:.0%}"
+        lv = pd.DataFrame({"level": list(table.labels), "mean": table.mean, "low": table.pooled_low,
+                           "high": table.pooled_high, "n": table.n})
+        lv = lv.astype({"mean": float, "low": float, "high": float})
+        lv["jitter"] = 1.55  # the interval sits to the right of the level's points
+        mbase = alt.Chart(lv).encode(x=x, xOffset=alt.XOffset("jitter:Q", scale=_OFFSET))
+        mtip = [alt.Tooltip("level:N", title=f), alt.Tooltip("n:Q", title="n in analysis"),
+                alt.Tooltip("mean:Q", title="mean", format=".4g"),
+                alt.Tooltip("low:Q", title=f"{pct} interval low", format=".4g"),
+                alt.Tooltip("high:Q", title=f"{pct} interval high", format=".4g")]
+        ci = mbase.mark_rule(color=MEAN, strokeWidth=2, opacity=0.8).encode(
+            y=alt.Y("low:Q", title=y_title), y2="high:Q", tooltip=mtip)
+        mean = mbase.mark_tick(color=MEAN, thickness=3, size=18).encode(y="mean:Q", tooltip=mtip)
+        layers = [ci, mean, points]
+        subtitle += [f"Black bar right of each level: mean with {pct} interval (pooled SD).",
+                     "Click a point to pick it; shift-click adds; double-click clears."]
+    if note:
+        subtitle.append(note)
+    chart = alt.layer(*layers).properties(width=width, height=height)
+    return finish(chart, f"{y_title} by {f}", subtitle)

@@ -1,0 +1,80 @@
+"""The explorer's built-in panels, registered at import (see :mod:`.panels`)."""
+
+from __future__ import annotations
+
+import html
+from typing import Any
+
+from explorer import charts
+from explorer.core.tables import html_table
+
+from .compare import comparison_html, partition_html
+from .panels import PanelContext, panel, state_token
+
+__all__: list[str] = []
+
+CHECKS = "Model checks"
+TRACK = "Baseline and history"
+TABLES = "Levels and edits"
+
+
+def _history_token(ctx: PanelContext) -> Any:
+    return (state_token(ctx), len(ctx.history))
+
+
+@panel("observations", "Observations", group="main", order=10)
+def observations(ctx: PanelContext) -> Any:
+    return charts.observations_chart(ctx.study, max_points=ctx.settings.max_points)
+
+
+@panel("partition", "Current view", group="main", order=20)
+def partition(ctx: PanelContext) -> Any:
+    return partition_html(ctx.results)
+
+
+@panel("compare", "Unedited data beside current view", group="main", order=30)
+def compare(ctx: PanelContext) -> Any:
+    return comparison_html(ctx.study)
+
+
+@panel("residuals", "Residuals against fitted values", group=CHECKS, order=10)
+def residuals(ctx: PanelContext) -> Any:
+    return charts.residuals_fitted_chart(ctx.results, max_points=ctx.settings.max_points)
+
+
+@panel("normal", "Normal probability plot", group=CHECKS, order=20)
+def normal(ctx: PanelContext) -> Any:
+    return charts.normal_probability_chart(ctx.results, max_points=ctx.settings.max_points)
+
+
+@panel("cooks", "Cook's distance", group=CHECKS, order=30)
+def cooks(ctx: PanelContext) -> Any:
+    return charts.cooks_distance_chart(ctx.results, max_points=ctx.settings.max_points)
+
+
+@panel("partition_chart", "Partition, unedited and current", group=TRACK, order=10)
+def partition_chart(ctx: PanelContext) -> Any:
+    return charts.partition_chart(ctx.baseline, ctx.results)
+
+
+@panel("history", "p-value and R² by step", group=TRACK, order=20, token=_history_token)
+def history(ctx: PanelContext) -> Any:
+    return charts.history_chart(ctx.history, ctx.results.spec.alpha)
+
+
+@panel("levels", "Levels", group=TABLES, order=10)
+def levels(ctx: PanelContext) -> Any:
+    return "".join(t._repr_html_() for t in ctx.results.levels.values())
+
+
+@panel("edit_log", "Edit log", group=TABLES, order=20)
+def edit_log(ctx: PanelContext) -> Any:
+    import pandas as pd
+
+    edits = ctx.study.edits
+    if not edits:
+        return "<div class='vx-small'>No edits: the current view is the unedited data.</div>"
+    frame = pd.DataFrame({"step": range(1, len(edits) + 1), "edit": [e.describe() for e in edits],
+                          "reason": [e.reason or "(none given)" for e in edits], "time (UTC)": [e.at for e in edits]})
+    return html_table(frame, "Edits in effect, oldest first") + (
+        f"<div class='vx-small'>{html.escape(str(len(ctx.study.redo_edits)))} undone edit(s) can be redone.</div>")

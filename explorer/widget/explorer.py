@@ -1,0 +1,566 @@
+"""The explorer: an ipywidgets shell that turns controls and chart clicks into study edits.
+
+It owns no statistics. Every control change or chart pick becomes a call on its
+:class:`~explorer.core.Study` (drop, restore, reassign, merge_levels, rename_level,
+undo, redo, reset) with the reason typed in the reason box; the study's change event
+then redraws the panels whose inputs changed (tables first, then charts). A refused
+edit shows in the status line and never raises into the notebook.
+"""
+
+from __future__ import annotations
+
+import html
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import replace
+from typing import Any
+
+import altair as alt
+import ipywidgets as W
+import pandas as pd
+
+from explorer.charts import HistoryStep
+from explorer.core import ExplorerError, Study, StudyEvent
+
+from . import core_panels  # noqa: F401  (registers the built-in panels)
+from .compare import CAUTIONS_HTML, TABLE_CSS, disclosure_html
+from .host import PanelCard
+from .panels import PanelContext, Settings, panels_in_order
+
+__all__ = ["COMPARISON_CHOICES", "OMNIBUS_CHOICES", "Explorer", "explore"]
+
+OMNIBUS_CHOICES = [("classic F (equal variances)", "classic"), ("Welch F (unequal variances)", "welch"),
+                   ("Brown-Forsythe F (unequal variances)", "brown-forsythe")]
+COMPARISON_CHOICES = [("Tukey-Kramer (all pairs)", "tukey-kramer"), ("Games-Howell (all pairs, unequal SD)", "games-howell"),
+                      ("Dunnett (each level against the first)", "dunnett"), ("t tests, Holm-adjusted", "holm")]
+_ALPHAS = [0.01, 0.05, 0.10]
+_BUTTON = {"width": "auto", "flex": "0 0 auto"}
+
+
+def _offline() -> str:
+    """Load the chart runtime from the local vl-convert bundle (charts are blank offline otherwise)."""
+    try:
+        alt.JupyterChart.enable_offline()
+        return ""
+    except Exception as exc:  # noqa: BLE001  vl-convert missing or too old: charts then need the network
+        return f"Charts load their runtime from the network ({exc}); install vl-convert-python to work offline."
+
+
+def _factor_candidates(table: pd.DataFrame, response: str, limit: int = 60) -> list[str]:
+    out = []
+    for c in table.columns:
+        col = table[c]
+        if str(c) == response:
+            continue
+        if not pd.api.types.is_numeric_dtype(col.dtype) or col.nunique(dropna=True) <= limit:
+            out.append(str(c))
+    return out
+
+
+def _response_candidates(table: pd.DataFrame) -> list[str]:
+    return [str(c) for c in table.columns
+            if pd.api.types.is_numeric_dtype(table[c].dtype) and not pd.api.types.is_bool_dtype(table[c].dtype)]
+
+
+class Explorer(W.VBox):
+    """Notebook dashboard for one :class:`~explorer.core.Study`.
+
+    Parameters
+    ----------
+    study : the study to explore (the explorer edits it in place; ``explorer.study``
+        is always the current one, also after the response or factors are changed).
+    panels : keys of the registered panels to show (all registered panels by default).
+    max_points : most rows a chart draws; above it charts draw a stated sample.
+    """
+
+    def __init__(self, study: Study, *, panels: Sequence[str] | None = None, max_points: int = 5000,
+                 **kwargs: Any) -> None:
+        self._offline_note = _offline()
+        self.study = study
+        self._unsubscribe = study.on_change(self._on_study_change)
+        self._batch = 0
+        self._dirty = False
+        self._picked: tuple[Any, ...] = ()
+        self._picked_from = ""
+        self.history: list[HistoryStep] = []
+        self._record("unedited data")
+        self.settings = Settings(alpha=study.spec.alpha, max_points=max_points)
+        self._build_controls()
+        self.cards = {p.key: PanelCard(p, self._on_pick) for p in panels_in_order(panels)}
+        super().__init__(children=self._layout(), **kwargs)
+        self.add_class("vx-explorer")
+        self._status(self._offline_note or "Ready. Click a point to pick it, write a reason, then choose an action.",
+                     "warn" if self._offline_note else "ok")
+        self.refresh(force=True)
+
+    # ================================================================= layout
+    def _build_controls(self) -> None:
+        study = self.study
+        table = study.dataset.table
+        self.response_picker = W.Dropdown(description="response", options=_response_candidates(table),
+                                          value=study.spec.response)
+        self.factor_picker = W.SelectMultiple(description="factors", options=_factor_candidates(table, study.spec.response),
+                                              value=tuple(study.spec.factors), rows=4)
+        alphas = sorted(set(_ALPHAS) | {study.spec.alpha})
+        self.alpha_picker = W.Dropdown(description="alpha", options=[(f"{a:g}", a) for a in alphas],
+                                       value=study.spec.alpha)
+        self.omnibus_picker = W.Dropdown(description="overall test", options=OMNIBUS_CHOICES, value="classic")
+        self.comparison_picker = W.Dropdown(description="comparisons", options=COMPARISON_CHOICES, value="tukey-kramer")
+        for w in (self.response_picker, self.factor_picker, self.alpha_picker, self.omnibus_picker, self.comparison_picker):
+            w.style.description_width = "90px"
+            w.layout.width = "300px"
+        self.response_picker.observe(self._on_model_choice, "value")
+        self.factor_picker.observe(self._on_model_choice, "value")
+        self.alpha_picker.observe(self._on_model_choice, "value")
+        self.omnibus_picker.observe(self._on_setting, "value")
+        self.comparison_picker.observe(self._on_setting, "value")
+
+        self.picked_label = W.HTML()
+        self.picked_label.add_class("vx-picked")
+        self.reason_box = W.Textarea(placeholder="Reason for the edit (required to leave out or move rows): "
+                                                 "lab note, deviation number, what you saw",
+                                     layout=W.Layout(width="300px", height="58px"))
+        self.reason_box.add_class("vx-reason")
+        self.drop_button = W.Button(description="Leave out picked", button_style="warning", layout=W.Layout(**_BUTTON),
+                                    tooltip="Leave the picked rows out of the analysis (they stay drawn, grey)")
+        self.restore_button = W.Button(description="Restore picked", layout=W.Layout(**_BUTTON))
+        self.clear_pick_button = W.Button(description="Clear pick", layout=W.Layout(**_BUTTON))
+        self.move_target = W.Combobox(placeholder="level (new name allowed)", ensure_option=False,
+                                      layout=W.Layout(width="150px"))
+        self.move_button = W.Button(description="Move picked to", layout=W.Layout(**_BUTTON),
+                                    tooltip="Reassign the picked rows to the level named on the right")
+        self.undo_button = W.Button(description="Undo", icon="undo", layout=W.Layout(**_BUTTON))
+        self.redo_button = W.Button(description="Redo", icon="repeat", layout=W.Layout(**_BUTTON))
+        self.reset_button = W.Button(description="Back to unedited", layout=W.Layout(**_BUTTON),
+                                     tooltip="Undo every edit (they stay available to redo)")
+        for b, cls in ((self.drop_button, "drop"), (self.restore_button, "restore"), (self.move_button, "move"),
+                       (self.undo_button, "undo"), (self.redo_button, "redo"), (self.reset_button, "reset"),
+                       (self.clear_pick_button, "clear")):
+            b.add_class(f"vx-btn-{cls}")
+        self.drop_button.on_click(lambda _: self.leave_out_picked())
+        self.restore_button.on_click(lambda _: self.restore_picked())
+        self.move_button.on_click(lambda _: self.move_picked(self.move_target.value))
+        self.clear_pick_button.on_click(lambda _: self.pick(()))
+        self.undo_button.on_click(lambda _: self.undo())
+        self.redo_button.on_click(lambda _: self.redo())
+        self.reset_button.on_click(lambda _: self.reset())
+
+        self.left_out_list = W.SelectMultiple(options=[], rows=5, layout=W.Layout(width="300px"))
+        self.left_out_list.add_class("vx-left-out")
+        self.restore_chosen_button = W.Button(description="Restore chosen", layout=W.Layout(**_BUTTON))
+        self.restore_chosen_button.on_click(lambda _: self.restore_chosen())
+        self.level_editor = W.VBox()
+        self.regroup_button = W.Button(description="Apply level changes", layout=W.Layout(**_BUTTON),
+                                       tooltip="Same new name for two levels merges them; a new name renames")
+        self.regroup_button.add_class("vx-btn-regroup")
+        self.regroup_button.on_click(lambda _: self.apply_regrouping())
+        self._level_boxes: dict[str, dict[str, W.Text]] = {}
+        self._level_key: Any = None
+        self._level_widgets: list[W.Widget] = []
+
+        self.status = W.HTML()
+        self.status.add_class("vx-status")
+        self.header = W.HTML()
+        self.header.add_class("vx-header")
+
+    def _section(self, title: str, *items: W.Widget) -> W.VBox:
+        return W.VBox([W.HTML(f"<div class='vx-card-title'>{html.escape(title)}</div>"), *items],
+                      layout=W.Layout(margin="0 0 8px 0"))
+
+    def _layout(self) -> list[W.Widget]:
+        controls = W.VBox([
+            self._section("Model", self.response_picker, self.factor_picker, self.alpha_picker,
+                          self.omnibus_picker, self.comparison_picker),
+            self._section("Edit the picked rows", self.picked_label, W.HBox([self.clear_pick_button]), self.reason_box,
+                          W.HBox([self.drop_button, self.restore_button]),
+                          W.HBox([self.move_button, self.move_target])),
+            self._section("Steps", W.HBox([self.undo_button, self.redo_button, self.reset_button])),
+            self._section("Rows left out (with reasons)", self.left_out_list, self.restore_chosen_button),
+            self._section("Levels: original → now → new name", self.level_editor, self.regroup_button),
+        ], layout=W.Layout(width="320px", min_width="320px", padding="0 8px 0 0"))
+        main = [c for c in self.cards.values() if c.panel.group == "main"]
+        charts = [c.widget for c in main if c.panel.key == "observations"]
+        others = [c.widget for c in main if c.panel.key != "observations"]
+        top = W.HBox(charts + [W.VBox(others)], layout=W.Layout(flex_flow="row wrap", align_items="flex-start"))
+        groups: dict[str, list[PanelCard]] = {}
+        for c in self.cards.values():
+            if c.panel.group != "main":
+                groups.setdefault(c.panel.group, []).append(c)
+        self.tabs = W.Tab(children=[W.HBox([c.widget for c in cs], layout=W.Layout(flex_flow="row wrap"))
+                                    for cs in groups.values()])
+        self.tabs.titles = tuple(groups)
+        self._tab_groups = list(groups)
+        self.tabs.observe(lambda _: self._refresh_tab(), "selected_index")
+        body = W.HBox([controls, W.VBox([top, self.tabs], layout=W.Layout(flex="1 1 auto"))])
+        return [W.HTML(TABLE_CSS), self.header, self.status, body, W.HTML(CAUTIONS_HTML)]
+
+    # ================================================================= state
+    def _context(self) -> PanelContext:
+        return PanelContext(study=self.study, settings=self.settings, history=tuple(self.history))
+
+    def _record(self, action: str) -> None:
+        res = self.study.results
+        self.history.append(HistoryStep(step=len(self.history), action=action, pvalue=res.pvalue(),
+                                        r_squared=res.r_squared, edits_in_effect=len(self.study.edits)))
+
+    def _on_study_change(self, study: Study, event: StudyEvent) -> None:
+        if event.kind != "search":
+            what = event.edit.describe() if event.edit is not None else "all edits"
+            self._record(what if event.kind == "edit" else f"{event.kind}: {what}")
+        if self._batch:
+            self._dirty = True
+            return
+        self.refresh()
+
+    @contextmanager
+    def _one_redraw(self) -> Iterator[None]:
+        """Several edits from one action redraw once, at the end."""
+        self._batch += 1
+        try:
+            yield
+        finally:
+            self._batch -= 1
+            if not self._batch and self._dirty:
+                self._dirty = False
+                self.refresh()
+
+    def _status(self, text: str, kind: str = "ok") -> None:
+        self.status.value = f"<div class='vx-status-{kind}'>{html.escape(text)}</div>"
+
+    def _reason(self, required: bool, what: str) -> str | None:
+        reason = self.reason_box.value.strip()
+        if required and not reason:
+            self._status(f"Write a reason in the reason box before you {what}: leaving data out or moving it "
+                         "needs a documented reason.", "error")
+            return None
+        return reason
+
+    def _edit(self, what: str, fn: Any, *args: Any, done: str = "", **kwargs: Any) -> bool:
+        """Run one study call; report a refusal in the status line instead of raising.
+
+        The status line says ``done`` before the redraw starts, so it appears with the tables.
+        """
+        try:
+            with self._one_redraw():
+                fn(*args, **kwargs)
+                if done:
+                    self._status(done)
+        except ExplorerError as exc:
+            self._status(f"Not done ({what}): {exc}", "error")
+            return False
+        except Exception as exc:  # noqa: BLE001  never raise into the notebook
+            self._status(f"Not done ({what}): unexpected {type(exc).__name__}: {exc}", "error")
+            return False
+        return True
+
+    # ================================================================= picking
+    def _on_pick(self, source: str, rows: list[str]) -> None:
+        if not rows and source != self._picked_from:
+            return  # another chart was redrawn; keep the pick made elsewhere
+        lookup = {str(r): self.study.dataset.row_id(i) for i, r in enumerate(self.study.dataset.row_ids.tolist())}
+        self._picked = tuple(lookup[r] for r in rows if r in lookup)
+        self._picked_from = source
+        self._show_picked()
+
+    def pick(self, rows: Sequence[Any]) -> None:
+        """Pick rows by id, as a click in a chart would."""
+        self._picked = tuple(rows)
+        self._picked_from = "code"
+        self._show_picked()
+
+    @property
+    def picked(self) -> tuple[Any, ...]:
+        return self._picked
+
+    def _show_picked(self) -> None:
+        if not self._picked:
+            self.picked_label.value = "<span class='vx-small'>No rows picked. Click a point in a chart.</span>"
+            return
+        ds, view = self.study.dataset, self.study.view
+        f = self.study.spec.factors[0]
+        parts = []
+        for r in self._picked[:8]:
+            try:
+                p = int(ds.positions([r])[0])
+            except ExplorerError:
+                continue
+            state = "in analysis" if view.kept[p] else "left out"
+            parts.append(f"row {r} ({f} {view.level_of(p, f)}, {ds.y_original[p]:.6g}, {state})")
+        more = f" and {len(self._picked) - 8} more" if len(self._picked) > 8 else ""
+        self.picked_label.value = f"<span class='vx-picked-rows'>Picked: {html.escape('; '.join(parts))}{more}</span>"
+
+    # ================================================================= actions
+    def leave_out_picked(self) -> bool:
+        if not self._picked:
+            self._status("Pick a row first: click a point in a chart.", "error")
+            return False
+        reason = self._reason(True, "leave rows out")
+        if reason is None:
+            return False
+        rows = self._picked
+        ok = self._edit("leave out", self.study.drop, list(rows), reason=reason,
+                        done=f"Left out row(s) {', '.join(map(str, rows))}: {reason}")
+        if ok:
+            self.pick(())
+        return ok
+
+    def restore_picked(self) -> bool:
+        if not self._picked:
+            self._status("Pick a left-out (grey) row first.", "error")
+            return False
+        return self._restore(self._picked)
+
+    def restore_chosen(self) -> bool:
+        chosen = list(self.left_out_list.value)
+        if not chosen:
+            self._status("Choose rows in the list of rows left out first.", "error")
+            return False
+        return self._restore(chosen)
+
+    def _restore(self, rows: Sequence[Any]) -> bool:
+        reason = self._reason(False, "restore rows") or ""
+        ok = self._edit("restore", self.study.restore, list(rows), reason=reason,
+                        done=f"Restored row(s) {', '.join(map(str, rows))}.")
+        if ok:
+            self.pick(())
+        return ok
+
+    def move_picked(self, level: str) -> bool:
+        f = self.study.spec.factors[0]
+        level = (level or "").strip()
+        if not self._picked or not level:
+            self._status(f"Pick rows and type or choose the level of {f} to move them to.", "error")
+            return False
+        reason = self._reason(True, "move rows to another level")
+        if reason is None:
+            return False
+        rows = self._picked
+
+        def move_all() -> None:
+            for r in rows:
+                self.study.reassign(r, f, level, reason=reason)
+
+        ok = self._edit("move", move_all, done=f"Moved row(s) {', '.join(map(str, rows))} to {f} = {level}.")
+        if ok:
+            self.pick(())
+        return ok
+
+    def undo(self) -> bool:
+        return self._edit("undo", self.study.undo, done="Undid the last edit.")
+
+    def redo(self) -> bool:
+        return self._edit("redo", self.study.redo, done="Redid the next edit.")
+
+    def reset(self) -> bool:
+        return self._edit("back to unedited", self.study.reset,
+                          done="Back to the unedited data; the edits can be redone step by step.")
+
+    def apply_regrouping(self) -> bool:
+        """Turn the level editor's new names into merges and renames (one edit each)."""
+        reason = self._reason(True, "merge or rename levels")
+        if reason is None:
+            return False
+        plans: list[tuple[str, list[str], str]] = []
+        for f, boxes in self._level_boxes.items():
+            current = self._original_to_current(f)
+            target_of: dict[str, set[str]] = {}
+            for orig, box in boxes.items():
+                now = current.get(orig)
+                if now is None:
+                    continue
+                new = box.value.strip()
+                if not new:
+                    self._status(f"Level {orig!r} of {f} needs a name (an empty name is not allowed).", "error")
+                    return False
+                target_of.setdefault(now, set()).add(new)
+            for now, targets in target_of.items():
+                if len(targets) > 1:
+                    self._status(f"Level {now!r} of {f} cannot be split into {sorted(targets)} here; undo the merge "
+                                 "instead.", "error")
+                    return False
+            by_target: dict[str, list[str]] = {}
+            for now, targets in target_of.items():
+                by_target.setdefault(next(iter(targets)), []).append(now)
+            levels_now = self.study.levels(f)
+            for target, sources in by_target.items():
+                if len(sources) > 1 or (target in levels_now and target not in sources):
+                    plans.append((f, sources, target))
+                elif sources[0] != target:
+                    plans.append((f, [], f"{sources[0]}\x00{target}"))
+        if not plans:
+            self._status("No level changes to apply: type a new name beside a level (the same name for two "
+                         "levels merges them).", "warn")
+            return False
+
+        def run() -> None:
+            for f, sources, target in plans:
+                if sources:
+                    self.study.merge_levels(f, sources, into=target, reason=reason)
+                else:
+                    old, new = target.split("\x00")
+                    self.study.rename_level(f, old, new, reason=reason)
+
+        return self._edit("level changes", run, done=f"Applied {len(plans)} level change(s).")
+
+    def _original_to_current(self, f: str) -> dict[str, str | None]:
+        """Current level of each original level's rows; None when its rows now sit in several levels."""
+        ds, view = self.study.dataset, self.study.view
+        now = view.labels(f)
+        out: dict[str, str | None] = {}
+        for code, orig in enumerate(ds.levels[f]):
+            names = set(now[ds.codes[f] == code].tolist())
+            out[orig] = names.pop() if len(names) == 1 else None
+        return out
+
+    # ================================================================= model choices
+    def _on_setting(self, _: Any) -> None:
+        self.settings = replace(self.settings, omnibus=self.omnibus_picker.value,
+                                comparisons=self.comparison_picker.value)
+        self.refresh()
+
+    def _on_model_choice(self, _: Any) -> None:
+        response = self.response_picker.value
+        factors = tuple(self.factor_picker.value)
+        alpha = float(self.alpha_picker.value)
+        spec = self.study.spec
+        if (response, factors, alpha) == (spec.response, spec.factors, spec.alpha):
+            return
+        if not factors:
+            self._status("Pick at least one factor.", "error")
+            return
+        if response in factors:
+            self._status(f"{response!r} is the response; it cannot also be a factor.", "error")
+            return
+        try:
+            new, skipped = self._rebuilt(response, factors, alpha)
+        except Exception as exc:  # noqa: BLE001  never raise into the notebook
+            self._status(f"Could not analyse {response} by {', '.join(factors)}: {exc}", "error")
+            return
+        self.set_study(new, action=f"model: {response} by {', '.join(factors)}, alpha {alpha:g}")
+        note = f" {len(skipped)} edit(s) no longer apply and were skipped." if skipped else ""
+        self._status(f"Now analysing {response} by {', '.join(factors)} at alpha {alpha:g}; edits carried over.{note}",
+                     "warn" if skipped else "ok")
+
+    def _rebuilt(self, response: str, factors: tuple[str, ...], alpha: float) -> tuple[Study, list[Any]]:
+        old = self.study
+        if (response, factors) == (old.spec.response, old.spec.factors):
+            new = Study.from_dataset(old.dataset, replace(old.spec, alpha=alpha))
+        else:
+            new = Study(old.dataset.table, response, factors, blocks=old.spec.blocks,
+                        interactions=old.spec.interactions, ss_type=old.spec.ss_type, alpha=alpha)
+        skipped = []
+        for e in old.edits:
+            try:
+                new.apply(e)
+            except ExplorerError:
+                skipped.append(e)
+        new.record_search("analysis choices tried in the explorer", old.disclosure.specifications + 1)
+        return new, skipped
+
+    def set_study(self, study: Study, action: str = "new study") -> None:
+        """Show another study (e.g. one loaded from a saved file); the history keeps going."""
+        self._unsubscribe()
+        self.study = study
+        self._unsubscribe = study.on_change(self._on_study_change)
+        self.settings = replace(self.settings, alpha=study.spec.alpha)
+        self._picked, self._picked_from = (), ""
+        self._record(action)
+        with self._hold_pickers():
+            self.response_picker.value = study.spec.response
+            self.factor_picker.value = tuple(study.spec.factors)
+            if study.spec.alpha not in [v for _, v in self.alpha_picker.options]:
+                self.alpha_picker.options = list(self.alpha_picker.options) + [(f"{study.spec.alpha:g}", study.spec.alpha)]
+            self.alpha_picker.value = study.spec.alpha
+        self.refresh(force=True)
+
+    @contextmanager
+    def _hold_pickers(self) -> Iterator[None]:
+        pickers = (self.response_picker, self.factor_picker, self.alpha_picker)
+        for w in pickers:
+            w.unobserve(self._on_model_choice, "value")
+        try:
+            yield
+        finally:
+            for w in pickers:
+                w.observe(self._on_model_choice, "value")
+
+    # ================================================================= redraw
+    def refresh(self, force: bool = False) -> None:
+        """Redraw what changed: header and tables first, then charts; hidden tabs when opened."""
+        ctx = self._context()
+        self._refresh_header()
+        self._refresh_controls()
+        main = [c for c in self.cards.values() if c.panel.group == "main"]
+        for card in sorted(main, key=lambda c: c.chart is not None):
+            card.update(ctx, force=force)
+        self._refresh_tab(ctx, force=force)
+        self._show_picked()
+
+    def _refresh_tab(self, ctx: PanelContext | None = None, force: bool = False) -> None:
+        idx = self.tabs.selected_index
+        if idx is None or idx >= len(self._tab_groups):
+            return
+        ctx = ctx or self._context()
+        for card in self.cards.values():
+            if card.panel.group == self._tab_groups[idx]:
+                card.update(ctx, force=force)
+        errors = [c.error for c in self.cards.values() if c.error]
+        if errors:
+            self._status("Some panels could not be drawn: " + "; ".join(errors), "warn")
+
+    def _refresh_header(self) -> None:
+        res = self.study.results
+        s = self.study.spec
+        self.header.value = (
+            f"<div class='vx-banner'><b>{html.escape(s.response)} by {html.escape(' × '.join(s.factors))}</b> "
+            f"({res.n_used} rows in analysis, {len(self.study.dropped)} left out). "
+            f"<b>Current view:</b> {html.escape(res.decision())}. "
+            f"<b>Unedited data:</b> {html.escape(self.study.baseline.decision())}.<br>{disclosure_html(self.study)}</div>"
+        )
+
+    def _refresh_controls(self) -> None:
+        study = self.study
+        reasons: dict[Any, str] = {}
+        for e in study.edits:
+            for r in getattr(e, "rows", ()):
+                reasons[r] = e.reason if e.kind == "drop" else reasons.get(r, "")
+        self.left_out_list.options = [(f"row {r}: {reasons.get(r) or '(no reason given)'}", r) for r in study.dropped]
+        f = study.spec.factors[0]
+        self.move_target.options = tuple(study.levels(f))
+        self.undo_button.disabled = not study.edits
+        self.redo_button.disabled = not study.redo_edits
+        self.reset_button.disabled = not study.edits
+        mapping = {fac: self._original_to_current(fac) for fac in study.spec.factors}
+        key = tuple((fac, tuple(m.items())) for fac, m in mapping.items())
+        if key == self._level_key:
+            return  # same levels: keep the editor (and anything typed in it)
+        self._level_key = key
+        for old in self._level_widgets:
+            old.close()
+        rows: list[W.Widget] = []
+        self._level_boxes = {}
+        for fac, current in mapping.items():
+            boxes = {}
+            rows.append(W.HTML(f"<div class='vx-small'><b>{html.escape(fac)}</b></div>"))
+            for orig, now in current.items():
+                box = W.Text(value=now or "", placeholder="new name", layout=W.Layout(width="110px"),
+                             disabled=now is None)
+                boxes[orig] = box
+                shown = now if now is not None else "(rows moved to several levels)"
+                label = W.HTML(f"<span class='vx-small'>{html.escape(orig)} → {html.escape(shown)} →</span>",
+                               layout=W.Layout(width="170px"))
+                rows.append(W.HBox([label, box]))
+                self._level_widgets += [label, box]
+            self._level_boxes[fac] = boxes
+        self.level_editor.children = rows
+        self._level_widgets += rows
+
+
+def explore(data: pd.DataFrame | str, response: str, factors: str | Sequence[str], **kwargs: Any) -> Explorer:
+    """Open the explorer on a table: ``explore(df, response="thickness_um", factors="nozzle")``.
+
+    Keyword arguments go to :class:`~explorer.core.Study` (blocks, interactions,
+    ss_type, alpha) except ``panels`` and ``max_points``, which go to :class:`Explorer`.
+    """
+    ex_kwargs = {k: kwargs.pop(k) for k in ("panels", "max_points") if k in kwargs}
+    return Explorer(Study(data, response=response, factors=factors, **kwargs), **ex_kwargs)

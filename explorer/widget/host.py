@@ -1,0 +1,119 @@
+"""One panel on screen: a titled card that shows whatever its builder returns.
+
+The card keeps one ``alt.JupyterChart`` per chart panel and swaps only its chart on a
+redraw, so the widget stays in place in the page. It redraws only when the panel's
+token changes, and a builder that fails shows its error in the card instead of raising.
+"""
+
+from __future__ import annotations
+
+import html
+from collections.abc import Callable, Hashable
+from typing import Any
+
+import altair as alt
+import ipywidgets as W
+
+from explorer.charts import PICK
+
+from .panels import Panel, PanelContext
+
+__all__ = ["EMBED_OPTIONS", "PanelCard", "parse_pick"]
+
+#: SVG so that every point is a DOM node (clickable and testable); no export menu.
+EMBED_OPTIONS = {"renderer": "svg", "actions": False}
+
+_UNSET = object()
+
+
+def parse_pick(raw: dict | None) -> list[str] | None:
+    """Row ids (as text) in a raw ``_vl_selections`` payload of the ``pick`` selection; ``None`` if absent."""
+    if not raw or PICK not in raw:
+        return None
+    from altair.utils.selection import PointSelection
+
+    sel = raw[PICK] or {}
+    value = PointSelection.from_vega(PICK, signal=sel.get("value"), store=sel.get("store", [])).value
+    return [str(v["row"]) for v in value if isinstance(v, dict) and "row" in v]
+
+
+class PanelCard:
+    """Widget and redraw logic of one :class:`Panel`."""
+
+    def __init__(self, spec: Panel, on_pick: Callable[[str, list[str]], None]) -> None:
+        self.panel = spec
+        self._on_pick = on_pick
+        self._token: Any = _UNSET
+        self.chart: alt.JupyterChart | None = None
+        self.html = W.HTML()
+        self.html.add_class(f"vx-panel-{spec.key}")
+        self.body = W.Box(layout=W.Layout(flex_flow="column"))
+        self.title = W.HTML(f"<div class='vx-card-title'>{html.escape(spec.title)}</div>")
+        self.widget = W.VBox([self.title, self.body], layout=W.Layout(padding="4px 8px", margin="0 6px 6px 0",
+                                                                  border="1px solid #e2e2e2"))
+        self.widget.add_class("vx-card")
+        self.widget.add_class(f"vx-card-{spec.key}")
+        self.error: str = ""
+
+    @property
+    def stale(self) -> bool:
+        return self._token is _UNSET
+
+    def mark_stale(self) -> None:
+        self._token = _UNSET
+
+    def update(self, ctx: PanelContext, *, force: bool = False) -> bool:
+        """Redraw if the token changed (or ``force``); return whether it redrew."""
+        try:
+            token: Hashable = self.panel.token(ctx)
+        except Exception:  # noqa: BLE001  a token that fails means "always redraw"
+            token = object()
+        if not force and token == self._token:
+            return False
+        self._token = token
+        try:
+            out = self.panel.build(ctx)
+            self.error = ""
+        except Exception as exc:  # noqa: BLE001  a panel must never break the explorer
+            self.error = f"{self.panel.title}: {type(exc).__name__}: {exc}"
+            self._show_html(f"<div class='vx-status-error'>This panel could not be drawn: {html.escape(str(exc))}</div>")
+            return True
+        self._show(out)
+        return True
+
+    # ----------------------------------------------------------------- display
+    def _show(self, out: Any) -> None:
+        if out is None:
+            self._show_html("<div class='vx-small'>Nothing to show for this study.</div>")
+        elif isinstance(out, alt.TopLevelMixin):
+            self._show_chart(out)
+        elif isinstance(out, W.Widget):
+            self.body.children = (out,)
+        elif isinstance(out, str):
+            self._show_html(out)
+        elif hasattr(out, "_repr_html_"):
+            self._show_html(out._repr_html_())
+        else:
+            self._show_html(f"<pre>{html.escape(repr(out))}</pre>")
+
+    def _show_html(self, text: str) -> None:
+        self.title.layout.display = None
+        self.html.value = text
+        if self.body.children != (self.html,):
+            self.body.children = (self.html,)
+
+    def _show_chart(self, chart: alt.TopLevelMixin) -> None:
+        self.title.layout.display = "none"  # a chart carries its own title
+        if self.chart is None:
+            self.chart = alt.JupyterChart(chart, embed_options=EMBED_OPTIONS)
+            self.chart.add_class(f"vx-chart-{self.panel.key}")
+            self.chart.observe(self._selection_changed, ["_vl_selections"])
+        else:
+            self.chart.chart = chart
+        if self.body.children != (self.chart,):
+            self.body.children = (self.chart,)
+
+    def _selection_changed(self, change: dict) -> None:
+        rows = parse_pick(change.get("new"))
+        if rows is not None:
+            self._on_pick(self.panel.key, rows)
