@@ -10,6 +10,7 @@ sender's file) and write the offline report.
 from __future__ import annotations
 
 import html
+from collections.abc import Callable
 from pathlib import Path
 
 import ipywidgets as W
@@ -45,24 +46,18 @@ def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
     status = W.HTML()
     status.add_class("vx-app-status")
 
-    def do_save(_: object) -> None:
+    def run(action: str, write: Callable[[], object], done: Callable[[], str]) -> None:
         try:
-            explorer.study.save(log_path)
+            write()
         except (OSError, ExplorerError) as exc:
-            status.value = f"<span class='vx-status-error'>Not saved: {html.escape(str(exc))}</span>"
+            status.value = f"<span class='vx-status-error'>{action}: {html.escape(str(exc))}</span>"
             return
-        status.value = f"<span class='vx-status-ok'>Saved {len(explorer.study.edits)} edit(s) to {html.escape(str(log_path))}</span>"
+        status.value = f"<span class='vx-status-ok'>{html.escape(done())}</span>"
 
-    def do_report(_: object) -> None:
-        try:
-            explorer.study.report(report_path)
-        except (OSError, ExplorerError) as exc:
-            status.value = f"<span class='vx-status-error'>No report: {html.escape(str(exc))}</span>"
-            return
-        status.value = f"<span class='vx-status-ok'>Wrote the report to {html.escape(str(report_path))}</span>"
-
-    save.on_click(do_save)
-    report.on_click(do_report)
+    save.on_click(lambda _: run("Not saved", lambda: explorer.study.save(log_path),
+                                lambda: f"Saved {len(explorer.study.edits)} edit(s) to {log_path}"))
+    report.on_click(lambda _: run("No report", lambda: explorer.study.report(report_path),
+                                  lambda: f"Wrote the report to {report_path}"))
     page = W.VBox([title, explorer, W.HBox([save, report, status])])
     page.add_class("vx-app")
     page.explorer = explorer  # type: ignore[attr-defined]

@@ -17,12 +17,10 @@ import urllib.request
 from pathlib import Path
 
 import pytest
+from handoff_support import CHROME_ARGS, chromium_path
 
 import explorer as ex
 from explorer.core.tables import fmt
-from handoff_support import CHROME_ARGS, chromium_path
-
-pytestmark = pytest.mark.browser
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "data" / "coating_thickness.csv"
@@ -74,6 +72,28 @@ def served(tmp_path_factory):
         proc.wait()
 
 
+def test_app_page_buttons_save_the_review_and_write_the_report(tmp_path):
+    """Without a browser: the page's buttons write the reviewed log and the report beside the original."""
+    pytest.importorskip("ipywidgets")
+    from explorer.app import app_page, review_paths
+
+    study = ex.Study(DEMO, response="thickness_um", factors="nozzle")
+    study.drop([6], reason=REASON_6)
+    saved = study.save(tmp_path / "coating.study.json")
+    page = app_page(saved, DEMO)
+    page.explorer.study.drop([70], reason=REASON_70)
+    save, report, status = page.children[-1].children
+    save.click()
+    assert "Saved 2 edit(s)" in status.value
+    log_path, report_path = review_paths(saved)
+    assert log_path.name == "coating-reviewed.study.json"
+    assert ex.Study.load(log_path, DEMO).results.partition == page.explorer.study.results.partition
+    assert ex.Study.load(saved, DEMO).edits[-1].reason == REASON_6  # the sender's file is untouched
+    report.click()
+    assert report_path.exists() and REASON_70 in report_path.read_text(encoding="utf-8")
+
+
+@pytest.mark.browser
 def test_app_shows_saved_state_takes_an_edit_and_saves(served, tmp_path):
     from playwright.sync_api import expect, sync_playwright
 

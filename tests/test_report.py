@@ -7,11 +7,11 @@ import re
 from pathlib import Path
 
 import pytest
+from handoff_support import CHROME_ARGS, chromium_path, outline
 
 import explorer as ex
 from explorer.core.tables import fmt
 from explorer.report import CAUTIONS, report_html
-from handoff_support import CHROME_ARGS, chromium_path, outline
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -94,7 +94,7 @@ def test_cautions_are_the_readme_cautions(page):
 
 def test_embedded_study_replays(edited, page):
     """The embedded JSON is the saved study; loading it on the data gives the same results."""
-    m = re.search(r"<script type='application/json' id='vx-study'>(.*?)</script>", page[1], re.S)
+    m = re.search(r"<script type='application/json' id='vx-study'>(.*?)</script>", page[1], re.DOTALL)
     assert m
     doc = json.loads(m.group(1))
     again = ex.Study.from_dict(doc, ROOT / "data" / "coating_thickness.csv")

@@ -16,7 +16,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from ..core.tables import fmt, html_table
+from ..core.tables import fmt
 from .cautions import cautions_html
 from .extras import Part, battery_part, sensitivity_part
 from .replay_code import study_to_code

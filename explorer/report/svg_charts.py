@@ -105,7 +105,11 @@ def model_check_svgs(baseline: "Results", current: "Results") -> tuple[list[str]
     if why:
         return [], why
     try:
-        from ..charts import normal_probability_chart, partition_chart, residuals_fitted_chart
+        from ..charts import (
+            normal_probability_chart,
+            partition_chart,
+            residuals_fitted_chart,
+        )
     except ImportError as exc:
         return [], f"the chart builders are not available ({exc})"
     charts = [partition_chart(baseline, current), residuals_fitted_chart(current), normal_probability_chart(current)]
