@@ -78,7 +78,7 @@ def test_large_offset_agrees_with_refits_to_8_digits():
     exact = pd.DataFrame({"g": g, "y": small})
     scan = case_deletion_scan(ex.Study(df, "y", "g"))
     for j, row in enumerate(scan.row_ids.tolist()):
-        f, p, eta, _ = _refit(exact, row)
+        f, p, _eta, _ = _refit(exact, row)
         assert scan.statistic[j] == pytest.approx(f, rel=1e-8)
         assert scan.pvalue[j] == pytest.approx(p, rel=1e-8)
 

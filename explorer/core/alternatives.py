@@ -36,14 +36,14 @@ from .errors import DesignError
 from .groupstats import GroupStats, group_stats
 
 __all__ = [
+    "STATUS_NOTES",
     "AlternativeFits",
     "OnewayInput",
-    "STATUS_NOTES",
+    "base_fit",
+    "deletion_fits",
     "evaluate_alternatives",
     "fits_from_sums",
     "leave_one_out",
-    "deletion_fits",
-    "base_fit",
     "oneway_input",
 ]
 

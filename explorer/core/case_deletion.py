@@ -21,7 +21,13 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .alternatives import STATUS_NOTES, OnewayInput, base_fit, deletion_fits, oneway_input
+from .alternatives import (
+    STATUS_NOTES,
+    OnewayInput,
+    base_fit,
+    deletion_fits,
+    oneway_input,
+)
 from .study import Disclosure
 from .tables import fmt, html_table
 
@@ -192,8 +198,8 @@ def case_deletion_scan(study: object, *, alpha: float | None = None, record: boo
         msw = np.where(fits.status == 0, fits.ss_within / fits.df_within, np.nan)
     base_msw = float(base.ss_within[0] / base.df_within[0]) if base.status[0] == 0 else np.nan
     pair, t_before, t_after = _pairwise_change(data, new_n, new_mean, msw, base_msw)
-    notes = ["Pair t: difference of the two level means over its standard error from the residual mean square "
-             "of the fit in question (all rows, or the row left out)."]
+    notes = [("Pair t: difference of the two level means over its standard error from the residual mean square "
+             "of the fit in question (all rows, or the row left out).")]
     single = int((data.stats.n == 1).sum())
     if single:
         notes.append(f"{single} level(s) have one observation; leaving it out removes the level (one df fewer for the term).")

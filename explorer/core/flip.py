@@ -161,7 +161,7 @@ class _Scorer:
 def _removal_stats(data: OnewayInput, sets: np.ndarray, keep_mask: np.ndarray | None = None):  # type: ignore[no-untyped-def]
     """Group statistics after removing each row set (``(m, s)`` positions): closed-form downdates."""
     gs = data.stats if keep_mask is None else group_stats(data.y[keep_mask], data.codes[keep_mask], data.labels, data.offset)
-    m, s = sets.shape
+    m, _s = sets.shape
     k = data.k
     g = data.codes[sets]
     d = data.y[sets] - gs.mean[g]

@@ -22,7 +22,13 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .alternatives import AlternativeFits, base_fit, evaluate_alternatives, leave_one_out, oneway_input
+from .alternatives import (
+    AlternativeFits,
+    base_fit,
+    evaluate_alternatives,
+    leave_one_out,
+    oneway_input,
+)
 from .case_deletion import nullable
 from .study import Disclosure
 from .tables import fmt, html_table
@@ -178,8 +184,8 @@ def regroup_scan(study: object, *, alpha: float | None = None, moves: bool = Tru
     base = base_fit(data)
     base_p = None if base.status[0] else float(base.pvalue[0])
     count = P + int(ridx.size)
-    notes = ["A merge pools two levels into one (one df fewer for the term); a move puts one row under "
-             "another level (a unit logged under the wrong level)."]
+    notes = [("A merge pools two levels into one (one df fewer for the term); a move puts one row under "
+             "another level (a unit logged under the wrong level).")]
     if record:
         study.record_search("regroup scan", count)  # type: ignore[attr-defined]
     return RegroupScan(

@@ -40,17 +40,19 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import special, stats
 
 from .alternatives import OnewayInput, oneway_input
 from .case_deletion import nullable
-from .errors import ExplorerError, closest_names
-from .groupstats import group_stats
+from .errors import DesignError, ExplorerError, closest_names
 from .influence import influence_measures
+from .omnibus import OmnibusTest, classic_f, kruskal_wallis, welch_f
+from .oneway import fit_oneway
+from .outliers import bonferroni_outlier_test
+from .results import Results
 from .study import Disclosure
 from .tables import fmt, html_table
 
-__all__ = ["SweepResult", "robustness_sweep", "OUTLIER_RULES", "TESTS", "TRANSFORMS"]
+__all__ = ["OUTLIER_RULES", "TESTS", "TRANSFORMS", "SweepResult", "robustness_sweep"]
 
 #: Outlier rules: name -> plain description.
 OUTLIER_RULES = {
@@ -119,51 +121,12 @@ class SweepResult:
         return "<div>" + html_table(shown, html.escape(cap), tuple(notes)) + "</div>"
 
 
-def _welch(gs) -> tuple[float | None, float | None, float | None, float | None, str]:  # type: ignore[no-untyped-def]
-    """Welch (1951) F test from group statistics: (F, df1, df2, p, note)."""
-    n = gs.n.astype(float)
-    if gs.k < 2:
-        return None, None, None, None, "fewer than two levels"
-    if np.any(n < 2):
-        return None, None, None, None, "Welch test needs two or more rows in every level"
-    var = gs.m2 / (n - 1)
-    if np.any(var <= 0):
-        return None, None, None, None, "Welch test undefined: a level has zero variance"
-    w = n / var
-    sw = w.sum()
-    mw = np.dot(w, gs.mean) / sw
-    k = gs.k
-    a = np.dot(w, (gs.mean - mw) ** 2) / (k - 1)
-    tmp = np.sum((1 - w / sw) ** 2 / (n - 1))
-    b = 1 + 2 * (k - 2) / (k * k - 1) * tmp
-    f = a / b
-    df2 = (k * k - 1) / (3 * tmp)
-    return float(f), float(k - 1), float(df2), float(special.fdtrc(k - 1, df2, f)), ""
-
-
-def _kruskal(y: np.ndarray, codes: np.ndarray, labels: tuple[str, ...]):  # type: ignore[no-untyped-def]
-    """Kruskal-Wallis H with the tie correction, as ``(N-1) SS_between / SS_total`` of the ranks."""
-    r = stats.rankdata(y)
-    gs = group_stats(r, codes, labels).nonempty()
-    if gs.k < 2:
-        return None, None, None, None, "fewer than two levels"
-    sst = gs.ss_between + gs.ss_within
-    if sst <= 0:
-        return None, None, None, None, "rank test undefined: every value is tied"
-    h = (gs.n_total - 1) * gs.ss_between / sst
-    return float(h), float(gs.k - 1), None, float(special.chdtrc(gs.k - 1, h)), ""
-
-
-def _classic(gs, scale: float):  # type: ignore[no-untyped-def]
-    from .alternatives import evaluate_alternatives
-
-    fits = evaluate_alternatives(gs.n[None, :], gs.mean[None, :], gs.m2[None, :], scale)
-    if fits.status[0]:
-        from .alternatives import STATUS_NOTES
-
-        return None, None, None, None, STATUS_NOTES[int(fits.status[0])]
-    return (float(fits.statistic[0]), float(fits.df_between[0]), float(fits.df_within[0]),
-            float(fits.pvalue[0]), "")
+def _test(results: object, test: str) -> OmnibusTest:
+    if test == "classic":
+        return classic_f(results)  # type: ignore[arg-type]
+    if test == "welch":
+        return welch_f(results)  # type: ignore[arg-type]
+    return kruskal_wallis(results)  # type: ignore[arg-type]
 
 
 def _merge_codes(data: OnewayInput, merges: Sequence[Sequence[str]], chosen: tuple[int, ...]):  # type: ignore[no-untyped-def]
@@ -185,6 +148,16 @@ def _merge_codes(data: OnewayInput, merges: Sequence[Sequence[str]], chosen: tup
     remap = np.array([new_index[find(i)] for i in range(data.k)])
     labels = tuple("+".join(data.labels[j] for j in range(data.k) if find(j) == r) for r in roots)
     return remap[data.codes], labels
+
+
+def _fit(yt: np.ndarray, codes: np.ndarray, labels: tuple[str, ...], data: OnewayInput, keep: np.ndarray,
+         offset: float, spec: object) -> Results | str:
+    """The one-way fit of the kept rows of one specification, or why there is none."""
+    try:
+        return fit_oneway(yt[keep], codes[keep], labels, row_ids=data.row_ids[keep], positions=data.positions[keep],
+                          offset=offset, spec=spec)  # type: ignore[arg-type]
+    except DesignError as exc:
+        return str(exc)
 
 
 def _check_merges(data: OnewayInput, merges: Sequence[Sequence[str]]) -> list[tuple[str, ...]]:
@@ -249,36 +222,40 @@ def robustness_sweep(
         else:
             notes.append("Log transform left out: the response has values of zero or below.")
     subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
+    spec = study.spec  # type: ignore[attr-defined]
     rows = []
     for t, (yt, off) in responses.items():
-        scale = max(abs(off), float(np.max(np.abs(yt))) if yt.size else 0.0)
         for subset in subsets:
             codes, labels = _merge_codes(data, merge_list, subset)
             merge_name = "; ".join("+".join(merge_list[i]) for i in subset) or "none"
-            gs_all = group_stats(yt, codes, labels, off)
+            fit_all = _fit(yt, codes, labels, data, np.ones(data.n, dtype=bool), off, spec)
             infl = None
             for rule in outlier_rules:
                 keep = np.ones(data.n, dtype=bool)
-                if rule != "none":
-                    if infl is None:
-                        nz = gs_all.n[codes]
-                        infl = influence_measures(yt - gs_all.mean[codes], 1.0 / nz, data.n - int((gs_all.n > 0).sum()),
-                                                  alpha=a, scale=scale)
-                    key = {"studentized": "studentized", "cooks": "cooks_4_over_n", "outlier_test": "outlier_test"}[rule]
-                    keep = ~infl.flagged(key)
-                yk, ck = yt[keep], codes[keep]
-                gs = group_stats(yk, ck, labels, off).nonempty()
+                if rule != "none" and isinstance(fit_all, Results):
+                    if rule == "outlier_test":
+                        flagged = bonferroni_outlier_test(fit_all, alpha=a).flagged
+                        keep = ~np.isin(data.row_ids, np.asarray(flagged, dtype=data.row_ids.dtype))
+                    else:
+                        if infl is None:
+                            f = fit_all.fit
+                            infl = influence_measures(f.residuals, f.leverage, fit_all.df_resid, alpha=a,
+                                                      scale=max(abs(off), float(np.max(np.abs(yt)))))
+                        keep = ~infl.flagged("studentized" if rule == "studentized" else "cooks_4_over_n")
+                res = _fit(yt, codes, labels, data, keep, off, spec)
                 left_out = data.row_ids[~keep].tolist()
                 for test in tests:
-                    if test == "classic":
-                        stat, d1, d2, p, note = _classic(gs, scale) if gs.k >= 2 else (None, None, None, None, "fewer than two levels")
-                    elif test == "welch":
-                        stat, d1, d2, p, note = _welch(gs)
+                    stat = d1 = d2 = p = None
+                    if isinstance(res, Results):
+                        out = _test(res, test)
+                        stat, d1, d2, p = out.statistic, out.df_num, out.df_den, out.pvalue
+                        note = " ".join(out.notes) if p is None else ""
                     else:
-                        stat, d1, d2, p, note = _kruskal(yk, ck, labels)
+                        note = res
                     rows.append({
                         "outlier rule": rule, "test": test, "transform": t, "merges": merge_name,
-                        "n": int(keep.sum()), "levels": gs.k, "rows left out": left_out, "left out": len(left_out),
+                        "n": int(keep.sum()), "levels": len(np.unique(codes[keep])),
+                        "rows left out": left_out, "left out": len(left_out),
                         "statistic": stat, "df (term)": d1, "df (residual)": d2, "p-value": p, "note": note,
                     })
     table = pd.DataFrame(rows)

@@ -126,7 +126,7 @@ def _naive_spec(df: pd.DataFrame, rule: str, test: str, transform: str, merges: 
 def bench_sweep(n: int, subset: int) -> dict:
     df = _data(n, 6, 3)
     study = ex.Study(df, "y", "g")
-    kwargs = dict(outlier_rules=["none", "studentized", "cooks"], merges=[["L1", "L2"], ["L3", "L4"]], record=False)
+    kwargs = {"outlier_rules": ["none", "studentized", "cooks"], "merges": [["L1", "L2"], ["L3", "L4"]], "record": False}
     robustness_sweep(study, **kwargs)
     t_ours = _median_time(lambda: robustness_sweep(study, **kwargs), 3)
     sweep = robustness_sweep(study, **kwargs)
