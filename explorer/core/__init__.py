@@ -53,3 +53,17 @@ __all__ += [
     "model_terms", "term_name", "check_design", "factorial_from_cells", "fit_factorial", "MarginalMeans",
     "marginal_means", "TermEffect", "TermEffects", "term_effects",
 ]
+
+# Sensitivity: influence, case deletion, flip finder, regroup scan, robustness sweep (read the study, never edit it).
+from .alternatives import AlternativeFits, evaluate_alternatives
+from .case_deletion import CaseDeletionScan, case_deletion_scan
+from .flip import FlipSearch, flip_finder
+from .influence import Influence, influence_measures  # study.influence() for a study
+from .regroup import RegroupScan, regroup_scan
+from .sweep import SweepResult, robustness_sweep
+
+__all__ += [
+    "AlternativeFits", "evaluate_alternatives", "CaseDeletionScan", "case_deletion_scan", "FlipSearch",
+    "flip_finder", "Influence", "influence_measures", "RegroupScan", "regroup_scan", "SweepResult",
+    "robustness_sweep",
+]

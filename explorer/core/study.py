@@ -28,6 +28,11 @@ from .view import DataView, initial_view
 
 if TYPE_CHECKING:
     from .battery import Battery
+    from .case_deletion import CaseDeletionScan
+    from .flip import FlipSearch
+    from .influence import Influence
+    from .regroup import RegroupScan
+    from .sweep import SweepResult
 
 __all__ = ["Study", "StudyEvent", "Disclosure"]
 
@@ -304,6 +309,37 @@ class Study:
         from .battery import run_battery
 
         return run_battery(self.results, **options)
+
+    # ----------------------------------------------------------------- sensitivity (reads, never edits)
+    def influence(self, **options: Any) -> Influence:
+        """Leverage, studentized residuals, Cook's distance, DFFITS (see :func:`explorer.core.influence.influence`)."""
+        from .influence import influence
+
+        return influence(self, **options)
+
+    def case_deletion(self, **options: Any) -> CaseDeletionScan:
+        """Each kept row left out in turn (see :func:`explorer.core.case_deletion.case_deletion_scan`)."""
+        from .case_deletion import case_deletion_scan
+
+        return case_deletion_scan(self, **options)
+
+    def flip_finder(self, **options: Any) -> FlipSearch:
+        """The fewest rows whose removal flips the decision (see :func:`explorer.core.flip.flip_finder`)."""
+        from .flip import flip_finder
+
+        return flip_finder(self, **options)
+
+    def regroup_scan(self, **options: Any) -> RegroupScan:
+        """Every merge of two levels and move of one row (see :func:`explorer.core.regroup.regroup_scan`)."""
+        from .regroup import regroup_scan
+
+        return regroup_scan(self, **options)
+
+    def robustness_sweep(self, **options: Any) -> SweepResult:
+        """Every combination of outlier rule, test, transform and merges (see :func:`explorer.core.sweep.robustness_sweep`)."""
+        from .sweep import robustness_sweep
+
+        return robustness_sweep(self, **options)
 
     def __repr__(self) -> str:
         return (
