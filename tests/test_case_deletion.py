@@ -128,3 +128,16 @@ def test_two_factor_study_is_refused_clearly():
     df = pd.DataFrame({"a": list("xy") * 10, "b": list("ppqq") * 5, "y": rng.normal(size=20)})
     with pytest.raises(DesignError, match="one-factor"):
         case_deletion_scan(ex.Study(df, "y", ["a", "b"]))
+
+
+def test_study_methods_return_the_same_scans():
+    """Study.case_deletion / flip_finder / regroup_scan / robustness_sweep / influence are thin wrappers."""
+    df = _data(5)
+    study = ex.Study(df, "y", "g")
+    a = study.case_deletion()
+    b = case_deletion_scan(study)
+    np.testing.assert_array_equal(a.pvalue, b.pvalue)
+    assert study.flip_finder().method in ("exact", "greedy")
+    assert study.regroup_scan(moves=False).merge_levels
+    assert study.robustness_sweep(tests=["classic"], transforms=["none"]).n_specifications == 4
+    assert study.influence().n == len(df)
