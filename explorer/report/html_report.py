@@ -16,6 +16,8 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+import numpy as np
+
 from ..core.tables import fmt
 from .cautions import cautions_html
 from .extras import Part, battery_part, sensitivity_part
@@ -105,10 +107,19 @@ def _headline(study: "Study") -> str:
     )
 
 
-def _results_column(res: "Results", heading: str, charts: bool) -> str:
+def _row_levels(study: "Study", res: "Results", baseline: bool) -> list[str]:
+    """The first factor's level of each row in ``res.fit``, in the view ``res`` was computed on."""
+    f = study.spec.factors[0]
+    ds = study.dataset
+    labels = np.asarray(ds.levels[f], dtype=object)[ds.codes[f]] if baseline else study.view.labels(f)
+    return [str(v) for v in labels[np.asarray(res.fit.positions)]]
+
+
+def _results_column(study: "Study", baseline: bool, heading: str, charts: bool) -> str:
+    res = study.baseline if baseline else study.results
     parts = [f"<h3>{html.escape(heading)}</h3>"]
     if charts:
-        svg, why = results_svg(res, heading)
+        svg, why = results_svg(res, heading, _row_levels(study, res, baseline))
         parts.append(f"<figure class='vx-chart'>{svg}</figure>" if svg else f"<p class='note'>{html.escape(why or '')}</p>")
     parts.append(res._repr_html_())
     return "<div>" + "".join(parts) + "</div>"
@@ -166,8 +177,8 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
         f"<section id='cautions'><h2>Cautions</h2>{cautions_html()}</section>",
         "<section id='comparison'><h2>Baseline and current results</h2>" + _headline(study)
         + "<div class='side'>"
-        + _results_column(study.baseline, "Baseline (unedited data)", charts)
-        + _results_column(study.results, f"Current (after {len(study.edits)} edit(s))", charts)
+        + _results_column(study, True, "Baseline (unedited data)", charts)
+        + _results_column(study, False, f"Current (after {len(study.edits)} edit(s))", charts)
         + "</div>" + (_model_checks(study) if charts else "") + "</section>",
         f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}</section>",
         f"<section id='battery'><h2>{html.escape(battery.title)}</h2>{_part(battery)}</section>",

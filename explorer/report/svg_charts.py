@@ -9,6 +9,7 @@ them the report is written without charts and says so.
 from __future__ import annotations
 
 import re
+from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any
 
 import pandas as pd
@@ -19,19 +20,19 @@ if TYPE_CHECKING:
 __all__ = ["level_chart", "curve_chart", "chart_to_svg", "results_svg", "curve_svg", "charts_available", "model_check_svgs"]
 
 
-def level_chart(results: "Results", title: str) -> Any:
-    """Altair chart: observations by level of the first factor, with mean and interval."""
+def level_chart(results: "Results", title: str, row_levels: Sequence[str]) -> Any:
+    """Altair chart: observations by level of the first factor, with mean and interval.
+
+    ``row_levels`` gives the first factor's level of each row of ``results.fit`` (from the
+    view the results were computed on).
+    """
     import altair as alt
 
     factor = results.main_term
     table = results.levels[factor]
     labels = list(table.labels)
     fit = results.fit
-    group_names = list(results.groups.labels)
-    if len(group_names) == len(fit.y) or results.spec.is_oneway:
-        level_of_row = [group_names[int(g)] for g in fit.group]
-    else:  # factorial cells: fall back to the plain points without a level axis
-        level_of_row = ["all"] * len(fit.y)
+    level_of_row = list(row_levels)
     points = pd.DataFrame({"level": level_of_row, "value": fit.y, "row": [str(r) for r in fit.row_ids]})
     summary = pd.DataFrame(
         {"level": labels, "mean": table.mean, "low": table.pooled_low, "high": table.pooled_high}
@@ -83,10 +84,10 @@ def chart_to_svg(chart: Any) -> str:
     return re.sub(r"^<\?xml[^>]*>\s*", "", svg)
 
 
-def results_svg(results: "Results", title: str) -> tuple[str | None, str | None]:
-    """``(svg, None)`` or ``(None, why)`` when the chart libraries are not installed."""
+def results_svg(results: "Results", title: str, row_levels: Sequence[str]) -> tuple[str | None, str | None]:
+    """``(svg, None)`` of :func:`level_chart`, or ``(None, why)`` when the chart libraries are not installed."""
     why = charts_available()
-    return (None, why) if why else (chart_to_svg(level_chart(results, title)), None)
+    return (None, why) if why else (chart_to_svg(level_chart(results, title, row_levels)), None)
 
 
 def curve_svg(curve: pd.DataFrame, alpha: float) -> tuple[str | None, str | None]:

@@ -24,8 +24,9 @@ def results_text(res: "Results") -> str:
     parts = [frame_text(res.partition.to_frame())]
     parts.append(f"n = {res.n_used}, R² = {fmt(res.r_squared, 4)}, residual SD = {fmt(res.residual_sd, 4)}")
     parts.extend(res.partition.notes)
-    for table in res.levels.values():
+    for factor, table in res.levels.items():
         parts.append("")
+        parts.append(f"Levels of {factor}:")
         parts.append(frame_text(table.to_frame()))
         parts.extend(table.notes)
     parts.extend(n for n in res.notes if n not in res.partition.notes)
