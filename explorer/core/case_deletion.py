@@ -131,7 +131,12 @@ class CaseDeletionScan:
 def _pairwise_change(
     data: OnewayInput, new_n: np.ndarray, new_mean: np.ndarray, msw: np.ndarray, base_msw: float
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Pair with the largest change in its t statistic, per deleted row (O(n k), group by group)."""
+    """Pair with the largest change in its t statistic, per deleted row (O(n k), group by group).
+
+    For a row of group ``a``, the pairs ``(a, b)`` see the downdated mean and count of
+    ``a``; every other pair sees only the new residual mean square, so among those the
+    pair with the largest ``|t|`` moves most.
+    """
     gs, g = data.stats, data.codes
     k, n = data.k, data.n
     nb = gs.n.astype(float)
@@ -139,48 +144,42 @@ def _pairwise_change(
         tb = (gs.mean[:, None] - gs.mean[None, :]) / np.sqrt(base_msw * (1 / nb[:, None] + 1 / nb[None, :]))
     tb = np.where(np.isfinite(tb), tb, np.nan)
     np.fill_diagonal(tb, np.nan)
-    best = np.full(n, -1.0)
-    code = np.zeros(n, dtype=np.int64)
+    code = np.full(n, k * k)
     t_before = np.full(n, np.nan)
     t_after = np.full(n, np.nan)
-    order = np.argsort(g, kind="stable")
-    bounds = np.searchsorted(g[order], np.arange(k + 1))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = np.sqrt(base_msw / msw)
-        for a in range(k):
-            idx = order[bounds[a] : bounds[a + 1]]
-            if idx.size == 0:
-                continue
-            ma, na, m = new_mean[idx], new_n[idx], msw[idx]
-            bst, cd, tbf, taf = best[idx], code[idx], t_before[idx], t_after[idx]
-            # Pairs with the row's own group: the downdated mean and count.
-            for b in range(k):
-                if b == a:
-                    continue
-                ta = np.where(na > 0, (ma - gs.mean[b]) / np.sqrt(m * (1 / na + 1 / nb[b])), np.nan)
-                ch = np.abs(ta - tb[a, b])
-                take = ch > bst
-                bst = np.where(take, ch, bst)
-                cd = np.where(take, a * k + b, cd)
-                tbf = np.where(take, tb[a, b], tbf)
-                taf = np.where(take, ta, taf)
-            # Other pairs: only the residual mean square changes, so the largest |t| moves most.
-            sub = np.abs(tb)
-            sub[a, :] = np.nan
-            sub[:, a] = np.nan
-            if k >= 3 and not np.all(np.isnan(sub)):
-                i, j = np.unravel_index(np.nanargmax(sub), sub.shape)
-                ta = tb[i, j] * ratio[idx]
-                ch = np.abs(ta - tb[i, j])
-                take = ch > bst
-                bst = np.where(take, ch, bst)
-                cd = np.where(take, i * k + j, cd)
-                tbf = np.where(take, tb[i, j], tbf)
-                taf = np.where(take, ta, taf)
-            best[idx], code[idx], t_before[idx], t_after[idx] = bst, cd, tbf, taf
+    for a in range(k):
+        idx = np.flatnonzero(g == a)
+        if idx.size == 0:
+            continue
+        others = np.array([b for b in range(k) if b != a], dtype=np.int64)
+        m = msw[idx][:, None]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ta = (new_mean[idx][:, None] - gs.mean[others][None, :]) / np.sqrt(
+                m * (1 / new_n[idx][:, None] + 1 / nb[others][None, :]))
+        ta[new_n[idx] == 0, :] = np.nan
+        before = np.broadcast_to(tb[a, others], ta.shape)
+        codes_a = a * k + others
+        sub = np.abs(tb)
+        sub[a, :] = np.nan
+        sub[:, a] = np.nan
+        if k >= 3 and not np.all(np.isnan(sub)):
+            i, j = np.unravel_index(np.nanargmax(sub), sub.shape)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                extra = tb[i, j] * np.sqrt(base_msw / m)
+            ta = np.hstack([ta, extra])
+            before = np.hstack([before, np.full((idx.size, 1), tb[i, j])])
+            codes_a = np.append(codes_a, i * k + j)
+        change = np.abs(ta - before)
+        change = np.where(np.isfinite(change), change, -1.0)
+        best = np.argmax(change, axis=1)
+        rows = np.arange(idx.size)
+        found = change[rows, best] >= 0
+        sel = idx[found]
+        code[sel] = codes_a[best[found]]
+        t_before[sel] = before[rows, best][found]
+        t_after[sel] = ta[rows, best][found]
     labels = data.labels
     names = np.array([f"{labels[i]} vs {labels[j]}" for i in range(k) for j in range(k)] + [""], dtype=object)
-    code = np.where(best >= 0, code, k * k)
     return names[code], t_before, t_after
 
 
