@@ -122,12 +122,14 @@ def test_reads_only_and_counts_the_search():
     assert "flip" in scan._repr_html_()
 
 
-def test_two_factor_study_is_refused_clearly():
-    """One-factor scan only: a two-factor study gets a DesignError naming the factors."""
+def test_one_factor_scans_refuse_two_factor_studies_clearly():
+    """The regroup scan works on one factor: a two-factor study gets a DesignError naming the factors."""
+    from explorer.core.regroup import regroup_scan
+
     rng = np.random.default_rng(0)
     df = pd.DataFrame({"a": list("xy") * 10, "b": list("ppqq") * 5, "y": rng.normal(size=20)})
     with pytest.raises(DesignError, match="one-factor"):
-        case_deletion_scan(ex.Study(df, "y", ["a", "b"]))
+        regroup_scan(ex.Study(df, "y", ["a", "b"]))
 
 
 def test_study_methods_return_the_same_scans():
@@ -141,3 +143,61 @@ def test_study_methods_return_the_same_scans():
     assert study.regroup_scan(moves=False).merge_levels
     assert study.robustness_sweep(tests=["classic"], transforms=["none"]).n_specifications == 4
     assert study.influence().n == len(df)
+
+
+def _two_way(seed: int, n: int = 40) -> pd.DataFrame:
+    rng = np.random.default_rng(seed)
+    a = rng.choice(list("xyz"), n)
+    b = rng.choice(list("pq"), n)
+    return pd.DataFrame({"a": a, "b": b, "y": rng.normal(size=n) + (a == "x") * 0.8 + (b == "p") * 0.5 + 1e6})
+
+
+@pytest.mark.parametrize("interactions", [True, False])
+def test_two_way_matches_statsmodels_refits(interactions):
+    """statsmodels anova_lm(typ=2) refit without each row (unbalanced 3 x 2, offset 1e6): every term's p to 1e-9."""
+    import statsmodels.formula.api as smf
+    from statsmodels.stats.anova import anova_lm
+
+    df = _two_way(1)
+    scan = case_deletion_scan(ex.Study(df, "y", ["a", "b"], interactions=interactions))
+    formula = "y ~ C(a) * C(b)" if interactions else "y ~ C(a) + C(b)"
+    names = {"a": "C(a)", "b": "C(b)", "a × b": "C(a):C(b)"}
+    assert set(scan.term_pvalues) == ({"a", "b", "a × b"} if interactions else {"a", "b"})
+    for j, row in enumerate(scan.row_ids.tolist()):
+        d = df.drop(index=row)
+        table = anova_lm(smf.ols(formula, d.assign(y=d.y - 1e6)).fit(), typ=2)
+        for term, p in scan.term_pvalues.items():
+            assert p[j] == pytest.approx(table.loc[names[term], "PR(>F)"], rel=1e-9)
+        assert scan.pvalue[j] == pytest.approx(table.loc["C(a)", "PR(>F)"], rel=1e-9)
+        assert scan.df_within[j] == table.loc["Residual", "df"]
+
+
+@pytest.mark.parametrize("ss_type", ["I", "III"])
+def test_two_way_other_types_match_the_engine_refit(ss_type):
+    """Types I and III: the project's factorial engine refitted without each row (itself checked against statsmodels)."""
+    df = _two_way(2, 30)
+    scan = case_deletion_scan(ex.Study(df, "y", ["a", "b"], ss_type=ss_type))
+    for j, row in enumerate(scan.row_ids.tolist()):
+        ref = ex.Study(df.drop(index=row), "y", ["a", "b"], ss_type=ss_type).results
+        assert scan.statistic[j] == pytest.approx(ref.statistic(), rel=1e-9)
+        assert scan.term_pvalues["a × b"][j] == pytest.approx(ref.pvalue("a × b"), rel=1e-9)
+
+
+def test_two_way_single_row_cell():
+    """A cell with one row: with the interaction its deletion leaves an empty cell (status 4, like the engine's
+    refusal); in the additive model it is refitted directly (anova_lm typ=2 check)."""
+    import statsmodels.formula.api as smf
+    from statsmodels.stats.anova import anova_lm
+
+    df = _two_way(3, 30)
+    df.loc[(df.a == "z") & (df.b == "q"), "b"] = "p"
+    df.loc[0, ["a", "b"]] = ["z", "q"]
+    full = case_deletion_scan(ex.Study(df, "y", ["a", "b"]))
+    frame = full.to_frame().set_index("row")
+    assert pd.isna(frame.loc[0, "F"]) and "only one in its cell" in frame.loc[0, "note"]
+    assert any("empties cell" in n for n in full.notes)
+    additive = case_deletion_scan(ex.Study(df, "y", ["a", "b"], interactions=False))
+    d = df.drop(index=0)
+    table = anova_lm(smf.ols("y ~ C(a) + C(b)", d.assign(y=d.y - 1e6)).fit(), typ=2)
+    j = additive.row_ids.tolist().index(0)
+    assert additive.pvalue[j] == pytest.approx(table.loc["C(a)", "PR(>F)"], rel=1e-9)

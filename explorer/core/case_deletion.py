@@ -69,6 +69,8 @@ class CaseDeletionScan:
     base_statistic: float | None
     base_pvalue: float | None
     base_significant: bool
+    term: str = ""
+    term_pvalues: dict[str, np.ndarray] = field(default_factory=dict)
     disclosure: Disclosure | None = None
     notes: tuple[str, ...] = field(default=())
 
@@ -114,6 +116,7 @@ class CaseDeletionScan:
                 "pair t (all rows)": nullable(self.pair_t_before[o]),
                 "pair t (row left out)": nullable(self.pair_t_after[o]),
                 "note": [STATUS_NOTES[int(s)] for s in self.status[o]],
+                **{f"p-value ({t})": nullable(p[o]) for t, p in self.term_pvalues.items()},
             }
         )
 
@@ -189,6 +192,8 @@ def case_deletion_scan(study: object, *, alpha: float | None = None, record: boo
     The study is not changed; the ``n`` alternatives examined are added to its
     disclosure count (``record=False`` skips that, for internal re-use).
     """
+    if not study.spec.is_oneway:  # type: ignore[attr-defined]
+        return _factorial_scan(study, alpha, record)
     data = oneway_input(study, "the case-deletion scan")
     a = data.alpha if alpha is None else float(alpha)
     fits, new_n, new_mean = deletion_fits(data)
@@ -210,7 +215,36 @@ def case_deletion_scan(study: object, *, alpha: float | None = None, record: boo
         statistic=fits.statistic, pvalue=fits.pvalue, eta_squared=fits.eta_squared, df_between=fits.df_between,
         df_within=fits.df_within, status=fits.status, pair=pair, pair_t_before=t_before, pair_t_after=t_after,
         base_statistic=None if base.status[0] else float(base.statistic[0]), base_pvalue=base_p,
-        base_significant=bool(base_p is not None and base_p < a),
+        base_significant=bool(base_p is not None and base_p < a), term=data.factor,
+        disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        notes=tuple(notes),
+    )
+
+
+def _factorial_scan(study: object, alpha: float | None, record: bool) -> CaseDeletionScan:
+    """Case deletion for multi-factor designs (see :mod:`.cell_deletion`); the decision is read
+    from the first treatment factor's main effect, every term's p-value is listed."""
+    from .cell_deletion import cell_deletion, eta_squared_total
+
+    res = study.results  # type: ignore[attr-defined]
+    spec = study.spec  # type: ignore[attr-defined]
+    a = float(spec.alpha if alpha is None else alpha)
+    per_term, status, data, notes = cell_deletion(study)
+    main = res.main_term
+    m = per_term[main]
+    if record:
+        study.record_search("case deletion", data.n)  # type: ignore[attr-defined]
+    base_p = res.pvalue()
+    empty = np.full(data.n, np.nan)
+    notes = notes + [f"Decision read from the {main!r} term ({spec.ss_type} sums of squares); pairwise changes "
+                     "are computed for one-factor studies only."]
+    return CaseDeletionScan(
+        factor=main, alpha=a, row_ids=data.row_ids, group=np.asarray(data.labels, dtype=object)[data.codes],
+        statistic=m["statistic"], pvalue=m["pvalue"], eta_squared=eta_squared_total(data, m["ss"]),
+        df_between=m["df"].astype(np.int64), df_within=per_term["residual"]["df"].astype(np.int64), status=status,
+        pair=np.full(data.n, "", dtype=object), pair_t_before=empty, pair_t_after=empty,
+        base_statistic=res.statistic(), base_pvalue=base_p, base_significant=bool(base_p is not None and base_p < a),
+        term=main, term_pvalues={t: v["pvalue"] for t, v in per_term.items() if t != "residual"},
         disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
         notes=tuple(notes),
     )
