@@ -236,8 +236,8 @@ def _factorial_scan(study: object, alpha: float | None, record: bool) -> CaseDel
         study.record_search("case deletion", data.n)  # type: ignore[attr-defined]
     base_p = res.pvalue()
     empty = np.full(data.n, np.nan)
-    notes = notes + [f"Decision read from the {main!r} term ({spec.ss_type} sums of squares); pairwise changes "
-                     "are computed for one-factor studies only."]
+    notes = notes + [(f"Decision read from the {main!r} term ({spec.ss_type} sums of squares); pairwise changes "
+                     "are computed for one-factor studies only.")]
     return CaseDeletionScan(
         factor=main, alpha=a, row_ids=data.row_ids, group=np.asarray(data.labels, dtype=object)[data.codes],
         statistic=m["statistic"], pvalue=m["pvalue"], eta_squared=eta_squared_total(data, m["ss"]),
