@@ -24,6 +24,7 @@ from explorer.core import comparisons
 from explorer.core.errors import ColumnError, DataError, EditError, ReplayError
 from explorer.core.omnibus import brown_forsythe_f, welch_f
 from explorer.summaries import (
+    DuckDBSource,
     SummaryStudy,
     parse_predicate,
     set_aside_scan,
@@ -86,6 +87,20 @@ def test_twoway_agrees_with_row_study_and_statsmodels(parquet, frame, ss_type):
         assert close(s.results.partition.row(src).pvalue, aov.loc[ref, "PR(>F)"], 1e-8)
 
 
+def test_two_scan_mode_agrees(parquet, frame):
+    """The corrected two-pass mode (passes=2) gives the row study's results too, also after a predicate edit."""
+    s = SummaryStudy(DuckDBSource(parquet, passes=2), "thickness", ["line", "shift"], sample_size=0)
+    r = ex.Study(frame, "thickness", ["line", "shift"])
+    assert_same_results(s.results, r.results)
+    s.move_where("lot = 4", "shift", "day", reason="lot 4 logged on the wrong shift")
+    for row in frame.index[frame.lot == 4]:
+        if frame.loc[row, "shift"] != "day":
+            r.reassign(int(row), "shift", "day")
+    assert_same_results(s.results, r.results)
+    with pytest.raises(DataError, match="passes"):
+        DuckDBSource(parquet, passes=3)
+
+
 def test_blocks_agree_with_row_study(parquet, frame):
     """Additive block (lot) beside a factor: the randomized-block partition equals the row study's (1e-10)."""
     s = SummaryStudy(parquet, "thickness", "line", blocks="lot", sample_size=0)
@@ -95,26 +110,28 @@ def test_blocks_agree_with_row_study(parquet, frame):
 
 # ---------------------------------------------------------------- NIST StRD through DuckDB
 @pytest.mark.skipif(not available(), reason="NIST StRD files not found in the installed scipy")
-def test_nist_float_input_through_duckdb():
-    """LRE >= 13 on every NIST StRD set against exact rational arithmetic on the same float64 inputs
-    (reference: NIST StRD data, Python fractions)."""
+@pytest.mark.parametrize("passes", [1, 2])
+def test_nist_float_input_through_duckdb(passes):
+    """LRE >= 13 on every NIST StRD set against exact rational arithmetic on the same float64 inputs,
+    one-scan (Welford, pairwise merges) and two-scan modes (reference: NIST StRD data, Python fractions)."""
     for name in SETS:
         s = read_set(name)
         df = pd.DataFrame({"level": s.levels, "y": [float(t) for t in s.texts]})
         exact = exact_oneway(df["y"].tolist(), s.levels)
-        ours = _nist_quantities(SummaryStudy(df, "y", "level", sample_size=0))
+        ours = _nist_quantities(SummaryStudy(DuckDBSource(df, passes=passes), "y", "level", sample_size=0))
         assert min(lre(ours[q], exact[q]) for q in exact) >= 13, name
 
 
 @pytest.mark.skipif(not available(), reason="NIST StRD files not found in the installed scipy")
-def test_nist_decimal_text_through_duckdb(tmp_path):
+@pytest.mark.parametrize("passes", [1, 2])
+def test_nist_decimal_text_through_duckdb(tmp_path, passes):
     """Read from their decimal text as DECIMAL by DuckDB, every set reaches LRE >= 13 against the NIST
     certified values (reference: the certified values in each file's header)."""
     for name in SETS:
         s = read_set(name)
         path = tmp_path / f"{name}.csv"
         path.write_text("level,y\n" + "\n".join(f"{g},{t}" for g, t in zip(s.levels, s.texts)) + "\n")
-        ours = _nist_quantities(SummaryStudy(path, "y", "level", sample_size=0))
+        ours = _nist_quantities(SummaryStudy(DuckDBSource(path, passes=passes), "y", "level", sample_size=0))
         scores = {q: lre(v, getattr(s, q)) for q, v in ours.items()}
         assert min(scores.values()) >= 13, (name, scores)
 

@@ -1,11 +1,13 @@
 """Cell summaries computed inside DuckDB (in-process), for Parquet or CSV files of any size.
 
 DuckDB streams the files through a grouped aggregation with a small, fixed number of
-groups, so memory stays bounded (``memory_limit``) whatever the number of rows. Each
-atom's statistics come from one SQL statement with two scans (corrected two-pass
-algorithm of Chan, Golub and LeVeque 1983): pass one gives the count and the
-compensated (Kahan) mean of the shifted response, pass two the compensated sums of the
-deviations from it and of their squares. No raw sum of squares is ever formed.
+groups, so memory stays bounded (``memory_limit``) whatever the number of rows. By
+default each atom's statistics come from one scan: every thread keeps Welford's running
+count, mean and centred sum of squares per atom (DuckDB's ``var_pop`` state) and the
+thread-partial states are merged with the pairwise formula of Chan, Golub and LeVeque
+(1983); the mean is a compensated (Kahan) sum over the count. ``passes=2`` runs the
+corrected two-pass algorithm instead (a second scan joins the rows to the pass-one means
+and sums the deviations and their squares). No raw sum of squares is ever formed.
 
 Exact input: a DECIMAL column (or plain decimal text in a CSV file, read as DECIMAL)
 has its offset subtracted in decimal arithmetic before the one rounding to float64, as
@@ -15,6 +17,8 @@ References
 ----------
 Chan, T. F., Golub, G. H. and LeVeque, R. J. (1983). Algorithms for computing the
 sample variance: analysis and recommendations. The American Statistician 37(3), 242-247.
+Welford, B. P. (1962). Note on a method for calculating corrected sums of squares and
+products. Technometrics 4(3), 419-420.
 Kahan, W. (1965). Further remarks on reducing truncation errors. CACM 8(1), 40.
 Raasveldt, M. and Muehleisen, H. (2019). DuckDB: an embeddable analytical database.
 SIGMOD '19, 1981-1984.
@@ -65,18 +69,28 @@ class DuckDBSource:
     data : path, glob or list of paths (``.parquet``/``.pq``/``.csv``/``.tsv``), or a DataFrame.
     memory_limit : DuckDB's memory cap (it spills to disk beyond it), e.g. ``"1GB"``.
     threads : worker threads (default: the machine's cores).
+    passes : 1 (default): one scan; each thread keeps Welford's running count, mean and
+        centred SS per atom (DuckDB's ``var_pop``) and the partial states are merged with
+        the pairwise formula of Chan et al.; the mean is a compensated sum over the count.
+        2: the corrected two-pass algorithm (a second scan for the deviations from the
+        pass-one means); about twice the time, the tightest error bound.
     """
 
     engine = "DuckDB"
+    samples_with_atoms = True  # atoms() keeps a pool of hash-sampled rows in its first scan
 
     def __init__(self, data: str | Path | Sequence[str | Path] | pd.DataFrame, *, memory_limit: str = "1GB",
-                 threads: int | None = None) -> None:
+                 threads: int | None = None, passes: int = 1) -> None:
+        if passes not in (1, 2):
+            raise DataError(f"passes must be 1 (Welford with pairwise merges) or 2 (corrected two-pass), not {passes!r}")
+        self.passes = passes
         duckdb = _import_duckdb()
         self.con = duckdb.connect(":memory:")
         self.con.execute(f"SET memory_limit={_lit(str(memory_limit))}")
         self.con.execute(f"SET threads={int(threads or os.cpu_count() or 1)}")
         self.con.execute("SET preserve_insertion_order=false")
         self._csv_paths: list[str] = []
+        self._pool: tuple[int, bool] | None = None  # (seed, pool holds every row) once a sample pool is kept
         if isinstance(data, pd.DataFrame):
             self.con.register("vx_frame", data.copy(deep=False))
             self._from = "vx_frame"
@@ -134,6 +148,7 @@ class DuckDBSource:
         missing = " OR ".join([f"{y} IS NULL"] + [f"{_q(f)} IS NULL" for f in factors])
         notes: list[str] = []
         scale: int | None = None
+        infinite = "false"
         if rtype.startswith("DECIMAL"):
             scale = int(rtype.split(",")[1].rstrip(") "))
             self._yv = y
@@ -163,16 +178,16 @@ class DuckDBSource:
         elif rtype in _NUMERIC:
             self._yv = f"CAST({y} AS DOUBLE)"
             missing += f" OR isnan({self._yv})"
-            inf = self.con.execute(f"SELECT count(*) FROM {self._relation} WHERE isinf({self._yv})").fetchone()[0]
-            if inf:
-                raise DataError(f"response column {response!r} has {inf} infinite values; replace them with real "
-                                "measurements or leave those rows out of the files")
+            infinite = f"isinf({self._yv})"
         else:
             raise DataError(f"response column {response!r} has type {rtype}; the analysis of variance needs a numeric response")
         self._usable = f"NOT ({missing})"
-        total, aside = self.con.execute(
-            f"SELECT count(*), count(*) FILTER (WHERE {missing}) FROM {self._relation}"
+        total, aside, inf = self.con.execute(
+            f"SELECT count(*), count(*) FILTER (WHERE {missing}), count(*) FILTER (WHERE {infinite}) FROM {self._relation}"
         ).fetchone()
+        if inf:
+            raise DataError(f"response column {response!r} has {inf} infinite values; replace them with real "
+                            "measurements or leave those rows out of the files")
         if total == aside:
             raise DataError(f"every row of {self.label} has a missing {response!r} or factor value; nothing to analyse")
         mid = self.con.execute(
@@ -202,39 +217,84 @@ class DuckDBSource:
         for j, f in enumerate(prep.factors):
             whens = [f"WHEN coalesce(({p.render('duckdb')}), false) THEN {k + 1}"
                      for k, (p, fac) in reversed(list(enumerate(moves))) if fac == f]
-            cols.append(f"CASE {' '.join(whens)} ELSE 0 END AS m{j}" if whens else f"0 AS m{j}")
+            cols.append(f"CASE {' '.join(whens)} ELSE 0 END AS vx_m{j}" if whens else f"0 AS vx_m{j}")
         return cols
 
-    def atoms(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]]) -> AtomTable:
-        """Per-atom n, mean and centred SS of the rows that pass ``filters`` (one statement, two scans)."""
+    def _kept_rows(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]],
+                   seed: int | None = None, relation: str | None = None) -> str:
+        """The kept rows with the shifted response, factor keys, move indices (and the sample hash)."""
+        fcols = [f"{_q(f)} AS vx_f{j}" for j, f in enumerate(prep.factors)]
+        extra = ""
+        if seed is not None:
+            cols = ", ".join(_q(c) for c in self.columns)
+            extra = f", {cols}, " + ("vx_h" if relation else f"hash({cols}, {int(seed)}) AS vx_h")
+        return (f"SELECT {self._shifted} AS vx_y, {', '.join(fcols + self._move_columns(prep, moves))}{extra} "
+                f"FROM {relation or self._relation} WHERE {self._where(filters)}")
+
+    def atoms(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]], *,
+              sample_size: int = 0, seed: int = 0) -> AtomTable:
+        """Per-atom n, mean and centred SS of the rows that pass ``filters`` (one scan, or two with ``passes=2``).
+
+        With ``sample_size`` on the unedited rows, the same scan keeps a pool of the rows
+        whose seeded hash falls below a threshold (about three times the sample size);
+        later samples of edited views are taken from that pool without another scan.
+        """
         k = len(prep.factors)
-        keys = [f"f{j}" for j in range(k)] + [f"m{j}" for j in range(k)]
-        fcols = [f"{_q(f)} AS f{j}" for j, f in enumerate(prep.factors)]
-        src = (f"SELECT {self._shifted} AS y, {', '.join(fcols + self._move_columns(prep, moves))} "
-               f"FROM {self._relation} WHERE {self._where(filters)}")
-        on = " AND ".join(f"s.{c} = p.{c}" for c in keys)
-        sql = (
-            f"WITH src AS NOT MATERIALIZED ({src}), "
-            f"pass1 AS (SELECT {', '.join(keys)}, count(*) AS n, fsum(y) / count(*) AS mean FROM src GROUP BY ALL) "
-            f"SELECT {', '.join('p.' + c for c in keys)}, p.n, p.mean, fsum(s.y - p.mean) AS rs, "
-            f"fsum((s.y - p.mean) * (s.y - p.mean)) AS r2 "
-            f"FROM src s JOIN pass1 p ON {on} GROUP BY ALL ORDER BY ALL"
+        moved = {f for _, f in moves}
+        # Factors without row moves group by their value alone (a constant move index costs a grouping column).
+        keys = [f"vx_f{j}" for j in range(k)] + [f"vx_m{j}" for j, f in enumerate(prep.factors) if f in moved]
+        out_keys = [f"vx_f{j}" for j in range(k)] + [
+            f"vx_m{j}" if f in moved else f"0 AS vx_m{j}" for j, f in enumerate(prep.factors)]
+        smp = ""
+        pooling = bool(sample_size) and not filters and not moves and self._pool is None
+        if pooling:
+            frac = min(1.0, 3.0 * sample_size / max(prep.rows_total - prep.rows_set_aside, 1))
+            limit = min(int(frac * 2.0**64), 2**64 - 1)
+            fields = ", ".join([f"{_q(c)} := {_q(c)}" for c in self.columns] + ["vx_h := vx_h"])
+            smp = f", list(struct_pack({fields})) FILTER (WHERE vx_h <= CAST('{limit}' AS UBIGINT)) AS vx_sample"
+        welford = ", var_pop(vx_y) * count(*) AS vx_m2" if self.passes == 1 else ""
+        self.con.execute(
+            f"CREATE OR REPLACE TEMP TABLE vx_pass1 AS SELECT {', '.join(keys)}, count(*) AS vx_n, "
+            f"fsum(vx_y) / count(*) AS vx_mean{welford}{smp} "
+            f"FROM ({self._kept_rows(prep, filters, moves, seed if pooling else None)}) GROUP BY ALL"
         )
-        rows = self.con.execute(sql).fetchall()
+        if pooling:
+            self.con.execute("CREATE OR REPLACE TEMP TABLE vx_pool AS "
+                             "SELECT unnest(vx_sample, recursive := true) FROM vx_pass1")
+            self._pool = (int(seed), frac >= 1.0)
+        if self.passes == 1:
+            rows = self.con.execute(
+                f"SELECT {', '.join(out_keys)}, vx_n, vx_mean, 0.0, vx_m2 FROM vx_pass1 ORDER BY ALL"
+            ).fetchall()
+        else:
+            on = " AND ".join(f"s.{c} = p.{c}" for c in keys)
+            rows = self.con.execute(
+                f"SELECT {', '.join(c if ' AS ' in c else 'p.' + c for c in out_keys)}, p.vx_n, p.vx_mean, "
+                f"fsum(s.vx_y - p.vx_mean), "
+                f"fsum((s.vx_y - p.vx_mean) * (s.vx_y - p.vx_mean)) "
+                f"FROM ({self._kept_rows(prep, filters, moves)}) s JOIN vx_pass1 p ON {on} GROUP BY ALL ORDER BY ALL"
+            ).fetchall()
         return _atom_table(prep, rows)
 
     def sample(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]],
                size: int, seed: int) -> pd.DataFrame:
         """A seeded sample of ``size`` rows that pass ``filters``: the rows with the smallest hash of
-        their values and the seed (the same rows on every run and thread count)."""
-        cols = ", ".join(_q(c) for c in self.columns)
-        sql = (
-            f"SELECT {cols}, {self._shifted} AS vx_y, {', '.join(self._move_columns(prep, moves))}, "
-            f"hash({cols}, {int(seed)}) AS vx_h FROM {self._relation} WHERE {self._where(filters)} "
-            f"ORDER BY vx_h, {cols} LIMIT {int(size)}"
-        )
-        frame = self.con.execute(sql).fetchdf()
-        return frame.drop(columns=["vx_h"])
+        their values and the seed (the same rows on every run and thread count).
+
+        Taken from the pool kept by :meth:`atoms` when that holds enough rows, else by a scan.
+        """
+        frame = None
+        if self._pool is not None and self._pool[0] == int(seed):
+            sql = (f"SELECT * EXCLUDE (vx_h) FROM ({self._kept_rows(prep, filters, moves, seed, 'vx_pool')}) "
+                   f"ORDER BY vx_h LIMIT {int(size)}")
+            frame = self.con.execute(sql).fetchdf()
+            if len(frame) < size and not self._pool[1]:
+                frame = None
+        if frame is None:
+            sql = (f"SELECT * EXCLUDE (vx_h) FROM ({self._kept_rows(prep, filters, moves, seed)}) "
+                   f"ORDER BY vx_h LIMIT {int(size)}")
+            frame = self.con.execute(sql).fetchdf()
+        return frame.drop(columns=[c for c in frame.columns if c.startswith("vx_f")])
 
 
 def _atom_table(prep: Prepared, rows: list[tuple]) -> AtomTable:

@@ -169,7 +169,7 @@ class SparkSource:
             for k, (p, fac) in enumerate(moves):  # later moves win: applied last
                 if fac == f:
                     expr = F.when(F.coalesce(F.expr(p.render("spark")), F.lit(False)), F.lit(k + 1)).otherwise(expr)
-            out.append(expr.cast("long").alias(f"m{j}"))
+            out.append(expr.cast("long").alias(f"vx_m{j}"))
         return out
 
     def atoms(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]]) -> AtomTable:
@@ -180,7 +180,7 @@ class SparkSource:
         keys = [f"f{j}" for j in range(k)] + [f"m{j}" for j in range(k)]
         sel = self._kept(filters).select(
             self._shifted.alias("y"), *[self._col(f).alias(f"f{j}") for j, f in enumerate(prep.factors)],
-            *self._moves(prep, moves),
+            *[m.alias(f"m{j}") for j, m in enumerate(self._moves(prep, moves))],
         )
         schema = T.StructType(
             [T.StructField(f"f{j}", self.types[f]) for j, f in enumerate(prep.factors)]

@@ -110,7 +110,7 @@ class SummaryStudy(Study):
         self.summary_data = SummaryData(source.describe(), tuple(source.columns))
         self._atom_cache: dict[tuple, AtomTable] = {}
         self._sample_cache: dict[tuple, tuple[Dataset, pd.DataFrame]] = {}
-        atoms = source.atoms(self.prepared, (), ())
+        atoms = self._query_atoms((), ())
         keys = {}
         for j, f in enumerate(spec.columns):
             keys[f] = level_order(atoms.raw[j], f in self.prepared.numeric_factors)
@@ -134,21 +134,25 @@ class SummaryStudy(Study):
     def _atoms(self, view: SummaryView) -> AtomTable:
         key = view.engine_state()
         if key not in self._atom_cache:
-            self._atom_cache[key] = self.source.atoms(self.prepared, view.filters, view.moves)
+            self._atom_cache[key] = self._query_atoms(view.filters, view.moves)
         return self._atom_cache[key]
+
+    def _query_atoms(self, filters: tuple, moves: tuple) -> AtomTable:
+        if self.sample_size and getattr(self.source, "samples_with_atoms", False):
+            return self.source.atoms(self.prepared, filters, moves, sample_size=self.sample_size, seed=self.seed)
+        return self.source.atoms(self.prepared, filters, moves)
 
     def _sample(self, view: SummaryView) -> tuple[Dataset, pd.DataFrame]:
         key = view.engine_state()
         if key not in self._sample_cache:
-            frame = self.source.sample(self.prepared, view.filters, view.moves, self.sample_size, self.seed)
-            frame = frame.reset_index(drop=True)
-            table = frame[[c for c in frame.columns if not (c == "vx_y" or (c.startswith("m") and c[1:].isdigit()))]]
-            if len(frame):
-                ds = build_dataset(table, self.spec.response, self.spec.columns)
-            else:
-                ds = None
-            self._sample_cache[key] = (ds, frame)  # type: ignore[assignment]
+            self._store_sample(key, self.source.sample(self.prepared, view.filters, view.moves, self.sample_size, self.seed))
         return self._sample_cache[key]
+
+    def _store_sample(self, key: tuple, frame: pd.DataFrame) -> None:
+        frame = frame.reset_index(drop=True)
+        table = frame[[c for c in frame.columns if not str(c).startswith("vx_")]]
+        ds = build_dataset(table, self.spec.response, self.spec.columns) if len(frame) else None
+        self._sample_cache[key] = (ds, frame)  # type: ignore[assignment]
 
     def sample_results(self) -> Results:
         """The row analysis of the current sample (kept rows only): for tests that need rows.
@@ -230,7 +234,7 @@ class SummaryStudy(Study):
 
     def _sample_keys(self, frame: pd.DataFrame) -> list[list[str]]:
         return [
-            [MOVE_PREFIX + str(int(m)) if m else _label(v) for v, m in zip(frame[f].tolist(), frame[f"m{j}"].tolist())]
+            [MOVE_PREFIX + str(int(m)) if m else _label(v) for v, m in zip(frame[f].tolist(), frame[f"vx_m{j}"].tolist())]
             for j, f in enumerate(self.spec.columns)
         ]
 
