@@ -274,10 +274,10 @@ def robustness_sweep(
         table[c] = nullable(table[c].astype(float).to_numpy())
     table = table.sort_values(["rank"], na_position="last").reset_index(drop=True)
     table.insert(0, "specification", np.arange(1, len(table) + 1))
-    choices = {"outlier rule": outlier_rules, "test": tests, "transform": tuple(responses), "merges": None}
+    merge_names = tuple(sorted(set(table["merges"]), key=lambda s: (s != "none", s)))
+    choices: dict[str, tuple[str, ...]] = {"outlier rule": outlier_rules, "test": tests,
+                                           "transform": tuple(responses), "merges": merge_names}
     defaults = {"outlier rule": outlier_rules[0], "test": tests[0], "transform": next(iter(responses), None), "merges": "none"}
-    merge_names = sorted(set(table["merges"]), key=lambda s: (s != "none", s))
-    choices["merges"] = tuple(merge_names)
 
     def pick(spec: dict) -> pd.Series:
         m = np.ones(len(table), dtype=bool)
