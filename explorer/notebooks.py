@@ -41,12 +41,9 @@ ex.Explorer(study)"""),
 Which panels, if left out, would flip it? Which regroupings of nozzles would? Each scan
 adds the alternatives it examined to the study's disclosure count."""),
     ("code", """\
-from explorer.core.flip import flip_finder
-from explorer.core.regroup import regroup_scan
-
-flip_finder(study)"""),
+study.flip_finder()"""),
     ("code", """\
-regroup_scan(study, moves=False)"""),
+study.regroup_scan(moves=False)"""),
     ("markdown", """\
 ## Edit, with reasons
 

@@ -139,7 +139,7 @@ def sensitivity_part(study: "Study", *, charts: bool = True) -> Part:
     except Exception as exc:  # a failing optional part must not stop the hand-off
         return Part(title=title, note=f"could not be computed on this study: {exc}")
     parts = [summary._repr_html_()]
-    if charts:
+    if charts and summary.curve is not None:
         svg, why = curve_svg(summary.curve, summary.alpha)
         parts.append(f"<figure class='vx-chart'>{svg}</figure>" if svg else f"<p class='note'>{html.escape(why or '')}</p>")
     parts.append(curve_html(summary))

@@ -20,11 +20,13 @@ Simonsohn, U., Simmons, J. P. and Nelson, L. D. (2020). Nature Human Behaviour 4
 from __future__ import annotations
 
 import html
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
+from ..core.errors import DesignError
 from ..core.tables import fmt, html_table
 
 if TYPE_CHECKING:
@@ -40,40 +42,46 @@ def _ids(rows: object) -> str:
 
 @dataclass(frozen=True, kw_only=True, eq=False)
 class SensitivitySummary:
-    """Headline fragility figures of the current decision (see the module docstring)."""
+    """Headline fragility figures of the current decision (see the module docstring).
+
+    A scan that does not apply to the study's design leaves its fields ``None`` and says
+    why in ``notes``.
+    """
 
     decision: str
     alpha: float
-    single_flip_rows: tuple
+    single_flip_rows: tuple | None
     smallest_flip_rows: tuple | None
+    smallest_flip_found: bool
     smallest_flip_method: str
-    merge_flips: tuple[tuple[str, str], ...]
+    merge_flips: tuple[tuple[str, str], ...] | None
     merges_examined: int
     move_flips: int
     moves_examined: int
     share_agreeing: float | None
     n_specifications: int
-    curve: pd.DataFrame
+    curve: pd.DataFrame | None
     strongest_choice: dict | None
     examined: int
     notes: tuple[str, ...] = field(default=())
 
     def lines(self) -> list[tuple[str, str]]:
-        """(question, answer) pairs, the summary's rows."""
-        if self.smallest_flip_rows is None:
-            smallest = "no set of rows within the search's reach flips it"
-        else:
-            smallest = f"{len(self.smallest_flip_rows)} row(s): {_ids(self.smallest_flip_rows)} ({self.smallest_flip_method} search)"
-        share = "—" if self.share_agreeing is None else f"{self.share_agreeing:.0%} of {self.n_specifications}"
-        merges = ", ".join(f"{a} + {b}" for a, b in self.merge_flips) or "none"
-        out = [
-            ("current decision", self.decision),
-            ("single rows whose removal flips it", _ids(self.single_flip_rows)),
-            ("fewest rows whose removal flips it", smallest),
-            (f"merges of two levels that flip it (of {self.merges_examined})", merges),
-            ("moves of one row to another level that flip it", f"{self.move_flips} of {self.moves_examined}"),
-            ("robustness sweep: specifications reaching the current decision", share),
-        ]
+        """(question, answer) pairs, the summary's rows (scans that did not run are left out)."""
+        out = [("current decision", self.decision)]
+        if self.single_flip_rows is not None:
+            out.append(("single rows whose removal flips it", _ids(self.single_flip_rows)))
+        if self.smallest_flip_rows is not None:
+            smallest = (f"{len(self.smallest_flip_rows)} row(s): {_ids(self.smallest_flip_rows)} "
+                        f"({self.smallest_flip_method} search)" if self.smallest_flip_found
+                        else "no set of rows within the search's reach flips it")
+            out.append(("fewest rows whose removal flips it", smallest))
+        if self.merge_flips is not None:
+            merges = ", ".join(f"{a} + {b}" for a, b in self.merge_flips) or "none"
+            out.append((f"merges of two levels that flip it (of {self.merges_examined})", merges))
+            out.append(("moves of one row to another level that flip it", f"{self.move_flips} of {self.moves_examined}"))
+        if self.curve is not None:
+            share = "—" if self.share_agreeing is None else f"{self.share_agreeing:.0%} of {self.n_specifications}"
+            out.append(("robustness sweep: specifications reaching the current decision", share))
         if self.strongest_choice:
             c = self.strongest_choice
             out.append(("the single analysis choice that moves p most",
@@ -92,6 +100,16 @@ class SensitivitySummary:
         return html_table(self.to_frame(), "Sensitivity of the current decision", self.notes)
 
 
+def _try(scan: Callable[[], Any], notes: list[str]) -> Any:
+    """Run one scan; a design it does not cover gives ``None`` and a note."""
+    try:
+        return scan()
+    except DesignError as exc:
+        why = str(exc).split(". Make a")[0] + "."
+        notes.append(why[:1].upper() + why[1:])
+        return None
+
+
 def sensitivity_summary(study: "Study") -> SensitivitySummary:
     """Run the scans on ``study`` (unchanged, nothing recorded) and summarise them."""
     from ..core.case_deletion import case_deletion_scan
@@ -100,30 +118,43 @@ def sensitivity_summary(study: "Study") -> SensitivitySummary:
     from ..core.sweep import robustness_sweep
 
     res = study.results
-    deletion = case_deletion_scan(study, record=False)
-    flip = flip_finder(study, record=False)
-    regroup = regroup_scan(study, record=False)
-    sweep = robustness_sweep(study, record=False)
-    examined = (int(deletion.row_ids.size) + int(flip.sets_examined) + len(regroup.merge_levels)
-                + int(regroup.move_rows.size) + int(sweep.n_specifications))
-    notes = (
-        f"These scans examined {examined} alternative analyses of the current state to describe its fragility; "
-        "they are not added to the study's count of alternatives the analyst examined.",
-    )
-    curve = sweep.table[["rank", "outlier rule", "test", "transform", "merges", "p-value", "significant"]].copy()
+    notes: list[str] = []
+    deletion = _try(lambda: case_deletion_scan(study, record=False), notes)
+    flip = _try(lambda: flip_finder(study, record=False), notes)
+    regroup = _try(lambda: regroup_scan(study, record=False), notes)
+    sweep = _try(lambda: robustness_sweep(study, record=False), notes)
+    if deletion is None and flip is None and regroup is None and sweep is None:
+        raise DesignError(notes[0] if notes else "no sensitivity scan applies to this study")
+    examined = ((int(deletion.row_ids.size) if deletion else 0) + (int(flip.sets_examined) if flip else 0)
+                + (len(regroup.merge_levels) + int(regroup.move_rows.size) if regroup else 0)
+                + (int(sweep.n_specifications) if sweep else 0))
+    notes.insert(0, f"These scans examined {examined} alternative analyses of the current state to describe its "
+                    "fragility; they are not added to the study's count of alternatives the analyst examined.")
+    if sweep is not None:
+        notes.extend(sweep.notes)
+    curve = None if sweep is None else sweep.table[
+        ["rank", "outlier rule", "test", "transform", "merges", "p-value", "significant"]].copy()
     return SensitivitySummary(
         decision=res.decision(), alpha=study.spec.alpha,
-        single_flip_rows=tuple(deletion.flip_rows),
-        smallest_flip_rows=tuple(flip.rows) if flip.found else None, smallest_flip_method=flip.method,
-        merge_flips=tuple(regroup.merge_flips), merges_examined=len(regroup.merge_levels),
-        move_flips=len(regroup.move_flips), moves_examined=int(regroup.move_rows.size),
-        share_agreeing=sweep.share_agreeing, n_specifications=int(sweep.n_specifications),
-        curve=curve, strongest_choice=sweep.strongest_choice, examined=examined, notes=notes + tuple(sweep.notes),
+        single_flip_rows=None if deletion is None else tuple(deletion.flip_rows),
+        smallest_flip_rows=None if flip is None else tuple(flip.rows),
+        smallest_flip_found=bool(flip is not None and flip.found),
+        smallest_flip_method="" if flip is None else flip.method,
+        merge_flips=None if regroup is None else tuple(regroup.merge_flips),
+        merges_examined=0 if regroup is None else len(regroup.merge_levels),
+        move_flips=0 if regroup is None else len(regroup.move_flips),
+        moves_examined=0 if regroup is None else int(regroup.move_rows.size),
+        share_agreeing=None if sweep is None else sweep.share_agreeing,
+        n_specifications=0 if sweep is None else int(sweep.n_specifications),
+        curve=curve, strongest_choice=None if sweep is None else sweep.strongest_choice,
+        examined=examined, notes=tuple(dict.fromkeys(notes)),
     )
 
 
 def curve_html(summary: SensitivitySummary) -> str:
-    """The specification curve as a table (the chart sits beside it in the report)."""
+    """The specification curve as a table (the chart sits beside it in the report); '' without a sweep."""
+    if summary.curve is None:
+        return ""
     shown = summary.curve.assign(significant=["yes" if v else "no" for v in summary.curve["significant"]])
     return html_table(shown, html.escape(
         f"Specification curve: {summary.n_specifications} specifications ranked by p-value"))
