@@ -232,3 +232,17 @@ def test_demo_serves_the_notebook_on_loopback(tmp_path):
         except Exception:
             proc.kill()
             proc.wait()
+
+
+def test_missing_server_or_notebook_is_exit_5(capsys, monkeypatch, tmp_path):
+    import importlib.util
+
+    import explorer.cli as cli
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec", lambda name, *a: None if name == "jupyterlab" else real(name, *a))
+    code, _, err = run(capsys, "demo", "--dry-run")
+    assert code == 5 and "jupyterlab is not installed" in err and "[widget]" in err
+    monkeypatch.setattr(cli, "PROJECT_ROOT", tmp_path)
+    code, _, err = run(capsys, "demo", "--dry-run")
+    assert code == 5 and "demo notebook is not at" in err
