@@ -134,3 +134,32 @@ def test_records_the_search():
     res = flip_finder(study)
     assert study.disclosure.specifications == res.sets_examined > 0
     assert res.disclosure is not None and "alternative analyses" in res._repr_html_()
+
+
+def _two_way_pair() -> tuple[pd.DataFrame, pd.DataFrame]:
+    rng = np.random.default_rng(4)
+    a = rng.choice(list("xyz"), 40)
+    b = rng.choice(list("pq"), 40)
+    first = pd.DataFrame({"a": a, "b": b, "y": rng.normal(size=40) + (a == "x") * 0.9 + (b == "p") * 0.5})
+    second = pd.DataFrame({"a": a, "b": b, "y": rng.normal(size=40) + (a == "x") * 1.3 + (b == "p") * 0.5})
+    return first, second
+
+
+def test_two_way_flip_single_row_and_greedy_match_statsmodels():
+    """Two-way with interaction: the flip set's p-values after each step equal statsmodels anova_lm(typ=2) refits;
+    the single-row case is found exactly, the two-row case greedily; the user's study keeps no edits."""
+    import statsmodels.formula.api as smf
+    from statsmodels.stats.anova import anova_lm
+
+    for df, size, method in zip(_two_way_pair(), (1, 2), ("exact", "greedy")):
+        study = ex.Study(df, "y", ["a", "b"])
+        res = flip_finder(study)
+        assert res.found and len(res.rows) == size and res.method == method and res.exact_up_to == 1
+        for k, p in enumerate(res.pvalues):
+            d = df.drop(index=list(res.rows[: k + 1]))
+            ref = anova_lm(smf.ols("y ~ C(a) * C(b)", d).fit(), typ=2).loc["C(a)", "PR(>F)"]
+            assert p == pytest.approx(ref, rel=1e-9)
+        assert (res.pvalues[-1] < 0.05) != res.base_significant
+        assert study.edits == () and study.disclosure.specifications == res.sets_examined
+    with pytest.raises(ExplorerError, match="one-factor"):
+        flip_finder(ex.Study(df, "y", ["a", "b"]), pair=("x", "y"))

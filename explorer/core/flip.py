@@ -252,6 +252,11 @@ def flip_finder(
     """
     if method not in ("auto", "exact", "greedy"):
         raise ExplorerError(f"method must be 'auto', 'exact' or 'greedy', not {method!r}")
+    if not study.spec.is_oneway:  # type: ignore[attr-defined]
+        if pair is not None:
+            raise ExplorerError("pairwise flips are searched in one-factor studies; for this design search the "
+                                "F test of the first factor (leave out pair=)")
+        return _factorial_flip(study, method, max_steps, alpha, record)
     data = oneway_input(study, "the flip finder")
     a = data.alpha if alpha is None else float(alpha)
     pair_idx = None
@@ -333,3 +338,97 @@ def _order_within(scorer: _Scorer, rows: list[int], want_sig: bool) -> list[int]
         left.remove(j)
         keep[j] = False
     return out
+
+
+def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | None, record: bool) -> FlipSearch:
+    """Flip finder for factorial and block designs, on the first factor's F test.
+
+    Exact for single rows (the case-deletion scan covers every row); beyond one row,
+    greedy: leave out the row that moves the F test furthest toward the other decision
+    on a private copy of the study, re-scan, repeat. The user's study is not changed.
+    """
+    from .case_deletion import case_deletion_scan
+    from .errors import EditError
+    from .study import Study
+
+    spec = study.spec  # type: ignore[attr-defined]
+    a = float(spec.alpha if alpha is None else alpha)
+    res = study.results  # type: ignore[attr-defined]
+    base_p = res.pvalue()
+    base_sig = base_p is not None and base_p < a
+    want_sig = not base_sig
+    term = f"F test of {res.main_term}"
+    scan = case_deletion_scan(study, alpha=a, record=False)
+    examined = int(scan.row_ids.size)
+    notes: list[str] = []
+    found = False
+    rows: list = []
+    pvals: list[float | None] = []
+    groups: list[str] = []
+    covered = 0
+    at_size: int | None = None
+
+    def margins(sc) -> np.ndarray:  # type: ignore[no-untyped-def]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            crit = special.fdtri(sc.df_between.astype(float), sc.df_within.astype(float), 1 - a)
+            return np.where(sc.status == 0, sc.statistic / crit, np.nan)
+
+    if method in ("auto", "exact"):
+        covered = 1
+        m = margins(scan)
+        hit = np.isfinite(m) & ((m > 1) if want_sig else (m <= 1))
+        if hit.any():
+            idx = np.flatnonzero(hit)
+            j = idx[np.argmax(m[idx])] if want_sig else idx[np.argmin(m[idx])]
+            found, at_size = True, int(hit.sum())
+            rows, pvals, groups = [scan.row_ids[j].item()], [float(scan.pvalue[j])], [str(scan.group[j])]
+            notes.append(f"Exact search over single rows (the case-deletion scan): {at_size} row(s) flip the decision.")
+        else:
+            notes.append("Exact search: no single row flips the decision (sets of two or more rows are searched "
+                         "exhaustively in one-factor studies only).")
+    if not found and method in ("auto", "greedy"):
+        tmp = Study.from_dataset(study.dataset, spec)  # type: ignore[attr-defined]
+        for e in study.edits:  # type: ignore[attr-defined]
+            tmp.apply(e)
+        rows, pvals, groups = [], [], []
+        sc = scan
+        for _ in range(max_steps):
+            m = margins(sc)
+            score = np.where(np.isfinite(m), m if want_sig else -m, -np.inf)
+            moved = False
+            for j in np.argsort(-score, kind="stable"):
+                if not np.isfinite(score[j]):
+                    break
+                try:
+                    tmp.drop([sc.row_ids[j].item()], reason="flip finder (private copy)")
+                except EditError:
+                    continue
+                rows.append(sc.row_ids[j].item())
+                groups.append(str(sc.group[j]))
+                pvals.append(tmp.results.pvalue())
+                moved = True
+                break
+            if not moved:
+                break
+            p_now = pvals[-1]
+            if p_now is not None and ((p_now < a) if want_sig else (p_now >= a)):
+                found = True
+                break
+            sc = case_deletion_scan(tmp, alpha=a, record=False)
+            examined += int(sc.row_ids.size)
+        method_used = "greedy"
+        notes.append("Greedy search: each step leaves out the row that moves the F test furthest toward the other "
+                     "decision, then re-scans; the set need not be the smallest possible"
+                     + (" (no single row flips it: exact search)." if covered else "."))
+        if not found:
+            notes.append(f"Greedy search stopped after {len(rows)} removal(s) without flipping the decision.")
+    else:
+        method_used = "exact"
+    if record:
+        study.record_search("flip finder", examined)  # type: ignore[attr-defined]
+    return FlipSearch(
+        target=term, alpha=a, base_significant=base_sig, base_pvalue=base_p, found=found, method=method_used,
+        rows=tuple(rows), groups=tuple(groups), pvalues=tuple(pvals), exact_up_to=covered, sets_examined=examined,
+        flipping_sets_at_size=at_size, disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        notes=tuple(notes),
+    )
