@@ -114,6 +114,12 @@ def _check_path(path: str, what: str) -> Path:
     return p
 
 
+def _about(path: Path, exc: Exception) -> str:
+    """The error message, naming the edit file unless it already does."""
+    text = str(exc)
+    return text if repr(path.name) in text else f"edit file {path.name!r}: {text}"
+
+
 def _spec_conflict(saved: ModelSpec, args: argparse.Namespace) -> str | None:
     asked = []
     if args.response and args.response != saved.response:
@@ -122,6 +128,8 @@ def _spec_conflict(saved: ModelSpec, args: argparse.Namespace) -> str | None:
         asked.append(f"--factor {args.factor} but the file has {list(saved.factors)}")
     if args.block and tuple(args.block) != saved.blocks:
         asked.append(f"--block {args.block} but the file has {list(saved.blocks)}")
+    if args.alpha is not None and args.alpha != saved.alpha:
+        asked.append(f"--alpha {args.alpha:g} but the file has {saved.alpha:g}")
     return "; ".join(asked) or None
 
 
@@ -134,15 +142,15 @@ def load_study(args: argparse.Namespace) -> Study:
             doc = read_study_file(edits)
             saved = ModelSpec.from_dict(doc["spec"])
         except (ExplorerError, KeyError, TypeError) as exc:
-            raise CommandError(EXIT_BAD_EDITS, f"edit file {edits.name!r}: {exc}") from None
+            raise CommandError(EXIT_BAD_EDITS, _about(edits, exc)) from None
         conflict = _spec_conflict(saved, args)
         if conflict:
             raise CommandError(EXIT_BAD_EDITS, f"edit file {edits.name!r} was saved for another model: {conflict}; "
-                                               "leave out --response/--factor to use the file's")
+                                               "leave those options out to use the file's")
         try:
             study = Study.from_dict(doc, data)
         except ReplayError as exc:
-            raise CommandError(EXIT_BAD_EDITS, f"edit file {edits.name!r}: {exc}") from None
+            raise CommandError(EXIT_BAD_EDITS, _about(edits, exc)) from None
         return study
     if not args.response or not args.factor:
         missing = [n for n, v in (("--response", args.response), ("--factor", args.factor)) if not v]
@@ -249,7 +257,7 @@ def _app(args: argparse.Namespace) -> int:
         doc = read_study_file(study_file)
         Study.from_dict(doc, data)  # refuse here, with a clear message, rather than in the page
     except ExplorerError as exc:
-        raise CommandError(EXIT_BAD_EDITS, f"study file {study_file.name!r}: {exc}") from None
+        raise CommandError(EXIT_BAD_EDITS, _about(study_file, exc)) from None
     _need("voila", "widget")
     with tempfile.TemporaryDirectory(prefix="variance-explorer-app-") as tmp:
         page = Path(tmp) / "explorer.ipynb"
