@@ -163,3 +163,12 @@ def test_two_way_flip_single_row_and_greedy_match_statsmodels():
         assert study.edits == () and study.disclosure.specifications == res.sets_examined
     with pytest.raises(ExplorerError, match="one-factor"):
         flip_finder(ex.Study(df, "y", ["a", "b"]), pair=("x", "y"))
+
+
+def test_string_row_ids_come_back_as_given(demo_csv):
+    """Demo data indexed by panel id: the flip rows are the panel ids (one- and two-factor); the lone row of the
+    demo's planted pair that flips it alone is P1007 (documented in data/README.md)."""
+    df = pd.read_csv(demo_csv).set_index("panel")
+    assert flip_finder(ex.Study(df, "thickness_um", "nozzle")).rows == ("P1007",)
+    res = flip_finder(ex.Study(df, "thickness_um", ["nozzle", "shift"]), method="greedy")
+    assert res.rows[0] == "P1007" and isinstance(res.rows[0], str)

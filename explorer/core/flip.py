@@ -314,12 +314,17 @@ def flip_finder(
         study.record_search("flip finder", examined)  # type: ignore[attr-defined]
     return FlipSearch(
         target=target, alpha=a, base_significant=base_sig, base_pvalue=base_p, found=found, method=used,
-        rows=tuple(data.row_ids[j].item() if hasattr(data.row_ids[j], "item") else data.row_ids[j] for j in rows_found),
+        rows=tuple(_py_id(data.row_ids[j]) for j in rows_found),
         groups=tuple(data.labels[data.codes[j]] for j in rows_found), pvalues=tuple(pvals),
         exact_up_to=covered, sets_examined=examined, flipping_sets_at_size=at_size,
         disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
         notes=tuple(notes),
     )
+
+
+def _py_id(v: object) -> object:
+    """A row id as a plain Python value (numpy integers become int)."""
+    return v.item() if isinstance(v, np.generic) else v
 
 
 def _order_within(scorer: _Scorer, rows: list[int], want_sig: bool) -> list[int]:
@@ -381,7 +386,7 @@ def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | N
             idx = np.flatnonzero(hit)
             j = idx[np.argmax(m[idx])] if want_sig else idx[np.argmin(m[idx])]
             found, at_size = True, int(hit.sum())
-            rows, pvals, groups = [scan.row_ids[j].item()], [float(scan.pvalue[j])], [str(scan.group[j])]
+            rows, pvals, groups = [_py_id(scan.row_ids[j])], [float(scan.pvalue[j])], [str(scan.group[j])]
             notes.append(f"Exact search over single rows (the case-deletion scan): {at_size} row(s) flip the decision.")
         else:
             notes.append("Exact search: no single row flips the decision (sets of two or more rows are searched "
@@ -400,10 +405,10 @@ def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | N
                 if not np.isfinite(score[j]):
                     break
                 try:
-                    tmp.drop([sc.row_ids[j].item()], reason="flip finder (private copy)")
+                    tmp.drop([_py_id(sc.row_ids[j])], reason="flip finder (private copy)")
                 except EditError:
                     continue
-                rows.append(sc.row_ids[j].item())
+                rows.append(_py_id(sc.row_ids[j]))
                 groups.append(str(sc.group[j]))
                 pvals.append(tmp.results.pvalue())
                 moved = True
