@@ -319,6 +319,24 @@ def test_bad_columns_and_values(frame, tmp_path):
         SummaryStudy(bad, "y", "g")
     with pytest.raises(DataError, match="no file"):
         SummaryStudy(tmp_path / "missing.parquet", "y", "g")
+    with pytest.raises(DataError, match="1 infinite values"):
+        SummaryStudy(pd.DataFrame({"g": ["a", "a", "b", "b"], "y": [1.0, np.inf, 2.0, 3.0]}), "y", "g")
+
+
+def test_row_tools_run_on_the_sample_study(frame):
+    """sample_study(): a row study of the sample at the current view, for influence, case deletion and flips;
+    its results equal a fresh row study of the same sampled rows (reference: the row-backed study)."""
+    from explorer.core.case_deletion import case_deletion_scan
+    from explorer.core.influence import influence
+
+    s = SummaryStudy(frame, "thickness", "line", sample_size=80, seed=4)
+    s.merge_levels("line", ["L2", "L3"], into="L23", reason="same supplier")
+    ss = s.sample_study()
+    fresh = ex.Study(s.sample_frame(), "thickness", "line")
+    fresh.merge_levels("line", ["L2", "L3"], into="L23")
+    assert_same_results(ss.results, fresh.results)
+    assert any("Sample: 80 rows" in n for n in ss.results.notes)
+    assert influence(ss).n == 80 and len(case_deletion_scan(ss, record=False).to_frame()) == 80
 
 
 def test_missing_values_are_set_aside(tmp_path):

@@ -46,7 +46,7 @@ class Prepared:
     decimal_scale: int | None
     numeric_factors: tuple[str, ...]
     rows_total: int
-    rows_set_aside: int
+    rows_set_aside: int | None  # None: found from the first summary (total minus rows summarised)
     set_aside_detail: tuple[str, ...] = ()
     notes: tuple[str, ...] = field(default=())
 

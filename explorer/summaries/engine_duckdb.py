@@ -182,18 +182,16 @@ class DuckDBSource:
         else:
             raise DataError(f"response column {response!r} has type {rtype}; the analysis of variance needs a numeric response")
         self._usable = f"NOT ({missing})"
-        total, aside, inf = self.con.execute(
-            f"SELECT count(*), count(*) FILTER (WHERE {missing}), count(*) FILTER (WHERE {infinite}) FROM {self._relation}"
-        ).fetchone()
-        if inf:
-            raise DataError(f"response column {response!r} has {inf} infinite values; replace them with real "
-                            "measurements or leave those rows out of the files")
-        if total == aside:
-            raise DataError(f"every row of {self.label} has a missing {response!r} or factor value; nothing to analyse")
+        self._infinite = infinite
+        # The count of rows comes from the file metadata for Parquet; rows set aside for
+        # missing values and infinite responses are found in the first summary scan.
+        total = self.con.execute(f"SELECT count(*) FROM {self._relation}").fetchone()[0]
         mid = self.con.execute(
             f"SELECT quantile_disc(v, 0.5) FROM (SELECT {self._yv} AS v FROM {self._relation} "
             f"WHERE {self._usable} LIMIT {_OFFSET_ROWS})"
         ).fetchone()[0]
+        if mid is None:
+            raise DataError(f"every row of {self.label} has a missing {response!r} or factor value; nothing to analyse")
         offset, offset_text, exact = choose_offset(mid)
         if scale is not None:
             self._shifted = f"CAST({self._yv} - CAST({_lit(offset_text)} AS DECIMAL(38, {scale})) AS DOUBLE)"
@@ -202,10 +200,9 @@ class DuckDBSource:
         numeric = tuple(f for f in factors if self.types[f] in _NUMERIC or self.types[f].startswith("DECIMAL"))
         for f in numeric:
             notes.append(f"Factor {f!r} is numeric; each distinct value is treated as a level, not as a quantity.")
-        detail = (f"{aside} row(s) have a missing {response!r} or factor value and are set aside.",) if aside else ()
         return Prepared(response=response, factors=factors, offset=offset, offset_text=offset_text,
                         decimal_scale=scale, numeric_factors=numeric, rows_total=int(total),
-                        rows_set_aside=int(aside), set_aside_detail=detail, notes=tuple(notes))
+                        rows_set_aside=None, notes=tuple(notes))
 
     # ------------------------------------------------------------------ queries
     def _where(self, filters: Sequence[Predicate]) -> str:
@@ -248,7 +245,7 @@ class DuckDBSource:
         smp = ""
         pooling = bool(sample_size) and not filters and not moves and self._pool is None
         if pooling:
-            frac = min(1.0, 3.0 * sample_size / max(prep.rows_total - prep.rows_set_aside, 1))
+            frac = min(1.0, 3.0 * sample_size / max(prep.rows_total - (prep.rows_set_aside or 0), 1))
             limit = min(int(frac * 2.0**64), 2**64 - 1)
             fields = ", ".join([f"{_q(c)} := {_q(c)}" for c in self.columns] + ["vx_h := vx_h"])
             smp = f", list(struct_pack({fields})) FILTER (WHERE vx_h <= CAST('{limit}' AS UBIGINT)) AS vx_sample"
@@ -274,7 +271,12 @@ class DuckDBSource:
                 f"fsum((s.vx_y - p.vx_mean) * (s.vx_y - p.vx_mean)) "
                 f"FROM ({self._kept_rows(prep, filters, moves)}) s JOIN vx_pass1 p ON {on} GROUP BY ALL ORDER BY ALL"
             ).fetchall()
-        return _atom_table(prep, rows)
+        table = _atom_table(prep, rows)
+        if not (np.all(np.isfinite(table.mean)) and np.all(np.isfinite(table.m2))):
+            inf = self.con.execute(f"SELECT count(*) FROM {self._relation} WHERE {self._infinite}").fetchone()[0]
+            raise DataError(f"response column {prep.response!r} has {inf} infinite values; replace them with real "
+                            "measurements or leave those rows out of the files")
+        return table
 
     def sample(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]],
                size: int, seed: int) -> pd.DataFrame:

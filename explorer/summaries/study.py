@@ -29,7 +29,7 @@ from ..core.analysis import analyze
 from ..core.cells import layout_cells
 from ..core.dataset import Dataset, _label, build_dataset
 from ..core.edits import Edit, MergeLevels, RenameLevel, edit_from_dict
-from ..core.errors import DesignError, EditError, ReplayError
+from ..core.errors import DataError, DesignError, EditError, ReplayError
 from ..core.factorial import factorial_from_cells
 from ..core.fitrows import RowSet
 from ..core.groupstats import pool_groups
@@ -111,6 +111,13 @@ class SummaryStudy(Study):
         self._atom_cache: dict[tuple, AtomTable] = {}
         self._sample_cache: dict[tuple, tuple[Dataset, pd.DataFrame]] = {}
         atoms = self._query_atoms((), ())
+        if atoms.n_total == 0:
+            raise DataError(f"every row has a missing {spec.response!r} or factor value; nothing to analyse")
+        if self.prepared.rows_set_aside is None:
+            aside = self.prepared.rows_total - atoms.n_total
+            detail = ((f"{aside} row(s) have a missing {spec.response!r} or factor value and are set aside.",)
+                      if aside else ())
+            self.prepared = dataclasses.replace(self.prepared, rows_set_aside=aside, set_aside_detail=detail)
         keys = {}
         for j, f in enumerate(spec.columns):
             keys[f] = level_order(atoms.raw[j], f in self.prepared.numeric_factors)
@@ -154,17 +161,26 @@ class SummaryStudy(Study):
         ds = build_dataset(table, self.spec.response, self.spec.columns) if len(frame) else None
         self._sample_cache[key] = (ds, frame)  # type: ignore[assignment]
 
-    def sample_results(self) -> Results:
-        """The row analysis of the current sample (kept rows only): for tests that need rows.
+    def sample_study(self) -> Study:
+        """A row study of the current sample, starting from this study's current view.
 
-        Rank-based tests, spread and normality checks read rows; on a summary-backed study
-        they run on this, and its notes say it is a sample.
+        Row-level tools (influence, case deletion, the flip finder, the regroup scan, rank
+        tests, spread and normality checks) read every kept row; on a summary-backed study
+        run them on this. Its results' notes say that it is a sample.
         """
-        res = analyze(self.dataset, self.view, self.spec)
-        n_all = self.results.n_used
-        note = (f"Computed on a seeded sample of {res.n_used} of the {n_all} rows in the analysis (seed {self.seed}), "
-                f"drawn by {self.source.engine}; the exact results are study.results.")
-        return dataclasses.replace(res, notes=res.notes + (note,))
+        view = self.view
+        note = (f"Sample: {view.n_kept} rows drawn with seed {self.seed} by {self.source.engine} from the "
+                f"{self.results.n_used} rows of a summary-backed study; the exact results come from the summaries.")
+        ds = dataclasses.replace(self.dataset, notes=self.dataset.notes + (note,))
+        study = Study.from_dataset(ds, self.spec)
+        res = analyze(ds, view, self.spec)
+        study._views[0] = view
+        study._results = {0: dataclasses.replace(res, notes=res.notes + (note,))}
+        return study
+
+    def sample_results(self) -> Results:
+        """The row analysis of the current sample (kept rows only): for tests that need rows."""
+        return self.sample_study().results
 
     def sample_frame(self) -> pd.DataFrame:
         """The current seeded sample of kept rows (all columns), e.g. for a row study of it."""
