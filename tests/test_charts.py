@@ -12,6 +12,7 @@ from statsmodels.stats.outliers_influence import OLSInfluence
 import explorer as ex
 from explorer import charts
 
+DEMO = __import__("pathlib").Path(__file__).resolve().parents[1] / "data" / "coating_thickness.csv"
 HANDBOOK_7433 = {"1": [6.9, 5.4, 5.8, 4.6, 4.0], "2": [8.3, 6.8, 7.8, 9.2, 6.5], "3": [8.0, 10.5, 8.1, 6.9, 9.3]}
 
 
@@ -106,10 +107,9 @@ def test_cooks_distance_matches_statsmodels():
     df = _handbook()
     df.loc[3, "y"] = 1.5  # one influential reading
     study = ex.Study(df, "y", "level")
-    d, note = charts.cooks_distance(study.results)
+    d = charts.influence_of(study.results).cooks_distance
     ref = OLSInfluence(ols("y ~ C(level)", data=df).fit()).cooks_distance[0]
     np.testing.assert_allclose(d, ref.to_numpy(), rtol=1e-10)
-    assert note == ""
     spec = charts.cooks_distance_chart(study.results).to_dict()
     drawn = {r["row"]: r["distance"] for r in _values(spec, _point_layer(spec))}
     assert drawn["3"] == pytest.approx(float(ref.iloc[3]))
@@ -117,8 +117,12 @@ def test_cooks_distance_matches_statsmodels():
 
 def test_cooks_distance_undefined_for_a_level_of_one():
     df = pd.DataFrame({"g": ["a", "a", "a", "b", "b", "c"], "y": [1.0, 2.0, 3.5, 4.0, 5.5, 9.0]})
-    d, note = charts.cooks_distance(ex.Study(df, "y", "g").results)
-    assert np.isnan(d[-1]) and np.isfinite(d[:-1]).all() and "no defined distance" in note
+    results = ex.Study(df, "y", "g").results
+    d = charts.influence_of(results).cooks_distance
+    assert np.isnan(d[-1]) and np.isfinite(d[:-1]).all()
+    spec = charts.cooks_distance_chart(results).to_dict()
+    assert [r["distance"] for r in _values(spec, _point_layer(spec))][-1] is None
+    assert any("leverage 1" in s for s in spec["title"]["subtitle"])
 
 
 def test_partition_chart_shows_baseline_and_current():
@@ -144,3 +148,27 @@ def test_history_chart_has_one_point_per_step():
 def test_thin_keeps_everything_under_the_limit():
     t = charts.thin(10, 20)
     assert t.note == "" and list(t.positions) == list(range(10))
+
+
+def test_case_deletion_chart_marks_the_rows_that_flip():
+    """Values are the core's case-deletion scan (checked against refits in test_case_deletion)."""
+    from explorer.core.case_deletion import case_deletion_scan
+
+    study = ex.Study(str(DEMO), "thickness_um", "nozzle")
+    scan = case_deletion_scan(study, record=False)
+    spec = charts.case_deletion_chart(scan).to_dict()
+    rows = _values(spec, _point_layer(spec))
+    flips = {r["row"] for r in rows if r["effect"] == "flips the decision"}
+    assert flips == {str(r) for r in scan.flip_rows} and len(rows) == study.results.n_used
+    assert spec["params"][0]["name"] == "pick"
+
+
+def test_specification_curve_has_every_specification_in_rank_order():
+    from explorer.core.sweep import robustness_sweep
+
+    sweep = robustness_sweep(ex.Study(str(DEMO), "thickness_um", "nozzle"), record=False)
+    spec = charts.specification_curve_chart(sweep).to_dict()
+    rows = _values(spec, _point_layer(spec))
+    assert len(rows) == sweep.n_specifications
+    by_rank = sorted(rows, key=lambda r: r["rank"])
+    assert [r["p"] for r in by_rank] == sorted(r["p"] for r in rows)

@@ -175,13 +175,13 @@ def test_large_data_draws_a_sample_but_the_tables_use_every_row():
 
 
 def test_registered_panels_plug_in_and_a_broken_one_cannot_break_the_explorer(demo_csv):
-    register_panel(Panel(key="t_extra", title="Extra view", group="Tests and comparisons",
+    register_panel(Panel(key="t_extra", title="Extra view", group="Tests",
                          build=lambda ctx: f"<b class='x'>n={ctx.results.n_used}</b>"))
-    register_panel(Panel(key="t_broken", title="Broken view", group="Tests and comparisons",
+    register_panel(Panel(key="t_broken", title="Broken view", group="Tests",
                          build=lambda ctx: 1 / 0))
     try:
         e = ex.explore(str(demo_csv), response="thickness_um", factors="nozzle")
-        e.tabs.selected_index = e._tab_groups.index("Tests and comparisons")
+        e.tabs.selected_index = e._tab_groups.index("Tests")
         assert e.cards["t_extra"].html.value == "<b class='x'>n=114</b>"
         assert "could not be drawn" in e.cards["t_broken"].html.value
         assert "Broken view: ZeroDivisionError" in e.status.value
@@ -204,3 +204,34 @@ def test_hidden_tabs_redraw_only_when_opened(demo):
     assert card.chart.spec == spec0  # not redrawn while hidden
     e.tabs.selected_index = e._tab_groups.index(card.panel.group)
     assert card.chart.spec != spec0
+
+
+def test_battery_panels_follow_the_pickers(demo):
+    """The featured test is the core's (``explorer.core.omnibus.welch_f``, checked against scipy in test_omnibus)."""
+    from explorer.core.omnibus import welch_f
+
+    e = demo
+    e.omnibus_picker.value = "welch"
+    e.comparison_picker.value = "games-howell"
+    e.tabs.selected_index = e._tab_groups.index("Tests")
+    welch = welch_f(e.study.results)
+    assert f"Chosen test: {welch.method}</b>: statistic {fmt(welch.statistic, 5)}" in e.cards["overall_tests"].html.value
+    assert "Games-Howell" in e.cards["comparisons"].html.value
+    assert "Chosen test (Welch F)" in e.header.value
+
+
+def test_fragility_scans_run_when_opened_and_are_counted_once_per_view(demo):
+    e = demo
+    assert e.study.disclosure.specifications == 0  # hidden tab: nothing scanned yet
+    e.tabs.selected_index = e._tab_groups.index("Fragility")
+    counted = e.study.disclosure.specifications
+    assert counted > 0
+    assert f"{counted} alternative analyses examined" in e.header.value
+    assert f"{counted} alternative analyses examined" in e.cards["compare"].html.value
+    assert "1 row(s) flip the decision" in " ".join(e.cards["leave_one_out"].chart.spec["title"]["subtitle"])
+    e.refresh()  # a redraw of the same view does not scan (or count) again
+    assert e.study.disclosure.specifications == counted
+    click_point(e, 6, chart="leave_one_out")  # the flip row can be picked from the scan's chart
+    e.reason_box.value = "gauge slip"
+    e.drop_button.click()
+    assert e.study.dropped == (6,) and e.study.disclosure.specifications > counted

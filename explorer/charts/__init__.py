@@ -6,10 +6,11 @@ Row-level charts carry a click selection named ``pick`` on the ``row`` field.
 
 from .frames import MAX_POINTS, fit_frame, observation_frame, thin
 from .history import HistoryStep, history_chart
-from .influence import cooks_distance, cooks_distance_chart
+from .influence import cooks_distance_chart, influence_of
 from .observations import PICK, observations_chart
 from .partition import BASELINE_LABEL, CURRENT_LABEL, partition_chart, partition_frame
 from .residuals import normal_probability_chart, residuals_fitted_chart
+from .sensitivity import case_deletion_chart, specification_curve_chart
 
 __all__ = [
     "BASELINE_LABEL",
@@ -17,15 +18,17 @@ __all__ = [
     "MAX_POINTS",
     "PICK",
     "HistoryStep",
-    "cooks_distance",
+    "case_deletion_chart",
     "cooks_distance_chart",
     "fit_frame",
     "history_chart",
+    "influence_of",
     "normal_probability_chart",
     "observation_frame",
     "observations_chart",
     "partition_chart",
     "partition_frame",
     "residuals_fitted_chart",
+    "specification_curve_chart",
     "thin",
 ]

@@ -8,6 +8,8 @@ column of the row.
 
 from __future__ import annotations
 
+from typing import Any
+
 import altair as alt
 import pandas as pd
 
@@ -31,7 +33,7 @@ def pick_param(name: str = PICK) -> alt.Parameter:
 
 def row_marks(base: alt.Chart, pick: alt.Parameter, tooltip: list, size: int = 70, legend: bool = True) -> alt.Chart:
     """Points coloured and shaped by state; the picked rows get a thick orange ring."""
-    leg = {} if legend else {"legend": None}
+    leg: dict[str, Any] = {} if legend else {"legend": None}
     return base.mark_point(filled=True, opacity=0.85).encode(
         color=alt.Color("state:N", scale=STATE_SCALE["color"], title="row", **leg),
         shape=alt.Shape("state:N", scale=STATE_SCALE["shape"], title="row", **leg),

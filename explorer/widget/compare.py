@@ -20,8 +20,9 @@ TABLE_CSS = """
 .vx-table { border-collapse: collapse; font-size: 13px; margin: 2px 0 6px 0; }
 .vx-table caption { font-size: 13px; padding-bottom: 3px; }
 .vx-table th { text-align: left; padding: 3px 9px; border-bottom: 2px solid #999; background: #f4f4f4; }
-.vx-table td { padding: 3px 9px; border-bottom: 1px solid #e3e3e3; text-align: right; }
-.vx-table td:first-child { text-align: left; }
+.vx-table td { padding: 3px 9px; border-bottom: 1px solid #e3e3e3; text-align: left; vertical-align: top; }
+.vx-partition .vx-table td, .vx-compare .vx-table td { text-align: right; }
+.vx-partition .vx-table td:first-child, .vx-compare .vx-table td:first-child { text-align: left; }
 .vx-table tr.vx-diff td { background: #fff1df; }
 .vx-table td.vx-mark { color: #b35c00; font-weight: 600; text-align: left; }
 .vx-decision-flip { color: #9b1c1c; font-weight: 700; }

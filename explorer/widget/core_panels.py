@@ -32,7 +32,11 @@ def partition(ctx: PanelContext) -> Any:
     return partition_html(ctx.results)
 
 
-@panel("compare", "Unedited data beside current view", group="main", order=30)
+def _disclosure_token(ctx: PanelContext) -> Any:
+    return (state_token(ctx), ctx.study.disclosure)
+
+
+@panel("compare", "Unedited data beside current view", group="main", order=30, token=_disclosure_token)
 def compare(ctx: PanelContext) -> Any:
     return comparison_html(ctx.study)
 

@@ -22,7 +22,7 @@ import pandas as pd
 from explorer.charts import HistoryStep
 from explorer.core import ExplorerError, Study, StudyEvent
 
-from . import core_panels  # noqa: F401  (registers the built-in panels)
+from . import battery_panels, core_panels, fragility_panels  # noqa: F401  (register the built-in panels)
 from .compare import CAUTIONS_HTML, TABLE_CSS, disclosure_html
 from .host import PanelCard
 from .panels import PanelContext, Settings, panels_in_order
@@ -30,7 +30,7 @@ from .panels import PanelContext, Settings, panels_in_order
 __all__ = ["COMPARISON_CHOICES", "OMNIBUS_CHOICES", "Explorer", "explore"]
 
 OMNIBUS_CHOICES = [("classic F (equal variances)", "classic"), ("Welch F (unequal variances)", "welch"),
-                   ("Brown-Forsythe F (unequal variances)", "brown-forsythe")]
+                   ("Brown-Forsythe F (unequal variances)", "brown-forsythe"), ("Kruskal-Wallis (ranks)", "kruskal-wallis")]
 COMPARISON_CHOICES = [("Tukey-Kramer (all pairs)", "tukey-kramer"), ("Games-Howell (all pairs, unequal SD)", "games-howell"),
                       ("Dunnett (each level against the first)", "dunnett"), ("t tests, Holm-adjusted", "holm")]
 _ALPHAS = [0.01, 0.05, 0.10]
@@ -80,6 +80,7 @@ class Explorer(W.VBox):
         self._unsubscribe = study.on_change(self._on_study_change)
         self._batch = 0
         self._dirty = False
+        self._refreshing = False
         self._picked: tuple[Any, ...] = ()
         self._picked_from = ""
         self.history: list[HistoryStep] = []
@@ -190,7 +191,7 @@ class Explorer(W.VBox):
                                     for cs in groups.values()])
         self.tabs.titles = tuple(groups)
         self._tab_groups = list(groups)
-        self.tabs.observe(lambda _: self._refresh_tab(), "selected_index")
+        self.tabs.observe(lambda _: self.refresh(), "selected_index")
         body = W.HBox([controls, W.VBox([top, self.tabs], layout=W.Layout(flex="1 1 auto"))])
         return [W.HTML(TABLE_CSS), self.header, self.status, body, W.HTML(CAUTIONS_HTML)]
 
@@ -207,8 +208,8 @@ class Explorer(W.VBox):
         if event.kind != "search":
             what = event.edit.describe() if event.edit is not None else "all edits"
             self._record(what if event.kind == "edit" else f"{event.kind}: {what}")
-        if self._batch:
-            self._dirty = True
+        if self._batch or self._refreshing:
+            self._dirty = True  # e.g. a scan counted its alternatives while a panel was drawn
             return
         self.refresh()
 
@@ -487,6 +488,19 @@ class Explorer(W.VBox):
     # ================================================================= redraw
     def refresh(self, force: bool = False) -> None:
         """Redraw what changed: header and tables first, then charts; hidden tabs when opened."""
+        self._refreshing = True
+        try:
+            self._redraw(force)
+        finally:
+            self._refreshing = False
+        if self._dirty and not self._batch:
+            self._dirty = False
+            self._refresh_header()  # a scan added to the disclosure count while drawing
+            for card in self.cards.values():
+                if card.panel.group == "main":
+                    card.update(self._context())
+
+    def _redraw(self, force: bool) -> None:
         ctx = self._context()
         self._refresh_header()
         self._refresh_controls()
@@ -508,6 +522,26 @@ class Explorer(W.VBox):
         if errors:
             self._status("Some panels could not be drawn: " + "; ".join(errors), "warn")
 
+    def _chosen_test(self) -> str:
+        """One sentence on the overall test chosen in the picker, when it is not the classic F."""
+        choice = self.settings.omnibus
+        if choice == "classic" or not self.study.spec.is_oneway:
+            return ""
+        from explorer.core import omnibus
+
+        fn = {"welch": omnibus.welch_f, "brown-forsythe": omnibus.brown_forsythe_f,
+              "kruskal-wallis": omnibus.kruskal_wallis}.get(choice)
+        if fn is None:
+            return ""
+        try:
+            test = fn(self.study.results)
+        except ExplorerError as exc:
+            return f" <b>Chosen test:</b> not available ({html.escape(str(exc))})."
+        if test.pvalue is None:
+            return f" <b>Chosen test ({html.escape(test.method)}):</b> undefined on this view."
+        verdict = "differences detected" if test.pvalue < self.study.spec.alpha else "no differences detected"
+        return f" <b>Chosen test ({html.escape(test.method)}):</b> {verdict} (p = {test.pvalue:.4g})."
+
     def _refresh_header(self) -> None:
         res = self.study.results
         s = self.study.spec
@@ -515,7 +549,8 @@ class Explorer(W.VBox):
             f"<div class='vx-banner'><b>{html.escape(s.response)} by {html.escape(' × '.join(s.factors))}</b> "
             f"({res.n_used} rows in analysis, {len(self.study.dropped)} left out). "
             f"<b>Current view:</b> {html.escape(res.decision())}. "
-            f"<b>Unedited data:</b> {html.escape(self.study.baseline.decision())}.<br>{disclosure_html(self.study)}</div>"
+            f"<b>Unedited data:</b> {html.escape(self.study.baseline.decision())}.{self._chosen_test()}"
+            f"<br>{disclosure_html(self.study)}</div>"
         )
 
     def _refresh_controls(self) -> None:

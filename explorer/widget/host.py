@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import html
 from collections.abc import Callable, Hashable
-from typing import Any
+from typing import Any, cast
 
 import altair as alt
 import ipywidgets as W
@@ -35,6 +35,14 @@ def parse_pick(raw: dict | None) -> list[str] | None:
     sel = raw[PICK] or {}
     value = PointSelection.from_vega(PICK, signal=sel.get("value"), store=sel.get("store", [])).value
     return [str(v["row"]) for v in value if isinstance(v, dict) and "row" in v]
+
+
+def _param_names(spec: dict) -> list[str]:
+    names = [p.get("name") for p in spec.get("params", [])]
+    for key in ("layer", "vconcat", "hconcat"):
+        for sub in spec.get(key, []):
+            names += _param_names(sub)
+    return sorted(str(n) for n in names)
 
 
 class PanelCard:
@@ -105,11 +113,18 @@ class PanelCard:
     def _show_chart(self, chart: alt.TopLevelMixin) -> None:
         self.title.layout.display = "none"  # a chart carries its own title
         if self.chart is None:
-            self.chart = alt.JupyterChart(chart, embed_options=EMBED_OPTIONS)
+            self.chart = alt.JupyterChart(cast(Any, chart), embed_options=EMBED_OPTIONS)
             self.chart.add_class(f"vx-chart-{self.panel.key}")
             self.chart.observe(self._selection_changed, ["_vl_selections"])
         else:
-            self.chart.chart = chart
+            # A redraw of the same panel has the same structure with new data: the first draw
+            # was validated against the Vega-Lite schema, so the redraw skips the (slow) check
+            # and swaps the spec in place. A chart with other selections takes the full path.
+            spec = chart.to_dict(validate=False)
+            if _param_names(spec) == _param_names(self.chart.spec or {}):
+                self.chart.spec = spec
+            else:
+                self.chart.chart = cast(Any, chart)
         if self.body.children != (self.chart,):
             self.body.children = (self.chart,)
 

@@ -16,12 +16,13 @@ group and are only rebuilt when their tab is open.
 
 from __future__ import annotations
 
+import html
 from collections.abc import Callable, Hashable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
 from explorer.charts import HistoryStep
-from explorer.core import Results, Study
+from explorer.core import ExplorerError, Results, Study
 
 __all__ = [
     "PANELS",
@@ -83,7 +84,7 @@ class Panel:
 PANELS: dict[str, Panel] = {}
 
 #: Order of the tabs; groups not listed here follow in the order they were registered.
-GROUP_ORDER = ["main", "Model checks", "Tests and comparisons", "Fragility", "Baseline and history",
+GROUP_ORDER = ["main", "Model checks", "Tests", "Fragility", "Baseline and history",
                "Levels and edits"]
 
 
@@ -105,6 +106,24 @@ def panel(key: str, title: str, *, group: str = "more", order: int = 100,
     def wrap(fn: Callable[[PanelContext], Any]) -> Callable[[PanelContext], Any]:
         register_panel(Panel(key=key, title=title, build=fn, group=group, order=order, token=token, help=help))
         return fn
+
+    return wrap
+
+
+def one_factor_only(what: str) -> Callable[[Callable[[PanelContext], Any]], Callable[[PanelContext], Any]]:
+    """Wrap a builder of one-factor tools: other designs, or a view the tool refuses, get a sentence."""
+
+    def wrap(fn: Callable[[PanelContext], Any]) -> Callable[[PanelContext], Any]:
+        def built(ctx: PanelContext) -> Any:
+            if not ctx.results.spec.is_oneway:
+                return f"<div class='vx-small'>{html.escape(what)} cover one-factor analyses; this study has several factors.</div>"
+            try:
+                return fn(ctx)
+            except ExplorerError as exc:
+                return f"<div class='vx-small'>Not available for this view: {html.escape(str(exc))}</div>"
+
+        built.__doc__ = fn.__doc__
+        return built
 
     return wrap
 

@@ -58,7 +58,7 @@ def lab(tmp_path_factory: pytest.TempPathFactory, browser_ready: str) -> Iterato
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))
         port = s.getsockname()[1]
-    log = open(root / "jupyter.log", "w")
+    log = open(root / "jupyter.log", "w")  # noqa: SIM115  (closed after the server stops)
     proc = subprocess.Popen(
         [sys.executable, "-m", "jupyterlab", "--no-browser", "--allow-root", "--ip=127.0.0.1", f"--port={port}",
          f"--IdentityProvider.token={TOKEN}", f"--ServerApp.root_dir={root / 'nb'}",
@@ -81,7 +81,7 @@ def lab(tmp_path_factory: pytest.TempPathFactory, browser_ready: str) -> Iterato
     try:  # a graceful shutdown also stops the kernels
         urllib.request.urlopen(urllib.request.Request(f"{base}/api/shutdown?token={TOKEN}", method="POST"), timeout=5)
         proc.wait(timeout=20)
-    except Exception:
+    except Exception:  # noqa: BLE001  (any failure: stop it the hard way)
         proc.kill()
         proc.wait(timeout=10)
     log.close()

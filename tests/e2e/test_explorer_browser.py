@@ -110,6 +110,15 @@ def test_click_drop_and_undo_in_jupyterlab(lab, page):
     expect(page.locator(".vx-header")).to_contain_text("0 edit(s) in effect, 1 made in all (1 undone)")
     page.locator(".vx-explorer").screenshot(path=str(ARTIFACTS / "explorer-after-undo.png"))
 
+    # the other tabs draw when opened; the fragility scans add to the disclosure count
+    page.locator(".vx-explorer .lm-TabBar-tab", has_text="Tests").click()
+    expect(page.locator(".vx-panel-overall_tests")).to_contain_text("Chosen test")
+    page.locator(".vx-explorer").screenshot(path=str(ARTIFACTS / "explorer-tests-tab.png"))
+    page.locator(".vx-explorer .lm-TabBar-tab", has_text="Fragility").click()
+    expect(page.locator(".vx-chart-leave_one_out .mark-symbol path").first).to_be_visible()
+    expect(page.locator(".vx-header")).not_to_contain_text(" 0 alternative analyses examined")
+    page.locator(".vx-explorer").screenshot(path=str(ARTIFACTS / "explorer-fragility-tab.png"))
+
 
 def test_timing_at_5000_rows(lab, page):
     from playwright.sync_api import expect

@@ -1,0 +1,106 @@
+"""Fragility views: the p-value with each row left out, and the specification curve.
+
+Builders of the results of :mod:`explorer.core.case_deletion` and
+:mod:`explorer.core.sweep`. Rows whose deletion alone flips the decision are drawn in
+the pick colour and carry the ``pick`` selection, so they can be examined (and, with a
+documented reason, left out) from the chart.
+
+References
+----------
+Cook, R. D. (1977). Detection of influential observation in linear regression. Technometrics 19(1).
+Simonsohn, U., Simmons, J. P. and Nelson, L. D. (2020). Specification curve analysis.
+Nature Human Behaviour 4, 1208-1214.
+"""
+
+from __future__ import annotations
+
+import altair as alt
+import numpy as np
+import pandas as pd
+
+from explorer.core.case_deletion import CaseDeletionScan
+from explorer.core.sweep import SweepResult
+
+from .frames import MAX_POINTS, thin
+from .observations import pick_param
+from .style import CURRENT, GUIDE, HEIGHT, LEFT_OUT, PICKED, WIDTH, finish
+
+__all__ = ["case_deletion_chart", "specification_curve_chart"]
+
+_FLIP_DOMAIN = ["flips the decision", "same decision"]
+
+
+def _p_or_none(values: np.ndarray) -> list[float | None]:
+    return [float(v) if np.isfinite(v) and v > 0 else None for v in np.asarray(values, dtype=float)]
+
+
+def case_deletion_chart(scan: CaseDeletionScan, *, max_points: int = MAX_POINTS, width: int = WIDTH,
+                        height: int = HEIGHT) -> alt.TopLevelMixin:
+    """p-value of the F test with each row left out in turn, against table order; flip rows stand out."""
+    flips = np.asarray(scan.flips, dtype=bool)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        move = np.abs(np.log(np.asarray(scan.pvalue, dtype=float)) - np.log(scan.base_pvalue or np.nan))
+    picked = thin(len(flips), max_points, always=flips, priority=np.nan_to_num(move, nan=0.0))
+    pos = picked.positions
+    frame = pd.DataFrame({
+        "row": [str(r) for r in np.asarray(scan.row_ids)[pos].tolist()],
+        "order": pos,
+        "level": np.asarray(scan.group, dtype=object)[pos].astype(str),
+        "p": _p_or_none(np.asarray(scan.pvalue)[pos]),
+        "F": [None if not np.isfinite(v) else float(v) for v in np.asarray(scan.statistic, dtype=float)[pos]],
+        "effect": np.where(flips[pos], _FLIP_DOMAIN[0], _FLIP_DOMAIN[1]),
+    })
+    frame["aria"] = [f"row {r}: p-value with the row left out" for r in frame["row"]]
+    pick = pick_param()
+    tip = [alt.Tooltip("row:N", title="row id"), alt.Tooltip("level:N"),
+           alt.Tooltip("p:Q", title="p-value without this row", format=".4g"),
+           alt.Tooltip("F:Q", title="F without this row", format=".4g"), alt.Tooltip("effect:N", title="decision")]
+    points = alt.Chart(frame).mark_point(filled=True, opacity=0.9).encode(
+        x=alt.X("order:Q", title="row left out (table order)"),
+        y=alt.Y("p:Q", title="p-value (log)", scale=alt.Scale(type="log")),
+        color=alt.Color("effect:N", title="leaving the row out",
+                        scale=alt.Scale(domain=_FLIP_DOMAIN, range=[PICKED, CURRENT])),
+        size=alt.when(pick, empty=False).then(alt.value(160)).otherwise(alt.value(40)),
+        stroke=alt.when(pick, empty=False).then(alt.value("black")).otherwise(alt.value("white")),
+        tooltip=tip, description=alt.Description("aria:N"),
+    ).add_params(pick)
+    lines = [alt.Chart().mark_rule(color=GUIDE, strokeDash=[4, 3]).encode(y=alt.datum(scan.alpha))]
+    if scan.base_pvalue:
+        lines.append(alt.Chart().mark_rule(color=LEFT_OUT).encode(y=alt.datum(scan.base_pvalue)))
+    n_flip = int(flips.sum())
+    sub = [(f"{n_flip} row(s) flip the decision on their own. Red dashes: alpha {scan.alpha:g}; grey line: p with "
+            "every row.")]
+    if picked.note:
+        sub.append(picked.note)
+    chart = alt.layer(*lines, points).properties(width=width, height=height)
+    return finish(chart, "p-value with one row left out", sub)
+
+
+def specification_curve_chart(sweep: SweepResult, *, width: int = WIDTH, height: int = HEIGHT
+                              ) -> alt.TopLevelMixin:
+    """Every specification of the sweep ranked by p-value; colour says whether it agrees with the current decision."""
+    t = sweep.table
+    frame = pd.DataFrame({
+        "rank": t["rank"].astype("float64").to_numpy(),
+        "p": _p_or_none(t["p-value"].astype("float64").to_numpy(na_value=np.nan)),
+        "agrees": np.where(t["agrees with current decision"].to_numpy(dtype=bool), "agrees", "disagrees"),
+        "outlier rule": t["outlier rule"].astype(str), "test": t["test"].astype(str),
+        "transform": t["transform"].astype(str), "merges": t["merges"].astype(str),
+        "left out": t["left out"].to_numpy(),
+    })
+    frame = frame.dropna(subset=["rank"])
+    tip = [alt.Tooltip("rank:Q"), alt.Tooltip("p:Q", title="p-value", format=".4g"), "outlier rule", "test",
+           "transform", "merges", alt.Tooltip("left out:Q", title="rows left out"),
+           alt.Tooltip("agrees:N", title="current decision")]
+    pts = alt.Chart(frame).mark_point(filled=True, size=45).encode(
+        x=alt.X("rank:Q", title="specification (ranked by p-value)"),
+        y=alt.Y("p:Q", title="p-value (log)", scale=alt.Scale(type="log")),
+        color=alt.Color("agrees:N", title="against the current decision",
+                        scale=alt.Scale(domain=["agrees", "disagrees"], range=[CURRENT, PICKED])),
+        tooltip=tip,
+    )
+    cut = alt.Chart().mark_rule(color=GUIDE, strokeDash=[4, 3]).encode(y=alt.datum(sweep.alpha))
+    share = "—" if sweep.share_agreeing is None else f"{sweep.share_agreeing:.0%}"
+    sub = [(f"{sweep.n_specifications} specifications; {share} agree with the current decision. "
+            f"Red dashes: alpha {sweep.alpha:g}."), "A result that holds only in a few specifications is fragile."]
+    return finish(alt.layer(cut, pts).properties(width=width, height=height), "Specification curve", sub)

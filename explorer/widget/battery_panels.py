@@ -1,0 +1,92 @@
+"""Panels of the one-way battery (:func:`explorer.core.battery.run_battery`), in the tab
+"Tests". The overall-test and comparison pickers of the explorer choose
+what is featured; the battery itself always computes every test.
+"""
+
+from __future__ import annotations
+
+import html
+from collections import OrderedDict
+from typing import Any
+
+from explorer.core import Results
+from explorer.core.battery import Battery, run_battery
+from explorer.core.tables import fmt, html_table
+
+from .panels import PanelContext, one_factor_only, panel
+
+__all__ = ["battery_for", "chosen_omnibus"]
+
+GROUP = "Tests"
+_CACHE: OrderedDict[tuple, tuple[Results, Battery]] = OrderedDict()
+_LETTERS = {"tukey-kramer": "tukey", "games-howell": "games-howell", "holm": "pairwise-t", "dunnett": "tukey"}
+_OMNIBUS = {"classic": "classic", "welch": "welch", "brown-forsythe": "brown_forsythe",
+            "kruskal-wallis": "kruskal_wallis"}
+
+
+def battery_for(ctx: PanelContext) -> Battery:
+    """The battery of the current view with the explorer's choices (shared by the panels, kept per view)."""
+    res = ctx.results
+    s = ctx.settings
+    control = res.groups.labels[0] if s.comparisons == "dunnett" else None
+    key = (id(res), s.alpha, s.comparisons)
+    hit = _CACHE.get(key)
+    if hit is not None and hit[0] is res:
+        return hit[1]
+    bat = run_battery(res, alpha=s.alpha, letters_from=_LETTERS.get(s.comparisons, "tukey"),  # type: ignore[arg-type]
+                      pairwise_adjust="holm", control=control)
+    _CACHE[key] = (res, bat)
+    while len(_CACHE) > 6:
+        _CACHE.popitem(last=False)
+    return bat
+
+
+def chosen_omnibus(bat: Battery, choice: str) -> Any:
+    return getattr(bat, _OMNIBUS.get(choice, "classic"))
+
+
+@panel("overall_tests", "Tests of equal level means", group=GROUP, order=10)
+@one_factor_only("The test battery")
+def overall_tests(ctx: PanelContext) -> str:
+    bat = battery_for(ctx)
+    test = chosen_omnibus(bat, ctx.settings.omnibus)
+    if test.pvalue is None:
+        verdict = "undefined on this view"
+    else:
+        verdict = "differences detected" if test.pvalue < bat.alpha else "no differences detected"
+    head = (f"<div class='vx-decision'><b>Chosen test: {html.escape(test.method)}</b>: "
+            f"statistic {fmt(test.statistic, 5)}, p = {fmt(test.pvalue, 4)}; {verdict} at alpha {bat.alpha:g}.</div>")
+    return head + html_table(bat.omnibus_frame(), "All tests of equal means on this view") + bat.recommendation._repr_html_()
+
+
+@panel("assumption_checks", "Assumption checks", group=GROUP, order=20)
+@one_factor_only("The test battery")
+def assumption_checks(ctx: PanelContext) -> str:
+    bat = battery_for(ctx)
+    return html_table(bat.checks_frame(), "Checks of equal spread and normal residuals")
+
+
+@panel("comparisons", "Comparisons between levels", group=GROUP, order=30)
+@one_factor_only("The test battery")
+def comparisons(ctx: PanelContext) -> str:
+    bat = battery_for(ctx)
+    table = {"tukey-kramer": bat.tukey, "games-howell": bat.games_howell, "holm": bat.pairwise_t,
+             "dunnett": bat.dunnett}.get(ctx.settings.comparisons) or bat.tukey
+    return table._repr_html_() + bat.letters._repr_html_()
+
+
+@panel("effect_power", "Effect sizes and power", group=GROUP, order=40)
+@one_factor_only("The test battery")
+def effect_power(ctx: PanelContext) -> str:
+    bat = battery_for(ctx)
+    parts = [x._repr_html_() for x in (bat.effect_sizes, bat.power) if x is not None]
+    return "".join(parts) + "".join(f"<div class='vx-small'>{html.escape(n)}</div>" for n in bat.notes)
+
+
+@panel("screens", "Outlier screens (flag only)", group=GROUP, order=50)
+@one_factor_only("The test battery")
+def screens(ctx: PanelContext) -> str:
+    bat = battery_for(ctx)
+    return "".join(s._repr_html_() for s in bat.screens) + (
+        "<div class='vx-small'>Screens flag rows for a closer look; nothing is left out unless you do it, "
+        "with a reason.</div>")
