@@ -123,13 +123,13 @@ def test_reads_only_and_counts_the_search():
 
 
 def test_one_factor_scans_refuse_two_factor_studies_clearly():
-    """The regroup scan works on one factor: a two-factor study gets a DesignError naming the factors."""
-    from explorer.core.regroup import regroup_scan
+    """The robustness sweep works on one factor: a two-factor study gets a DesignError naming the factors."""
+    from explorer.core.sweep import robustness_sweep
 
     rng = np.random.default_rng(0)
     df = pd.DataFrame({"a": list("xy") * 10, "b": list("ppqq") * 5, "y": rng.normal(size=20)})
     with pytest.raises(DesignError, match="one-factor"):
-        regroup_scan(ex.Study(df, "y", ["a", "b"]))
+        robustness_sweep(ex.Study(df, "y", ["a", "b"]))
 
 
 def test_study_methods_return_the_same_scans():
@@ -194,7 +194,7 @@ def test_two_way_single_row_cell():
     df.loc[0, ["a", "b"]] = ["z", "q"]
     full = case_deletion_scan(ex.Study(df, "y", ["a", "b"]))
     frame = full.to_frame().set_index("row")
-    assert pd.isna(frame.loc[0, "F"]) and "only one in its cell" in frame.loc[0, "note"]
+    assert pd.isna(frame.loc[0, "F"]) and "cannot be fitted" in frame.loc[0, "note"]
     assert any("empties cell" in n for n in full.notes)
     additive = case_deletion_scan(ex.Study(df, "y", ["a", "b"], interactions=False))
     d = df.drop(index=0)

@@ -53,7 +53,7 @@ STATUS_NOTES: dict[int, str] = {
     1: "fewer than two levels with observations: no F test",
     2: "no residual degrees of freedom (every level has one observation): no F test",
     3: "residual sum of squares is zero (every observation equals its level mean): F undefined",
-    4: "this row is the only one in its cell; without it the model cannot be fitted (see notes)",
+    4: "the model cannot be fitted after this change (an emptied cell or a factor left with one level; see notes)",
 }
 
 #: Share of a group's sum of squares below which a downdated value is recomputed exactly.

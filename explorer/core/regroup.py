@@ -117,12 +117,19 @@ class RegroupScan:
         return ("<div>" + html_table(merges, html.escape(cap1)) + html_table(moves, html.escape(cap2), notes) + "</div>")
 
 
-def regroup_scan(study: object, *, alpha: float | None = None, moves: bool = True, record: bool = True) -> RegroupScan:
-    """Every merge of two levels and every move of one row to another level of a one-factor ``study``.
+def regroup_scan(
+    study: object, *, factor: str | None = None, alpha: float | None = None, moves: bool = True, record: bool = True
+) -> RegroupScan:
+    """Every merge of two levels and every move of one row to another level of a factor of ``study``.
 
-    The study is not changed; the alternatives examined are added to its disclosure.
-    ``moves=False`` skips the row moves (``n (k - 1)`` alternatives).
+    One-factor studies: closed-form updates of the group statistics. Factorial and block
+    designs (see :mod:`.cell_regroup`): ``factor`` names the factor to regroup (default
+    the first), and the decision is read from the first factor's F test. The study is
+    not changed; the alternatives examined are added to its disclosure. ``moves=False``
+    skips the row moves (``n (k - 1)`` alternatives).
     """
+    if not study.spec.is_oneway:  # type: ignore[attr-defined]
+        return _factorial_regroup(study, factor, alpha, moves, record)
     data = oneway_input(study, "the regroup scan")
     a = data.alpha if alpha is None else float(alpha)
     gs, k, scale = data.stats, data.k, data.scale()
@@ -200,3 +207,21 @@ def regroup_scan(study: object, *, alpha: float | None = None, moves: bool = Tru
 def _take(f: AlternativeFits, order: np.ndarray) -> AlternativeFits:
     return AlternativeFits(**{name: getattr(f, name)[order] for name in AlternativeFits.__dataclass_fields__})
 
+
+
+def _factorial_regroup(study: object, factor: str | None, alpha: float | None, moves: bool,
+                       record: bool) -> RegroupScan:
+    from .cell_regroup import cell_regroup
+
+    spec = study.spec  # type: ignore[attr-defined]
+    a = float(spec.alpha if alpha is None else alpha)
+    name, pairs, merge_fits, rows, src, dst, move_fits, notes = cell_regroup(study, factor, moves=moves)
+    base_p = study.results.pvalue()  # type: ignore[attr-defined]
+    if record:
+        study.record_search("regroup scan", len(pairs) + int(rows.size))  # type: ignore[attr-defined]
+    return RegroupScan(
+        factor=name, alpha=a, base_pvalue=base_p, base_significant=bool(base_p is not None and base_p < a),
+        merge_levels=tuple(pairs), merge_fits=merge_fits, move_rows=rows, move_from=src, move_to=dst,
+        move_fits=move_fits, disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        notes=tuple(notes),
+    )

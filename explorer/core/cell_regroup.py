@@ -1,0 +1,211 @@
+"""Regroup scan for factorial and block designs, from cell sufficient statistics.
+
+Merging two levels of a factor pools cells pairwise; it is refitted once per pair of
+levels (cell-level fits cost microseconds). Moving one row from level ``a`` to ``b`` of
+the factor changes two cells: its source cell loses it (Welford downdate) and the
+target cell gains it (update). For fixed counts every term's sum of squares and the
+lack-of-fit part of the residual are quadratic forms in the cell means, so for each
+(source cell, target cell) pair they are quadratics in the two mean shifts; six cell
+fits give the coefficients and every row of the source cell is read off in O(1).
+Moves that create or empty a cell change the design and are refitted directly.
+
+References
+----------
+Searle, S. R. (1987). Linear Models for Unbalanced Data. Wiley, ch. 4.
+Welford, B. P. (1962). Technometrics 4(3), 419-420.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .alternatives import AlternativeFits, OnewayInput, leave_one_out
+from .cellfit import CellFit, fit_cells
+from .cells import layout_cells
+from .design import term_name
+from .design_checks import check_design
+from .distributions import f_sf
+from .errors import DesignError, ExplorerError, closest_names
+from .groupstats import GroupStats, group_stats
+
+__all__ = ["cell_regroup"]
+
+
+class _Context:
+    """The kept rows of a multi-factor study and the pieces every refit needs."""
+
+    def __init__(self, study: object, factor: str | None) -> None:
+        from .factorial import layout_of
+
+        res = study.results  # type: ignore[attr-defined]
+        self.spec = spec = study.spec  # type: ignore[attr-defined]
+        dataset, view = study.dataset, study.view  # type: ignore[attr-defined]
+        self.factor = factor or spec.factors[0]
+        if self.factor not in spec.columns:
+            near = closest_names(self.factor, spec.columns)
+            hint = f" Did you mean {near[0]!r}?" if near else ""
+            raise ExplorerError(f"{self.factor!r} is not a factor of this study ({list(spec.columns)}).{hint}")
+        self.layout = layout_of(dataset, view, spec)
+        pos = np.asarray(res.fit.positions)
+        if pos.size != int(res.groups.n_total):
+            raise DesignError("the regroup scan needs every kept row; this study's results carry a sample")
+        self.y = np.asarray(dataset.y)[pos]
+        self.cell = np.asarray(res.fit.group, dtype=np.int64)
+        self.offset = float(dataset.offset)
+        self.cells = group_stats(self.y, self.cell, tuple(res.groups.labels), self.offset)
+        self.j = self.layout.columns.index(self.factor)
+        self.col_codes = [np.asarray(view.codes[c])[pos] for c in spec.columns]
+        self.levels = self.layout.levels
+        self.term = term_name((spec.factors[0],))
+        self.ss_total = self.cells.ss_within + self.cells.ss_between
+        self.row_ids = np.asarray(res.fit.row_ids)
+        base = fit_cells(self.cells, self.layout.cell_levels, self.layout.columns, self.layout.n_levels, spec)
+        self.base = base
+
+    def main_ss(self, fit: CellFit) -> tuple[float, int]:
+        for t in fit.terms:
+            if term_name(t) == self.term:
+                return fit.ss[self.spec.ss_type][t], fit.df[self.spec.ss_type][t]
+        raise KeyError(self.term)
+
+    def refit_rows(self, col_codes: list[np.ndarray]) -> tuple[float, int, float, int, int]:
+        """Direct refit from row codes: (term SS, term df, residual SS, residual df, levels of the first factor)."""
+        layout, cell = layout_cells(col_codes, [tuple(lv) for lv in self.full_levels()], self.spec.columns)
+        gs = group_stats(self.y, cell, tuple(str(i) for i in range(layout.n_cells)), self.offset)
+        check_design(layout, gs.n, self.spec, ())  # what the engine would refuse, this refuses too
+        fit = fit_cells(gs, layout.cell_levels, layout.columns, layout.n_levels, self.spec)
+        ss, df = self.main_ss(fit)
+        return ss, df, fit.ss_resid, fit.df_resid, len(layout.levels[0])
+
+    def full_levels(self) -> list[tuple[str, ...]]:
+        return [tuple(str(i) for i in range(int(c.max()) + 1)) for c in self.col_codes]
+
+
+def _fits(rows: list[tuple[float, int, float, int, int] | str], ss_total: float) -> AlternativeFits:
+    m = len(rows)
+    ssb, ssw, stat, p, eta = (np.full(m, np.nan) for _ in range(5))
+    df_b = np.zeros(m, dtype=np.int64)
+    df_w = np.zeros(m, dtype=np.int64)
+    lev = np.zeros(m, dtype=np.int64)
+    status = np.zeros(m, dtype=np.int8)
+    for i, r in enumerate(rows):
+        if isinstance(r, str):
+            status[i] = 4
+            continue
+        ssb[i], df_b[i], ssw[i], df_w[i], lev[i] = r
+        if lev[i] < 2 or df_b[i] < 1:
+            status[i] = 1
+        elif df_w[i] < 1:
+            status[i] = 2
+        elif ssw[i] <= 0:
+            status[i] = 3
+        else:
+            stat[i] = (ssb[i] / df_b[i]) / (ssw[i] / df_w[i])
+        if ss_total > 0 and np.isfinite(ssb[i]):
+            eta[i] = ssb[i] / ss_total
+    ok = status == 0
+    p[ok] = f_sf(stat[ok], df_b[ok].astype(float), df_w[ok].astype(float))
+    return AlternativeFits(levels=lev, n=np.zeros(m, dtype=np.int64), df_between=df_b, df_within=df_w,
+                           ss_between=ssb, ss_within=ssw, statistic=stat, pvalue=p, eta_squared=eta, status=status)
+
+
+def _shifted(cells: GroupStats, changes: dict[int, tuple[float, float]]) -> GroupStats:
+    n = cells.n.copy()
+    mean = cells.mean.copy()
+    for c, (cn, cm) in changes.items():
+        n[c], mean[c] = cn, cm
+    return GroupStats(labels=cells.labels, n=n, mean=mean, m2=cells.m2, offset=cells.offset)
+
+
+def cell_regroup(study: object, factor: str | None = None, *, moves: bool = True):  # type: ignore[no-untyped-def]
+    """Merges of two levels of ``factor`` and moves of one row to another of its levels, multi-factor designs.
+
+    Returns ``(factor, pairs, merge_fits, move_rows, move_from, move_to, move_fits, notes)``
+    with the F test of the first treatment factor for each alternative.
+    """
+    ctx = _Context(study, factor)
+    spec, j, lv = ctx.spec, ctx.j, ctx.levels[ctx.j]
+    k = len(lv)
+    notes: list[str] = []
+    # Merges: refit once per pair of levels.
+    pairs = [(a, b) for a in range(k) for b in range(a + 1, k)]
+    merge_rows: list = []
+    present = np.cumsum(np.bincount(ctx.col_codes[j]) > 0) - 1  # view codes -> layout codes
+    for a, b in pairs:
+        codes = [c.copy() for c in ctx.col_codes]
+        lay = present[codes[j]]
+        codes[j] = np.where(lay == b, a, lay)
+        try:
+            merge_rows.append(ctx.refit_rows(codes))
+        except DesignError as exc:
+            merge_rows.append(str(exc))
+            notes.append(f"Merging {lv[a]} and {lv[b]}: {exc}")
+    merge_fits = _fits(merge_rows, ctx.ss_total)
+    move_rows_l: list[int] = []
+    move_to_l: list[int] = []
+    move_results: list = []
+    if moves:
+        data = OnewayInput(factor="cell", y=ctx.y, codes=ctx.cell, labels=ctx.cells.labels, row_ids=ctx.row_ids,
+                           positions=np.arange(ctx.y.size), offset=ctx.offset, alpha=spec.alpha, stats=ctx.cells)
+        _, down_mean, down_m2 = leave_one_out(data)
+        cl = ctx.layout.cell_levels
+        lookup = {tuple(r): i for i, r in enumerate(cl.tolist())}
+        cells = ctx.cells
+        m2_total = cells.m2.sum()
+        for s in range(cells.k):
+            rows = np.flatnonzero(ctx.cell == s)
+            for b in range(k):
+                if b == cl[s, j] or rows.size == 0:
+                    continue
+                key = list(cl[s])
+                key[j] = b
+                t = lookup.get(tuple(key))
+                for i in rows:
+                    move_rows_l.append(int(i))
+                    move_to_l.append(b)
+                if t is None or cells.n[s] < 2:
+                    for i in rows:  # the design changes: refit directly
+                        codes = [c.copy() for c in ctx.col_codes]
+                        codes[j] = present[codes[j]]
+                        codes[j][i] = b
+                        try:
+                            move_results.append(ctx.refit_rows(codes))
+                        except DesignError as exc:
+                            move_results.append(str(exc))
+                    continue
+                n_s, n_t = float(cells.n[s]), float(cells.n[t])
+                du = down_mean[rows] - cells.mean[s]
+                dv = (ctx.y[rows] - cells.mean[t]) / (n_t + 1)
+                h = float(np.max(np.abs(du))) or 1.0
+                g = float(np.max(np.abs(dv))) or 1.0
+
+                def at(u: float, v: float) -> tuple[float, float]:
+                    fit = fit_cells(_shifted(cells, {s: (n_s - 1, cells.mean[s] + u), t: (n_t + 1, cells.mean[t] + v)}),
+                                    cl, ctx.layout.columns, ctx.layout.n_levels, spec)
+                    return ctx.main_ss(fit)[0], fit.ss_lack_of_fit
+
+                f00, fp0, fm0, f0p, f0m, fpp = (np.array(at(u, v)) for u, v in
+                                                ((0, 0), (h, 0), (-h, 0), (0, g), (0, -g), (h, g)))
+                c1 = (fp0 - fm0) / 2
+                c3 = (fp0 + fm0) / 2 - f00
+                c2 = (f0p - f0m) / 2
+                c4 = (f0p + f0m) / 2 - f00
+                c5 = fpp - f00 - c1 - c2 - c3 - c4
+                u = (du / h)[:, None]
+                v = (dv / g)[:, None]
+                val = f00 + c1 * u + c2 * v + c3 * u * u + c4 * v * v + c5 * u * v
+                d_t = ctx.y[rows] - cells.mean[t]
+                m2_t = cells.m2[t] + d_t * d_t * (n_t / (n_t + 1))
+                pure = (m2_total - cells.m2[s] - cells.m2[t]) + down_m2[rows] + m2_t
+                df_t = ctx.main_ss(ctx.base)[1]
+                for r in range(rows.size):
+                    move_results.append((float(val[r, 0]), df_t, float(pure[r] + max(val[r, 1], 0.0)),
+                                         ctx.base.df_resid, len(ctx.levels[0])))
+    move_fits = _fits(move_results, ctx.ss_total)
+    src = ctx.layout.cell_levels[ctx.cell[np.asarray(move_rows_l, dtype=np.int64)], j] if move_rows_l else np.zeros(0, int)
+    labels = np.asarray(lv, dtype=object)
+    notes.append(f"Regrouping {ctx.factor!r}; the decision is read from the {ctx.term!r} term "
+                 f"({spec.ss_type} sums of squares).")
+    return (ctx.factor, [(lv[a], lv[b]) for a, b in pairs], merge_fits,
+            ctx.row_ids[np.asarray(move_rows_l, dtype=np.int64)], labels[src], labels[np.asarray(move_to_l, dtype=np.int64)],
+            move_fits, notes)
