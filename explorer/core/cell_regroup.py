@@ -117,6 +117,14 @@ def _shifted(cells: GroupStats, changes: dict[int, tuple[float, float]]) -> Grou
     return GroupStats(labels=cells.labels, n=n, mean=mean, m2=cells.m2, offset=cells.offset)
 
 
+def _moved_ss(ctx: _Context, s: int, t: int, u: float, v: float) -> tuple[float, float]:
+    """First factor's SS and the lack of fit with one row moved from cell ``s`` to ``t`` and the means shifted."""
+    cells = ctx.cells
+    moved = _shifted(cells, {s: (cells.n[s] - 1, cells.mean[s] + u), t: (cells.n[t] + 1, cells.mean[t] + v)})
+    fit = fit_cells(moved, ctx.layout.cell_levels, ctx.layout.columns, ctx.layout.n_levels, ctx.spec)
+    return ctx.main_ss(fit)[0], fit.ss_lack_of_fit
+
+
 def cell_regroup(study: object, factor: str | None = None, *, moves: bool = True):  # type: ignore[no-untyped-def]
     """Merges of two levels of ``factor`` and moves of one row to another of its levels, multi-factor designs.
 
@@ -179,12 +187,7 @@ def cell_regroup(study: object, factor: str | None = None, *, moves: bool = True
                 h = float(np.max(np.abs(du))) or 1.0
                 g = float(np.max(np.abs(dv))) or 1.0
 
-                def at(u: float, v: float) -> tuple[float, float]:
-                    fit = fit_cells(_shifted(cells, {s: (n_s - 1, cells.mean[s] + u), t: (n_t + 1, cells.mean[t] + v)}),
-                                    cl, ctx.layout.columns, ctx.layout.n_levels, spec)
-                    return ctx.main_ss(fit)[0], fit.ss_lack_of_fit
-
-                f00, fp0, fm0, f0p, f0m, fpp = (np.array(at(u, v)) for u, v in
+                f00, fp0, fm0, f0p, f0m, fpp = (np.array(_moved_ss(ctx, s, t, u, v)) for u, v in
                                                 ((0, 0), (h, 0), (-h, 0), (0, g), (0, -g), (h, g)))
                 c1 = (fp0 - fm0) / 2
                 c3 = (fp0 + fm0) / 2 - f00
