@@ -181,7 +181,7 @@ def cell_regroup(study: object, factor: str | None = None, *, moves: bool = True
                         except DesignError as exc:
                             move_results.append(str(exc))
                     continue
-                n_s, n_t = float(cells.n[s]), float(cells.n[t])
+                n_t = float(cells.n[t])
                 du = down_mean[rows] - cells.mean[s]
                 dv = (ctx.y[rows] - cells.mean[t]) / (n_t + 1)
                 h = float(np.max(np.abs(du))) or 1.0
