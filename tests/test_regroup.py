@@ -108,3 +108,23 @@ def test_two_way_merges_and_moves_match_statsmodels(interactions, factor):
         assert r["p-value"] == pytest.approx(table.loc["C(a)", "PR(>F)"], rel=1e-9)
         checked += 1
     assert checked >= len(df)
+
+
+def test_two_way_moves_that_create_or_empty_a_cell_are_refitted():
+    """Additive 3 x 2 with cell (z, q) empty and cell (y, q) holding one row: moves into the empty cell or out of
+    the single-row cell change the design and are refitted directly (statsmodels anova_lm(typ=2) check)."""
+    import statsmodels.formula.api as smf
+    from statsmodels.stats.anova import anova_lm
+
+    rng = np.random.default_rng(8)
+    a = np.array(list("xxxxxxyyyyyyzzzzzz") + list("xxxxy"))
+    b = np.array(list("pppqqqpppppppppppp") + list("qqqqq"))
+    df = pd.DataFrame({"a": a, "b": b, "y": rng.normal(size=a.size) + (a == "x") * 0.7})
+    scan = regroup_scan(ex.Study(df, "y", ["a", "b"], interactions=False))
+    moves = scan.moves_frame()
+    lone = int(np.flatnonzero((a == "y") & (b == "q"))[0])
+    for _, r in moves[moves["row"].isin([lone, 3])].iterrows():
+        d = df.copy()
+        d.loc[r["row"], "a"] = r["to"]
+        table = anova_lm(smf.ols("y ~ C(a) + C(b)", d).fit(), typ=2)
+        assert r["p-value"] == pytest.approx(table.loc["C(a)", "PR(>F)"], rel=1e-9)
