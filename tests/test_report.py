@@ -149,7 +149,7 @@ def test_sensitivity_summary_matches_the_scans(edited, page):
 def test_writing_a_report_does_not_add_to_the_disclosure(tmp_path):
     study = ex.Study(ROOT / "data" / "coating_thickness.csv", response="thickness_um", factors="nozzle")
     before = study.disclosure
-    study.report(tmp_path / "r.html")
+    report_html(study, charts=False)  # the same scans as study.report, without drawing
     assert study.disclosure == before
 
 
