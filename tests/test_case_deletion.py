@@ -5,6 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import stats
 
 import explorer as ex
@@ -201,3 +203,34 @@ def test_two_way_single_row_cell():
     table = anova_lm(smf.ols("y ~ C(a) + C(b)", d.assign(y=d.y - 1e6)).fit(), typ=2)
     j = additive.row_ids.tolist().index(0)
     assert additive.pvalue[j] == pytest.approx(table.loc["C(a)", "PR(>F)"], rel=1e-9)
+
+
+@settings(max_examples=25, deadline=None)
+@given(
+    sizes=st.lists(st.integers(min_value=1, max_value=6), min_size=2, max_size=5),
+    seed=st.integers(min_value=0, max_value=10_000),
+    offset=st.sampled_from([0.0, 1e3, 1e7]),
+)
+def test_property_every_deletion_matches_f_oneway(sizes, seed, offset):
+    """Hypothesis-generated groups of 1 to 6 rows (offsets up to 1e7): each deletion equals a scipy f_oneway refit,
+    or has a stated reason where f_oneway has no answer (fewer than two groups, no residual df)."""
+    if sum(sizes) - len(sizes) < 1:
+        return  # the study itself has no residual df
+    rng = np.random.default_rng(seed)
+    g = np.repeat([f"g{i}" for i in range(len(sizes))], sizes)
+    df = pd.DataFrame({"g": g, "y": offset + np.round(rng.normal(size=g.size) * 16) / 16})
+    if df.groupby("g")["y"].apply(lambda v: np.ptp(v.to_numpy())).max() == 0:
+        return  # zero residual: no F to compare
+    scan = case_deletion_scan(ex.Study(df, "y", "g"))
+    for j, row in enumerate(scan.row_ids.tolist()):
+        d = df.drop(index=row)
+        groups = [v.to_numpy() - offset for _, v in d.groupby("g")["y"]]
+        if len(groups) < 2 or sum(len(v) for v in groups) - len(groups) < 1:
+            assert scan.status[j] in (1, 2) and np.isnan(scan.pvalue[j])
+            continue
+        if sum(((v - v.mean()) ** 2).sum() for v in groups) == 0:
+            assert scan.status[j] == 3
+            continue
+        ref = stats.f_oneway(*groups)
+        assert scan.statistic[j] == pytest.approx(ref.statistic, rel=1e-9)
+        assert scan.pvalue[j] == pytest.approx(ref.pvalue, rel=1e-9, abs=1e-300)
