@@ -96,3 +96,29 @@ def test_no_edits_gives_the_baseline():
     scope: dict = {}
     exec(study.to_code(), scope)  # noqa: S102
     assert scope["study"].results.partition == study.baseline.partition
+
+
+def test_other_edit_kinds_replay_from_their_saved_form():
+    """An edit kind without a Study method is rebuilt with edit_from_dict, reason and time kept."""
+    from dataclasses import dataclass
+    from typing import ClassVar
+
+    from explorer.core.edits import EDIT_KINDS, DropRows, register_edit
+
+    @register_edit
+    @dataclass(frozen=True, kw_only=True)
+    class DropFirstOf(DropRows):  # a stand-in for a kind added later
+        kind: ClassVar[str] = "test-drop-first-of"
+
+    try:
+        study = ex.Study(ROOT / DEMO, response="thickness_um", factors="nozzle")
+        study.apply(DropFirstOf(rows=(3,), reason="stand-in kind"))
+        code = study.to_code()
+        assert "study.apply(ex.edit_from_dict(" in code
+        scope: dict = {}
+        exec(code, scope)  # noqa: S102
+        replayed = scope["study"]
+        assert replayed.results.partition == study.results.partition
+        assert replayed.edits[0].reason == "stand-in kind" and replayed.edits[0].at == study.edits[0].at
+    finally:
+        EDIT_KINDS.pop("test-drop-first-of", None)

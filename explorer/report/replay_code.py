@@ -32,18 +32,19 @@ def edit_to_code(edit: Edit, name: str = "study") -> str:
     """One statement that applies ``edit`` to the study called ``name``.
 
     The five built-in kinds become calls of the study's own methods; any other
-    registered kind is rebuilt from its saved form with ``edit_from_dict``.
+    registered kind (subclasses included) is rebuilt from its saved form with
+    ``edit_from_dict``.
     """
     r = f"reason={edit.reason!r}"
-    if isinstance(edit, DropRows):
+    if type(edit) is DropRows:
         return f"{name}.drop({_lit(edit.rows)}, {r})"
-    if isinstance(edit, RestoreRows):
+    if type(edit) is RestoreRows:
         return f"{name}.restore({_lit(edit.rows)}, {r})"
-    if isinstance(edit, Reassign):
+    if type(edit) is Reassign:
         return f"{name}.reassign({edit.row!r}, {edit.factor!r}, {edit.level!r}, {r})"
-    if isinstance(edit, MergeLevels):
+    if type(edit) is MergeLevels:
         return f"{name}.merge_levels({edit.factor!r}, {_lit(edit.levels)}, into={edit.into!r}, {r})"
-    if isinstance(edit, RenameLevel):
+    if type(edit) is RenameLevel:
         return f"{name}.rename_level({edit.factor!r}, {edit.old!r}, {edit.new!r}, {r})"
     return f"{name}.apply(ex.edit_from_dict({edit.to_dict()!r}))"
 
