@@ -75,7 +75,7 @@ class CheckResult:
 
 
 def _sorted_by_group(values: np.ndarray, g: np.ndarray, n: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Values sorted within groups (groups in code order) and each group's start."""
+    """Values sorted inside each group (groups in code order) and each group's start."""
     by_value = np.argsort(values)
     order = by_value[np.argsort(g[by_value].astype(np.int16 if len(n) < 30000 else np.int64), kind="stable")]
     starts = np.r_[0, np.cumsum(n)[:-1]].astype(np.int64)

@@ -77,29 +77,30 @@ def reference_bundle(frame: pd.DataFrame) -> dict:
     return out
 
 
+def measure(n: int) -> dict:
+    frame = make_frame(n)
+    study = ex.Study(frame, "y", "g")
+    step = edit_and_recompute(study)
+
+    def ours():
+        step()
+        return study.battery()
+
+    edited = frame.drop(index=[0])
+    ours()  # warm: row-id lookup, the cached range table for 8 means
+    reps = 40 if n <= 1e4 else 10
+    t_ours = median_time(ours, reps)
+    res = study.results
+    t_bundle = median_time(lambda: ex.run_battery(res), reps)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        t_ref = median_time(lambda: reference_bundle(edited), 3)
+    return {"n": n, "ours: edit + battery (ms)": t_ours * 1e3, "battery alone (ms)": t_bundle * 1e3,
+            "reference (ms)": t_ref * 1e3, "reference / ours": t_ref / t_ours}
+
+
 def run(sizes: list[int]) -> list[dict]:
-    rows = []
-    for n in sizes:
-        frame = make_frame(n)
-        study = ex.Study(frame, "y", "g")
-        step = edit_and_recompute(study)
-
-        def ours():
-            step()
-            return study.battery()
-
-        edited = frame.drop(index=[0])
-        ours()  # warm: row-id lookup, the cached range table for 8 means
-        reps = 40 if n <= 1e4 else 10
-        t_ours = median_time(ours, reps)
-        res = study.results
-        t_bundle = median_time(lambda: ex.run_battery(res), reps)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            t_ref = median_time(lambda: reference_bundle(edited), 3)
-        rows.append({"n": n, "ours: edit + battery (ms)": t_ours * 1e3, "battery alone (ms)": t_bundle * 1e3,
-                     "reference (ms)": t_ref * 1e3, "reference / ours": t_ref / t_ours})
-    return rows
+    return [measure(n) for n in sizes]
 
 
 if __name__ == "__main__":
