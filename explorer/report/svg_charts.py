@@ -12,6 +12,7 @@ import re
 from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
 import pandas as pd
 
 if TYPE_CHECKING:
@@ -20,11 +21,16 @@ if TYPE_CHECKING:
 __all__ = ["level_chart", "curve_chart", "chart_to_svg", "results_svg", "curve_svg", "charts_available", "model_check_svgs"]
 
 
-def level_chart(results: "Results", title: str, row_levels: Sequence[str]) -> Any:
+#: Most observations a report chart draws (the statistics always use every row).
+MAX_POINTS = 5000
+
+
+def level_chart(results: "Results", title: str, row_levels: Sequence[str], max_points: int = MAX_POINTS) -> Any:
     """Altair chart: observations by level of the first factor, with mean and interval.
 
     ``row_levels`` gives the first factor's level of each row of ``results.fit`` (from the
-    view the results were computed on).
+    view the results were computed on). Above ``max_points`` rows an even spread of them
+    is drawn, the most extreme residuals always included, and the subtitle says so.
     """
     import altair as alt
 
@@ -32,8 +38,14 @@ def level_chart(results: "Results", title: str, row_levels: Sequence[str]) -> An
     table = results.levels[factor]
     labels = list(table.labels)
     fit = results.fit
-    level_of_row = list(row_levels)
-    points = pd.DataFrame({"level": level_of_row, "value": fit.y, "row": [str(r) for r in fit.row_ids]})
+    points = pd.DataFrame({"level": list(row_levels), "value": fit.y, "row": [str(r) for r in fit.row_ids]})
+    subtitle = ""
+    if len(points) > max_points:
+        extreme = np.argsort(-np.abs(np.asarray(fit.residuals)), kind="stable")[: max_points // 10]
+        spread = np.linspace(0, len(points) - 1, max_points - extreme.size).astype(np.int64)
+        keep = np.union1d(extreme, spread)
+        subtitle = f"Drawing {keep.size:,} of {len(points):,} rows (the most extreme and an even spread)."
+        points = points.iloc[keep]
     summary = pd.DataFrame(
         {"level": labels, "mean": table.mean, "low": table.pooled_low, "high": table.pooled_high}
     )
@@ -44,7 +56,8 @@ def level_chart(results: "Results", title: str, row_levels: Sequence[str]) -> An
     )
     bars = alt.Chart(summary).mark_rule(strokeWidth=2.5, color="#222").encode(x=x, y="low:Q", y2="high:Q")
     means = alt.Chart(summary).mark_tick(thickness=3, size=22, color="#c44e52").encode(x=x, y="mean:Q")
-    return (dots + bars + means).properties(width=280, height=220, title=title)
+    heading = alt.TitleParams(title, subtitle=subtitle) if subtitle else title
+    return (dots + bars + means).properties(width=280, height=220, title=heading)
 
 
 def curve_chart(curve: pd.DataFrame, alpha: float) -> Any:
