@@ -124,16 +124,6 @@ def test_reads_only_and_counts_the_search():
     assert "flip" in scan._repr_html_()
 
 
-def test_one_factor_scans_refuse_two_factor_studies_clearly():
-    """The robustness sweep works on one factor: a two-factor study gets a DesignError naming the factors."""
-    from explorer.core.sweep import robustness_sweep
-
-    rng = np.random.default_rng(0)
-    df = pd.DataFrame({"a": list("xy") * 10, "b": list("ppqq") * 5, "y": rng.normal(size=20)})
-    with pytest.raises(DesignError, match="one-factor"):
-        robustness_sweep(ex.Study(df, "y", ["a", "b"]))
-
-
 def test_study_methods_return_the_same_scans():
     """Study.case_deletion / flip_finder / regroup_scan / robustness_sweep / influence are thin wrappers."""
     df = _data(5)

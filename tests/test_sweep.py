@@ -105,3 +105,35 @@ def test_counts_and_bad_options():
         robustness_sweep(study, tests=["anova"])
     with pytest.raises(ExplorerError, match="no level 'L9'"):
         robustness_sweep(study, merges=[["L1", "L9"]])
+
+
+def test_two_way_sweep_matches_statsmodels():
+    """Two-way with interaction: each specification (outlier rule on that model's OLSInfluence / outlier_test, log or
+    not, merges of the first factor) against statsmodels anova_lm(typ=2) of the rebuilt table, p of C(g) to 1e-9."""
+    from statsmodels.stats.anova import anova_lm
+
+    df = _data()
+    df["s"] = np.tile(["day", "night"], len(df) // 2)
+    study = ex.Study(df, "y", ["g", "s"])
+    sweep = robustness_sweep(study, merges=[["L2", "L3"]])
+    assert sweep.n_specifications == 4 * 1 * 2 * 2 and set(sweep.table["test"]) == {"classic"}
+    assert any("one-factor tests" in n for n in sweep.notes)
+    for _, spec in sweep.table.iterrows():
+        d = df.copy()
+        if spec["transform"] == "log":
+            d["y"] = np.log(d["y"])
+        if spec["merges"] != "none":
+            d.loc[d.g.isin(["L2", "L3"]), "g"] = "L2+L3"
+        fit = smf.ols("y ~ C(g) * C(s)", d).fit()
+        oi = OLSInfluence(fit)
+        flag = np.zeros(len(d), dtype=bool)
+        if spec["outlier rule"] == "studentized":
+            flag = np.abs(oi.resid_studentized_external) > 3
+        elif spec["outlier rule"] == "cooks":
+            flag = oi.cooks_distance[0] > 4 / len(d)
+        elif spec["outlier rule"] == "outlier_test":
+            flag = fit.outlier_test(method="bonf")["bonf(p)"].to_numpy() < 0.05
+        assert sorted(spec["rows left out"]) == np.flatnonzero(flag).tolist()
+        ref = anova_lm(smf.ols("y ~ C(g) * C(s)", d[~flag]).fit(), typ=2).loc["C(g)", "PR(>F)"]
+        assert spec["p-value"] == pytest.approx(ref, rel=1e-9)
+    assert study.edits == ()

@@ -161,17 +161,21 @@ def _fit(yt: np.ndarray, codes: np.ndarray, labels: tuple[str, ...], data: Onewa
 
 
 def _check_merges(data: OnewayInput, merges: Sequence[Sequence[str]]) -> list[tuple[str, ...]]:
+    return _check_merge_names(data.factor, data.labels, merges)
+
+
+def _check_merge_names(factor: str, labels: tuple[str, ...], merges: Sequence[Sequence[str]]) -> list[tuple[str, ...]]:
     out = []
     for m in merges:
         if isinstance(m, str):
             raise ExplorerError("each plausible merge is a list of level names, e.g. merges=[['N2', 'N3']]")
         names = tuple(str(x) for x in m)
         for lv in names:
-            if lv not in data.labels:
-                near = closest_names(lv, data.labels)
+            if lv not in labels:
+                near = closest_names(lv, labels)
                 hint = f" Did you mean {near[0]!r}?" if near else ""
-                raise ExplorerError(f"merge {list(names)}: {data.factor!r} has no level {lv!r} with kept rows "
-                                    f"(levels: {list(data.labels)}).{hint}")
+                raise ExplorerError(f"merge {list(names)}: {factor!r} has no level {lv!r} with kept rows "
+                                    f"(levels: {list(labels)}).{hint}")
         if len(set(names)) < 2:
             raise ExplorerError(f"merge {list(names)} needs two or more different levels")
         out.append(names)
@@ -186,41 +190,38 @@ def _check_options(name: str, chosen: Sequence[str], known: dict[str, str]) -> t
     return chosen
 
 
-def robustness_sweep(
-    study: object,
-    *,
-    outlier_rules: Sequence[str] = tuple(OUTLIER_RULES),
-    tests: Sequence[str] = tuple(TESTS),
-    transforms: Sequence[str] = tuple(TRANSFORMS),
-    merges: Sequence[Sequence[str]] = (),
-    alpha: float | None = None,
-    record: bool = True,
-) -> SweepResult:
-    """Run every combination of the listed choices on a one-factor ``study``; see :class:`SweepResult`.
-
-    The first option of each choice is the default specification (by default: no
-    outlier rule, classic F, no transform, no merge). ``merges`` lists level groups the
-    user considers plausible to pool, e.g. ``[["N2", "N3"]]``; every subset of them is
-    a specification.
-    """
-    data = oneway_input(study, "the robustness sweep")
-    a = data.alpha if alpha is None else float(alpha)
-    outlier_rules = _check_options("outlier_rules", outlier_rules, OUTLIER_RULES)
-    tests = _check_options("tests", tests, TESTS)
-    transforms = _check_options("transforms", transforms, TRANSFORMS)
-    merge_list = _check_merges(data, merges)
-    notes: list[str] = []
-    y_orig = data.y + data.offset
-    responses: dict[str, tuple[np.ndarray, float]] = {}
+def _responses(y: np.ndarray, offset: float, transforms: Sequence[str], notes: list[str]) -> dict[str, tuple[np.ndarray, float]]:
+    """The response on the shifted scale for each transform (log only when every value is positive)."""
+    y_orig = y + offset
+    out: dict[str, tuple[np.ndarray, float]] = {}
     for t in transforms:
         if t == "none":
-            responses[t] = (data.y, data.offset)
+            out[t] = (y, offset)
         elif np.all(y_orig > 0):
             ly = np.log(y_orig)
             off = float(np.median(ly)) if abs(float(np.median(ly))) >= 1 else 0.0
-            responses[t] = (ly - off, off)
+            out[t] = (ly - off, off)
         else:
             notes.append("Log transform left out: the response has values of zero or below.")
+    return out
+
+
+def _outlier_keep(res: Results, rule: str, alpha: float, scale: float, row_ids: np.ndarray) -> np.ndarray:
+    """Rows of ``res.fit`` kept by an outlier rule (one pass on that fit)."""
+    f = res.fit
+    if rule == "none":
+        return np.ones(f.row_ids.size, dtype=bool)
+    if rule == "outlier_test":
+        flagged = bonferroni_outlier_test(res, alpha=alpha).flagged
+        return ~np.isin(row_ids, np.asarray(flagged, dtype=row_ids.dtype))
+    infl = influence_measures(f.residuals, f.leverage, res.df_resid, alpha=alpha, scale=scale)
+    return ~infl.flagged("studentized" if rule == "studentized" else "cooks_4_over_n")
+
+
+def _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes):  # type: ignore[no-untyped-def]
+    data = oneway_input(study, "the robustness sweep")
+    merge_list = _check_merges(data, merges)
+    responses = _responses(data.y, data.offset, transforms, notes)
     subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
     spec = study.spec  # type: ignore[attr-defined]
     rows = []
@@ -229,19 +230,11 @@ def robustness_sweep(
             codes, labels = _merge_codes(data, merge_list, subset)
             merge_name = "; ".join("+".join(merge_list[i]) for i in subset) or "none"
             fit_all = _fit(yt, codes, labels, data, np.ones(data.n, dtype=bool), off, spec)
-            infl = None
+            scale = max(abs(off), float(np.max(np.abs(yt))))
             for rule in outlier_rules:
                 keep = np.ones(data.n, dtype=bool)
-                if rule != "none" and isinstance(fit_all, Results):
-                    if rule == "outlier_test":
-                        flagged = bonferroni_outlier_test(fit_all, alpha=a).flagged
-                        keep = ~np.isin(data.row_ids, np.asarray(flagged, dtype=data.row_ids.dtype))
-                    else:
-                        if infl is None:
-                            f = fit_all.fit
-                            infl = influence_measures(f.residuals, f.leverage, fit_all.df_resid, alpha=a,
-                                                      scale=max(abs(off), float(np.max(np.abs(yt)))))
-                        keep = ~infl.flagged("studentized" if rule == "studentized" else "cooks_4_over_n")
+                if isinstance(fit_all, Results):
+                    keep = _outlier_keep(fit_all, rule, a, scale, data.row_ids)
                 res = _fit(yt, codes, labels, data, keep, off, spec)
                 left_out = data.row_ids[~keep].tolist()
                 for test in tests:
@@ -258,6 +251,111 @@ def robustness_sweep(
                         "rows left out": left_out, "left out": len(left_out),
                         "statistic": stat, "df (term)": d1, "df (residual)": d2, "p-value": p, "note": note,
                     })
+    return rows, responses
+
+
+def _factorial_rows(study, outlier_rules, transforms, merges, a, notes):  # type: ignore[no-untyped-def]
+    """Specifications of a factorial or block design, each analysed by the engine on a derived view.
+
+    Merges pool levels of the first treatment factor; outlier rules read the fit of the
+    specification (influence measures from its cell-level leverages).
+    """
+    import dataclasses
+
+    from .analysis import analyze
+    from .edits import MergeLevels
+
+    dataset, view, spec = study.dataset, study.view, study.spec
+    factor = spec.factors[0]
+    kept_pos = np.flatnonzero(view.kept)
+    present = tuple(lv for i, lv in enumerate(view.levels[factor]) if np.any(view.codes[factor][kept_pos] == i))
+    merge_list = _check_merge_names(factor, present, merges)
+    all_resp = _responses(np.asarray(dataset.y), float(dataset.offset), transforms, notes)
+    subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
+    rows = []
+    for t, (yt, off) in all_resp.items():
+        ds = dataclasses.replace(dataset, y=yt, offset=off)
+        scale = max(abs(off), float(np.max(np.abs(yt[kept_pos]))))
+        for subset in subsets:
+            merge_name = "; ".join("+".join(merge_list[i]) for i in subset) or "none"
+            v = view
+            for group in _pooled_groups(present, [merge_list[i] for i in subset]):
+                v = MergeLevels(factor=factor, levels=group, into="+".join(group), reason="sweep").apply(v, ds)
+            try:
+                fit_all: Results | str = analyze(ds, v, spec)
+            except DesignError as exc:
+                fit_all = str(exc)
+            for rule in outlier_rules:
+                keep_fit = None
+                res: Results | str = fit_all
+                left_out: list = []
+                if isinstance(fit_all, Results) and rule != "none":
+                    keep_fit = _outlier_keep(fit_all, rule, a, scale, np.asarray(fit_all.fit.row_ids))
+                    drop_pos = np.asarray(fit_all.fit.positions)[~keep_fit]
+                    left_out = np.asarray(fit_all.fit.row_ids)[~keep_fit].tolist()
+                    if drop_pos.size:
+                        kept = v.kept.copy()
+                        kept[drop_pos] = False
+                        try:
+                            res = analyze(ds, v.replace(kept=kept), spec)
+                        except DesignError as exc:
+                            res = str(exc)
+                stat = d1 = d2 = p = None
+                note = res if isinstance(res, str) else " ".join(res.partition.notes) if res.pvalue() is None else ""
+                if isinstance(res, Results):
+                    row = res.partition.row(res.main_term)
+                    stat, d1, d2, p = row.statistic, float(row.df), float(res.df_resid), row.pvalue
+                n_used = res.n_used if isinstance(res, Results) else int(kept_pos.size) - len(left_out)
+                levels = len(res.levels[factor].labels) if isinstance(res, Results) else None
+                rows.append({
+                    "outlier rule": rule, "test": "classic", "transform": t, "merges": merge_name,
+                    "n": n_used, "levels": levels, "rows left out": left_out, "left out": len(left_out),
+                    "statistic": stat, "df (term)": d1, "df (residual)": d2, "p-value": p, "note": note,
+                })
+    return rows, all_resp
+
+
+def _pooled_groups(present: tuple[str, ...], chosen: list[tuple[str, ...]]) -> list[tuple[str, ...]]:
+    """Chosen merges pooled transitively (overlapping merges become one group)."""
+    groups: list[set[str]] = []
+    for m in chosen:
+        hit = [g for g in groups if g & set(m)]
+        merged = set(m).union(*hit) if hit else set(m)
+        groups = [g for g in groups if not (g & set(m))] + [merged]
+    return [tuple(lv for lv in present if lv in g) for g in groups]
+
+
+def robustness_sweep(
+    study: object,
+    *,
+    outlier_rules: Sequence[str] = tuple(OUTLIER_RULES),
+    tests: Sequence[str] = tuple(TESTS),
+    transforms: Sequence[str] = tuple(TRANSFORMS),
+    merges: Sequence[Sequence[str]] = (),
+    alpha: float | None = None,
+    record: bool = True,
+) -> SweepResult:
+    """Run every combination of the listed choices on ``study``; see :class:`SweepResult`.
+
+    The first option of each choice is the default specification (by default: no
+    outlier rule, classic F, no transform, no merge). ``merges`` lists level groups (of
+    the first factor) the user considers plausible to pool, e.g. ``[["N2", "N3"]]``;
+    every subset of them is a specification. Factorial and block designs are swept with
+    the classic F test of the first factor (Welch and rank tests are one-factor tests),
+    each specification analysed by the engine on a derived view.
+    """
+    a = float(study.spec.alpha if alpha is None else alpha)  # type: ignore[attr-defined]
+    outlier_rules = _check_options("outlier_rules", outlier_rules, OUTLIER_RULES)
+    tests = _check_options("tests", tests, TESTS)
+    transforms = _check_options("transforms", transforms, TRANSFORMS)
+    notes: list[str] = []
+    if study.spec.is_oneway:  # type: ignore[attr-defined]
+        rows, responses = _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes)
+    else:
+        if tests != ("classic",):
+            notes.append("Welch and rank tests are one-factor tests; this design is swept with the classic F test only.")
+            tests = ("classic",)
+        rows, responses = _factorial_rows(study, outlier_rules, transforms, merges, a, notes)
     table = pd.DataFrame(rows)
     p = table["p-value"].astype(float).to_numpy()
     defined = np.isfinite(p)
