@@ -11,7 +11,6 @@ from scipy import stats
 
 import explorer as ex
 from explorer.core.case_deletion import case_deletion_scan
-from explorer.core.errors import DesignError
 
 
 def _refit(df: pd.DataFrame, drop: int, shift: float = 0.0):  # type: ignore[no-untyped-def]
