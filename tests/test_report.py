@@ -153,8 +153,26 @@ def test_writing_a_report_does_not_add_to_the_disclosure(tmp_path):
     assert study.disclosure == before
 
 
-def test_factorial_study_report_notes_one_factor_scans(tmp_path):
+def test_factorial_study_report(tmp_path):
     study = ex.Study(ROOT / "data" / "coating_thickness.csv", response="thickness_um", factors=["nozzle", "shift"])
+    study.drop([6], reason="gauge slip")
     doc = outline(report_html(study, charts=False))
     assert doc.errors == []
-    assert "one-factor studies" in doc.section_text("sensitivity")
+    assert "single rows whose removal flips it" in doc.section_text("sensitivity")
+    assert "gauge slip" in doc.section_text("edits")
+
+
+def test_a_scan_that_does_not_apply_becomes_a_note(monkeypatch):
+    """A scan refusing the design (DesignError) leaves its line out and says why; the rest still show."""
+    import explorer.core.flip as flip
+
+    def refuse(*args, **kwargs):
+        raise ex.DesignError("the flip finder works on one-factor studies; this study has factors ['a', 'b']. "
+                             "Make a one-factor study of the factor of interest to scan it.")
+
+    monkeypatch.setattr(flip, "flip_finder", refuse)
+    study = ex.Study(ROOT / "data" / "coating_thickness.csv", response="thickness_um", factors="nozzle")
+    text = outline(report_html(study, charts=False)).section_text("sensitivity")
+    assert "The flip finder works on one-factor studies" in text
+    assert "fewest rows whose removal flips it" not in text
+    assert "single rows whose removal flips it" in text
