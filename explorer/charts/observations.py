@@ -46,6 +46,11 @@ def row_marks(base: alt.Chart, pick: alt.Parameter, tooltip: list, size: int = 7
     ).add_params(pick)
 
 
+def _point_size(n: int) -> int:
+    """Smaller points when many are drawn, so that the levels' spread stays readable."""
+    return 70 if n <= 400 else 40 if n <= 1500 else 20
+
+
 def observations_chart(study: Study, *, max_points: int = MAX_POINTS, factor: str | None = None,
                        width: int = WIDTH + 80, height: int = HEIGHT + 80) -> alt.TopLevelMixin:
     """Points by level, level means with confidence intervals (pooled SD), click selection ``pick``."""
@@ -65,7 +70,7 @@ def observations_chart(study: Study, *, max_points: int = MAX_POINTS, factor: st
             y=alt.Y("value:Q", title=y_title, scale=alt.Scale(zero=False, padding=10)),
             xOffset=alt.XOffset("jitter:Q", scale=_OFFSET),
         ),
-        pick, tooltip,
+        pick, tooltip, size=_point_size(len(data)),
     )
     layers = [points]
     table = res.levels.get(f)

@@ -83,6 +83,7 @@ class Explorer(W.VBox):
         self._refreshing = False
         self._picked: tuple[Any, ...] = ()
         self._picked_from = ""
+        self._ids_of: tuple[Any, dict[str, Any]] | None = None  # chart text id -> row id, per dataset
         self.history: list[HistoryStep] = []
         self._record("unedited data")
         self.settings = Settings(alpha=study.spec.alpha, max_points=max_points)
@@ -258,7 +259,10 @@ class Explorer(W.VBox):
     def _on_pick(self, source: str, rows: list[str]) -> None:
         if not rows and source != self._picked_from:
             return  # another chart was redrawn; keep the pick made elsewhere
-        lookup = {str(r): self.study.dataset.row_id(i) for i, r in enumerate(self.study.dataset.row_ids.tolist())}
+        ds = self.study.dataset
+        if self._ids_of is None or self._ids_of[0] is not ds:
+            self._ids_of = (ds, {str(r): ds.row_id(i) for i, r in enumerate(ds.row_ids.tolist())})
+        lookup = self._ids_of[1]
         self._picked = tuple(lookup[r] for r in rows if r in lookup)
         self._picked_from = source
         self._show_picked()

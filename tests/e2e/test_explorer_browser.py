@@ -68,6 +68,16 @@ def _f_cell(page):
     return page.locator(".vx-panel-partition tbody tr:first-child td:nth-child(5)")
 
 
+def _shot(page, name: str) -> None:
+    """Screenshot of the whole explorer: the window is made tall enough that nothing scrolls away."""
+    ARTIFACTS.mkdir(exist_ok=True)
+    height = page.evaluate("() => document.querySelector('.vx-explorer').scrollHeight")
+    page.set_viewport_size({"width": 1700, "height": min(int(height) + 260, 4000)})
+    page.wait_for_timeout(300)  # let the notebook lay out again
+    page.locator(".vx-explorer").screenshot(path=str(ARTIFACTS / name))
+    page.set_viewport_size({"width": 1700, "height": 1700})
+
+
 def _drop_target(page) -> float:
     """Click the planted point, give a reason, press leave out; return click-to-table milliseconds."""
     from playwright.sync_api import expect
@@ -100,24 +110,23 @@ def test_click_drop_and_undo_in_jupyterlab(lab, page):
     expect(page.locator(".vx-header")).to_contain_text("1 edit(s) in effect")
     # the dropped point stays drawn (grey diamond)
     expect(_target(page)).to_have_attribute("aria-label", f"row {TARGET}: line L1, y 38, left out")
-    ARTIFACTS.mkdir(exist_ok=True)
-    page.locator(".vx-explorer").screenshot(path=str(ARTIFACTS / "explorer-after-leave-out.png"))
+    _shot(page, "explorer-after-leave-out.png")
     print(f"\n[timing] n=200: click on 'leave out' to updated partition table: {ms:.0f} ms (target < 300 ms)")
 
     page.locator(".vx-btn-undo").click()
     expect(_f_cell(page)).to_have_text(f_before)
     expect(compare.locator("tr.vx-diff")).to_have_count(0)
     expect(page.locator(".vx-header")).to_contain_text("0 edit(s) in effect, 1 made in all (1 undone)")
-    page.locator(".vx-explorer").screenshot(path=str(ARTIFACTS / "explorer-after-undo.png"))
+    _shot(page, "explorer-after-undo.png")
 
     # the other tabs draw when opened; the fragility scans add to the disclosure count
     page.locator(".vx-explorer .lm-TabBar-tab", has_text="Tests").click()
     expect(page.locator(".vx-panel-overall_tests")).to_contain_text("Chosen test")
-    page.locator(".vx-explorer").screenshot(path=str(ARTIFACTS / "explorer-tests-tab.png"))
+    _shot(page, "explorer-tests-tab.png")
     page.locator(".vx-explorer .lm-TabBar-tab", has_text="Fragility").click()
     expect(page.locator(".vx-chart-leave_one_out .mark-symbol path").first).to_be_visible()
     expect(page.locator(".vx-header")).not_to_contain_text(" 0 alternative analyses examined")
-    page.locator(".vx-explorer").screenshot(path=str(ARTIFACTS / "explorer-fragility-tab.png"))
+    _shot(page, "explorer-fragility-tab.png")
 
 
 def test_timing_at_5000_rows(lab, page):
@@ -130,4 +139,4 @@ def test_timing_at_5000_rows(lab, page):
     ms = _drop_target(page)
     expect(_f_cell(page)).not_to_have_text(f_before)
     print(f"\n[timing] n=5000: click on 'leave out' to updated partition table: {ms:.0f} ms (target < 1000 ms)")
-    page.locator(".vx-explorer").screenshot(path=str(ARTIFACTS / "explorer-5000.png"))
+    _shot(page, "explorer-5000.png")
