@@ -92,7 +92,8 @@ class PairwiseTable:
     def significant(self, alpha: float = 0.05) -> np.ndarray:
         """Which comparisons are declared different at family-wise level ``alpha``."""
         with np.errstate(invalid="ignore"):
-            return np.asarray(self.pvalue < alpha) & np.isfinite(self.pvalue)
+            out: np.ndarray = np.asarray(self.pvalue < alpha) & np.isfinite(self.pvalue)
+        return out
 
     def pair(self, a: str, b: str) -> dict[str, float | str | None]:
         """The row comparing levels ``a`` and ``b`` (in either order; the sign follows the table)."""
@@ -460,7 +461,10 @@ def dunnett(
         stat_for_p = -t
     p = np.array([_dunnett_exceed(float(x), lam, df, alternative) if x > -40 else 1.0 for x in stat_for_p])
     alpha = 1 - confidence
-    f = lambda c: _dunnett_exceed(c, lam, df, alternative) - alpha
+
+    def f(c: float) -> float:
+        return _dunnett_exceed(c, lam, df, alternative) - alpha
+
     hi_c = 4.0
     while f(hi_c) > 0:
         hi_c *= 2

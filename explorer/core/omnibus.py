@@ -198,7 +198,7 @@ def kruskal_wallis(results: Results) -> OmnibusTest:
         return OmnibusTest(method="Kruskal-Wallis H", statistic=None, df_num=float(k - 1), df_den=None,
                            pvalue=None, assumes=assumes, notes=("All observations are tied: H is undefined.",))
     h = float(h / corr)
-    notes = ()
+    notes: tuple[str, ...] = ()
     if n.min() < 5:
         notes = ("Some levels have fewer than 5 observations; the chi-square approximation to H is rough there.",)
     return OmnibusTest(

@@ -114,7 +114,7 @@ def bonferroni_outlier_test(results: Results, *, alpha: float = 0.05) -> Outlier
         return OutlierScreen(method="studentized residuals (Bonferroni)", rule=rule, threshold=None,
                              row_ids=fit.row_ids, scores=_ro(np.full(n, np.nan)), flagged=(), ran=False,
                              notes=("Not run: too few residual df or a zero residual mean square.",))
-    sse = results.ms_resid * results.df_resid
+    sse = float(results.ms_resid or 0.0) * results.df_resid
     with np.errstate(divide="ignore", invalid="ignore"):
         r2 = e * e / (1 - h)
         s2_i = (sse - r2) / df
