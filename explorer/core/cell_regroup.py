@@ -81,32 +81,47 @@ class _Context:
         return [tuple(str(i) for i in range(int(c.max()) + 1)) for c in self.col_codes]
 
 
-def _fits(rows: list[tuple[float, int, float, int, int] | str], ss_total: float) -> AlternativeFits:
-    m = len(rows)
-    ssb, ssw, stat, p, eta = (np.full(m, np.nan) for _ in range(5))
-    df_b = np.zeros(m, dtype=np.int64)
-    df_w = np.zeros(m, dtype=np.int64)
-    lev = np.zeros(m, dtype=np.int64)
-    status = np.zeros(m, dtype=np.int8)
-    for i, r in enumerate(rows):
+class _Block:
+    """Alternatives collected in blocks: arrays of term SS and residual SS with their df and level counts."""
+
+    def __init__(self) -> None:
+        self.parts: list[tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = []
+
+    def add(self, ssb: np.ndarray, df_b: int, ssw: np.ndarray, df_w: int, levels: int) -> None:
+        m = ssb.size
+        self.parts.append((ssb, np.full(m, df_b), ssw, np.full(m, df_w), np.full(m, levels), np.zeros(m, np.int8)))
+
+    def add_result(self, r: tuple[float, int, float, int, int] | str) -> None:
         if isinstance(r, str):
-            status[i] = 4
-            continue
-        ssb[i], df_b[i], ssw[i], df_w[i], lev[i] = r
-        if lev[i] < 2 or df_b[i] < 1:
-            status[i] = 1
-        elif df_w[i] < 1:
-            status[i] = 2
-        elif ssw[i] <= 0:
-            status[i] = 3
+            self.parts.append((np.full(1, np.nan), np.zeros(1, int), np.full(1, np.nan), np.zeros(1, int),
+                               np.zeros(1, int), np.full(1, 4, np.int8)))
         else:
-            stat[i] = (ssb[i] / df_b[i]) / (ssw[i] / df_w[i])
-        if ss_total > 0 and np.isfinite(ssb[i]):
-            eta[i] = ssb[i] / ss_total
-    ok = status == 0
-    p[ok] = f_sf(stat[ok], df_b[ok].astype(float), df_w[ok].astype(float))
-    return AlternativeFits(levels=lev, n=np.zeros(m, dtype=np.int64), df_between=df_b, df_within=df_w,
-                           ss_between=ssb, ss_within=ssw, statistic=stat, pvalue=p, eta_squared=eta, status=status)
+            self.add(np.array([r[0]]), r[1], np.array([r[2]]), r[3], r[4])
+
+    def fits(self, ss_total: float) -> AlternativeFits:
+        """F tests of every alternative collected (vectorised)."""
+        if self.parts:
+            ssb, df_b, ssw, df_w, lev, status = (np.concatenate(x) for x in zip(*self.parts))
+        else:
+            ssb = ssw = np.zeros(0)
+            df_b = df_w = lev = np.zeros(0, dtype=np.int64)
+            status = np.zeros(0, dtype=np.int8)
+        df_b, df_w, lev = df_b.astype(np.int64), df_w.astype(np.int64), lev.astype(np.int64)
+        status = status.copy()
+        free = status == 0
+        status[free & (ssw <= 0)] = 3
+        status[free & (df_w < 1)] = 2
+        status[free & ((lev < 2) | (df_b < 1))] = 1
+        ok = status == 0
+        stat = np.full(ssb.size, np.nan)
+        p = np.full(ssb.size, np.nan)
+        stat[ok] = (ssb[ok] / df_b[ok]) / (ssw[ok] / df_w[ok])
+        p[ok] = f_sf(stat[ok], df_b[ok].astype(float), df_w[ok].astype(float))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            eta = np.where(np.isfinite(ssb) & (ss_total > 0), ssb / ss_total, np.nan)
+        return AlternativeFits(levels=lev, n=np.zeros(ssb.size, dtype=np.int64), df_between=df_b, df_within=df_w,
+                               ss_between=ssb, ss_within=ssw, statistic=stat, pvalue=p, eta_squared=eta,
+                               status=status)
 
 
 def _shifted(cells: GroupStats, changes: dict[int, tuple[float, float]]) -> GroupStats:
@@ -137,21 +152,21 @@ def cell_regroup(study: object, factor: str | None = None, *, moves: bool = True
     notes: list[str] = []
     # Merges: refit once per pair of levels.
     pairs = [(a, b) for a in range(k) for b in range(a + 1, k)]
-    merge_rows: list = []
+    merge_block = _Block()
     present = np.cumsum(np.bincount(ctx.col_codes[j]) > 0) - 1  # view codes -> layout codes
     for a, b in pairs:
         codes = [c.copy() for c in ctx.col_codes]
         lay = present[codes[j]]
         codes[j] = np.where(lay == b, a, lay)
         try:
-            merge_rows.append(ctx.refit_rows(codes))
+            merge_block.add_result(ctx.refit_rows(codes))
         except DesignError as exc:
-            merge_rows.append(str(exc))
+            merge_block.add_result(str(exc))
             notes.append(f"Merging {lv[a]} and {lv[b]}: {exc}")
-    merge_fits = _fits(merge_rows, ctx.ss_total)
-    move_rows_l: list[int] = []
-    move_to_l: list[int] = []
-    move_results: list = []
+    merge_fits = merge_block.fits(ctx.ss_total)
+    move_rows_l: list[np.ndarray] = []
+    move_to_l: list[np.ndarray] = []
+    move_block = _Block()
     if moves:
         data = OnewayInput(factor="cell", y=ctx.y, codes=ctx.cell, labels=ctx.cells.labels, row_ids=ctx.row_ids,
                            positions=np.arange(ctx.y.size), offset=ctx.offset, alpha=spec.alpha, stats=ctx.cells)
@@ -168,18 +183,17 @@ def cell_regroup(study: object, factor: str | None = None, *, moves: bool = True
                 key = list(cl[s])
                 key[j] = b
                 t = lookup.get(tuple(key))
-                for i in rows:
-                    move_rows_l.append(int(i))
-                    move_to_l.append(b)
+                move_rows_l.append(rows)
+                move_to_l.append(np.full(rows.size, b))
                 if t is None or cells.n[s] < 2:
                     for i in rows:  # the design changes: refit directly
                         codes = [c.copy() for c in ctx.col_codes]
                         codes[j] = present[codes[j]]
                         codes[j][i] = b
                         try:
-                            move_results.append(ctx.refit_rows(codes))
+                            move_block.add_result(ctx.refit_rows(codes))
                         except DesignError as exc:
-                            move_results.append(str(exc))
+                            move_block.add_result(str(exc))
                     continue
                 n_t = float(cells.n[t])
                 du = down_mean[rows] - cells.mean[s]
@@ -200,15 +214,14 @@ def cell_regroup(study: object, factor: str | None = None, *, moves: bool = True
                 d_t = ctx.y[rows] - cells.mean[t]
                 m2_t = cells.m2[t] + d_t * d_t * (n_t / (n_t + 1))
                 pure = (m2_total - cells.m2[s] - cells.m2[t]) + down_m2[rows] + m2_t
-                df_t = ctx.main_ss(ctx.base)[1]
-                for r in range(rows.size):
-                    move_results.append((float(val[r, 0]), df_t, float(pure[r] + max(val[r, 1], 0.0)),
-                                         ctx.base.df_resid, len(ctx.levels[0])))
-    move_fits = _fits(move_results, ctx.ss_total)
-    src = ctx.layout.cell_levels[ctx.cell[np.asarray(move_rows_l, dtype=np.int64)], j] if move_rows_l else np.zeros(0, int)
+                move_block.add(val[:, 0], ctx.main_ss(ctx.base)[1], pure + np.maximum(val[:, 1], 0.0),
+                               ctx.base.df_resid, len(ctx.levels[0]))
+    move_fits = move_block.fits(ctx.ss_total)
+    moved = np.concatenate(move_rows_l) if move_rows_l else np.zeros(0, dtype=np.int64)
+    targets = np.concatenate(move_to_l) if move_to_l else np.zeros(0, dtype=np.int64)
+    src = ctx.layout.cell_levels[ctx.cell[moved], j]
     labels = np.asarray(lv, dtype=object)
     notes.append(f"Regrouping {ctx.factor!r}; the decision is read from the {ctx.term!r} term "
                  f"({spec.ss_type} sums of squares).")
     return (ctx.factor, [(lv[a], lv[b]) for a, b in pairs], merge_fits,
-            ctx.row_ids[np.asarray(move_rows_l, dtype=np.int64)], labels[src], labels[np.asarray(move_to_l, dtype=np.int64)],
-            move_fits, notes)
+            ctx.row_ids[moved], labels[src], labels[targets], move_fits, notes)
