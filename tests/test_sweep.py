@@ -23,16 +23,15 @@ def _data() -> pd.DataFrame:
     return pd.DataFrame({"g": g, "y": y})
 
 
-def _reference(df: pd.DataFrame, spec: pd.Series) -> tuple[list[int], float]:
-    """Rebuild one specification with pandas and compute it with statsmodels/scipy."""
+def _rebuild(df: pd.DataFrame, spec: pd.Series, formula: str) -> tuple[pd.DataFrame, np.ndarray]:
+    """The table of one specification (transform, merges) and the rows its outlier rule flags (statsmodels)."""
     d = df.copy()
     if spec["transform"] == "log":
         d["y"] = np.log(d["y"])
     if spec["merges"] != "none":
         for m in spec["merges"].split("; "):
-            levels = m.split("+")
-            d.loc[d.g.isin(levels), "g"] = m
-    fit = smf.ols("y ~ C(g)", d).fit()
+            d.loc[d.g.isin(m.split("+")), "g"] = m
+    fit = smf.ols(formula, d).fit()
     oi = OLSInfluence(fit)
     flag = np.zeros(len(d), dtype=bool)
     if spec["outlier rule"] == "studentized":
@@ -41,6 +40,12 @@ def _reference(df: pd.DataFrame, spec: pd.Series) -> tuple[list[int], float]:
         flag = oi.cooks_distance[0] > 4 / len(d)
     elif spec["outlier rule"] == "outlier_test":
         flag = fit.outlier_test(method="bonf")["bonf(p)"].to_numpy() < 0.05
+    return d, flag
+
+
+def _reference(df: pd.DataFrame, spec: pd.Series) -> tuple[list[int], float]:
+    """Rebuild one specification with pandas and compute it with statsmodels/scipy."""
+    d, flag = _rebuild(df, spec, "y ~ C(g)")
     kept = d[~flag]
     groups = [v.to_numpy() for _, v in kept.groupby("g")["y"]]
     if spec["test"] == "classic":
@@ -119,20 +124,7 @@ def test_two_way_sweep_matches_statsmodels():
     assert sweep.n_specifications == 4 * 1 * 2 * 2 and set(sweep.table["test"]) == {"classic"}
     assert any("one-factor tests" in n for n in sweep.notes)
     for _, spec in sweep.table.iterrows():
-        d = df.copy()
-        if spec["transform"] == "log":
-            d["y"] = np.log(d["y"])
-        if spec["merges"] != "none":
-            d.loc[d.g.isin(["L2", "L3"]), "g"] = "L2+L3"
-        fit = smf.ols("y ~ C(g) * C(s)", d).fit()
-        oi = OLSInfluence(fit)
-        flag = np.zeros(len(d), dtype=bool)
-        if spec["outlier rule"] == "studentized":
-            flag = np.abs(oi.resid_studentized_external) > 3
-        elif spec["outlier rule"] == "cooks":
-            flag = oi.cooks_distance[0] > 4 / len(d)
-        elif spec["outlier rule"] == "outlier_test":
-            flag = fit.outlier_test(method="bonf")["bonf(p)"].to_numpy() < 0.05
+        d, flag = _rebuild(df, spec, "y ~ C(g) * C(s)")
         assert sorted(spec["rows left out"]) == np.flatnonzero(flag).tolist()
         ref = anova_lm(smf.ols("y ~ C(g) * C(s)", d[~flag]).fit(), typ=2).loc["C(g)", "PR(>F)"]
         assert spec["p-value"] == pytest.approx(ref, rel=1e-9)
