@@ -162,6 +162,41 @@ def test_predicate_edit_matches_dropping_those_rows(parquet, frame):
     assert_same_results(s.results, r.results)
 
 
+def test_condition_deltas_downdate_merge_and_fall_back(parquet, frame):
+    """A new condition summarises only the rows it catches and downdates; taking a condition back merges the
+    rows it returns; a downdate that would lose digits (most rows caught) summarises afresh. Each state equals
+    the row study with the same rows dropped (reference: the row-backed study)."""
+    from explorer.summaries import atoms as atoms_mod
+
+    calls = []
+    real = atoms_mod.downdate
+
+    def spy(parent, removed):
+        out = real(parent, removed)
+        calls.append(out is not None)
+        return out
+
+    s = SummaryStudy(parquet, "thickness", ["line", "shift"], sample_size=0)
+    from explorer.summaries import study as study_mod
+
+    study_mod.downdate, saved = spy, study_mod.downdate
+    try:
+        s.drop_where("temperature > 80", reason="oven range")
+        s.drop_where("lot = 5", reason="recall")
+        s.restore_where("temperature > 80", reason="oven log found")
+        s.drop_where("temperature < 85", reason="keep the hot rows only")  # catches most rows: full scan
+    finally:
+        study_mod.downdate = saved
+    assert calls == [True, True, False]
+    r = ex.Study(frame, "thickness", ["line", "shift"])
+    r.drop(list(frame.index[(frame.lot == 5) | (frame.temperature < 85)]))
+    assert_same_results(s.results, r.results)
+    s.undo()
+    r2 = ex.Study(frame, "thickness", ["line", "shift"])
+    r2.drop(list(frame.index[frame.lot == 5]))
+    assert_same_results(s.results, r2.results)
+
+
 def test_level_edits_match_row_study(parquet, frame):
     """merge, rename, set aside a level and a cell, and move rows by a condition equal the same edits made
     row by row (reference: the row-backed study)."""

@@ -23,8 +23,9 @@ import numpy as np
 
 from ..core.dataset import _label, _natural_key
 from ..core.errors import DataError
+from ..core.groupstats import pool_groups
 
-__all__ = ["MOVE_PREFIX", "AtomTable", "Prepared", "finish_two_pass", "level_order"]
+__all__ = ["MOVE_PREFIX", "AtomTable", "Prepared", "downdate", "finish_two_pass", "level_order", "merge_atoms"]
 
 #: Raw key of rows caught by row-move predicate k of a factor: MOVE_PREFIX + str(k).
 MOVE_PREFIX = "\x00move:"
@@ -115,3 +116,62 @@ def choose_offset(value: object) -> tuple[float, str, Decimal | float]:
     if not np.isfinite(f) or abs(f) < 1.0:
         return 0.0, "0", 0.0
     return f, repr(f), f
+
+
+def _atom_keys(t: AtomTable) -> list[tuple]:
+    return [tuple(t.raw[j][i] for j in range(len(t.factors))) + tuple(int(m) for m in t.move[i]) for i in range(t.size)]
+
+
+def _subset(t: AtomTable, keep: np.ndarray) -> AtomTable:
+    return AtomTable(factors=t.factors, raw=tuple(tuple(v for v, k in zip(col, keep) if k) for col in t.raw),
+                     move=t.move[keep], n=t.n[keep], mean=t.mean[keep], m2=t.m2[keep], offset=t.offset)
+
+
+#: A downdate may lose at most this share of a centred SS (three digits) before a full scan is preferred.
+_MAX_LOSS = 1e-3
+
+
+def downdate(parent: AtomTable, removed: AtomTable) -> AtomTable | None:
+    """``parent`` without the rows summarised in ``removed`` (a subset of them, atom by atom).
+
+    Inverse of the pairwise merge (Chan, Golub and LeVeque 1983): with ``k`` the kept part,
+    ``mean_k = mean + n_r (mean - mean_r) / n_k`` and
+    ``m2_k = m2 - m2_r - n_k n_r / n (mean_k - mean_r)^2``. The subtraction loses digits
+    when the kept part holds a small share of the atom's count or sum of squares; then
+    ``None`` is returned and the caller summarises the kept rows afresh.
+    """
+    index = {k: i for i, k in enumerate(_atom_keys(parent))}
+    n = parent.n.astype(np.float64).copy()
+    mean = parent.mean.copy()
+    m2 = parent.m2.copy()
+    for key, nr, mr, qr in zip(_atom_keys(removed), removed.n.astype(np.float64), removed.mean, removed.m2):
+        j = index.get(key)
+        if j is None or nr > n[j]:
+            return None
+        nk = n[j] - nr
+        if nk == 0:
+            n[j], mean[j], m2[j] = 0.0, 0.0, 0.0
+            continue
+        mk = mean[j] + nr * (mean[j] - mr) / nk
+        qk = m2[j] - qr - nk * nr / n[j] * (mk - mr) ** 2
+        if nk < _MAX_LOSS * n[j] or qk < _MAX_LOSS * m2[j]:
+            return None
+        n[j], mean[j], m2[j] = nk, mk, max(qk, 0.0)
+    out = AtomTable(factors=parent.factors, raw=parent.raw, move=parent.move, n=np.rint(n).astype(np.int64),
+                    mean=mean, m2=m2, offset=parent.offset)
+    return _subset(out, out.n > 0)
+
+
+def merge_atoms(parent: AtomTable, added: AtomTable) -> AtomTable:
+    """``parent`` with the rows summarised in ``added`` joined in (pairwise merge; no digits lost)."""
+    keys = _atom_keys(parent) + _atom_keys(added)
+    index: dict[tuple, int] = {}
+    codes = np.asarray([index.setdefault(k, len(index)) for k in keys], dtype=np.int64)
+    pooled = pool_groups(np.concatenate([parent.n, added.n]), np.concatenate([parent.mean, added.mean]),
+                         np.concatenate([parent.m2, added.m2]), codes, tuple(str(i) for i in range(len(index))),
+                         parent.offset)
+    k = len(parent.factors)
+    order = list(index)
+    return AtomTable(factors=parent.factors, raw=tuple(tuple(key[j] for key in order) for j in range(k)),
+                     move=np.asarray([key[k:] for key in order], dtype=np.int64).reshape(-1, k),
+                     n=pooled.n, mean=np.asarray(pooled.mean), m2=np.asarray(pooled.m2), offset=parent.offset)

@@ -34,7 +34,7 @@ def summary_battery(study: Any, **options: Any) -> Battery:
     part = run_battery(sample, **options)
     full = study.results
     opts = dict(part.options)
-    a, conf = part.alpha, float(opts["confidence"])
+    a, conf = part.alpha, float(opts["confidence"])  # type: ignore[arg-type]
     tk = tukey(full, confidence=conf)
     gh = games_howell(full, confidence=conf)
     pt = pairwise_t(full, adjust=opts["pairwise_adjust"], confidence=conf)  # type: ignore[arg-type]

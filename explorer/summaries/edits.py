@@ -43,7 +43,7 @@ class DropWhere(Edit):
     kind: ClassVar[str] = "drop_where"
     predicate: str
 
-    def apply(self, view: Any, dataset: Any) -> SummaryView:
+    def apply(self, view: Any, dataset: Any) -> Any:
         v = _summary_view(view, "leaving rows out by a condition")
         p = parse_predicate(self.predicate, _columns(dataset))
         if any(f.text == p.text for f in v.filters):
@@ -62,7 +62,7 @@ class RestoreWhere(Edit):
     kind: ClassVar[str] = "restore_where"
     predicate: str
 
-    def apply(self, view: Any, dataset: Any) -> SummaryView:
+    def apply(self, view: Any, dataset: Any) -> Any:
         v = _summary_view(view, "restoring rows by a condition")
         text = self.predicate.strip()
         kept = tuple(f for f in v.filters if f.text != text)
@@ -88,7 +88,7 @@ class MoveWhere(Edit):
     def __post_init__(self) -> None:
         object.__setattr__(self, "level", str(self.level))
 
-    def apply(self, view: Any, dataset: Any) -> SummaryView:
+    def apply(self, view: Any, dataset: Any) -> Any:
         v = _summary_view(view, "moving rows by a condition")
         _check_factor(v, self.factor)  # type: ignore[arg-type]
         if not self.level.strip():
@@ -137,7 +137,7 @@ class _SetAside(Edit):
             v = getattr(self, name)
             object.__setattr__(self, name, (str(v),) if isinstance(v, str) else tuple(str(x) for x in v))
 
-    def apply(self, view: Any, dataset: Any) -> SummaryView:
+    def apply(self, view: Any, dataset: Any) -> Any:
         v = _summary_view(view, "setting aside levels or cells")
         cond = _condition(v, self.factors, self.levels)
         if self.restore:

@@ -205,8 +205,10 @@ class DuckDBSource:
                         rows_set_aside=None, notes=tuple(notes))
 
     # ------------------------------------------------------------------ queries
-    def _where(self, filters: Sequence[Predicate]) -> str:
+    def _where(self, filters: Sequence[Predicate], only: Predicate | None = None) -> str:
         parts = [self._usable] + [f"NOT coalesce(({p.render('duckdb')}), false)" for p in filters]
+        if only is not None:  # first, so that the scan can skip rows on it
+            parts.insert(0, f"coalesce(({only.render('duckdb')}), false)")
         return " AND ".join(parts)
 
     def _move_columns(self, prep: Prepared, moves: Sequence[tuple[Predicate, str]]) -> list[str]:
@@ -218,7 +220,7 @@ class DuckDBSource:
         return cols
 
     def _kept_rows(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]],
-                   seed: int | None = None, relation: str | None = None) -> str:
+                   seed: int | None = None, relation: str | None = None, only: Predicate | None = None) -> str:
         """The kept rows with the shifted response, factor keys, move indices (and the sample hash)."""
         fcols = [f"{_q(f)} AS vx_f{j}" for j, f in enumerate(prep.factors)]
         extra = ""
@@ -226,15 +228,17 @@ class DuckDBSource:
             cols = ", ".join(_q(c) for c in self.columns)
             extra = f", {cols}, " + ("vx_h" if relation else f"hash({cols}, {int(seed)}) AS vx_h")
         return (f"SELECT {self._shifted} AS vx_y, {', '.join(fcols + self._move_columns(prep, moves))}{extra} "
-                f"FROM {relation or self._relation} WHERE {self._where(filters)}")
+                f"FROM {relation or self._relation} WHERE {self._where(filters, only)}")
 
     def atoms(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]], *,
-              sample_size: int = 0, seed: int = 0) -> AtomTable:
+              sample_size: int = 0, seed: int = 0, only: Predicate | None = None) -> AtomTable:
         """Per-atom n, mean and centred SS of the rows that pass ``filters`` (one scan, or two with ``passes=2``).
 
         With ``sample_size`` on the unedited rows, the same scan keeps a pool of the rows
         whose seeded hash falls below a threshold (about three times the sample size);
         later samples of edited views are taken from that pool without another scan.
+        ``only`` restricts the summary to the kept rows where that predicate holds (the rows
+        a new condition would leave out, or an old one bring back).
         """
         k = len(prep.factors)
         moved = {f for _, f in moves}
@@ -243,7 +247,7 @@ class DuckDBSource:
         out_keys = [f"vx_f{j}" for j in range(k)] + [
             f"vx_m{j}" if f in moved else f"0 AS vx_m{j}" for j, f in enumerate(prep.factors)]
         smp = ""
-        pooling = bool(sample_size) and not filters and not moves and self._pool is None
+        pooling = bool(sample_size) and not filters and not moves and only is None and self._pool is None
         if pooling:
             frac = min(1.0, 3.0 * sample_size / max(prep.rows_total - (prep.rows_set_aside or 0), 1))
             limit = min(int(frac * 2.0**64), 2**64 - 1)
@@ -253,7 +257,7 @@ class DuckDBSource:
         self.con.execute(
             f"CREATE OR REPLACE TEMP TABLE vx_pass1 AS SELECT {', '.join(keys)}, count(*) AS vx_n, "
             f"fsum(vx_y) / count(*) AS vx_mean{welford}{smp} "
-            f"FROM ({self._kept_rows(prep, filters, moves, seed if pooling else None)}) GROUP BY ALL"
+            f"FROM ({self._kept_rows(prep, filters, moves, seed if pooling else None, only=only)}) GROUP BY ALL"
         )
         if pooling:
             self.con.execute("CREATE OR REPLACE TEMP TABLE vx_pool AS "
@@ -269,7 +273,8 @@ class DuckDBSource:
                 f"SELECT {', '.join(c if ' AS ' in c else 'p.' + c for c in out_keys)}, p.vx_n, p.vx_mean, "
                 f"fsum(s.vx_y - p.vx_mean), "
                 f"fsum((s.vx_y - p.vx_mean) * (s.vx_y - p.vx_mean)) "
-                f"FROM ({self._kept_rows(prep, filters, moves)}) s JOIN vx_pass1 p ON {on} GROUP BY ALL ORDER BY ALL"
+                f"FROM ({self._kept_rows(prep, filters, moves, only=only)}) s JOIN vx_pass1 p ON {on} "
+                f"GROUP BY ALL ORDER BY ALL"
             ).fetchall()
         table = _atom_table(prep, rows)
         if not (np.all(np.isfinite(table.mean)) and np.all(np.isfinite(table.m2))):

@@ -154,9 +154,11 @@ class SparkSource:
                         decimal_scale=scale, numeric_factors=numeric, rows_total=int(total), rows_set_aside=aside,
                         set_aside_detail=detail, notes=notes)
 
-    def _kept(self, filters: Sequence[Predicate]) -> Any:
+    def _kept(self, filters: Sequence[Predicate], only: Predicate | None = None) -> Any:
         F = self.F
         df = self.df.where(self._usable)
+        if only is not None:
+            df = df.where(F.coalesce(F.expr(only.render("spark")), F.lit(False)))
         for p in filters:
             df = df.where(~F.coalesce(F.expr(p.render("spark")), F.lit(False)))
         return df
@@ -172,13 +174,17 @@ class SparkSource:
             out.append(expr.cast("long").alias(f"vx_m{j}"))
         return out
 
-    def atoms(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]]) -> AtomTable:
-        """Per-atom statistics: one pass over the rows, partials pooled on the driver."""
+    def atoms(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]], *,
+              only: Predicate | None = None) -> AtomTable:
+        """Per-atom statistics: one pass over the rows, partials pooled on the driver.
+
+        ``only`` restricts the summary to the kept rows where that predicate holds.
+        """
         from pyspark.sql import types as T
 
         k = len(prep.factors)
         keys = [f"f{j}" for j in range(k)] + [f"m{j}" for j in range(k)]
-        sel = self._kept(filters).select(
+        sel = self._kept(filters, only).select(
             self._shifted.alias("y"), *[self._col(f).alias(f"f{j}") for j, f in enumerate(prep.factors)],
             *[m.alias(f"m{j}") for j, m in enumerate(self._moves(prep, moves))],
         )

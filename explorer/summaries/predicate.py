@@ -69,7 +69,7 @@ class Predicate:
     columns: tuple[str, ...]
 
     def render(self, dialect: str = "duckdb") -> str:
-        out = []
+        out: list[str] = []
         for i, t in enumerate(self.tokens):
             if t.text == "(" and i and self.tokens[i - 1].kind == "func":
                 out[-1] += "("

@@ -27,7 +27,7 @@ import pandas as pd
 from ..core.edits import MergeLevels
 from ..core.errors import DesignError
 from ..core.tables import fmt, html_table
-from .view import SummaryView
+from .view import Condition, SummaryView
 
 __all__ = ["SetAsideScan", "set_aside_scan"]
 
@@ -88,15 +88,17 @@ def set_aside_scan(
                 alts.append((f"set aside {f} = {lv}", view.replace(set_aside=view.set_aside + (cond,))))
     if cells and len(spec.columns) > 1 and now.cells is not None:
         for labels in now.cells.labels:
-            cond = tuple(zip(spec.columns, labels))
-            alts.append(("set aside cell " + ", ".join(f"{f} = {lv}" for f, lv in cond), view.replace(set_aside=view.set_aside + (cond,))))
+            cell: Condition = tuple(zip(spec.columns, labels))
+            what = "set aside cell " + ", ".join(f"{f} = {lv}" for f, lv in cell)
+            alts.append((what, view.replace(set_aside=view.set_aside + (cell,))))
     if merges:
         busy = {(f, lv) for c in view.set_aside for f, lv in c}
         for f in spec.factors:
             for x, y in combinations(view.levels[f], 2):
                 if (f, x) in busy or (f, y) in busy:
                     continue
-                merged = MergeLevels(factor=f, levels=(x, y), into=f"{x}+{y}").apply(view, study.summary_data)  # type: ignore[arg-type]
+                merged: SummaryView = MergeLevels(factor=f, levels=(x, y), into=f"{x}+{y}").apply(
+                    view, study.summary_data)  # type: ignore[arg-type,assignment]
                 alts.append((f"pool {f} levels {x} and {y}", merged))
     rows = []
     for what, alt in alts:

@@ -38,7 +38,7 @@ from ..core.results import Results
 from ..core.spec import ModelSpec
 from ..core.study import Study, StudyEvent
 from ..core.view import DataView
-from .atoms import MOVE_PREFIX, AtomTable, level_order
+from .atoms import MOVE_PREFIX, AtomTable, downdate, level_order, merge_atoms
 from .edits import (
     DropCell,
     DropLevel,
@@ -48,6 +48,7 @@ from .edits import (
     RestoreLevel,
     RestoreWhere,
 )
+from .predicate import parse_predicate
 from .view import SummaryData, SummaryView
 
 __all__ = ["SummaryStudy", "as_source"]
@@ -145,9 +146,36 @@ class SummaryStudy(Study):
         return self._atom_cache[key]
 
     def _query_atoms(self, filters: tuple, moves: tuple) -> AtomTable:
+        delta = self._atoms_by_delta(filters, moves)
+        if delta is not None:
+            return delta
         if self.sample_size and getattr(self.source, "samples_with_atoms", False):
             return self.source.atoms(self.prepared, filters, moves, sample_size=self.sample_size, seed=self.seed)
         return self.source.atoms(self.prepared, filters, moves)
+
+    def _atoms_by_delta(self, filters: tuple, moves: tuple) -> AtomTable | None:
+        """Atoms of a view one condition away from a cached one, summarising only the rows in between.
+
+        A new condition: summarise the kept rows it catches (the engine can skip the rest
+        early) and downdate; a condition taken back: summarise the rows it brings back and
+        merge (exact). ``None`` when no cached view is one condition away or a downdate
+        would lose digits.
+        """
+        texts = tuple(p.text for p in filters)
+        move_key = tuple((p.text, f) for p, f in moves)
+        for (pf, pm), parent in reversed(list(self._atom_cache.items())):
+            if pm != move_key:
+                continue
+            if len(texts) == len(pf) + 1 and texts[:-1] == pf:
+                removed = self.source.atoms(self.prepared, filters[:-1], moves, only=filters[-1])
+                return downdate(parent, removed)
+            if len(texts) + 1 == len(pf) and set(texts) < set(pf):
+                (gone,) = set(pf) - set(texts)
+                if [t for t in pf if t != gone] != list(texts):
+                    continue
+                back = parse_predicate(gone, self.source.columns)
+                return merge_atoms(parent, self.source.atoms(self.prepared, filters, moves, only=back))
+        return None
 
     def _sample(self, view: SummaryView) -> tuple[Dataset, pd.DataFrame]:
         key = view.engine_state()
@@ -341,7 +369,7 @@ class SummaryStudy(Study):
             if clash:
                 raise EditError(f"edit refused ({edit.describe()}): level(s) {clash} of {edit.factor!r} are set aside; "
                                 "restore them first")
-        new = edit.apply(old, self.summary_data)  # type: ignore[arg-type]
+        new: SummaryView = edit.apply(old, self.summary_data)  # type: ignore[arg-type,assignment]
         if isinstance(edit, RenameLevel):
             new = new.replace(set_aside=tuple(
                 tuple((f, edit.new if (f == edit.factor and lv == edit.old) else lv) for f, lv in cond)
