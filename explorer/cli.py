@@ -2,7 +2,7 @@
 
 ``variance-explorer`` (or ``python -m explorer``) with one of the commands::
 
-    check  DATA --response Y --factor A [--factor B] [--block C] [--edits FILE]
+    check  DATA --response Y --factor A [--factor B] [--block C] [--id-column ID] [--edits FILE]
     report DATA --response Y --factor A [...] [--edits FILE] -o OUT.html
     code   DATA --response Y --factor A [...] [--edits FILE]
     demo   [--no-browser] [--dry-run] [--port N] [-- extra JupyterLab options]
@@ -69,6 +69,7 @@ def _add_data_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--factor", action="append", default=[], help="grouping column (repeat for more factors)")
     p.add_argument("--block", action="append", default=[], help="additive block column (repeatable)")
     p.add_argument("--alpha", type=float, help="level at which decisions are read (default 0.05)")
+    p.add_argument("--id-column", help="column of unique row ids (panel, sample, plot) used to name rows")
     p.add_argument("--edits", help="study file written by study.save: its edits (with reasons) are replayed")
 
 
@@ -156,7 +157,8 @@ def load_study(args: argparse.Namespace) -> Study:
         missing = [n for n, v in (("--response", args.response), ("--factor", args.factor)) if not v]
         raise CommandError(EXIT_BAD_INPUT, f"name the {' and '.join(missing)} (or give --edits with a saved study)")
     kwargs = {"alpha": args.alpha} if args.alpha is not None else {}
-    return Study(data, response=args.response, factors=args.factor, blocks=args.block, **kwargs)
+    return Study(data, response=args.response, factors=args.factor, blocks=args.block, id_column=args.id_column,
+                 **kwargs)
 
 
 # --------------------------------------------------------------------------- commands

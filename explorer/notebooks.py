@@ -20,13 +20,14 @@ DEMO_CELLS: tuple[tuple[str, str], ...] = (
 
 The data are **invented** (see `data/README.md`): 114 steel panels sprayed through four
 nozzles, film thickness in micrometres. Two readings look suspect (panels P1007 and
-P1071, rows 6 and 70), and nozzles N2 and N3 may come from one supplier. This notebook
+P1071), and nozzles N2 and N3 may come from one supplier. This notebook
 walks the whole job: load, explore, find how fragile the decision is, edit with reasons,
 save, and hand off. Read the cautions in the README before leaving data out."""),
     ("code", """\
 import explorer as ex
 
-study = ex.Study("../data/coating_thickness.csv", response="thickness_um", factors="nozzle")
+study = ex.Study("../data/coating_thickness.csv", response="thickness_um", factors="nozzle",
+                 id_column="panel")  # rows are named by panel id
 study.results"""),
     ("markdown", """\
 ## Explore
@@ -51,8 +52,8 @@ Leave out what the line log documents, and pool the two nozzles from one supplie
 edit is logged with its reason and time; `study.baseline` keeps the unedited results, and
 the explorer above redraws."""),
     ("code", """\
-study.drop([6], reason="P1007: gauge slip, see the line log")
-study.drop([70], reason="P1071: recoated by mistake, see the rework sheet")
+study.drop(["P1007"], reason="gauge slip, see the line log")
+study.drop(["P1071"], reason="recoated by mistake, see the rework sheet")
 study.merge_levels("nozzle", ["N2", "N3"], into="N2+N3", reason="N2 and N3 come from one supplier")
 print("baseline:", study.baseline.decision())
 print("current: ", study.results.decision())

@@ -246,3 +246,10 @@ def test_missing_server_or_notebook_is_exit_5(capsys, monkeypatch, tmp_path):
     monkeypatch.setattr(cli, "PROJECT_ROOT", tmp_path)
     code, _, err = run(capsys, "demo", "--dry-run")
     assert code == 5 and "demo notebook is not at" in err
+
+
+def test_id_column_names_rows(capsys):
+    code, out, _ = run(capsys, "check", DEMO, *BASE, "--id-column", "panel", "--no-cautions")
+    assert code == 0 and "single rows whose removal flips it" in out and "P1007" in out
+    code, _, err = run(capsys, "check", DEMO, *BASE, "--id-column", "panels")
+    assert code == 2 and "'panels'" in err and "Did you mean" in err

@@ -48,8 +48,9 @@ def test_demo_notebook_runs_headless(tmp_path):
     errors = [o for c in nb.cells if c.cell_type == "code" for o in c.get("outputs", []) if o.output_type == "error"]
     assert errors == []
     saved = json.loads((tmp_path / "notebooks" / "coating.study.json").read_text())
-    assert [e["reason"] for e in saved["edits"]][:2] == ["P1007: gauge slip, see the line log",
-                                                         "P1071: recoated by mistake, see the rework sheet"]
+    assert [e["reason"] for e in saved["edits"]][:2] == ["gauge slip, see the line log",
+                                                         "recoated by mistake, see the rework sheet"]
+    assert [e.get("rows") for e in saved["edits"]][:2] == [["P1007"], ["P1071"]]
     report = (tmp_path / "notebooks" / "coating-report.html").read_text(encoding="utf-8")
     assert "N2 and N3 come from one supplier" in report
     printed = "".join(o.get("text", "") for o in nb.cells[-1].outputs if o.output_type == "stream")
