@@ -12,7 +12,7 @@ from .core import *  # noqa: F403
 from .core import __all__ as _core_all
 
 __version__ = "0.1.0"
-__all__ = list(_core_all) + ["explore", "Explorer", "__version__"]
+__all__ = list(_core_all) + ["explore", "Explorer", "SummaryStudy", "__version__"]
 
 
 def __getattr__(name: str) -> Any:
@@ -20,4 +20,8 @@ def __getattr__(name: str) -> Any:
         from . import widget
 
         return getattr(widget, name)
+    if name == "SummaryStudy":  # studies on cell summaries computed by DuckDB or Spark (engines load lazily)
+        from .summaries import SummaryStudy
+
+        return SummaryStudy
     raise AttributeError(f"module 'explorer' has no attribute {name!r}")
