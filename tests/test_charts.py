@@ -172,3 +172,16 @@ def test_specification_curve_has_every_specification_in_rank_order():
     assert len(rows) == sweep.n_specifications
     by_rank = sorted(rows, key=lambda r: r["rank"])
     assert [r["p"] for r in by_rank] == sorted(r["p"] for r in rows)
+
+
+def test_row_charts_hover_every_column_when_given_the_table():
+    study = ex.Study(_handbook(), "y", "level")
+    study.drop([4], reason="test")
+    cols = charts.row_columns(study)
+    for build in (charts.residuals_fitted_chart, charts.normal_probability_chart, charts.cooks_distance_chart):
+        spec = build(study.results, columns=cols).to_dict()
+        layer = _point_layer(spec)
+        titles = {t.get("title") for t in layer["encoding"]["tooltip"]}
+        assert {"level", "y", "operator"} <= titles
+        rows = {r["row"]: r for r in _values(spec, layer)}
+        assert rows["3"]["c2"] == "di" and rows["3"]["c1"] == 4.6 and "4" not in rows

@@ -4,7 +4,14 @@ Each builder is a function of its inputs only and is tested through ``chart.to_d
 Row-level charts carry a click selection named ``pick`` on the ``row`` field.
 """
 
-from .frames import MAX_POINTS, fit_frame, observation_frame, thin
+from .frames import (
+    MAX_POINTS,
+    RowColumns,
+    fit_frame,
+    observation_frame,
+    row_columns,
+    thin,
+)
 from .history import HistoryStep, history_chart
 from .influence import cooks_distance_chart, influence_of
 from .observations import PICK, observations_chart
@@ -18,6 +25,7 @@ __all__ = [
     "MAX_POINTS",
     "PICK",
     "HistoryStep",
+    "RowColumns",
     "case_deletion_chart",
     "cooks_distance_chart",
     "fit_frame",
@@ -29,6 +37,7 @@ __all__ = [
     "partition_chart",
     "partition_frame",
     "residuals_fitted_chart",
+    "row_columns",
     "specification_curve_chart",
     "thin",
 ]

@@ -15,7 +15,16 @@ import pandas as pd
 
 from explorer.core import Results, Study
 
-__all__ = ["MAX_POINTS", "Thinned", "column_fields", "fit_frame", "observation_frame", "thin"]
+__all__ = [
+    "MAX_POINTS",
+    "RowColumns",
+    "Thinned",
+    "column_fields",
+    "fit_frame",
+    "observation_frame",
+    "row_columns",
+    "thin",
+]
 
 #: Most rows a chart draws (Altair's own inline-data limit).
 MAX_POINTS = 5000
@@ -70,6 +79,32 @@ def _table_rows(study: Study) -> pd.DataFrame:
     ds = study.dataset
     usable = np.isin(ds.all_row_ids, ds.row_ids) if len(ds.set_aside) else np.ones(len(ds.table), dtype=bool)
     return ds.table.iloc[np.flatnonzero(usable)]
+
+
+@dataclass(frozen=True)
+class RowColumns:
+    """Every table column of the usable rows (by position), for hover text on row-level charts."""
+
+    table: pd.DataFrame
+    fields: list[tuple[str, str]]
+
+    def attach(self, frame: pd.DataFrame) -> pd.DataFrame:
+        """``frame`` plus the columns ``c0``, ``c1``... of the rows named by its ``order`` column."""
+        rows = self.table.iloc[frame["order"].to_numpy()]
+        out = frame.copy()
+        for i, (field, _) in enumerate(self.fields):
+            out[field] = _json_safe(rows.iloc[:, i])
+        return out
+
+    def tooltips(self) -> list:
+        import altair as alt
+
+        return [alt.Tooltip(field, title=title) for field, title in self.fields]
+
+
+def row_columns(study: Study) -> RowColumns:
+    """The study's table columns for hover text (pass to the fit-based chart builders)."""
+    return RowColumns(_table_rows(study), column_fields(study.dataset.table))
 
 
 def _jitter(n: int) -> np.ndarray:

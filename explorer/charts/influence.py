@@ -14,7 +14,7 @@ import numpy as np
 from explorer.core import Results
 from explorer.core.influence import Influence, influence_measures
 
-from .frames import MAX_POINTS, fit_frame, thin
+from .frames import MAX_POINTS, RowColumns, fit_frame, thin
 from .observations import pick_param, row_marks
 from .style import GUIDE, HEIGHT, KEPT, WIDTH, finish
 
@@ -30,7 +30,7 @@ def influence_of(results: Results) -> Influence:
 
 
 def cooks_distance_chart(results: Results, *, max_points: int = MAX_POINTS, width: int = WIDTH,
-                         height: int = HEIGHT) -> alt.TopLevelMixin:
+                         height: int = HEIGHT, columns: RowColumns | None = None) -> alt.TopLevelMixin:
     """Cook's distance against table order, with the 4/n rule-of-thumb line; tall spikes pull the fit.
 
     Rows whose distance is undefined (alone in their level) are left out of the drawing and named
@@ -44,13 +44,15 @@ def cooks_distance_chart(results: Results, *, max_points: int = MAX_POINTS, widt
     frame = frame.iloc[picked.positions].copy()
     frame["state"] = "in analysis"
     frame["aria"] = [f"row {r}: Cook's distance" for r in frame["row"]]
+    tip = [alt.Tooltip("row:N", title="row id"), alt.Tooltip("level:N", title="level"),
+           alt.Tooltip("distance:Q", title="Cook's distance", format=".4g"),
+           alt.Tooltip("residual:Q", format=".4g"), alt.Tooltip("leverage:Q", format=".4g")]
+    if columns is not None:
+        frame, tip = columns.attach(frame), tip + columns.tooltips()
     yard = infl.cutoffs["cooks_4_over_n"]
     base = alt.Chart(frame).encode(x=alt.X("order:Q", title="row (table order)"),
                                    y=alt.Y("distance:Q", title="Cook's distance"))
     stems = base.mark_rule(color=KEPT, opacity=0.5).encode(y2=alt.datum(0))
-    tip = [alt.Tooltip("row:N", title="row id"), alt.Tooltip("level:N", title="level"),
-           alt.Tooltip("distance:Q", title="Cook's distance", format=".4g"),
-           alt.Tooltip("residual:Q", format=".4g"), alt.Tooltip("leverage:Q", format=".4g")]
     guide = alt.Chart().mark_rule(color=GUIDE, strokeDash=[4, 3]).encode(y=alt.datum(yard))
     chart = alt.layer(stems, guide, row_marks(base, pick_param(), tip, size=35, legend=False))
     sub = [f"Dashed line: 4/n = {yard:.3g}, a common rule of thumb for a closer look."]

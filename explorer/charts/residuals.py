@@ -15,7 +15,7 @@ from scipy import stats
 
 from explorer.core import Results
 
-from .frames import MAX_POINTS, fit_frame, thin
+from .frames import MAX_POINTS, RowColumns, fit_frame, thin
 from .observations import pick_param, row_marks
 from .style import GUIDE, HEIGHT, WIDTH, finish
 
@@ -31,8 +31,11 @@ def _aria(frame, what: str) -> list[str]:
 
 
 def residuals_fitted_chart(results: Results, *, max_points: int = MAX_POINTS, width: int = WIDTH,
-                           height: int = HEIGHT) -> alt.TopLevelMixin:
-    """Residual against fitted value for every row in the analysis; a fan or a curve questions the model."""
+                           height: int = HEIGHT, columns: RowColumns | None = None) -> alt.TopLevelMixin:
+    """Residual against fitted value for every row in the analysis; a fan or a curve questions the model.
+
+    ``columns`` (:func:`~explorer.charts.frames.row_columns`) adds every table column to the hover text.
+    """
     frame = fit_frame(results)
     picked = thin(len(frame), max_points, priority=frame["residual"].to_numpy())
     frame = frame.iloc[picked.positions].copy()
@@ -40,6 +43,8 @@ def residuals_fitted_chart(results: Results, *, max_points: int = MAX_POINTS, wi
     frame["aria"] = _aria(frame, "residual")
     tip = _row_tooltip([alt.Tooltip("observed:Q", format=".6g"), alt.Tooltip("fitted:Q", format=".6g"),
                         alt.Tooltip("residual:Q", format=".4g")])
+    if columns is not None:
+        frame, tip = columns.attach(frame), tip + columns.tooltips()
     base = alt.Chart(frame).encode(
         x=alt.X("fitted:Q", title="fitted value (level mean)", scale=alt.Scale(zero=False)),
         y=alt.Y("residual:Q", title="residual"),
@@ -53,7 +58,7 @@ def residuals_fitted_chart(results: Results, *, max_points: int = MAX_POINTS, wi
 
 
 def normal_probability_chart(results: Results, *, max_points: int = MAX_POINTS, width: int = WIDTH,
-                             height: int = HEIGHT) -> alt.TopLevelMixin:
+                             height: int = HEIGHT, columns: RowColumns | None = None) -> alt.TopLevelMixin:
     """Ordered residuals against normal quantiles (``scipy.stats.probplot``) with its least-squares line."""
     frame = fit_frame(results)
     order = np.argsort(frame["residual"].to_numpy(), kind="stable")
@@ -69,6 +74,8 @@ def normal_probability_chart(results: Results, *, max_points: int = MAX_POINTS, 
     line = line.mark_line(color=GUIDE, strokeDash=[4, 3]).encode(x="q:Q", y="r:Q")
     tip = _row_tooltip([alt.Tooltip("residual:Q", format=".4g"), alt.Tooltip("quantile:Q", title="normal quantile",
                                                                               format=".3f")])
+    if columns is not None:
+        frame, tip = columns.attach(frame), tip + columns.tooltips()
     base = alt.Chart(frame).encode(x=alt.X("quantile:Q", title="normal quantile"),
                                    y=alt.Y("residual:Q", title="ordered residual"))
     chart = alt.layer(line, row_marks(base, pick_param(), tip, size=45, legend=False)).properties(width=width, height=height)

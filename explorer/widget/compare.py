@@ -91,6 +91,7 @@ def comparison_html(study: Study) -> str:
     rows = [
         _line("rows in analysis", b.n_used, c.n_used),
         _line(f"levels of {term}", b.groups.k, c.groups.k),
+        _line("df, residual", rb.df, rc.df),
         _line(f"sum of squares, {term}", tb.sum_sq, tc.sum_sq),
         _line("sum of squares, residual", rb.sum_sq, rc.sum_sq),
         _line(f"F, {term}", tb.statistic, tc.statistic, 5),

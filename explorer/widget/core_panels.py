@@ -43,17 +43,20 @@ def compare(ctx: PanelContext) -> Any:
 
 @panel("residuals", "Residuals against fitted values", group=CHECKS, order=10)
 def residuals(ctx: PanelContext) -> Any:
-    return charts.residuals_fitted_chart(ctx.results, max_points=ctx.settings.max_points)
+    return charts.residuals_fitted_chart(ctx.results, max_points=ctx.settings.max_points,
+                                         columns=charts.row_columns(ctx.study))
 
 
 @panel("normal", "Normal probability plot", group=CHECKS, order=20)
 def normal(ctx: PanelContext) -> Any:
-    return charts.normal_probability_chart(ctx.results, max_points=ctx.settings.max_points)
+    return charts.normal_probability_chart(ctx.results, max_points=ctx.settings.max_points,
+                                           columns=charts.row_columns(ctx.study))
 
 
 @panel("cooks", "Cook's distance", group=CHECKS, order=30)
 def cooks(ctx: PanelContext) -> Any:
-    return charts.cooks_distance_chart(ctx.results, max_points=ctx.settings.max_points)
+    return charts.cooks_distance_chart(ctx.results, max_points=ctx.settings.max_points,
+                                       columns=charts.row_columns(ctx.study))
 
 
 @panel("partition_chart", "Partition, unedited and current", group=TRACK, order=10)
