@@ -298,6 +298,9 @@ def test_save_and_replay(parquet, tmp_path):
     other = unbalanced_frame(seed=8)
     with pytest.raises(ReplayError, match="differ"):
         SummaryStudy.load(path, other)
+    scope: dict = {}
+    exec(s.to_code(parquet), scope)  # the replay code rebuilds the same state
+    assert_same_results(scope["study"].results, s.results, 0.0)
 
 
 # ---------------------------------------------------------------- sample, scans, battery
