@@ -166,7 +166,7 @@ def brown_forsythe_f(results: Results) -> OmnibusTest:
 
 def _ranks_and_ties(y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Mid-ranks of ``y`` (1-based) and the sizes of its tie blocks."""
-    order = np.argsort(y, kind="stable")
+    order = np.argsort(y)  # tie order is irrelevant: tied values share their mid-rank
     ys = y[order]
     n = len(y)
     starts = np.flatnonzero(np.r_[True, ys[1:] != ys[:-1]])
