@@ -31,16 +31,21 @@ def pick_param(name: str = PICK) -> alt.Parameter:
     return alt.selection_point(name=name, fields=["row"], on="click", clear="dblclick", toggle="event.shiftKey")
 
 
+def _picked(pick: alt.Parameter, value: Any) -> dict[str, Any]:
+    return {"param": pick.name, "empty": False, "value": value}
+
+
 def row_marks(base: alt.Chart, pick: alt.Parameter, tooltip: list, size: int = 70, legend: bool = True) -> alt.Chart:
     """Points coloured and shaped by state; the picked rows get a thick orange ring."""
     leg: dict[str, Any] = {} if legend else {"legend": None}
     return base.mark_point(filled=True, opacity=0.85).encode(
         color=alt.Color("state:N", scale=STATE_SCALE["color"], title="row", **leg),
         shape=alt.Shape("state:N", scale=STATE_SCALE["shape"], title="row", **leg),
-        size=alt.when(pick, empty=False).then(alt.value(size * 2.6))
-        .when(alt.datum.state == "left out").then(alt.value(size * 1.6)).otherwise(alt.value(size)),
-        stroke=alt.when(pick, empty=False).then(alt.value(PICKED)).otherwise(alt.value("white")),
-        strokeWidth=alt.when(pick, empty=False).then(alt.value(3)).otherwise(alt.value(0.6)),
+        # Conditions written as channel values (not alt.when) skip a schema validation per redraw.
+        size=alt.SizeValue(value=size, condition=[_picked(pick, size * 2.6),
+                                                  {"test": "datum.state === 'left out'", "value": size * 1.6}]),
+        stroke=alt.StrokeValue(value="white", condition=_picked(pick, PICKED)),
+        strokeWidth=alt.StrokeWidthValue(value=0.6, condition=_picked(pick, 3)),
         tooltip=tooltip,
         description=alt.Description("aria:N"),
     ).add_params(pick)

@@ -34,9 +34,12 @@ def finish(chart: alt.TopLevelMixin, title: str, subtitle: str | list[str] | Non
     """Attach a title (and an optional subtitle line) and the common font sizes."""
     t = alt.TitleParams(text=title, subtitle=subtitle or "", anchor="start", fontSize=14, subtitleFontSize=11,
                         subtitleColor="#555")
-    return (
-        chart.properties(title=t)
-        .configure_axis(labelFontSize=11, titleFontSize=12, grid=True, gridColor="#eeeeee")
-        .configure_legend(labelFontSize=11, titleFontSize=11, orient="bottom")
-        .configure_view(stroke="#dddddd")
-    )
+    return chart.properties(title=t, config=CONFIG)  # one copy of the chart, not one per setting
+
+
+#: Axis, legend and frame settings shared by every chart.
+CONFIG = alt.Config(
+    axis=alt.AxisConfig(labelFontSize=11, titleFontSize=12, grid=True, gridColor="#eeeeee"),
+    legend=alt.LegendConfig(labelFontSize=11, titleFontSize=11, orient="bottom"),
+    view=alt.ViewConfig(stroke="#dddddd"),
+)
