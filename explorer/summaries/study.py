@@ -416,6 +416,50 @@ class SummaryStudy(Study):
     def restore_cell(self, cell: dict[str, str], reason: str = "") -> Results:
         return self.apply(RestoreCell(factors=tuple(cell), levels=tuple(str(v) for v in cell.values()), reason=reason))
 
+    # ------------------------------------------------------------ checks and scans
+    def battery(self, **options: Any) -> Any:
+        """The one-way battery: exact parts from the summaries, row parts from the sample
+        (see :func:`explorer.summaries.battery.summary_battery`)."""
+        from .battery import summary_battery
+
+        return summary_battery(self, **options)
+
+    def set_aside_scan(self, **options: Any) -> Any:
+        """Each level and cell set aside, each pair of levels pooled (see :func:`explorer.summaries.scan.set_aside_scan`)."""
+        from .scan import set_aside_scan
+
+        return set_aside_scan(self, **options)
+
+    def _on_sample(self, method: str, **options: Any) -> Any:
+        """Run a row-level tool of :class:`~explorer.core.Study` on the sample study; count its search here."""
+        sample = self.sample_study()
+        out = getattr(sample, method)(**options)
+        for entry in sample._searches:
+            self.record_search(f"{entry.get('what', method)} (on the seeded sample)", int(entry.get("count", 0)))
+        return out
+
+    def influence(self, **options: Any) -> Any:
+        """Influence measures of the sample rows (see :meth:`sample_study`)."""
+        return self._on_sample("influence", **options)
+
+    def case_deletion(self, **options: Any) -> Any:
+        """Each sample row left out in turn (see :meth:`sample_study`); for whole levels and cells use
+        :meth:`set_aside_scan`, which is exact."""
+        return self._on_sample("case_deletion", **options)
+
+    def flip_finder(self, **options: Any) -> Any:
+        """The fewest sample rows whose removal flips the sample's decision (see :meth:`sample_study`)."""
+        return self._on_sample("flip_finder", **options)
+
+    def regroup_scan(self, **options: Any) -> Any:
+        """Merges and row moves on the sample (see :meth:`sample_study`); :meth:`set_aside_scan` pools
+        pairs of levels exactly."""
+        return self._on_sample("regroup_scan", **options)
+
+    def robustness_sweep(self, **options: Any) -> Any:
+        """The robustness sweep on the sample rows (see :meth:`sample_study`)."""
+        return self._on_sample("robustness_sweep", **options)
+
     # ------------------------------------------------------------ files
     def to_dict(self) -> dict[str, Any]:
         return {
