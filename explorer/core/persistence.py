@@ -44,7 +44,8 @@ def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position
     }
 
 
-def read_study_file(path: str | Path) -> dict[str, Any]:
+def read_study_file(path: str | Path, format_marker: str = FORMAT) -> dict[str, Any]:
+    """The saved study at ``path`` as a dict; clear errors for a missing file, bad JSON or another format."""
     p = Path(path)
     if not p.exists():
         raise ReplayError(f"no saved study at {str(p)!r}")
@@ -52,8 +53,8 @@ def read_study_file(path: str | Path) -> dict[str, Any]:
         doc = json.loads(p.read_text(encoding="utf-8"))
     except json.JSONDecodeError as exc:
         raise ReplayError(f"{p.name!r} is not valid JSON (line {exc.lineno}): {exc.msg}") from None
-    if not isinstance(doc, dict) or doc.get("format") != FORMAT:
-        raise ReplayError(f"{p.name!r} is not a saved study of this kit (no format marker {FORMAT!r})")
+    if not isinstance(doc, dict) or doc.get("format") != format_marker:
+        raise ReplayError(f"{p.name!r} is not a saved study of this kind (no format marker {format_marker!r})")
     if int(doc.get("schema", 0)) > SCHEMA:
         raise ReplayError(f"{p.name!r} uses schema {doc.get('schema')}, newer than this kit reads ({SCHEMA}); upgrade the kit")
     for key in ("spec", "data", "edits"):

@@ -34,6 +34,7 @@ from ..core.factorial import factorial_from_cells
 from ..core.fitrows import RowSet
 from ..core.groupstats import pool_groups
 from ..core.oneway import oneway_from_stats
+from ..core.persistence import read_study_file
 from ..core.results import Results
 from ..core.spec import ModelSpec
 from ..core.study import Study, StudyEvent
@@ -95,9 +96,7 @@ class SummaryStudy(Study):
         sample_size: int = 2000,
         seed: int = 0,
     ) -> None:
-        factors_t = (factors,) if isinstance(factors, str) else tuple(factors)
-        blocks_t = (blocks,) if isinstance(blocks, str) else tuple(blocks)
-        spec = ModelSpec(response=response, factors=factors_t, blocks=blocks_t,
+        spec = ModelSpec(response=response, factors=factors, blocks=blocks,  # type: ignore[arg-type]
                          interactions=interactions, ss_type=ss_type, alpha=alpha)  # type: ignore[arg-type]
         self._setup(as_source(source), spec, int(sample_size), int(seed))
 
@@ -483,14 +482,7 @@ class SummaryStudy(Study):
     @classmethod
     def load(cls, path: str | Path, data: Any, *, allow_mismatch: bool = False) -> SummaryStudy:  # type: ignore[override]
         """Replay a saved log on ``data`` (same kinds of source as the constructor takes)."""
-        p = Path(path)
-        if not p.exists():
-            raise ReplayError(f"no saved study at {str(p)!r}")
-        try:
-            doc = json.loads(p.read_text(encoding="utf-8"))
-        except json.JSONDecodeError as exc:
-            raise ReplayError(f"{p.name!r} is not valid JSON (line {exc.lineno}): {exc.msg}") from None
-        return cls.from_dict(doc, data, allow_mismatch=allow_mismatch)
+        return cls.from_dict(read_study_file(path, FORMAT), data, allow_mismatch=allow_mismatch)
 
     @classmethod
     def from_dict(cls, doc: dict[str, Any], data: Any, *, allow_mismatch: bool = False) -> SummaryStudy:  # type: ignore[override]
