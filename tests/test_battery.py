@@ -19,6 +19,7 @@ from scipy import stats
 
 import explorer as ex
 from explorer.core.battery import Battery, run_battery
+from explorer.core.comparisons import tukey
 from explorer.core.errors import DesignError, ExplorerError
 
 
@@ -93,3 +94,5 @@ def test_battery_refuses_bad_options_and_factorial() -> None:
     blocked = ex.Study(frame, response="y", factors="level", blocks="block")
     with pytest.raises(DesignError, match="one-way"):
         blocked.battery()
+    with pytest.raises(DesignError, match="least-squares means"):
+        tukey(blocked.results)

@@ -31,6 +31,7 @@ from scipy import special, stats
 
 from .errors import ExplorerError
 from .groupstats import group_stats
+from .oneway_inputs import require_oneway, row_sample_notes
 from .tables import fmt
 
 if TYPE_CHECKING:
@@ -94,39 +95,44 @@ def levene(results: Results, *, center: Center = "median", proportion_to_cut: fl
         raise ExplorerError(f"center must be 'median', 'mean' or 'trimmed', not {center!r}")
     if not 0 <= proportion_to_cut < 0.5:
         raise ExplorerError(f"proportion_to_cut must be in [0, 0.5), not {proportion_to_cut!r}")
+    require_oneway(results, "Levene's test")
     fit = results.fit
     gs = results.groups
     g, k = fit.group, gs.k
-    n = gs.n
+    n = np.bincount(g, minlength=k)  # the rows at hand (all kept rows, or a sample)
     e = np.asarray(fit.residuals, dtype=float)
     if center == "mean":
         z = np.abs(e)
     else:
         srt, starts = _sorted_by_group(e, g, n)
+        m = np.maximum(n, 1)  # levels without rows get a dummy centre that no row uses
+        last = len(srt) - 1
         if center == "median":
-            lo = starts + (n - 1) // 2
-            hi = starts + n // 2
+            lo = np.minimum(starts + (m - 1) // 2, last)
+            hi = np.minimum(starts + m // 2, last)
             c = 0.5 * (srt[lo] + srt[hi])
         else:
-            cut = (proportion_to_cut * n).astype(np.int64)
+            cut = (proportion_to_cut * m).astype(np.int64)
             cs = np.r_[0.0, np.cumsum(srt)]
-            a, b = starts + cut, starts + n - cut
-            c = (cs[b] - cs[a]) / (b - a)
+            a, b = np.minimum(starts + cut, last), np.minimum(starts + m - cut, last + 1)
+            c = (cs[b] - cs[a]) / np.maximum(b - a, 1)
         z = np.abs(e - c[g])
-    zs = group_stats(z, g, gs.labels)
+    zs = group_stats(z, g, gs.labels).nonempty()
     big_n = int(n.sum())
-    df1, df2 = k - 1, big_n - k
+    df1, df2 = zs.k - 1, big_n - zs.k
+    notes = row_sample_notes(results)
     names = {"median": "Levene (median centre, Brown-Forsythe)", "mean": "Levene (mean centre)",
              "trimmed": f"Levene (trimmed-mean centre, {proportion_to_cut:g} cut each end)"}
     limits = "Needs at least two observations in some level; robust to non-normality with the median centre."
-    if zs.ss_within <= 0:
+    if zs.ss_within <= 0 or df1 < 1 or df2 < 1:
         return CheckResult(method=names[center], tests="equal spreads across levels", statistic=None,
                            df=(df1, df2), pvalue=None, limits=limits,
-                           notes=("Every absolute deviation equals its level's mean deviation: the F is undefined.",))
+                           notes=notes + ("Every absolute deviation equals its level's mean deviation (or too few "
+                                          "rows): the F is undefined.",))
     f = (zs.ss_between / df1) / (zs.ss_within / df2)
     return CheckResult(method=names[center], tests="equal spreads across levels", statistic=float(f),
                        df=(float(df1), float(df2)), pvalue=float(special.fdtrc(df1, df2, f)), limits=limits,
-                       details=(("centre", center),))
+                       details=(("centre", center),), notes=notes)
 
 
 def bartlett(results: Results) -> CheckResult:
@@ -135,6 +141,7 @@ def bartlett(results: Results) -> CheckResult:
     ``T = [(N-k) ln s_p^2 - sum (n_i-1) ln s_i^2] / C``, chi-square on ``k-1`` df. Exact
     only for normal data: heavy tails make it reject too often (use Levene then).
     """
+    require_oneway(results, "Bartlett's test")
     gs = results.groups
     n = gs.n.astype(float)
     var = gs.variances()
@@ -162,6 +169,7 @@ def shapiro_residuals(results: Results) -> CheckResult:
     p-value approximation is unverified (said in the result). Residuals of a fitted
     model are slightly correlated (n - k df), which the test ignores.
     """
+    require_oneway(results, "the normality check")
     e = np.asarray(results.fit.residuals, dtype=float)
     n = len(e)
     limits = f"p-value approximation valid for {SHAPIRO_MIN_N} to {SHAPIRO_MAX_N} residuals (Royston 1995)."
@@ -173,7 +181,7 @@ def shapiro_residuals(results: Results) -> CheckResult:
         return CheckResult(method="Shapiro-Wilk (residuals)", tests="normal residuals", statistic=None, df=(),
                            pvalue=None, limits=limits,
                            notes=("Not computed: every residual is zero.",))
-    notes: list[str] = []
+    notes: list[str] = list(row_sample_notes(results))
     within = n <= SHAPIRO_MAX_N
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")

@@ -32,6 +32,7 @@ from scipy import optimize, special, stats
 
 from .errors import DesignError, ExplorerError, closest_names, preview
 from .groupstats import GroupStats
+from .oneway_inputs import require_oneway
 from .studentized_range import _outer_grid, srange_ppf, srange_sf
 from .tables import html_table
 
@@ -173,6 +174,7 @@ def _check_confidence(confidence: float) -> float:
 
 
 def _level_stats(results: Results) -> tuple[GroupStats, np.ndarray, np.ndarray, np.ndarray]:
+    require_oneway(results, "this comparison of level means")
     gs = results.groups
     n = gs.n.astype(float)
     return gs, n, gs.original_means, gs.variances()

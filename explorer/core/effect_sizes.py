@@ -36,6 +36,7 @@ import pandas as pd
 from scipy import optimize, special
 
 from .errors import ExplorerError
+from .oneway_inputs import require_oneway
 from .tables import html_table
 
 if TYPE_CHECKING:
@@ -115,6 +116,7 @@ def noncentrality_interval(f_obs: float, df1: float, df2: float, confidence: flo
 
 def effect_sizes(results: Results, *, confidence: float = 0.95) -> EffectSizes:
     """Eta, omega and epsilon squared and Cohen's f, with noncentral-F intervals (see module notes)."""
+    require_oneway(results, "these effect sizes")
     gs = results.groups
     ssb, ssw = gs.ss_between, gs.ss_within
     sst = ssb + ssw

@@ -29,6 +29,7 @@ import pandas as pd
 from scipy import special
 
 from .errors import ExplorerError
+from .oneway_inputs import require_oneway, row_sample_notes
 from .tables import fmt
 
 if TYPE_CHECKING:
@@ -87,6 +88,7 @@ def _f_sf(f: float, d1: float, d2: float) -> float:
 
 
 def _stats(results: Results) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    require_oneway(results, "this test")
     gs = results.groups
     return gs.n.astype(float), gs.mean, gs.variances(), gs.k
 
@@ -183,14 +185,15 @@ def kruskal_wallis(results: Results) -> OmnibusTest:
     ``H = 12 / (N (N+1)) sum n_i (Rbar_i - (N+1)/2)^2 / C`` with
     ``C = 1 - sum (t^3 - t) / (N^3 - N)``; chi-square on ``k - 1`` df.
     """
+    require_oneway(results, "Kruskal-Wallis")
     fit = results.fit
     g = fit.group
     k = results.groups.k
-    n = results.groups.n.astype(float)
+    n = np.bincount(g, minlength=k).astype(float)
     big_n = float(n.sum())
     ranks, ties = _ranks_and_ties(np.asarray(fit.y, dtype=float))
-    rbar = np.bincount(g, weights=ranks, minlength=k) / n
-    h = 12.0 / (big_n * (big_n + 1)) * np.dot(n, (rbar - (big_n + 1) / 2) ** 2)
+    rsum = np.bincount(g, weights=ranks, minlength=k)
+    h = 12.0 / (big_n * (big_n + 1)) * float(np.sum(np.where(n > 0, (rsum - n * (big_n + 1) / 2) ** 2 / np.maximum(n, 1), 0.0)))
     t = ties.astype(float)
     corr = 1 - np.sum(t**3 - t) / (big_n**3 - big_n)
     assumes = "independent observations; a shift in location with similar shapes and spreads across levels"
@@ -198,9 +201,9 @@ def kruskal_wallis(results: Results) -> OmnibusTest:
         return OmnibusTest(method="Kruskal-Wallis H", statistic=None, df_num=float(k - 1), df_den=None,
                            pvalue=None, assumes=assumes, notes=("All observations are tied: H is undefined.",))
     h = float(h / corr)
-    notes: tuple[str, ...] = ()
-    if n.min() < 5:
-        notes = ("Some levels have fewer than 5 observations; the chi-square approximation to H is rough there.",)
+    notes: tuple[str, ...] = row_sample_notes(results)
+    if n[n > 0].min() < 5:
+        notes += ("Some levels have fewer than 5 observations; the chi-square approximation to H is rough there.",)
     return OmnibusTest(
         method="Kruskal-Wallis H", statistic=h, df_num=float(k - 1), df_den=None,
         pvalue=float(special.chdtrc(k - 1, h)), assumes=assumes,
@@ -220,13 +223,15 @@ def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) 
     b_total = int(permutations)
     if b_total < 1:
         raise ExplorerError(f"permutations must be a positive whole number (e.g. 9999), not {permutations!r}")
+    require_oneway(results, "the permutation F")
     fit = results.fit
     g = fit.group
     k = results.groups.k
-    n = results.groups.n.astype(float)
+    n = np.bincount(g, minlength=k).astype(float)
     y = np.asarray(fit.y, dtype=float)
     y = y - y.mean()
-    obs_stat = float(np.dot(np.bincount(g, weights=y, minlength=k) ** 2, 1 / n))
+    inv_n = np.where(n > 0, 1 / np.maximum(n, 1), 0.0)
+    obs_stat = float(np.dot(np.bincount(g, weights=y, minlength=k) ** 2, inv_n))
     rng = np.random.default_rng(seed)
     big_n = len(y)
     chunk = max(1, min(b_total, 2_000_000 // max(big_n, 1)))
@@ -237,7 +242,7 @@ def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) 
         c = min(chunk, b_total - done)
         perm = rng.permuted(np.broadcast_to(y, (c, big_n)), axis=1)
         sums = np.bincount((offsets[:c] + g[None, :]).ravel(), weights=perm.ravel(), minlength=c * k).reshape(c, k)
-        stat = (sums**2) @ (1 / n)
+        stat = (sums**2) @ inv_n
         hits += int(np.sum(stat >= obs_stat * (1 - 1e-12)))
         done += c
     p = (hits + 1) / (b_total + 1)
@@ -247,4 +252,5 @@ def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) 
         method="permutation F", statistic=classic.statistic, df_num=None, df_den=None, pvalue=float(p),
         assumes="exchangeable observations under the null (same distribution in every level)",
         details=(("permutations", b_total), ("seed", int(seed)), ("Monte-Carlo SE of p", se)),
+        notes=row_sample_notes(results),
     )

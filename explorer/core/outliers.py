@@ -33,6 +33,7 @@ import pandas as pd
 from scipy import special
 
 from .errors import ExplorerError
+from .oneway_inputs import row_sample_notes
 from .tables import fmt, html_table
 
 if TYPE_CHECKING:
@@ -129,7 +130,7 @@ def bonferroni_outlier_test(results: Results, *, alpha: float = 0.05) -> Outlier
         method="studentized residuals (Bonferroni)", rule=rule, threshold=crit, row_ids=fit.row_ids,
         scores=_ro(t), flagged=_flag(fit.row_ids, mask, np.nan_to_num(t)),
         details=(("df", df), ("fitted means", p_fit), ("smallest Bonferroni p", p_min)),
-        notes=tuple(notes),
+        notes=tuple(notes) + row_sample_notes(results),
     )
 
 
@@ -168,7 +169,7 @@ def grubbs_test(results: Results, *, alpha: float = 0.05) -> OutlierScreen:
     mask[top] = z[top] > crit
     return OutlierScreen(method="Grubbs (two-sided)", rule=rule, threshold=crit, row_ids=fit.row_ids,
                          scores=_ro(z), flagged=_flag(fit.row_ids, mask, z),
-                         details=(("G", float(z[top])), ("alpha", alpha)))
+                         details=(("G", float(z[top])), ("alpha", alpha)), notes=row_sample_notes(results))
 
 
 def robust_z_screen(results: Results, *, cutoff: float = 3.5) -> OutlierScreen:
@@ -187,4 +188,4 @@ def robust_z_screen(results: Results, *, cutoff: float = 3.5) -> OutlierScreen:
     z = 0.6745 * (e - med) / mad
     return OutlierScreen(method="robust z (median/MAD)", rule=rule, threshold=cutoff, row_ids=fit.row_ids,
                          scores=_ro(z), flagged=_flag(fit.row_ids, np.abs(z) > cutoff, z),
-                         details=(("median", med), ("MAD", mad)))
+                         details=(("median", med), ("MAD", mad)), notes=row_sample_notes(results))

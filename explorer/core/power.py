@@ -25,6 +25,7 @@ import numpy as np
 from scipy import special, stats
 
 from .errors import ExplorerError
+from .oneway_inputs import require_oneway
 from .tables import fmt
 
 if TYPE_CHECKING:
@@ -125,6 +126,7 @@ class PowerPlan:
 def power_plan(results: Results, *, effect_f: float | None = None, alpha: float | None = None,
                target_power: float = 0.8) -> PowerPlan:
     """Power of the current design for ``effect_f`` (the observed Cohen's f when not given)."""
+    require_oneway(results, "the power of the one-way F test")
     gs = results.groups
     a = results.spec.alpha if alpha is None else float(alpha)
     notes: list[str] = []
