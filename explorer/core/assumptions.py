@@ -127,8 +127,8 @@ def levene(results: Results, *, center: Center = "median", proportion_to_cut: fl
     if zs.ss_within <= 0 or df1 < 1 or df2 < 1:
         return CheckResult(method=names[center], tests="equal spreads across levels", statistic=None,
                            df=(df1, df2), pvalue=None, limits=limits,
-                           notes=notes + ("Every absolute deviation equals its level's mean deviation (or too few "
-                                          "rows): the F is undefined.",))
+                           notes=notes + (("Every absolute deviation equals its level's mean deviation (or too few "
+                                          "rows): the F is undefined."),))
     f = (zs.ss_between / df1) / (zs.ss_within / df2)
     return CheckResult(method=names[center], tests="equal spreads across levels", statistic=float(f),
                        df=(float(df1), float(df2)), pvalue=float(special.fdtrc(df1, df2, f)), limits=limits,
