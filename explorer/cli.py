@@ -74,7 +74,8 @@ def _add_data_args(p: argparse.ArgumentParser) -> None:
 
 
 def _server_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--port", type=int, default=0, help="port on 127.0.0.1 (default: let the server choose)")
+    p.add_argument("--port", type=int, default=0, help="port on 127.0.0.1 (default 8888 for demo, 8866 for app; "
+                   "the server moves to the next free one if it is taken)")
     p.add_argument("--no-browser", action="store_true", help="start the server without opening a browser")
     p.add_argument("--dry-run", action="store_true", help="print the command that would run, and stop")
 
@@ -173,12 +174,12 @@ def _check(args: argparse.Namespace) -> int:
 def _report(args: argparse.Namespace) -> int:
     from .report import write_report
 
-    study = load_study(args)
     out = Path(args.output)
     if out.is_dir():
         raise CommandError(EXIT_NO_OUTPUT, f"{args.output!r} is a folder; give a file name such as report.html")
     if not out.parent.exists():
         raise CommandError(EXIT_NO_OUTPUT, f"folder {str(out.parent)!r} does not exist; create it or choose another")
+    study = load_study(args)
     try:
         write_report(study, out, title=args.title, scenario=args.scenario, charts=not args.no_charts)
     except OSError as exc:
