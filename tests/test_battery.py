@@ -96,3 +96,22 @@ def test_battery_refuses_bad_options_and_factorial() -> None:
         blocked.battery()
     with pytest.raises(DesignError, match="least-squares means"):
         tukey(blocked.results)
+
+
+def test_row_order_and_drop_restore_change_nothing() -> None:
+    """Invariants: shuffling the rows, or dropping then restoring one, leaves every battery number unchanged."""
+    rng = np.random.default_rng(4)
+    frame = frame_from_groups([rng.normal(10 + i, 1 + 0.3 * i, 9 + i) for i in range(4)])
+    shuffled = frame.sample(frac=1.0, random_state=1)
+    a = ex.Study(frame, response="y", factors="level").battery()
+    b = ex.Study(shuffled, response="y", factors="level").battery()
+    study = ex.Study(frame, response="y", factors="level")
+    study.drop([3], reason="test")
+    study.restore([3], reason="test")
+    c = study.battery()
+    for other in (b, c):
+        for x, y in zip(a.omnibus + a.checks, other.omnibus + other.checks):
+            assert x.statistic == pytest.approx(y.statistic, rel=1e-12)
+        for x, y in zip(a.comparisons, other.comparisons):
+            np.testing.assert_allclose(x.pvalue, y.pvalue, rtol=1e-10)
+        assert a.letters.letters == other.letters.letters
