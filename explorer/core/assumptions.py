@@ -29,6 +29,7 @@ import numpy as np
 import pandas as pd
 from scipy import special, stats
 
+from .distributions import f_sf
 from .errors import ExplorerError
 from .groupstats import group_stats
 from .oneway_inputs import require_oneway, row_sample_notes
@@ -131,7 +132,7 @@ def levene(results: Results, *, center: Center = "median", proportion_to_cut: fl
                                           "rows): the F is undefined."),))
     f = (zs.ss_between / df1) / (zs.ss_within / df2)
     return CheckResult(method=names[center], tests="equal spreads across levels", statistic=float(f),
-                       df=(float(df1), float(df2)), pvalue=float(special.fdtrc(df1, df2, f)), limits=limits,
+                       df=(float(df1), float(df2)), pvalue=float(f_sf(f, df1, df2)), limits=limits,
                        details=(("centre", center),), notes=notes)
 
 

@@ -28,8 +28,9 @@ from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 import pandas as pd
-from scipy import optimize, special, stats
+from scipy import optimize, special
 
+from .distributions import t_ppf, t_two_sided_p
 from .errors import DesignError, ExplorerError, closest_names, preview
 from .groupstats import GroupStats
 from .oneway_inputs import require_oneway
@@ -262,9 +263,9 @@ def simultaneous_pairs(
     elif method_l in ("bonferroni", "none"):
         name = "pairwise t"
         adjustment = "Bonferroni" if method_l == "bonferroni" else "none (per comparison)"
-        p_raw = np.where(bad, np.nan, 2 * stats.t.sf(np.abs(np.nan_to_num(t)), df))
+        p_raw = np.where(bad, np.nan, t_two_sided_p(np.nan_to_num(t), df))
         p = adjust_pvalues(p_raw, method_l)
-        crit = float(stats.t.isf(alpha / 2 / (m if method_l == "bonferroni" else 1), df))
+        crit = -float(t_ppf(alpha / 2 / (m if method_l == "bonferroni" else 1), df))
         range_based = False
     else:
         raise ExplorerError(f"method must be 'tukey', 'bonferroni' or 'none', not {method!r}")
@@ -362,11 +363,11 @@ def pairwise_t(results: Results, *, adjust: Adjustment = "holm", confidence: flo
     d = means[i] - means[j]
     with np.errstate(divide="ignore", invalid="ignore"):
         t = np.where(se > 0, d / se, np.nan)
-    p_raw = 2 * stats.t.sf(np.abs(t), df)
+    p_raw = t_two_sided_p(t, df)
     p = adjust_pvalues(p_raw, adjust_l)
     m = len(d)
     per = 1 - confidence
-    crit = float(stats.t.isf(per / 2 / (1 if adjust_l == "none" else m), df))
+    crit = -float(t_ppf(per / 2 / (1 if adjust_l == "none" else m), df))
     notes: list[str] = []
     if adjust_l == "holm":
         notes.append("Holm's step-down method has no matching simultaneous intervals; Bonferroni intervals are shown.")

@@ -28,6 +28,7 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
+from .distributions import f_sf
 from .errors import ExplorerError
 from .oneway_inputs import require_oneway, row_sample_notes
 from .tables import fmt
@@ -84,7 +85,7 @@ class OmnibusTest:
 
 
 def _f_sf(f: float, d1: float, d2: float) -> float:
-    return float(special.fdtrc(d1, d2, f))
+    return float(f_sf(f, d1, d2))
 
 
 def _stats(results: Results) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:

@@ -30,8 +30,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
-from scipy import special
 
+from .distributions import t_ppf, t_two_sided_p
 from .errors import ExplorerError
 from .oneway_inputs import row_sample_notes
 from .tables import fmt, html_table
@@ -122,9 +122,9 @@ def bonferroni_outlier_test(results: Results, *, alpha: float = 0.05) -> Outlier
         t = np.where(h < 1, e / np.sqrt(s2_i * (1 - h)), np.nan)
     if np.any(h >= 1):
         notes.append("Rows alone in their level have leverage 1 and no studentized residual.")
-    crit = float(special.stdtrit(df, 1 - alpha / (2 * n)))
+    crit = -float(t_ppf(alpha / (2 * n), df))
     t_max = float(np.max(np.abs(np.nan_to_num(t))))
-    p_min = min(1.0, float(2 * n * special.stdtr(df, -t_max)))
+    p_min = min(1.0, float(n * t_two_sided_p(t_max, df)))
     mask = np.isfinite(t) & (np.abs(np.nan_to_num(t)) > crit)
     return OutlierScreen(
         method="studentized residuals (Bonferroni)", rule=rule, threshold=crit, row_ids=fit.row_ids,
@@ -138,7 +138,7 @@ def grubbs_critical(n: int, alpha: float = 0.05) -> float:
     """Two-sided Grubbs critical value (NIST/SEMATECH e-Handbook 1.3.5.17.1)."""
     if n < 3:
         raise ExplorerError(f"Grubbs' critical value needs at least 3 observations, not {n}")
-    t = special.stdtrit(n - 2, 1 - alpha / (2 * n))
+    t = -t_ppf(alpha / (2 * n), n - 2)
     return float((n - 1) / np.sqrt(n) * np.sqrt(t * t / (n - 2 + t * t)))
 
 
