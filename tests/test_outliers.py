@@ -87,3 +87,13 @@ def test_guards() -> None:
     r = robust_z_screen(flat.results)
     assert not r.ran and "MAD is zero" in r.notes[0]
     assert isinstance(r.to_frame(), pd.DataFrame) and r.to_frame().empty
+
+
+def test_agrees_with_the_influence_table(planted) -> None:
+    """The screen's studentized residuals equal those of explorer.core.influence (one statistic, two views)."""
+    from explorer.core.influence import influence_measures
+
+    _, study = planted
+    fit = study.results.fit
+    infl = influence_measures(fit.residuals, fit.leverage, study.results.df_resid, row_ids=fit.row_ids)
+    np.testing.assert_allclose(bonferroni_outlier_test(study.results).scores, infl.studentized_external, rtol=1e-12)
