@@ -9,7 +9,7 @@ from explorer import charts
 from explorer.core.tables import html_table
 
 from .compare import comparison_html, partition_html
-from .panels import PanelContext, panel, state_token
+from .panels import PanelContext, panel, view_token
 
 __all__: list[str] = []
 
@@ -19,21 +19,21 @@ TABLES = "Levels and edits"
 
 
 def _history_token(ctx: PanelContext) -> Any:
-    return (state_token(ctx), len(ctx.history))
+    return (view_token(ctx), len(ctx.history))
 
 
-@panel("observations", "Observations", group="main", order=10)
+@panel("observations", "Observations", group="main", order=10, token=view_token)
 def observations(ctx: PanelContext) -> Any:
     return charts.observations_chart(ctx.study, max_points=ctx.settings.max_points)
 
 
-@panel("partition", "Current view", group="main", order=20)
+@panel("partition", "Current view", group="main", order=20, token=view_token)
 def partition(ctx: PanelContext) -> Any:
     return partition_html(ctx.results)
 
 
 def _disclosure_token(ctx: PanelContext) -> Any:
-    return (state_token(ctx), ctx.study.disclosure)
+    return (view_token(ctx), ctx.study.disclosure)
 
 
 @panel("compare", "Unedited data beside current view", group="main", order=30, token=_disclosure_token)
@@ -41,25 +41,25 @@ def compare(ctx: PanelContext) -> Any:
     return comparison_html(ctx.study)
 
 
-@panel("residuals", "Residuals against fitted values", group=CHECKS, order=10)
+@panel("residuals", "Residuals against fitted values", group=CHECKS, order=10, token=view_token)
 def residuals(ctx: PanelContext) -> Any:
     return charts.residuals_fitted_chart(ctx.results, max_points=ctx.settings.max_points,
                                          columns=charts.row_columns(ctx.study))
 
 
-@panel("normal", "Normal probability plot", group=CHECKS, order=20)
+@panel("normal", "Normal probability plot", group=CHECKS, order=20, token=view_token)
 def normal(ctx: PanelContext) -> Any:
     return charts.normal_probability_chart(ctx.results, max_points=ctx.settings.max_points,
                                            columns=charts.row_columns(ctx.study))
 
 
-@panel("cooks", "Cook's distance", group=CHECKS, order=30)
+@panel("cooks", "Cook's distance", group=CHECKS, order=30, token=view_token)
 def cooks(ctx: PanelContext) -> Any:
     return charts.cooks_distance_chart(ctx.results, max_points=ctx.settings.max_points,
                                        columns=charts.row_columns(ctx.study))
 
 
-@panel("partition_chart", "Partition, unedited and current", group=TRACK, order=10)
+@panel("partition_chart", "Partition, unedited and current", group=TRACK, order=10, token=view_token)
 def partition_chart(ctx: PanelContext) -> Any:
     return charts.partition_chart(ctx.baseline, ctx.results)
 
@@ -69,12 +69,12 @@ def history(ctx: PanelContext) -> Any:
     return charts.history_chart(ctx.history, ctx.results.spec.alpha)
 
 
-@panel("levels", "Levels", group=TABLES, order=10)
+@panel("levels", "Levels", group=TABLES, order=10, token=view_token)
 def levels(ctx: PanelContext) -> Any:
     return "".join(t._repr_html_() for t in ctx.results.levels.values())
 
 
-@panel("edit_log", "Edit log", group=TABLES, order=20)
+@panel("edit_log", "Edit log", group=TABLES, order=20, token=view_token)
 def edit_log(ctx: PanelContext) -> Any:
     import pandas as pd
 

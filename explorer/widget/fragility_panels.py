@@ -15,31 +15,26 @@ from explorer.core.flip import flip_finder
 from explorer.core.regroup import regroup_scan
 from explorer.core.sweep import robustness_sweep
 
-from .panels import PanelContext, one_factor_only, panel
+from .panels import PanelContext, one_factor_only, panel, view_token
 
 __all__: list[str] = []
 
 GROUP = "Fragility"
 
 
-def _view_token(ctx: PanelContext) -> Any:
-    # Not the settings: a scan depends on the view and alpha only, and each run is counted.
-    return (id(ctx.study), id(ctx.study.results), ctx.settings.alpha)
-
-
-@panel("leave_one_out", "p-value with one row left out", group=GROUP, order=10, token=_view_token)
+@panel("leave_one_out", "p-value with one row left out", group=GROUP, order=10, token=view_token)
 @one_factor_only("The fragility scans")
 def leave_one_out(ctx: PanelContext) -> Any:
     return charts.case_deletion_chart(case_deletion_scan(ctx.study), max_points=ctx.settings.max_points)
 
 
-@panel("flip_rows", "Fewest rows that change the decision", group=GROUP, order=20, token=_view_token)
+@panel("flip_rows", "Fewest rows that change the decision", group=GROUP, order=20, token=view_token)
 @one_factor_only("The fragility scans")
 def flip_rows(ctx: PanelContext) -> Any:
     return flip_finder(ctx.study)._repr_html_()
 
 
-@panel("regroupings", "Merges and moves that change the decision", group=GROUP, order=30, token=_view_token)
+@panel("regroupings", "Merges and moves that change the decision", group=GROUP, order=30, token=view_token)
 @one_factor_only("The fragility scans")
 def regroupings(ctx: PanelContext) -> Any:
     scan = regroup_scan(ctx.study)
@@ -51,7 +46,7 @@ def regroupings(ctx: PanelContext) -> Any:
             + scan._repr_html_())
 
 
-@panel("spec_curve", "Specification curve", group=GROUP, order=40, token=_view_token)
+@panel("spec_curve", "Specification curve", group=GROUP, order=40, token=view_token)
 @one_factor_only("The fragility scans")
 def spec_curve(ctx: PanelContext) -> Any:
     return charts.specification_curve_chart(robustness_sweep(ctx.study))

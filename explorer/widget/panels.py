@@ -64,8 +64,17 @@ class PanelContext:
 
 
 def state_token(ctx: PanelContext) -> Hashable:
-    """Default redraw key: the study, its current results object and the settings."""
-    return (id(ctx.study), id(ctx.study.results), ctx.settings)
+    """Default redraw key: the study, its current results object and the settings.
+
+    The objects themselves, not their ``id``: results compare by identity, and holding them
+    means a freed object's address can never be mistaken for the current one.
+    """
+    return (ctx.study, ctx.study.results, ctx.settings)
+
+
+def view_token(ctx: PanelContext) -> Hashable:
+    """Redraw key of panels that ignore the test and comparison pickers (alpha lives in the study)."""
+    return (ctx.study, ctx.study.results, ctx.settings.max_points)
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -71,6 +71,7 @@ def _f_cell(page):
 def _shot(page, name: str) -> None:
     """Screenshot of the whole explorer: the window is made tall enough that nothing scrolls away."""
     ARTIFACTS.mkdir(exist_ok=True)
+    page.wait_for_function(KERNEL_IDLE_JS, polling=250)  # the charts redraw after the tables
     height = page.evaluate("() => document.querySelector('.vx-explorer').scrollHeight")
     page.set_viewport_size({"width": 1700, "height": min(int(height) + 260, 4000)})
     page.wait_for_timeout(300)  # let the notebook lay out again
@@ -110,6 +111,9 @@ def test_click_drop_and_undo_in_jupyterlab(lab, page):
     expect(page.locator(".vx-header")).to_contain_text("1 edit(s) in effect")
     # the dropped point stays drawn (grey diamond)
     expect(_target(page)).to_have_attribute("aria-label", f"row {TARGET}: line L1, y 38, left out")
+    # the model checks redraw too: the row has left the residual chart
+    resid_point = page.locator(f'.vx-chart-residuals .mark-symbol path[aria-label^="row {TARGET}:"]')
+    expect(resid_point).to_have_count(0)
     _shot(page, "explorer-after-leave-out.png")
     print(f"\n[timing] n=200: click on 'leave out' to updated partition table: {ms:.0f} ms (target < 300 ms)")
 
@@ -117,6 +121,7 @@ def test_click_drop_and_undo_in_jupyterlab(lab, page):
     expect(_f_cell(page)).to_have_text(f_before)
     expect(compare.locator("tr.vx-diff")).to_have_count(0)
     expect(page.locator(".vx-header")).to_contain_text("0 edit(s) in effect, 1 made in all (1 undone)")
+    expect(resid_point).to_have_count(1)
     _shot(page, "explorer-after-undo.png")
 
     # the other tabs draw when opened; the fragility scans add to the disclosure count
