@@ -122,19 +122,21 @@ class SparkSource:
         for f in factors:
             missing = missing | self._col(f).isNull()
         scale = None
+        infinite = F.lit(False)
         if isinstance(rtype, T.DecimalType):
             scale = int(rtype.scale)
         elif isinstance(rtype, (T.FloatType, T.DoubleType)):
             missing = missing | F.isnan(y)
-            inf = self.df.where(y.isin(float("inf"), float("-inf"))).count()
-            if inf:
-                raise DataError(f"response column {response!r} has {inf} infinite values; replace them with real "
-                                "measurements or filter those rows out of the DataFrame")
+            infinite = y.isin(float("inf"), float("-inf"))
         elif not isinstance(rtype, T.NumericType):
             raise DataError(f"response column {response!r} has Spark type {rtype.simpleString()}; the analysis of "
                             "variance needs a numeric response (cast it to double or decimal first)")
         self._usable = ~missing
-        total, aside = self.df.agg(F.count(F.lit(1)), F.sum(F.when(missing, 1).otherwise(0))).first()
+        total, aside, inf = self.df.agg(F.count(F.lit(1)), F.sum(F.when(missing, 1).otherwise(0)),
+                                        F.sum(F.when(infinite, 1).otherwise(0))).first()
+        if inf:
+            raise DataError(f"response column {response!r} has {inf} infinite values; replace them with real "
+                            "measurements or filter those rows out of the DataFrame")
         aside = int(aside or 0)
         if total == aside:
             raise DataError(f"every row has a missing {response!r} or factor value; nothing to analyse")
