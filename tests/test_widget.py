@@ -235,3 +235,14 @@ def test_fragility_scans_run_when_opened_and_are_counted_once_per_view(demo):
     e.reason_box.value = "gauge slip"
     e.drop_button.click()
     assert e.study.dropped == (6,) and e.study.disclosure.specifications > counted
+
+
+def test_a_picker_change_redraws_only_the_panels_that_read_it(demo):
+    e = demo
+    obs_spec, table = e.cards["observations"].chart.spec, e.cards["partition"].html.value
+    e.tabs.selected_index = e._tab_groups.index("Tests")
+    before = e.cards["comparisons"].html.value
+    e.comparison_picker.value = "holm"
+    assert e.cards["comparisons"].html.value != before  # reads the picker
+    assert e.cards["observations"].chart.spec is obs_spec  # does not: not rebuilt
+    assert e.cards["partition"].html.value == table
