@@ -9,7 +9,7 @@ from explorer import charts
 from explorer.core.tables import html_table
 
 from .compare import comparison_html, partition_html
-from .panels import PanelContext, panel, view_token
+from .panels import Panel, PanelContext, panel, register_panel, view_token
 
 __all__: list[str] = []
 
@@ -41,22 +41,22 @@ def compare(ctx: PanelContext) -> Any:
     return comparison_html(ctx.study)
 
 
-@panel("residuals", "Residuals against fitted values", group=CHECKS, order=10, token=view_token)
-def residuals(ctx: PanelContext) -> Any:
-    return charts.residuals_fitted_chart(ctx.results, max_points=ctx.settings.max_points,
-                                         columns=charts.row_columns(ctx.study))
+def _fit_chart(builder: Any) -> Any:
+    """A panel builder for a chart of the fit's rows, with every table column in the hover text."""
+
+    def build(ctx: PanelContext) -> Any:
+        return builder(ctx.results, max_points=ctx.settings.max_points, columns=charts.row_columns(ctx.study))
+
+    return build
 
 
-@panel("normal", "Normal probability plot", group=CHECKS, order=20, token=view_token)
-def normal(ctx: PanelContext) -> Any:
-    return charts.normal_probability_chart(ctx.results, max_points=ctx.settings.max_points,
-                                           columns=charts.row_columns(ctx.study))
-
-
-@panel("cooks", "Cook's distance", group=CHECKS, order=30, token=view_token)
-def cooks(ctx: PanelContext) -> Any:
-    return charts.cooks_distance_chart(ctx.results, max_points=ctx.settings.max_points,
-                                       columns=charts.row_columns(ctx.study))
+for _order, (_key, _title, _builder) in enumerate([
+    ("residuals", "Residuals against fitted values", charts.residuals_fitted_chart),
+    ("normal", "Normal probability plot", charts.normal_probability_chart),
+    ("cooks", "Cook's distance", charts.cooks_distance_chart),
+]):
+    register_panel(Panel(key=_key, title=_title, build=_fit_chart(_builder), group=CHECKS, order=10 * (_order + 1),
+                         token=view_token))
 
 
 @panel("partition_chart", "Partition, unedited and current", group=TRACK, order=10, token=view_token)
