@@ -246,3 +246,36 @@ def test_a_picker_change_redraws_only_the_panels_that_read_it(demo):
     assert e.cards["comparisons"].html.value != before  # reads the picker
     assert e.cards["observations"].chart.spec is obs_spec  # does not: not rebuilt
     assert e.cards["partition"].html.value == table
+
+
+def test_fragility_tab_covers_two_factor_designs(demo_csv):
+    """The sensitivity engine handles factorial designs, so the tab shows its scans, not a refusal."""
+    e = ex.explore(str(demo_csv), response="thickness_um", factors=["nozzle", "shift"], id_column="panel")
+    e.tabs.selected_index = e._tab_groups.index("Fragility")
+    assert "Fewest rows" in e.cards["flip_rows"].html.value or "F test of nozzle" in e.cards["flip_rows"].html.value
+    assert "several factors" not in e.cards["regroupings"].html.value
+    assert e.study.disclosure.specifications > 0
+
+
+def test_model_change_rereads_the_file_and_keeps_ids(demo_csv):
+    """Changing the factors rebuilds from the original file: id column and replay code carry over."""
+    e = ex.explore(str(demo_csv), response="thickness_um", factors="nozzle", id_column="panel")
+    e.reason_box.value = "gauge slip"
+    e.study.drop("P1007", reason="gauge slip")
+    e.factor_picker.value = ("nozzle", "shift")
+    assert e.study.spec.factors == ("nozzle", "shift")
+    assert e.study.dropped == ("P1007",)
+    assert e.study.data_source == str(demo_csv)
+    assert "id_column='panel'" in e.study.to_code()
+
+
+def test_summary_backed_study_draws_every_panel(demo_csv):
+    """Row charts and scans of a summary-backed study read its seeded sample, so no panel fails."""
+    pytest.importorskip("duckdb")
+    s = ex.SummaryStudy(pd.read_csv(demo_csv), "thickness_um", "nozzle", sample_size=60)
+    e = Explorer(s)
+    for tab in ("Tests", "Fragility"):
+        e.tabs.selected_index = e._tab_groups.index(tab)
+    failed = [k for k, c in e.cards.items() if "could not be drawn" in (getattr(getattr(c, "html", None), "value", "") or "")]
+    assert failed == []
+    assert "could not" not in e.status.value

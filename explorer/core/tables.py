@@ -11,6 +11,7 @@ import html
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 __all__ = ["TermRow", "AnovaTable", "COLUMNS", "html_table", "fmt"]
@@ -23,7 +24,9 @@ def fmt(x: Any, digits: int = 6) -> str:
     """Display a number with ``digits`` significant digits; '—' for undefined."""
     if x is None or x is pd.NA:
         return "—"
-    if isinstance(x, (int,)) and not isinstance(x, bool):
+    if isinstance(x, (bool, np.bool_)):
+        return "yes" if x else "no"
+    if isinstance(x, (int,)):
         return str(x)
     try:
         xf = float(x)

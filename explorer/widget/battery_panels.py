@@ -33,8 +33,10 @@ def battery_for(ctx: PanelContext) -> Battery:
     hit = _CACHE.get(key)
     if hit is not None and hit[0] is res:
         return hit[1]
-    bat = run_battery(res, alpha=s.alpha, letters_from=_LETTERS.get(s.comparisons, "tukey"),  # type: ignore[arg-type]
-                      pairwise_adjust="holm", control=control)
+    options = {"alpha": s.alpha, "letters_from": _LETTERS.get(s.comparisons, "tukey"),
+               "pairwise_adjust": "holm", "control": control}
+    # A summary-backed study splits its battery between exact summaries and its sample.
+    bat = ctx.study.battery(**options) if hasattr(ctx.study, "sample_study") else run_battery(res, **options)  # type: ignore[arg-type]
     _CACHE[key] = (res, bat)
     while len(_CACHE) > 6:
         _CACHE.popitem(last=False)

@@ -45,7 +45,7 @@ def _fit_chart(builder: Any) -> Any:
     """A panel builder for a chart of the fit's rows, with every table column in the hover text."""
 
     def build(ctx: PanelContext) -> Any:
-        return builder(ctx.results, max_points=ctx.settings.max_points, columns=charts.row_columns(ctx.study))
+        return builder(ctx.row_results, max_points=ctx.settings.max_points, columns=charts.row_columns(ctx.study))
 
     return build
 

@@ -450,9 +450,15 @@ class Explorer(W.VBox):
         old = self.study
         if (response, factors) == (old.spec.response, old.spec.factors):
             new = Study.from_dataset(old.dataset, replace(old.spec, alpha=alpha))
+        elif hasattr(old, "sample_study"):
+            raise ExplorerError("a summary-backed study keeps its model; build a new one for another response or factors")
         else:
-            new = Study(old.dataset.table, response, factors, blocks=old.spec.blocks,
-                        interactions=old.spec.interactions, ss_type=old.spec.ss_type, alpha=alpha)
+            # Reread the original file when there is one, so the exact decimal reading, the
+            # id column and the replay code carry over to the new model.
+            source = old.data_source if old.data_source is not None else old.dataset.table
+            new = Study(source, response, factors, blocks=old.spec.blocks, interactions=old.spec.interactions,
+                        ss_type=old.spec.ss_type, alpha=alpha, id_column=old.dataset.id_column)
+            new.data_source = old.data_source
         skipped = []
         for e in old.edits:
             try:

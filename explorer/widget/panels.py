@@ -62,6 +62,13 @@ class PanelContext:
     def baseline(self) -> Results:
         return self.study.baseline
 
+    @property
+    def row_results(self) -> Results:
+        """Results whose per-row fit matches their degrees of freedom: the study's own, or for a
+        summary-backed study those of its seeded sample (its exact results carry only a sample of rows)."""
+        sample = getattr(self.study, "sample_study", None)
+        return sample().results if callable(sample) else self.study.results
+
 
 def state_token(ctx: PanelContext) -> Hashable:
     """Default redraw key: the study, its current results object and the settings.
@@ -119,17 +126,29 @@ def panel(key: str, title: str, *, group: str = "more", order: int = 100,
     return wrap
 
 
+def explains_refusals(fn: Callable[[PanelContext], Any]) -> Callable[[PanelContext], Any]:
+    """Wrap a builder so that a view the tool refuses gets a sentence instead of an error."""
+
+    def built(ctx: PanelContext) -> Any:
+        try:
+            return fn(ctx)
+        except ExplorerError as exc:
+            return f"<div class='vx-small'>Not available for this view: {html.escape(str(exc))}</div>"
+
+    built.__doc__ = fn.__doc__
+    return built
+
+
 def one_factor_only(what: str) -> Callable[[Callable[[PanelContext], Any]], Callable[[PanelContext], Any]]:
     """Wrap a builder of one-factor tools: other designs, or a view the tool refuses, get a sentence."""
 
     def wrap(fn: Callable[[PanelContext], Any]) -> Callable[[PanelContext], Any]:
+        inner = explains_refusals(fn)
+
         def built(ctx: PanelContext) -> Any:
             if not ctx.results.spec.is_oneway:
                 return f"<div class='vx-small'>{html.escape(what)} cover one-factor analyses; this study has several factors.</div>"
-            try:
-                return fn(ctx)
-            except ExplorerError as exc:
-                return f"<div class='vx-small'>Not available for this view: {html.escape(str(exc))}</div>"
+            return inner(ctx)
 
         built.__doc__ = fn.__doc__
         return built
