@@ -109,7 +109,7 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
         lines.append(f"{name}.record_search({str(search.get('what', ''))!r}, {int(search.get('count', 0))})")
     d = study.disclosure
     lines.append(
-        f"# Disclosure of the original session: {d.sentence()}."
+        f"# Disclosure of the original study: {d.sentence()}."
     )
     lines.append(f"{name}.results")
     return "\n".join(lines) + "\n"
