@@ -93,3 +93,22 @@ def test_recommendation_sentences() -> None:
     rec = recommend(skew, levene(skew), shapiro_residuals(skew))
     assert rec.spreads_differ is False and rec.residuals_non_normal
     assert rec.test == "Kruskal-Wallis H" and "small groups" in rec.sentence
+
+
+def test_shapiro_on_two_factor_residuals_matches_scipy_on_statsmodels_residuals():
+    """Shapiro-Wilk on the residuals of a two-factor model: scipy.stats.shapiro on the
+    residuals of statsmodels ols('y ~ C(a) * C(b)') gives the same W and p."""
+    import pandas as pd
+    from scipy import stats as sps
+    from statsmodels.formula.api import ols
+
+    import explorer as ex
+    from explorer.core.assumptions import shapiro_residuals
+
+    rng = np.random.default_rng(11)
+    df = pd.DataFrame({"a": rng.choice(["x", "y", "z"], 90), "b": rng.choice(["p", "q"], 90)})
+    df["y"] = rng.gamma(2.0, 1.0, 90) + (df.a == "y") * 0.5
+    ours = shapiro_residuals(ex.Study(df, "y", ["a", "b"]).results)
+    ref = sps.shapiro(ols("y ~ C(a) * C(b)", data=df).fit().resid)
+    assert ours.statistic == pytest.approx(ref.statistic, rel=1e-9)
+    assert ours.pvalue == pytest.approx(ref.pvalue, rel=1e-6)

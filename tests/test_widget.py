@@ -279,3 +279,16 @@ def test_summary_backed_study_draws_every_panel(demo_csv):
     failed = [k for k, c in e.cards.items() if "could not be drawn" in (getattr(getattr(c, "html", None), "value", "") or "")]
     assert failed == []
     assert "could not" not in e.status.value
+
+
+def test_tests_tab_for_two_factor_designs_shows_multi_factor_counterparts(demo_csv):
+    """Several factors: the Tests tab shows all three SS types, least-squares-mean comparisons,
+    partial effect sizes and the influence screen instead of a refusal."""
+    e = ex.explore(str(demo_csv), response="thickness_um", factors=["nozzle", "shift"], blocks="paint_lot",
+                   id_column="panel")
+    e.tabs.selected_index = e._tab_groups.index("Tests")
+    html_of = {k: e.cards[k].html.value for k in ("overall_tests", "assumption_checks", "comparisons",
+                                                   "effect_power", "screens")}
+    assert all("Not available" not in v and "could not" not in v for v in html_of.values())
+    assert "type III" in html_of["overall_tests"] and "type I " in html_of["overall_tests"]
+    assert "Tukey-Kramer" in html_of["comparisons"] and "Shapiro-Wilk" in html_of["assumption_checks"]

@@ -166,12 +166,12 @@ def bartlett(results: Results) -> CheckResult:
 def shapiro_residuals(results: Results) -> CheckResult:
     """Shapiro-Wilk W on the model residuals (Shapiro and Wilk 1965; Royston 1995).
 
+    Works on the residuals of any model the engines fit (one-way, factorial, blocked).
     Valid for ``3 <= n <= 5000`` residuals; above 5000 W is still computed but the
     p-value approximation is unverified (said in the result). Residuals of a fitted
     model are slightly correlated (n - k df), which the test ignores.
     """
-    require_oneway(results, "the normality check")
-    e = np.asarray(results.fit.residuals, dtype=float)
+    e = np.asarray(results.fit.residuals, dtype=float)  # residuals of any fitted model
     n = len(e)
     limits = f"p-value approximation valid for {SHAPIRO_MIN_N} to {SHAPIRO_MAX_N} residuals (Royston 1995)."
     if n < SHAPIRO_MIN_N:

@@ -1,6 +1,11 @@
 """Panels of the one-way battery (:func:`explorer.core.battery.run_battery`), in the tab
 "Tests". The overall-test and comparison pickers of the explorer choose
 what is featured; the battery itself always computes every test.
+
+Studies with several factors or blocks get the multi-factor counterparts instead: the
+partition under all three types of sums of squares, Shapiro-Wilk on the model residuals,
+Tukey-Kramer comparisons of the least-squares means of each factor with letters, partial
+effect sizes and blocking efficiency, and the influence screen.
 """
 
 from __future__ import annotations
@@ -10,10 +15,12 @@ from collections import OrderedDict
 from typing import Any
 
 from explorer.core import Results
+from explorer.core.assumptions import shapiro_residuals
 from explorer.core.battery import Battery, run_battery
+from explorer.core.letters import compact_letters
 from explorer.core.tables import fmt, html_table
 
-from .panels import PanelContext, one_factor_only, panel
+from .panels import PanelContext, explains_refusals, panel
 
 __all__ = ["battery_for", "chosen_omnibus"]
 
@@ -48,8 +55,10 @@ def chosen_omnibus(bat: Battery, choice: str) -> Any:
 
 
 @panel("overall_tests", "Tests of equal level means", group=GROUP, order=10)
-@one_factor_only("The test battery")
+@explains_refusals
 def overall_tests(ctx: PanelContext) -> str:
+    if not ctx.results.spec.is_oneway:
+        return _multi_factor_partitions(ctx.results)
     bat = battery_for(ctx)
     test = chosen_omnibus(bat, ctx.settings.omnibus)
     if test.pvalue is None:
@@ -62,15 +71,28 @@ def overall_tests(ctx: PanelContext) -> str:
 
 
 @panel("assumption_checks", "Assumption checks", group=GROUP, order=20)
-@one_factor_only("The test battery")
+@explains_refusals
 def assumption_checks(ctx: PanelContext) -> str:
+    if not ctx.results.spec.is_oneway:
+        return shapiro_residuals(ctx.row_results)._repr_html_() + (
+            "<div class='vx-small'>Equal spread across cells: read the residuals-against-fitted chart "
+            "(Model checks tab); a funnel shape means the spread grows with the level.</div>")
     bat = battery_for(ctx)
     return html_table(bat.checks_frame(), "Checks of equal spread and normal residuals")
 
 
 @panel("comparisons", "Comparisons between levels", group=GROUP, order=30)
-@one_factor_only("The test battery")
+@explains_refusals
 def comparisons(ctx: PanelContext) -> str:
+    res = ctx.results
+    if not res.spec.is_oneway:
+        parts = []
+        for factor in res.spec.factors:
+            table = res.compare_means(factor)
+            parts.append(table._repr_html_() + compact_letters(table, alpha=ctx.settings.alpha)._repr_html_())
+        return "".join(parts) + (
+            "<div class='vx-small'>Several factors: levels are compared through their least-squares means "
+            "(Tukey-Kramer), whatever comparison is picked.</div>")
     bat = battery_for(ctx)
     table = {"tukey-kramer": bat.tukey, "games-howell": bat.games_howell, "holm": bat.pairwise_t,
              "dunnett": bat.dunnett}.get(ctx.settings.comparisons) or bat.tukey
@@ -78,17 +100,35 @@ def comparisons(ctx: PanelContext) -> str:
 
 
 @panel("effect_power", "Effect sizes and power", group=GROUP, order=40)
-@one_factor_only("The test battery")
+@explains_refusals
 def effect_power(ctx: PanelContext) -> str:
+    res = ctx.results
+    if not res.spec.is_oneway:
+        extras = [res.term_effects, res.blocking, res.cells if res.cells is not None and not res.cells.balanced else None]
+        return "".join(x._repr_html_() for x in extras if x is not None)
     bat = battery_for(ctx)
     parts = [x._repr_html_() for x in (bat.effect_sizes, bat.power) if x is not None]
     return "".join(parts) + "".join(f"<div class='vx-small'>{html.escape(n)}</div>" for n in bat.notes)
 
 
 @panel("screens", "Outlier screens (flag only)", group=GROUP, order=50)
-@one_factor_only("The test battery")
+@explains_refusals
 def screens(ctx: PanelContext) -> str:
+    if not ctx.results.spec.is_oneway:
+        return ctx.study.influence()._repr_html_() + (
+            "<div class='vx-small'>Screens flag rows for a closer look; nothing is left out unless you do it, "
+            "with a reason.</div>")
     bat = battery_for(ctx)
     return "".join(s._repr_html_() for s in bat.screens) + (
         "<div class='vx-small'>Screens flag rows for a closer look; nothing is left out unless you do it, "
         "with a reason.</div>")
+
+
+def _multi_factor_partitions(res: Results) -> str:
+    """The partition under each type of sums of squares (they differ when the cells are unbalanced)."""
+    parts = [f"<div class='vx-decision'><b>{html.escape(res.decision(term))}</b></div>" for term in res.spec.factors]
+    for ss_type in ("I", "II", "III"):
+        table = res.partitions.get(ss_type)
+        if table is not None:
+            parts.append(table._repr_html_())
+    return "".join(parts)

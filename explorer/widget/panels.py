@@ -139,23 +139,6 @@ def explains_refusals(fn: Callable[[PanelContext], Any]) -> Callable[[PanelConte
     return built
 
 
-def one_factor_only(what: str) -> Callable[[Callable[[PanelContext], Any]], Callable[[PanelContext], Any]]:
-    """Wrap a builder of one-factor tools: other designs, or a view the tool refuses, get a sentence."""
-
-    def wrap(fn: Callable[[PanelContext], Any]) -> Callable[[PanelContext], Any]:
-        inner = explains_refusals(fn)
-
-        def built(ctx: PanelContext) -> Any:
-            if not ctx.results.spec.is_oneway:
-                return f"<div class='vx-small'>{html.escape(what)} cover one-factor analyses; this study has several factors.</div>"
-            return inner(ctx)
-
-        built.__doc__ = fn.__doc__
-        return built
-
-    return wrap
-
-
 def panels_in_order(keys: Sequence[str] | None = None) -> list[Panel]:
     chosen = [PANELS[k] for k in keys] if keys is not None else list(PANELS.values())
     seen = list(dict.fromkeys(GROUP_ORDER + [p.group for p in chosen]))
