@@ -17,7 +17,7 @@ __all__ = ["CAUTIONS_HTML", "TABLE_CSS", "comparison_html", "disclosure_html", "
 
 TABLE_CSS = """
 <style>
-.vx-table { border-collapse: collapse; font-size: 13px; margin: 2px 0 6px 0; }
+.vx-table { border-collapse: collapse; font-size: 13px; margin: 2px 0 6px 0; min-width: 30em; }
 .vx-table caption { font-size: 13px; padding-bottom: 3px; }
 .vx-table th { text-align: left; padding: 3px 9px; border-bottom: 2px solid #999; background: #f4f4f4; }
 .vx-table td { padding: 3px 9px; border-bottom: 1px solid #e3e3e3; text-align: left; vertical-align: top; }

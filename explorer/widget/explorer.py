@@ -178,7 +178,7 @@ class Explorer(W.VBox):
                           W.HBox([self.move_button, self.move_target])),
             self._section("Steps", W.HBox([self.undo_button, self.redo_button, self.reset_button])),
             self._section("Rows left out (with reasons)", self.left_out_list, self.restore_chosen_button),
-            self._section("Levels: original → now → new name", self.level_editor, self.regroup_button),
+            self._section("Levels: original → new name (same name = merged)", self.level_editor, self.regroup_button),
         ], layout=W.Layout(width="320px", min_width="320px", padding="0 8px 0 0"))
         main = [c for c in self.cards.values() if c.panel.group == "main"]
         charts = [c.widget for c in main if c.panel.key == "observations"]
@@ -592,7 +592,8 @@ class Explorer(W.VBox):
                              disabled=now is None)
                 boxes[orig] = box
                 shown = now if now is not None else "(rows moved to several levels)"
-                label = W.HTML(f"<span class='vx-small'>{html.escape(orig)} → {html.escape(shown)} →</span>",
+                text = f"{orig} →" if shown == orig else f"{orig} (now {shown}) →"
+                label = W.HTML(f"<span class='vx-small'>{html.escape(text)}</span>",
                                layout=W.Layout(width="170px"))
                 rows.append(W.HBox([label, box]))
                 self._level_widgets += [label, box]
