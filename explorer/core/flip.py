@@ -38,6 +38,7 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
+from .dataset import RowId
 from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
 from .errors import ExplorerError, closest_names
 from .groupstats import group_stats
@@ -322,9 +323,10 @@ def flip_finder(
     )
 
 
-def _py_id(v: object) -> object:
+def _py_id(v: object) -> RowId:
     """A row id as a plain Python value (numpy integers become int)."""
-    return v.item() if isinstance(v, np.generic) else v
+    out = v.item() if isinstance(v, np.generic) else v
+    return out if isinstance(out, (int, str)) else str(out)
 
 
 def _order_within(scorer: _Scorer, rows: list[int], want_sig: bool) -> list[int]:

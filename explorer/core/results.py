@@ -188,7 +188,7 @@ class Results:
         )
         for table in self.levels.values():
             parts.append(table._repr_html_())
-        extras = [*self.marginal_means.values(), self.term_effects, self.blocking]
+        extras: list[Any] = [*self.marginal_means.values(), self.term_effects, self.blocking]
         if self.cells is not None and not self.cells.balanced:
             extras.append(self.cells)
         parts.extend(x._repr_html_() for x in extras if x is not None)

@@ -98,13 +98,13 @@ class Study:
         blocks_t = (blocks,) if isinstance(blocks, str) else tuple(blocks)
         spec = ModelSpec(response=response, factors=factors_t, blocks=blocks_t,
                          interactions=interactions, ss_type=ss_type, alpha=alpha)  # type: ignore[arg-type]
-        self._init(build_dataset(data, response, spec.columns, id_column), spec)
-        self.data_source = data if isinstance(data, (str, Path)) else None
+        self._init(build_dataset(data, response, spec.columns, id_column), spec,
+                   data_source=data if isinstance(data, (str, Path)) else None)
 
-    def _init(self, dataset: Dataset, spec: ModelSpec) -> None:
+    def _init(self, dataset: Dataset, spec: ModelSpec, data_source: str | Path | None = None) -> None:
         self.dataset = dataset
         self.spec = spec
-        self.data_source: str | Path | None = None  # the file the data came from, for replay code
+        self.data_source = data_source  # the file the data came from, for replay code
         self._log: list[Edit] = []
         self._views: list[DataView] = [initial_view(dataset)]
         self._results: dict[int, Results] = {}
