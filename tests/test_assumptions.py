@@ -112,3 +112,25 @@ def test_shapiro_on_two_factor_residuals_matches_scipy_on_statsmodels_residuals(
     ref = sps.shapiro(ols("y ~ C(a) * C(b)", data=df).fit().resid)
     assert ours.statistic == pytest.approx(ref.statistic, rel=1e-9)
     assert ours.pvalue == pytest.approx(ref.pvalue, rel=1e-6)
+
+
+def test_levene_and_bartlett_across_cells_of_a_two_factor_design():
+    """Two factors: Levene (median centre) and Bartlett across the cells equal scipy.stats.levene
+    and scipy.stats.bartlett on the cell groups, for the full and the additive model."""
+    import pandas as pd
+    from scipy import stats as sps
+
+    import explorer as ex
+
+    rng = np.random.default_rng(5)
+    df = pd.DataFrame({"a": rng.choice(["x", "y", "z"], 120), "b": rng.choice(["p", "q"], 120)})
+    df["y"] = rng.normal(0, 1 + (df.a == "z"), 120) + (df.b == "q") * 2.0
+    cells = [grp.to_numpy() for _, grp in df.groupby(["a", "b"])["y"]]
+    for interactions in (True, False):
+        res = ex.Study(df, "y", ["a", "b"], interactions=interactions).results
+        lev, bar = levene(res), bartlett(res)
+        ref_l, ref_b = sps.levene(*cells, center="median"), sps.bartlett(*cells)
+        assert lev.statistic == pytest.approx(ref_l.statistic, rel=1e-9)
+        assert lev.pvalue == pytest.approx(ref_l.pvalue, rel=1e-8)
+        assert bar.statistic == pytest.approx(ref_b.statistic, rel=1e-9)
+        assert bar.pvalue == pytest.approx(ref_b.pvalue, rel=1e-8)

@@ -292,3 +292,4 @@ def test_tests_tab_for_two_factor_designs_shows_multi_factor_counterparts(demo_c
     assert all("Not available" not in v and "could not" not in v for v in html_of.values())
     assert "type III" in html_of["overall_tests"] and "type I " in html_of["overall_tests"]
     assert "Tukey-Kramer" in html_of["comparisons"] and "Shapiro-Wilk" in html_of["assumption_checks"]
+    assert "Levene" in html_of["assumption_checks"] and "Bartlett" in html_of["assumption_checks"]

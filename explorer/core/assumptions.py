@@ -32,7 +32,7 @@ from scipy import special, stats
 from .distributions import f_sf
 from .errors import ExplorerError
 from .groupstats import group_stats
-from .oneway_inputs import require_oneway, row_sample_notes
+from .oneway_inputs import row_sample_notes
 from .tables import fmt
 
 if TYPE_CHECKING:
@@ -90,13 +90,14 @@ def levene(results: Results, *, center: Center = "median", proportion_to_cut: fl
     ``center='median'`` is the Brown-Forsythe (1974) variant (robust, the usual default);
     ``'mean'`` is Levene's original; ``'trimmed'`` uses the level mean after cutting
     ``proportion_to_cut`` of the values from each end (as ``scipy.stats.levene``).
-    Computed from the residuals, so the response offset cannot cost digits.
+    Computed from the residuals, so the response offset cannot cost digits. With several
+    factors the groups are the cells of the design (every model here fits a constant per
+    cell, so residual deviations from the cell centre equal the response's).
     """
     if center not in ("median", "mean", "trimmed"):
         raise ExplorerError(f"center must be 'median', 'mean' or 'trimmed', not {center!r}")
     if not 0 <= proportion_to_cut < 0.5:
         raise ExplorerError(f"proportion_to_cut must be in [0, 0.5), not {proportion_to_cut!r}")
-    require_oneway(results, "Levene's test")
     fit = results.fit
     gs = results.groups
     g, k = fit.group, gs.k
@@ -140,9 +141,9 @@ def bartlett(results: Results) -> CheckResult:
     """Bartlett's (1937) test of equal variances, from the level variances alone.
 
     ``T = [(N-k) ln s_p^2 - sum (n_i-1) ln s_i^2] / C``, chi-square on ``k-1`` df. Exact
-    only for normal data: heavy tails make it reject too often (use Levene then).
+    only for normal data: heavy tails make it reject too often (use Levene then). With
+    several factors the groups are the cells of the design.
     """
-    require_oneway(results, "Bartlett's test")
     gs = results.groups
     n = gs.n.astype(float)
     var = gs.variances()

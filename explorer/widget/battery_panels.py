@@ -14,8 +14,10 @@ import html
 from collections import OrderedDict
 from typing import Any
 
+import pandas as pd
+
 from explorer.core import Results
-from explorer.core.assumptions import shapiro_residuals
+from explorer.core.assumptions import bartlett, levene, shapiro_residuals
 from explorer.core.battery import Battery, run_battery
 from explorer.core.letters import compact_letters
 from explorer.core.tables import fmt, html_table
@@ -74,9 +76,12 @@ def overall_tests(ctx: PanelContext) -> str:
 @explains_refusals
 def assumption_checks(ctx: PanelContext) -> str:
     if not ctx.results.spec.is_oneway:
-        return shapiro_residuals(ctx.row_results)._repr_html_() + (
-            "<div class='vx-small'>Equal spread across cells: read the residuals-against-fitted chart "
-            "(Model checks tab); a funnel shape means the spread grows with the level.</div>")
+        rows = ctx.row_results
+        checks = [levene(rows), bartlett(rows), shapiro_residuals(rows)]
+        table = html_table(pd.DataFrame([c.row() for c in checks]),
+                           "Checks of equal spread across the cells and normal residuals")
+        return table + ("<div class='vx-small'>Several factors: the groups compared for spread are the cells "
+                        "of the design.</div>")
     bat = battery_for(ctx)
     return html_table(bat.checks_frame(), "Checks of equal spread and normal residuals")
 
