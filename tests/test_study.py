@@ -285,3 +285,13 @@ def test_id_column_gives_row_ids_and_survives_save_load(tmp_path):
         ex.Study(d.assign(panel=["P1", "P1", "P3", "P4", "P5", "P6"]), "y", "g", id_column="panel")
     with pytest.raises(ex.ColumnError, match="Did you mean 'panel'"):
         ex.Study(d, "y", "g", id_column="Panel")
+
+
+def test_empty_level_names_are_refused_by_every_edit_that_names_a_level(df):
+    s = ex.Study(df, "width", "machine")
+    for make in (lambda: s.reassign(0, "machine", " ", reason="x"),
+                 lambda: s.merge_levels("machine", ["M1", "M2"], into="", reason="x"),
+                 lambda: s.rename_level("machine", "M1", "  ", reason="x")):
+        with pytest.raises(ex.EditError, match="level name cannot be empty"):
+            make()
+    assert s.edits == ()

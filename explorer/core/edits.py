@@ -42,6 +42,14 @@ def register_edit(cls: type["Edit"]) -> type["Edit"]:
     return cls
 
 
+def level_name(name: object) -> str:
+    """A new or target level name as text; refuse an empty one (every edit that names a level uses this)."""
+    text = str(name)
+    if not text.strip():
+        raise EditError("a level name cannot be empty")
+    return text
+
+
 def _ro(a: np.ndarray) -> np.ndarray:
     a.setflags(write=False)
     return a
@@ -167,7 +175,7 @@ class Reassign(Edit):
     def __post_init__(self) -> None:
         if isinstance(self.row, np.integer):
             object.__setattr__(self, "row", int(self.row))
-        object.__setattr__(self, "level", str(self.level))
+        object.__setattr__(self, "level", level_name(self.level))
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
         _check_factor(view, self.factor)
@@ -201,7 +209,7 @@ class MergeLevels(Edit):
         if isinstance(self.levels, str):
             raise EditError("merge_levels takes a list of level names, e.g. ['N2', 'N3']")
         object.__setattr__(self, "levels", tuple(str(x) for x in self.levels))
-        object.__setattr__(self, "into", str(self.into))
+        object.__setattr__(self, "into", level_name(self.into))
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
         _check_factor(view, self.factor)
@@ -244,7 +252,7 @@ class RenameLevel(Edit):
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "old", str(self.old))
-        object.__setattr__(self, "new", str(self.new))
+        object.__setattr__(self, "new", level_name(self.new))
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
         _check_factor(view, self.factor)
@@ -254,8 +262,6 @@ class RenameLevel(Edit):
             raise EditError(
                 f"factor {self.factor!r} already has a level {self.new!r}; to pool the two, merge them instead"
             )
-        if not self.new.strip():
-            raise EditError("a level name cannot be empty")
         levels = known[:i] + (self.new,) + known[i + 1 :]
         return view.replace(levels={**view.levels, self.factor: levels})
 

@@ -13,7 +13,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from ..core.edits import Edit, _check_factor, _check_levels, register_edit
+from ..core.edits import Edit, _check_factor, _check_levels, level_name, register_edit
 from ..core.errors import EditError
 from .atoms import MOVE_PREFIX
 from .predicate import parse_predicate
@@ -86,13 +86,11 @@ class MoveWhere(Edit):
     level: str
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "level", str(self.level))
+        object.__setattr__(self, "level", level_name(self.level))
 
     def apply(self, view: Any, dataset: Any) -> Any:
         v = _summary_view(view, "moving rows by a condition")
         _check_factor(v, self.factor)  # type: ignore[arg-type]
-        if not self.level.strip():
-            raise EditError("a level name cannot be empty")
         p = parse_predicate(self.predicate, _columns(dataset))
         levels = v.levels[self.factor]
         if self.level not in levels:
