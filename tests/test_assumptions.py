@@ -114,23 +114,61 @@ def test_shapiro_on_two_factor_residuals_matches_scipy_on_statsmodels_residuals(
     assert ours.pvalue == pytest.approx(ref.pvalue, rel=1e-6)
 
 
-def test_levene_and_bartlett_across_cells_of_a_two_factor_design():
-    """Two factors: Levene (median centre) and Bartlett across the cells equal scipy.stats.levene
-    and scipy.stats.bartlett on the cell groups, for the full and the additive model."""
+def _unbalanced_cells(seed: int, blocks: bool = False):
+    """A 3 x 3 layout with 3-8 rows per cell (unbalanced), spreads that differ by cell."""
     import pandas as pd
+
+    rng = np.random.default_rng(seed)
+    rows = [(a, b) for a in "xyz" for b in "pqr" for _ in range(int(rng.integers(3, 9)))]
+    df = pd.DataFrame(rows, columns=["a", "b"])
+    df["y"] = (rng.normal(0, 1, len(df)) * (1 + 2 * (df.a == "z")) + (df.a == "y") * 1.0
+               + (df.b == "r") * 2.0 + 1e6)
+    return df
+
+
+@pytest.mark.parametrize("center", ["median", "mean", "trimmed"])
+@pytest.mark.parametrize("model", ["full", "additive", "block"])
+def test_levene_and_bartlett_across_cells_of_a_two_factor_design(center: str, model: str) -> None:
+    """Levene (each centre) and Bartlett across the cells equal scipy.stats.levene(center=...)
+    and scipy.stats.bartlett on the cell groups, whatever the model: full factorial, additive
+    factors and a factor with an additive block, on a 3 x 3 unbalanced layout with a 1e6 offset.
+
+    Levene's W is the one-way F on |y - centre of its cell| (Levene 1960; Brown and Forsythe
+    1974): the deviations are from the cell centre, not the model residuals (a non-saturated
+    model's residuals do not average to zero within a cell)."""
     from scipy import stats as sps
 
     import explorer as ex
 
-    rng = np.random.default_rng(5)
-    df = pd.DataFrame({"a": rng.choice(["x", "y", "z"], 120), "b": rng.choice(["p", "q"], 120)})
-    df["y"] = rng.normal(0, 1 + (df.a == "z"), 120) + (df.b == "q") * 2.0
+    df = _unbalanced_cells(5)
     cells = [grp.to_numpy() for _, grp in df.groupby(["a", "b"])["y"]]
-    for interactions in (True, False):
-        res = ex.Study(df, "y", ["a", "b"], interactions=interactions).results
-        lev, bar = levene(res), bartlett(res)
-        ref_l, ref_b = sps.levene(*cells, center="median"), sps.bartlett(*cells)
-        assert lev.statistic == pytest.approx(ref_l.statistic, rel=1e-9)
-        assert lev.pvalue == pytest.approx(ref_l.pvalue, rel=1e-8)
-        assert bar.statistic == pytest.approx(ref_b.statistic, rel=1e-9)
-        assert bar.pvalue == pytest.approx(ref_b.pvalue, rel=1e-8)
+    if model == "block":
+        study = ex.Study(df, "y", "a", blocks="b")
+    else:
+        study = ex.Study(df, "y", ["a", "b"], interactions=model == "full")
+    res = study.results
+    lev, bar = levene(res, center=center, proportion_to_cut=0.2), bartlett(res)  # type: ignore[arg-type]
+    ref_l = sps.levene(*cells, center=center, proportiontocut=0.2)
+    ref_b = sps.bartlett(*cells)
+    assert lev.statistic == pytest.approx(ref_l.statistic, rel=1e-8)
+    assert lev.pvalue == pytest.approx(ref_l.pvalue, rel=1e-7)
+    assert bar.statistic == pytest.approx(ref_b.statistic, rel=1e-9)
+    assert bar.pvalue == pytest.approx(ref_b.pvalue, rel=1e-8)
+
+
+def test_levene_mean_centre_additive_model_is_not_read_from_residuals() -> None:
+    """The reported case: a 3 x 3 unbalanced additive model, mean centre. The residuals of the
+    additive fit are not deviations from the cell means, so |residual| gives another W; ours
+    must equal scipy.stats.levene(center='mean') over the cells and differ from the F on
+    |residual|."""
+    from scipy import stats as sps
+
+    import explorer as ex
+
+    df = _unbalanced_cells(0)
+    cells = [grp.to_numpy() for _, grp in df.groupby(["a", "b"])["y"]]
+    res = ex.Study(df, "y", ["a", "b"], interactions=False).results
+    ref = sps.levene(*cells, center="mean").statistic
+    from_residuals = sps.f_oneway(*[np.abs(res.fit.residuals[res.fit.group == c]) for c in range(9)]).statistic
+    assert abs(from_residuals - ref) > 1e-3 * ref  # the two readings differ on this design
+    assert levene(res, center="mean").statistic == pytest.approx(ref, rel=1e-8)

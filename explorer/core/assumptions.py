@@ -90,9 +90,13 @@ def levene(results: Results, *, center: Center = "median", proportion_to_cut: fl
     ``center='median'`` is the Brown-Forsythe (1974) variant (robust, the usual default);
     ``'mean'`` is Levene's original; ``'trimmed'`` uses the level mean after cutting
     ``proportion_to_cut`` of the values from each end (as ``scipy.stats.levene``).
-    Computed from the residuals, so the response offset cannot cost digits. With several
-    factors the groups are the cells of the design (every model here fits a constant per
-    cell, so residual deviations from the cell centre equal the response's).
+    With several factors or blocks the groups are the cells of the design, and every
+    centre is the cell's own (median, mean or trimmed mean of its values), as the method
+    defines, whatever model was fitted. The deviations are computed from the residuals
+    minus their cell centre: the fitted value is constant within a cell, so this equals
+    ``y - centre`` exactly while the response offset costs no digits. (The residuals of
+    a non-saturated model, additive factors or blocks, do not average to zero within a
+    cell, so they are not themselves deviations from the cell mean.)
     """
     if center not in ("median", "mean", "trimmed"):
         raise ExplorerError(f"center must be 'median', 'mean' or 'trimmed', not {center!r}")
@@ -104,7 +108,8 @@ def levene(results: Results, *, center: Center = "median", proportion_to_cut: fl
     n = np.bincount(g, minlength=k)  # the rows at hand (all kept rows, or a sample)
     e = np.asarray(fit.residuals, dtype=float)
     if center == "mean":
-        z = np.abs(e)
+        c = np.bincount(g, weights=e, minlength=k) / np.maximum(n, 1)
+        z = np.abs(e - c[g])
     else:
         srt, starts = _sorted_by_group(e, g, n)
         m = np.maximum(n, 1)  # levels without rows get a dummy centre that no row uses
