@@ -46,6 +46,9 @@ class OmnibusTest:
     ``statistic``/``pvalue`` are ``None`` when the test is undefined on this view, and
     ``notes`` say why. ``details`` holds method-specific extras as (name, value) pairs
     (e.g. the permutation count and the Monte-Carlo standard error of the p-value).
+    ``original_df_num``/``original_pvalue`` are a second reading of the same statistic
+    with the numerator df its authors first proposed, where the reported ``pvalue`` uses
+    a later correction (Brown-Forsythe: k - 1 against Mehrotra's df); ``None`` otherwise.
     """
 
     method: str
@@ -56,6 +59,8 @@ class OmnibusTest:
     assumes: str
     details: tuple[tuple[str, float | int | str | None], ...] = ()
     notes: tuple[str, ...] = field(default=())
+    original_df_num: float | None = None
+    original_pvalue: float | None = None
 
     def detail(self, name: str) -> float | int | str | None:
         for k, v in self.details:
@@ -76,6 +81,10 @@ class OmnibusTest:
         dfs = ", ".join(fmt(x, 5) for x in (self.df_num, self.df_den) if x is not None)
         extra = "; ".join(f"{html.escape(k)} {fmt(v) if not isinstance(v, str) else html.escape(v)}"
                           for k, v in self.details)
+        if self.original_pvalue is not None:
+            first = (f"with the original k - 1 = {fmt(self.original_df_num, 5)} numerator df, "
+                     f"p = {fmt(self.original_pvalue)} (liberal when variances differ)")
+            extra = f"{extra}; {first}" if extra else first
         notes = "".join(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)
         return (
             f"<div><b>{html.escape(self.method)}</b>: statistic {fmt(self.statistic)}"
@@ -142,17 +151,23 @@ def welch_f(results: Results) -> OmnibusTest:
 def brown_forsythe_f(results: Results) -> OmnibusTest:
     """Brown and Forsythe's (1974) F* test of equal means under unequal variances.
 
-    ``F* = sum n_i (m_i - m)^2 / sum (1 - n_i/N) s_i^2`` on ``k - 1`` and Satterthwaite
-    denominator df. Mehrotra's (1997) corrected numerator df and its p-value are in
-    ``details``. (Not to be confused with the Brown-Forsythe test of equal spreads, which
-    is Levene's test centred at the median, see :mod:`.assumptions`.)
+    ``F* = sum n_i (m_i - m)^2 / sum (1 - n_i/N) s_i^2`` with Satterthwaite denominator
+    df. The reported p-value uses Mehrotra's (1997) numerator df
+    ``(sum c_i s_i^2)^2 / (sum s_i^4 + (sum p_i s_i^2)^2 - 2 sum p_i s_i^4)`` (``c_i =
+    1 - p_i``, ``p_i = n_i / N``), which keeps the type I error near its nominal level
+    where the original ``k - 1`` is liberal under unequal variances; the original
+    reading is kept in ``original_df_num``/``original_pvalue`` (statsmodels
+    ``anova_oneway(use_var="bf")`` reports the same pair as ``pvalue``/``pvalue2``).
+    (Not to be confused with the Brown-Forsythe test of equal spreads, which is
+    Levene's test centred at the median, see :mod:`.assumptions`.)
     """
     n, _mean, var, k = _stats(results)
     assumes = "independent observations, normal residuals within each level (variances may differ)"
+    method = "Brown-Forsythe F* (means, Mehrotra df)"
     problem = _unequal_var_guard(n, var, results.groups.labels, "The Brown-Forsythe test of means")
     if problem:
-        return OmnibusTest(method="Brown-Forsythe F* (means)", statistic=None, df_num=float(k - 1), df_den=None,
-                           pvalue=None, assumes=assumes, notes=(problem,))
+        return OmnibusTest(method=method, statistic=None, df_num=None, df_den=None, pvalue=None, assumes=assumes,
+                           notes=(problem,), original_df_num=float(k - 1))
     big_n = n.sum()
     c = 1 - n / big_n
     denom = np.dot(c, var)
@@ -161,9 +176,8 @@ def brown_forsythe_f(results: Results) -> OmnibusTest:
     p = n / big_n
     df1_m = float(denom**2 / (np.sum(var**2) + np.dot(p, var) ** 2 - 2 * np.dot(p, var**2)))
     return OmnibusTest(
-        method="Brown-Forsythe F* (means)", statistic=f, df_num=float(k - 1), df_den=df2,
-        pvalue=_f_sf(f, k - 1, df2), assumes=assumes,
-        details=(("Mehrotra numerator df", df1_m), ("Mehrotra p-value", _f_sf(f, df1_m, df2))),
+        method=method, statistic=f, df_num=df1_m, df_den=df2, pvalue=_f_sf(f, df1_m, df2), assumes=assumes,
+        original_df_num=float(k - 1), original_pvalue=_f_sf(f, k - 1, df2),
     )
 
 
