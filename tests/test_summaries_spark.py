@@ -107,3 +107,17 @@ def test_nist_decimal_column_through_spark(spark):
     scores = {q: lre(v, getattr(s, q)) for q, v in ours.items()}
     assert min(scores.values()) >= 13, scores
     assert close(r.ms_resid, s.ms_within, 1e-12)
+
+
+def test_conditions_are_type_checked_and_literals_kept_through_spark(spark, frame):
+    """Spark gets the same checks as DuckDB: an ill-typed condition is a PredicateError before Spark sees it,
+    and a literal with spaced brackets reaches Spark byte for byte (reference: a pandas mask)."""
+    from explorer.core.errors import PredicateError
+
+    data = frame.assign(note=["rework ( line 2 )" if i % 7 == 0 else "ok" for i in range(len(frame))])
+    s = SummaryStudy(spark.createDataFrame(data), "thickness", "line", sample_size=0)
+    with pytest.raises(PredicateError, match="'line'.*text.*number"):
+        s.drop_where("line > 5", reason="hostile")
+    assert s.edits == ()
+    r = s.drop_where("note = 'rework ( line 2 )'", reason="rework")
+    assert r.n_used == len(data) - int((data.note == "rework ( line 2 )").sum())

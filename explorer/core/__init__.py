@@ -67,3 +67,8 @@ __all__ += [
     "flip_finder", "Influence", "influence_measures", "RegroupScan", "regroup_scan", "SweepResult",
     "robustness_sweep",
 ]
+
+# Refusals of conditions on columns (summary-backed studies).
+from .errors import PredicateError
+
+__all__ += ["PredicateError"]

@@ -27,6 +27,10 @@ class EditError(ExplorerError):
     """An edit names rows, factors or levels that do not exist, or would leave nothing to analyse."""
 
 
+class PredicateError(EditError):
+    """A condition on columns (``drop_where`` and friends) is malformed or compares values of the wrong types."""
+
+
 class DesignError(ExplorerError):
     """The model cannot be fitted on the current view (too few levels, no residual df, ...)."""
 

@@ -16,7 +16,7 @@ import numpy as np
 from ..core.edits import Edit, _check_factor, _check_levels, level_name, register_edit
 from ..core.errors import EditError
 from .atoms import MOVE_PREFIX
-from .predicate import parse_predicate
+from .predicate import Predicate, parse_predicate
 from .view import Condition, SummaryView
 
 __all__ = ["DropCell", "DropLevel", "DropWhere", "MoveWhere", "RestoreCell", "RestoreLevel", "RestoreWhere"]
@@ -28,8 +28,11 @@ def _summary_view(view: Any, what: str) -> SummaryView:
     return view
 
 
-def _columns(dataset: Any) -> tuple[str, ...]:
-    return tuple(getattr(dataset, "columns", ()))
+def _parse(text: str, dataset: Any) -> Predicate:
+    """Parse a condition against the study's columns, type-checked when the engine told their kinds."""
+    kinds = getattr(dataset, "kinds", None)
+    columns = kinds if kinds else tuple(getattr(dataset, "columns", ()))
+    return parse_predicate(text, columns, getattr(dataset, "types", None))
 
 
 @register_edit
@@ -45,7 +48,7 @@ class DropWhere(Edit):
 
     def apply(self, view: Any, dataset: Any) -> Any:
         v = _summary_view(view, "leaving rows out by a condition")
-        p = parse_predicate(self.predicate, _columns(dataset))
+        p = _parse(self.predicate, dataset)
         if any(f.text == p.text for f in v.filters):
             raise EditError(f"rows where {p.text} are already left out")
         return v.replace(filters=v.filters + (p,))
@@ -91,7 +94,7 @@ class MoveWhere(Edit):
     def apply(self, view: Any, dataset: Any) -> Any:
         v = _summary_view(view, "moving rows by a condition")
         _check_factor(v, self.factor)  # type: ignore[arg-type]
-        p = parse_predicate(self.predicate, _columns(dataset))
+        p = _parse(self.predicate, dataset)
         levels = v.levels[self.factor]
         if self.level not in levels:
             levels = levels + (self.level,)

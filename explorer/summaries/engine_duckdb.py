@@ -34,7 +34,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..core.errors import ColumnError, DataError, closest_names, preview
+from ..core.errors import ColumnError, DataError, PredicateError, closest_names, preview
 from .atoms import AtomTable, Prepared, choose_offset, finish_two_pass
 from .predicate import Predicate
 
@@ -51,6 +51,22 @@ def _q(name: str) -> str:
 
 def _lit(text: str) -> str:
     return "'" + text.replace("'", "''") + "'"
+
+
+def duckdb_kind(type_name: str) -> str:
+    """The kind of a DuckDB column type for conditions: number, text, date, timestamp, boolean or other."""
+    t = type_name.upper()
+    if t in _NUMERIC or t.startswith("DECIMAL") or t == "UHUGEINT":
+        return "number"
+    if t == "VARCHAR" or t.startswith("ENUM"):
+        return "text"
+    if t == "DATE":
+        return "date"
+    if t.startswith("TIMESTAMP"):
+        return "timestamp"
+    if t == "BOOLEAN":
+        return "boolean"
+    return "other"
 
 
 def _import_duckdb() -> Any:
@@ -123,6 +139,18 @@ class DuckDBSource:
     def columns(self) -> tuple[str, ...]:
         return tuple(self.types)
 
+    @property
+    def kinds(self) -> dict[str, str]:
+        """The kind of each column for type-checking conditions (the response reads as a number once prepared)."""
+        kinds = {name: duckdb_kind(t) for name, t in self.types.items()}
+        if getattr(self, "_response", None):
+            kinds[self._response] = "number"
+        return kinds
+
+    def _sql(self, p: Predicate) -> str:
+        """A condition as DuckDB text; the response is read as the number the analysis uses."""
+        return p.render("duckdb", {self._response: self._yv} if getattr(self, "_response", None) else None)
+
     def describe(self) -> str:
         return f"DuckDB over {self.label}"
 
@@ -183,6 +211,7 @@ class DuckDBSource:
             raise DataError(f"response column {response!r} has type {rtype}; the analysis of variance needs a numeric response")
         self._usable = f"NOT ({missing})"
         self._infinite = infinite
+        self._response = response
         # The count of rows comes from the file metadata for Parquet; rows set aside for
         # missing values and infinite responses are found in the first summary scan.
         total = self.con.execute(f"SELECT count(*) FROM {self._relation}").fetchone()[0]
@@ -206,15 +235,15 @@ class DuckDBSource:
 
     # ------------------------------------------------------------------ queries
     def _where(self, filters: Sequence[Predicate], only: Predicate | None = None) -> str:
-        parts = [self._usable] + [f"NOT coalesce(({p.render('duckdb')}), false)" for p in filters]
+        parts = [self._usable] + [f"NOT coalesce(({self._sql(p)}), false)" for p in filters]
         if only is not None:  # first, so that the scan can skip rows on it
-            parts.insert(0, f"coalesce(({only.render('duckdb')}), false)")
+            parts.insert(0, f"coalesce(({self._sql(only)}), false)")
         return " AND ".join(parts)
 
     def _move_columns(self, prep: Prepared, moves: Sequence[tuple[Predicate, str]]) -> list[str]:
         cols = []
         for j, f in enumerate(prep.factors):
-            whens = [f"WHEN coalesce(({p.render('duckdb')}), false) THEN {k + 1}"
+            whens = [f"WHEN coalesce(({self._sql(p)}), false) THEN {k + 1}"
                      for k, (p, fac) in reversed(list(enumerate(moves))) if fac == f]
             cols.append(f"CASE {' '.join(whens)} ELSE 0 END AS vx_m{j}" if whens else f"0 AS vx_m{j}")
         return cols
@@ -230,6 +259,18 @@ class DuckDBSource:
         return (f"SELECT {self._shifted} AS vx_y, {', '.join(fcols + self._move_columns(prep, moves))}{extra} "
                 f"FROM {relation or self._relation} WHERE {self._where(filters, only)}")
 
+    def _execute(self, sql: str, conditions: Sequence[Predicate] = ()) -> Any:
+        """Run a summary query; an engine error becomes the kit's own error, naming the conditions in effect."""
+        duckdb = _import_duckdb()
+        try:
+            return self.con.execute(sql)
+        except duckdb.Error as exc:
+            texts = [p.text for p in conditions]
+            first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+            if texts:
+                raise PredicateError(f"DuckDB could not evaluate the conditions {preview(texts, 4)}: {first}") from None
+            raise DataError(f"DuckDB could not summarise {self.label}: {first}") from None
+
     def atoms(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]], *,
               sample_size: int = 0, seed: int = 0, only: Predicate | None = None) -> AtomTable:
         """Per-atom n, mean and centred SS of the rows that pass ``filters`` (one scan, or two with ``passes=2``).
@@ -240,6 +281,7 @@ class DuckDBSource:
         ``only`` restricts the summary to the kept rows where that predicate holds (the rows
         a new condition would leave out, or an old one bring back).
         """
+        conds = [*filters, *(p for p, _ in moves), *([only] if only is not None else [])]
         k = len(prep.factors)
         moved = {f for _, f in moves}
         # Factors without row moves group by their value alone (a constant move index costs a grouping column).
@@ -254,31 +296,33 @@ class DuckDBSource:
             fields = ", ".join([f"{_q(c)} := {_q(c)}" for c in self.columns] + ["vx_h := vx_h"])
             smp = f", list(struct_pack({fields})) FILTER (WHERE vx_h <= CAST('{limit}' AS UBIGINT)) AS vx_sample"
         welford = ", var_pop(vx_y) * count(*) AS vx_m2" if self.passes == 1 else ""
-        self.con.execute(
+        self._execute(
             f"CREATE OR REPLACE TEMP TABLE vx_pass1 AS SELECT {', '.join(keys)}, count(*) AS vx_n, "
             f"fsum(vx_y) / count(*) AS vx_mean{welford}{smp} "
-            f"FROM ({self._kept_rows(prep, filters, moves, seed if pooling else None, only=only)}) GROUP BY ALL"
+            f"FROM ({self._kept_rows(prep, filters, moves, seed if pooling else None, only=only)}) GROUP BY ALL",
+            conds,
         )
         if pooling:
-            self.con.execute("CREATE OR REPLACE TEMP TABLE vx_pool AS "
-                             "SELECT unnest(vx_sample, recursive := true) FROM vx_pass1")
+            self._execute("CREATE OR REPLACE TEMP TABLE vx_pool AS "
+                          "SELECT unnest(vx_sample, recursive := true) FROM vx_pass1", conds)
             self._pool = (int(seed), frac >= 1.0)
         if self.passes == 1:
-            rows = self.con.execute(
-                f"SELECT {', '.join(out_keys)}, vx_n, vx_mean, 0.0, vx_m2 FROM vx_pass1 ORDER BY ALL"
+            rows = self._execute(
+                f"SELECT {', '.join(out_keys)}, vx_n, vx_mean, 0.0, vx_m2 FROM vx_pass1 ORDER BY ALL", conds
             ).fetchall()
         else:
             on = " AND ".join(f"s.{c} = p.{c}" for c in keys)
-            rows = self.con.execute(
+            rows = self._execute(
                 f"SELECT {', '.join(c if ' AS ' in c else 'p.' + c for c in out_keys)}, p.vx_n, p.vx_mean, "
                 f"fsum(s.vx_y - p.vx_mean), "
                 f"fsum((s.vx_y - p.vx_mean) * (s.vx_y - p.vx_mean)) "
                 f"FROM ({self._kept_rows(prep, filters, moves, only=only)}) s JOIN vx_pass1 p ON {on} "
-                f"GROUP BY ALL ORDER BY ALL"
+                f"GROUP BY ALL ORDER BY ALL",
+                conds,
             ).fetchall()
         table = _atom_table(prep, rows)
         if not (np.all(np.isfinite(table.mean)) and np.all(np.isfinite(table.m2))):
-            inf = self.con.execute(f"SELECT count(*) FROM {self._relation} WHERE {self._infinite}").fetchone()[0]
+            inf = self._execute(f"SELECT count(*) FROM {self._relation} WHERE {self._infinite}", conds).fetchone()[0]
             raise DataError(f"response column {prep.response!r} has {inf} infinite values; replace them with real "
                             "measurements or leave those rows out of the files")
         return table
@@ -290,17 +334,18 @@ class DuckDBSource:
 
         Taken from the pool kept by :meth:`atoms` when that holds enough rows, else by a scan.
         """
+        conds = [*filters, *(p for p, _ in moves)]
         frame = None
         if self._pool is not None and self._pool[0] == int(seed):
             sql = (f"SELECT * EXCLUDE (vx_h) FROM ({self._kept_rows(prep, filters, moves, seed, 'vx_pool')}) "
                    f"ORDER BY vx_h LIMIT {int(size)}")
-            frame = self.con.execute(sql).fetchdf()
+            frame = self._execute(sql, conds).fetchdf()
             if len(frame) < size and not self._pool[1]:
                 frame = None
         if frame is None:
             sql = (f"SELECT * EXCLUDE (vx_h) FROM ({self._kept_rows(prep, filters, moves, seed)}) "
                    f"ORDER BY vx_h LIMIT {int(size)}")
-            frame = self.con.execute(sql).fetchdf()
+            frame = self._execute(sql, conds).fetchdf()
         return frame.drop(columns=[c for c in frame.columns if c.startswith("vx_f")])
 
 

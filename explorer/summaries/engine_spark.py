@@ -74,6 +74,22 @@ def _partition_fn(keys: list[str]) -> Any:
     return partition_stats
 
 
+def spark_kind(data_type: Any) -> str:
+    """The kind of a Spark SQL type for conditions (by type name, so no Spark import is needed)."""
+    name = type(data_type).__name__
+    if name in ("ByteType", "ShortType", "IntegerType", "LongType", "FloatType", "DoubleType", "DecimalType"):
+        return "number"
+    if name in ("StringType", "VarcharType", "CharType"):
+        return "text"
+    if name == "DateType":
+        return "date"
+    if name in ("TimestampType", "TimestampNTZType"):
+        return "timestamp"
+    if name == "BooleanType":
+        return "boolean"
+    return "other"
+
+
 class SparkSource:
     """A Spark DataFrame to summarise where it lives.
 
@@ -96,6 +112,11 @@ class SparkSource:
     @property
     def columns(self) -> tuple[str, ...]:
         return tuple(self.types)
+
+    @property
+    def kinds(self) -> dict[str, str]:
+        """The kind of each column for type-checking conditions: number, text, date, timestamp, boolean or other."""
+        return {name: spark_kind(t) for name, t in self.types.items()}
 
     def describe(self) -> str:
         return f"Spark over a DataFrame of {len(self.types)} columns"

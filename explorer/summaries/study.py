@@ -107,7 +107,8 @@ class SummaryStudy(Study):
         self.seed = seed
         self.data_source = None
         self.prepared = source.prepare(spec.response, spec.columns)
-        self.summary_data = SummaryData(source.describe(), tuple(source.columns))
+        self.summary_data = SummaryData(source.describe(), tuple(source.columns), getattr(source, "kinds", None),
+                                        {c: _type_name(t) for c, t in getattr(source, "types", {}).items()})
         self._atom_cache: dict[tuple, AtomTable] = {}
         self._sample_cache: dict[tuple, tuple[Dataset, pd.DataFrame]] = {}
         atoms = self._query_atoms((), ())
@@ -172,7 +173,7 @@ class SummaryStudy(Study):
                 (gone,) = set(pf) - set(texts)
                 if [t for t in pf if t != gone] != list(texts):
                     continue
-                back = parse_predicate(gone, self.source.columns)
+                back = parse_predicate(gone, self.summary_data.kinds or self.source.columns, self.summary_data.types)
                 return merge_atoms(parent, self.source.atoms(self.prepared, filters, moves, only=back))
         return None
 
@@ -377,6 +378,7 @@ class SummaryStudy(Study):
             res = self._analyze(new)
         except DesignError as exc:
             raise EditError(f"edit refused ({edit.describe()}): {exc}") from None
+        self._refuse_no_op(edit, new, res)
         del self._log[self._position :]
         del self._views[self._position + 1 :]
         for k in [k for k in self._results if k > self._position]:
@@ -388,6 +390,21 @@ class SummaryStudy(Study):
         self._made += 1
         self._emit("edit", edit)
         return res
+
+    def _refuse_no_op(self, edit: Edit, new: SummaryView, res: Results) -> None:
+        """A condition that catches no kept row changes nothing: refuse it rather than log it as done."""
+        caught: int | None = None
+        if isinstance(edit, DropWhere):
+            caught = self.results.n_used - res.n_used
+        elif isinstance(edit, MoveWhere):
+            atoms = self._atoms(new)
+            j = self.spec.columns.index(edit.factor)
+            caught = int(atoms.n[atoms.move[:, j] == len(new.moves)].sum()) if atoms.size else 0
+        if caught == 0:
+            raise EditError(
+                f"edit refused ({edit.describe()}): the condition holds for no kept row, so nothing would change; "
+                "check the spelling, spaces and case of its text values (conditions compare text exactly)"
+            )
 
     def drop_where(self, predicate: str, reason: str = "") -> Results:
         """Leave out the rows where ``predicate`` holds, e.g. ``"gauge_reading > 120"`` (pushed down to the engine)."""
@@ -537,6 +554,11 @@ class SummaryStudy(Study):
     def __repr__(self) -> str:
         return (f"SummaryStudy(response={self.spec.response!r}, factors={list(self.spec.columns)}, "
                 f"rows={self.prepared.rows_total}, engine={self.source.engine}, edits={self._position})")
+
+
+def _type_name(t: Any) -> str:
+    """An engine's type for messages: DuckDB gives text, Spark a type object."""
+    return t if isinstance(t, str) else str(getattr(t, "simpleString", lambda: t)())
 
 
 def _ro(a: np.ndarray) -> np.ndarray:

@@ -57,9 +57,12 @@ class SummaryData:
 
     notes: tuple[str, ...] = ()
 
-    def __init__(self, describe: str, columns: tuple[str, ...]) -> None:
+    def __init__(self, describe: str, columns: tuple[str, ...], kinds: Mapping[str, str] | None = None,
+                 types: Mapping[str, str] | None = None) -> None:
         self._describe = describe
         self.columns = columns
+        self.kinds = dict(kinds) if kinds is not None else None  # column -> kind, for type-checking conditions
+        self.types = dict(types or {})  # column -> the engine's type name, for messages
 
     def positions(self, rows: object) -> np.ndarray:
         raise EditError(
