@@ -31,15 +31,17 @@ Golub, G. H. and Van Loan, C. F. (2013). Matrix Computations, 4th ed., sec. 5.3
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy import linalg
 
+from .aliasing import AliasedTerm, find_aliased
 from .design import (
     CellDesign,
     Term,
     cell_design,
+    contains,
     model_terms,
     sequential_order,
     term_name,
@@ -82,13 +84,18 @@ class CellFit:
     cov_unscaled: np.ndarray
     cell_fitted: np.ndarray
     cell_leverage: np.ndarray
+    aliased: tuple[AliasedTerm, ...] = ()
 
     @property
     def ms_resid(self) -> float:
         return self.ss_resid / self.df_resid
 
+    def name(self, term: Term) -> str:
+        """Display name of a term of this fit (nested columns shown with their parents)."""
+        return term_name(term, self.design.nesting)
+
     def term_names(self) -> tuple[str, ...]:
-        return tuple(term_name(t) for t in self.terms)
+        return tuple(self.name(t) for t in self.terms)
 
 
 def _projector(xw: np.ndarray, zw: np.ndarray):
@@ -103,11 +110,6 @@ def _projector(xw: np.ndarray, zw: np.ndarray):
         return cache[key]
 
     return fitted
-
-
-def _contains(big: Term, small: Term) -> bool:
-    """True when ``big`` contains every factor of ``small`` and more."""
-    return set(small) < set(big)
 
 
 def fit_cells(
@@ -129,14 +131,24 @@ def fit_cells(
     n_levels : number of levels of each column.
     spec : the model; ``terms`` overrides the terms it implies.
 
+    Terms fully aliased with earlier terms (confounded with blocks, aliased in a
+    fraction) are left out and listed in ``aliased`` (:mod:`.aliasing`).
+
     Raises
     ------
     DesignError
-        When the terms are not all estimable from the observed cells, or no residual
+        When a term is partly aliased, a term has no degrees of freedom, or no residual
         degrees of freedom remain.
     """
     terms = tuple(terms) if terms is not None else model_terms(spec)
-    design = cell_design(terms, columns, n_levels, cell_levels)
+    nesting = spec.nesting
+    design = cell_design(terms, columns, n_levels, cell_levels, nesting)
+    empty = [term_name(t, nesting) for t in terms if design.slices[t].stop == design.slices[t].start]
+    if empty:
+        raise DesignError(
+            f"{', '.join(empty)} has no degrees of freedom in this view (one level under every combination of the "
+            "columns it is nested in); restore rows or leave it out of the model"
+        )
     x = design.matrix
     n_c = stats.n.astype(np.float64)
     n = int(stats.n.sum())
@@ -155,11 +167,15 @@ def fit_cells(
     rank = int(np.sum(diag > tol))
     p = x.shape[1]
     if rank < p:
-        raise DesignError(
-            f"the model terms {[term_name(t) for t in terms]} cannot all be estimated from the "
-            f"{stats.k} observed cells (only {rank} of {p} parameters are estimable); "
-            "fit the additive model (interactions=False), merge sparse levels, or restore rows"
-        )
+        kept, aliased = find_aliased(xw, design, sequential_order(terms, spec.blocks), spec.blocks, nesting)
+        if not aliased:  # pragma: no cover - rank lost without a single aliased term
+            raise DesignError(
+                f"the model terms {[term_name(t, nesting) for t in terms]} cannot all be estimated from the "
+                f"{stats.k} observed cells (only {rank} of {p} parameters are estimable); "
+                "fit the additive model (interactions=False), merge sparse levels, or restore rows"
+            )
+        fit = fit_cells(stats, cell_levels, columns, n_levels, spec, terms=[t for t in terms if t in kept])
+        return replace(fit, aliased=aliased + fit.aliased)
     df_resid = n - p
     if df_resid < 1:
         raise DesignError(
@@ -188,7 +204,7 @@ def fit_cells(
         df["I"][t] = ncols[t]
         prev = cur
     for t in terms:
-        base = [u for u in terms if u != t and not _contains(u, t)]
+        base = [u for u in terms if u != t and not contains(u, t, nesting)]
         big = fitted(design.columns_of(base + [t]))
         small = fitted(design.columns_of(base))
         ss["II"][t] = float(np.sum((big - small) ** 2))

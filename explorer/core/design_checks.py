@@ -22,7 +22,7 @@ from itertools import combinations
 import numpy as np
 
 from .cells import CellLayout
-from .design import model_terms, term_name
+from .design import model_terms, term_columns, term_name
 from .errors import DesignError, preview
 from .spec import ModelSpec
 
@@ -47,10 +47,18 @@ def _check_levels(layout: CellLayout, spec: ModelSpec) -> list[str]:
     return notes
 
 
+def _declared(a: str, b: str, spec: ModelSpec) -> bool:
+    """True when the spec says one of the two columns is nested in the other (directly or through others)."""
+    nesting = spec.nesting
+    return b in term_columns((a,), nesting) or a in term_columns((b,), nesting)
+
+
 def _check_nesting(layout: CellLayout, spec: ModelSpec) -> None:
-    """Raise when one grouping column is nested in (or confounded with) another."""
+    """Raise when one grouping column is nested in (or confounded with) another without being declared so."""
     for i, j in combinations(range(len(layout.columns)), 2):
         a, b = layout.columns[i], layout.columns[j]
+        if _declared(a, b, spec):
+            continue
         pairs = np.unique(layout.cell_levels[:, [i, j]], axis=0)
         per_b = np.bincount(pairs[:, 1], minlength=len(layout.levels[j]))
         per_a = np.bincount(pairs[:, 0], minlength=len(layout.levels[i]))
@@ -70,19 +78,25 @@ def _check_nesting(layout: CellLayout, spec: ModelSpec) -> None:
             f"{inner!r} is nested in {outer!r}: each level of {inner!r} occurs under one level of {outer!r} only "
             f"({', '.join(examples)}, ...). A crossed analysis cannot separate the two; analyse "
             f"factors=[{outer!r}] (the {inner!r}-to-{inner!r} variation then sits in the residual) or "
-            f"factors=[{inner!r}] alone; a nested analysis is not offered here"
+            f"factors=[{inner!r}] alone, or declare it nested=" + "{" + f"{inner!r}: {outer!r}" + "}"
+            + (f" (or subject={inner!r} when it names the unit measured repeatedly)" if inner not in spec.factors else "")
         )
 
 
 def _check_empty_cells(layout: CellLayout, spec: ModelSpec) -> list[str]:
-    factors = list(spec.factors)
-    missing = layout.missing_combinations(factors)
+    nested = set(spec.nesting)
+    factors = [f for f in spec.factors if f not in nested]
+    if len(factors) < 2 and spec.subject is None and not nested:
+        factors = list(spec.factors)
+    missing = layout.missing_combinations(factors) if factors else []
     if not missing:
         return []
     shown = preview([", ".join(f"{f}={lv}" for f, lv in zip(factors, combo)) for combo in missing], 6)
-    interactions = [t for t in model_terms(spec) if len(t) > 1]
-    if interactions:
-        bad = [term_name(t) for t in interactions if layout.missing_combinations(list(t))]
+    interactions = [t for t in model_terms(spec) if len(t) > 1 and not (set(t) & nested) and set(t) <= set(factors)]
+    bad = [term_name(t) for t in interactions if layout.missing_combinations(list(t))]
+    if interactions and not bad:
+        return []  # a fraction whose interaction terms are all complete: the layout notes describe it
+    if bad:
         raise DesignError(
             f"empty cells: no observations at {shown}. With empty cells the interaction term(s) "
             f"{', '.join(bad)} cannot be estimated in full and the marginal means of the levels involved are "
@@ -101,8 +115,8 @@ def _n_params(layout: CellLayout, spec: ModelSpec) -> int:
 
 
 def _check_replication(layout: CellLayout, cell_n: np.ndarray, spec: ModelSpec) -> list[str]:
-    if not np.all(cell_n == 1):
-        return []
+    if not np.all(cell_n == 1) or spec.is_mixed or spec.terms is not None:
+        return []  # the fit counts the df of explicit, nested and subject terms itself
     n = int(cell_n.sum())
     cols = " and ".join(repr(c) for c in layout.columns)
     if n - _n_params(layout, spec) < 1:

@@ -24,7 +24,8 @@ from .blocking import BlockingEfficiency, blocking_efficiency
 from .cellfit import SS_TYPES, CellFit, fit_cells
 from .cells import CellLayout, CellTable, layout_cells
 from .dataset import Dataset
-from .design import term_name
+from .design import fitted_terms
+from .design_layout import layout_notes
 from .design_checks import check_design
 from .distributions import f_sf, t_ppf
 from .fitrows import RowSet, row_fit
@@ -57,12 +58,12 @@ def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:
         if not zero_resid:
             F = ms / ms_e
             p = float(f_sf(F, df, fit.df_resid))
-        rows.append(TermRow(source=term_name(t), df=df, sum_sq=ss, mean_sq=ms, statistic=F, pvalue=p))
+        rows.append(TermRow(source=fit.name(t), df=df, sum_sq=ss, mean_sq=ms, statistic=F, pvalue=p))
     rows.append(TermRow(source="residual", df=fit.df_resid, sum_sq=fit.ss_resid, mean_sq=0.0 if zero_resid else ms_e))
     rows.append(TermRow(source="total (corrected)", df=fit.n - 1, sum_sq=fit.ss_total))
     notes: list[str] = []
     if ss_type == "I":
-        order = ", ".join(term_name(t) for t in fit.sequence)
+        order = ", ".join(fit.name(t) for t in fit.sequence)
         notes.append(f"Sequential sums of squares, terms entered in the order {order}.")
     elif ss_type == "II":
         notes.append("Each term adjusted for every other term that does not contain it.")
@@ -70,7 +71,16 @@ def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:
         notes.append("Each term adjusted for every other term, sum-to-zero coding.")
     if zero_resid:
         notes.append("F is undefined: the residual sum of squares is zero (the model fits every observation).")
-    return AnovaTable(rows=tuple(rows), ss_type=ss_type, coding=CODING, notes=tuple(notes))
+    notes.extend(a.sentence() for a in fit.aliased)
+    aliased = tuple((a.name, ", ".join(a.aliased_with)) for a in fit.aliased)
+    return AnovaTable(rows=tuple(rows), ss_type=ss_type, coding=CODING, notes=tuple(notes), aliased=aliased)
+
+
+def _types_agree(tables: dict[str, AnovaTable], fit: CellFit) -> bool:
+    scale = max(fit.ss_total, 1e-300)
+    return all(
+        abs(fit.ss[k][t] - fit.ss["I"][t]) <= 1e-9 * scale for k in SS_TYPES for t in fit.terms
+    )
 
 
 def _type_notes(tables: dict[str, AnovaTable], fit: CellFit, balanced: bool, alpha: float) -> list[str]:
@@ -80,12 +90,19 @@ def _type_notes(tables: dict[str, AnovaTable], fit: CellFit, balanced: bool, alp
             "same sums of squares.")
         ]
     counts = fit.stats.n
-    notes = [
-        (f"Unbalanced design: cell counts run from {int(counts.min())} to {int(counts.max())} over "
-        f"{fit.stats.k} cells (see results.cells); types I, II and III can differ.")
-    ]
+    if int(counts.min()) == int(counts.max()):
+        if _types_agree(tables, fit):
+            return [("Not every combination of levels is observed, but the fitted terms are orthogonal here: "
+                     "types I, II and III give the same sums of squares.")]
+        notes = [(f"Not every combination of levels is observed (each observed cell holds {int(counts.min())}); "
+                  "types I, II and III can differ.")]
+    else:
+        notes = [
+            (f"Unbalanced design: cell counts run from {int(counts.min())} to {int(counts.max())} over "
+            f"{fit.stats.k} cells (see results.cells); types I, II and III can differ.")
+        ]
     for t in fit.terms:
-        name = term_name(t)
+        name = fit.name(t)
         ps = {k: tables[k].row(name).pvalue for k in SS_TYPES}
         if any(p is None for p in ps.values()):
             continue
@@ -100,7 +117,7 @@ def _uncorrected(fit: CellFit) -> AnovaTable:
     gm = float(np.dot(fit.stats.n, fit.stats.mean) / fit.n) + fit.stats.offset
     ct = fit.n * gm * gm
     rows = [TermRow(source="mean (correction term)", df=1, sum_sq=ct)]
-    rows += [TermRow(source=term_name(t), df=fit.df["I"][t], sum_sq=fit.ss["I"][t]) for t in fit.terms]
+    rows += [TermRow(source=fit.name(t), df=fit.df["I"][t], sum_sq=fit.ss["I"][t]) for t in fit.terms]
     rows += [
         TermRow(source="residual", df=fit.df_resid, sum_sq=fit.ss_resid),
         TermRow(source="total (uncorrected)", df=fit.n, sum_sq=ct + fit.ss_total),
@@ -141,7 +158,7 @@ def _blocking(table: AnovaTable, fit: CellFit, spec: ModelSpec, balanced: bool) 
     if not spec.blocks:
         return None
     blk = [table.row(b) for b in spec.blocks]
-    trt = [table.row(term_name(t)) for t in fit.terms if not (len(t) == 1 and t[0] in spec.blocks)]
+    trt = [table.row(fit.name(t)) for t in fit.terms if not (len(t) == 1 and t[0] in spec.blocks)]
     eff = blocking_efficiency(
         ss_blocks=sum(r.sum_sq for r in blk), df_blocks=sum(r.df for r in blk),
         ss_resid=fit.ss_resid, df_resid=fit.df_resid, df_treatments=sum(r.df for r in trt),
@@ -207,9 +224,12 @@ def factorial_from_cells(
     ``level_stats`` (per treatment factor) default to pooling the cells.
     """
     notes = list(check_design(layout, cells.n, spec, dataset_notes))
-    fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec)
+    notes += layout_notes(layout, cells.n, spec)
+    fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec,
+                    terms=fitted_terms(spec, cells.n))
     cell_table = CellTable.from_stats(layout, cells, fit.cell_fitted)
     tables, type_notes = factorial_tables(fit, spec, cell_table.balanced)
+    notes += [a.sentence() for a in fit.aliased]
     notes += type_notes
     table = tables[spec.ss_type]
     zero = table.row("residual").mean_sq == 0.0

@@ -1,24 +1,71 @@
-"""What to fit: the response, the factors and how they enter the model."""
+"""What to fit: the response, the factors, their roles and how they enter the model."""
 
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
 from .errors import ExplorerError
 
-__all__ = ["ModelSpec"]
+__all__ = ["ModelSpec", "parse_term"]
 
 SSType = Literal["I", "II", "III"]
+
+#: Separators accepted in a term written as text: ``"A × B"``, ``"A:B"`` or ``"A*B"``.
+_TERM_SEPARATORS = ("×", ":", "*")
+
+
+def parse_term(term: str | Sequence[str], columns: Sequence[str]) -> tuple[str, ...]:
+    """A model term as a tuple of column names.
+
+    ``term`` is a tuple/list of column names, one column name, or text that joins
+    column names with ``×``, ``:`` or ``*`` (a whole column name is matched first, so a
+    column whose name contains a separator is still found).
+    """
+    if not isinstance(term, str):
+        parts = tuple(str(t) for t in term)
+    elif term in columns:
+        parts = (term,)
+    else:
+        text = term
+        for sep in _TERM_SEPARATORS[1:]:
+            text = text.replace(sep, _TERM_SEPARATORS[0])
+        parts = tuple(p.strip() for p in text.split(_TERM_SEPARATORS[0]))
+    unknown = [p for p in parts if p not in columns]
+    if not parts or unknown:
+        raise ExplorerError(
+            f"model term {term!r} names {unknown or 'no'} column(s) outside the model; "
+            f"terms combine the model's columns {list(columns)}"
+        )
+    if len(set(parts)) != len(parts):
+        raise ExplorerError(f"model term {term!r} names a column twice")
+    return parts
 
 
 @dataclass(frozen=True, kw_only=True)
 class ModelSpec:
-    """Response, treatment factors, additive block factors, interactions and SS type.
+    """Response, factors and their roles, model terms, SS type and alpha.
 
-    ``interactions=True`` crosses all treatment factors (full factorial); blocks always
-    enter additively (no block-by-treatment term), as in a randomized complete block
-    design. ``alpha`` is the level at which decisions are read.
+    Crossed fixed factors (the default): ``interactions=True`` crosses all treatment
+    factors (full factorial); ``max_order`` keeps interactions up to that many factors
+    (1 = additive); ``terms`` lists the treatment terms explicitly (tuples of column
+    names or text such as ``"N × P"``), overriding both. Blocks always enter
+    additively and first (no block-by-treatment term unless a term names one).
+
+    Roles beyond crossed fixed factors:
+
+    * ``random``: factors (or blocks) whose levels are a sample of many (operators,
+      days, lots); every term that contains one is random.
+    * ``nested``: ``{"lot": "supplier"}`` - each level of ``lot`` belongs to one level
+      of ``supplier`` (the same label under two suppliers means two different lots);
+      the term is shown as ``lot (within supplier)``.
+    * ``subject`` with ``within``: repeated measures. ``subject`` names the unit
+      measured repeatedly (panel, animal, whole plot); it is random and nested in the
+      between-subject factors (``factors`` not listed in ``within``); the subject-by-
+      within terms are random and carry the within-subject tests.
+
+    ``alpha`` is the level at which decisions are read.
     """
 
     response: str
@@ -27,33 +74,155 @@ class ModelSpec:
     interactions: bool = True
     ss_type: SSType = "II"
     alpha: float = 0.05
+    terms: tuple[tuple[str, ...], ...] | None = None
+    max_order: int | None = None
+    random: tuple[str, ...] = field(default=())
+    nested: tuple[tuple[str, tuple[str, ...]], ...] = field(default=())
+    subject: str | None = None
+    within: tuple[str, ...] = field(default=())
 
     def __post_init__(self) -> None:
-        if isinstance(self.factors, str):
-            object.__setattr__(self, "factors", (self.factors,))
-        if isinstance(self.blocks, str):
-            object.__setattr__(self, "blocks", (self.blocks,))
-        object.__setattr__(self, "factors", tuple(self.factors))
-        object.__setattr__(self, "blocks", tuple(self.blocks))
+        setf = object.__setattr__
+        for name in ("factors", "blocks", "random", "within"):
+            value = getattr(self, name)
+            setf(self, name, (value,) if isinstance(value, str) else tuple(value))
         ss = str(self.ss_type).upper()
         ss = {"1": "I", "2": "II", "3": "III"}.get(ss, ss)
         if ss not in ("I", "II", "III"):
             raise ExplorerError(f"ss_type must be 'I', 'II' or 'III' (or 1, 2, 3), not {self.ss_type!r}")
-        object.__setattr__(self, "ss_type", ss)
+        setf(self, "ss_type", ss)
         if not 0 < float(self.alpha) < 1:
             raise ExplorerError(f"alpha must be between 0 and 1, not {self.alpha!r}")
+        setf(self, "nested", _normalise_nested(self.nested))
+        self._check_roles()
+        if self.max_order is not None:
+            if isinstance(self.max_order, bool) or int(self.max_order) != self.max_order or self.max_order < 1:
+                raise ExplorerError(f"max_order must be a whole number of 1 or more, not {self.max_order!r}")
+            setf(self, "max_order", int(self.max_order))
+        if self.terms is not None:
+            if self.max_order is not None:
+                raise ExplorerError("give either terms or max_order, not both")
+            if isinstance(self.terms, str):
+                raise ExplorerError("terms is a list of terms, e.g. ['N', 'P', 'N × P']")
+            parsed = tuple(parse_term(t, self.columns) for t in self.terms)
+            self._check_terms(parsed)
+            setf(self, "terms", parsed)
 
+    # ----------------------------------------------------------------- validation
+    def _check_roles(self) -> None:
+        cols = self.factors + self.blocks
+        if len(set(cols)) != len(cols):
+            raise ExplorerError(f"a column is listed twice among factors and blocks: {list(cols)}")
+        if self.subject is not None:
+            if not isinstance(self.subject, str) or not self.subject:
+                raise ExplorerError(f"subject names one column, not {self.subject!r}")
+            if self.subject in cols:
+                raise ExplorerError(
+                    f"subject {self.subject!r} is also listed as a factor or block; the subject column is "
+                    "given only as subject="
+                )
+        elif self.within:
+            raise ExplorerError("within factors need subject= (the column that names the unit measured repeatedly)")
+        bad_within = [w for w in self.within if w not in self.factors]
+        if bad_within:
+            raise ExplorerError(f"within factors {bad_within} are not among the factors {list(self.factors)}")
+        all_cols = self.columns
+        bad_random = [r for r in self.random if r not in all_cols]
+        if bad_random:
+            raise ExplorerError(f"random {bad_random} are not among the model's columns {list(all_cols)}")
+        if self.subject is not None and self.subject in self.random:
+            raise ExplorerError(f"subject {self.subject!r} is random already; leave it out of random=")
+        bad_within_random = [w for w in self.within if w in self.random]
+        if bad_within_random:
+            raise ExplorerError(f"within factors {bad_within_random} cannot also be random")
+        for inner, parents in self.nested:
+            for c in (inner, *parents):
+                if c not in all_cols:
+                    raise ExplorerError(f"nested names {c!r}, which is not among the model's columns {list(all_cols)}")
+            if inner in parents:
+                raise ExplorerError(f"{inner!r} cannot be nested in itself")
+            if inner == self.subject:
+                raise ExplorerError(
+                    f"the subject {inner!r} is nested in the between-subject factors automatically; "
+                    "leave it out of nested="
+                )
+        inners = [i for i, _ in self.nested]
+        if len(set(inners)) != len(inners):
+            raise ExplorerError(f"a column is nested twice: {inners}; give all its parents in one entry")
+        # no cycles: follow parents
+        graph = dict(self.nested)
+        for start in graph:
+            seen = {start}
+            stack = list(graph[start])
+            while stack:
+                c = stack.pop()
+                if c in seen:
+                    raise ExplorerError(f"nested relations form a cycle through {c!r}")
+                seen.add(c)
+                stack.extend(graph.get(c, ()))
+
+    def _check_terms(self, terms: tuple[tuple[str, ...], ...]) -> None:
+        seen: set[frozenset[str]] = set()
+        for t in terms:
+            key = frozenset(t)
+            if key in seen:
+                raise ExplorerError(f"model term {' × '.join(t)!r} is listed twice")
+            seen.add(key)
+            if self.subject is not None and self.subject in t:
+                raise ExplorerError(
+                    f"term {' × '.join(t)!r} names the subject; the subject terms are added automatically"
+                )
+            nesting = self.nesting
+            for c in t:
+                clash = [p for p in nesting.get(c, ()) if p in t]
+                if clash:
+                    raise ExplorerError(
+                        f"term {' × '.join(t)!r} crosses {c!r} with {clash[0]!r}, in which it is nested; "
+                        f"write {c!r} alone (it is shown as '{c} (within {clash[0]})')"
+                    )
+        missing = [f for f in self.factors if (f,) not in terms]
+        if missing:
+            raise ExplorerError(
+                f"every factor needs its main effect among the terms; missing: {missing} "
+                "(a factor without its own term belongs out of factors=)"
+            )
+
+    # ----------------------------------------------------------------- derived
     @property
     def columns(self) -> tuple[str, ...]:
-        """Every grouping column: treatment factors then blocks."""
-        return self.factors + self.blocks
+        """Every grouping column: treatment factors, blocks, then the subject."""
+        extra = (self.subject,) if self.subject is not None else ()
+        return self.factors + self.blocks + extra
+
+    @property
+    def between(self) -> tuple[str, ...]:
+        """Factors that do not vary within a subject (all factors when there is no subject)."""
+        return tuple(f for f in self.factors if f not in self.within)
+
+    @property
+    def nesting(self) -> dict[str, tuple[str, ...]]:
+        """Each nested column and the columns it is nested in (the subject included)."""
+        out = {inner: parents for inner, parents in self.nested}
+        if self.subject is not None:
+            out[self.subject] = self.between
+        return out
+
+    @property
+    def is_mixed(self) -> bool:
+        """True when the model has random factors, nested factors or subjects."""
+        return bool(self.random or self.nested or self.subject is not None)
+
+    @property
+    def random_columns(self) -> tuple[str, ...]:
+        """Columns whose levels are a sample (``random`` plus the subject)."""
+        return self.random + ((self.subject,) if self.subject is not None else ())
 
     @property
     def is_oneway(self) -> bool:
-        return len(self.factors) == 1 and not self.blocks
+        return len(self.factors) == 1 and not self.blocks and not self.is_mixed and self.terms is None
 
     def to_dict(self) -> dict[str, Any]:
-        return {
+        d: dict[str, Any] = {
             "response": self.response,
             "factors": list(self.factors),
             "blocks": list(self.blocks),
@@ -61,9 +230,23 @@ class ModelSpec:
             "ss_type": self.ss_type,
             "alpha": self.alpha,
         }
+        # New roles are written only when used, so files of plain designs stay as they were.
+        if self.terms is not None:
+            d["terms"] = [list(t) for t in self.terms]
+        if self.max_order is not None:
+            d["max_order"] = self.max_order
+        if self.random:
+            d["random"] = list(self.random)
+        if self.nested:
+            d["nested"] = {inner: list(parents) for inner, parents in self.nested}
+        if self.subject is not None:
+            d["subject"] = self.subject
+            d["within"] = list(self.within)
+        return d
 
     @classmethod
     def from_dict(cls, d: dict[str, Any]) -> "ModelSpec":
+        terms = d.get("terms")
         return cls(
             response=d["response"],
             factors=tuple(d["factors"]),
@@ -71,4 +254,33 @@ class ModelSpec:
             interactions=bool(d.get("interactions", True)),
             ss_type=d.get("ss_type", "II"),
             alpha=float(d.get("alpha", 0.05)),
+            terms=None if terms is None else tuple(terms),
+            max_order=d.get("max_order"),
+            random=tuple(d.get("random", ())),
+            nested=d.get("nested", ()),  # type: ignore[arg-type]
+            subject=d.get("subject"),
+            within=tuple(d.get("within", ())),
         )
+
+
+def _normalise_nested(nested: Any) -> tuple[tuple[str, tuple[str, ...]], ...]:
+    """``{"lot": "supplier"}`` or pairs -> ``(("lot", ("supplier",)),)``."""
+    if not nested:
+        return ()
+    if isinstance(nested, Mapping):
+        items = list(nested.items())
+    else:
+        try:
+            items = [tuple(x) for x in nested]
+        except TypeError:
+            raise ExplorerError(f"nested is a mapping such as {{'lot': 'supplier'}}, not {nested!r}") from None
+    out = []
+    for item in items:
+        if len(item) != 2 or not isinstance(item[0], str):
+            raise ExplorerError(f"nested is a mapping such as {{'lot': 'supplier'}}, not {nested!r}")
+        inner, parents = item
+        parents_t = (parents,) if isinstance(parents, str) else tuple(str(p) for p in parents)
+        if not parents_t:
+            raise ExplorerError(f"{inner!r} is nested in nothing; give the column it is nested in")
+        out.append((inner, parents_t))
+    return tuple(out)

@@ -80,6 +80,14 @@ class Study:
     alpha : level at which decisions are read.
     id_column : column of unique row labels (panel, sample or plot ids) used as row ids
         in edits, charts and saved files; by default the index (or row positions).
+    terms : the treatment terms explicitly, e.g. ``["N", "P", "K", "N × P"]``.
+    max_order : keep interactions of at most this many factors (1 = additive).
+    random : factors or blocks whose levels are a sample of many (operators, days, lots).
+    nested : ``{"lot": "supplier"}``: each lot belongs to one supplier.
+    subject : the unit measured repeatedly (panel, animal, whole plot); random, nested in
+        the between-subject factors.
+    within : the factors that vary within a subject (repeated-measures factors).
+    See :class:`~explorer.core.spec.ModelSpec` for how these build the model.
     """
 
     def __init__(
@@ -93,11 +101,20 @@ class Study:
         ss_type: str = "II",
         alpha: float = 0.05,
         id_column: str | None = None,
+        terms: Sequence[str | Sequence[str]] | None = None,
+        max_order: int | None = None,
+        random: str | Sequence[str] = (),
+        nested: dict[str, str | Sequence[str]] | None = None,
+        subject: str | None = None,
+        within: str | Sequence[str] = (),
     ) -> None:
         factors_t = (factors,) if isinstance(factors, str) else tuple(factors)
         blocks_t = (blocks,) if isinstance(blocks, str) else tuple(blocks)
         spec = ModelSpec(response=response, factors=factors_t, blocks=blocks_t,
-                         interactions=interactions, ss_type=ss_type, alpha=alpha)  # type: ignore[arg-type]
+                         interactions=interactions, ss_type=ss_type, alpha=alpha,  # type: ignore[arg-type]
+                         terms=None if terms is None else tuple(terms),  # type: ignore[arg-type]
+                         max_order=max_order, random=random, nested=nested or (),  # type: ignore[arg-type]
+                         subject=subject, within=within)  # type: ignore[arg-type]
         self._init(build_dataset(data, response, spec.columns, id_column), spec,
                    data_source=data if isinstance(data, (str, Path)) else None)
 

@@ -84,6 +84,8 @@ class AnovaTable:
     ss_type: str = "I"
     coding: str = "treatment"
     notes: tuple[str, ...] = field(default=())
+    #: (term, what it is aliased with) for terms left out because the cells cannot separate them.
+    aliased: tuple[tuple[str, str], ...] = field(default=())
 
     def row(self, source: str) -> TermRow:
         for r in self.rows:
@@ -104,4 +106,13 @@ class AnovaTable:
 
     def _repr_html_(self) -> str:
         caption = f"{self.title} (type {self.ss_type} sums of squares)"
-        return html_table(self.to_frame(), caption, self.notes)
+        out = html_table(self.to_frame(), caption, self.notes)
+        if self.aliased:  # named inside the table, below the fitted terms
+            width = len(self.to_frame().columns)
+            extra = "".join(
+                f"<tr><td>{html.escape(name)}</td><td colspan='{width - 1}'>not estimable: aliased with "
+                f"{html.escape(other)} (left out of the fit)</td></tr>"
+                for name, other in self.aliased
+            )
+            out = out.replace("</tbody>", extra + "</tbody>", 1)
+        return out
