@@ -26,6 +26,7 @@ from .cells import CellLayout, CellTable, layout_cells
 from .dataset import Dataset
 from .design import fitted_terms
 from .design_layout import layout_notes
+from .errors import DesignError
 from .design_checks import check_design
 from .distributions import f_sf, t_ppf
 from .fitrows import RowSet, row_fit
@@ -223,6 +224,8 @@ def factorial_from_cells(
     rows, a sample of them, or none), their ``group`` codes indexing the cells.
     ``level_stats`` (per treatment factor) default to pooling the cells.
     """
+    if spec.random or spec.subject is not None:  # pragma: no cover - replaced by the mixed-model tables
+        raise DesignError("random factors and subjects need tests against their own error terms, not yet built")
     notes = list(check_design(layout, cells.n, spec, dataset_notes))
     notes += layout_notes(layout, cells.n, spec)
     fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec,
