@@ -175,10 +175,16 @@ def _check_confidence(confidence: float) -> float:
 
 
 def _level_stats(results: Results) -> tuple[GroupStats, np.ndarray, np.ndarray, np.ndarray]:
+    """Group statistics, counts, level means on the *shifted* scale and variances.
+
+    Differences are taken between shifted means (``gs.mean``), never between the means
+    with the offset added back, which at a large offset would have lost the digits the
+    difference needs; only the displayed estimates carry the offset.
+    """
     require_oneway(results, "this comparison of level means")
     gs = results.groups
     n = gs.n.astype(float)
-    return gs, n, gs.original_means, gs.variances()
+    return gs, n, gs.mean, gs.variances()
 
 
 def _balance_note(n: np.ndarray) -> tuple[bool, tuple[str, ...]]:
@@ -200,13 +206,14 @@ def simultaneous_pairs(
     *,
     confidence: float = 0.95,
     method: Literal["tukey", "bonferroni", "none"] = "tukey",
+    offset: float = 0.0,
 ) -> PairwiseTable:
     """All pairwise differences of ``estimates`` with simultaneous intervals.
 
     Parameters
     ----------
     labels : names of the k estimates (level means or least-squares means).
-    estimates : the k estimates.
+    estimates : the k estimates, on a scale shifted by ``offset``.
     se_diff : k x k matrix; ``se_diff[i, j]`` is the standard error of
         ``estimates[i] - estimates[j]`` (only the upper triangle is read).
     df : degrees of freedom of the error variance behind the standard errors.
@@ -214,6 +221,8 @@ def simultaneous_pairs(
     method : 'tukey' (studentized range with k means: Tukey when all standard errors
         of differences are equal, Tukey-Kramer otherwise), 'bonferroni' (t with
         ``alpha / m``) or 'none' (per-comparison t).
+    offset : added back to the estimates the table shows; the differences are taken
+        before, so a large offset costs no digits.
 
     Notes
     -----
@@ -271,7 +280,7 @@ def simultaneous_pairs(
         raise ExplorerError(f"method must be 'tukey', 'bonferroni' or 'none', not {method!r}")
     half = crit * se
     return PairwiseTable(
-        method=name, adjustment=adjustment, family_size=m, labels=labels, estimates=_ro(est),
+        method=name, adjustment=adjustment, family_size=m, labels=labels, estimates=_ro(est + offset),
         first=tuple(labels[a] for a in i), second=tuple(labels[b] for b in j),
         difference=_ro(d), se=_ro(se), df=_ro(dfs), statistic=_ro(t), pvalue=_ro(p),
         ci_low=_ro(np.where(bad, np.nan, d - half)), ci_high=_ro(np.where(bad, np.nan, d + half)),
@@ -288,7 +297,8 @@ def tukey(results: Results, *, confidence: float = 0.95) -> PairwiseTable:
     gs, n, means, _ = _level_stats(results)
     msw = results.ms_resid or 0.0
     se = np.sqrt(msw * (1 / n[:, None] + 1 / n[None, :]))
-    table = simultaneous_pairs(gs.labels, means, se, results.df_resid, confidence=confidence, method="tukey")
+    table = simultaneous_pairs(gs.labels, means, se, results.df_resid, confidence=confidence, method="tukey",
+                               offset=gs.offset)
     balanced, bnote = _balance_note(n)
     name = "Tukey" if balanced else "Tukey-Kramer"
     return _replace(table, method=name, notes=table.notes + bnote)
@@ -335,7 +345,7 @@ def games_howell(results: Results, *, confidence: float = 0.95) -> PairwiseTable
         hi[ok] = d[ok] + crit * se[ok]
     return PairwiseTable(
         method="Games-Howell", adjustment=f"studentized range, {k} means, Welch df per pair",
-        family_size=len(d), labels=gs.labels, estimates=_ro(means),
+        family_size=len(d), labels=gs.labels, estimates=_ro(gs.original_means),
         first=tuple(gs.labels[x] for x in i), second=tuple(gs.labels[x] for x in j),
         difference=_ro(d), se=_ro(np.where(bad, np.nan, se)), df=_ro(np.where(bad, np.nan, dfs)),
         statistic=_ro(np.where(bad, np.nan, t)), pvalue=_ro(p), ci_low=_ro(lo), ci_high=_ro(hi),
@@ -378,7 +388,7 @@ def pairwise_t(results: Results, *, adjust: Adjustment = "holm", confidence: flo
     names = {"holm": "Holm", "bonferroni": "Bonferroni", "none": "none (per comparison)"}
     return PairwiseTable(
         method="pairwise t (pooled variance)", adjustment=names[adjust_l], family_size=m,
-        labels=gs.labels, estimates=_ro(means), first=tuple(gs.labels[x] for x in i),
+        labels=gs.labels, estimates=_ro(gs.original_means), first=tuple(gs.labels[x] for x in i),
         second=tuple(gs.labels[x] for x in j), difference=_ro(d), se=_ro(se), df=_ro(np.full(m, float(df))),
         statistic=_ro(t), pvalue=_ro(p), ci_low=_ro(d - crit * se), ci_high=_ro(d + crit * se),
         confidence=confidence, notes=tuple(notes),
@@ -482,7 +492,7 @@ def dunnett(
         notes.append("One-sided intervals (treatment minus control is at most the upper bound).")
     return PairwiseTable(
         method=f"Dunnett (control {labels[c0]})", adjustment=f"Dunnett multivariate t, {m} comparisons",
-        family_size=m, labels=labels, estimates=_ro(means), first=tuple(labels[x] for x in idx),
+        family_size=m, labels=labels, estimates=_ro(gs.original_means), first=tuple(labels[x] for x in idx),
         second=tuple(labels[c0] for _ in idx), difference=_ro(d), se=_ro(se), df=_ro(np.full(m, df)),
         statistic=_ro(t), pvalue=_ro(np.clip(p, 0.0, 1.0)), ci_low=_ro(lo), ci_high=_ro(hi),
         confidence=confidence, alternative=alternative, notes=tuple(notes),

@@ -44,6 +44,9 @@ class MarginalMeans:
 
     ``covariance`` is the estimates' covariance matrix (residual mean square included);
     ``raw_mean`` and ``n`` are the plain level means and counts, for comparison.
+    ``offset`` is the response offset taken out before the fit: ``estimate - offset``
+    computed on the shifted scale is kept in ``shifted_estimate``, and differences are
+    taken from it so that a large offset costs no digits.
     """
 
     factor: str
@@ -58,6 +61,8 @@ class MarginalMeans:
     df: int
     confidence: float = 0.95
     notes: tuple[str, ...] = ()
+    offset: float = 0.0
+    shifted_estimate: np.ndarray | None = None
 
     def compare(self, confidence: float | None = None) -> PairwiseTable:
         """Tukey-Kramer simultaneous comparisons of every pair of these means.
@@ -68,7 +73,11 @@ class MarginalMeans:
         var = np.diag(self.covariance)
         se_diff = np.sqrt(np.maximum(var[:, None] + var[None, :] - 2 * self.covariance, 0.0))
         conf = self.confidence if confidence is None else confidence
-        return simultaneous_pairs(self.labels, self.estimate, se_diff, self.df, confidence=conf, method="tukey")
+        if self.shifted_estimate is None:
+            est, offset = self.estimate, 0.0
+        else:
+            est, offset = self.shifted_estimate, self.offset
+        return simultaneous_pairs(self.labels, est, se_diff, self.df, confidence=conf, method="tukey", offset=offset)
 
     def to_frame(self) -> pd.DataFrame:
         pct = f"{self.confidence:.0%}"
@@ -99,11 +108,13 @@ def marginal_means(
     L = np.zeros((len(labels), design.n_params))
     L[:, 0] = 1.0
     L[:, design.slices[(factor,)]] = contrast
-    est = L @ fit.coef + fit.stats.offset
+    shifted = L @ fit.coef
+    est = shifted + fit.stats.offset
     cov = ms_resid * (L @ fit.cov_unscaled @ L.T)
     se = np.sqrt(np.maximum(np.diag(cov), 0.0))
     half = t_ppf(0.5 + confidence / 2, fit.df_resid) * se
     return MarginalMeans(
         factor=factor, labels=labels, estimate=est, se=se, ci_low=est - half, ci_high=est + half,
         covariance=cov, raw_mean=raw_mean, n=n, df=fit.df_resid, confidence=confidence,
+        offset=float(fit.stats.offset), shifted_estimate=shifted,
     )
