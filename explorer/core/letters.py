@@ -3,8 +3,12 @@
 Levels that share a letter are not declared different by the table's method at the
 chosen alpha. Built with Piepho's insert-and-absorb algorithm: start with one column
 holding every level; for each significant pair split every column that holds both
-into two (one without each member); then drop columns contained in another. Levels are
-listed from the largest estimate down, and letters are handed out in that order.
+into two (one without each member); then drop columns contained in another. Insert and
+absorb can leave redundant letters, so Piepho's final sweep follows: a level loses a
+letter when every level it shares that letter with also shares another letter with it
+(and it keeps at least one), so no letter can be removed without changing what the
+display says. Levels are listed from the largest estimate down, and letters are handed
+out in that order.
 Pairs the table did not test (e.g. two treatments in a Dunnett table) count as not
 different, and the result says so.
 
@@ -65,6 +69,25 @@ class LetterDisplay:
         return html_table(self.to_frame(), cap, self.notes)
 
 
+def _sweep(columns: list[frozenset[str]], rank: dict[str, int]) -> list[frozenset[str]]:
+    """Piepho's (2004) sweep: remove every letter that is redundant, then empty columns.
+
+    A level's entry in a column is redundant when the level has another letter and every
+    other level of the column shares a further column with it. Removing entries only
+    lowers sharing, so an entry kept at its turn stays needed: one pass in column order
+    leaves a display in which no single letter can be removed.
+    """
+    cols = [set(c) for c in columns]
+    for ci, col in enumerate(cols):
+        for lab in sorted(col, key=rank.__getitem__):
+            others = [o for oi, o in enumerate(cols) if oi != ci and lab in o]
+            if others and all(any(j in o for o in others) for j in col if j != lab):
+                col.discard(lab)
+    kept = [frozenset(c) for c in cols if c]
+    kept.sort(key=lambda c: sorted(rank[x] for x in c))
+    return kept
+
+
 def compact_letters(table: PairwiseTable, *, alpha: float = 0.05) -> LetterDisplay:
     """Letters for the levels of ``table`` from its significant pairs at ``alpha`` (Piepho 2004)."""
     if not 0 < alpha < 1:
@@ -89,6 +112,7 @@ def compact_letters(table: PairwiseTable, *, alpha: float = 0.05) -> LetterDispl
         columns = [c for c in uniq if not any(c < o for o in uniq)]
     columns = [c for c in columns if c]
     columns.sort(key=lambda c: sorted(rank[x] for x in c))
+    columns = _sweep(columns, rank)
     letters = {lab: "" for lab in labels}
     for i, col in enumerate(columns):
         for lab in col:
