@@ -20,7 +20,7 @@ from explorer.core.effect_sizes import effect_sizes, noncentrality_interval
 
 @pytest.fixture(scope="module")
 def nist():
-    return effect_sizes(study_from_groups(NIST_TUKEY_GROUPS[:3]).results)
+    return effect_sizes(study_from_groups(NIST_TUKEY_GROUPS[:3]).results, confidence=0.95)
 
 
 def test_estimates_from_handbook_partition(nist) -> None:
@@ -47,11 +47,13 @@ def test_interval_inverts_noncentral_f(nist) -> None:
 def test_interval_matches_statsmodels() -> None:
     """statsmodels confint_effectsize_oneway on unbalanced data: nc, f and eta intervals
     (its ``ci_eta`` is for eta, the square root of the proportion; statsmodels solves to
-    about 1e-4 relative)."""
+    about 1e-4 relative). The default interval is 1 - 2 alpha = 90% at alpha 0.05
+    (Steiger 2004), so statsmodels is called with alpha=0.10."""
     res = study_from_groups(random_groups([8, 11, 9, 14], seed=5, shift=1.5)).results
     assert res.pvalue() < 0.01
     ours = effect_sizes(res)
-    ref = confint_effectsize_oneway(res.statistic(), (3, res.df_resid), nobs=res.n_used, alpha=0.05)
+    assert ours.confidence == pytest.approx(0.90)
+    ref = confint_effectsize_oneway(res.statistic(), (3, res.df_resid), nobs=res.n_used, alpha=0.10)
     np.testing.assert_allclose(ours.ci_lambda, ref.ci_nc, rtol=1e-3)
     np.testing.assert_allclose(ours.ci_f, ref.ci_f, rtol=1e-3)
     np.testing.assert_allclose(ours.ci_proportion, np.square(ref.ci_eta), rtol=1e-3)

@@ -153,7 +153,8 @@ def run_battery(
     results: Results,
     *,
     alpha: float | None = None,
-    confidence: float = 0.95,
+    confidence: float | None = None,
+    effect_confidence: float | None = None,
     levene_center: Literal["median", "mean", "trimmed"] = "median",
     letters_from: Literal["tukey", "games-howell", "pairwise-t"] = "tukey",
     pairwise_adjust: Literal["holm", "bonferroni", "none"] = "holm",
@@ -170,7 +171,10 @@ def run_battery(
     Parameters
     ----------
     alpha : level for decisions, letters and screens (the spec's alpha by default).
-    confidence : coverage of the comparison and effect-size intervals.
+    confidence : coverage of the comparison intervals (``1 - alpha`` by default, so that
+        an interval excludes zero exactly when its pair is declared different).
+    effect_confidence : coverage of the effect-size intervals (``1 - 2 alpha`` by
+        default, the interval that matches the F test; Steiger 2004).
     levene_center : centre of Levene's test ('median' = Brown-Forsythe).
     letters_from : which comparison table the letters are built from.
     pairwise_adjust : adjustment of the pairwise t table ('holm', 'bonferroni', 'none').
@@ -189,6 +193,7 @@ def run_battery(
         raise ExplorerError(f"alpha must be between 0 and 1, not {alpha!r}")
     if letters_from not in ("tukey", "games-howell", "pairwise-t"):
         raise ExplorerError(f"letters_from must be 'tukey', 'games-howell' or 'pairwise-t', not {letters_from!r}")
+    confidence = 1 - a if confidence is None else float(confidence)
     spread = levene(results, center=levene_center)
     normal = shapiro_residuals(results)
     tk = tukey(results, confidence=confidence)
@@ -203,13 +208,14 @@ def run_battery(
             "sizes; Tukey's table uses Kramer's standard errors and is named Tukey-Kramer."
         )
     options: tuple[tuple[str, object], ...] = (
-        ("alpha", a), ("confidence", confidence), ("levene_center", levene_center),
+        ("alpha", a), ("confidence", confidence), ("effect_confidence", effect_confidence),
+        ("levene_center", levene_center),
         ("letters_from", letters_from), ("pairwise_adjust", pairwise_adjust), ("control", control),
         ("dunnett_alternative", dunnett_alternative), ("permutations", int(permutations)), ("seed", int(seed)),
         ("effect_f", effect_f), ("target_power", target_power), ("robust_cutoff", robust_cutoff),
     )
     try:
-        sizes: EffectSizes | None = effect_sizes(results, confidence=confidence)
+        sizes: EffectSizes | None = effect_sizes(results, confidence=effect_confidence, alpha=a)
     except ExplorerError as exc:
         sizes = None
         notes.append(f"No effect sizes: {exc}.")

@@ -174,6 +174,12 @@ def _check_confidence(confidence: float) -> float:
     return float(confidence)
 
 
+def _confidence_for(results: Results, confidence: float | None) -> float:
+    """``confidence``, or ``1 - alpha`` of the analysis when not given, so that an interval
+    excludes zero exactly when its test rejects at the alpha the decisions and letters use."""
+    return _check_confidence(1 - results.spec.alpha if confidence is None else confidence)
+
+
 def _level_stats(results: Results) -> tuple[GroupStats, np.ndarray, np.ndarray, np.ndarray]:
     """Group statistics, counts, level means on the *shifted* scale and variances.
 
@@ -288,12 +294,14 @@ def simultaneous_pairs(
     )
 
 
-def tukey(results: Results, *, confidence: float = 0.95) -> PairwiseTable:
+def tukey(results: Results, *, confidence: float | None = None) -> PairwiseTable:
     """Tukey (equal sizes) / Tukey-Kramer (unequal sizes) comparisons of all level means.
 
     Uses the residual mean square of the one-way model. Always the same computation:
-    only the name in the table changes with the balance of the groups.
+    only the name in the table changes with the balance of the groups. Intervals are
+    ``1 - alpha`` of the analysis unless ``confidence`` is given.
     """
+    confidence = _confidence_for(results, confidence)
     gs, n, means, _ = _level_stats(results)
     msw = results.ms_resid or 0.0
     se = np.sqrt(msw * (1 / n[:, None] + 1 / n[None, :]))
@@ -310,14 +318,15 @@ def _replace(table: PairwiseTable, **changes: object) -> PairwiseTable:
     return replace(table, **changes)  # type: ignore[arg-type]
 
 
-def games_howell(results: Results, *, confidence: float = 0.95) -> PairwiseTable:
+def games_howell(results: Results, *, confidence: float | None = None) -> PairwiseTable:
     """Games-Howell comparisons: unequal variances, Welch df per pair, studentized range.
 
     ``se_ij = sqrt(v_i/n_i + v_j/n_j)``; df by Welch-Satterthwaite; p from the
     studentized range with k means at ``q = sqrt(2) |d| / se_ij`` (Games and Howell 1976).
     Levels with one observation have no variance; their comparisons are undefined.
+    Intervals are ``1 - alpha`` of the analysis unless ``confidence`` is given.
     """
-    confidence = _check_confidence(confidence)
+    confidence = _confidence_for(results, confidence)
     gs, n, means, var = _level_stats(results)
     k = gs.k
     i, j = _pairs(k)
@@ -353,14 +362,15 @@ def games_howell(results: Results, *, confidence: float = 0.95) -> PairwiseTable
     )
 
 
-def pairwise_t(results: Results, *, adjust: Adjustment = "holm", confidence: float = 0.95) -> PairwiseTable:
+def pairwise_t(results: Results, *, adjust: Adjustment = "holm", confidence: float | None = None) -> PairwiseTable:
     """Pairwise t tests on the pooled residual variance, adjusted by Holm, Bonferroni or none.
 
     Holm's step-down method has no matching simultaneous intervals; its table shows the
     Bonferroni intervals (valid, wider) and says so. With ``adjust='none'`` the intervals
-    are per comparison.
+    are per comparison. Intervals are ``1 - alpha`` of the analysis unless ``confidence``
+    is given.
     """
-    confidence = _check_confidence(confidence)
+    confidence = _confidence_for(results, confidence)
     adjust_l = str(adjust).lower()
     if adjust_l not in ("holm", "bonferroni", "none"):
         raise ExplorerError(f"adjust must be 'holm', 'bonferroni' or 'none', not {adjust!r}")
@@ -433,7 +443,7 @@ def dunnett(
     control: str,
     *,
     alternative: Alternative = "two-sided",
-    confidence: float = 0.95,
+    confidence: float | None = None,
 ) -> PairwiseTable:
     """Dunnett's comparisons of every level with a control, two- or one-sided.
 
@@ -441,9 +451,10 @@ def dunnett(
     ``'less'`` treatment < control. Adjusted p-values are single-step:
     ``P(max T > |t_i|)`` under the joint multivariate t of the family, computed by
     Dunnett's (1955) one-factor product integral with deterministic quadrature (the
-    same outer grid as :mod:`.studentized_range`).
+    same outer grid as :mod:`.studentized_range`). Intervals are ``1 - alpha`` of the
+    analysis unless ``confidence`` is given.
     """
-    confidence = _check_confidence(confidence)
+    confidence = _confidence_for(results, confidence)
     if alternative not in ("two-sided", "greater", "less"):
         raise ExplorerError(f"alternative must be 'two-sided', 'greater' or 'less', not {alternative!r}")
     gs, n, means, _ = _level_stats(results)

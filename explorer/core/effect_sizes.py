@@ -16,6 +16,13 @@ the upper and the lower ``(1 - confidence)/2`` quantile, then ``f^2 = lambda / N
 and ``P = lambda / (lambda + N)`` (Steiger 2004). When the observed F is so small that
 no positive ``lambda`` puts it below the upper quantile, the lower limit is zero.
 
+Which interval: Steiger (2004, sec. "Confidence intervals and significance tests") shows
+that the ``1 - 2 alpha`` interval, not the ``1 - alpha`` one, is the one whose lower
+limit is above zero exactly when the F test rejects at ``alpha`` (the F test is
+one-sided). So the interval shown by default is ``1 - 2 alpha`` (90% at alpha 0.05),
+and the statement "the interval excludes zero" (``excludes_zero``) always reads that
+interval, whatever ``confidence`` is asked for.
+
 References
 ----------
 Steiger, J. H. (2004). Beyond the F test: effect size confidence intervals and tests
@@ -42,7 +49,7 @@ from .tables import html_table
 if TYPE_CHECKING:
     from .results import Results
 
-__all__ = ["EffectSizes", "effect_sizes", "noncentrality_interval"]
+__all__ = ["EffectSizes", "effect_sizes", "noncentrality_interval", "confidence_matching_test", "zero_statement"]
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -52,6 +59,8 @@ class EffectSizes:
     ``ci_proportion`` bounds the population proportion of variance explained (estimated
     by eta2, omega2 and epsilon2); ``ci_f`` bounds Cohen's f; ``ci_lambda`` the
     noncentrality. ``raw`` keeps omega2 and epsilon2 before the floor at zero.
+    ``excludes_zero`` says whether the ``1 - 2 alpha`` interval, the one that matches the
+    F test at ``alpha``, excludes zero (``None`` when there is no F test).
     """
 
     eta_squared: float
@@ -67,6 +76,8 @@ class EffectSizes:
     df_den: int
     raw: tuple[tuple[str, float], ...] = ()
     notes: tuple[str, ...] = field(default=())
+    alpha: float | None = None
+    excludes_zero: bool | None = None
 
     def to_frame(self) -> pd.DataFrame:
         pct = f"{self.confidence:.0%}"
@@ -114,9 +125,40 @@ def noncentrality_interval(f_obs: float, df1: float, df2: float, confidence: flo
     return solve(lower_p), solve(upper_p)
 
 
-def effect_sizes(results: Results, *, confidence: float = 0.95) -> EffectSizes:
-    """Eta, omega and epsilon squared and Cohen's f, with noncentral-F intervals (see module notes)."""
+def confidence_matching_test(alpha: float) -> float:
+    """``1 - 2 alpha``: the coverage whose noncentrality interval excludes zero exactly when
+    the F test rejects at ``alpha`` (Steiger 2004)."""
+    if not 0 < alpha < 0.5:
+        raise ExplorerError(f"an interval that matches the F test needs alpha between 0 and 0.5, not {alpha!r}")
+    return 1 - 2 * alpha
+
+
+def zero_statement(f_obs: float, df1: float, df2: float, alpha: float, what: str = "the effect") -> tuple[bool, str]:
+    """Whether the ``1 - 2 alpha`` noncentrality interval excludes zero, and the sentence that says so.
+
+    Its lower limit is above zero exactly when ``P(F >= f_obs; lambda = 0) < alpha``
+    (Steiger 2004), so the sentence never contradicts the F test.
+    """
+    conf = confidence_matching_test(alpha)
+    lo = noncentrality_interval(f_obs, df1, df2, conf)[0]
+    pct = f"{conf:.0%}"
+    if lo > 0:
+        return True, (f"The {pct} interval of {what} (1 - 2 alpha, which matches the F test at alpha {alpha:g}; "
+                      "Steiger 2004) excludes zero, as the F test does.")
+    return False, (f"The {pct} interval of {what} (1 - 2 alpha, which matches the F test at alpha {alpha:g}; "
+                   "Steiger 2004) reaches zero: the F test does not exclude no effect.")
+
+
+def effect_sizes(results: Results, *, confidence: float | None = None, alpha: float | None = None) -> EffectSizes:
+    """Eta, omega and epsilon squared and Cohen's f, with noncentral-F intervals (see module notes).
+
+    ``alpha`` defaults to the analysis alpha; ``confidence`` of the intervals shown to
+    ``1 - 2 alpha`` (the interval that matches the F test, Steiger 2004).
+    """
     require_oneway(results, "these effect sizes")
+    a = results.spec.alpha if alpha is None else float(alpha)
+    if confidence is None:
+        confidence = confidence_matching_test(a)
     gs = results.groups
     ssb, ssw = gs.ss_between, gs.ss_within
     sst = ssb + ssw
@@ -137,6 +179,7 @@ def effect_sizes(results: Results, *, confidence: float = 0.95) -> EffectSizes:
         )
     cohens_f = float(np.sqrt(eta2 / (1 - eta2))) if eta2 < 1 else None
     ci_p = ci_f = ci_l = None
+    excludes: bool | None = None
     f_stat = results.partition.row(results.main_term).statistic
     if f_stat is None:
         notes.append("No interval: the F statistic is undefined (zero residual sum of squares).")
@@ -147,10 +190,12 @@ def effect_sizes(results: Results, *, confidence: float = 0.95) -> EffectSizes:
         ci_l = (lo, hi)
         ci_p = (lo / (lo + n), hi / (hi + n))
         ci_f = (float(np.sqrt(lo / n)), float(np.sqrt(hi / n)))
-        if lo == 0:
-            notes.append("The lower limit is 0: the F test does not exclude no effect at this confidence.")
+        if 0 < a < 0.5:
+            excludes, sentence = zero_statement(float(f_stat), df1, df2, a, "the proportion of variance explained")
+            notes.append(sentence)
     return EffectSizes(
         eta_squared=float(eta2), omega_squared=float(omega2), epsilon_squared=float(eps2), cohens_f=cohens_f,
         ci_proportion=ci_p, ci_f=ci_f, ci_lambda=ci_l, confidence=confidence, n=n, df_num=df1, df_den=df2,
         raw=(("omega squared", float(omega_raw)), ("epsilon squared", float(eps_raw))), notes=tuple(notes),
+        alpha=a, excludes_zero=excludes,
     )

@@ -179,7 +179,7 @@ def fit_factorial(
     *,
     positions: np.ndarray,
     dropped: tuple = (),
-    confidence: float = 0.95,
+    confidence: float | None = None,
 ) -> Results:
     """Analyse the kept rows ``positions`` of ``view`` with the multi-factor model ``spec``.
 
@@ -214,7 +214,7 @@ def factorial_from_cells(
     level_stats: list[GroupStats] | None = None,
     dataset_notes: tuple[str, ...] = (),
     dropped: tuple = (),
-    confidence: float = 0.95,
+    confidence: float | None = None,
     method: str | None = None,
 ) -> Results:
     """Multi-factor results from cell statistics alone (the rows-free entry point).
@@ -222,10 +222,13 @@ def factorial_from_cells(
     ``cells`` are the statistics of the observed cells of ``layout`` (in its order);
     ``rows`` are the rows whose fitted values and residuals the results report (all kept
     rows, a sample of them, or none), their ``group`` codes indexing the cells.
-    ``level_stats`` (per treatment factor) default to pooling the cells.
+    ``level_stats`` (per treatment factor) default to pooling the cells. Intervals (level
+    and least-squares means) are ``1 - alpha`` of ``spec`` unless ``confidence`` is given.
     """
     if spec.random or spec.subject is not None:  # pragma: no cover - replaced by the mixed-model tables
         raise DesignError("random factors and subjects need tests against their own error terms, not yet built")
+    if confidence is None:  # intervals follow the analysis alpha
+        confidence = 1 - spec.alpha
     notes = list(check_design(layout, cells.n, spec, dataset_notes))
     notes += layout_notes(layout, cells.n, spec)
     fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec,

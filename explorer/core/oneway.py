@@ -82,7 +82,7 @@ def fit_oneway(
     offset: float,
     spec: ModelSpec,
     dropped: tuple = (),
-    confidence: float = 0.95,
+    confidence: float | None = None,
 ) -> Results:
     """One-way analysis of the shifted response ``y`` grouped by ``codes`` into ``labels``.
 
@@ -100,15 +100,19 @@ def oneway_from_stats(
     *,
     rows: RowSet,
     dropped: tuple = (),
-    confidence: float = 0.95,
+    confidence: float | None = None,
     method: str = "least squares, one-way (group sufficient statistics)",
 ) -> Results:
     """One-way results from group statistics alone (the rows-free entry point).
 
     ``full`` holds every level of the factor (empty ones allowed); ``rows`` are the rows
     whose fitted values and residuals the results report (all kept rows, a sample of
-    them, or none), their ``group`` codes indexing ``full``'s levels.
+    them, or none), their ``group`` codes indexing ``full``'s levels. Intervals (level
+    means, the two-level difference) are ``1 - alpha`` of ``spec`` unless ``confidence``
+    is given.
     """
+    if confidence is None:  # intervals follow the analysis alpha
+        confidence = 1 - spec.alpha
     factor = spec.factors[0]
     offset = full.offset
     notes: list[str] = []

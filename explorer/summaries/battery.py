@@ -42,7 +42,8 @@ def summary_battery(study: Any, **options: Any) -> Battery:
     control = opts["control"]
     notes = [n for n in part.notes if not n.startswith(("No effect sizes", "No power", "Group sizes"))]
     try:
-        sizes = effect_sizes(full, confidence=conf)
+        eff_conf = opts.get("effect_confidence")
+        sizes = effect_sizes(full, confidence=None if eff_conf is None else float(eff_conf), alpha=a)  # type: ignore[arg-type]
     except ExplorerError as exc:
         sizes = None
         notes.append(f"No effect sizes: {exc}.")
