@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .mixed_guard import refuse_mixed
 from .alternatives import (
     STATUS_NOTES,
     OnewayInput,
@@ -192,6 +193,7 @@ def case_deletion_scan(study: object, *, alpha: float | None = None, record: boo
     The study is not changed; the ``n`` alternatives examined are added to its
     disclosure count (``record=False`` skips that, for internal re-use).
     """
+    refuse_mixed(study, "case-deletion scan")
     if not study.spec.is_oneway:  # type: ignore[attr-defined]
         return _factorial_scan(study, alpha, record)
     data = oneway_input(study, "the case-deletion scan")

@@ -30,7 +30,7 @@ Golub, G. H. and Van Loan, C. F. (2013). Matrix Computations, 4th ed., sec. 5.3
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -110,6 +110,24 @@ def _projector(xw: np.ndarray, zw: np.ndarray):
         return cache[key]
 
     return fitted
+
+
+def model_comparisons(
+    terms: Sequence[Term], sequence: Sequence[Term], nesting: Mapping[str, Sequence[str]] | None = None
+) -> dict[str, dict[Term, tuple[tuple[Term, ...], tuple[Term, ...]]]]:
+    """For each SS type and term, the (larger, smaller) model whose difference is the term's SS.
+
+    Type I: the terms entered up to and including it vs those before it; Type II: every
+    term not containing it, with and without it; Type III: all terms vs all but it.
+    """
+    out: dict[str, dict[Term, tuple[tuple[Term, ...], tuple[Term, ...]]]] = {k: {} for k in SS_TYPES}
+    for i, t in enumerate(sequence):
+        out["I"][t] = (tuple(sequence[: i + 1]), tuple(sequence[:i]))
+    for t in terms:
+        base = tuple(u for u in terms if u != t and not contains(u, t, nesting))
+        out["II"][t] = (base + (t,), base)
+        out["III"][t] = (tuple(terms), tuple(u for u in terms if u != t))
+    return out
 
 
 def fit_cells(
@@ -195,23 +213,12 @@ def fit_cells(
     ncols = {t: design.slices[t].stop - design.slices[t].start for t in terms}
 
     sequence = sequential_order(terms, spec.blocks)
-    prev = fitted(design.columns_of(()))
-    entered: list[Term] = []
-    for t in sequence:
-        entered.append(t)
-        cur = fitted(design.columns_of(entered))
-        ss["I"][t] = float(np.sum((cur - prev) ** 2))
-        df["I"][t] = ncols[t]
-        prev = cur
-    for t in terms:
-        base = [u for u in terms if u != t and not contains(u, t, nesting)]
-        big = fitted(design.columns_of(base + [t]))
-        small = fitted(design.columns_of(base))
-        ss["II"][t] = float(np.sum((big - small) ** 2))
-        df["II"][t] = ncols[t]
-        reduced = fitted(design.columns_of([u for u in terms if u != t]))
-        ss["III"][t] = float(np.sum((f_full - reduced) ** 2))
-        df["III"][t] = ncols[t]
+    for kind, pairs in model_comparisons(terms, sequence, nesting).items():
+        for t, (big_terms, small_terms) in pairs.items():
+            big = fitted(design.columns_of(big_terms))
+            small = fitted(design.columns_of(small_terms))
+            ss[kind][t] = float(np.sum((big - small) ** 2))
+            df[kind][t] = ncols[t]
 
     rinv = np.linalg.solve(r, np.eye(p))  # R is small and well conditioned (pivoted)
     coef_p = rinv @ (q.T @ zw)

@@ -26,12 +26,13 @@ from .cells import CellLayout, CellTable, layout_cells
 from .dataset import Dataset
 from .design import fitted_terms
 from .design_layout import layout_notes
-from .errors import DesignError
 from .design_checks import check_design
 from .distributions import f_sf, t_ppf
 from .fitrows import RowSet, row_fit
 from .groupstats import GroupStats, group_stats, pool_groups
+from .ems import expected_mean_squares
 from .marginal_means import MarginalMeans, marginal_means
+from .mixed_partition import mixed_partition
 from .results import LevelTable, Results
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow, fmt
@@ -129,14 +130,23 @@ def _uncorrected(fit: CellFit) -> AnovaTable:
     )
 
 
-def factorial_tables(fit: CellFit, spec: ModelSpec, balanced: bool) -> tuple[dict[str, AnovaTable], list[str]]:
-    """The partition for each SS type, and notes on balance and disagreement between types."""
+def factorial_tables(
+    fit: CellFit, spec: ModelSpec, balanced: bool, layout: CellLayout | None = None
+) -> tuple[dict[str, AnovaTable], list[str]]:
+    """The partition for each SS type, and notes on balance and disagreement between types.
+
+    With random terms (``spec.is_mixed``; ``layout`` needed) each F is tested against its
+    own error term (:mod:`.mixed_partition`).
+    """
     zero = _zero_residual(fit)
-    tables = {k: _partition(fit, k, zero) for k in SS_TYPES}
+    if spec.is_mixed and layout is not None:
+        tables = {k: mixed_partition(fit, spec, layout.cell_levels, layout.columns, k, zero)[0] for k in SS_TYPES}
+    else:
+        tables = {k: _partition(fit, k, zero) for k in SS_TYPES}
     return tables, _type_notes(tables, fit, balanced, spec.alpha)
 
 
-def _level_table(gs: GroupStats, factor: str, ms_resid: float, df_resid: int, confidence: float) -> LevelTable:
+def _level_table(gs: GroupStats, factor: str, ms_resid: float, df_resid: float, confidence: float) -> LevelTable:
     """Raw level means with pooled-SD (model residual) and own-SD intervals."""
     nn = gs.n.astype(float)
     with np.errstate(invalid="ignore"):
@@ -200,6 +210,17 @@ def fit_factorial(
     )
 
 
+def _error_of(table: AnovaTable, source: str, ms_e: float, df_e: float) -> tuple[float, float]:
+    """The error mean square and df a factor's F used (the residual for fixed-effects models)."""
+    try:
+        row = table.row(source)
+    except KeyError:
+        return ms_e, df_e
+    if row.error_term is None or row.ms_error is None or row.ms_error <= 0 or row.df_error is None:
+        return ms_e, df_e
+    return row.ms_error, row.df_error
+
+
 def level_stats_from_cells(layout: CellLayout, cells: GroupStats, j: int) -> GroupStats:
     """Statistics of the levels of column ``j``, pooled from the cells (Chan et al. 1983)."""
     return pool_groups(cells.n, cells.mean, cells.m2, layout.cell_levels[:, j], layout.levels[j], cells.offset)
@@ -225,8 +246,6 @@ def factorial_from_cells(
     ``level_stats`` (per treatment factor) default to pooling the cells. Intervals (level
     and least-squares means) are ``1 - alpha`` of ``spec`` unless ``confidence`` is given.
     """
-    if spec.random or spec.subject is not None:  # pragma: no cover - replaced by the mixed-model tables
-        raise DesignError("random factors and subjects need tests against their own error terms, not yet built")
     if confidence is None:  # intervals follow the analysis alpha
         confidence = 1 - spec.alpha
     notes = list(check_design(layout, cells.n, spec, dataset_notes))
@@ -234,19 +253,24 @@ def factorial_from_cells(
     fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec,
                     terms=fitted_terms(spec, cells.n))
     cell_table = CellTable.from_stats(layout, cells, fit.cell_fitted)
-    tables, type_notes = factorial_tables(fit, spec, cell_table.balanced)
+    tables, type_notes = factorial_tables(fit, spec, cell_table.balanced, layout)
     notes += [a.sentence() for a in fit.aliased]
     notes += type_notes
     table = tables[spec.ss_type]
     zero = table.row("residual").mean_sq == 0.0
     ms_e = 0.0 if zero else fit.ms_resid
+    ems = (expected_mean_squares(fit, spec, layout.cell_levels, layout.columns, spec.ss_type)
+           if spec.is_mixed else None)
 
     levels: dict[str, LevelTable] = {}
     means: dict[str, MarginalMeans] = {}
+    nested = spec.nesting
     for j, f in enumerate(spec.factors):
         gs = level_stats[j] if level_stats is not None else level_stats_from_cells(layout, cells, j)
-        levels[f] = _level_table(gs, f, ms_e, fit.df_resid, confidence)
-        means[f] = marginal_means(fit, f, layout.levels[j], gs.original_means, gs.n, ms_e, confidence)
+        ms_f, df_f = _error_of(table, fit.name((f,)), ms_e, fit.df_resid)
+        levels[f] = _level_table(gs, f, ms_f, df_f, confidence)
+        if f not in nested and f not in spec.random:
+            means[f] = marginal_means(fit, f, layout.levels[j], gs.original_means, gs.n, ms_f, confidence, df=df_f)
     effects = term_effects(table, fit.term_names(), fit.n)
 
     row_fit_ = row_fit(rows, fit.cell_fitted, fit.cell_leverage, cells.offset)
@@ -270,7 +294,9 @@ def factorial_from_cells(
         marginal_means=means,
         term_effects=effects,
         cells=cell_table,
-        blocking=_blocking(table, fit, spec, cell_table.balanced),
+        blocking=None if spec.is_mixed else _blocking(table, fit, spec, cell_table.balanced),
+        expected_mean_squares=ems,
+        aliased=fit.aliased,
     )
 
 

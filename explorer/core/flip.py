@@ -38,6 +38,7 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
+from .mixed_guard import refuse_mixed
 from .dataset import RowId
 from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
 from .errors import ExplorerError, closest_names
@@ -253,6 +254,7 @@ def flip_finder(
     """
     if method not in ("auto", "exact", "greedy"):
         raise ExplorerError(f"method must be 'auto', 'exact' or 'greedy', not {method!r}")
+    refuse_mixed(study, "flip finder")
     if not study.spec.is_oneway:  # type: ignore[attr-defined]
         if pair is not None:
             raise ExplorerError("pairwise flips are searched in one-factor studies; for this design search the "

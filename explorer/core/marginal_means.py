@@ -58,7 +58,7 @@ class MarginalMeans:
     covariance: np.ndarray
     raw_mean: np.ndarray
     n: np.ndarray
-    df: int
+    df: float
     confidence: float = 0.95
     notes: tuple[str, ...] = ()
     offset: float = 0.0
@@ -101,8 +101,13 @@ def marginal_means(
     n: np.ndarray,
     ms_resid: float,
     confidence: float = 0.95,
+    df: float | None = None,
 ) -> MarginalMeans:
-    """Least-squares means of ``factor`` from a sum-to-zero coded cell fit (see module docstring)."""
+    """Least-squares means of ``factor`` from a sum-to-zero coded cell fit (see module docstring).
+
+    ``ms_resid`` and ``df`` are the error mean square and its df (the residual by default;
+    in models with random terms, the factor's own error term).
+    """
     design = fit.design
     contrast = design.contrasts[factor]
     L = np.zeros((len(labels), design.n_params))
@@ -112,9 +117,10 @@ def marginal_means(
     est = shifted + fit.stats.offset
     cov = ms_resid * (L @ fit.cov_unscaled @ L.T)
     se = np.sqrt(np.maximum(np.diag(cov), 0.0))
-    half = t_ppf(0.5 + confidence / 2, fit.df_resid) * se
+    dfe = fit.df_resid if df is None else df
+    half = t_ppf(0.5 + confidence / 2, dfe) * se
     return MarginalMeans(
         factor=factor, labels=labels, estimate=est, se=se, ci_low=est - half, ci_high=est + half,
-        covariance=cov, raw_mean=raw_mean, n=n, df=fit.df_resid, confidence=confidence,
+        covariance=cov, raw_mean=raw_mean, n=n, df=dfe, confidence=confidence,
         offset=float(fit.stats.offset), shifted_estimate=shifted,
     )

@@ -22,6 +22,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .mixed_guard import refuse_mixed
 from .alternatives import (
     AlternativeFits,
     base_fit,
@@ -128,6 +129,7 @@ def regroup_scan(
     not changed; the alternatives examined are added to its disclosure. ``moves=False``
     skips the row moves (``n (k - 1)`` alternatives).
     """
+    refuse_mixed(study, "regroup scan")
     if not study.spec.is_oneway:  # type: ignore[attr-defined]
         return _factorial_regroup(study, factor, alpha, moves, record)
     data = oneway_input(study, "the regroup scan")

@@ -15,7 +15,9 @@ from .spec import ModelSpec
 from .tables import AnovaTable, fmt, html_table
 
 if TYPE_CHECKING:  # multi-factor result parts (see factorial.py)
+    from .aliasing import AliasedTerm
     from .blocking import BlockingEfficiency
+    from .ems import ExpectedMeanSquares
     from .cells import CellTable
     from .marginal_means import MarginalMeans
     from .term_effects import TermEffects
@@ -144,6 +146,9 @@ class Results:
     term_effects: "TermEffects | None" = None  # partial eta² and omega² per term
     cells: "CellTable | None" = None  # counts and raw means of the observed cells
     blocking: "BlockingEfficiency | None" = None  # relative efficiency of blocks vs no blocks
+    # Models with random, nested or subject terms (ems.py, mixed_partition.py); empty/None otherwise.
+    expected_mean_squares: "ExpectedMeanSquares | None" = None  # E(MS) of each row of the spec's type
+    aliased: "tuple[AliasedTerm, ...]" = ()  # terms left out because the cells cannot separate them
 
     def compare_means(self, factor: str | None = None, confidence: float | None = None) -> Any:
         """Tukey-Kramer comparisons of the marginal (least-squares) means of ``factor``."""
@@ -188,7 +193,8 @@ class Results:
         )
         for table in self.levels.values():
             parts.append(table._repr_html_())
-        extras: list[Any] = [*self.marginal_means.values(), self.term_effects, self.blocking]
+        extras: list[Any] = [*self.marginal_means.values(), self.term_effects, self.blocking,
+                             self.expected_mean_squares]
         if self.cells is not None and not self.cells.balanced:
             extras.append(self.cells)
         parts.extend(x._repr_html_() for x in extras if x is not None)

@@ -41,6 +41,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from .mixed_guard import refuse_mixed
 from .alternatives import OnewayInput, oneway_input
 from .case_deletion import nullable
 from .errors import DesignError, ExplorerError, closest_names
@@ -349,6 +350,7 @@ def robustness_sweep(
     tests = _check_options("tests", tests, TESTS)
     transforms = _check_options("transforms", transforms, TRANSFORMS)
     notes: list[str] = []
+    refuse_mixed(study, "robustness sweep")
     if study.spec.is_oneway:  # type: ignore[attr-defined]
         rows, responses = _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes)
     else:

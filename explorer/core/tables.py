@@ -14,10 +14,12 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-__all__ = ["TermRow", "AnovaTable", "COLUMNS", "html_table", "fmt"]
+__all__ = ["TermRow", "AnovaTable", "COLUMNS", "ERROR_COLUMNS", "html_table", "fmt"]
 
 #: Column headings of a partition table (plain trade words).
 COLUMNS = ("source", "df", "sum of squares", "mean square", "F", "p-value")
+#: Extra columns of a partition whose terms have their own error terms (random and mixed models).
+ERROR_COLUMNS = ("tested against", "error df")
 
 
 def fmt(x: Any, digits: int = 6) -> str:
@@ -67,6 +69,10 @@ class TermRow:
     mean_sq: float | None = None
     statistic: float | None = None
     pvalue: float | None = None
+    #: Models with random terms: the mean square(s) the F is tested against, and their df.
+    error_term: str | None = None
+    ms_error: float | None = None
+    df_error: float | None = None
 
     def as_tuple(self) -> tuple[Any, ...]:
         return (self.source, self.df, self.sum_sq, self.mean_sq, self.statistic, self.pvalue)
@@ -102,6 +108,9 @@ class AnovaTable:
         frame = pd.DataFrame([r.as_tuple() for r in self.rows], columns=list(COLUMNS))
         for c in COLUMNS[2:]:
             frame[c] = pd.array(frame[c].tolist(), dtype="Float64")
+        if any(r.error_term is not None for r in self.rows):
+            frame[ERROR_COLUMNS[0]] = [r.error_term or "" for r in self.rows]
+            frame[ERROR_COLUMNS[1]] = pd.array([r.df_error for r in self.rows], dtype="Float64")
         return frame
 
     def _repr_html_(self) -> str:

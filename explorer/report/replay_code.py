@@ -63,7 +63,25 @@ def _spec_args(study: "Study") -> str:
         args.append(f"alpha={spec.alpha!r}")
     if study.dataset.id_column is not None:
         args.append(f"id_column={study.dataset.id_column!r}")
+    args.extend(_role_args(spec))
     return ", ".join(args)
+
+
+def _role_args(spec) -> list[str]:
+    """Model terms and the roles of random, nested and repeated-measures designs (only when used)."""
+    out = []
+    if spec.terms is not None:
+        out.append(f"terms={[' × '.join(t) if len(t) > 1 else t[0] for t in spec.terms]!r}")
+    if spec.max_order is not None:
+        out.append(f"max_order={spec.max_order!r}")
+    if spec.random:
+        out.append(f"random={list(spec.random)!r}")
+    if spec.nested:
+        out.append(f"nested={ {inner: (p[0] if len(p) == 1 else list(p)) for inner, p in spec.nested}!r}")
+    if spec.subject is not None:
+        out.append(f"subject={spec.subject!r}")
+        out.append(f"within={list(spec.within)!r}")
+    return out
 
 
 def study_to_code(study: "Study", data: str | Path | None = None, *, name: str = "study") -> str:

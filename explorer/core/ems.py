@@ -1,0 +1,233 @@
+"""Expected mean squares of a model with random terms, and the error term of each F test.
+
+Model (the unrestricted mixed model): every term that contains a random column is
+random, with independent effects of variance sigma^2_U for each level combination of
+its columns; fixed terms are constants; the residual has variance sigma^2.
+
+* **Balanced data** (equal cell counts, every term's level combinations equally
+  replicated): E(MS_T) = sigma^2 + sum over random U whose columns include all of T's
+  of (N / number of level combinations of U) sigma^2_U, plus a fixed-effect quadratic
+  when T is fixed (the classic algorithm; Montgomery, Design and Analysis of
+  Experiments, 8th ed., ch. 13, from memory; Searle, Casella and McCulloch 1992, ch. 4).
+  The coefficients are exact counts.
+* **Any data** (Hartley 1967, the "method of synthesis"): a sum of squares is a
+  quadratic form z'Mz in the weighted cell means, so E(SS) = tr(M Cov z) + (fixed
+  part); with Cov z = sigma^2 I + sum_U sigma^2_U B_U B_U' (B_U = W^1/2 Z_U) the
+  coefficient of sigma^2_U is ||Q_big' B_U||^2 - ||Q_small' B_U||^2. Balanced designs
+  are computed both ways and the exact counts are kept when they agree.
+
+The error term of a test of T is the combination of other mean squares whose
+expectation equals E(MS_T) with T's own component removed. When one mean square
+matches it is that one; otherwise the combination is synthesized and its degrees of
+freedom are Satterthwaite's (1946) nu = (sum c_j MS_j)^2 / sum (c_j MS_j)^2 / df_j.
+
+References
+----------
+Hartley, H. O. (1967). Expectations, variances and covariances of ANOVA mean squares
+by "synthesis". Biometrics 23, 105-114.
+Satterthwaite, F. E. (1946). An approximate distribution of estimates of variance
+components. Biometrics Bulletin 2, 110-114.
+Searle, S. R., Casella, G. and McCulloch, C. E. (1992). Variance Components. Wiley.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from .cellfit import CellFit, model_comparisons
+from .design import Term, term_columns
+from .spec import ModelSpec
+from .tables import fmt, html_table
+
+__all__ = ["ErrorTerm", "ExpectedMeanSquares", "error_terms", "expected_mean_squares", "is_random"]
+
+RESIDUAL = "residual"
+
+
+def is_random(term: Term, spec: ModelSpec) -> bool:
+    """A term is random when it contains a random column (or the subject)."""
+    rnd = set(spec.random_columns)
+    return any(c in rnd for c in term)
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class ExpectedMeanSquares:
+    """E(MS) of every row of a partition, as coefficients of the variance components.
+
+    ``rows`` are the term names then ``"residual"``; ``components`` the random terms
+    (their variance components) then ``"residual"``; ``coefficients[i, j]`` the
+    coefficient of component j in E(MS) of row i; ``fixed[i]`` whether row i also
+    carries a fixed-effect quadratic (its term is fixed). ``method`` says how the
+    coefficients were found.
+    """
+
+    rows: tuple[str, ...]
+    components: tuple[str, ...]
+    coefficients: np.ndarray
+    fixed: tuple[bool, ...]
+    random_rows: tuple[bool, ...]
+    method: str
+    ss_type: str
+
+    def expression(self, row: str) -> str:
+        """E(MS) of ``row`` in words, e.g. ``σ² + 4 σ²[block × variety] + fixed[variety]``."""
+        i = self.rows.index(row)
+        parts = []
+        order = [len(self.components) - 1] + list(range(len(self.components) - 1))  # σ² first
+        for j in order:
+            comp = self.components[j]
+            c = float(self.coefficients[i, j])
+            if abs(c) < 1e-12:
+                continue
+            name = "σ²" if comp == RESIDUAL else f"σ²[{comp}]"
+            parts.append(name if abs(c - 1) < 1e-12 else f"{fmt(c, 5)} {name}")
+        if self.fixed[i]:
+            parts.append(f"fixed[{row}]")
+        return " + ".join(parts) if parts else "0"
+
+    def to_frame(self) -> pd.DataFrame:
+        frame = pd.DataFrame(self.coefficients, columns=[f"σ²[{c}]" if c != RESIDUAL else "σ²" for c in self.components])
+        frame.insert(0, "source", list(self.rows))
+        frame.insert(1, "random", list(self.random_rows))
+        frame["fixed effect"] = list(self.fixed)
+        frame["expected mean square"] = [self.expression(r) for r in self.rows]
+        return frame
+
+    def _repr_html_(self) -> str:
+        return html_table(self.to_frame()[["source", "random", "expected mean square"]],
+                          f"Expected mean squares ({self.method})", ())
+
+
+@dataclass(frozen=True, kw_only=True)
+class ErrorTerm:
+    """The denominator of one F test: mean squares combined with coefficients.
+
+    ``parts`` are (row, coefficient); ``df`` is the row's df for a single mean square,
+    Satterthwaite's approximation for a synthesized one; ``exact`` is False when no
+    combination reproduces the null expectation exactly (the test is approximate).
+    """
+
+    parts: tuple[tuple[str, float], ...]
+    mean_sq: float | None
+    df: float | None
+    synthesized: bool
+    exact: bool = True
+
+    @property
+    def label(self) -> str:
+        if not self.parts:
+            return "none"
+        out = ""
+        for i, (name, c) in enumerate(self.parts):
+            sign = "−" if c < 0 else "+"
+            mag = abs(c)
+            piece = name if abs(mag - 1) < 1e-9 else f"{fmt(mag, 4)}·{name}"
+            out += (piece if i == 0 and c > 0 else (f"{sign}{piece}" if i == 0 else f" {sign} {piece}"))
+        return out
+
+
+def _combos(cell_levels: np.ndarray, idx: Sequence[int]) -> tuple[np.ndarray, int]:
+    code = np.unique(cell_levels[:, list(idx)], axis=0, return_inverse=True)[1].reshape(-1)
+    return code, int(code.max()) + 1 if code.size else 0
+
+
+def _basis(xw: np.ndarray, cols: np.ndarray, cache: dict) -> np.ndarray:
+    key = tuple(int(c) for c in cols)
+    if key not in cache:
+        cache[key] = np.linalg.qr(xw[:, cols])[0]
+    return cache[key]
+
+
+def expected_mean_squares(
+    fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str], ss_type: str,
+    *, synthesis_only: bool = False,
+) -> ExpectedMeanSquares:
+    """E(MS) of every term and the residual of ``fit`` for the ``ss_type`` sums of squares.
+
+    ``synthesis_only`` skips the exact counts of balanced data (for checking one against the other).
+    """
+    nesting = fit.design.nesting
+    pos = {c: i for i, c in enumerate(columns)}
+    # components from the most specific (most columns) to the least, as E(MS) are usually written
+    random_terms = sorted((t for t in fit.terms if is_random(t, spec)), key=lambda t: -len(term_columns(t, nesting)))
+    n_c = fit.stats.n.astype(float)
+    w = np.sqrt(n_c)
+    xw = w[:, None] * fit.design.matrix
+    n = float(n_c.sum())
+    b_mats, n_combos, equal = [], [], bool(np.all(fit.stats.n == fit.stats.n[0]))
+    for u in random_terms:
+        code, k = _combos(cell_levels, [pos[c] for c in sorted(term_columns(u, nesting), key=lambda c: pos[c])])
+        z = np.zeros((code.size, k))
+        z[np.arange(code.size), code] = 1.0
+        b_mats.append(w[:, None] * z)
+        per = np.bincount(code, weights=n_c, minlength=k)
+        equal = equal and bool(np.all(per == per[0]))
+        n_combos.append(k)
+    comparisons = model_comparisons(fit.terms, fit.sequence, nesting)[ss_type]
+    cache: dict = {}
+    rows = [fit.name(t) for t in fit.terms] + [RESIDUAL]
+    comps = [fit.name(u) for u in random_terms] + [RESIDUAL]
+    synth = np.zeros((len(rows), len(comps)))
+    exact = np.zeros_like(synth)
+    for i, t in enumerate(fit.terms):
+        big, small = comparisons[t]
+        qb = _basis(xw, fit.design.columns_of(big), cache)
+        qs = _basis(xw, fit.design.columns_of(small), cache)
+        df = fit.df[ss_type][t]
+        cols_t = term_columns(t, nesting)
+        for j, (u, b) in enumerate(zip(random_terms, b_mats)):
+            synth[i, j] = (np.sum((qb.T @ b) ** 2) - np.sum((qs.T @ b) ** 2)) / df
+            if cols_t <= term_columns(u, nesting):
+                exact[i, j] = n / n_combos[j]
+        synth[i, -1] = exact[i, -1] = 1.0
+    q_full = _basis(xw, np.arange(fit.design.n_params), cache)
+    for j, b in enumerate(b_mats):
+        resid_b = b - q_full @ (q_full.T @ b)
+        synth[-1, j] = float(np.sum(resid_b**2)) / fit.df_resid
+    synth[-1, -1] = exact[-1, -1] = 1.0
+    scale = max(1.0, float(np.max(np.abs(exact))))
+    use_exact = not synthesis_only and equal and bool(np.all(np.abs(synth - exact) <= 1e-8 * scale))
+    fixed = tuple(not is_random(t, spec) for t in fit.terms) + (False,)
+    return ExpectedMeanSquares(
+        rows=tuple(rows), components=tuple(comps), coefficients=exact if use_exact else synth,
+        fixed=fixed, random_rows=tuple(is_random(t, spec) for t in fit.terms) + (True,),
+        method="balanced data: exact counts" if use_exact else "unbalanced data: Hartley's synthesis",
+        ss_type=ss_type,
+    )
+
+
+def error_terms(
+    ems: ExpectedMeanSquares, mean_sq: dict[str, float], df: dict[str, float]
+) -> dict[str, ErrorTerm]:
+    """The denominator of each row's F test (see module docstring)."""
+    out: dict[str, ErrorTerm] = {}
+    coef = ems.coefficients
+    comp_index = {c: j for j, c in enumerate(ems.components)}
+    for i, row in enumerate(ems.rows[:-1]):
+        target = coef[i].copy()
+        if ems.random_rows[i]:
+            target[comp_index[row]] = 0.0
+        support = {ems.components[j] for j in np.flatnonzero(np.abs(target) > 1e-12)}
+        cands = [k for k, r in enumerate(ems.rows) if k != i and (r == RESIDUAL or (ems.random_rows[k] and r in support))]
+        a = coef[cands].T  # components x candidates
+        c, *_ = np.linalg.lstsq(a, target, rcond=None)
+        fit_err = float(np.max(np.abs(a @ c - target))) if target.size else 0.0
+        exact = fit_err <= 1e-8 * max(1.0, float(np.max(np.abs(target))))
+        parts = tuple((ems.rows[k], float(cc)) for k, cc in zip(cands, c) if abs(cc) > 1e-10)
+        parts = tuple((name, float(np.round(cc)) if abs(cc - np.round(cc)) < 1e-9 else cc) for name, cc in parts)
+        if not parts:
+            out[row] = ErrorTerm(parts=(), mean_sq=None, df=None, synthesized=False, exact=False)
+            continue
+        value = float(sum(cc * mean_sq[name] for name, cc in parts))
+        single = len(parts) == 1 and parts[0][1] == 1.0
+        if single:
+            dfe: float | None = float(df[parts[0][0]])
+        else:
+            denom = sum((cc * mean_sq[name]) ** 2 / df[name] for name, cc in parts)
+            dfe = value**2 / denom if value > 0 and denom > 0 else None
+        out[row] = ErrorTerm(parts=parts, mean_sq=value, df=dfe, synthesized=not single, exact=exact)
+    return out
