@@ -121,3 +121,16 @@ def test_conditions_are_type_checked_and_literals_kept_through_spark(spark, fram
     assert s.edits == ()
     r = s.drop_where("note = 'rework ( line 2 )'", reason="rework")
     assert r.n_used == len(data) - int((data.note == "rework ( line 2 )").sum())
+
+
+def test_huge_values_through_spark_match_the_rescaled_data(spark, frame):
+    """|y| near 1e300: Spark summaries in units of 2**e give the F and p of the data (reference: scipy
+    f_oneway on the unscaled readings; the scaling by 2**997 is exact)."""
+    import numpy as np
+    from scipy import stats
+
+    data = frame.assign(thickness=np.ldexp(frame.thickness.to_numpy(), 997))
+    s = SummaryStudy(spark.createDataFrame(data), "thickness", "line", sample_size=0)
+    ref = stats.f_oneway(*[frame.thickness[frame.line == lv] for lv in ("L1", "L2", "L3")])
+    assert close(s.results.statistic(), ref.statistic, 1e-9) and close(s.results.pvalue(), ref.pvalue, 1e-7)
+    assert s.prepared.unit_exponent != 0

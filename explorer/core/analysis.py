@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 
 from .dataset import Dataset
 from .oneway import fit_oneway
+from .response_unit import unit_note
 from .results import Results
 from .spec import ModelSpec
 from .view import DataView
@@ -18,6 +21,14 @@ def analyze(dataset: Dataset, view: DataView, spec: ModelSpec) -> Results:
     positions = np.flatnonzero(view.kept)
     dropped = view.dropped_ids(dataset)
     y = dataset.y[positions]
+    results = _fit(dataset, view, spec, positions, dropped, y)
+    if dataset.unit_exponent:
+        results = replace(results, notes=results.notes + (unit_note(spec.response, dataset.unit_exponent),))
+    return results
+
+
+def _fit(dataset: Dataset, view: DataView, spec: ModelSpec, positions: np.ndarray, dropped: tuple,
+         y: np.ndarray) -> Results:
     if spec.is_oneway:
         f = spec.factors[0]
         return fit_oneway(

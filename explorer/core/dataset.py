@@ -23,6 +23,7 @@ import pandas as pd
 from .decimal_shift import shift_float, shift_text
 from .errors import ColumnError, DataError, EditError, closest_names, preview
 from .loading import read_table
+from .response_unit import rescale, unit_exponent, unit_note
 
 __all__ = ["Dataset", "SetAsideRow", "RowId", "build_dataset"]
 
@@ -75,7 +76,10 @@ class Dataset:
     table : the table as loaded (a private copy; all rows, set-aside ones included).
     response, factors : the column names in use.
     row_ids : ids of the usable rows, in table order.
-    y : response of the usable rows minus ``offset`` (read-only float64).
+    y : response of the usable rows minus ``offset`` (read-only float64), in units of
+        ``2**unit_exponent`` (0, i.e. the response's own unit, unless its squares would
+        overflow or underflow; see :mod:`.response_unit`). ``offset`` is in the same unit,
+        ``offset_text`` is the offset in the response's own unit.
     codes, levels : per factor, integer codes of the usable rows and the level names.
     set_aside : rows left out at load, each with its reason.
     id_source : ``"index"`` when the table's index gave the ids, ``"column 'x'"`` when an id
@@ -99,6 +103,7 @@ class Dataset:
     all_row_ids: np.ndarray
     id_column: str | None = None
     notes: tuple[str, ...] = field(default=())
+    unit_exponent: int = 0
     _positions: dict = field(default_factory=dict, repr=False)
 
     @property
@@ -273,12 +278,15 @@ def build_dataset(
     if not usable.any():
         raise DataError(f"every row has a missing {response!r} or factor value; nothing to analyse")
 
-    # Exact shift of the response.
+    # Exact shift of the response, then an exact power-of-two unit when squares would overflow or underflow.
     if response in texts:
         t = texts[response][usable].str.strip().tolist()
         y, offset, offset_text = shift_text(t)
     else:
         y, offset, offset_text = shift_float(yv[usable])
+    y, offset, unit = _in_safe_unit(y, offset, yv[usable])
+    if unit:
+        notes.append(unit_note(response, unit))
     y = np.ascontiguousarray(y, dtype=np.float64)
     y.setflags(write=False)
 
@@ -323,7 +331,25 @@ def build_dataset(
         all_row_ids=ids,
         id_column=id_column,
         notes=tuple(notes),
+        unit_exponent=unit,
     )
+
+
+def _in_safe_unit(y: np.ndarray, offset: float, raw: np.ndarray) -> tuple[np.ndarray, float, int]:
+    """The shifted response and its offset in units of 2**e (see :mod:`.response_unit`), and e.
+
+    When the shift itself overflows (values of both signs near the float limit), the raw
+    values are scaled first: scaling by a power of two commutes with the subtraction.
+    """
+    if y.size and not np.all(np.isfinite(y)):
+        pre = 8
+        y, offset, _ = shift_float(rescale(raw, pre))
+        e = pre + unit_exponent(float(np.max(np.abs(y))))
+        return rescale(y, e - pre), float(np.ldexp(offset, pre - e)), e
+    e = unit_exponent(float(np.max(np.abs(y)))) if y.size else 0
+    if not e:
+        return y, offset, 0
+    return rescale(y, e), float(np.ldexp(offset, -e)), e
 
 
 def encode_digests(ids: np.ndarray, digests: np.ndarray) -> dict:

@@ -33,6 +33,7 @@ from .groupstats import GroupStats, group_stats, pool_groups
 from .ems import expected_mean_squares
 from .marginal_means import MarginalMeans, marginal_means
 from .mixed_partition import mixed_partition
+from .oneway import NOT_FINITE
 from .results import LevelTable, Results
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow, fmt
@@ -44,6 +45,10 @@ __all__ = ["factorial_from_cells", "factorial_tables", "fit_factorial", "level_s
 CODING = "sum-to-zero"
 
 
+def _finite(fit: CellFit) -> bool:
+    return bool(np.isfinite(fit.ss_resid) and all(np.isfinite(v) for table in fit.ss.values() for v in table.values()))
+
+
 def _zero_residual(fit: CellFit) -> bool:
     st = fit.stats
     scale = max(abs(st.offset), float(np.max(np.abs(st.mean))), 1e-300)
@@ -52,12 +57,13 @@ def _zero_residual(fit: CellFit) -> bool:
 
 def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:
     ms_e = fit.ss_resid / fit.df_resid
+    finite = _finite(fit)
     rows = []
     for t in fit.terms:
         ss, df = fit.ss[ss_type][t], fit.df[ss_type][t]
         ms = ss / df
         F = p = None
-        if not zero_resid:
+        if finite and not zero_resid:
             F = ms / ms_e
             p = float(f_sf(F, df, fit.df_resid))
         rows.append(TermRow(source=fit.name(t), df=df, sum_sq=ss, mean_sq=ms, statistic=F, pvalue=p))
@@ -71,7 +77,9 @@ def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:
         notes.append("Each term adjusted for every other term that does not contain it.")
     else:
         notes.append("Each term adjusted for every other term, sum-to-zero coding.")
-    if zero_resid:
+    if not finite:
+        notes.append(NOT_FINITE)
+    elif zero_resid:
         notes.append("F is undefined: the residual sum of squares is zero (the model fits every observation).")
     notes.extend(a.sentence() for a in fit.aliased)
     aliased = tuple((a.name, ", ".join(a.aliased_with)) for a in fit.aliased)

@@ -23,7 +23,11 @@ from .results import LevelTable, Results, TwoSampleT
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow
 
-__all__ = ["fit_oneway", "oneway_from_stats", "oneway_partition"]
+__all__ = ["NOT_FINITE", "fit_oneway", "oneway_from_stats", "oneway_partition"]
+
+#: Why a partition has no F test when its sums of squares are not finite (never a decision from NaN).
+NOT_FINITE = ("F is undefined: the sums of squares are not finite numbers (the response's values overflow the "
+              "64-bit float range); no decision is drawn.")
 
 
 def _zero_residual(ss_within: float, gs: GroupStats) -> bool:
@@ -39,7 +43,10 @@ def oneway_partition(gs: GroupStats, factor: str) -> tuple[AnovaTable, AnovaTabl
     notes: list[str] = []
     msb = ssb / df_b
     msw = ssw / df_w
-    if _zero_residual(ssw, gs):
+    if not (np.isfinite(ssb) and np.isfinite(ssw)):
+        F = p = None
+        notes.append(NOT_FINITE)
+    elif _zero_residual(ssw, gs):
         F = p = None
         msw = 0.0
         notes.append(

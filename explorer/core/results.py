@@ -163,7 +163,9 @@ class Results:
         return self.spec.factors[0]
 
     def pvalue(self, term: str | None = None) -> float | None:
-        return self.partition.row(term or self.main_term).pvalue
+        """The term's p-value; ``None`` when its test is undefined (never NaN, so no decision rests on NaN)."""
+        p = self.partition.row(term or self.main_term).pvalue
+        return p if p is not None and np.isfinite(p) else None
 
     def statistic(self, term: str | None = None) -> float | None:
         return self.partition.row(term or self.main_term).statistic

@@ -37,7 +37,8 @@ class Prepared:
 
     ``decimal_scale`` is set when the response is read as an exact decimal (DECIMAL
     columns, or plain decimal text in CSV files); the engine then subtracts the offset
-    in decimal arithmetic and rounds once to float64.
+    in decimal arithmetic and rounds once to float64. ``offset`` is in units of
+    ``2**unit_exponent``, like the shifted response the engine summarises.
     """
 
     response: str
@@ -50,6 +51,7 @@ class Prepared:
     rows_set_aside: int | None  # None: found from the first summary (total minus rows summarised)
     set_aside_detail: tuple[str, ...] = ()
     notes: tuple[str, ...] = field(default=())
+    unit_exponent: int = 0  # the shifted response is in units of 2**unit_exponent (see core.response_unit)
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)

@@ -26,6 +26,8 @@ SIGMOD '19, 1981-1984.
 
 from __future__ import annotations
 
+import dataclasses
+import math
 import os
 from collections.abc import Sequence
 from pathlib import Path
@@ -35,6 +37,7 @@ import numpy as np
 import pandas as pd
 
 from ..core.errors import ColumnError, DataError, PredicateError, closest_names, preview
+from ..core.response_unit import pow2_factors
 from .atoms import AtomTable, Prepared, choose_offset, finish_two_pass
 from .predicate import Predicate
 
@@ -226,6 +229,7 @@ class DuckDBSource:
             self._shifted = f"CAST({self._yv} - CAST({_lit(offset_text)} AS DECIMAL(38, {scale})) AS DOUBLE)"
         else:
             self._shifted = f"({self._yv} - CAST({_lit(repr(float(exact)))} AS DOUBLE))"
+        self._shifted_own = self._shifted  # in the response's own unit (see with_unit)
         numeric = tuple(f for f in factors if self.types[f] in _NUMERIC or self.types[f].startswith("DECIMAL"))
         for f in numeric:
             notes.append(f"Factor {f!r} is numeric; each distinct value is treated as a level, not as a quantity.")
@@ -323,9 +327,21 @@ class DuckDBSource:
         table = _atom_table(prep, rows)
         if not (np.all(np.isfinite(table.mean)) and np.all(np.isfinite(table.m2))):
             inf = self._execute(f"SELECT count(*) FROM {self._relation} WHERE {self._infinite}", conds).fetchone()[0]
-            raise DataError(f"response column {prep.response!r} has {inf} infinite values; replace them with real "
-                            "measurements or leave those rows out of the files")
-        return table
+            if inf:
+                raise DataError(f"response column {prep.response!r} has {inf} infinite values; replace them with real "
+                                "measurements or leave those rows out of the files")
+        return table  # finite values whose squares overflowed: the study chooses a unit (with_unit) and asks again
+
+    def largest_shifted(self, prep: Prepared) -> float:
+        """The largest |response - offset| over the usable rows, in the current unit (one scan)."""
+        row = self._execute(f"SELECT max(abs(vx_y)) FROM ({self._kept_rows(prep, (), ())})").fetchone()
+        return float(row[0]) if row and row[0] is not None else 0.0
+
+    def with_unit(self, prep: Prepared, e: int) -> Prepared:
+        """Summarise the shifted response in units of 2**e from now on (exact; see core.response_unit)."""
+        scale = " * ".join(repr(f) for f in pow2_factors(e))
+        self._shifted = f"(({self._shifted_own}) * {scale})"
+        return dataclasses.replace(prep, offset=math.ldexp(prep.offset, -e), unit_exponent=e)
 
     def sample(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]],
                size: int, seed: int) -> pd.DataFrame:

@@ -20,6 +20,8 @@ CACM 59(11), 56-65.
 
 from __future__ import annotations
 
+import dataclasses
+import math
 from collections.abc import Iterator, Sequence
 from decimal import Decimal
 from typing import Any
@@ -29,6 +31,7 @@ import pandas as pd
 
 from ..core.errors import ColumnError, DataError, closest_names, preview
 from ..core.groupstats import pool_groups
+from ..core.response_unit import pow2_factors
 from .atoms import AtomTable, Prepared, choose_offset
 from .predicate import Predicate
 
@@ -46,6 +49,7 @@ def _partition_fn(keys: list[str]) -> Any:
         for pdf in batches:
             if not len(pdf):
                 continue
+            old_err = np.seterr(over="ignore", invalid="ignore")  # overflowed squares: the driver picks a unit
             codes = pdf.groupby(keys, sort=False, dropna=False).ngroup().to_numpy()
             first = pdf.groupby(keys, sort=False, dropna=False).head(1)[keys].itertuples(index=False, name=None)
             k = int(codes.max()) + 1
@@ -66,6 +70,7 @@ def _partition_fn(keys: list[str]) -> Any:
                 tot = na + nb
                 d = mb - ma
                 acc[key] = [tot, ma + d * nb / tot, qa + qb + d * d * na * nb / tot]
+            np.seterr(**old_err)
         if acc:
             out = pd.DataFrame([list(k) + v for k, v in acc.items()], columns=keys + ["n", "mean", "m2"])
             out["n"] = np.rint(out["n"]).astype(np.int64)
@@ -169,6 +174,7 @@ class SparkSource:
             self._shifted = (y - F.lit(Decimal(offset_text)).cast(rtype)).cast("double")
         else:
             self._shifted = yv - F.lit(float(exact))
+        self._shifted_own = self._shifted  # in the response's own unit (see with_unit)
         numeric = tuple(f for f in factors if isinstance(self.types[f], T.NumericType))
         notes = tuple(f"Factor {f!r} is numeric; each distinct value is treated as a level, not as a quantity."
                       for f in numeric)
@@ -197,6 +203,21 @@ class SparkSource:
             out.append(expr.cast("long").alias(f"vx_m{j}"))
         return out
 
+    def largest_shifted(self, prep: Prepared) -> float:
+        """The largest |response - offset| over the usable rows, in the current unit (one pass)."""
+        F = self.F
+        value = self._kept(()).agg(F.max(F.abs(self._shifted))).first()[0]
+        return float(value) if value is not None else 0.0
+
+    def with_unit(self, prep: Prepared, e: int) -> Prepared:
+        """Summarise the shifted response in units of 2**e from now on (exact; see core.response_unit)."""
+        F = self.F
+        shifted = self._shifted_own
+        for factor in pow2_factors(e):
+            shifted = shifted * F.lit(factor)
+        self._shifted = shifted
+        return dataclasses.replace(prep, offset=math.ldexp(prep.offset, -e), unit_exponent=e)
+
     def atoms(self, prep: Prepared, filters: Sequence[Predicate], moves: Sequence[tuple[Predicate, str]], *,
               only: Predicate | None = None) -> AtomTable:
         """Per-atom statistics: one pass over the rows, partials pooled on the driver.
@@ -220,9 +241,11 @@ class SparkSource:
         index: dict[tuple, int] = {}
         codes = [index.setdefault(tuple(r[:2 * k]), len(index)) for r in rows]
         order = list(index)
-        pooled = pool_groups(np.asarray([r["n"] for r in rows], dtype=np.int64), np.asarray([r["mean"] for r in rows]),
-                             np.asarray([r["m2"] for r in rows]), np.asarray(codes, dtype=np.int64),
-                             tuple(str(i) for i in range(len(order))), prep.offset)
+        with np.errstate(over="ignore", invalid="ignore"):  # overflowed squares: the study picks a unit and asks again
+            pooled = pool_groups(np.asarray([r["n"] for r in rows], dtype=np.int64),
+                                 np.asarray([r["mean"] for r in rows]), np.asarray([r["m2"] for r in rows]),
+                                 np.asarray(codes, dtype=np.int64), tuple(str(i) for i in range(len(order))),
+                                 prep.offset)
         move = np.asarray([key[k:] for key in order], dtype=np.int64).reshape(-1, k)
         return AtomTable(factors=prep.factors, raw=tuple(tuple(key[j] for key in order) for j in range(k)), move=move,
                          n=pooled.n, mean=np.asarray(pooled.mean), m2=np.asarray(pooled.m2), offset=prep.offset)

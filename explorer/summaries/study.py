@@ -18,6 +18,7 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
+import math
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
@@ -35,6 +36,7 @@ from ..core.fitrows import RowSet
 from ..core.groupstats import pool_groups
 from ..core.oneway import oneway_from_stats
 from ..core.persistence import read_study_file
+from ..core.response_unit import SAFE, unit_exponent, unit_note
 from ..core.results import Results
 from ..core.spec import ModelSpec
 from ..core.study import Study, StudyEvent
@@ -112,6 +114,13 @@ class SummaryStudy(Study):
         self._atom_cache: dict[tuple, AtomTable] = {}
         self._sample_cache: dict[tuple, tuple[Dataset, pd.DataFrame]] = {}
         atoms = self._query_atoms((), ())
+        unit = self._safe_unit(atoms)
+        if unit:
+            self.prepared = self.source.with_unit(self.prepared, unit)
+            atoms = self._query_atoms((), ())
+        if not (np.all(np.isfinite(atoms.mean)) and np.all(np.isfinite(atoms.m2))):
+            raise DataError(f"the sums of squares of {spec.response!r} are not finite even in units of 2**{unit}; "
+                            "its values span the whole float range: divide the column by a power of two first")
         if atoms.n_total == 0:
             raise DataError(f"every row has a missing {spec.response!r} or factor value; nothing to analyse")
         if self.prepared.rows_set_aside is None:
@@ -127,7 +136,7 @@ class SummaryStudy(Study):
             codes={f: _ro(np.arange(len(k), dtype=np.int64)) for f, k in keys.items()},
         )
         self._atom_cache[view.engine_state()] = atoms
-        self.fingerprint = _fingerprint(atoms, spec)
+        self.fingerprint = _fingerprint(atoms, spec, self.prepared.unit_exponent)
         self._log: list[Edit] = []
         self._views: list[SummaryView] = [view]  # type: ignore[assignment]
         self._results: dict[int, Results] = {}
@@ -137,6 +146,28 @@ class SummaryStudy(Study):
         self._searches: list[dict[str, Any]] = []
         self._listeners: list[Callable[[Study, StudyEvent], None]] = []
         self._results[0] = self._analyze(view)
+
+    def _safe_unit(self, atoms: AtomTable) -> int:
+        """0 when the atoms show the shifted response inside the safe band, else the unit exponent it needs.
+
+        Every value lies within |mean| + sqrt(m2) of 0 in its atom and at least one is as
+        far as max(|mean|, sqrt(m2 / n)); only when these bounds leave the band does the
+        engine scan for the largest value (see :mod:`explorer.core.response_unit`).
+        """
+        if not atoms.size:
+            return 0
+        with np.errstate(all="ignore"):
+            spread = np.sqrt(atoms.m2)
+            hi = float(np.max(np.abs(atoms.mean) + spread))
+            lo = float(max(np.max(np.abs(atoms.mean)), np.max(spread / np.sqrt(np.maximum(atoms.n, 1)))))
+        if np.isfinite(hi) and hi <= 2.0**SAFE and lo >= 2.0**-SAFE:
+            return 0
+        largest = self.source.largest_shifted(self.prepared)
+        if not np.isfinite(largest):
+            raise DataError(f"response {self.spec.response!r} spans the whole float range (values of both signs near "
+                            "1.8e308): its shift overflows; divide the column by a power of two first, or load the "
+                            "rows into memory (ex.Study), which rescales them")
+        return unit_exponent(largest)
 
     # ------------------------------------------------------------ engine access
     def _atoms(self, view: SummaryView) -> AtomTable:
@@ -306,6 +337,8 @@ class SummaryStudy(Study):
         for cond in view.set_aside:
             notes.append("Set aside: " + ", ".join(f"{f} = {lv}" for f, lv in cond) + ".")
         notes.extend(p.set_aside_detail)
+        if p.unit_exponent:
+            notes.append(unit_note(self.spec.response, p.unit_exponent))
         return tuple(notes)
 
     # ------------------------------------------------------------ state seen by the shell
@@ -566,11 +599,22 @@ def _ro(a: np.ndarray) -> np.ndarray:
     return a
 
 
-def _fingerprint(atoms: AtomTable, spec: ModelSpec) -> str:
-    """Hash of the baseline summaries (counts exactly; means and SS to 10 significant digits)."""
+def _fingerprint(atoms: AtomTable, spec: ModelSpec, unit: int = 0) -> str:
+    """Hash of the baseline summaries (counts exactly; means and SS to 10 significant digits).
+
+    In a unit 2**e other than the response's own, each number is written as a 10-digit
+    binary mantissa and its exponent in the response's own unit, so engines that chose
+    different units for the same rows agree.
+    """
+    def num(x: float, power: int) -> str:
+        if not unit:
+            return f"{x:.10g}"
+        m, ex = math.frexp(x)
+        return f"{m:.10g}p{ex + power * unit}"
+
     rows = sorted(
         (tuple(atoms.keys(j)[i] for j in range(len(spec.columns))), int(atoms.n[i]),
-         f"{atoms.mean[i] + atoms.offset:.10g}", f"{atoms.m2[i]:.10g}")
+         num(atoms.mean[i] + atoms.offset, 1), num(atoms.m2[i], 2))
         for i in range(atoms.size)
     )
     head = f"{spec.response}|{'|'.join(spec.columns)}"
