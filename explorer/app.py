@@ -22,10 +22,20 @@ __all__ = ["app_page", "review_paths"]
 
 
 def review_paths(study_file: str | Path) -> tuple[Path, Path]:
-    """Where the page saves the reviewed log and the report: beside the original study file."""
+    """Where the page saves the reviewed log and the report: beside the original study file.
+
+    The first pair of names not taken yet (``-reviewed``, ``-reviewed-2``, ...), so a
+    review never replaces the sender's file or an earlier review; the page then keeps
+    writing to the pair it chose.
+    """
     p = Path(study_file)
     stem = p.name.removesuffix(".json").removesuffix(".study")
-    return p.with_name(f"{stem}-reviewed.study.json"), p.with_name(f"{stem}-reviewed-report.html")
+    for n in range(1, 10_000):
+        tag = "reviewed" if n == 1 else f"reviewed-{n}"
+        pair = p.with_name(f"{stem}-{tag}.study.json"), p.with_name(f"{stem}-{tag}-report.html")
+        if not (pair[0].exists() or pair[1].exists()):
+            return pair
+    raise ExplorerError(f"too many reviews of {p.name!r} in its folder; move some away")
 
 
 def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
@@ -54,11 +64,18 @@ def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
             return
         status.value = f"<span class='vx-status-ok'>{html.escape(done())}</span>"
 
-    save.on_click(lambda _: run("Not saved", lambda: explorer.study.save(log_path),
-                                lambda: f"Saved {len(explorer.study.edits)} edit(s) to {log_path}"))
-    report.on_click(lambda _: run("No report", lambda: explorer.study.report(report_path),
-                                  lambda: f"Wrote the report to {report_path}"))
+    written: set[Path] = set()  # files this page wrote: it may replace those, and nothing else
+
+    def write_once(path: Path, write: Callable[[bool], object]) -> None:
+        write(path in written)
+        written.add(path)
+
+    save.on_click(lambda _: run("Not saved", lambda: write_once(log_path, lambda again: explorer.study.save(
+        log_path, overwrite=again)), lambda: f"Saved {len(explorer.study.edits)} edit(s) to {log_path}"))
+    report.on_click(lambda _: run("No report", lambda: write_once(report_path, lambda again: explorer.study.report(
+        report_path, overwrite=again)), lambda: f"Wrote the report to {report_path}"))
     page = W.VBox([title, explorer, W.HBox([save, report, status])])
     page.add_class("vx-app")
     page.explorer = explorer  # type: ignore[attr-defined]
+    page.review_files = (log_path, report_path)  # type: ignore[attr-defined]
     return page

@@ -27,7 +27,8 @@ import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 
-from .core import ExplorerError, ReplayError, Study
+from .core import ExplorerError, OutputError, ReplayError, Study
+from .core.output_files import check_output_path, write_text_atomic
 from .core.persistence import read_study_file
 from .core.spec import ModelSpec
 
@@ -73,6 +74,12 @@ def _add_data_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--edits", help="study file written by study.save: its edits (with reasons) are replayed")
 
 
+def _output_args(p: argparse.ArgumentParser, what: str, required: bool = False) -> None:
+    p.add_argument("-o", "--output", required=required, help=f"{what} (written whole or not at all)")
+    p.add_argument("--force", action="store_true", help="replace the output file if it exists (never the data "
+                   "or edit file)")
+
+
 def _server_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--port", type=int, default=0, help="port on 127.0.0.1 (default 8888 for demo, 8866 for app; "
                    "the server moves to the next free one if it is taken)")
@@ -87,14 +94,16 @@ def build_parser() -> argparse.ArgumentParser:
     check = sub.add_parser("check", help="print the tables, edits, checks and sensitivity summary as text")
     _add_data_args(check)
     check.add_argument("--no-cautions", action="store_true", help="leave the cautions out of the printout")
+    _output_args(check, "text file to write instead of printing")
     report = sub.add_parser("report", help="write a self-contained HTML report that opens offline")
     _add_data_args(report)
-    report.add_argument("-o", "--output", required=True, help="HTML file to write")
+    _output_args(report, "HTML file to write", required=True)
     report.add_argument("--title", help="title of the report")
     report.add_argument("--scenario", help="one line saying what was compared and why")
     report.add_argument("--no-charts", action="store_true", help="tables only (no altair/vl-convert needed)")
     code = sub.add_parser("code", help="print Python that rebuilds the study (load, then each edit)")
     _add_data_args(code)
+    _output_args(code, "Python file to write instead of printing")
     demo = sub.add_parser("demo", help="open the demo notebook in JupyterLab on 127.0.0.1")
     _server_args(demo)
     app = sub.add_parser("app", help="serve the explorer for a saved study as a web page (Voila on 127.0.0.1)")
@@ -163,34 +172,58 @@ def load_study(args: argparse.Namespace) -> Study:
 
 
 # --------------------------------------------------------------------------- commands
+def _inputs(args: argparse.Namespace) -> list[tuple[str, str]]:
+    """The files a command reads; no output may replace them, even with --force."""
+    return [("data file", args.data)] + ([("edit file", args.edits)] if args.edits else [])
+
+
+def _check_output(args: argparse.Namespace) -> None:
+    """Refuse a bad output path before any analysis runs (exit 4)."""
+    if args.output is not None:
+        try:
+            check_output_path(args.output, overwrite=args.force, protect=_inputs(args))
+        except OutputError as exc:
+            raise CommandError(EXIT_NO_OUTPUT, str(exc)) from None
+
+
+def _emit(args: argparse.Namespace, text: str) -> None:
+    """Print ``text``, or write it atomically to ``--output``."""
+    if args.output is None:
+        sys.stdout.write(text)
+        return
+    try:
+        write_text_atomic(args.output, text, overwrite=args.force, protect=_inputs(args))
+    except OutputError as exc:
+        raise CommandError(EXIT_NO_OUTPUT, str(exc)) from None
+
+
 def _check(args: argparse.Namespace) -> int:
     from .report.text_summary import summary_text
 
+    _check_output(args)
     study = load_study(args)
-    sys.stdout.write(summary_text(study, cautions=not args.no_cautions))
+    _emit(args, summary_text(study, cautions=not args.no_cautions))
     return EXIT_OK
 
 
 def _report(args: argparse.Namespace) -> int:
     from .report import write_report
 
-    out = Path(args.output)
-    if out.is_dir():
-        raise CommandError(EXIT_NO_OUTPUT, f"{args.output!r} is a folder; give a file name such as report.html")
-    if not out.parent.exists():
-        raise CommandError(EXIT_NO_OUTPUT, f"folder {str(out.parent)!r} does not exist; create it or choose another")
+    _check_output(args)
     study = load_study(args)
     try:
-        write_report(study, out, title=args.title, scenario=args.scenario, charts=not args.no_charts)
-    except OSError as exc:
-        raise CommandError(EXIT_NO_OUTPUT, f"cannot write {args.output!r}: {exc.strerror or exc}") from None
+        out = write_report(study, args.output, title=args.title, scenario=args.scenario, charts=not args.no_charts,
+                           overwrite=args.force, protect=_inputs(args))
+    except OutputError as exc:
+        raise CommandError(EXIT_NO_OUTPUT, str(exc)) from None
     print(f"wrote {out} ({out.stat().st_size // 1024} KB): {study.results.decision()}")
     return EXIT_OK
 
 
 def _code(args: argparse.Namespace) -> int:
+    _check_output(args)
     study = load_study(args)
-    sys.stdout.write(study.to_code(data=args.data))
+    _emit(args, study.to_code(data=args.data))
     return EXIT_OK
 
 

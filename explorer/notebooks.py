@@ -61,11 +61,15 @@ study.battery()"""),
     ("markdown", """\
 ## Save and hand off
 
-The study file holds the edit log with reasons (not the data); the report opens in any
-browser without a network; the replay code rebuilds this state from the original file."""),
+The study file holds the model, the edit log with reasons and times, and every row id with a
+short digest of its values (not the values); the report opens in any browser without a
+network and shows the values it analysed; the replay code rebuilds this state from the
+original file. Files are written whole or not at all, and an existing file is replaced only
+with `overwrite=True` (here: the files of an earlier run of this notebook)."""),
     ("code", """\
-study.save("coating.study.json")
-study.report("coating-report.html", scenario="Coating line: do the four nozzles lay down the same film?")
+study.save("coating.study.json", overwrite=True)
+study.report("coating-report.html", scenario="Coating line: do the four nozzles lay down the same film?",
+             overwrite=True)
 print(study.disclosure.sentence())
 print(study.to_code())"""),
 )

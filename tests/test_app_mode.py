@@ -85,12 +85,20 @@ def test_app_page_buttons_save_the_review_and_write_the_report(tmp_path):
     save, report, status = page.children[-1].children
     save.click()
     assert "Saved 2 edit(s)" in status.value
-    log_path, report_path = review_paths(saved)
+    log_path, report_path = page.review_files
     assert log_path.name == "coating-reviewed.study.json"
     assert ex.Study.load(log_path, DEMO).results.partition == page.explorer.study.results.partition
     assert ex.Study.load(saved, DEMO).edits[-1].reason == REASON_6  # the sender's file is untouched
     report.click()
     assert report_path.exists() and REASON_70 in report_path.read_text(encoding="utf-8")
+    page.explorer.study.undo()
+    save.click()  # the page replaces its own file
+    report.click()
+    assert "Wrote the report" in status.value and len(ex.Study.load(log_path, DEMO).edits) == 1
+    # a second page on the same study file never replaces the first review
+    second = app_page(saved, DEMO)
+    assert second.review_files == review_paths(saved) != page.review_files
+    assert second.review_files[0].name == "coating-reviewed-2.study.json"
 
 
 @pytest.mark.browser

@@ -3,7 +3,7 @@
 from .analysis import analyze
 from .dataset import Dataset, SetAsideRow, build_dataset
 from .edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, edit_from_dict
-from .errors import ColumnError, DataError, DesignError, EditError, ExplorerError, ReplayError
+from .errors import ColumnError, DataError, DesignError, EditError, ExplorerError, OutputError, ReplayError
 from .groupstats import GroupStats, group_stats
 from .results import Fit, LevelTable, Results, TwoSampleT
 from .spec import ModelSpec
@@ -14,7 +14,7 @@ from .view import DataView
 __all__ = [
     "analyze", "Dataset", "SetAsideRow", "build_dataset", "DropRows", "Edit", "MergeLevels", "Reassign",
     "RenameLevel", "RestoreRows", "edit_from_dict", "ColumnError", "DataError", "DesignError", "EditError",
-    "ExplorerError", "ReplayError", "GroupStats", "group_stats", "Fit", "LevelTable", "Results", "TwoSampleT",
+    "ExplorerError", "OutputError", "ReplayError", "GroupStats", "group_stats", "Fit", "LevelTable", "Results", "TwoSampleT",
     "ModelSpec", "Disclosure", "Study", "StudyEvent", "AnovaTable", "TermRow", "DataView",
 ]
 

@@ -36,7 +36,11 @@ class DesignError(ExplorerError):
 
 
 class ReplayError(ExplorerError):
-    """A saved edit log does not fit the data it is being replayed on."""
+    """A saved edit log does not fit the data it is being replayed on, or the file is not a valid study file."""
+
+
+class OutputError(ExplorerError):
+    """A file cannot or must not be written (a folder, the data file, an existing file, a full disk)."""
 
 
 def closest_names(name: str, candidates: Iterable[str], n: int = 3) -> list[str]:

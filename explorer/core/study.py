@@ -21,6 +21,7 @@ from .analysis import analyze
 from .dataset import Dataset, RowId, SetAsideRow, build_dataset
 from .edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows
 from .errors import DesignError, EditError, ReplayError
+from .output_files import write_text_atomic
 from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 from .results import Results
 from .spec import ModelSpec
@@ -122,6 +123,8 @@ class Study:
         self.dataset = dataset
         self.spec = spec
         self.data_source = data_source  # the file the data came from, for replay code
+        self._read_files: list[Path] = [Path(data_source).resolve()] if data_source is not None else []
+        self._own_files: list[Path] = []  # study files this study was loaded from or saved to
         self._log: list[Edit] = []
         self._views: list[DataView] = [initial_view(dataset)]
         self._results: dict[int, Results] = {}
@@ -190,6 +193,8 @@ class Study:
     # ----------------------------------------------------------------- edits
     def apply(self, edit: Edit) -> Results:
         """Apply any edit; refuse it (state unchanged) if the result cannot be analysed."""
+        if not isinstance(edit.reason, str):
+            raise EditError(f"the reason must be text, not {type(edit.reason).__name__} ({edit.reason!r})")
         new_view = edit.apply(self.view, self.dataset)
         try:
             res = analyze(self.dataset, new_view, self.spec)
@@ -274,17 +279,39 @@ class Study:
     def to_dict(self) -> dict[str, Any]:
         return study_to_dict(self.dataset, self.spec, self._log, self._position, self._searches)
 
-    def save(self, path: str | Path) -> Path:
-        """Write the spec, data fingerprint and edit log (with undone edits) as JSON."""
-        p = Path(path)
-        p.write_text(json.dumps(self.to_dict(), indent=1), encoding="utf-8")
+    def save(self, path: str | Path, *, overwrite: bool = False) -> Path:
+        """Write the spec, data fingerprint and edit log (with undone edits) as JSON, atomically.
+
+        Saving over this study's own study file (the one it was loaded from or saved to
+        before) is allowed; any other existing file needs ``overwrite=True``; the data
+        file is never written over (:class:`~explorer.core.errors.OutputError`).
+        """
+        p = write_text_atomic(path, json.dumps(self.to_dict(), indent=1), overwrite=overwrite,
+                              protect=self.files_read(study_files=False), own=getattr(self, "_own_files", ()))
+        self._remember_own_file(p)
         return p
+
+    def files_read(self, *, study_files: bool = True) -> list[tuple[str, Path]]:
+        """The files this study reads (data files, and its study files unless ``study_files=False``).
+
+        No output of the kit replaces them, except ``save`` over the study's own study file.
+        """
+        out = [("data file", f) for f in getattr(self, "_read_files", ())]
+        return out + ([("study file", f) for f in getattr(self, "_own_files", ())] if study_files else [])
+
+    def _remember_own_file(self, path: str | Path) -> None:
+        files = self.__dict__.setdefault("_own_files", [])
+        resolved = Path(path).resolve()
+        if resolved not in files:
+            files.append(resolved)
 
     @classmethod
     def load(cls, path: str | Path, data: pd.DataFrame | str | Path, *, allow_mismatch: bool = False) -> "Study":
         """Replay a saved log on ``data``; refuse (saying what differs) if the data changed."""
         doc = read_study_file(path)
-        return cls.from_dict(doc, data, allow_mismatch=allow_mismatch)
+        study = cls.from_dict(doc, data, allow_mismatch=allow_mismatch)
+        study._remember_own_file(path)
+        return study
 
     @classmethod
     def from_dict(cls, doc: dict[str, Any], data: pd.DataFrame | str | Path, *, allow_mismatch: bool = False) -> "Study":
@@ -295,6 +322,7 @@ class Study:
             raise ReplayError(problem + ". Pass allow_mismatch=True to replay anyway (edits that no longer apply fail).")
         study = cls.from_dataset(dataset, spec)
         study.data_source = data if isinstance(data, (str, Path)) else None
+        study._read_files = [Path(data).resolve()] if isinstance(data, (str, Path)) else []
         edits = edits_from_doc(doc)
         position = int(doc.get("position", len(edits)))
         for i, e in enumerate(edits):
@@ -309,17 +337,29 @@ class Study:
         return study
 
     # ----------------------------------------------------------------- hand-off
-    def report(self, path: str | Path, *, title: str | None = None, scenario: str | None = None) -> Path:
-        """Write a self-contained HTML report (opens offline); see :mod:`explorer.report`."""
+    def report(self, path: str | Path, *, title: str | None = None, scenario: str | None = None,
+               overwrite: bool = False) -> Path:
+        """Write a self-contained HTML report (opens offline), atomically; see :mod:`explorer.report`.
+
+        An existing file needs ``overwrite=True``; the data and study files are never written over.
+        """
         from ..report import write_report  # lazy: the report may draw charts with altair
 
-        return write_report(self, path, title=title, scenario=scenario)
+        return write_report(self, path, title=title, scenario=scenario, overwrite=overwrite)
 
-    def to_code(self, data: str | Path | None = None) -> str:
-        """Python source that rebuilds this state from the original data (load, then each edit)."""
+    def to_code(self, data: str | Path | None = None, *, path: str | Path | None = None,
+                overwrite: bool = False) -> str:
+        """Python source that rebuilds this state from the original data (load, then each edit).
+
+        With ``path``, the source is also written there, atomically (an existing file needs
+        ``overwrite=True``; the data and study files are never written over).
+        """
         from ..report import study_to_code
 
-        return study_to_code(self, data)
+        code = study_to_code(self, data)
+        if path is not None:
+            write_text_atomic(path, code, overwrite=overwrite, protect=self.files_read())
+        return code
 
     def battery(self, **options: Any) -> Battery:
         """The one-way battery on the current view (see :func:`explorer.core.battery.run_battery` for options)."""

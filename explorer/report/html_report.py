@@ -13,11 +13,13 @@ from __future__ import annotations
 import html
 import json
 from datetime import datetime, timezone
+from collections.abc import Iterable
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 
+from ..core.output_files import check_output_path, write_text_atomic
 from ..core.tables import fmt
 from .cautions import cautions_html
 from .extras import Part, battery_part, sensitivity_part
@@ -201,9 +203,16 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
 
 
 def write_report(
-    study: "Study", path: str | Path, *, title: str | None = None, scenario: str | None = None, charts: bool = True
+    study: "Study", path: str | Path, *, title: str | None = None, scenario: str | None = None, charts: bool = True,
+    overwrite: bool = False, protect: Iterable[tuple[str, str | Path | None]] = (),
 ) -> Path:
-    """Write :func:`report_html` to ``path`` (UTF-8) and return the path."""
-    p = Path(path)
-    p.write_text(report_html(study, title=title, scenario=scenario, charts=charts), encoding="utf-8")
-    return p
+    """Write :func:`report_html` to ``path`` (UTF-8, atomically) and return the path.
+
+    The path is checked before the report is built: an existing file needs
+    ``overwrite=True``; the study's data and study files and ``protect`` (pairs of a
+    description and a path) are never written over.
+    """
+    guard = [*study.files_read(), *protect]
+    check_output_path(path, overwrite=overwrite, protect=guard)
+    page = report_html(study, title=title, scenario=scenario, charts=charts)
+    return write_text_atomic(path, page, overwrite=overwrite, protect=guard)

@@ -35,6 +35,7 @@ from ..core.factorial import factorial_from_cells
 from ..core.fitrows import RowSet
 from ..core.groupstats import pool_groups
 from ..core.oneway import oneway_from_stats
+from ..core.output_files import write_text_atomic
 from ..core.persistence import read_study_file
 from ..core.response_unit import SAFE, unit_exponent, unit_note
 from ..core.results import Results
@@ -101,8 +102,11 @@ class SummaryStudy(Study):
         spec = ModelSpec(response=response, factors=factors, blocks=blocks,  # type: ignore[arg-type]
                          interactions=interactions, ss_type=ss_type, alpha=alpha)  # type: ignore[arg-type]
         self._setup(as_source(source), spec, int(sample_size), int(seed))
+        self._read_files = _local_files(source)
 
     def _setup(self, source: Any, spec: ModelSpec, sample_size: int, seed: int) -> None:
+        self._read_files = _local_files(source)
+        self._own_files: list[Path] = []
         self.source = source
         self.spec = spec
         self.sample_size = max(sample_size, 0)
@@ -395,6 +399,8 @@ class SummaryStudy(Study):
     # ------------------------------------------------------------ edits
     def apply(self, edit: Edit) -> Results:
         """Apply an edit; refuse it (state unchanged) if the result cannot be analysed."""
+        if not isinstance(edit.reason, str):
+            raise EditError(f"the reason must be text, not {type(edit.reason).__name__} ({edit.reason!r})")
         old = self._summary_view
         if isinstance(edit, MergeLevels):
             busy = {lv for cond in old.set_aside for f, lv in cond if f == edit.factor}
@@ -523,16 +529,20 @@ class SummaryStudy(Study):
             "searches": self._searches,
         }
 
-    def save(self, path: str | Path) -> Path:
-        """Write the spec, the summaries' fingerprint and the edit log (with undone edits) as JSON."""
-        p = Path(path)
-        p.write_text(json.dumps(self.to_dict(), indent=1), encoding="utf-8")
+    def save(self, path: str | Path, *, overwrite: bool = False) -> Path:
+        """Write the spec, the summaries' fingerprint and the edit log (with undone edits) as JSON, atomically
+        (same refusals as :meth:`explorer.core.Study.save`)."""
+        p = write_text_atomic(path, json.dumps(self.to_dict(), indent=1), overwrite=overwrite,
+                              protect=self.files_read(study_files=False), own=self._own_files)
+        self._remember_own_file(p)
         return p
 
     @classmethod
     def load(cls, path: str | Path, data: Any, *, allow_mismatch: bool = False) -> SummaryStudy:  # type: ignore[override]
         """Replay a saved log on ``data`` (same kinds of source as the constructor takes)."""
-        return cls.from_dict(read_study_file(path, FORMAT), data, allow_mismatch=allow_mismatch)
+        study = cls.from_dict(read_study_file(path, FORMAT), data, allow_mismatch=allow_mismatch)
+        study._remember_own_file(path)
+        return study
 
     @classmethod
     def from_dict(cls, doc: dict[str, Any], data: Any, *, allow_mismatch: bool = False) -> SummaryStudy:  # type: ignore[override]
@@ -545,6 +555,7 @@ class SummaryStudy(Study):
         sample = doc.get("sample", {})
         study = cls.__new__(cls)
         study._setup(as_source(data), spec, int(sample.get("size", 2000)), int(sample.get("seed", 0)))
+        study._read_files = _local_files(data)
         saved = doc.get("data", {})
         if saved.get("fingerprint") != study.fingerprint and not allow_mismatch:
             raise ReplayError(
@@ -573,15 +584,18 @@ class SummaryStudy(Study):
     def to_code(self, data: str | Path | None = None) -> str:
         """Python source that rebuilds this state: build the summary study, then apply each edit."""
         s = self.spec
+        from ..report.replay_code import python_literal as lit
+
+        source = str(data) if data is not None else "<your files or Spark DataFrame>"
         lines = [
             "from explorer.core.edits import edit_from_dict",
             "from explorer.summaries import SummaryStudy",
-            f"study = SummaryStudy({str(data) if data is not None else '<your files or Spark DataFrame>'!r}, "
-            f"response={s.response!r}, factors={list(s.factors)!r}, blocks={list(s.blocks)!r}, "
-            f"interactions={s.interactions!r}, ss_type={s.ss_type!r}, alpha={s.alpha!r}, "
-            f"sample_size={self.sample_size!r}, seed={self.seed!r})",
+            f"study = SummaryStudy({lit(source)}, "
+            f"response={lit(s.response)}, factors={lit(list(s.factors))}, blocks={lit(list(s.blocks))}, "
+            f"interactions={lit(bool(s.interactions))}, ss_type={lit(s.ss_type)}, alpha={lit(float(s.alpha))}, "
+            f"sample_size={lit(int(self.sample_size))}, seed={lit(int(self.seed))})",
         ]
-        lines += [f"study.apply(edit_from_dict({e.to_dict()!r}))" for e in self.edits]
+        lines += [f"study.apply(edit_from_dict({lit(e.to_dict())}))" for e in self.edits]
         return "\n".join(lines) + "\n"
 
     def __repr__(self) -> str:
@@ -592,6 +606,12 @@ class SummaryStudy(Study):
 def _type_name(t: Any) -> str:
     """An engine's type for messages: DuckDB gives text, Spark a type object."""
     return t if isinstance(t, str) else str(getattr(t, "simpleString", lambda: t)())
+
+
+def _local_files(source: Any) -> list[Path]:
+    """The existing local files named by a source argument (a path or a list of paths), resolved."""
+    items = source if isinstance(source, (list, tuple)) else [source]
+    return [Path(x).resolve() for x in items if isinstance(x, (str, Path)) and Path(x).is_file()]
 
 
 def _ro(a: np.ndarray) -> np.ndarray:
