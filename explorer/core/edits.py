@@ -8,6 +8,7 @@ edit register themselves with :func:`register_edit` and plug into the study unch
 from __future__ import annotations
 
 import dataclasses
+import re
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from typing import Any, ClassVar
@@ -35,6 +36,20 @@ EDIT_KINDS: dict[str, type["Edit"]] = {}
 
 def utc_now() -> str:
     return datetime.now(timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
+
+
+_UTC_TIME = re.compile(r"\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}(\.\d{1,6})?(Z|\+00:00)", re.ASCII)
+
+
+def check_utc_time(text: object, where: str = "time") -> str:
+    """``text`` if it is an ISO 8601 UTC time as the kit writes it (``2026-03-01T09:30:00Z``), else ReplayError."""
+    if not isinstance(text, str) or not _UTC_TIME.fullmatch(text):
+        raise ReplayError(f"{where}: {text!r} is not an ISO 8601 UTC time such as '2026-03-01T09:30:00Z'")
+    try:
+        datetime.fromisoformat(text.replace("Z", "+00:00"))
+    except ValueError as exc:
+        raise ReplayError(f"{where}: {text!r} is not a real time ({exc})") from None
+    return text
 
 
 def register_edit(cls: type["Edit"]) -> type["Edit"]:
@@ -106,6 +121,10 @@ def edit_from_dict(d: dict[str, Any]) -> Edit:
         if k not in names:
             raise ReplayError(f"edit of kind {kind!r} has an unknown field {k!r}")
         kwargs[k] = tuple(v) if isinstance(v, list) else v
+    if not isinstance(kwargs.get("reason", ""), str):
+        raise ReplayError(f"reason: must be text, not {type(kwargs['reason']).__name__}")
+    if "at" in kwargs:
+        check_utc_time(kwargs["at"], "at")
     return cls(**kwargs)
 
 

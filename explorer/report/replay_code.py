@@ -3,13 +3,21 @@
 The code uses only the public API (``Study`` and its edit methods), so a colleague can
 paste it into a cell or run it as a script and land in the same state: the same view,
 hence the same results, bit for bit (the analysis is a pure function of the data, the
-model spec and the ordered edits). Edit times are kept as comments; undone edits are not
-replayed but listed, and the sensitivity searches are re-counted so the disclosure
-(``study.disclosure``) still shows how many alternatives were examined.
+model spec and the ordered edits). Undone edits are not replayed but listed, and the
+sensitivity searches are re-counted so the disclosure (``study.disclosure``) still shows
+how many alternatives were examined.
+
+Safety: every value that comes from the user or a file (column and level names, row
+ids, reasons, edit times, paths) enters the code only as a Python literal built by
+:func:`python_literal` (``repr`` of plain values), never inside a comment or as bare
+text; comments hold only the kit's own words and numbers. So a newline or a quote in a
+reason or a file name cannot become a statement.
 """
 
 from __future__ import annotations
 
+import keyword
+import math
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -18,14 +26,38 @@ from ..core.edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, Res
 if TYPE_CHECKING:
     from ..core.study import Study
 
-__all__ = ["study_to_code", "edit_to_code"]
+__all__ = ["study_to_code", "edit_to_code", "python_literal"]
 
 
-def _lit(value: Any) -> str:
-    """A Python literal for ``value`` (tuples become lists, as the edit methods take lists)."""
-    if isinstance(value, tuple):
-        return "[" + ", ".join(_lit(v) for v in value) + "]"
-    return repr(value)
+def python_literal(value: Any) -> str:
+    """Python source for a plain value: str, int, float, bool, None, and lists/tuples/dicts of them.
+
+    Tuples become lists (the edit methods take lists); non-finite floats become
+    ``float('nan')``-style calls; anything else is refused with ``TypeError``, so no
+    object's own ``repr`` ever reaches the code.
+    """
+    if value is None or isinstance(value, (bool, str)):
+        return repr(value)
+    if isinstance(value, int):
+        return repr(int(value))
+    if isinstance(value, float):
+        return repr(value) if math.isfinite(value) else f"float({repr(str(value))})"
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(python_literal(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "{" + ", ".join(f"{python_literal(k)}: {python_literal(v)}" for k, v in value.items()) + "}"
+    if hasattr(value, "item") and callable(value.item):  # numpy scalars
+        return python_literal(value.item())
+    raise TypeError(f"cannot write a value of type {type(value).__name__} into replay code")
+
+
+_lit = python_literal
+
+
+def _name(name: str) -> str:
+    if not (isinstance(name, str) and name.isidentifier() and not keyword.iskeyword(name)):
+        raise ValueError(f"the study's variable name must be a Python identifier, not {name!r}")
+    return name
 
 
 def edit_to_code(edit: Edit, name: str = "study") -> str:
@@ -35,34 +67,35 @@ def edit_to_code(edit: Edit, name: str = "study") -> str:
     registered kind (subclasses included) is rebuilt from its saved form with
     ``edit_from_dict``.
     """
-    r = f"reason={edit.reason!r}"
+    name = _name(name)
+    r = f"reason={_lit(edit.reason)}"
     if type(edit) is DropRows:
         return f"{name}.drop({_lit(edit.rows)}, {r})"
     if type(edit) is RestoreRows:
         return f"{name}.restore({_lit(edit.rows)}, {r})"
     if type(edit) is Reassign:
-        return f"{name}.reassign({edit.row!r}, {edit.factor!r}, {edit.level!r}, {r})"
+        return f"{name}.reassign({_lit(edit.row)}, {_lit(edit.factor)}, {_lit(edit.level)}, {r})"
     if type(edit) is MergeLevels:
-        return f"{name}.merge_levels({edit.factor!r}, {_lit(edit.levels)}, into={edit.into!r}, {r})"
+        return f"{name}.merge_levels({_lit(edit.factor)}, {_lit(edit.levels)}, into={_lit(edit.into)}, {r})"
     if type(edit) is RenameLevel:
-        return f"{name}.rename_level({edit.factor!r}, {edit.old!r}, {edit.new!r}, {r})"
-    return f"{name}.apply(ex.edit_from_dict({edit.to_dict()!r}))"
+        return f"{name}.rename_level({_lit(edit.factor)}, {_lit(edit.old)}, {_lit(edit.new)}, {r})"
+    return f"{name}.apply(ex.edit_from_dict({_lit(edit.to_dict())}))"
 
 
 def _spec_args(study: "Study") -> str:
     spec = study.spec
     factors = spec.factors[0] if len(spec.factors) == 1 else list(spec.factors)
-    args = [f"response={spec.response!r}", f"factors={factors!r}"]
+    args = [f"response={_lit(spec.response)}", f"factors={_lit(factors)}"]
     if spec.blocks:
-        args.append(f"blocks={list(spec.blocks)!r}")
+        args.append(f"blocks={_lit(list(spec.blocks))}")
     if not spec.interactions:
         args.append("interactions=False")
     if spec.ss_type != "II":
-        args.append(f"ss_type={spec.ss_type!r}")
+        args.append(f"ss_type={_lit(spec.ss_type)}")
     if spec.alpha != 0.05:
-        args.append(f"alpha={spec.alpha!r}")
+        args.append(f"alpha={_lit(float(spec.alpha))}")
     if study.dataset.id_column is not None:
-        args.append(f"id_column={study.dataset.id_column!r}")
+        args.append(f"id_column={_lit(study.dataset.id_column)}")
     args.extend(_role_args(spec))
     return ", ".join(args)
 
@@ -71,16 +104,16 @@ def _role_args(spec) -> list[str]:
     """Model terms and the roles of random, nested and repeated-measures designs (only when used)."""
     out = []
     if spec.terms is not None:
-        out.append(f"terms={[' × '.join(t) if len(t) > 1 else t[0] for t in spec.terms]!r}")
+        out.append(f"terms={_lit([' × '.join(t) if len(t) > 1 else t[0] for t in spec.terms])}")
     if spec.max_order is not None:
-        out.append(f"max_order={spec.max_order!r}")
+        out.append(f"max_order={_lit(int(spec.max_order))}")
     if spec.random:
-        out.append(f"random={list(spec.random)!r}")
+        out.append(f"random={_lit(list(spec.random))}")
     if spec.nested:
-        out.append(f"nested={ {inner: (p[0] if len(p) == 1 else list(p)) for inner, p in spec.nested}!r}")
+        out.append(f"nested={_lit({inner: (p[0] if len(p) == 1 else list(p)) for inner, p in spec.nested})}")
     if spec.subject is not None:
-        out.append(f"subject={spec.subject!r}")
-        out.append(f"within={list(spec.within)!r}")
+        out.append(f"subject={_lit(spec.subject)}")
+        out.append(f"within={_lit(list(spec.within))}")
     return out
 
 
@@ -93,7 +126,7 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
     data : path of the data file to load. Default: the path the study was built from
         (``study.data_source``); a study built from a DataFrame expects a DataFrame
         called ``data`` to exist where the code runs.
-    name : variable name of the study in the code.
+    name : variable name of the study in the code (a Python identifier).
 
     Returns
     -------
@@ -101,12 +134,17 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
         Source code; ``exec`` it (or paste it) to get a study whose ``results`` equal
         ``study.results`` exactly.
     """
+    name = _name(name)
     src = data if data is not None else getattr(study, "data_source", None)
     ds = study.dataset
+    aside = f", {len(ds.set_aside)} set aside at load for missing values" if ds.set_aside else ""
     lines = [
         "# Replay of an analysis-of-variance study: the original data, then each edit with its reason.",
-        f"# Data: {ds.source} (fingerprint {ds.fingerprint}, {len(ds.table)} rows"
-        + (f", {len(ds.set_aside)} set aside at load for missing values)" if ds.set_aside else ")"),
+        f"# The data: {len(ds.table)} rows{aside}; their source and fingerprint:",
+        f"source = {_lit(ds.source)}",
+        f"fingerprint = {_lit(ds.fingerprint)}",
+        "# When each edit in effect was made (UTC), in order:",
+        f"made_at = {_lit([e.at for e in study.edits])}",
         "import explorer as ex",
         "",
     ]
@@ -114,20 +152,18 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
         lines.append("# The study was built from a DataFrame: define `data` (the same table) before running this.")
         data_expr = "data"
     else:
-        data_expr = repr(str(Path(src).as_posix()) if isinstance(src, Path) else str(src))
+        data_expr = _lit(Path(src).as_posix() if isinstance(src, Path) else str(src))
     lines.append(f"{name} = ex.Study({data_expr}, {_spec_args(study)})")
-    lines.append(f"assert {name}.dataset.fingerprint == {ds.fingerprint!r}, 'the data differ from the original'")
+    lines.append(f"assert {name}.dataset.fingerprint == fingerprint, 'the data differ from the original'")
     for i, edit in enumerate(study.edits, 1):
-        lines.append(f"{edit_to_code(edit, name)}  # edit {i}, made {edit.at}")
+        lines.append(f"{edit_to_code(edit, name)}  # edit {i}, made at made_at[{i - 1}]")
     undone = study.redo_edits
     if undone:
-        lines.append(f"# {len(undone)} undone edit(s), not replayed:")
-        lines.extend(f"#   {edit_to_code(e, name)}  # made {e.at}" for e in undone)
+        lines.append(f"# {len(undone)} undone edit(s), kept for redo and not replayed, in their saved form:")
+        lines.append(f"undone = {_lit([e.to_dict() for e in undone])}")
     for search in getattr(study, "_searches", []):
-        lines.append(f"{name}.record_search({str(search.get('what', ''))!r}, {int(search.get('count', 0))})")
-    d = study.disclosure
-    lines.append(
-        f"# Disclosure of the original study: {d.sentence()}."
-    )
+        lines.append(f"{name}.record_search({_lit(str(search.get('what', '')))}, {int(search.get('count', 0))})")
+    lines.append("# Disclosure of the original study, to compare with study.disclosure.sentence():")
+    lines.append(f"original_disclosure = {_lit(study.disclosure.sentence())}")
     lines.append(f"{name}.results")
     return "\n".join(lines) + "\n"
