@@ -136,3 +136,25 @@ def test_residuals_fitted_leverage():
     assert np.allclose(r.fit.fitted, np.repeat([5.34, 7.72, 8.56], 5))
     assert np.allclose(r.fit.residuals + r.fit.fitted, r.fit.y)
     assert np.allclose(r.fit.leverage, 0.2)
+
+
+@pytest.mark.parametrize("ss_type", ["I", "II", "III"])
+def test_one_factor_table_says_the_types_coincide(ss_type):
+    """One factor: whatever type is asked for, the table records it and its caption says that
+    types I, II and III coincide (one term: each type's SS is the between-level SS; Montgomery,
+    DAE ch. 3), never "type I" for a study asked for type III. Same through the general engine."""
+    from explorer.core.dataset import build_dataset
+    from explorer.core.factorial import fit_factorial
+    from explorer.core.spec import ModelSpec
+    from explorer.core.view import initial_view
+
+    frame = pd.DataFrame({"g": list("aabbbccc"), "y": [1.0, 2.0, 4.0, 5.0, 5.5, 7.0, 8.0, 9.5]})
+    table = ex.Study(frame, "y", "g", ss_type=ss_type).results.partition
+    assert table.ss_type == ss_type and table.types_coincide
+    caption = table._repr_html_()
+    assert "types I, II and III sums of squares coincide" in caption and f"type {ss_type} sums" not in caption
+    ds = build_dataset(frame, "y", ["g"])
+    general = fit_factorial(ds, initial_view(ds), ModelSpec(response="y", factors=("g",), ss_type=ss_type),
+                            positions=np.arange(ds.n)).partition
+    assert general.types_coincide and general.ss_type == ss_type
+    assert not ex.Study(frame.assign(h=list("xyxyxyxy")), "y", ["g", "h"]).results.partition.types_coincide

@@ -35,8 +35,12 @@ def _zero_residual(ss_within: float, gs: GroupStats) -> bool:
     return bool(ss_within <= gs.n_total * (8 * np.finfo(float).eps * scale) ** 2)
 
 
-def oneway_partition(gs: GroupStats, factor: str) -> tuple[AnovaTable, AnovaTable, tuple[str, ...]]:
-    """Corrected and uncorrected partitions from sufficient statistics (non-empty groups)."""
+def oneway_partition(gs: GroupStats, factor: str, ss_type: str = "I") -> tuple[AnovaTable, AnovaTable, tuple[str, ...]]:
+    """Corrected and uncorrected partitions from sufficient statistics (non-empty groups).
+
+    With one factor the three types of sums of squares coincide; the table records the
+    type asked for (``ss_type``) and says that they coincide.
+    """
     n, k = gs.n_total, gs.k
     ssb, ssw = gs.ss_between, gs.ss_within
     df_b, df_w = k - 1, n - k
@@ -61,7 +65,8 @@ def oneway_partition(gs: GroupStats, factor: str) -> tuple[AnovaTable, AnovaTabl
             TermRow(source="residual", df=df_w, sum_sq=ssw, mean_sq=msw),
             TermRow(source="total (corrected)", df=n - 1, sum_sq=ssb + ssw),
         ),
-        ss_type="I",
+        ss_type=ss_type,
+        types_coincide=True,
         notes=tuple(notes),
     )
     gm = gs.grand_mean + gs.offset
@@ -139,7 +144,7 @@ def oneway_from_stats(
             "the F test needs at least one level with two or more"
         )
     remap = np.cumsum(full.n > 0) - 1
-    table, raw, part_notes = oneway_partition(gs, factor)
+    table, raw, part_notes = oneway_partition(gs, factor, spec.ss_type)
     notes.extend(part_notes)
     df_w = n - k
     msw = float(table.rows[1].mean_sq or 0.0)

@@ -82,7 +82,9 @@ class TermRow:
 class AnovaTable:
     """A sums-of-squares partition: one row per source, then the residual and the total.
 
-    ``ss_type`` and ``coding`` record how the term sums of squares were computed.
+    ``ss_type`` and ``coding`` record how the term sums of squares were computed (the
+    type asked for); ``types_coincide`` is True when the model has a single term, so that
+    types I, II and III are the same sums of squares and the caption says so.
     """
 
     rows: tuple[TermRow, ...]
@@ -92,6 +94,7 @@ class AnovaTable:
     notes: tuple[str, ...] = field(default=())
     #: (term, what it is aliased with) for terms left out because the cells cannot separate them.
     aliased: tuple[tuple[str, str], ...] = field(default=())
+    types_coincide: bool = False
 
     def row(self, source: str) -> TermRow:
         for r in self.rows:
@@ -102,6 +105,13 @@ class AnovaTable:
     @property
     def sources(self) -> tuple[str, ...]:
         return tuple(r.source for r in self.rows)
+
+    @property
+    def ss_caption(self) -> str:
+        """Which sums of squares the table holds, in words."""
+        if self.types_coincide:
+            return "one term: types I, II and III sums of squares coincide"
+        return f"type {self.ss_type} sums of squares"
 
     def to_frame(self) -> pd.DataFrame:
         """The table as a DataFrame with the trade's column names (full precision)."""
@@ -114,7 +124,7 @@ class AnovaTable:
         return frame
 
     def _repr_html_(self) -> str:
-        caption = f"{self.title} (type {self.ss_type} sums of squares)"
+        caption = f"{self.title} ({self.ss_caption})"
         out = html_table(self.to_frame(), caption, self.notes)
         if self.aliased:  # named inside the table, below the fitted terms
             width = len(self.to_frame().columns)

@@ -73,8 +73,7 @@ def _provenance(study: "Study") -> str:
     ]
     if study.spec.blocks:
         rows.append(("blocks", html.escape(", ".join(study.spec.blocks))))
-    if not study.spec.is_oneway:
-        rows.append(("sums of squares", f"type {html.escape(study.spec.ss_type)}"))
+    rows.append(("sums of squares", html.escape(study.results.partition.ss_caption)))
     rows.append(("decisions read at alpha", f"{study.spec.alpha:g}"))
     out = _kv_table(rows)
     if ds.set_aside:
