@@ -83,7 +83,8 @@ def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:
         notes.append("F is undefined: the residual sum of squares is zero (the model fits every observation).")
     notes.extend(a.sentence() for a in fit.aliased)
     aliased = tuple((a.name, ", ".join(a.aliased_with)) for a in fit.aliased)
-    return AnovaTable(rows=tuple(rows), ss_type=ss_type, coding=CODING, notes=tuple(notes), aliased=aliased)
+    return AnovaTable(rows=tuple(rows), ss_type=ss_type, coding=CODING, notes=tuple(notes), aliased=aliased,
+                      types_coincide=len(fit.terms) == 1)
 
 
 def _types_agree(tables: dict[str, AnovaTable], fit: CellFit) -> bool:
@@ -279,7 +280,7 @@ def factorial_from_cells(
         levels[f] = _level_table(gs, f, ms_f, df_f, confidence)
         if f not in nested and f not in spec.random:
             means[f] = marginal_means(fit, f, layout.levels[j], gs.original_means, gs.n, ms_f, confidence, df=df_f)
-    effects = term_effects(table, fit.term_names(), fit.n)
+    effects = term_effects(table, fit.term_names(), fit.n, alpha=spec.alpha)
 
     row_fit_ = row_fit(rows, fit.cell_fitted, fit.cell_leverage, cells.offset)
     kind = "randomized block" if spec.blocks else "factorial"

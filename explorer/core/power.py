@@ -22,9 +22,8 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
 import numpy as np
-from scipy import special, stats
-
 from .errors import ExplorerError
+from .noncentral_f import f_test_power as _f_power
 from .oneway_inputs import require_oneway
 from .tables import fmt
 
@@ -45,13 +44,8 @@ def _check_args(effect_f: float, k: int, alpha: float) -> None:
 
 def _power(effect_f: float, k: int, n_total: np.ndarray, alpha: float) -> np.ndarray:
     """Power for an array of total sizes (vectorised noncentral F upper tail)."""
-    df1 = k - 1
-    df2 = n_total - k
-    crit = special.fdtri(df1, df2, 1 - alpha)  # the (1 - alpha) quantile, not a tail probability
-    lam = n_total * effect_f**2
-    if effect_f == 0:
-        return np.full(np.shape(n_total), float(alpha))
-    return np.asarray(stats.ncf.sf(crit, df1, df2, lam), dtype=float)
+    n_total = np.asarray(n_total, dtype=float)
+    return np.broadcast_to(_f_power(n_total * effect_f**2, k - 1, n_total - k, alpha), n_total.shape).astype(float)
 
 
 def f_test_power(effect_f: float, k: int, n_total: int, alpha: float = 0.05) -> float:
