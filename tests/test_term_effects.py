@@ -110,3 +110,17 @@ def test_one_factor_term_effects_equal_the_oneway_effect_sizes_and_power() -> No
     np.testing.assert_allclose(general.ci_partial, es.ci_proportion, rtol=1e-8)
     assert general.power == pytest.approx(plan.power, rel=1e-9)
     assert general.excludes_zero == es.excludes_zero
+
+
+def test_terms_tested_against_another_error_term_get_no_interval() -> None:
+    """A fixed, B random: A and B are tested against A × B (not the residual), so the
+    residual-based noncentral-F interval and power would not describe their tests; they are
+    left out with a note, while A × B (tested against the residual) keeps them."""
+    rng = np.random.default_rng(11)
+    rows = [(a, b) for a in "pqr" for b in "vwxyz" for _ in range(3)]
+    frame = pd.DataFrame(rows, columns=["A", "B"])
+    frame["y"] = rng.normal(size=len(frame)) + frame.B.map(dict(zip("vwxyz", rng.normal(size=5))))
+    eff = ex.Study(frame, "y", ["A", "B"], random=["B"]).results.term_effects
+    assert eff["A"].ci_partial is None and eff["A"].power is None and eff["A"].eta_squared is not None
+    assert eff["A × B"].ci_partial is not None and eff["A × B"].power is not None
+    assert any("another error term" in n for n in eff.notes)

@@ -156,11 +156,12 @@ def term_effects(table: AnovaTable, terms: tuple[str, ...], n: int, *, alpha: fl
                     "(no effect detectable); read it as zero."
                 )
             cohens_f = float(np.sqrt(r.sum_sq / ss_e))
-            if r.error_term is not None:  # tested against another mean square (random terms)
+            own_error = r.error_term not in (None, "residual")  # tested against another mean square (random terms)
+            if own_error:
                 other_error.append(name)
             else:
                 power = float(f_test_power(n * cohens_f**2, r.df, df_e, alpha))
-            if r.statistic is not None and r.error_term is None:
+            if r.statistic is not None and not own_error:
                 lo, hi = noncentrality_interval(float(r.statistic), r.df, df_e, conf)
                 ci_p = (lo / (lo + n), hi / (hi + n))
                 ci_f = (float(np.sqrt(lo / n)), float(np.sqrt(hi / n)))
