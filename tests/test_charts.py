@@ -115,6 +115,33 @@ def test_cooks_distance_matches_statsmodels():
     assert drawn["3"] == pytest.approx(float(ref.iloc[3]))
 
 
+def _text_rows(spec: dict) -> list[str]:
+    (text,) = [la for la in _layers(spec) if la["mark"]["type"] == "text"]
+    return [r["row"] for r in _values(spec, text)]
+
+
+def test_cooks_distance_names_the_rows_past_the_4_over_n_line():
+    """Reference: statsmodels OLSInfluence(ols('y ~ C(level)')).cooks_distance; the rows named are those
+    above 4/n (the cut-off the chart states), on NIST e-Handbook 7.4.3.3 data with two planted readings."""
+    df = _handbook()
+    df.loc[3, "y"], df.loc[11, "y"] = 1.5, 12.9
+    ref = OLSInfluence(ols("y ~ C(level)", data=df).fit()).cooks_distance[0].to_numpy()
+    expected = sorted(str(i) for i in np.flatnonzero(ref > 4 / len(df)))
+    assert expected  # the planted readings are past the line
+    spec = charts.cooks_distance_chart(ex.Study(df, "y", "level").results).to_dict()
+    assert sorted(_text_rows(spec)) == expected
+    assert any(f"Labelled: the {len(expected)} row(s) past the 4/n line" in s for s in spec["title"]["subtitle"])
+
+
+def test_labels_are_capped_to_the_rows_furthest_past_the_line():
+    frame = pd.DataFrame({"row": [f"r{i}" for i in range(30)], "order": range(30), "d": np.arange(30.0)})
+    text, named = charts.style.id_labels(frame, frame["d"] > 2, frame["d"], "order", "d", what="the line", limit=5)
+    assert sorted(text.data["row"]) == ["r25", "r26", "r27", "r28", "r29"]
+    assert named == "Labelled: the 5 rows furthest past the line (of 27)."
+    none, said = charts.style.id_labels(frame, frame["d"] > 99, frame["d"], "order", "d", what="the line")
+    assert none is None and said == "No row is past the line."
+
+
 def test_cooks_distance_undefined_for_a_level_of_one():
     df = pd.DataFrame({"g": ["a", "a", "a", "b", "b", "c"], "y": [1.0, 2.0, 3.5, 4.0, 5.5, 9.0]})
     results = ex.Study(df, "y", "g").results
@@ -161,6 +188,9 @@ def test_case_deletion_chart_marks_the_rows_that_flip():
     flips = {r["row"] for r in rows if r["effect"] == "flips the decision"}
     assert flips == {str(r) for r in scan.flip_rows} and len(rows) == study.results.n_used
     assert spec["params"][0]["name"] == "pick"
+    # the flip rows are named on the chart (at most MAX_LABELS of them, the p-values moved most)
+    named = set(_text_rows(spec))
+    assert named <= flips and len(named) == min(len(flips), charts.style.MAX_LABELS)
 
 
 def test_specification_curve_has_every_specification_in_rank_order():

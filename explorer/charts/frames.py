@@ -14,6 +14,9 @@ import numpy as np
 import pandas as pd
 
 from explorer.core import Results, Study
+from explorer.core.moves import moved_mask
+
+from .style import IN_ANALYSIS, LEFT_OUT_STATE, MOVED_STATE
 
 __all__ = [
     "MAX_POINTS",
@@ -117,6 +120,7 @@ def observation_frame(study: Study, max_points: int = MAX_POINTS, factor: str | 
     ds, view = study.dataset, study.view
     f = factor or study.spec.factors[0]
     kept = np.asarray(view.kept)
+    moved = moved_mask(ds, view, study.edits, f)
     fit = study.results.fit
     resid = np.full(ds.n, np.nan)
     resid[fit.positions] = fit.residuals
@@ -125,14 +129,17 @@ def observation_frame(study: Study, max_points: int = MAX_POINTS, factor: str | 
     ids = ds.row_ids[pos]
     level = view.labels(f)[pos]
     value = ds.y_original[pos]
-    state = np.where(kept[pos], "in analysis", "left out")
+    state = np.where(~kept[pos], LEFT_OUT_STATE, np.where(moved[pos], MOVED_STATE, IN_ANALYSIS))
+    recorded = np.asarray(ds.levels[f], dtype=object)[ds.codes[f][pos]].astype(str)
     out = pd.DataFrame({
         "row": [str(i) for i in ids.tolist()],
         "order": pos,
         "level": level.astype(str),
         "value": value,
         "state": state,
+        "recorded": recorded,
         "jitter": _jitter(ds.n)[pos],
+        "z": np.where(state == MOVED_STATE, 2, np.where(state == LEFT_OUT_STATE, 1, 0)),  # drawn on top
     })
     out["aria"] = [f"row {r}: {f} {lv}, {study.spec.response} {v:.6g}, {s}"
                    for r, lv, v, s in zip(out["row"], out["level"], value, state)]

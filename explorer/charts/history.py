@@ -14,6 +14,8 @@ import pandas as pd
 
 from .style import CURRENT, GUIDE, WIDTH, finish
 
+R2 = "#5b9a48"
+
 __all__ = ["HistoryStep", "history_chart"]
 
 
@@ -28,24 +30,26 @@ class HistoryStep:
     edits_in_effect: int
 
 
-def history_chart(steps: Sequence[HistoryStep], alpha: float, *, width: int = WIDTH, height: int = 110
+def history_chart(steps: Sequence[HistoryStep], alpha: float, *, width: int | str = WIDTH, height: int = 160
                   ) -> alt.TopLevelMixin:
-    """p-value (log scale, alpha line) above R², one point per step."""
+    """p-value (log scale, left axis, with the alpha line) and R² (right axis), one point per step."""
     frame = pd.DataFrame([{
         "step": s.step, "action": s.action, "p": s.pvalue, "r2": s.r_squared, "edits": s.edits_in_effect,
     } for s in steps])
     if frame.empty:
         frame = pd.DataFrame({"step": [], "action": [], "p": [], "r2": [], "edits": []})
     tip = [alt.Tooltip("step:Q"), alt.Tooltip("action:N", title="what was done"),
-           alt.Tooltip("edits:Q", title="edits in effect"), alt.Tooltip("p:Q", title="p-value", format=".4g"),
-           alt.Tooltip("r2:Q", title="R²", format=".4f")]
+           alt.Tooltip("edits:Q", title="edits in effect"), alt.Tooltip("p:Q", title="p-value", format=".3g"),
+           alt.Tooltip("r2:Q", title="R²", format=".3f")]
     x = alt.X("step:O", title="step", axis=alt.Axis(labelAngle=0))
     base = alt.Chart(frame).encode(x=x, tooltip=tip)
     pv = base.mark_line(point=True, color=CURRENT).encode(
-        y=alt.Y("p:Q", title="p-value (log)", scale=alt.Scale(type="log")))
+        y=alt.Y("p:Q", title="p-value (log, left)", scale=alt.Scale(type="log"),
+                axis=alt.Axis(titleColor=CURRENT, orient="left")))
     cut = alt.Chart().mark_rule(color=GUIDE, strokeDash=[4, 3]).encode(y=alt.datum(alpha))
-    top = alt.layer(pv, cut).properties(width=width, height=height)
-    r2 = base.mark_line(point=True, color="#5b9a48").encode(
-        y=alt.Y("r2:Q", title="R²", scale=alt.Scale(domain=[0, 1]))).properties(width=width, height=height * 0.7)
-    sub = f"Dashed line: alpha = {alpha:g}. Every step counts, undone ones too."
-    return finish(alt.vconcat(top, r2, spacing=8), "p-value and R² after each step", sub)
+    r2 = base.mark_line(point=alt.OverlayMarkDef(shape="square"), color=R2, strokeDash=[2, 2]).encode(
+        y=alt.Y("r2:Q", title="R² (right)", scale=alt.Scale(domain=[0, 1]), axis=alt.Axis(titleColor=R2, orient="right")))
+    chart = alt.layer(alt.layer(pv, cut), r2).resolve_scale(y="independent").properties(width=width, height=height)
+    sub = [f"Blue line: p-value (left axis), red dashes: alpha = {alpha:g}; green dotted line: R² (right axis).",
+           "Every step counts, undone ones too."]
+    return finish(chart, "p-value and R² after each step", sub)

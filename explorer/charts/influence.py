@@ -16,7 +16,7 @@ from explorer.core.influence import Influence, influence_measures
 
 from .frames import MAX_POINTS, RowColumns, fit_frame, thin
 from .observations import pick_param, row_marks
-from .style import GUIDE, HEIGHT, KEPT, WIDTH, finish
+from .style import GUIDE, HEIGHT, KEPT, WIDTH, finish, id_labels
 
 __all__ = ["cooks_distance_chart", "influence_of"]
 
@@ -54,7 +54,11 @@ def cooks_distance_chart(results: Results, *, max_points: int = MAX_POINTS, widt
                                    y=alt.Y("distance:Q", title="Cook's distance"))
     stems = base.mark_rule(color=KEPT, opacity=0.5).encode(y2=alt.datum(0))
     guide = alt.Chart().mark_rule(color=GUIDE, strokeDash=[4, 3]).encode(y=alt.datum(yard))
-    chart = alt.layer(stems, guide, row_marks(base, pick_param(), tip, size=35, legend=False))
-    sub = [f"Dashed line: 4/n = {yard:.3g}, a common rule of thumb for a closer look."]
+    dist = frame["distance"].astype("float64").to_numpy(na_value=np.nan)
+    labels, named = id_labels(frame, np.nan_to_num(dist, nan=0.0) > yard, dist, "order", "distance",
+                              what=f"the 4/n line")
+    layers = [stems, guide, row_marks(base, pick_param(), tip, size=35, legend=False)]
+    chart = alt.layer(*layers, *([labels] if labels is not None else []))
+    sub = [f"Dashed line: 4/n = {yard:.3g}, a common rule of thumb for a closer look. {named}"]
     sub += [s for s in (*infl.notes, picked.note) if s]
     return finish(chart.properties(width=width, height=height), "Cook's distance by row", sub)

@@ -43,7 +43,7 @@ def row_marks(base: alt.Chart, pick: alt.Parameter, tooltip: list, size: int = 7
         shape=alt.Shape("state:N", scale=STATE_SCALE["shape"], title="row", **leg),
         # Conditions written as channel values (not alt.when) skip a schema validation per redraw.
         size=alt.SizeValue(value=size, condition=[_picked(pick, size * 2.6),
-                                                  {"test": "datum.state === 'left out'", "value": size * 1.6}]),
+                                                  {"test": "datum.state !== 'in analysis'", "value": size * 1.6}]),
         stroke=alt.StrokeValue(value="white", condition=_picked(pick, PICKED)),
         strokeWidth=alt.StrokeWidthValue(value=0.6, condition=_picked(pick, 3)),
         tooltip=tooltip,
@@ -66,7 +66,7 @@ def observations_chart(study: Study, *, max_points: int = MAX_POINTS, factor: st
     levels = list(study.view.levels[f])
     x = alt.X("level:N", title=f, sort=levels, axis=alt.Axis(labelAngle=0))
     tooltip = [alt.Tooltip("row:N", title="row id"), alt.Tooltip("level:N", title=f"{f} (now)"),
-               alt.Tooltip("state:N", title="state")]
+               alt.Tooltip("recorded:N", title=f"{f} (recorded)"), alt.Tooltip("state:N", title="state")]
     tooltip += [alt.Tooltip(field, title=title) for field, title in column_fields(study.dataset.table)]
     base = alt.Chart(data).encode(x=x)
     pick = pick_param()
@@ -74,6 +74,7 @@ def observations_chart(study: Study, *, max_points: int = MAX_POINTS, factor: st
         base.encode(
             y=alt.Y("value:Q", title=y_title, scale=alt.Scale(zero=False, padding=10)),
             xOffset=alt.XOffset("jitter:Q", scale=_OFFSET),
+            order=alt.Order("z:Q"),  # moved and left-out rows are drawn over the others
         ),
         pick, tooltip, size=_point_size(len(data)),
     )

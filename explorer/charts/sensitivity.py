@@ -23,7 +23,7 @@ from explorer.core.sweep import SweepResult
 
 from .frames import MAX_POINTS, thin
 from .observations import pick_param
-from .style import CURRENT, GUIDE, HEIGHT, LEFT_OUT, PICKED, WIDTH, finish
+from .style import CURRENT, GUIDE, HEIGHT, LEFT_OUT, PICKED, WIDTH, finish, id_labels
 
 __all__ = ["case_deletion_chart", "specification_curve_chart"]
 
@@ -68,11 +68,12 @@ def case_deletion_chart(scan: CaseDeletionScan, *, max_points: int = MAX_POINTS,
     if scan.base_pvalue:
         lines.append(alt.Chart().mark_rule(color=LEFT_OUT).encode(y=alt.datum(scan.base_pvalue)))
     n_flip = int(flips.sum())
-    sub = [(f"{n_flip} row(s) flip the decision on their own. Red dashes: alpha {scan.alpha:g}; grey line: p with "
-            "every row.")]
+    labels, named = id_labels(frame, flips[pos], move[pos], "order", "p", what=f"alpha {scan.alpha:g}")
+    sub = [(f"{n_flip} row(s) flip the decision on their own (their p crosses alpha). Red dashes: alpha "
+            f"{scan.alpha:g}; grey line: p with every row. {named if n_flip else ''}").strip()]
     if picked.note:
         sub.append(picked.note)
-    chart = alt.layer(*lines, points).properties(width=width, height=height)
+    chart = alt.layer(*lines, points, *([labels] if labels is not None else [])).properties(width=width, height=height)
     return finish(chart, "p-value with one row left out", sub)
 
 

@@ -11,22 +11,25 @@ from typing import Any
 
 import altair as alt
 
-__all__ = ["BASELINE", "CURRENT", "HEIGHT", "KEPT", "LEFT_OUT", "MEAN", "PICKED", "STATE_SCALE", "WIDTH", "finish"]
+__all__ = ["BASELINE", "CURRENT", "HEIGHT", "IN_ANALYSIS", "KEPT", "LEFT_OUT", "LEFT_OUT_STATE", "MEAN", "MOVED",
+           "MOVED_STATE", "PICKED", "STATE_DOMAIN", "STATE_SCALE", "WIDTH", "finish"]
 
 WIDTH = 380
 HEIGHT = 240
 KEPT = "#2c6e91"       # steel blue: rows in the analysis
 LEFT_OUT = "#a0a0a0"   # light grey: rows left out (still drawn)
+MOVED = "#8e3fa0"      # purple triangle: rows moved to another level
 PICKED = "#e07b1a"     # orange ring: rows picked for the next action
 MEAN = "#1d1d1d"       # level mean and its interval
 BASELINE = "#8c8c8c"
 CURRENT = "#2c6e91"
 GUIDE = "#c0392b"      # reference lines (zero, yardsticks)
 
-STATE_DOMAIN = ["in analysis", "left out"]
+IN_ANALYSIS, MOVED_STATE, LEFT_OUT_STATE = "in analysis", "moved to another level", "left out"
+STATE_DOMAIN = [IN_ANALYSIS, MOVED_STATE, LEFT_OUT_STATE]
 STATE_SCALE: dict[str, Any] = {
-    "color": alt.Scale(domain=STATE_DOMAIN, range=[KEPT, LEFT_OUT]),
-    "shape": alt.Scale(domain=STATE_DOMAIN, range=["circle", "diamond"]),
+    "color": alt.Scale(domain=STATE_DOMAIN, range=[KEPT, MOVED, LEFT_OUT]),
+    "shape": alt.Scale(domain=STATE_DOMAIN, range=["circle", "triangle-up", "diamond"]),
 }
 
 
@@ -43,3 +46,27 @@ CONFIG = alt.Config(
     legend=alt.LegendConfig(labelFontSize=11, titleFontSize=11, orient="bottom"),
     view=alt.ViewConfig(stroke="#dddddd"),
 )
+
+
+#: Most rows a chart names with a text label (the largest past the stated cut-off).
+MAX_LABELS = 8
+
+
+def id_labels(frame: Any, past: Any, score: Any, x: str, y: str, *, what: str, limit: int = MAX_LABELS
+              ) -> tuple[alt.Chart | None, str]:
+    """Text marks naming the rows past a stated cut-off (row ids), and a sentence saying which are named.
+
+    ``past`` is a boolean mask over ``frame``'s rows, ``score`` orders them (largest first) when
+    more than ``limit`` are past the cut-off.
+    """
+    import numpy as np
+
+    idx = np.flatnonzero(np.asarray(past, dtype=bool))
+    if idx.size == 0:
+        return None, f"No row is past {what}."
+    order = idx[np.argsort(-np.asarray(score, dtype=float)[idx], kind="stable")][:limit]
+    shown = frame.iloc[np.sort(order)][["row", x, y]]
+    text = alt.Chart(shown).mark_text(dy=-9, fontSize=10, color="#1d1d1d").encode(x=f"{x}:Q", y=f"{y}:Q", text="row:N")
+    if idx.size > limit:
+        return text, f"Labelled: the {limit} rows furthest past {what} (of {idx.size})."
+    return text, f"Labelled: the {idx.size} row(s) past {what}."

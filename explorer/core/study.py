@@ -21,6 +21,7 @@ from .analysis import analyze
 from .dataset import Dataset, RowId, SetAsideRow, build_dataset
 from .edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows
 from .errors import DesignError, EditError, ReplayError
+from .moves import MovedRow, moved_rows
 from .output_files import write_text_atomic
 from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 from .results import Results
@@ -189,6 +190,10 @@ class Study:
 
     def levels(self, factor: str) -> tuple[str, ...]:
         return self.view.levels[factor]
+
+    def moved_rows(self) -> tuple[MovedRow, ...]:
+        """Rows now at another level than the one recorded (merges and renames aside), with the reason."""
+        return moved_rows(self.dataset, self.view, self.edits)
 
     # ----------------------------------------------------------------- edits
     def apply(self, edit: Edit) -> Results:

@@ -44,18 +44,26 @@ def fmt(x: Any, digits: int = 6) -> str:
 
 
 def html_table(frame: pd.DataFrame, caption: str = "", notes: tuple[str, ...] = (), digits: int = 6) -> str:
-    """A small self-contained HTML table (no styling framework needed)."""
-    head = "".join(f"<th>{html.escape(str(c))}</th>" for c in frame.columns)
+    """A small self-contained HTML table (no styling framework needed).
+
+    Each cell carries its column heading (``data-label``) and the table its column count
+    (``vx-cols-N``), so a narrow page can stack a row into "heading: value" lines.
+    """
+    labels = [html.escape(str(c)) for c in frame.columns]
+    head = "".join(f"<th>{c}</th>" for c in labels)
     body = []
     for _, row in frame.iterrows():
         cells = "".join(
-            f"<td>{fmt(v, digits) if not isinstance(v, str) else html.escape(v)}</td>" for v in row.tolist()
+            f"<td data-label='{lab}'>{html.escape(v)}</td>" if isinstance(v, str)
+            else f"<td class='vx-num' data-label='{lab}'>{fmt(v, digits)}</td>"
+            for lab, v in zip(labels, row.tolist())
         )
         body.append(f"<tr>{cells}</tr>")
     cap = f"<caption style='text-align:left;font-weight:600'>{html.escape(caption)}</caption>" if caption else ""
     foot = "".join(f"<div style='font-size:90%;color:#555'>{html.escape(n)}</div>" for n in notes)
     return (
-        f"<table class='vx-table'>{cap}<thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>{foot}"
+        f"<table class='vx-table vx-cols-{len(labels)}'>{cap}<thead><tr>{head}</tr></thead>"
+        f"<tbody>{''.join(body)}</tbody></table>{foot}"
     )
 
 

@@ -13,27 +13,7 @@ from typing import Any
 from explorer.core import Results, Study
 from explorer.core.tables import fmt
 
-__all__ = ["CAUTIONS_HTML", "TABLE_CSS", "comparison_html", "disclosure_html", "partition_html"]
-
-TABLE_CSS = """
-<style>
-.vx-table { border-collapse: collapse; font-size: 13px; margin: 2px 0 6px 0; min-width: 30em; }
-.vx-table caption { font-size: 13px; padding-bottom: 3px; }
-.vx-table th { text-align: left; padding: 3px 9px; border-bottom: 2px solid #999; background: #f4f4f4; }
-.vx-table td { padding: 3px 9px; border-bottom: 1px solid #e3e3e3; text-align: left; vertical-align: top; }
-.vx-partition .vx-table td, .vx-compare .vx-table td { text-align: right; }
-.vx-partition .vx-table td:first-child, .vx-compare .vx-table td:first-child { text-align: left; }
-.vx-table tr.vx-diff td { background: #fff1df; }
-.vx-table td.vx-mark { color: #b35c00; font-weight: 600; text-align: left; }
-.vx-decision-flip { color: #9b1c1c; font-weight: 700; }
-.vx-small { font-size: 12px; color: #444; }
-.vx-status-error { color: #9b1c1c; font-weight: 600; }
-.vx-status-warn { color: #8a4b00; }
-.vx-status-ok { color: #285e2b; }
-.vx-card-title { font-weight: 700; font-size: 14px; margin: 4px 0 2px 0; }
-.vx-banner { font-size: 13px; line-height: 1.45; }
-</style>
-"""
+__all__ = ["CAUTIONS_HTML", "comparison_html", "disclosure_html", "partition_html"]
 
 CAUTIONS_HTML = (
     "<div class='vx-small' style='border-left:3px solid #b35c00;padding:2px 8px;max-width:1100px'>"
@@ -76,7 +56,9 @@ def _line(label: str, base: Any, cur: Any, digits: int = 5, numeric: bool = True
         change = "changed"
     b = fmt(base, digits) if numeric else html.escape(str(base))
     c = fmt(cur, digits) if numeric else html.escape(str(cur))
-    return f"<tr{cls}><td>{html.escape(label)}</td><td>{b}</td><td>{c}</td><td class='vx-mark'>{change}</td></tr>"
+    num = " class='vx-num'" if numeric else ""
+    return (f"<tr{cls}><td data-label=''>{html.escape(label)}</td><td{num} data-label='unedited data'>{b}</td>"
+            f"<td{num} data-label='current view'>{c}</td><td class='vx-mark' data-label='difference'>{change}</td></tr>")
 
 
 def comparison_html(study: Study) -> str:
@@ -109,8 +91,12 @@ def comparison_html(study: Study) -> str:
     left = (f"<div class='vx-small'>Left out now: {len(dropped)} row(s)"
             + (f" ({html.escape(', '.join(str(r) for r in dropped[:12]))}{'…' if len(dropped) > 12 else ''})"
                if dropped else "") + "</div>")
+    moved = study.moved_rows()
+    if moved:
+        items = "; ".join(html.escape(m.describe()) for m in moved[:12]) + ("…" if len(moved) > 12 else "")
+        left += f"<div class='vx-small vx-moved'>Moved to another level now: {len(moved)} row(s): {items}</div>"
     return (
-        f"<div class='vx-compare'><table class='vx-table'><thead>{head}</thead>"
+        f"<div class='vx-compare'><table class='vx-table vx-cols-4'><thead>{head}</thead>"
         f"<tbody>{''.join(rows)}</tbody></table>{flip}{left}"
         f"<div class='vx-small'>{disclosure_html(study)}</div></div>"
     )

@@ -21,11 +21,14 @@ import pandas as pd
 
 from explorer.charts import HistoryStep
 from explorer.core import ExplorerError, Study, StudyEvent
+from explorer.core.moves import level_homes
 
 from . import battery_panels, core_panels, fragility_panels  # noqa: F401  (register the built-in panels)
-from .compare import CAUTIONS_HTML, TABLE_CSS, disclosure_html
+from .compare import CAUTIONS_HTML, disclosure_html
 from .host import PanelCard
 from .panels import PanelContext, Settings, panels_in_order
+from .resize import ResizeRelay
+from .stylesheet import STYLESHEET
 
 __all__ = ["COMPARISON_CHOICES", "OMNIBUS_CHOICES", "Explorer", "explore"]
 
@@ -166,10 +169,14 @@ class Explorer(W.VBox):
         self.header.add_class("vx-header")
 
     def _section(self, title: str, *items: W.Widget) -> W.VBox:
-        return W.VBox([W.HTML(f"<div class='vx-card-title'>{html.escape(title)}</div>"), *items],
-                      layout=W.Layout(margin="0 0 8px 0"))
+        box = W.VBox([W.HTML(f"<div class='vx-card-title'>{html.escape(title)}</div>"), *items],
+                     layout=W.Layout(margin="0 0 8px 0"))
+        box.add_class("vx-section")
+        return box
 
     def _layout(self) -> list[W.Widget]:
+        """Header, status, then the body: controls beside the results (one column when narrow, see
+        :mod:`.stylesheet`), then the cautions."""
         controls = W.VBox([
             self._section("Model", self.response_picker, self.factor_picker, self.alpha_picker,
                           self.omnibus_picker, self.comparison_picker),
@@ -179,22 +186,29 @@ class Explorer(W.VBox):
             self._section("Steps", W.HBox([self.undo_button, self.redo_button, self.reset_button])),
             self._section("Rows left out (with reasons)", self.left_out_list, self.restore_chosen_button),
             self._section("Levels: original → new name (same name = merged)", self.level_editor, self.regroup_button),
-        ], layout=W.Layout(width="320px", min_width="320px", padding="0 8px 0 0"))
-        main = [c for c in self.cards.values() if c.panel.group == "main"]
-        charts = [c.widget for c in main if c.panel.key == "observations"]
-        others = [c.widget for c in main if c.panel.key != "observations"]
-        top = W.HBox(charts + [W.VBox(others)], layout=W.Layout(flex_flow="row wrap", align_items="flex-start"))
+        ])
+        controls.add_class("vx-controls")
+        main = W.Box([c.widget for c in self.cards.values() if c.panel.group == "main"])
+        main.add_class("vx-main")
         groups: dict[str, list[PanelCard]] = {}
         for c in self.cards.values():
             if c.panel.group != "main":
                 groups.setdefault(c.panel.group, []).append(c)
-        self.tabs = W.Tab(children=[W.HBox([c.widget for c in cs], layout=W.Layout(flex_flow="row wrap"))
-                                    for cs in groups.values()])
+        pages = []
+        for cs in groups.values():
+            page = W.Box([c.widget for c in cs])
+            page.add_class("vx-tab-grid")
+            pages.append(page)
+        self.tabs = W.Tab(children=pages)
+        self.tabs.add_class("vx-tabs")
         self.tabs.titles = tuple(groups)
         self._tab_groups = list(groups)
         self.tabs.observe(lambda _: self.refresh(), "selected_index")
-        body = W.HBox([controls, W.VBox([top, self.tabs], layout=W.Layout(flex="1 1 auto"))])
-        return [W.HTML(TABLE_CSS), self.header, self.status, body, W.HTML(CAUTIONS_HTML)]
+        content = W.Box([main, self.tabs])
+        content.add_class("vx-content")
+        body = W.Box([controls, content])
+        body.add_class("vx-body")
+        return [W.HTML(STYLESHEET), ResizeRelay(), self.header, self.status, body, W.HTML(CAUTIONS_HTML)]
 
     # ================================================================= state
     def _context(self) -> PanelContext:
@@ -237,16 +251,18 @@ class Explorer(W.VBox):
             return None
         return reason
 
-    def _edit(self, what: str, fn: Any, *args: Any, done: str = "", **kwargs: Any) -> bool:
+    def _edit(self, what: str, fn: Any, *args: Any, done: str = "", used_reason: bool = True, **kwargs: Any) -> bool:
         """Run one study call; report a refusal in the status line instead of raising.
 
-        The status line says ``done`` before the redraw starts, so it appears with the tables.
+        The status line says ``done`` before the redraw starts, so it appears with the tables; on
+        success the reason box is emptied, so that the next edit needs its own reason.
         """
         try:
             with self._one_redraw():
                 fn(*args, **kwargs)
-                if done:
-                    self._status(done)
+                if used_reason:
+                    self.reason_box.value = ""  # the next edit must not inherit this reason
+                self._status(done or "Done.")
         except ExplorerError as exc:
             self._status(f"Not done ({what}): {exc}", "error")
             return False
@@ -266,6 +282,8 @@ class Explorer(W.VBox):
         self._picked = tuple(lookup[r] for r in rows if r in lookup)
         self._picked_from = source
         self._show_picked()
+        if self._picked:
+            self._status(f"Picked {len(self._picked)} row(s). Write a reason, then choose an action.")
 
     def pick(self, rows: Sequence[Any]) -> None:
         """Pick rows by id, as a click in a chart would."""
@@ -351,13 +369,13 @@ class Explorer(W.VBox):
         return ok
 
     def undo(self) -> bool:
-        return self._edit("undo", self.study.undo, done="Undid the last edit.")
+        return self._edit("undo", self.study.undo, done="Undid the last edit.", used_reason=False)
 
     def redo(self) -> bool:
-        return self._edit("redo", self.study.redo, done="Redid the next edit.")
+        return self._edit("redo", self.study.redo, done="Redid the next edit.", used_reason=False)
 
     def reset(self) -> bool:
-        return self._edit("back to unedited", self.study.reset,
+        return self._edit("back to unedited", self.study.reset, used_reason=False,
                           done="Back to the unedited data; the edits can be redone step by step.")
 
     def apply_regrouping(self) -> bool:
@@ -408,14 +426,15 @@ class Explorer(W.VBox):
         return self._edit("level changes", run, done=f"Applied {len(plans)} level change(s).")
 
     def _original_to_current(self, f: str) -> dict[str, str | None]:
-        """Current level of each original level's rows; None when its rows now sit in several levels."""
-        ds, view = self.study.dataset, self.study.view
-        now = view.labels(f)
-        out: dict[str, str | None] = {}
-        for code, orig in enumerate(ds.levels[f]):
-            names = set(now[ds.codes[f] == code].tolist())
-            out[orig] = names.pop() if len(names) == 1 else None
-        return out
+        """Where each recorded level of ``f`` is now, after the merges and renames in effect.
+
+        Rows moved one by one do not count (they are listed in the comparison panel), so a
+        level stays editable after one of its rows was moved away; ``None`` only for a
+        level whose name no longer exists (every row of it moved elsewhere).
+        """
+        homes = level_homes(self.study.dataset, self.study.edits)[f]
+        levels_now = set(self.study.levels(f))
+        return {orig: (home if home in levels_now else None) for orig, home in homes.items()}
 
     # ================================================================= model choices
     def _on_setting(self, _: Any) -> None:
@@ -591,7 +610,7 @@ class Explorer(W.VBox):
                 box = W.Text(value=now or "", placeholder="new name", layout=W.Layout(width="110px"),
                              disabled=now is None)
                 boxes[orig] = box
-                shown = now if now is not None else "(rows moved to several levels)"
+                shown = now if now is not None else "(no rows left at this level)"
                 text = f"{orig} →" if shown == orig else f"{orig} (now {shown}) →"
                 label = W.HTML(f"<span class='vx-small'>{html.escape(text)}</span>",
                                layout=W.Layout(width="170px"))

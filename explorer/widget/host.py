@@ -45,6 +45,22 @@ def _param_names(spec: dict) -> list[str]:
     return sorted(str(n) for n in names)
 
 
+def _subtitle_apart(chart: alt.TopLevelMixin) -> tuple[alt.TopLevelMixin, list[str]]:
+    """The chart without its subtitle, and the subtitle's lines.
+
+    Vega does not wrap text, and a chart sized to its card shrinks its plot to make room for a
+    long subtitle; shown as HTML under the chart, the same sentences wrap instead.
+    """
+    title = getattr(chart, "title", alt.Undefined)
+    sub = getattr(title, "subtitle", alt.Undefined) if isinstance(title, alt.TitleParams) else alt.Undefined
+    if sub is alt.Undefined or not sub:
+        return chart, []
+    lines = [sub] if isinstance(sub, str) else [str(s) for s in sub if s]
+    bare = title.copy(deep=True)
+    bare.subtitle = alt.Undefined
+    return chart.properties(title=bare), lines
+
+
 class PanelCard:
     """Widget and redraw logic of one :class:`Panel`."""
 
@@ -56,9 +72,10 @@ class PanelCard:
         self.html = W.HTML()
         self.html.add_class(f"vx-panel-{spec.key}")
         self.body = W.Box(layout=W.Layout(flex_flow="column"))
+        self.note = W.HTML()  # a chart's subtitle, as text the browser wraps to the card's width
+        self.note.add_class("vx-chart-note")
         self.title = W.HTML(f"<div class='vx-card-title'>{html.escape(spec.title)}</div>")
-        self.widget = W.VBox([self.title, self.body], layout=W.Layout(padding="4px 8px", margin="0 6px 6px 0",
-                                                                  border="1px solid #e2e2e2"))
+        self.widget = W.VBox([self.title, self.body], layout=W.Layout(padding="4px 8px", border="1px solid #e2e2e2"))
         self.widget.add_class("vx-card")
         self.widget.add_class(f"vx-card-{spec.key}")
         self.error: str = ""
@@ -96,6 +113,7 @@ class PanelCard:
         elif isinstance(out, alt.TopLevelMixin):
             self._show_chart(out)
         elif isinstance(out, W.Widget):
+            self._kind("html")
             self.body.children = (out,)
         elif isinstance(out, str):
             self._show_html(out)
@@ -104,13 +122,28 @@ class PanelCard:
         else:
             self._show_html(f"<pre>{html.escape(repr(out))}</pre>")
 
+    def _kind(self, kind: str) -> None:
+        """Mark the card as holding a chart or HTML (the stylesheet gives HTML cards the full row in tabs)."""
+        other = "vx-card-html" if kind == "chart" else "vx-card-chart"
+        if other in self.widget._dom_classes:
+            self.widget.remove_class(other)
+        if f"vx-card-{kind}" not in self.widget._dom_classes:
+            self.widget.add_class(f"vx-card-{kind}")
+
     def _show_html(self, text: str) -> None:
+        self._kind("html")
+        self.note.value = ""
         self.title.layout.display = None
         self.html.value = text
         if self.body.children != (self.html,):
             self.body.children = (self.html,)
 
     def _show_chart(self, chart: alt.TopLevelMixin) -> None:
+        self._kind("chart")
+        chart, lines = _subtitle_apart(chart)
+        self.note.value = "".join(f"<div>{html.escape(str(line))}</div>" for line in lines)
+        if isinstance(chart, (alt.Chart, alt.LayerChart)):
+            chart = chart.properties(width="container")  # the card's width, whatever the page gives it
         self.title.layout.display = "none"  # a chart carries its own title
         if self.chart is None:
             self.chart = alt.JupyterChart(cast(Any, chart), embed_options=EMBED_OPTIONS)
@@ -125,8 +158,8 @@ class PanelCard:
                 self.chart.spec = spec
             else:
                 self.chart.chart = cast(Any, chart)
-        if self.body.children != (self.chart,):
-            self.body.children = (self.chart,)
+        if self.body.children != (self.chart, self.note):
+            self.body.children = (self.chart, self.note)
 
     def _selection_changed(self, change: dict) -> None:
         rows = parse_pick(change.get("new"))
