@@ -43,7 +43,7 @@ from .design import Term, term_columns
 from .spec import ModelSpec
 from .tables import fmt, html_table
 
-__all__ = ["ErrorTerm", "ExpectedMeanSquares", "error_terms", "expected_mean_squares", "is_random"]
+__all__ = ["ErrorTerm", "ExpectedMeanSquares", "error_terms", "expected_mean_squares", "is_random", "random_indicators"]
 
 RESIDUAL = "residual"
 
@@ -142,6 +142,22 @@ def _basis(xw: np.ndarray, cols: np.ndarray, cache: dict) -> np.ndarray:
     return cache[key]
 
 
+def random_indicators(
+    fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str]
+) -> list[tuple[Term, np.ndarray]]:
+    """Each random term of ``fit`` (most columns first) with its cells x level-combinations indicator matrix."""
+    nesting = fit.design.nesting
+    pos = {c: i for i, c in enumerate(columns)}
+    terms = sorted((t for t in fit.terms if is_random(t, spec)), key=lambda t: -len(term_columns(t, nesting)))
+    out = []
+    for u in terms:
+        code, k = _combos(cell_levels, [pos[c] for c in sorted(term_columns(u, nesting), key=lambda c: pos[c])])
+        z = np.zeros((code.size, k))
+        z[np.arange(code.size), code] = 1.0
+        out.append((u, z))
+    return out
+
+
 def expected_mean_squares(
     fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str], ss_type: str,
     *, synthesis_only: bool = False,
@@ -151,22 +167,19 @@ def expected_mean_squares(
     ``synthesis_only`` skips the exact counts of balanced data (for checking one against the other).
     """
     nesting = fit.design.nesting
-    pos = {c: i for i, c in enumerate(columns)}
     # components from the most specific (most columns) to the least, as E(MS) are usually written
-    random_terms = sorted((t for t in fit.terms if is_random(t, spec)), key=lambda t: -len(term_columns(t, nesting)))
+    indicators = random_indicators(fit, spec, cell_levels, columns)
+    random_terms = [u for u, _ in indicators]
     n_c = fit.stats.n.astype(float)
     w = np.sqrt(n_c)
     xw = w[:, None] * fit.design.matrix
     n = float(n_c.sum())
     b_mats, n_combos, equal = [], [], bool(np.all(fit.stats.n == fit.stats.n[0]))
-    for u in random_terms:
-        code, k = _combos(cell_levels, [pos[c] for c in sorted(term_columns(u, nesting), key=lambda c: pos[c])])
-        z = np.zeros((code.size, k))
-        z[np.arange(code.size), code] = 1.0
+    for _, z in indicators:
         b_mats.append(w[:, None] * z)
-        per = np.bincount(code, weights=n_c, minlength=k)
+        per = n_c @ z
         equal = equal and bool(np.all(per == per[0]))
-        n_combos.append(k)
+        n_combos.append(z.shape[1])
     comparisons = model_comparisons(fit.terms, fit.sequence, nesting)[ss_type]
     cache: dict = {}
     rows = [fit.name(t) for t in fit.terms] + [RESIDUAL]

@@ -37,6 +37,7 @@ from .oneway import NOT_FINITE
 from .results import LevelTable, Results
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow, fmt
+from .variance_components import estimate_components
 from .term_effects import term_effects
 from .view import DataView
 
@@ -305,6 +306,8 @@ def factorial_from_cells(
         cells=cell_table,
         blocking=None if spec.is_mixed else _blocking(table, fit, spec, cell_table.balanced),
         expected_mean_squares=ems,
+        variance_components=None if ems is None else estimate_components(
+            fit, spec, layout.cell_levels, layout.columns, ems, table, confidence),
         aliased=fit.aliased,
     )
 

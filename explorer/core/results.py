@@ -18,6 +18,7 @@ if TYPE_CHECKING:  # multi-factor result parts (see factorial.py)
     from .aliasing import AliasedTerm
     from .blocking import BlockingEfficiency
     from .ems import ExpectedMeanSquares
+    from .variance_components import VarianceComponents
     from .cells import CellTable
     from .marginal_means import MarginalMeans
     from .term_effects import TermEffects
@@ -148,6 +149,7 @@ class Results:
     blocking: "BlockingEfficiency | None" = None  # relative efficiency of blocks vs no blocks
     # Models with random, nested or subject terms (ems.py, mixed_partition.py); empty/None otherwise.
     expected_mean_squares: "ExpectedMeanSquares | None" = None  # E(MS) of each row of the spec's type
+    variance_components: "VarianceComponents | None" = None  # random terms and residual: estimates, intervals, shares
     aliased: "tuple[AliasedTerm, ...]" = ()  # terms left out because the cells cannot separate them
 
     def compare_means(self, factor: str | None = None, confidence: float | None = None) -> Any:
@@ -196,7 +198,7 @@ class Results:
         for table in self.levels.values():
             parts.append(table._repr_html_())
         extras: list[Any] = [*self.marginal_means.values(), self.term_effects, self.blocking,
-                             self.expected_mean_squares]
+                             self.expected_mean_squares, self.variance_components]
         if self.cells is not None and not self.cells.balanced:
             extras.append(self.cells)
         parts.extend(x._repr_html_() for x in extras if x is not None)

@@ -11,6 +11,8 @@ from .errors import ExplorerError
 __all__ = ["ModelSpec", "parse_term"]
 
 SSType = Literal["I", "II", "III"]
+VarianceMethod = Literal["auto", "moments", "reml"]
+VARIANCE_METHODS = ("auto", "moments", "reml")
 
 #: Separators accepted in a term written as text: ``"A × B"``, ``"A:B"`` or ``"A*B"``.
 _TERM_SEPARATORS = ("×", ":", "*")
@@ -80,6 +82,7 @@ class ModelSpec:
     nested: tuple[tuple[str, tuple[str, ...]], ...] = field(default=())
     subject: str | None = None
     within: tuple[str, ...] = field(default=())
+    variance_method: VarianceMethod = "auto"
 
     def __post_init__(self) -> None:
         setf = object.__setattr__
@@ -94,6 +97,8 @@ class ModelSpec:
         if not 0 < float(self.alpha) < 1:
             raise ExplorerError(f"alpha must be between 0 and 1, not {self.alpha!r}")
         setf(self, "nested", _normalise_nested(self.nested))
+        if self.variance_method not in VARIANCE_METHODS:
+            raise ExplorerError(f"variance_method must be one of {VARIANCE_METHODS}, not {self.variance_method!r}")
         self._check_roles()
         if self.max_order is not None:
             if isinstance(self.max_order, bool) or int(self.max_order) != self.max_order or self.max_order < 1:
@@ -242,6 +247,8 @@ class ModelSpec:
         if self.subject is not None:
             d["subject"] = self.subject
             d["within"] = list(self.within)
+        if self.variance_method != "auto":
+            d["variance_method"] = self.variance_method
         return d
 
     @classmethod
@@ -260,6 +267,7 @@ class ModelSpec:
             nested=d.get("nested", ()),  # type: ignore[arg-type]
             subject=d.get("subject"),
             within=tuple(d.get("within", ())),
+            variance_method=d.get("variance_method", "auto"),
         )
 
 

@@ -89,6 +89,8 @@ class Study:
     subject : the unit measured repeatedly (panel, animal, whole plot); random, nested in
         the between-subject factors.
     within : the factors that vary within a subject (repeated-measures factors).
+    variance_method : variance-component estimator: 'auto' (moments on balanced data, REML
+        otherwise), 'moments' or 'reml'.
     See :class:`~explorer.core.spec.ModelSpec` for how these build the model.
     """
 
@@ -109,6 +111,7 @@ class Study:
         nested: dict[str, str | Sequence[str]] | None = None,
         subject: str | None = None,
         within: str | Sequence[str] = (),
+        variance_method: str = "auto",
     ) -> None:
         factors_t = (factors,) if isinstance(factors, str) else tuple(factors)
         blocks_t = (blocks,) if isinstance(blocks, str) else tuple(blocks)
@@ -116,7 +119,8 @@ class Study:
                          interactions=interactions, ss_type=ss_type, alpha=alpha,  # type: ignore[arg-type]
                          terms=None if terms is None else tuple(terms),  # type: ignore[arg-type]
                          max_order=max_order, random=random, nested=nested or (),  # type: ignore[arg-type]
-                         subject=subject, within=within)  # type: ignore[arg-type]
+                         subject=subject, within=within,  # type: ignore[arg-type]
+                         variance_method=variance_method)  # type: ignore[arg-type]
         self._init(build_dataset(data, response, spec.columns, id_column), spec,
                    data_source=data if isinstance(data, (str, Path)) else None)
 

@@ -1,0 +1,260 @@
+"""Variance components: how much of the variation each random term and the residual carry.
+
+Two estimators:
+
+* **Method of moments (ANOVA estimates)**: equate each random row's mean square to its
+  expectation (:mod:`.ems`) and solve; on balanced data these are the classic
+  closed forms, e.g. (MS_A - MS_AB) / (b n). Each estimate is a linear combination
+  sum c_j MS_j, so its interval is Satterthwaite's: nu = (sum c_j MS_j)^2 /
+  sum (c_j MS_j)^2 / df_j and [nu s^2 / chi^2_{1-a/2, nu}, nu s^2 / chi^2_{a/2, nu}]
+  (the residual's is the exact chi-square interval).
+* **REML** (:mod:`.reml`), used for unbalanced data, where the moment estimates depend
+  on the type of sums of squares. Intervals: the same chi-square form with
+  nu = 2 s^4 / Var(s^2), Var from the inverse REML information.
+
+**Negative estimates.** A moment estimate can be negative (REML stops at zero). The
+rule here: the computed value is shown as it is, counted as zero in the total, the
+shares and the standard deviations, and a note says so and suggests the reduced model
+without that term (Searle, Casella & McCulloch 1992, ch. 3-4, and Montgomery, Design and
+Analysis of Experiments, 8th ed., ch. 13, both discuss negative ANOVA estimates and these
+remedies; from memory).
+
+Shares: each component (negatives as zero) over their sum, the total variance of one
+new observation under the random terms (fixed effects excluded).
+
+References
+----------
+Satterthwaite, F. E. (1946). Biometrics Bulletin 2, 110-114.
+Searle, S. R., Casella, G. and McCulloch, C. E. (1992). Variance Components. Wiley.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from fractions import Fraction
+
+import numpy as np
+import pandas as pd
+from scipy import special
+
+from .cellfit import CellFit
+from .ems import RESIDUAL, ExpectedMeanSquares, is_random, random_indicators
+from .reml import reml_fit
+from .spec import ModelSpec
+from .tables import AnovaTable, html_table
+
+__all__ = ["VarianceComponent", "VarianceComponents", "estimate_components", "moment_components", "reml_components",
+           "NEGATIVE_RULE"]
+
+NEGATIVE_RULE = (
+    "A negative estimate is shown as computed and counted as zero in the total, the shares and the "
+    "standard deviations; it suggests the term's variance is small, and the reduced model without that "
+    "term re-estimates the others."
+)
+
+
+def chi2_interval(estimate: float, df: float | None, confidence: float) -> tuple[float | None, float | None]:
+    """nu s^2 / chi^2 quantiles (Satterthwaite 1946); undefined for non-positive estimates or df."""
+    if df is None or not np.isfinite(df) or df <= 0 or estimate <= 0:
+        return None, None
+    a = 1 - confidence
+    hi_q = float(special.chdtri(df, a / 2))  # upper a/2 quantile
+    lo_q = float(special.chdtri(df, 1 - a / 2))
+    return df * estimate / hi_q, df * estimate / lo_q
+
+
+@dataclass(frozen=True, kw_only=True)
+class VarianceComponent:
+    """One component: the estimate as computed, its df and interval, share of the total."""
+
+    source: str
+    estimate: float
+    df: float | None
+    ci_low: float | None
+    ci_high: float | None
+    share: float
+    combination: tuple[tuple[str, float], ...] = ()  # moments: (mean square, coefficient)
+
+    @property
+    def truncated(self) -> float:
+        return max(self.estimate, 0.0)
+
+    @property
+    def sd(self) -> float:
+        return float(np.sqrt(self.truncated))
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class VarianceComponents:
+    """Variance components of the random terms and the residual, with the method and notes."""
+
+    components: tuple[VarianceComponent, ...]
+    method: str
+    confidence: float
+    interval_method: str
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def total(self) -> float:
+        return float(sum(c.truncated for c in self.components))
+
+    def component(self, source: str) -> VarianceComponent:
+        for c in self.components:
+            if c.source == source:
+                return c
+        raise KeyError(f"no component {source!r}; components are {[c.source for c in self.components]}")
+
+    def to_frame(self) -> pd.DataFrame:
+        pct = f"{self.confidence:.0%}"
+        return pd.DataFrame({
+            "source": [c.source for c in self.components],
+            "variance": [c.estimate for c in self.components],
+            "SD": [c.sd for c in self.components],
+            "share of variance": [c.share for c in self.components],
+            "df": pd.array([c.df for c in self.components], dtype="Float64"),
+            f"{pct} CI low": pd.array([c.ci_low for c in self.components], dtype="Float64"),
+            f"{pct} CI high": pd.array([c.ci_high for c in self.components], dtype="Float64"),
+        })
+
+    def _repr_html_(self) -> str:
+        return html_table(self.to_frame(), f"Variance components ({self.method}; intervals: {self.interval_method})",
+                          self.notes)
+
+
+def _shares(estimates: list[float]) -> list[float]:
+    pos = [max(e, 0.0) for e in estimates]
+    tot = sum(pos)
+    return [p / tot if tot > 0 else 0.0 for p in pos]
+
+
+def _negative_notes(names: list[str], estimates: list[float]) -> list[str]:
+    neg = [n for n, e in zip(names, estimates) if e < 0]
+    return [f"Negative estimate for {', '.join(neg)}. {NEGATIVE_RULE}"] if neg else []
+
+
+def _exact_inverse(a: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """Rows of a^-1 as integer numerators over one denominator per row, when ``a`` is an integer matrix."""
+    if a.shape[0] != a.shape[1] or not np.all(a == np.round(a)) or a.shape[0] > 40:
+        return None
+    k = a.shape[0]
+    m = [[Fraction(int(v)) for v in row] + [Fraction(int(i == j)) for j in range(k)] for i, row in enumerate(a)]
+    for col in range(k):  # Gauss-Jordan in exact rationals
+        piv = next((r for r in range(col, k) if m[r][col] != 0), None)
+        if piv is None:
+            return None
+        m[col], m[piv] = m[piv], m[col]
+        p = m[col][col]
+        m[col] = [v / p for v in m[col]]
+        for r in range(k):
+            if r != col and m[r][col] != 0:
+                f = m[r][col]
+                m[r] = [v - f * w for v, w in zip(m[r], m[col])]
+    inv = [row[k:] for row in m]
+    dens = np.array([float(np.lcm.reduce([v.denominator for v in row])) for row in inv])
+    nums = np.array([[float(v * int(d)) for v in row] for row, d in zip(inv, dens)])
+    return nums, dens
+
+
+def moment_components(
+    ems: ExpectedMeanSquares, table: AnovaTable, confidence: float = 0.95
+) -> VarianceComponents:
+    """Method-of-moments (ANOVA) estimates from the random rows' mean squares and their E(MS)."""
+    rows = [i for i, r in enumerate(ems.rows) if ems.random_rows[i]]
+    a = ems.coefficients[rows]  # random rows x components
+    ms = np.array([table.row(ems.rows[i]).mean_sq or 0.0 for i in rows])
+    dfs = np.array([float(table.row(ems.rows[i]).df) for i in rows])
+    exact = _exact_inverse(a)
+    if exact is not None:  # balanced: integer E(MS) coefficients, rational inverse, one division per estimate
+        nums, dens = exact
+        inv = nums / dens[:, None]
+        est = np.array([float(np.dot(nums[j], ms)) / dens[j] for j in range(len(dens))])
+    else:
+        inv = np.linalg.solve(a, np.eye(len(rows))) if a.shape[0] == a.shape[1] else np.linalg.pinv(a)
+        est = inv @ ms
+    comps = []
+    names = list(ems.components)
+    shares = _shares(list(est))
+    for j, name in enumerate(names):
+        coef = inv[j]
+        combo = tuple((ems.rows[rows[i]], float(c)) for i, c in enumerate(coef) if abs(c) > 1e-12)
+        terms = np.array([c * table.row(r).mean_sq for r, c in combo])  # type: ignore[operator]
+        denom = float(np.sum(terms**2 / np.array([table.row(r).df for r, _ in combo])))
+        df = float(est[j] ** 2 / denom) if denom > 0 and est[j] > 0 else None
+        if name == RESIDUAL:
+            df = float(table.row(RESIDUAL).df)
+        lo, hi = chi2_interval(float(est[j]), df, confidence)
+        comps.append(VarianceComponent(source=name, estimate=float(est[j]), df=df, ci_low=lo, ci_high=hi,
+                                       share=shares[j], combination=combo))
+    notes = _negative_notes(names, list(est))
+    if ems.method.startswith("unbalanced"):
+        notes.append(f"Unbalanced data: these moment estimates depend on the type {ems.ss_type} sums of squares "
+                     "used; REML estimates do not.")
+    return VarianceComponents(
+        components=tuple(comps), method="method of moments (ANOVA estimates)", confidence=confidence,
+        interval_method="Satterthwaite's chi-square approximation", notes=tuple(notes),
+    )
+
+
+def reml_components(
+    names: list[str], variances: np.ndarray, sigma2: float, covariance: np.ndarray | None, confidence: float = 0.95,
+    notes: tuple[str, ...] = (),
+) -> VarianceComponents:
+    """Components from a REML fit (:func:`.reml.reml_fit`), residual last."""
+    est = list(map(float, variances)) + [float(sigma2)]
+    shares = _shares(est)
+    comps = []
+    for j, name in enumerate(list(names) + [RESIDUAL]):
+        df = None
+        if covariance is not None and covariance[j, j] > 0:
+            df = 2.0 * est[j] ** 2 / float(covariance[j, j])
+        lo, hi = chi2_interval(est[j], df, confidence)
+        comps.append(VarianceComponent(source=name, estimate=est[j], df=df, ci_low=lo, ci_high=hi, share=shares[j]))
+    extra = list(notes)
+    zero = [n for n, e in zip(names, est) if e <= 0]
+    if zero:
+        extra.append(f"REML puts {', '.join(zero)} at zero (the boundary): no interval for it.")
+    if covariance is None:
+        extra.append("The REML information could not be inverted (an estimate on the boundary): intervals are "
+                     "missing where their df cannot be found.")
+    return VarianceComponents(
+        components=tuple(comps), method="REML", confidence=confidence,
+        interval_method="chi-square with df 2 s⁴ / Var(s²) from the REML information", notes=tuple(extra),
+    )
+
+
+def estimate_components(
+    fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: tuple[str, ...],
+    ems: ExpectedMeanSquares, table: AnovaTable, confidence: float = 0.95,
+) -> VarianceComponents | None:
+    """The variance components of ``fit`` by ``spec.variance_method`` (``None`` without random terms).
+
+    ``"auto"``: moments on balanced data (exact closed forms), REML on unbalanced data.
+    """
+    if len(ems.components) < 2:
+        return None
+    balanced = ems.method.startswith("balanced")
+    moments = moment_components(ems, table, confidence)
+    if spec.variance_method == "moments" or (spec.variance_method == "auto" and balanced):
+        if spec.variance_method == "auto":
+            return VarianceComponents(
+                components=moments.components, method=moments.method, confidence=confidence,
+                interval_method=moments.interval_method,
+                notes=moments.notes + ("Balanced data: moment estimates (equal to REML when none is negative).",),
+            )
+        return moments
+    indicators = random_indicators(fit, spec, cell_levels, columns)
+    fixed = [t for t in fit.terms if not is_random(t, spec)]
+    x = fit.design.matrix[:, fit.design.columns_of(fixed)]
+    resid = moments.component(RESIDUAL).estimate
+    start = [np.sqrt(max(moments.components[j].estimate, 0.0) / resid) if resid > 0 else 1.0
+             for j in range(len(indicators))]
+    start = [max(s0, 0.05) for s0 in start]
+    r = reml_fit(x, [z for _, z in indicators], fit.stats.n, fit.stats.mean, float(np.sum(fit.stats.m2)), start)
+    notes: tuple[str, ...] = ()
+    if spec.variance_method == "auto":
+        notes = ("Unbalanced data: REML estimates (the moment estimates would depend on the type of sums of "
+                 "squares).",)
+    if not r.converged:
+        notes += ("The REML search stopped before its convergence test was met; treat the estimates with care.",)
+    return reml_components([fit.name(u) for u, _ in indicators], r.variances, r.sigma2, r.covariance, confidence,
+                           notes)
