@@ -59,8 +59,10 @@ def chi2_interval(estimate: float, df: float | None, confidence: float) -> tuple
         return None, None
     a = 1 - confidence
     hi_q = float(special.chdtri(df, a / 2))  # upper a/2 quantile
-    lo_q = float(special.chdtri(df, 1 - a / 2))
-    return df * estimate / hi_q, df * estimate / lo_q
+    lo_q = float(special.chdtri(df, 1 - a / 2))  # lower a/2 quantile: underflows to 0 for tiny df
+    low = df * estimate / hi_q if hi_q > 0 else None
+    high = df * estimate / lo_q if lo_q > 0 and np.isfinite(df * estimate / lo_q) else None
+    return low, high
 
 
 @dataclass(frozen=True, kw_only=True)
