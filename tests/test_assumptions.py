@@ -80,19 +80,28 @@ def test_bartlett_undefined_with_single_observation() -> None:
     assert got.pvalue is None and "'L2'" in got.notes[0]
 
 
-def test_recommendation_sentences() -> None:
-    """Unequal spreads -> Welch; normal and equal -> classic F; skewed small groups -> Kruskal-Wallis."""
+def test_recommendation_is_information_not_a_pretest_switch() -> None:
+    """The suggestion is Welch's F whatever the checks show (Delacre, Leys, Mora and Lakens 2019,
+    Int. Rev. Soc. Psychol. 32(1): Welch's F by default; Delacre, Lakens and Leys 2017: a pretest
+    should not pick the test); the sentence says so, names the test the decision reads (the
+    classic F by default) and reports what the checks show: unequal spreads, equal spreads with
+    normal residuals, and skewed small groups."""
     rng = np.random.default_rng(7)
     spread = study_from_groups([rng.normal(0, s, 30) for s in (0.5, 1.0, 4.0)]).results
     rec = recommend(spread, levene(spread), shapiro_residuals(spread))
-    assert rec.test == "Welch F" and "Games-Howell" in rec.sentence and rec.spreads_differ
+    assert rec.test == "Welch F" and rec.spreads_differ and "Games-Howell" in rec.sentence
+    assert "spreads look different" in rec.sentence and "far off" in rec.sentence
     calm = study_from_groups([rng.normal(0, 1, 30) for _ in range(3)]).results
     rec = recommend(calm, levene(calm), shapiro_residuals(calm))
-    assert rec.test == "classic F" and "Tukey" in rec.sentence
+    assert rec.test == "Welch F" and rec.spreads_differ is False and "spreads look similar" in rec.sentence
     skew = study_from_groups([np.exp(rng.normal(0, 1.0, 12)) for _ in range(3)]).results
     rec = recommend(skew, levene(skew), shapiro_residuals(skew))
     assert rec.spreads_differ is False and rec.residuals_non_normal
-    assert rec.test == "Kruskal-Wallis H" and "small groups" in rec.sentence
+    assert rec.test == "Welch F" and "small groups" in rec.sentence and "rank test" in rec.sentence
+    for text in (rec.sentence, rec._repr_html_()):
+        assert "not a switch" in text and "Delacre" in text
+    assert rec.chosen == "classic F" and "classic F" in rec.sentence
+    assert any("32(1)" in r for r in rec.references) and any("30(1)" in r for r in rec.references)
 
 
 def test_shapiro_on_two_factor_residuals_matches_scipy_on_statsmodels_residuals():

@@ -51,7 +51,8 @@ def test_bundle_on_handbook_data() -> None:
 def test_no_silent_switch_when_an_edit_unbalances_and_spreads_diverge() -> None:
     """Balanced with similar spreads, then an edit that unbalances the sizes, and data whose
     spreads differ: the same tests, checks, families and screens are reported; only the
-    Tukey table's name (Tukey -> Tukey-Kramer) and the suggestion change, each with a note."""
+    Tukey table's name (Tukey -> Tukey-Kramer) changes, with a note. The suggested test does not
+    move with the checks (it is information, not a switch); what the checks show does."""
     rng = np.random.default_rng(2)
     groups = [np.round(rng.normal(10, 1, 12), 2) for _ in range(4)]
     study = study_from_groups(groups)
@@ -63,7 +64,8 @@ def test_no_silent_switch_when_an_edit_unbalances_and_spreads_diverge() -> None:
     assert any("unequal" in n for n in after.notes) and not any("unequal" in n for n in before.notes)
     wide = study_from_groups([g if i < 3 else (g - g.mean()) * 6 + g.mean() for i, g in enumerate(groups)])
     w = wide.battery()
-    assert w.recommendation.test == "Welch F" and before.recommendation.test != "Welch F"
+    assert w.recommendation.test == before.recommendation.test == "Welch F"
+    assert w.recommendation.spreads_differ and not before.recommendation.spreads_differ
     assert _methods(w) == _methods(before)
 
 
@@ -77,7 +79,7 @@ def test_battery_changes_nothing_and_repr_is_clean() -> None:
     assert study.edits == () and study.results.n_used == 20
     page = b._repr_html_()
     assert "nan" not in page.lower()
-    for heading in ("Tests of equal level means", "Assumption checks", "Suggested omnibus test", "Games-Howell",
+    for heading in ("Tests of equal level means", "Assumption checks", "Suggested overall test (information, not a switch)", "Games-Howell",
                     "Dunnett", "Letters", "Effect sizes", "Power", "Grubbs"):
         assert heading in page
     assert b.flagged_rows() == {s.method: s.flagged for s in b.screens}

@@ -2,9 +2,10 @@
 
 Levene's test of equal spreads with a visible choice of centre, Bartlett's test (from
 the level variances alone), Shapiro-Wilk on the model residuals (not on raw groups),
-each with the sample-size limits it is valid for, and a plain sentence saying which
-omnibus test the checks point to and why. The sentence is advice: nothing here changes
-which tests the kit reports.
+each with the sample-size limits it is valid for, and a plain sentence that suggests
+an overall test as information (Welch's F, named before looking at the data) and says
+what the checks show. Nothing here changes which tests the kit reports or which one the
+decision reads.
 
 References
 ----------
@@ -16,6 +17,11 @@ Bartlett, M. S. (1937). Properties of sufficiency and statistical tests. Proc. R
 Lond. A 160, 268-282.
 Shapiro, S. S. and Wilk, M. B. (1965). An analysis of variance test for normality.
 Biometrika 52, 591-611; Royston, P. (1995). Remark AS R94. Appl. Stat. 44, 547-551.
+Delacre, M., Leys, C., Mora, Y. L. and Lakens, D. (2019). Taking parametric assumptions
+seriously: arguments for the use of Welch's F-test instead of the classical F-test in
+one-way ANOVA. International Review of Social Psychology 32(1), 13.
+Delacre, M., Lakens, D. and Leys, C. (2017). Why psychologists should by default use
+Welch's t-test instead of Student's t-test. Int. Rev. Soc. Psychol. 30(1), 92-101.
 """
 
 from __future__ import annotations
@@ -202,58 +208,94 @@ def shapiro_residuals(results: Results) -> CheckResult:
                        df=(), pvalue=float(res.pvalue), limits=limits, within_limits=within, notes=tuple(notes))
 
 
+#: The reference behind the suggested default (checked: Int. Rev. Soc. Psychol. 32(1), doi 10.5334/irsp.198).
+WELCH_DEFAULT_REFERENCE = (
+    "Delacre, M., Leys, C., Mora, Y. L. and Lakens, D. (2019). Taking parametric assumptions seriously: "
+    "arguments for the use of Welch's F-test instead of the classical F-test in one-way ANOVA. "
+    "International Review of Social Psychology 32(1), 13"
+)
+#: Why a pretest should not pick the test (two groups; the same argument for k groups).
+PRETEST_REFERENCE = (
+    "Delacre, M., Lakens, D. and Leys, C. (2017). Why psychologists should by default use Welch's t-test "
+    "instead of Student's t-test. International Review of Social Psychology 30(1), 92-101"
+)
+
+_TEST_NAMES = {"classic": "classic F", "welch": "Welch F", "brown-forsythe": "Brown-Forsythe F*",
+               "kruskal": "Kruskal-Wallis H", "permutation": "permutation F"}
+
+
 @dataclass(frozen=True, kw_only=True)
 class Recommendation:
-    """Which omnibus test the checks point to (``test``), and the plain-language reason."""
+    """The suggested overall test, stated as information, and what the checks show.
+
+    ``test`` is named before looking at the data (Welch's F for one factor; Delacre et
+    al. 2019), so it does not move with the checks: choosing the test from a pretest
+    of spreads or normality at the analysis alpha changes the error rates of the whole
+    procedure (Delacre et al. 2017). ``chosen`` is the overall test the study's
+    decision reads; ``spreads_differ``/``residuals_non_normal`` are what the checks
+    show at alpha (``None`` when a check could not be computed).
+    """
 
     test: str
     sentence: str
     spreads_differ: bool | None
     residuals_non_normal: bool | None
     balanced: bool
+    chosen: str = "classic F"
+    references: tuple[str, ...] = (WELCH_DEFAULT_REFERENCE, PRETEST_REFERENCE)
 
     def _repr_html_(self) -> str:
-        return f"<div><b>Suggested omnibus test: {html.escape(self.test)}.</b> {html.escape(self.sentence)}</div>"
+        refs = "".join(f"<div style='font-size:90%;color:#555'>{html.escape(r)}.</div>" for r in self.references)
+        return (f"<div><b>Suggested overall test (information, not a switch): {html.escape(self.test)}.</b> "
+                f"{html.escape(self.sentence)}{refs}</div>")
 
 
 def recommend(results: Results, spread: CheckResult, normality: CheckResult, *, alpha: float | None = None,
               large_group: int = 30) -> Recommendation:
-    """Read the spread and normality checks into a suggested omnibus test, with the reason.
+    """The suggested overall test as information, with what the spread and normality checks show.
 
-    Rules (Welch 1951; Brown and Forsythe 1974; Kruskal and Wallis 1952):
-    unequal spreads -> Welch F (Games-Howell for pairs), whatever the normality; normal
-    residuals with equal spreads -> classic F (Tukey for pairs); non-normal residuals
-    with equal spreads -> Kruskal-Wallis (or the permutation F) unless every level has
-    at least ``large_group`` observations, when the classic F is robust enough.
-    The suggestion never changes which tests are reported.
+    The suggestion is Welch's F (Games-Howell for pairs) whatever the checks say: it
+    keeps its type I error rate when level variances differ and loses little power when
+    they are equal, so it is recommended as the default (Delacre, Leys, Mora and Lakens
+    2019). The checks are reported, not used to switch: a test picked by a pretest at
+    the analysis alpha has error rates of its own that neither test's p-value describes
+    (Delacre, Lakens and Leys 2017). The study's decision reads the overall test chosen
+    for it (``results.spec.test`` where the spec has one, else the classic F); the
+    sentence names it and says what the checks imply for reading it. Nothing here
+    changes which tests are reported.
     """
     a = results.spec.alpha if alpha is None else alpha
     n = results.groups.n
     balanced = bool(np.all(n == n[0]))
     differ = None if spread.pvalue is None else spread.pvalue < a
     nonnormal = None if normality.pvalue is None else normality.pvalue < a
+    chosen_key = str(getattr(results.spec, "test", "classic"))
+    chosen = _TEST_NAMES.get(chosen_key, chosen_key)
     bal = "equal" if balanced else f"unequal ({int(n.min())} to {int(n.max())})"
     sp = ("spreads look different" if differ else "spreads look similar") if differ is not None else "spreads could not be compared"
     sp += f" ({spread.method}, p = {fmt(spread.pvalue, 3)})" if spread.pvalue is not None else ""
     nm = ("residuals depart from normal" if nonnormal else "residuals look normal") if nonnormal is not None else "normality could not be checked"
     nm += f" (Shapiro-Wilk, p = {fmt(normality.pvalue, 3)})" if normality.pvalue is not None else ""
-    if differ:
-        test = "Welch F"
-        why = (f"Welch's F does not assume equal variances; with {bal} group sizes the classic F can be far off "
-               "when spreads differ. Use Games-Howell for pairs.")
-        if nonnormal:
-            why += " Residuals are also non-normal: read Welch's F with care, and look at the residual plots."
-    elif nonnormal and int(n.min()) < large_group:
-        test = "Kruskal-Wallis H"
-        why = (f"with small groups (smallest {int(n.min())}) the classic F relies on normal residuals; the rank test "
-               "does not (the permutation F is another choice).")
-    else:
-        test = "classic F"
-        why = "its assumptions look reasonable" if not nonnormal else (
-            f"every level has at least {large_group} observations, so the F test is robust to the non-normality")
-        why += "; use Tukey for pairs."
+    parts = [
+        "Welch's F (Games-Howell for pairs) is suggested before looking at the data: it keeps its error rate "
+        "whether or not the level spreads are equal and loses little power when they are, which is why "
+        "Delacre, Leys, Mora and Lakens (2019) recommend it as the default.",
+        f"The decision reads the overall test chosen for this study: {chosen} (the classic F unless another is "
+        "chosen); choose it before seeing the results.",
+        "The checks are information, not a switch: picking the test from a pretest of spreads or normality at "
+        "the analysis alpha changes the error rates of the whole procedure (Delacre, Lakens and Leys 2017).",
+        f"At alpha {a:g}: {sp}; {nm}.",
+    ]
+    if differ and chosen_key == "classic":
+        parts.append(f"With {bal} group sizes the classic F can be far off when spreads differ; read it beside "
+                     "Welch's F, which is reported with it.")
+    if nonnormal and int(n.min()) < large_group:
+        parts.append(f"With non-normal residuals and small groups (smallest {int(n.min())}) the F tests rely on "
+                     "approximate normality; the rank test and the permutation F are reported beside them.")
+    elif nonnormal:
+        parts.append(f"Every level has at least {large_group} observations, so the F tests are robust to this "
+                     "non-normality.")
     if differ is None and nonnormal is None:
-        why += " (No check could be computed; the suggestion is the default, not evidence.)"
-    sentence = f"At alpha {a:g}: {sp}; {nm}. Suggested: {test}, because {why}"
-    return Recommendation(test=test, sentence=sentence, spreads_differ=differ, residuals_non_normal=nonnormal,
-                          balanced=balanced)
+        parts.append("No check could be computed on this view.")
+    return Recommendation(test="Welch F", sentence=" ".join(parts), spreads_differ=differ,
+                          residuals_non_normal=nonnormal, balanced=balanced, chosen=chosen)

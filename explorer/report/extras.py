@@ -86,7 +86,7 @@ def battery_text(battery: Any) -> str:
     parts = [_frame_of(battery, "omnibus_frame"), _frame_of(battery, "checks_frame")]
     rec = getattr(battery, "recommendation", None)
     if rec is not None and hasattr(rec, "test"):
-        parts.append(f"Suggested omnibus test: {rec.test}. {getattr(rec, 'sentence', '')}")
+        parts.append(f"Suggested overall test (information, not a switch): {rec.test}. {getattr(rec, 'sentence', '')}")
     for table in getattr(battery, "comparisons", ()):
         parts.append(f"{getattr(table, 'method', 'comparisons')}:\n{_frame_of(table)}")
     for name in ("letters", "effect_sizes"):
