@@ -59,16 +59,30 @@ def _reference(df: pd.DataFrame, spec: pd.Series) -> tuple[list[int], float]:
 
 def test_every_specification_matches_reference_libraries():
     """Rows left out: statsmodels OLSInfluence / outlier_test(method='bonf'); p: scipy f_oneway (classic and
-    equal_var=False for Welch) and scipy kruskal; all 4 x 3 x 2 x 4 = 96 specifications."""
+    equal_var=False for Welch) and scipy kruskal; all 4 x 3 x 2 x 4 = 96 combinations are computed by the
+    reference, and the sweep's distinct analyses are exactly the distinct (test, merges, rows, p) of the
+    reference: a rank test on the log equals the rank test on the raw response (Kruskal and Wallis 1952: H
+    reads the ranks only), and rules that leave out the same rows give one analysis."""
+    import itertools
+
     df = _data()
     study = ex.Study(df, "y", "g")
     sweep = robustness_sweep(study, merges=[["L2", "L3"], ["L1", "L4"]])
-    assert sweep.n_specifications == 96 == len(sweep.table)
+    assert sweep.n_combinations == 96 and sweep.n_specifications == len(sweep.table)
     for _, spec in sweep.table.iterrows():
         rows, p = _reference(df, spec)
         assert sorted(spec["rows left out"]) == rows, spec.to_dict()
         assert spec["p-value"] == pytest.approx(p, rel=1e-9), spec.to_dict()
     assert any(len(r) for r in sweep.table["rows left out"])
+    distinct = set()
+    for rule, test, transform, merges in itertools.product(
+            ["none", "studentized", "cooks", "outlier_test"], ["classic", "welch", "rank"], ["none", "log"],
+            ["none", "L2+L3", "L1+L4", "L2+L3; L1+L4"]):
+        combo = pd.Series({"outlier rule": rule, "test": test, "transform": transform, "merges": merges})
+        rows, p = _reference(df, combo)
+        distinct.add((test, merges, tuple(rows), float(f"{p:.10g}")))
+    assert sweep.n_specifications == len(distinct) < 96
+    assert study.disclosure.specifications == sweep.n_specifications
 
 
 def test_summaries_follow_the_table():
@@ -77,7 +91,7 @@ def test_summaries_follow_the_table():
     study = ex.Study(df, "y", "g")
     sweep = robustness_sweep(study, merges=[["L2", "L3"]])
     t = sweep.table
-    assert len(t) == 4 * 3 * 2 * 2
+    assert sweep.n_combinations == 4 * 3 * 2 * 2 and len(t) == sweep.n_specifications < sweep.n_combinations
     current = study.results.significant()
     assert sweep.share_agreeing == pytest.approx(((t["p-value"] < 0.05) == current).mean())
     assert t["rank"].tolist() == list(range(1, len(t) + 1))
@@ -121,7 +135,8 @@ def test_two_way_sweep_matches_statsmodels():
     df["s"] = np.tile(["day", "night"], len(df) // 2)
     study = ex.Study(df, "y", ["g", "s"])
     sweep = robustness_sweep(study, merges=[["L2", "L3"]])
-    assert sweep.n_specifications == 4 * 1 * 2 * 2 and set(sweep.table["test"]) == {"classic"}
+    assert sweep.n_combinations == 4 * 1 * 2 * 2 and set(sweep.table["test"]) == {"classic"}
+    assert sweep.n_specifications == len(sweep.table) < sweep.n_combinations  # rules that flag the same rows
     assert any("one-factor tests" in n for n in sweep.notes)
     for _, spec in sweep.table.iterrows():
         d, flag = _rebuild(df, spec, "y ~ C(g) * C(s)")
@@ -129,3 +144,35 @@ def test_two_way_sweep_matches_statsmodels():
         ref = anova_lm(smf.ols("y ~ C(g) * C(s)", d[~flag]).fit(), typ=2).loc["C(g)", "PR(>F)"]
         assert spec["p-value"] == pytest.approx(ref, rel=1e-9)
     assert study.edits == ()
+
+
+def test_rank_test_on_the_log_is_the_same_analysis():
+    """Ranks are unchanged by the log, so 'rank test, log' is 'rank test, none' (Kruskal and Wallis
+    1952): 2 tests x 2 transforms are 3 distinct analyses, the rank line says which choice coincides,
+    the disclosure counts 3, and the p-values equal scipy.stats.kruskal on the raw and the logged data."""
+    df = _data()
+    study = ex.Study(df, "y", "g")
+    sweep = robustness_sweep(study, outlier_rules=["none"], tests=["classic", "rank"])
+    t = sweep.table
+    assert sweep.n_combinations == 4 and sweep.n_specifications == 3 == len(t)
+    assert study.disclosure.specifications == 3
+    rank = t[t["test"] == "rank"]
+    assert len(rank) == 1 and rank["transform"].iloc[0] == "none"
+    assert "transform log" in rank["also reached by"].iloc[0] and "monotone" in rank["also reached by"].iloc[0]
+    groups = [v.to_numpy() for _, v in df.groupby("g")["y"]]
+    assert stats.kruskal(*groups).pvalue == pytest.approx(stats.kruskal(*map(np.log, groups)).pvalue, rel=1e-12)
+    assert float(rank["p-value"].iloc[0]) == pytest.approx(stats.kruskal(*groups).pvalue, rel=1e-9)
+    assert any("4 combinations of choices are 3 distinct analyses" in n for n in sweep.notes)
+    single = sweep.single_choice
+    assert len(single[single["option"] == "log"]) == 1  # the single-choice view still has every option
+
+
+def test_outlier_rule_that_leaves_out_no_row_is_the_same_analysis():
+    """Evenly spread values (largest |studentized residual| well below 3): the studentized rule flags
+    no row, so it is the analysis of every row (one line, 'no row left out')."""
+    df = pd.DataFrame({"g": np.repeat(["a", "b", "c"], 10),
+                       "y": 50 + np.tile(np.linspace(-1, 1, 10), 3) + np.repeat([0.0, 0.3, 0.1], 10)})
+    study = ex.Study(df, "y", "g")
+    sweep = robustness_sweep(study, outlier_rules=["none", "studentized"], tests=["classic"], transforms=["none"])
+    assert sweep.n_combinations == 2 and sweep.n_specifications == 1
+    assert "no row left out" in sweep.table["also reached by"].iloc[0]

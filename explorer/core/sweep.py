@@ -13,8 +13,10 @@ can be drawn as a specification curve (Simonsohn et al. 2020). The choices cross
   positive; otherwise the log specifications are left out and a note says so);
 * **merges**: every subset of the level merges the user marks as plausible.
 
-Every combination is computed. The result gives the share of specifications that
-reach the current decision, the single choice that moves the p-value most from the
+Every combination is computed; combinations that are the same analysis (a rank test on
+the log and on the raw response, an outlier rule that leaves out no row) are counted
+once, and the table says which choices coincide (:mod:`.sweep_coincide`). The result
+gives the share of distinct specifications that reach the current decision, the single choice that moves the p-value most from the
 default specification (first option of each choice), and a tidy table with one line
 per specification, ranked by p-value.
 
@@ -51,6 +53,7 @@ from .oneway import fit_oneway
 from .outliers import bonferroni_outlier_test
 from .results import Results
 from .study import Disclosure
+from .sweep_coincide import distinct_analyses
 from .tables import fmt, html_table
 
 __all__ = ["OUTLIER_RULES", "TESTS", "TRANSFORMS", "SweepResult", "robustness_sweep"]
@@ -76,10 +79,12 @@ TRANSFORMS = {"none": "response as measured", "log": "natural log of the respons
 class SweepResult:
     """Every specification of the sweep, with summaries for the report and the chart.
 
-    ``table`` has one line per specification (columns: the four choices, n, rows left
+    ``table`` has one line per distinct analysis (columns: the four choices, n, rows left
     out, statistic, df, p-value, significant, agrees with the current decision, rank by
-    p-value, note). ``single_choice`` has one line per non-default option: the p-value
-    of the default specification with only that choice changed.
+    p-value, note, and the other combinations of choices that are the same analysis).
+    ``n_specifications`` counts distinct analyses, ``n_combinations`` every combination
+    of choices. ``single_choice`` has one line per non-default option: the p-value of the
+    default specification with only that choice changed.
     """
 
     alpha: float
@@ -92,6 +97,7 @@ class SweepResult:
     n_specifications: int
     disclosure: Disclosure | None = None
     notes: tuple[str, ...] = field(default=())
+    n_combinations: int | None = None
 
     @property
     def strongest_choice(self) -> dict | None:
@@ -358,7 +364,9 @@ def robustness_sweep(
             notes.append("Welch and rank tests are one-factor tests; this design is swept with the classic F test only.")
             tests = ("classic",)
         rows, responses = _factorial_rows(study, outlier_rules, transforms, merges, a, notes)
-    table = pd.DataFrame(rows)
+    every = pd.DataFrame(rows)
+    table, coincide = distinct_analyses(every)
+    notes.extend(coincide)
     p = table["p-value"].astype(float).to_numpy()
     defined = np.isfinite(p)
     sig = defined & (np.nan_to_num(p, nan=1.0) < a)
@@ -380,10 +388,10 @@ def robustness_sweep(
     defaults = {"outlier rule": outlier_rules[0], "test": tests[0], "transform": next(iter(responses), None), "merges": "none"}
 
     def pick(spec: dict) -> pd.Series:
-        m = np.ones(len(table), dtype=bool)
+        m = np.ones(len(every), dtype=bool)
         for col, val in spec.items():
-            m &= (table[col] == val).to_numpy()
-        return table[m].iloc[0] if m.any() else None
+            m &= (every[col] == val).to_numpy()
+        return every[m].iloc[0] if m.any() else None
 
     d_row = pick(defaults)
     default_p = None if d_row is None or pd.isna(d_row["p-value"]) else float(d_row["p-value"])
@@ -417,5 +425,5 @@ def robustness_sweep(
         share_agreeing=float(table["agrees with current decision"].sum() / n_def) if n_def else None,
         share_significant=float(sig.sum() / n_def) if n_def else None, n_specifications=len(table),
         disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
-        notes=tuple(notes),
+        notes=tuple(notes), n_combinations=len(every),
     )
