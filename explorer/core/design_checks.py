@@ -83,6 +83,41 @@ def _check_nesting(layout: CellLayout, spec: ModelSpec) -> None:
         )
 
 
+def _check_subjects(layout: CellLayout, spec: ModelSpec) -> list[str]:
+    """Between factors constant within each subject; within factors varying within subjects."""
+    if spec.subject is None:
+        return []
+    j = layout.columns.index(spec.subject)
+    subj = layout.cell_levels[:, j]
+    for f in spec.between:
+        i = layout.columns.index(f)
+        pairs = np.unique(layout.cell_levels[:, [j, i]], axis=0)
+        per_subject = np.bincount(pairs[:, 0], minlength=layout.n_levels[j])
+        bad = np.flatnonzero(per_subject > 1)
+        if bad.size:
+            who = layout.levels[j][int(bad[0])]
+            seen = [layout.levels[i][lv] for lv in pairs[pairs[:, 0] == bad[0], 1].tolist()]
+            raise DesignError(
+                f"{f!r} changes within subject {who!r} (levels {preview(seen)}): a factor that varies within "
+                f"subjects belongs in within=, or the subject labels are reused across {f!r} levels "
+                "(give each subject a unique label)"
+            )
+    notes = []
+    for w in spec.within:
+        i = layout.columns.index(w)
+        pairs = np.unique(layout.cell_levels[:, [j, i]], axis=0)
+        per_subject = np.bincount(pairs[:, 0], minlength=layout.n_levels[j])
+        if np.all(per_subject <= 1):
+            raise DesignError(
+                f"within factor {w!r} does not vary within any subject (each subject is seen at one level): it is "
+                "a between-subject factor; leave it out of within="
+            )
+        if np.any(per_subject < layout.n_levels[i]):
+            notes.append(f"Some subjects are not observed at every level of {w!r}: the within-subject tests use "
+                         "the unbalanced-data expected mean squares, and sphericity cannot be checked.")
+    return notes
+
+
 def _check_empty_cells(layout: CellLayout, spec: ModelSpec) -> list[str]:
     nested = set(spec.nesting)
     factors = [f for f in spec.factors if f not in nested]
@@ -154,6 +189,7 @@ def check_design(
     """
     notes = _dataset_notes(spec, dataset_notes)
     notes += _check_levels(layout, spec)
+    notes += _check_subjects(layout, spec)
     _check_nesting(layout, spec)
     notes += _check_empty_cells(layout, spec)
     notes += _check_replication(layout, cell_n, spec)

@@ -260,8 +260,11 @@ def factorial_from_cells(
         confidence = 1 - spec.alpha
     notes = list(check_design(layout, cells.n, spec, dataset_notes))
     notes += layout_notes(layout, cells.n, spec)
-    fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec,
-                    terms=fitted_terms(spec, cells.n))
+    terms = fitted_terms(spec, cells.n)
+    if spec.subject is not None and (spec.subject, *spec.within) not in terms:
+        top = " × ".join((spec.subject, *spec.within))
+        notes.append(f"One observation per subject and cell: the residual is the {top} interaction.")
+    fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec, terms=terms)
     cell_table = CellTable.from_stats(layout, cells, fit.cell_fitted)
     tables, type_notes = factorial_tables(fit, spec, cell_table.balanced, layout)
     notes += [a.sentence() for a in fit.aliased]

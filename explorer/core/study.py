@@ -34,6 +34,7 @@ if TYPE_CHECKING:
     from .flip import FlipSearch
     from .influence import Influence
     from .regroup import RegroupScan
+    from .repeated_measures import RepeatedMeasures
     from .sweep import SweepResult
 
 __all__ = ["Study", "StudyEvent", "Disclosure"]
@@ -375,6 +376,12 @@ class Study:
         from .battery import run_battery
 
         return run_battery(self.results, **options)
+
+    def repeated_measures(self, *, multivariate: bool = True) -> RepeatedMeasures:
+        """Sphericity, epsilons, corrected p-values and multivariate tests (studies with subject= and within=)."""
+        from .repeated_measures import repeated_measures
+
+        return repeated_measures(self.results, multivariate=multivariate)
 
     # ----------------------------------------------------------------- sensitivity (reads, never edits)
     def influence(self, **options: Any) -> Influence:
