@@ -24,10 +24,13 @@ from .decimal_shift import shift_float, shift_text
 from .errors import ColumnError, DataError, EditError, closest_names, preview
 from .loading import read_table
 from .response_unit import rescale, unit_exponent, unit_note
+from .table_checks import check_response_values, column_names, decimal_comma_hint, refuse_text_collisions, text_columns
 
 __all__ = ["Dataset", "SetAsideRow", "RowId", "build_dataset"]
 
 RowId = Union[int, str]
+
+_INT_TEXT = re.compile(r"-?(?:0|[1-9][0-9]*)", re.ASCII)  # how an integer id prints; '01', '+1', ' 1' are not ids
 
 
 @dataclass(frozen=True)
@@ -128,7 +131,7 @@ class Dataset:
         for r in rows:
             key = _py(r)
             pos = self._positions.get(key)
-            if pos is None and isinstance(key, str) and key.lstrip("-").isdigit():
+            if pos is None and isinstance(key, str) and _INT_TEXT.fullmatch(key):
                 pos = self._positions.get(int(key))
             if pos is None:
                 (aside if key in set_aside_ids else missing).append(key)
@@ -172,11 +175,26 @@ def _id_index(frame: pd.DataFrame, id_column: str, response: str, factors: Seque
     if col.isna().any():
         rows = [int(i) for i in np.flatnonzero(col.isna().to_numpy())]
         raise DataError(f"id column {id_column!r} is empty in rows (positions) {preview(rows)}; every row needs an id")
+    text = col.map(str)
+    blank = text.str.strip() == ""
+    if blank.any():
+        rows = [int(i) for i in np.flatnonzero(blank.to_numpy())]
+        raise DataError(f"id column {id_column!r} is blank in rows (positions) {preview(rows)}; every row needs an id")
     dup = col[col.duplicated(keep=False)]
     if len(dup):
         raise DataError(
             f"id column {id_column!r} repeats ids {preview(sorted({str(v) for v in dup}))}; ids must be unique "
             "(leave id_column out to use row positions)"
+        )
+    same = text[text.duplicated(keep=False)]
+    if len(same):
+        first = same.iloc[0]
+        where = np.flatnonzero((text == first).to_numpy())
+        shown = " and ".join(f"{col.iloc[int(i)]!r} (position {int(i)})" for i in where[:4])
+        raise DataError(
+            f"id column {id_column!r} has ids that read the same as text {first!r}: {shown} "
+            f"(positions {', '.join(str(int(i)) for i in where[:8])}); make the ids one type, e.g. "
+            f"df[{id_column!r}] = df[{id_column!r}].astype(str), after making them unique"
         )
     return pd.Index(col.to_numpy(), name=None)
 
@@ -205,6 +223,10 @@ def build_dataset(
     ``id_column`` names a column of unique row labels (panel, sample or plot ids) to use
     as row ids instead of the index.
     """
+    response = column_names(response, "response")[0]
+    factors = column_names(factors, "factors")
+    if id_column is not None:
+        id_column = column_names(id_column, "id column")[0]
     texts: dict[str, pd.Series] = {}
     if isinstance(data, (str, Path)):
         source = str(Path(data).name)
@@ -217,14 +239,16 @@ def build_dataset(
     factors = tuple(factors)
     if not factors:
         raise ColumnError("name at least one factor column (the grouping, e.g. factors='machine')")
+    frame, notes = text_columns(frame)
     _resolve_columns(frame, response, factors)
-    notes: list[str] = []
 
     # Row ids: a named id column, else the index when it is unique and made of ints or strings.
     if id_column is not None:
         frame = frame.set_index(_id_index(frame, id_column, response, factors), drop=False)
     idx = frame.index
-    usable_index = idx.is_unique and (pd.api.types.is_integer_dtype(idx.dtype) or all(isinstance(v, str) for v in idx))
+    int_index = pd.api.types.is_integer_dtype(idx.dtype)
+    blank_index = not int_index and any(isinstance(v, str) and not v.strip() for v in idx)
+    usable_index = idx.is_unique and not blank_index and (int_index or all(isinstance(v, str) for v in idx))
     if id_column is not None:
         ids = np.asarray(idx, dtype=np.int64) if pd.api.types.is_integer_dtype(idx.dtype) else np.asarray(
             [str(v) for v in idx], dtype=object)
@@ -235,21 +259,21 @@ def build_dataset(
     else:
         ids = np.arange(len(frame), dtype=np.int64)
         id_source = "position"
-        why = "not unique" if not idx.is_unique else "neither integers nor strings"
+        why = ("not unique" if not idx.is_unique else "made of strings, some of them blank" if blank_index
+               else "neither integers nor strings")
         notes.append(f"The table's index is {why}, so rows are identified by position 0..{len(frame) - 1}.")
 
     # Response: numeric, finite.
     col = frame[response]
-    if pd.api.types.is_bool_dtype(col.dtype):
-        raise DataError(f"response column {response!r} is true/false; the analysis of variance needs a numeric response")
+    check_response_values(col, response)
     numeric = pd.to_numeric(col, errors="coerce")
     bad = numeric.isna() & col.notna()
     if bad.any():
         bad_ids = ids[np.flatnonzero(bad.to_numpy())].tolist()
-        examples = preview([str(v) for v in col[bad].head(3)], 3)
+        shown = [str(v) for v in col[bad].head(3)]
         raise DataError(
-            f"response column {response!r} has non-numeric values in rows {preview(bad_ids)} (e.g. {examples}); "
-            "fix or remove them, or pick another response"
+            f"response column {response!r} has non-numeric values in rows {preview(bad_ids)} (e.g. {preview(shown, 3)}); "
+            f"fix or remove them, or pick another response.{decimal_comma_hint(shown)}"
         )
     yv = numeric.to_numpy(dtype=np.float64, na_value=np.nan)
     inf = np.isinf(yv)
@@ -295,6 +319,7 @@ def build_dataset(
     for f in factors:
         fcol = frame[f][usable]
         labels = fcol.map(_label).astype(object)
+        refuse_text_collisions(fcol, labels, ids[usable], f"factor {f!r}")
         order, unused = _level_order(fcol, labels)
         if unused:
             notes.append(f"Factor {f!r}: unused categories {preview(unused)} are left out.")

@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 from typing import Any, Literal
 
 from .errors import ExplorerError
+from .table_checks import column_names
 
 __all__ = ["ModelSpec", "parse_term"]
 
@@ -86,9 +87,10 @@ class ModelSpec:
 
     def __post_init__(self) -> None:
         setf = object.__setattr__
+        setf(self, "response", column_names(self.response, "response")[0])
         for name in ("factors", "blocks", "random", "within"):
             value = getattr(self, name)
-            setf(self, name, (value,) if isinstance(value, str) else tuple(value))
+            setf(self, name, column_names(value, name) if isinstance(value, str) or value else ())
         ss = str(self.ss_type).upper()
         ss = {"1": "I", "2": "II", "3": "III"}.get(ss, ss)
         if ss not in ("I", "II", "III"):

@@ -26,6 +26,7 @@ from .output_files import write_text_atomic
 from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 from .results import Results
 from .spec import ModelSpec
+from .table_checks import column_names
 from .view import DataView, initial_view
 
 if TYPE_CHECKING:
@@ -114,8 +115,8 @@ class Study:
         within: str | Sequence[str] = (),
         variance_method: str = "auto",
     ) -> None:
-        factors_t = (factors,) if isinstance(factors, str) else tuple(factors)
-        blocks_t = (blocks,) if isinstance(blocks, str) else tuple(blocks)
+        factors_t = column_names(factors, "factors")
+        blocks_t = column_names(blocks, "blocks") if isinstance(blocks, str) or blocks else ()
         spec = ModelSpec(response=response, factors=factors_t, blocks=blocks_t,
                          interactions=interactions, ss_type=ss_type, alpha=alpha,  # type: ignore[arg-type]
                          terms=None if terms is None else tuple(terms),  # type: ignore[arg-type]
