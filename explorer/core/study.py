@@ -35,6 +35,7 @@ if TYPE_CHECKING:
     from .flip import FlipSearch
     from .influence import Influence
     from .regroup import RegroupScan
+    from .measurement_system import MeasurementSystem
     from .repeated_measures import RepeatedMeasures
     from .sweep import SweepResult
 
@@ -383,6 +384,14 @@ class Study:
         from .repeated_measures import repeated_measures
 
         return repeated_measures(self.results, multivariate=multivariate)
+
+    def measurement_system(
+        self, part: str, operator: str, *, tolerance: float | None = None, multiplier: float = 6.0
+    ) -> MeasurementSystem:
+        """Repeatability, reproducibility, part-to-part and total (see :mod:`explorer.core.measurement_system`)."""
+        from .measurement_system import measurement_system
+
+        return measurement_system(self.results, part, operator, tolerance=tolerance, multiplier=multiplier)
 
     # ----------------------------------------------------------------- sensitivity (reads, never edits)
     def influence(self, **options: Any) -> Influence:

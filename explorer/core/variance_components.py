@@ -30,7 +30,7 @@ Searle, S. R., Casella, G. and McCulloch, C. E. (1992). Variance Components. Wil
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from fractions import Fraction
 
 import numpy as np
@@ -95,6 +95,8 @@ class VarianceComponents:
     confidence: float
     interval_method: str
     notes: tuple[str, ...] = field(default=())
+    mean_squares: tuple[tuple[str, float, float], ...] = ()  # moments: (row, mean square, df)
+    covariance: np.ndarray | None = None  # REML: asymptotic covariance of the estimates (residual last)
 
     @property
     def total(self) -> float:
@@ -105,6 +107,32 @@ class VarianceComponents:
             if c.source == source:
                 return c
         raise KeyError(f"no component {source!r}; components are {[c.source for c in self.components]}")
+
+    def combined(self, sources: list[str] | tuple[str, ...]) -> tuple[float, float | None, float | None, float | None]:
+        """(estimate, df, CI low, CI high) of the sum of several components.
+
+        Moments: the sum is one linear combination of mean squares (Satterthwaite's df);
+        REML: df = 2 s^4 / Var(s) with Var from the estimates' covariance. Negative
+        components count as computed in the estimate of the sum (it is unbiased); an
+        interval needs a positive sum.
+        """
+        picked = [self.component(s) for s in sources]
+        est = float(sum(c.estimate for c in picked))
+        df: float | None = None
+        if self.mean_squares:
+            coef: dict[str, float] = {}
+            for c in picked:
+                for row, k in c.combination:
+                    coef[row] = coef.get(row, 0.0) + k
+            ms = {row: (m, d) for row, m, d in self.mean_squares}
+            denom = sum((k * ms[row][0]) ** 2 / ms[row][1] for row, k in coef.items() if abs(k) > 1e-15)
+            df = est**2 / denom if denom > 0 and est > 0 else None
+        elif self.covariance is not None:
+            idx = [self.components.index(c) for c in picked]
+            var = float(np.sum(self.covariance[np.ix_(idx, idx)]))
+            df = 2 * est**2 / var if var > 0 and est > 0 else None
+        lo, hi = chi2_interval(est, df, self.confidence)
+        return est, df, lo, hi
 
     def to_frame(self) -> pd.DataFrame:
         pct = f"{self.confidence:.0%}"
@@ -191,9 +219,10 @@ def moment_components(
     if ems.method.startswith("unbalanced"):
         notes.append(f"Unbalanced data: these moment estimates depend on the type {ems.ss_type} sums of squares "
                      "used; REML estimates do not.")
+    mean_squares = tuple((ems.rows[i], float(ms[k]), float(dfs[k])) for k, i in enumerate(rows))
     return VarianceComponents(
         components=tuple(comps), method="method of moments (ANOVA estimates)", confidence=confidence,
-        interval_method="Satterthwaite's chi-square approximation", notes=tuple(notes),
+        interval_method="Satterthwaite's chi-square approximation", notes=tuple(notes), mean_squares=mean_squares,
     )
 
 
@@ -221,6 +250,7 @@ def reml_components(
     return VarianceComponents(
         components=tuple(comps), method="REML", confidence=confidence,
         interval_method="chi-square with df 2 s⁴ / Var(s²) from the REML information", notes=tuple(extra),
+        covariance=covariance,
     )
 
 
@@ -238,11 +268,8 @@ def estimate_components(
     moments = moment_components(ems, table, confidence)
     if spec.variance_method == "moments" or (spec.variance_method == "auto" and balanced):
         if spec.variance_method == "auto":
-            return VarianceComponents(
-                components=moments.components, method=moments.method, confidence=confidence,
-                interval_method=moments.interval_method,
-                notes=moments.notes + ("Balanced data: moment estimates (equal to REML when none is negative).",),
-            )
+            return replace(moments, notes=moments.notes + (
+                "Balanced data: moment estimates (equal to REML when none is negative).",))
         return moments
     indicators = random_indicators(fit, spec, cell_levels, columns)
     fixed = [t for t in fit.terms if not is_random(t, spec)]
