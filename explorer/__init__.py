@@ -8,10 +8,17 @@ from __future__ import annotations
 
 from typing import Any
 
-from .core import *  # noqa: F403
-from .core import __all__ as _core_all
+from .engine import *  # noqa: F403
+from .engine import __all__ as _engine_all
+from .inference import *  # noqa: F403
+from .inference import __all__ as _inference_all
+from .sensitivity import *  # noqa: F403
+from .sensitivity import __all__ as _sensitivity_all
+from .study import *  # noqa: F403
+from .study import __all__ as _study_all
 
-__version__ = "0.1.0"
+from ._version import __version__
+_core_all = [*_engine_all, *_inference_all, *_sensitivity_all, *(n for n in _study_all if n not in _engine_all)]
 __all__ = list(_core_all) + ["explore", "Explorer", "SummaryStudy", "__version__"]
 
 

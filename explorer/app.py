@@ -15,7 +15,8 @@ from pathlib import Path
 
 import ipywidgets as W
 
-from .core import ExplorerError, Study
+from .engine import ExplorerError
+from .study import Study
 from .widget import Explorer
 
 __all__ = ["app_page", "review_paths"]

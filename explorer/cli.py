@@ -27,10 +27,11 @@ import tempfile
 from collections.abc import Sequence
 from pathlib import Path
 
-from .core import ExplorerError, OutputError, ReplayError, Study
-from .core.output_files import check_output_path, write_text_atomic
-from .core.persistence import read_study_file
-from .core.spec import ModelSpec
+from .engine import ExplorerError, OutputError, ReplayError
+from .study import Study
+from .study.output_files import check_output_path, write_text_atomic
+from .study.persistence import read_study_file
+from .engine.spec import ModelSpec
 
 __all__ = ["main", "EXIT_CODES", "PROG"]
 

@@ -23,10 +23,10 @@ from scipy import stats
 from statsmodels.stats.oneway import confint_effectsize_oneway
 
 import explorer as ex
-from explorer.core.battery import run_battery
-from explorer.core.comparisons import dunnett, games_howell, pairwise_t, tukey
-from explorer.core.effect_sizes import effect_sizes
-from explorer.core.letters import compact_letters
+from explorer.inference.battery import run_battery
+from explorer.inference.comparisons import dunnett, games_howell, pairwise_t, tukey
+from explorer.inference.effect_sizes import effect_sizes
+from explorer.inference.letters import compact_letters
 
 SCIPY_TUKEY_GROUPS = [  # scipy.stats.tukey_hsd docstring example
     [24.5, 23.5, 26.4, 27.1, 29.9],

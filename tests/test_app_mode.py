@@ -20,7 +20,7 @@ import pytest
 from handoff_support import CHROME_ARGS, chromium_path
 
 import explorer as ex
-from explorer.core.tables import fmt
+from explorer.engine.tables import fmt
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "data" / "coating_thickness.csv"

@@ -1,4 +1,4 @@
-"""Assumption checks and the suggestion they point to (explorer.core.assumptions).
+"""Assumption checks and the suggestion they point to (explorer.inference.assumptions).
 
 Outside references: scipy.stats.levene (centre 'mean', 'median', 'trimmed'),
 scipy.stats.bartlett and scipy.stats.shapiro (scipy 1.17), the latter applied to the
@@ -14,8 +14,8 @@ import pytest
 from groups_support import random_groups, study_from_groups
 from scipy import stats
 
-from explorer.core.assumptions import bartlett, levene, recommend, shapiro_residuals
-from explorer.core.errors import ExplorerError
+from explorer.inference.assumptions import bartlett, levene, recommend, shapiro_residuals
+from explorer.engine.errors import ExplorerError
 
 
 @pytest.fixture(scope="module")
@@ -112,7 +112,7 @@ def test_shapiro_on_two_factor_residuals_matches_scipy_on_statsmodels_residuals(
     from statsmodels.formula.api import ols
 
     import explorer as ex
-    from explorer.core.assumptions import shapiro_residuals
+    from explorer.inference.assumptions import shapiro_residuals
 
     rng = np.random.default_rng(11)
     df = pd.DataFrame({"a": rng.choice(["x", "y", "z"], 90), "b": rng.choice(["p", "q"], 90)})

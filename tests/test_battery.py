@@ -1,4 +1,4 @@
-"""The one-way battery bundle (explorer.core.battery) and ``Study.battery``.
+"""The one-way battery bundle (explorer.inference.battery) and ``Study.battery``.
 
 Each part is checked against its outside reference in its own test file; here the
 bundle is checked against the same references on the e-Handbook data (NIST/SEMATECH
@@ -18,9 +18,9 @@ from groups_support import NIST_TUKEY_GROUPS, frame_from_groups, study_from_grou
 from scipy import stats
 
 import explorer as ex
-from explorer.core.battery import Battery, run_battery
-from explorer.core.comparisons import tukey
-from explorer.core.errors import DesignError, ExplorerError
+from explorer.inference.battery import Battery, run_battery
+from explorer.inference.comparisons import tukey
+from explorer.engine.errors import DesignError, ExplorerError
 
 
 def _methods(b: Battery) -> tuple:

@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 from scipy import stats
 
 import explorer as ex
-from explorer.core.case_deletion import case_deletion_scan
+from explorer.sensitivity.case_deletion import case_deletion_scan
 
 
 def _refit(df: pd.DataFrame, drop: int, shift: float = 0.0):  # type: ignore[no-untyped-def]

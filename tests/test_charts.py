@@ -179,7 +179,7 @@ def test_thin_keeps_everything_under_the_limit():
 
 def test_case_deletion_chart_marks_the_rows_that_flip():
     """Values are the core's case-deletion scan (checked against refits in test_case_deletion)."""
-    from explorer.core.case_deletion import case_deletion_scan
+    from explorer.sensitivity.case_deletion import case_deletion_scan
 
     study = ex.Study(str(DEMO), "thickness_um", "nozzle")
     scan = case_deletion_scan(study, record=False)
@@ -194,7 +194,7 @@ def test_case_deletion_chart_marks_the_rows_that_flip():
 
 
 def test_specification_curve_has_every_specification_in_rank_order():
-    from explorer.core.sweep import robustness_sweep
+    from explorer.sensitivity.sweep import robustness_sweep
 
     sweep = robustness_sweep(ex.Study(str(DEMO), "thickness_um", "nozzle"), record=False)
     spec = charts.specification_curve_chart(sweep).to_dict()

@@ -20,7 +20,7 @@ import pytest
 from nist_strd import available, read_set
 
 import explorer as ex
-from explorer.core.comparisons import dunnett, games_howell, pairwise_t, tukey
+from explorer.inference.comparisons import dunnett, games_howell, pairwise_t, tukey
 
 
 def _exact_level_means(texts: list[str], levels: list[str]) -> dict[str, Fraction]:

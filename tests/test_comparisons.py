@@ -1,4 +1,4 @@
-"""Multiple comparisons (explorer.core.comparisons).
+"""Multiple comparisons (explorer.inference.comparisons).
 
 Outside references: NIST/SEMATECH e-Handbook section 7.4.7.1 (Tukey's 95% simultaneous
 intervals, four levels of five; printed to 2 decimals); scipy.stats.tukey_hsd (its
@@ -22,7 +22,7 @@ from groups_support import (
 from scipy import stats
 from statsmodels.stats.multitest import multipletests
 
-from explorer.core.comparisons import (
+from explorer.inference.comparisons import (
     adjust_pvalues,
     dunnett,
     games_howell,
@@ -30,7 +30,7 @@ from explorer.core.comparisons import (
     simultaneous_pairs,
     tukey,
 )
-from explorer.core.errors import ExplorerError
+from explorer.engine.errors import ExplorerError
 
 # scipy.stats.tukey_hsd docstring example (three groups of five).
 SCIPY_TUKEY_GROUPS = [

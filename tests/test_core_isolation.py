@@ -8,7 +8,7 @@ import sys
 
 def test_core_imports_no_widget_stack():
     code = (
-        "import sys, explorer, explorer.core\n"
+        "import sys, explorer, explorer.engine, explorer.inference, explorer.sensitivity, explorer.study\n"
         "s = explorer.Study(__import__('pandas').DataFrame({'g': list('aabb'), 'y': [1.0, 2.0, 4.0, 5.0]}), 'y', 'g')\n"
         "s.drop([0], reason='check'); s.results\n"
         "bad = sorted(m for m in ('ipywidgets', 'altair', 'anywidget', 'vl_convert') if m in sys.modules)\n"

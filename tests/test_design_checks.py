@@ -17,7 +17,7 @@ from statsmodels.formula.api import ols
 from statsmodels.stats.anova import anova_lm
 
 import explorer as ex
-from explorer.core.errors import DesignError, EditError
+from explorer.engine.errors import DesignError, EditError
 
 
 def grid(a: int, b: int, reps: int, seed: int = 0) -> pd.DataFrame:

@@ -1,4 +1,4 @@
-"""Effect sizes and their noncentral-F intervals (explorer.core.effect_sizes).
+"""Effect sizes and their noncentral-F intervals (explorer.inference.effect_sizes).
 
 Outside references: NIST/SEMATECH e-Handbook 7.4.3.3 partition (SS treatments 27.897,
 SS error 17.452, MS error 1.454, total 45.349; eta and omega squared follow from the
@@ -15,7 +15,7 @@ from groups_support import NIST_TUKEY_GROUPS, random_groups, study_from_groups
 from scipy import stats
 from statsmodels.stats.oneway import confint_effectsize_oneway
 
-from explorer.core.effect_sizes import effect_sizes, noncentrality_interval
+from explorer.inference.effect_sizes import effect_sizes, noncentrality_interval
 
 
 @pytest.fixture(scope="module")

@@ -21,13 +21,13 @@ from statsmodels.stats.anova import anova_lm
 from statsmodels.stats.outliers_influence import OLSInfluence
 
 import explorer as ex
-from explorer.core.analysis import analyze
-from explorer.core.cellfit import fit_cells
-from explorer.core.dataset import build_dataset
-from explorer.core.factorial import fit_factorial
-from explorer.core.groupstats import GroupStats
-from explorer.core.spec import ModelSpec
-from explorer.core.view import initial_view
+from explorer.engine.analysis import analyze
+from explorer.engine.cellfit import fit_cells
+from explorer.engine.dataset import build_dataset
+from explorer.engine.factorial import fit_factorial
+from explorer.engine.groupstats import GroupStats
+from explorer.engine.spec import ModelSpec
+from explorer.engine.view import initial_view
 
 # Montgomery, Design and Analysis of Experiments, Example 5.1 (battery life, hours:
 # material type x temperature in degrees F, four batteries per cell). Data from memory.

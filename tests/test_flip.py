@@ -10,8 +10,8 @@ import pytest
 from scipy import stats
 
 import explorer as ex
-from explorer.core.errors import ExplorerError
-from explorer.core.flip import flip_finder
+from explorer.engine.errors import ExplorerError
+from explorer.sensitivity.flip import flip_finder
 
 BASE_A = [0.1, -0.3, 0.4, 0.0, -0.2, 0.3, -0.1, 0.2]
 BASE_B = [0.2, -0.1, 0.3, 0.0, 0.1, -0.2, 0.4, 0.05]

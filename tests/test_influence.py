@@ -10,7 +10,7 @@ from scipy import stats
 from statsmodels.stats.outliers_influence import OLSInfluence
 
 import explorer as ex
-from explorer.core.influence import influence
+from explorer.sensitivity.influence import influence
 
 
 def _oneway(seed: int = 1) -> pd.DataFrame:

@@ -1,4 +1,4 @@
-"""Compact letter display (explorer.core.letters, Piepho 2004).
+"""Compact letter display (explorer.inference.letters, Piepho 2004).
 
 Outside references: the Tukey intervals of NIST/SEMATECH e-Handbook 7.4.7.1 (levels 2
 and 3 differ from 1 and 4, and not from each other); a generated overlapping case
@@ -13,9 +13,9 @@ import numpy as np
 import pytest
 from groups_support import NIST_TUKEY_GROUPS, random_groups, study_from_groups
 
-from explorer.core.comparisons import tukey
-from explorer.core.errors import ExplorerError
-from explorer.core.letters import compact_letters
+from explorer.inference.comparisons import tukey
+from explorer.engine.errors import ExplorerError
+from explorer.inference.letters import compact_letters
 
 # Ten fixed deviations with mean 0 and SD 1 (so MSE = 1 and the Tukey HSD is q * sqrt(1/10)).
 _DEV = np.array([-1.5, -1.0, -0.5, 0.0, 0.5, -0.25, 0.25, 0.75, 0.25, 1.5])
@@ -62,7 +62,7 @@ def test_letters_encode_the_table(seed: int) -> None:
 
 def _table_from_pattern(sig: np.ndarray, estimates: np.ndarray):
     """A PairwiseTable whose pairs are significant where ``sig`` is True (p 0.001, else 0.5)."""
-    from explorer.core.comparisons import PairwiseTable
+    from explorer.inference.comparisons import PairwiseTable
 
     k = len(estimates)
     i, j = np.triu_indices(k, 1)

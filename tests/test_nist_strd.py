@@ -88,7 +88,7 @@ def test_certified_values_from_float_input():
 def test_certified_values_from_decimal_text(tmp_path):
     """Read from their own decimal text (CSV), every set reaches LRE >= 13 against NIST certified values.
 
-    The exact decimal shift at load time (explorer.core.decimal_shift) keeps the digits
+    The exact decimal shift at load time (explorer.engine.decimal_shift) keeps the digits
     that float64 parsing of 13-leading-digit values would lose.
     """
     table = {}

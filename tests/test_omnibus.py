@@ -1,4 +1,4 @@
-"""Omnibus tests beside the classic F (explorer.core.omnibus).
+"""Omnibus tests beside the classic F (explorer.inference.omnibus).
 
 Outside references: statsmodels.stats.oneway.anova_oneway (statsmodels 0.15) for
 Welch (use_var='unequal') and Brown-Forsythe (use_var='bf', both Mehrotra's df
@@ -15,8 +15,8 @@ from groups_support import random_groups, study_from_groups
 from scipy import stats
 from statsmodels.stats.oneway import anova_oneway
 
-from explorer.core.errors import ExplorerError
-from explorer.core.omnibus import (
+from explorer.engine.errors import ExplorerError
+from explorer.inference.omnibus import (
     brown_forsythe_f,
     classic_f,
     kruskal_wallis,
@@ -68,10 +68,10 @@ def _rejection_rates(sizes: tuple[int, ...], sds: tuple[float, ...], reps: int, 
     Brown-Forsythe test rejects at 5%: (Mehrotra df, original k - 1 df). Each data set is
     drawn through its sufficient statistics (level mean ~ N(0, sd^2/n), centred SS ~
     sd^2 chi^2(n-1), independent for normal data), exact in distribution and fast."""
-    from explorer.core.fitrows import RowSet
-    from explorer.core.groupstats import GroupStats
-    from explorer.core.oneway import oneway_from_stats
-    from explorer.core.spec import ModelSpec
+    from explorer.engine.fitrows import RowSet
+    from explorer.engine.groupstats import GroupStats
+    from explorer.engine.oneway import oneway_from_stats
+    from explorer.engine.spec import ModelSpec
 
     rng = np.random.default_rng(seed)
     n = np.asarray(sizes)

@@ -143,10 +143,10 @@ def test_one_factor_table_says_the_types_coincide(ss_type):
     """One factor: whatever type is asked for, the table records it and its caption says that
     types I, II and III coincide (one term: each type's SS is the between-level SS; Montgomery,
     DAE ch. 3), never "type I" for a study asked for type III. Same through the general engine."""
-    from explorer.core.dataset import build_dataset
-    from explorer.core.factorial import fit_factorial
-    from explorer.core.spec import ModelSpec
-    from explorer.core.view import initial_view
+    from explorer.engine.dataset import build_dataset
+    from explorer.engine.factorial import fit_factorial
+    from explorer.engine.spec import ModelSpec
+    from explorer.engine.view import initial_view
 
     frame = pd.DataFrame({"g": list("aabbbccc"), "y": [1.0, 2.0, 4.0, 5.0, 5.5, 7.0, 8.0, 9.5]})
     table = ex.Study(frame, "y", "g", ss_type=ss_type).results.partition

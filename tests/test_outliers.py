@@ -1,4 +1,4 @@
-"""Outlier screens on residuals (explorer.core.outliers).
+"""Outlier screens on residuals (explorer.inference.outliers).
 
 Outside references: NIST/SEMATECH e-Handbook 1.3.5.17.1 (Grubbs' two-sided critical
 value formula; printed values 2.127, 2.290, 2.708 at N = 8, 10, 20, alpha 0.05);
@@ -17,7 +17,7 @@ from groups_support import frame_from_groups, random_groups
 from scipy import stats
 
 import explorer as ex
-from explorer.core.outliers import (
+from explorer.inference.outliers import (
     GRUBBS_MIN_N,
     bonferroni_outlier_test,
     grubbs_critical,
@@ -90,8 +90,8 @@ def test_guards() -> None:
 
 
 def test_agrees_with_the_influence_table(planted) -> None:
-    """The screen's studentized residuals equal those of explorer.core.influence (one statistic, two views)."""
-    from explorer.core.influence import influence_measures
+    """The screen's studentized residuals equal those of explorer.sensitivity.influence (one statistic, two views)."""
+    from explorer.sensitivity.influence import influence_measures
 
     _, study = planted
     fit = study.results.fit

@@ -15,8 +15,8 @@ import pytest
 
 import explorer as ex
 from explorer.cli import EXIT_NO_OUTPUT, main
-from explorer.core.errors import OutputError
-from explorer.core.output_files import write_text_atomic
+from explorer.engine.errors import OutputError
+from explorer.study.output_files import write_text_atomic
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "data" / "coating_thickness.csv"

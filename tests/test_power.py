@@ -1,4 +1,4 @@
-"""Power of the one-way F test and group size for a target power (explorer.core.power).
+"""Power of the one-way F test and group size for a target power (explorer.inference.power).
 
 Outside references: Cohen (1988) Statistical Power Analysis, Table 8.4.4 (from memory):
 four groups (u = 3), f = 0.25, alpha 0.05, power 0.80 -> n = 45 per group; and the
@@ -16,8 +16,8 @@ from groups_support import NIST_TUKEY_GROUPS, random_groups, study_from_groups
 from scipy import stats
 from statsmodels.stats.power import FTestAnovaPower
 
-from explorer.core.errors import ExplorerError
-from explorer.core.power import f_test_power, group_size_for_power, power_plan
+from explorer.engine.errors import ExplorerError
+from explorer.inference.power import f_test_power, group_size_for_power, power_plan
 
 
 def test_cohen_table_values() -> None:

@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from explorer.core.errors import EditError, PredicateError
+from explorer.engine.errors import EditError, PredicateError
 from explorer.summaries import SummaryStudy, parse_predicate
 
 duckdb = pytest.importorskip("duckdb")

@@ -8,7 +8,7 @@ import pytest
 from scipy import stats
 
 import explorer as ex
-from explorer.core.regroup import regroup_scan
+from explorer.sensitivity.regroup import regroup_scan
 
 
 def _p(df: pd.DataFrame) -> tuple[float, float, int]:

@@ -19,8 +19,8 @@ from statsmodels.multivariate.manova import MANOVA
 from statsmodels.stats.anova import AnovaRM
 
 import explorer as ex
-from explorer.core.errors import DesignError
-from explorer.core.repeated_measures import repeated_measures
+from explorer.engine.errors import DesignError
+from explorer.inference.repeated_measures import repeated_measures
 
 pg = pytest.importorskip("pingouin")
 

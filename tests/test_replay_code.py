@@ -103,7 +103,7 @@ def test_other_edit_kinds_replay_from_their_saved_form():
     from dataclasses import dataclass
     from typing import ClassVar
 
-    from explorer.core.edits import EDIT_KINDS, DropRows, register_edit
+    from explorer.engine.edits import EDIT_KINDS, DropRows, register_edit
 
     @register_edit
     @dataclass(frozen=True, kw_only=True)

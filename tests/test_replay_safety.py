@@ -27,8 +27,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import explorer as ex
-from explorer.core.edits import DropRows, MergeLevels, Reassign, RenameLevel, edit_from_dict
-from explorer.core.errors import ReplayError
+from explorer.engine.edits import DropRows, MergeLevels, Reassign, RenameLevel, edit_from_dict
+from explorer.engine.errors import ReplayError
 
 ROOT = Path(__file__).resolve().parents[1]
 

@@ -10,7 +10,7 @@ import pytest
 from handoff_support import CHROME_ARGS, chromium_path, outline
 
 import explorer as ex
-from explorer.core.tables import fmt
+from explorer.engine.tables import fmt
 from explorer.report import CAUTIONS, report_html
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -134,8 +134,8 @@ def test_report_opens_offline_in_chromium(page):
 
 def test_sensitivity_summary_matches_the_scans(edited, page):
     """The summary repeats what the scans find (the scans are checked in their own tests)."""
-    from explorer.core.case_deletion import case_deletion_scan
-    from explorer.core.sweep import robustness_sweep
+    from explorer.sensitivity.case_deletion import case_deletion_scan
+    from explorer.sensitivity.sweep import robustness_sweep
 
     doc = outline(page[1])
     text = doc.section_text("sensitivity")
@@ -164,7 +164,7 @@ def test_factorial_study_report(tmp_path):
 
 def test_a_scan_that_does_not_apply_becomes_a_note(monkeypatch):
     """A scan refusing the design (DesignError) leaves its line out and says why; the rest still show."""
-    import explorer.core.flip as flip
+    import explorer.sensitivity.flip as flip
 
     def refuse(*args, **kwargs):
         raise ex.DesignError("the flip finder works on one-factor studies; this study has factors ['a', 'b']. "

@@ -1,4 +1,4 @@
-"""The studentized range distribution (quadrature in explorer.core.studentized_range).
+"""The studentized range distribution (quadrature in explorer.engine.studentized_range).
 
 Outside references: the exact identity Q = sqrt(2)|T| for two means (t distribution
 from scipy.stats.t); scipy.stats.studentized_range (scipy 1.17) for k >= 3; the
@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from explorer.core.studentized_range import srange_cdf, srange_ppf, srange_sf
+from explorer.engine.studentized_range import srange_cdf, srange_ppf, srange_sf
 
 
 @pytest.mark.parametrize("df", [1, 2, 5, 12, 40, 300, 5000, 1e5, np.inf])

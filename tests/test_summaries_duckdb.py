@@ -20,9 +20,9 @@ from nist_strd import SETS, available, exact_oneway, lre, read_set
 from summaries_support import assert_same_results, close, unbalanced_frame
 
 import explorer as ex
-from explorer.core import comparisons
-from explorer.core.errors import ColumnError, DataError, EditError, ReplayError
-from explorer.core.omnibus import brown_forsythe_f, welch_f
+from explorer.inference import comparisons
+from explorer.engine.errors import ColumnError, DataError, EditError, ReplayError
+from explorer.inference.omnibus import brown_forsythe_f, welch_f
 from explorer.summaries import (
     DuckDBSource,
     SummaryStudy,
@@ -319,8 +319,8 @@ def test_sample_is_seeded_and_stated(parquet):
 
 def test_battery_exact_parts_and_sample_parts(frame):
     """summary_battery: Welch/Tukey/effect sizes equal the row battery's (1e-10); rank tests come from the
-    sample and equal the row battery on those sampled rows (reference: explorer.core.battery.run_battery)."""
-    from explorer.core.battery import run_battery
+    sample and equal the row battery on those sampled rows (reference: explorer.inference.battery.run_battery)."""
+    from explorer.inference.battery import run_battery
 
     s = SummaryStudy(frame, "thickness", "line", sample_size=120, seed=1)
     r = ex.Study(frame, "thickness", "line")
@@ -364,8 +364,8 @@ def test_bad_columns_and_values(frame, tmp_path):
 def test_row_tools_run_on_the_sample_study(frame):
     """sample_study(): a row study of the sample at the current view, for influence, case deletion and flips;
     its results equal a fresh row study of the same sampled rows (reference: the row-backed study)."""
-    from explorer.core.case_deletion import case_deletion_scan
-    from explorer.core.influence import influence
+    from explorer.sensitivity.case_deletion import case_deletion_scan
+    from explorer.sensitivity.influence import influence
 
     s = SummaryStudy(frame, "thickness", "line", sample_size=80, seed=4)
     s.merge_levels("line", ["L2", "L3"], into="L23", reason="same supplier")
@@ -390,8 +390,8 @@ def test_missing_values_are_set_aside(tmp_path):
 
 
 def test_engines_are_not_imported_by_the_kit():
-    """import explorer / explorer.core / explorer.summaries load neither duckdb nor pyspark."""
-    code = ("import sys, explorer, explorer.core, explorer.summaries; "
+    """import explorer / its statistical packages / explorer.summaries load neither duckdb nor pyspark."""
+    code = ("import sys, explorer, explorer.engine, explorer.study, explorer.summaries; "
             "print('duckdb' in sys.modules, 'pyspark' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()
     assert out == ["False", "False"]

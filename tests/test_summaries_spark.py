@@ -18,7 +18,7 @@ from nist_strd import available, lre, read_set
 from summaries_support import assert_same_results, close, unbalanced_frame
 
 import explorer as ex
-from explorer.core.errors import EditError
+from explorer.engine.errors import EditError
 from explorer.summaries import SummaryStudy
 
 pytest.importorskip("pyspark")
@@ -112,7 +112,7 @@ def test_nist_decimal_column_through_spark(spark):
 def test_conditions_are_type_checked_and_literals_kept_through_spark(spark, frame):
     """Spark gets the same checks as DuckDB: an ill-typed condition is a PredicateError before Spark sees it,
     and a literal with spaced brackets reaches Spark byte for byte (reference: a pandas mask)."""
-    from explorer.core.errors import PredicateError
+    from explorer.engine.errors import PredicateError
 
     data = frame.assign(note=["rework ( line 2 )" if i % 7 == 0 else "ok" for i in range(len(frame))])
     s = SummaryStudy(spark.createDataFrame(data), "thickness", "line", sample_size=0)

@@ -10,8 +10,8 @@ from scipy import stats
 from statsmodels.stats.outliers_influence import OLSInfluence
 
 import explorer as ex
-from explorer.core.errors import ExplorerError
-from explorer.core.sweep import robustness_sweep
+from explorer.engine.errors import ExplorerError
+from explorer.sensitivity.sweep import robustness_sweep
 
 
 def _data() -> pd.DataFrame:

@@ -1,4 +1,4 @@
-"""Per-term effect sizes of multi-factor designs (explorer.core.term_effects).
+"""Per-term effect sizes of multi-factor designs (explorer.engine.term_effects).
 
 Outside references: pingouin.anova(effsize='n2' and 'np2') on balanced two-factor data
 (pingouin 0.5; its plain eta² divides by the total SS, which for unbalanced data is not
@@ -91,12 +91,12 @@ def test_unbalanced_plain_measures_by_hand_and_intervals_and_power() -> None:
 def test_one_factor_term_effects_equal_the_oneway_effect_sizes_and_power() -> None:
     """One factor through the general engine: partial = plain eta², and the interval and power
     equal the one-way effect_sizes (same 1 - 2 alpha interval) and power_plan at the observed f."""
-    from explorer.core.dataset import build_dataset
-    from explorer.core.effect_sizes import effect_sizes
-    from explorer.core.factorial import fit_factorial
-    from explorer.core.power import power_plan
-    from explorer.core.spec import ModelSpec
-    from explorer.core.view import initial_view
+    from explorer.engine.dataset import build_dataset
+    from explorer.inference.effect_sizes import effect_sizes
+    from explorer.engine.factorial import fit_factorial
+    from explorer.inference.power import power_plan
+    from explorer.engine.spec import ModelSpec
+    from explorer.engine.view import initial_view
 
     frame = _frame(3, balanced=False)[["fa", "y"]]
     ds = build_dataset(frame, "y", ["fa"])

@@ -1,4 +1,4 @@
-"""The core's type hints hold: mypy finds no errors in ``explorer/core``.
+"""The statistical layers' type hints hold: mypy finds no errors in engine, inference, sensitivity, study.
 
 Not a statistical check; it keeps the public surface's annotations honest.
 """
@@ -17,7 +17,8 @@ ROOT = Path(__file__).resolve().parents[1]
 def test_core_type_checks(tmp_path):
     pytest.importorskip("mypy")
     out = subprocess.run(
-        [sys.executable, "-m", "mypy", "explorer/core", "--ignore-missing-imports", "--no-error-summary",
+        [sys.executable, "-m", "mypy", "explorer/engine", "explorer/inference", "explorer/sensitivity",
+         "explorer/study", "explorer/core", "--ignore-missing-imports", "--no-error-summary",
          "--cache-dir", str(tmp_path / "mypy-cache")],
         cwd=ROOT, capture_output=True, text=True, timeout=600,
     )

@@ -14,7 +14,7 @@ import pandas as pd
 import pytest
 
 import explorer as ex
-from explorer.core.tables import fmt
+from explorer.engine.tables import fmt
 from explorer.widget import Explorer, Panel, register_panel, unregister_panel
 
 
@@ -209,8 +209,8 @@ def test_hidden_tabs_redraw_only_when_opened(demo):
 
 
 def test_battery_panels_follow_the_pickers(demo):
-    """The featured test is the core's (``explorer.core.omnibus.welch_f``, checked against scipy in test_omnibus)."""
-    from explorer.core.omnibus import welch_f
+    """The featured test is the core's (``explorer.inference.omnibus.welch_f``, checked against scipy in test_omnibus)."""
+    from explorer.inference.omnibus import welch_f
 
     e = demo
     e.omnibus_picker.value = "welch"

@@ -13,8 +13,9 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from explorer.core import Results, Study
-from explorer.core.moves import moved_mask
+from explorer.engine import Results
+from explorer.study import Study
+from explorer.engine.moves import moved_mask
 
 from .style import IN_ANALYSIS, LEFT_OUT_STATE, MOVED_STATE
 

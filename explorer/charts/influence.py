@@ -1,4 +1,4 @@
-"""Cook's distance by row, drawn from the core's influence measures (:mod:`explorer.core.influence`).
+"""Cook's distance by row, drawn from the core's influence measures (:mod:`explorer.sensitivity.influence`).
 
 References
 ----------
@@ -11,8 +11,8 @@ from __future__ import annotations
 import altair as alt
 import numpy as np
 
-from explorer.core import Results
-from explorer.core.influence import Influence, influence_measures
+from explorer.engine import Results
+from explorer.sensitivity.influence import Influence, influence_measures
 
 from .frames import MAX_POINTS, RowColumns, fit_frame, thin
 from .observations import pick_param, row_marks

@@ -13,7 +13,7 @@ from typing import Any
 import altair as alt
 import pandas as pd
 
-from explorer.core import Study
+from explorer.study import Study
 
 from .frames import MAX_POINTS, column_fields, observation_frame
 from .style import HEIGHT, MEAN, PICKED, STATE_SCALE, WIDTH, finish

@@ -5,7 +5,7 @@ from __future__ import annotations
 import altair as alt
 import pandas as pd
 
-from explorer.core import AnovaTable, Results
+from explorer.engine import AnovaTable, Results
 
 from .style import BASELINE, HEIGHT, WIDTH, finish
 

@@ -13,7 +13,7 @@ import altair as alt
 import numpy as np
 from scipy import stats
 
-from explorer.core import Results
+from explorer.engine import Results
 
 from .frames import MAX_POINTS, RowColumns, fit_frame, thin
 from .observations import pick_param, row_marks

@@ -1,7 +1,7 @@
 """Fragility views: the p-value with each row left out, and the specification curve.
 
-Builders of the results of :mod:`explorer.core.case_deletion` and
-:mod:`explorer.core.sweep`. Rows whose deletion alone flips the decision are drawn in
+Builders of the results of :mod:`explorer.sensitivity.case_deletion` and
+:mod:`explorer.sensitivity.sweep`. Rows whose deletion alone flips the decision are drawn in
 the pick colour and carry the ``pick`` selection, so they can be examined (and, with a
 documented reason, left out) from the chart.
 
@@ -18,8 +18,8 @@ import altair as alt
 import numpy as np
 import pandas as pd
 
-from explorer.core.case_deletion import CaseDeletionScan
-from explorer.core.sweep import SweepResult
+from explorer.sensitivity.case_deletion import CaseDeletionScan
+from explorer.sensitivity.sweep import SweepResult
 
 from .frames import MAX_POINTS, thin
 from .observations import pick_param

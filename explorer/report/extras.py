@@ -1,7 +1,7 @@
 """Optional parts of a hand-off: the test battery and the sensitivity summary.
 
 These come from other parts of the kit (``study.battery()`` and the sensitivity engine
-in ``explorer/core``). Each is looked up when the report is written; a part that is
+in the statistical packages). Each is looked up when the report is written; a part that is
 missing or fails leaves a short note in its place instead of stopping the report, so a
 hand-off can always be written. Every part is a :class:`Part` with an HTML and a text
 form, shared by the HTML report and the command line.
@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any
 import pandas as pd
 
 if TYPE_CHECKING:
-    from ..core.study import Study
+    from ..study.study import Study
 
 __all__ = ["Part", "battery_part", "sensitivity_part", "as_html", "as_text", "frame_text"]
 
@@ -43,7 +43,7 @@ def as_html(obj: Any) -> str:
         if out:
             return str(out)
     if hasattr(obj, "to_frame"):
-        from ..core.tables import html_table
+        from ..engine.tables import html_table
 
         return html_table(obj.to_frame())
     return f"<pre>{html.escape(str(obj))}</pre>"
@@ -126,7 +126,7 @@ def sensitivity_part(study: "Study", *, charts: bool = True) -> Part:
     title = "Sensitivity of the decision"
     if hasattr(study, "sensitivity"):
         return _call(title, lambda: study.sensitivity(), "")  # type: ignore[attr-defined]
-    from ..core.errors import DesignError
+    from ..engine.errors import DesignError
     from .sensitivity_summary import curve_html, sensitivity_summary
     from .svg_charts import curve_svg
 

@@ -19,16 +19,16 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..core.output_files import check_output_path, write_text_atomic
-from ..core.tables import fmt
+from ..study.output_files import check_output_path, write_text_atomic
+from ..engine.tables import fmt
 from .cautions import cautions_html
 from .extras import Part, battery_part, sensitivity_part
 from .replay_code import study_to_code
 from .svg_charts import model_check_svgs, results_svg
 
 if TYPE_CHECKING:
-    from ..core.results import Results
-    from ..core.study import Study
+    from ..engine.results import Results
+    from ..study.study import Study
 
 __all__ = ["report_html", "write_report"]
 
@@ -157,7 +157,7 @@ def _part(part: Part) -> str:
 
 def report_html(study: "Study", *, title: str | None = None, scenario: str | None = None, charts: bool = True) -> str:
     """The report page as a string (see the module docstring for its contents)."""
-    from .. import __version__
+    from .._version import __version__
 
     spec = study.spec
     title = title or f"{spec.response} by {' and '.join(spec.factors)}: analysis of variance"

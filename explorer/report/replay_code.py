@@ -21,10 +21,10 @@ import math
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ..core.edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows
+from ..engine.edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows
 
 if TYPE_CHECKING:
-    from ..core.study import Study
+    from ..study.study import Study
 
 __all__ = ["study_to_code", "edit_to_code", "python_literal"]
 

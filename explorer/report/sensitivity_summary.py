@@ -26,11 +26,11 @@ from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
-from ..core.errors import DesignError
-from ..core.tables import fmt, html_table
+from ..engine.errors import DesignError
+from ..engine.tables import fmt, html_table
 
 if TYPE_CHECKING:
-    from ..core.study import Study
+    from ..study.study import Study
 
 __all__ = ["SensitivitySummary", "sensitivity_summary"]
 
@@ -112,10 +112,10 @@ def _try(scan: Callable[[], Any], notes: list[str]) -> Any:
 
 def sensitivity_summary(study: "Study") -> SensitivitySummary:
     """Run the scans on ``study`` (unchanged, nothing recorded) and summarise them."""
-    from ..core.case_deletion import case_deletion_scan
-    from ..core.flip import flip_finder
-    from ..core.regroup import regroup_scan
-    from ..core.sweep import robustness_sweep
+    from ..sensitivity.case_deletion import case_deletion_scan
+    from ..sensitivity.flip import flip_finder
+    from ..sensitivity.regroup import regroup_scan
+    from ..sensitivity.sweep import robustness_sweep
 
     res = study.results
     notes: list[str] = []

@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 if TYPE_CHECKING:
-    from ..core.results import Results
+    from ..engine.results import Results
 
 __all__ = ["level_chart", "curve_chart", "chart_to_svg", "results_svg", "curve_svg", "charts_available", "model_check_svgs"]
 

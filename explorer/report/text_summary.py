@@ -4,13 +4,13 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from ..core.tables import fmt
+from ..engine.tables import fmt
 from .cautions import cautions_text
 from .extras import battery_part, frame_text, sensitivity_part
 
 if TYPE_CHECKING:
-    from ..core.results import Results
-    from ..core.study import Study
+    from ..engine.results import Results
+    from ..study.study import Study
 
 __all__ = ["results_text", "summary_text"]
 

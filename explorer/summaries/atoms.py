@@ -4,7 +4,7 @@ An atom is one combination of the raw values of the factor columns (and, per fac
 the index of the latest row-move predicate that caught the rows, 0 for none). Atoms
 are the finest grouping any edit can need: merging, renaming or setting aside levels
 and cells only pools or removes atoms, which is exact arithmetic on their statistics
-(:func:`explorer.core.groupstats.pool_groups`), so only predicate edits go back to the
+(:func:`explorer.engine.groupstats.pool_groups`), so only predicate edits go back to the
 engine.
 
 The engines compute each atom's statistics with the corrected two-pass algorithm
@@ -21,9 +21,9 @@ from decimal import Decimal
 
 import numpy as np
 
-from ..core.dataset import _label, _natural_key
-from ..core.errors import DataError
-from ..core.groupstats import pool_groups
+from ..engine.dataset import _label, _natural_key
+from ..engine.errors import DataError
+from ..engine.groupstats import pool_groups
 
 __all__ = ["MOVE_PREFIX", "AtomTable", "Prepared", "downdate", "finish_two_pass", "level_order", "merge_atoms"]
 
@@ -51,7 +51,7 @@ class Prepared:
     rows_set_aside: int | None  # None: found from the first summary (total minus rows summarised)
     set_aside_detail: tuple[str, ...] = ()
     notes: tuple[str, ...] = field(default=())
-    unit_exponent: int = 0  # the shifted response is in units of 2**unit_exponent (see core.response_unit)
+    unit_exponent: int = 0  # the shifted response is in units of 2**unit_exponent (see engine.response_unit)
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)

@@ -13,20 +13,20 @@ from __future__ import annotations
 import dataclasses
 from typing import Any
 
-from ..core.assumptions import bartlett, recommend
-from ..core.battery import Battery, run_battery
-from ..core.comparisons import dunnett, games_howell, pairwise_t, tukey
-from ..core.effect_sizes import effect_sizes
-from ..core.errors import ExplorerError
-from ..core.letters import compact_letters
-from ..core.omnibus import brown_forsythe_f, classic_f, welch_f
-from ..core.power import power_plan
+from ..inference.assumptions import bartlett, recommend
+from ..inference.battery import Battery, run_battery
+from ..inference.comparisons import dunnett, games_howell, pairwise_t, tukey
+from ..inference.effect_sizes import effect_sizes
+from ..engine.errors import ExplorerError
+from ..inference.letters import compact_letters
+from ..inference.omnibus import brown_forsythe_f, classic_f, welch_f
+from ..inference.power import power_plan
 
 __all__ = ["summary_battery"]
 
 
 def summary_battery(study: Any, **options: Any) -> Battery:
-    """:func:`explorer.core.battery.run_battery` for a :class:`~explorer.summaries.SummaryStudy`.
+    """:func:`explorer.inference.battery.run_battery` for a :class:`~explorer.summaries.SummaryStudy`.
 
     Takes the same options; see the module docstring for which parts are exact.
     """

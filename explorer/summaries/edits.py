@@ -1,6 +1,6 @@
 """Edits that work at scale: conditions pushed down to the engine, levels and cells set aside.
 
-These register with :func:`explorer.core.edits.register_edit`, so they save, load
+These register with :func:`explorer.engine.edits.register_edit`, so they save, load
 and replay like every other edit. They apply to a
 :class:`~explorer.summaries.view.SummaryView`; the core's level edits (merge, rename)
 apply to it unchanged, and row-by-id edits are refused with what to do instead.
@@ -13,8 +13,8 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from ..core.edits import Edit, _check_factor, _check_levels, level_name, register_edit
-from ..core.errors import EditError
+from ..engine.edits import Edit, _check_factor, _check_levels, level_name, register_edit
+from ..engine.errors import EditError
 from .atoms import MOVE_PREFIX
 from .predicate import Predicate, parse_predicate
 from .view import Condition, SummaryView

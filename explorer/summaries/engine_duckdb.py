@@ -11,7 +11,7 @@ and sums the deviations and their squares). No raw sum of squares is ever formed
 
 Exact input: a DECIMAL column (or plain decimal text in a CSV file, read as DECIMAL)
 has its offset subtracted in decimal arithmetic before the one rounding to float64, as
-row studies do with decimal text (:mod:`explorer.core.decimal_shift`).
+row studies do with decimal text (:mod:`explorer.engine.decimal_shift`).
 
 References
 ----------
@@ -36,8 +36,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..core.errors import ColumnError, DataError, PredicateError, closest_names, preview
-from ..core.response_unit import pow2_factors
+from ..engine.errors import ColumnError, DataError, PredicateError, closest_names, preview
+from ..engine.response_unit import pow2_factors
 from .atoms import AtomTable, Prepared, choose_offset, finish_two_pass
 from .predicate import Predicate
 
@@ -338,7 +338,7 @@ class DuckDBSource:
         return float(row[0]) if row and row[0] is not None else 0.0
 
     def with_unit(self, prep: Prepared, e: int) -> Prepared:
-        """Summarise the shifted response in units of 2**e from now on (exact; see core.response_unit)."""
+        """Summarise the shifted response in units of 2**e from now on (exact; see engine.response_unit)."""
         scale = " * ".join(repr(f) for f in pow2_factors(e))
         self._shifted = f"(({self._shifted_own}) * {scale})"
         return dataclasses.replace(prep, offset=math.ldexp(prep.offset, -e), unit_exponent=e)

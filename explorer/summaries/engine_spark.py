@@ -4,7 +4,7 @@ Each partition reduces its rows to per-atom (n, mean, centred SS): every Arrow b
 with the corrected two-pass algorithm, batches merged with the pairwise formula of
 Chan, Golub and LeVeque (1983). The driver collects one small record per partition and
 atom and pools them with the k-way form of the same formula
-(:func:`explorer.core.groupstats.pool_groups`). No raw sum of squares is ever formed,
+(:func:`explorer.engine.groupstats.pool_groups`). No raw sum of squares is ever formed,
 and the rows never leave the executors.
 
 The per-partition function uses only numpy and pandas (the usual requirements of
@@ -29,9 +29,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..core.errors import ColumnError, DataError, closest_names, preview
-from ..core.groupstats import pool_groups
-from ..core.response_unit import pow2_factors
+from ..engine.errors import ColumnError, DataError, closest_names, preview
+from ..engine.groupstats import pool_groups
+from ..engine.response_unit import pow2_factors
 from .atoms import AtomTable, Prepared, choose_offset
 from .predicate import Predicate
 
@@ -210,7 +210,7 @@ class SparkSource:
         return float(value) if value is not None else 0.0
 
     def with_unit(self, prep: Prepared, e: int) -> Prepared:
-        """Summarise the shifted response in units of 2**e from now on (exact; see core.response_unit)."""
+        """Summarise the shifted response in units of 2**e from now on (exact; see engine.response_unit)."""
         F = self.F
         shifted = self._shifted_own
         for factor in pow2_factors(e):

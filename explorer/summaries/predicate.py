@@ -7,7 +7,7 @@ be a column of the table or an allowed function, and, when the kinds of the colu
 are known (number, text, date, timestamp, true/false), every comparison, function
 call and operator is type-checked: ``nozzle > 5`` on a text column, a bare text
 column, ``x = NULL`` (never true) or an impossible date are refused with a
-:class:`~explorer.core.errors.PredicateError` that names the column and the types,
+:class:`~explorer.engine.errors.PredicateError` that names the column and the types,
 before any engine sees them.
 
 The engine text is rendered from the tokens: each literal is copied byte for byte
@@ -43,7 +43,7 @@ import unicodedata
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 
-from ..core.errors import PredicateError, closest_names, preview
+from ..engine.errors import PredicateError, closest_names, preview
 
 __all__ = ["KINDS", "MAX_DEPTH", "Predicate", "parse_predicate"]
 

@@ -24,9 +24,9 @@ from typing import Any
 
 import pandas as pd
 
-from ..core.edits import MergeLevels
-from ..core.errors import DesignError
-from ..core.tables import fmt, html_table
+from ..engine.edits import MergeLevels
+from ..engine.errors import DesignError
+from ..engine.tables import fmt, html_table
 from .view import Condition, SummaryView
 
 __all__ = ["SetAsideScan", "set_aside_scan"]

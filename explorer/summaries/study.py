@@ -1,7 +1,7 @@
 """A study built on cell summaries computed by the engine that holds the rows.
 
 :class:`SummaryStudy` shares the edit log, undo/redo, events and disclosure of
-:class:`explorer.core.Study`, and returns the same :class:`~explorer.core.Results`.
+:class:`explorer.study.Study`, and returns the same :class:`~explorer.engine.Results`.
 The partition, F tests, level tables, marginal means and every test that needs only
 group or cell statistics (Welch, Brown-Forsythe, Tukey-Kramer, Games-Howell, Dunnett,
 effect sizes, Types I/II/III) are exact: they come from per-cell counts, means and
@@ -26,22 +26,22 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..core.analysis import analyze
-from ..core.cells import layout_cells
-from ..core.dataset import Dataset, _label, build_dataset
-from ..core.edits import Edit, MergeLevels, RenameLevel, edit_from_dict
-from ..core.errors import DataError, DesignError, EditError, ReplayError
-from ..core.factorial import factorial_from_cells
-from ..core.fitrows import RowSet
-from ..core.groupstats import pool_groups
-from ..core.oneway import oneway_from_stats
-from ..core.output_files import write_text_atomic
-from ..core.persistence import read_study_file
-from ..core.response_unit import SAFE, unit_exponent, unit_note
-from ..core.results import Results
-from ..core.spec import ModelSpec
-from ..core.study import Study, StudyEvent
-from ..core.view import DataView
+from ..engine.analysis import analyze
+from ..engine.cells import layout_cells
+from ..engine.dataset import Dataset, _label, build_dataset
+from ..engine.edits import Edit, MergeLevels, RenameLevel, edit_from_dict
+from ..engine.errors import DataError, DesignError, EditError, ReplayError
+from ..engine.factorial import factorial_from_cells
+from ..engine.fitrows import RowSet
+from ..engine.groupstats import pool_groups
+from ..engine.oneway import oneway_from_stats
+from ..study.output_files import write_text_atomic
+from ..study.persistence import read_study_file
+from ..engine.response_unit import SAFE, unit_exponent, unit_note
+from ..engine.results import Results
+from ..engine.spec import ModelSpec
+from ..study.study import Study, StudyEvent
+from ..engine.view import DataView
 from .atoms import MOVE_PREFIX, AtomTable, downdate, level_order, merge_atoms
 from .edits import (
     DropCell,
@@ -81,7 +81,7 @@ class SummaryStudy(Study):
     ----------
     source : Parquet/CSV path(s) or a pandas DataFrame (read by DuckDB), a Spark
         DataFrame (summarised by Spark), or a source object from this package.
-    response, factors, blocks, interactions, ss_type, alpha : as for :class:`~explorer.core.Study`.
+    response, factors, blocks, interactions, ss_type, alpha : as for :class:`~explorer.study.Study`.
     sample_size : rows drawn (seeded, by the engine) for residuals and charts; 0 for none.
     seed : the sample's seed.
     """
@@ -156,7 +156,7 @@ class SummaryStudy(Study):
 
         Every value lies within |mean| + sqrt(m2) of 0 in its atom and at least one is as
         far as max(|mean|, sqrt(m2 / n)); only when these bounds leave the band does the
-        engine scan for the largest value (see :mod:`explorer.core.response_unit`).
+        engine scan for the largest value (see :mod:`explorer.engine.response_unit`).
         """
         if not atoms.size:
             return 0
@@ -486,7 +486,7 @@ class SummaryStudy(Study):
         return set_aside_scan(self, **options)
 
     def _on_sample(self, method: str, **options: Any) -> Any:
-        """Run a row-level tool of :class:`~explorer.core.Study` on the sample study; count its search here."""
+        """Run a row-level tool of :class:`~explorer.study.Study` on the sample study; count its search here."""
         sample = self.sample_study()
         out = getattr(sample, method)(**options)
         for entry in sample._searches:
@@ -531,7 +531,7 @@ class SummaryStudy(Study):
 
     def save(self, path: str | Path, *, overwrite: bool = False) -> Path:
         """Write the spec, the summaries' fingerprint and the edit log (with undone edits) as JSON, atomically
-        (same refusals as :meth:`explorer.core.Study.save`)."""
+        (same refusals as :meth:`explorer.study.Study.save`)."""
         p = write_text_atomic(path, json.dumps(self.to_dict(), indent=1), overwrite=overwrite,
                               protect=self.files_read(study_files=False), own=self._own_files)
         self._remember_own_file(p)
@@ -588,7 +588,7 @@ class SummaryStudy(Study):
 
         source = str(data) if data is not None else "<your files or Spark DataFrame>"
         lines = [
-            "from explorer.core.edits import edit_from_dict",
+            "from explorer.engine.edits import edit_from_dict",
             "from explorer.summaries import SummaryStudy",
             f"study = SummaryStudy({lit(source)}, "
             f"response={lit(s.response)}, factors={lit(list(s.factors))}, blocks={lit(list(s.blocks))}, "

@@ -1,10 +1,10 @@
 """The current view of a summary-backed study: predicates, row moves, level mapping, set-aside cells.
 
-A :class:`SummaryView` plays the part a :class:`~explorer.core.view.DataView` plays
+A :class:`SummaryView` plays the part a :class:`~explorer.engine.view.DataView` plays
 for rows. Its ``codes[f]`` map each *raw key* of factor ``f`` (a level label in the
 data, or the key of a row-move predicate) to an index into ``levels[f]``, so the core's
-level edits (:class:`~explorer.core.edits.MergeLevels`,
-:class:`~explorer.core.edits.RenameLevel`) apply to it unchanged. ``filters`` and
+level edits (:class:`~explorer.engine.edits.MergeLevels`,
+:class:`~explorer.engine.edits.RenameLevel`) apply to it unchanged. ``filters`` and
 ``moves`` are pushed down to the engine; ``set_aside`` lists level or cell
 conditions (tuples of ``(factor, level)`` pairs) whose atoms leave the analysis.
 """
@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..core.errors import EditError
+from ..engine.errors import EditError
 from .predicate import Predicate
 
 __all__ = ["Condition", "SummaryData", "SummaryView"]

@@ -1,4 +1,4 @@
-"""Panels of the one-way battery (:func:`explorer.core.battery.run_battery`), in the tab
+"""Panels of the one-way battery (:func:`explorer.inference.battery.run_battery`), in the tab
 "Tests". The overall-test and comparison pickers of the explorer choose
 what is featured; the battery itself always computes every test.
 
@@ -16,11 +16,11 @@ from typing import Any
 
 import pandas as pd
 
-from explorer.core import Results
-from explorer.core.assumptions import bartlett, levene, shapiro_residuals
-from explorer.core.battery import Battery, run_battery
-from explorer.core.letters import compact_letters
-from explorer.core.tables import fmt, html_table
+from explorer.engine import Results
+from explorer.inference.assumptions import bartlett, levene, shapiro_residuals
+from explorer.inference.battery import Battery, run_battery
+from explorer.inference.letters import compact_letters
+from explorer.engine.tables import fmt, html_table
 
 from .panels import PanelContext, explains_refusals, panel
 

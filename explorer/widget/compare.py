@@ -1,6 +1,6 @@
 """HTML for the tables the explorer shows: current partition and unedited-vs-current comparison.
 
-Presentation only: every number comes from a :class:`~explorer.core.Results`; the
+Presentation only: every number comes from a :class:`~explorer.engine.Results`; the
 comparison marks the lines whose value differs between the unedited data and the
 current view.
 """
@@ -10,8 +10,9 @@ from __future__ import annotations
 import html
 from typing import Any
 
-from explorer.core import Results, Study
-from explorer.core.tables import fmt
+from explorer.engine import Results
+from explorer.study import Study
+from explorer.engine.tables import fmt
 
 __all__ = ["CAUTIONS_HTML", "comparison_html", "disclosure_html", "partition_html"]
 

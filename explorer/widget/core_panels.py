@@ -6,7 +6,7 @@ import html
 from typing import Any
 
 from explorer import charts
-from explorer.core.tables import html_table
+from explorer.engine.tables import html_table
 
 from .compare import comparison_html, partition_html
 from .panels import Panel, PanelContext, panel, register_panel, view_token

@@ -1,7 +1,7 @@
 """The explorer: an ipywidgets shell that turns controls and chart clicks into study edits.
 
 It owns no statistics. Every control change or chart pick becomes a call on its
-:class:`~explorer.core.Study` (drop, restore, reassign, merge_levels, rename_level,
+:class:`~explorer.study.Study` (drop, restore, reassign, merge_levels, rename_level,
 undo, redo, reset) with the reason typed in the reason box; the study's change event
 then redraws the panels whose inputs changed (tables first, then charts). A refused
 edit shows in the status line and never raises into the notebook.
@@ -20,8 +20,9 @@ import ipywidgets as W
 import pandas as pd
 
 from explorer.charts import HistoryStep
-from explorer.core import ExplorerError, Study, StudyEvent
-from explorer.core.moves import level_homes
+from explorer.engine import ExplorerError
+from explorer.study import Study, StudyEvent
+from explorer.engine.moves import level_homes
 
 from . import battery_panels, core_panels, fragility_panels  # noqa: F401  (register the built-in panels)
 from .compare import CAUTIONS_HTML, disclosure_html
@@ -66,7 +67,7 @@ def _response_candidates(table: pd.DataFrame) -> list[str]:
 
 
 class Explorer(W.VBox):
-    """Notebook dashboard for one :class:`~explorer.core.Study`.
+    """Notebook dashboard for one :class:`~explorer.study.Study`.
 
     Parameters
     ----------
@@ -556,7 +557,7 @@ class Explorer(W.VBox):
         choice = self.settings.omnibus
         if choice == "classic" or not self.study.spec.is_oneway:
             return ""
-        from explorer.core import omnibus
+        from explorer.inference import omnibus
 
         fn = {"welch": omnibus.welch_f, "brown-forsythe": omnibus.brown_forsythe_f,
               "kruskal-wallis": omnibus.kruskal_wallis}.get(choice)
@@ -624,7 +625,7 @@ class Explorer(W.VBox):
 def explore(data: pd.DataFrame | str, response: str, factors: str | Sequence[str], **kwargs: Any) -> Explorer:
     """Open the explorer on a table: ``explore(df, response="thickness_um", factors="nozzle")``.
 
-    Keyword arguments go to :class:`~explorer.core.Study` (blocks, interactions,
+    Keyword arguments go to :class:`~explorer.study.Study` (blocks, interactions,
     ss_type, alpha) except ``panels`` and ``max_points``, which go to :class:`Explorer`.
     """
     ex_kwargs = {k: kwargs.pop(k) for k in ("panels", "max_points") if k in kwargs}

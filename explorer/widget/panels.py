@@ -22,7 +22,8 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from explorer.charts import HistoryStep
-from explorer.core import ExplorerError, Results, Study
+from explorer.engine import ExplorerError, Results
+from explorer.study import Study
 
 __all__ = [
     "PANELS",

@@ -41,9 +41,9 @@ from scipy import stats
 from statsmodels.stats.outliers_influence import OLSInfluence
 
 import explorer as ex
-from explorer.core.case_deletion import case_deletion_scan
-from explorer.core.regroup import regroup_scan
-from explorer.core.sweep import robustness_sweep
+from explorer.sensitivity.case_deletion import case_deletion_scan
+from explorer.sensitivity.regroup import regroup_scan
+from explorer.sensitivity.sweep import robustness_sweep
 
 
 def _data(n: int, k: int, seed: int = 0) -> pd.DataFrame:

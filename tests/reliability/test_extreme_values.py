@@ -20,8 +20,8 @@ import pytest
 from scipy import stats
 
 import explorer as ex
-from explorer.core.groupstats import GroupStats
-from explorer.core.oneway import oneway_partition
+from explorer.engine.groupstats import GroupStats
+from explorer.engine.oneway import oneway_partition
 
 SHIFTS = [997, -997, 1020, -1060, 500, -700]  # powers of two: 1e300, 1e-300, 1e307, 1e-319 (subnormal), ...
 

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 
 import explorer as ex
-from explorer.core.errors import ColumnError, DataError, EditError
+from explorer.engine.errors import ColumnError, DataError, EditError
 
 ROWS = [("a", 1.0), ("a", 2.0), ("a", 2.5), ("b", 3.0), ("b", 4.5), ("b", 4.0), ("c", 5.0), ("c", 6.5), ("c", 6.0)]
 

@@ -33,9 +33,9 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from .distributions import t_sf
-from .study import Disclosure
-from .tables import fmt, html_table
+from ..engine.distributions import t_sf
+from ..engine.disclosure import Disclosure
+from ..engine.tables import fmt, html_table
 
 __all__ = ["Influence", "influence", "influence_measures"]
 

@@ -22,13 +22,13 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
 import numpy as np
-from .errors import ExplorerError
-from .noncentral_f import f_test_power as _f_power
+from ..engine.errors import ExplorerError
+from ..engine.noncentral_f import f_test_power as _f_power
 from .oneway_inputs import require_oneway
-from .tables import fmt
+from ..engine.tables import fmt
 
 if TYPE_CHECKING:
-    from .results import Results
+    from ..engine.results import Results
 
 __all__ = ["PowerPlan", "f_test_power", "group_size_for_power", "power_plan"]
 

@@ -28,13 +28,13 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
-from .distributions import f_sf
-from .errors import ExplorerError
+from ..engine.distributions import f_sf
+from ..engine.errors import ExplorerError
 from .oneway_inputs import require_oneway, row_sample_notes
-from .tables import fmt
+from ..engine.tables import fmt
 
 if TYPE_CHECKING:
-    from .results import Results
+    from ..engine.results import Results
 
 __all__ = ["OmnibusTest", "brown_forsythe_f", "classic_f", "kruskal_wallis", "permutation_f", "welch_f"]
 

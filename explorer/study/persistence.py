@@ -16,10 +16,10 @@ import json
 from pathlib import Path
 from typing import Any
 
-from .dataset import Dataset, decode_digests, encode_digests
-from .edits import Edit, edit_from_dict
-from .errors import ReplayError, preview
-from .spec import ModelSpec
+from ..engine.dataset import Dataset, decode_digests, encode_digests
+from ..engine.edits import Edit, edit_from_dict
+from ..engine.errors import ReplayError, preview
+from ..engine.spec import ModelSpec
 
 FORMAT = "variance-explorer/study"
 SCHEMA = 1

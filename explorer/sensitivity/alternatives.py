@@ -31,9 +31,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .distributions import f_sf
-from .errors import DesignError
-from .groupstats import GroupStats, group_stats
+from ..engine.distributions import f_sf
+from ..engine.errors import DesignError
+from ..engine.groupstats import GroupStats, group_stats
 
 __all__ = [
     "STATUS_NOTES",

@@ -29,8 +29,8 @@ from .alternatives import (
     deletion_fits,
     oneway_input,
 )
-from .study import Disclosure
-from .tables import fmt, html_table
+from ..engine.disclosure import Disclosure
+from ..engine.tables import fmt, html_table
 
 __all__ = ["CaseDeletionScan", "case_deletion_scan", "nullable"]
 

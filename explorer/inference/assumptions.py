@@ -35,14 +35,14 @@ import numpy as np
 import pandas as pd
 from scipy import special, stats
 
-from .distributions import f_sf
-from .errors import ExplorerError
-from .groupstats import group_stats
+from ..engine.distributions import f_sf
+from ..engine.errors import ExplorerError
+from ..engine.groupstats import group_stats
 from .oneway_inputs import row_sample_notes
-from .tables import fmt
+from ..engine.tables import fmt
 
 if TYPE_CHECKING:
-    from .results import Results
+    from ..engine.results import Results
 
 __all__ = ["CheckResult", "Recommendation", "bartlett", "levene", "recommend", "shapiro_residuals"]
 

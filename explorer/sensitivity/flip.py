@@ -39,13 +39,13 @@ import pandas as pd
 from scipy import special
 
 from .mixed_guard import refuse_mixed
-from .dataset import RowId
+from ..engine.dataset import RowId
 from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
-from .errors import ExplorerError, closest_names
-from .groupstats import group_stats
-from .studentized_range import srange_ppf, srange_sf
-from .study import Disclosure
-from .tables import fmt, html_table
+from ..engine.errors import ExplorerError, closest_names
+from ..engine.groupstats import group_stats
+from ..engine.studentized_range import srange_ppf, srange_sf
+from ..engine.disclosure import Disclosure
+from ..engine.tables import fmt, html_table
 
 __all__ = ["FlipSearch", "flip_finder"]
 
@@ -357,8 +357,7 @@ def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | N
     on a private copy of the study, re-scan, repeat. The user's study is not changed.
     """
     from .case_deletion import case_deletion_scan
-    from .errors import EditError
-    from .study import Study
+    from ..engine.errors import EditError
 
     spec = study.spec  # type: ignore[attr-defined]
     a = float(spec.alpha if alpha is None else alpha)
@@ -396,7 +395,7 @@ def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | N
             notes.append("Exact search: no single row flips the decision (sets of two or more rows are searched "
                          "exhaustively in one-factor studies only).")
     if not found and method in ("auto", "greedy"):
-        tmp = Study.from_dataset(study.dataset, spec)  # type: ignore[attr-defined]
+        tmp = type(study).from_dataset(study.dataset, spec)  # type: ignore[attr-defined]  # a private copy
         for e in study.edits:  # type: ignore[attr-defined]
             tmp.apply(e)
         rows, pvals, groups = [], [], []

@@ -4,10 +4,10 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from .errors import DesignError
+from ..engine.errors import DesignError
 
 if TYPE_CHECKING:
-    from .results import Results
+    from ..engine.results import Results
 
 __all__ = ["require_oneway", "row_sample_notes"]
 

@@ -35,10 +35,10 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .ems import RESIDUAL
-from .errors import ExplorerError
-from .tables import html_table
-from .variance_components import NEGATIVE_RULE, VarianceComponents
+from ..engine.ems import RESIDUAL
+from ..engine.errors import ExplorerError
+from ..engine.tables import html_table
+from ..engine.variance_components import NEGATIVE_RULE, VarianceComponents
 
 __all__ = ["GaugeLine", "MeasurementSystem", "measurement_system"]
 

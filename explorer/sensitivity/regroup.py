@@ -31,8 +31,8 @@ from .alternatives import (
     oneway_input,
 )
 from .case_deletion import nullable
-from .study import Disclosure
-from .tables import fmt, html_table
+from ..engine.disclosure import Disclosure
+from ..engine.tables import fmt, html_table
 
 __all__ = ["RegroupScan", "regroup_scan"]
 

@@ -31,13 +31,13 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
-from .distributions import t_ppf, t_two_sided_p
-from .errors import ExplorerError
+from ..engine.distributions import t_ppf, t_two_sided_p
+from ..engine.errors import ExplorerError
 from .oneway_inputs import row_sample_notes
-from .tables import fmt, html_table
+from ..engine.tables import fmt, html_table
 
 if TYPE_CHECKING:
-    from .results import Results
+    from ..engine.results import Results
 
 __all__ = [
     "GRUBBS_MIN_N",

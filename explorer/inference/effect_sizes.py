@@ -40,13 +40,13 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
-from .errors import ExplorerError
-from .noncentral_f import confidence_matching_test, noncentrality_interval, zero_statement
+from ..engine.errors import ExplorerError
+from ..engine.noncentral_f import confidence_matching_test, noncentrality_interval, zero_statement
 from .oneway_inputs import require_oneway
-from .tables import html_table
+from ..engine.tables import html_table
 
 if TYPE_CHECKING:
-    from .results import Results
+    from ..engine.results import Results
 
 __all__ = ["EffectSizes", "effect_sizes", "noncentrality_interval", "confidence_matching_test", "zero_statement"]
 

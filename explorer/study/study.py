@@ -1,6 +1,6 @@
 """A study: a dataset, a model spec and an edit log with undo/redo, events and save/load.
 
-The study is the only stateful object of the core. Its state is the list of edits and
+The study is the only stateful object of the statistical layers. Its state is the list of edits and
 a cursor into it; the current view is the fold of the edits up to the cursor over the
 dataset's initial view, and ``results`` is ``analyze`` of that view (memoised per
 cursor position, so undo and redo cost nothing).
@@ -17,27 +17,28 @@ from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
-from .analysis import analyze
-from .dataset import Dataset, RowId, SetAsideRow, build_dataset
-from .edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows
-from .errors import DesignError, EditError, ReplayError
-from .moves import MovedRow, moved_rows
+from ..engine.analysis import analyze
+from ..engine.disclosure import Disclosure
+from ..engine.dataset import Dataset, RowId, SetAsideRow, build_dataset
+from ..engine.edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows
+from ..engine.errors import DesignError, EditError, ReplayError
+from ..engine.moves import MovedRow, moved_rows
 from .output_files import write_text_atomic
 from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
-from .results import Results
-from .spec import ModelSpec
-from .table_checks import column_names
-from .view import DataView, initial_view
+from ..engine.results import Results
+from ..engine.spec import ModelSpec
+from ..engine.table_checks import column_names
+from ..engine.view import DataView, initial_view
 
 if TYPE_CHECKING:
-    from .battery import Battery
-    from .case_deletion import CaseDeletionScan
-    from .flip import FlipSearch
-    from .influence import Influence
-    from .regroup import RegroupScan
-    from .measurement_system import MeasurementSystem
-    from .repeated_measures import RepeatedMeasures
-    from .sweep import SweepResult
+    from ..inference.battery import Battery
+    from ..sensitivity.case_deletion import CaseDeletionScan
+    from ..sensitivity.flip import FlipSearch
+    from ..sensitivity.influence import Influence
+    from ..sensitivity.regroup import RegroupScan
+    from ..inference.measurement_system import MeasurementSystem
+    from ..inference.repeated_measures import RepeatedMeasures
+    from ..sensitivity.sweep import SweepResult
 
 __all__ = ["Study", "StudyEvent", "Disclosure"]
 
@@ -49,26 +50,6 @@ class StudyEvent:
     kind: str
     edit: Edit | None
     position: int
-
-
-@dataclass(frozen=True)
-class Disclosure:
-    """How much searching stands behind the current state.
-
-    ``edits_made`` counts every edit ever applied (undone ones too); ``specifications``
-    counts alternative analyses computed by sensitivity tools (sweeps, scans).
-    """
-
-    edits_in_effect: int
-    edits_made: int
-    undos: int
-    specifications: int
-
-    def sentence(self) -> str:
-        return (
-            f"{self.edits_in_effect} edit(s) in effect; {self.edits_made} made in all ({self.undos} undone); "
-            f"{self.specifications} alternative analyses examined"
-        )
 
 
 class Study:
@@ -94,7 +75,7 @@ class Study:
     within : the factors that vary within a subject (repeated-measures factors).
     variance_method : variance-component estimator: 'auto' (moments on balanced data, REML
         otherwise), 'moments' or 'reml'.
-    See :class:`~explorer.core.spec.ModelSpec` for how these build the model.
+    See :class:`~explorer.engine.spec.ModelSpec` for how these build the model.
     """
 
     def __init__(
@@ -296,7 +277,7 @@ class Study:
 
         Saving over this study's own study file (the one it was loaded from or saved to
         before) is allowed; any other existing file needs ``overwrite=True``; the data
-        file is never written over (:class:`~explorer.core.errors.OutputError`).
+        file is never written over (:class:`~explorer.engine.errors.OutputError`).
         """
         p = write_text_atomic(path, json.dumps(self.to_dict(), indent=1), overwrite=overwrite,
                               protect=self.files_read(study_files=False), own=getattr(self, "_own_files", ()))
@@ -374,53 +355,53 @@ class Study:
         return code
 
     def battery(self, **options: Any) -> Battery:
-        """The one-way battery on the current view (see :func:`explorer.core.battery.run_battery` for options)."""
-        from .battery import run_battery
+        """The one-way battery on the current view (see :func:`explorer.inference.battery.run_battery` for options)."""
+        from ..inference.battery import run_battery
 
         return run_battery(self.results, **options)
 
     def repeated_measures(self, *, multivariate: bool = True) -> RepeatedMeasures:
         """Sphericity, epsilons, corrected p-values and multivariate tests (studies with subject= and within=)."""
-        from .repeated_measures import repeated_measures
+        from ..inference.repeated_measures import repeated_measures
 
         return repeated_measures(self.results, multivariate=multivariate)
 
     def measurement_system(
         self, part: str, operator: str, *, tolerance: float | None = None, multiplier: float = 6.0
     ) -> MeasurementSystem:
-        """Repeatability, reproducibility, part-to-part and total (see :mod:`explorer.core.measurement_system`)."""
-        from .measurement_system import measurement_system
+        """Repeatability, reproducibility, part-to-part and total (see :mod:`explorer.inference.measurement_system`)."""
+        from ..inference.measurement_system import measurement_system
 
         return measurement_system(self.results, part, operator, tolerance=tolerance, multiplier=multiplier)
 
     # ----------------------------------------------------------------- sensitivity (reads, never edits)
     def influence(self, **options: Any) -> Influence:
-        """Leverage, studentized residuals, Cook's distance, DFFITS (see :func:`explorer.core.influence.influence`)."""
-        from .influence import influence
+        """Leverage, studentized residuals, Cook's distance, DFFITS (see :func:`explorer.sensitivity.influence.influence`)."""
+        from ..sensitivity.influence import influence
 
         return influence(self, **options)
 
     def case_deletion(self, **options: Any) -> CaseDeletionScan:
-        """Each kept row left out in turn (see :func:`explorer.core.case_deletion.case_deletion_scan`)."""
-        from .case_deletion import case_deletion_scan
+        """Each kept row left out in turn (see :func:`explorer.sensitivity.case_deletion.case_deletion_scan`)."""
+        from ..sensitivity.case_deletion import case_deletion_scan
 
         return case_deletion_scan(self, **options)
 
     def flip_finder(self, **options: Any) -> FlipSearch:
-        """The fewest rows whose removal flips the decision (see :func:`explorer.core.flip.flip_finder`)."""
-        from .flip import flip_finder
+        """The fewest rows whose removal flips the decision (see :func:`explorer.sensitivity.flip.flip_finder`)."""
+        from ..sensitivity.flip import flip_finder
 
         return flip_finder(self, **options)
 
     def regroup_scan(self, **options: Any) -> RegroupScan:
-        """Every merge of two levels and move of one row (see :func:`explorer.core.regroup.regroup_scan`)."""
-        from .regroup import regroup_scan
+        """Every merge of two levels and move of one row (see :func:`explorer.sensitivity.regroup.regroup_scan`)."""
+        from ..sensitivity.regroup import regroup_scan
 
         return regroup_scan(self, **options)
 
     def robustness_sweep(self, **options: Any) -> SweepResult:
-        """Every combination of outlier rule, test, transform and merges (see :func:`explorer.core.sweep.robustness_sweep`)."""
-        from .sweep import robustness_sweep
+        """Every combination of outlier rule, test, transform and merges (see :func:`explorer.sensitivity.sweep.robustness_sweep`)."""
+        from ..sensitivity.sweep import robustness_sweep
 
         return robustness_sweep(self, **options)
 

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from .errors import ExplorerError
+from ..engine.errors import ExplorerError
 
 __all__ = ["refuse_mixed"]
 

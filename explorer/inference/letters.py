@@ -27,8 +27,8 @@ import numpy as np
 import pandas as pd
 
 from .comparisons import PairwiseTable
-from .errors import ExplorerError
-from .tables import html_table
+from ..engine.errors import ExplorerError
+from ..engine.tables import html_table
 
 __all__ = ["LetterDisplay", "compact_letters"]
 

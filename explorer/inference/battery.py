@@ -37,7 +37,7 @@ from .comparisons import (
     tukey,
 )
 from .effect_sizes import EffectSizes, effect_sizes
-from .errors import DesignError, ExplorerError
+from ..engine.errors import DesignError, ExplorerError
 from .letters import LetterDisplay, compact_letters
 from .omnibus import (
     OmnibusTest,
@@ -54,10 +54,10 @@ from .outliers import (
     robust_z_screen,
 )
 from .power import PowerPlan, power_plan
-from .tables import html_table
+from ..engine.tables import html_table
 
 if TYPE_CHECKING:
-    from .results import Results
+    from ..engine.results import Results
 
 __all__ = ["Battery", "run_battery"]
 

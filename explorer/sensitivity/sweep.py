@@ -46,15 +46,15 @@ import pandas as pd
 from .mixed_guard import refuse_mixed
 from .alternatives import OnewayInput, oneway_input
 from .case_deletion import nullable
-from .errors import DesignError, ExplorerError, closest_names
+from ..engine.errors import DesignError, ExplorerError, closest_names
 from .influence import influence_measures
-from .omnibus import OmnibusTest, classic_f, kruskal_wallis, welch_f
-from .oneway import fit_oneway
-from .outliers import bonferroni_outlier_test
-from .results import Results
-from .study import Disclosure
+from ..inference.omnibus import OmnibusTest, classic_f, kruskal_wallis, welch_f
+from ..engine.oneway import fit_oneway
+from ..inference.outliers import bonferroni_outlier_test
+from ..engine.results import Results
+from ..engine.disclosure import Disclosure
 from .sweep_coincide import distinct_analyses
-from .tables import fmt, html_table
+from ..engine.tables import fmt, html_table
 
 __all__ = ["OUTLIER_RULES", "TESTS", "TRANSFORMS", "SweepResult", "robustness_sweep"]
 
@@ -269,8 +269,8 @@ def _factorial_rows(study, outlier_rules, transforms, merges, a, notes):  # type
     """
     import dataclasses
 
-    from .analysis import analyze
-    from .edits import MergeLevels
+    from ..engine.analysis import analyze
+    from ..engine.edits import MergeLevels
 
     dataset, view, spec = study.dataset, study.view, study.spec
     factor = spec.factors[0]

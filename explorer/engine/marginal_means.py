@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 
 from .cellfit import CellFit
-from .comparisons import PairwiseTable, simultaneous_pairs
+from .pairwise import PairwiseTable, simultaneous_pairs
 from .distributions import t_ppf
 from .tables import html_table
 

@@ -21,11 +21,11 @@ from __future__ import annotations
 import numpy as np
 
 from .alternatives import OnewayInput, leave_one_out
-from .cellfit import fit_cells
-from .design import term_name
-from .distributions import f_sf
-from .errors import DesignError
-from .groupstats import GroupStats, group_stats
+from ..engine.cellfit import fit_cells
+from ..engine.design import term_name
+from ..engine.distributions import f_sf
+from ..engine.errors import DesignError
+from ..engine.groupstats import GroupStats, group_stats
 
 __all__ = ["cell_deletion", "eta_squared_total"]
 
@@ -51,7 +51,7 @@ def cell_deletion(study: object) -> tuple[dict[str, dict[str, np.ndarray]], np.n
     :data:`.alternatives.STATUS_NOTES` (4 = the row's cell disappears and the model
     cannot be fitted without it).
     """
-    from .factorial import layout_of
+    from ..engine.factorial import layout_of
 
     res = study.results  # type: ignore[attr-defined]
     spec = study.spec  # type: ignore[attr-defined]

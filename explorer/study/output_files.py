@@ -17,7 +17,7 @@ import secrets
 from collections.abc import Iterable
 from pathlib import Path
 
-from .errors import OutputError
+from ..engine.errors import OutputError
 
 __all__ = ["write_text_atomic", "check_output_path", "same_file"]
 

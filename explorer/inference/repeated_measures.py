@@ -49,9 +49,9 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
-from .distributions import f_sf
-from .errors import ExplorerError
-from .tables import html_table
+from ..engine.distributions import f_sf
+from ..engine.errors import ExplorerError
+from ..engine.tables import html_table
 
 __all__ = ["MultivariateTest", "RepeatedMeasures", "SphericityTest", "repeated_measures"]
 

@@ -20,13 +20,13 @@ from __future__ import annotations
 import numpy as np
 
 from .alternatives import AlternativeFits, OnewayInput, leave_one_out
-from .cellfit import CellFit, fit_cells
-from .cells import layout_cells
-from .design import term_name
-from .design_checks import check_design
-from .distributions import f_sf
-from .errors import DesignError, ExplorerError, closest_names
-from .groupstats import GroupStats, group_stats
+from ..engine.cellfit import CellFit, fit_cells
+from ..engine.cells import layout_cells
+from ..engine.design import term_name
+from ..engine.design_checks import check_design
+from ..engine.distributions import f_sf
+from ..engine.errors import DesignError, ExplorerError, closest_names
+from ..engine.groupstats import GroupStats, group_stats
 
 __all__ = ["cell_regroup"]
 
@@ -35,7 +35,7 @@ class _Context:
     """The kept rows of a multi-factor study and the pieces every refit needs."""
 
     def __init__(self, study: object, factor: str | None) -> None:
-        from .factorial import layout_of
+        from ..engine.factorial import layout_of
 
         res = study.results  # type: ignore[attr-defined]
         self.spec = spec = study.spec  # type: ignore[attr-defined]
