@@ -143,7 +143,7 @@ def test_sensitivity_summary_matches_the_scans(edited, page):
     assert "single rows whose removal flips it " + (", ".join(map(str, flips)) or "none") in text
     sweep = robustness_sweep(edited, record=False)
     assert f"{sweep.share_agreeing:.0%} of {sweep.n_specifications}" in text
-    assert doc.svg_in.get("sensitivity", 0) == 1  # the specification curve
+    assert doc.svg_in.get("sensitivity", 0) == 2  # p with each row left out, and the specification curve
 
 
 def test_writing_a_report_does_not_add_to_the_disclosure(tmp_path):

@@ -16,7 +16,7 @@ import pandas as pd
 from explorer.study import Study
 
 from .frames import MAX_POINTS, column_fields, observation_frame
-from .style import HEIGHT, MEAN, PICKED, STATE_SCALE, WIDTH, finish
+from .style import HEIGHT, MEAN, PICKED, STATE_SCALE, WIDTH, finish, response_title
 
 __all__ = ["PICK", "observations_chart"]
 
@@ -57,12 +57,18 @@ def _point_size(n: int) -> int:
 
 
 def observations_chart(study: Study, *, max_points: int = MAX_POINTS, factor: str | None = None,
-                       width: int = WIDTH + 80, height: int = HEIGHT + 80) -> alt.TopLevelMixin:
-    """Points by level, level means with confidence intervals (pooled SD), click selection ``pick``."""
+                       width: int = WIDTH + 80, height: int = HEIGHT + 80,
+                       y_domain: tuple[float, float] | None = None, interactive: bool = True) -> alt.TopLevelMixin:
+    """Points by level, level means with confidence intervals (pooled SD), click selection ``pick``.
+
+    ``y_domain`` fixes the response axis (e.g. the same for the unedited data and the current
+    view, so that two charts side by side can be compared by eye); ``interactive=False`` leaves
+    the sentence on picking out of the subtitle (a static report).
+    """
     f = factor or study.spec.factors[0]
     res = study.results
     data, note = observation_frame(study, max_points, f)
-    y_title = study.spec.response
+    y_title = response_title(study.spec)
     levels = list(study.view.levels[f])
     x = alt.X("level:N", title=f, sort=levels, axis=alt.Axis(labelAngle=0))
     tooltip = [alt.Tooltip("row:N", title="row id"), alt.Tooltip("level:N", title=f"{f} (now)"),
@@ -72,7 +78,8 @@ def observations_chart(study: Study, *, max_points: int = MAX_POINTS, factor: st
     pick = pick_param()
     points = row_marks(
         base.encode(
-            y=alt.Y("value:Q", title=y_title, scale=alt.Scale(zero=False, padding=10)),
+            y=alt.Y("value:Q", title=y_title, scale=alt.Scale(zero=False, padding=10) if y_domain is None
+                    else alt.Scale(domain=list(y_domain), zero=False, nice=True)),
             xOffset=alt.XOffset("jitter:Q", scale=_OFFSET),
             order=alt.Order("z:Q"),  # moved and left-out rows are drawn over the others
         ),
@@ -96,8 +103,10 @@ def observations_chart(study: Study, *, max_points: int = MAX_POINTS, factor: st
             y=alt.Y("low:Q", title=y_title), y2="high:Q", tooltip=mtip)
         mean = mbase.mark_tick(color=MEAN, thickness=3, size=18).encode(y="mean:Q", tooltip=mtip)
         layers = [ci, mean, points]
-        subtitle += [f"Black bar right of each level: mean with {pct} interval (pooled SD).",
-                     "Click a point to pick it; shift-click adds; double-click clears."]
+        subtitle.append(f"Black bar and cross right of each level's points: its mean with the {pct} interval "
+                        "(pooled SD). Points are spread sideways only to be seen.")
+        if interactive:
+            subtitle.append("Click a point to pick it; shift-click adds; double-click clears.")
     if note:
         subtitle.append(note)
     chart = alt.layer(*layers).properties(width=width, height=height)

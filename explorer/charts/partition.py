@@ -31,6 +31,11 @@ def partition_frame(table: AnovaTable, label: str) -> pd.DataFrame:
     })
 
 
+def _ss_title(results: Results) -> str:
+    units = getattr(results.spec, "units", "") or ""
+    return f"sum of squares ({units}²)" if units else "sum of squares"
+
+
 def partition_chart(baseline: Results, current: Results, *, width: int = WIDTH, height: int = HEIGHT // 2
                     ) -> alt.TopLevelMixin:
     """Stacked bars of the sums of squares, unedited data above the current view; F and p in the tooltip."""
@@ -41,7 +46,7 @@ def partition_chart(baseline: Results, current: Results, *, width: int = WIDTH, 
     colours = _TERM_COLOURS[: len(terms)] + [BASELINE]
     bars = alt.Chart(frame).mark_bar(stroke="white", strokeWidth=1).encode(
         y=alt.Y("view:N", title=None, sort=[BASELINE_LABEL, CURRENT_LABEL]),
-        x=alt.X("sum_sq:Q", title="sum of squares", stack="zero"),
+        x=alt.X("sum_sq:Q", title=_ss_title(current), stack="zero"),
         color=alt.Color("source:N", title="source", scale=alt.Scale(domain=terms + ["residual"], range=colours)),
         order=alt.Order("order:Q"),
         tooltip=[alt.Tooltip("view:N", title="data"), alt.Tooltip("source:N"), alt.Tooltip("df:Q"),

@@ -17,7 +17,7 @@ from explorer.engine import Results
 
 from .frames import MAX_POINTS, RowColumns, fit_frame, thin
 from .observations import pick_param, row_marks
-from .style import GUIDE, HEIGHT, WIDTH, finish
+from .style import GUIDE, HEIGHT, WIDTH, finish, response_title
 
 __all__ = ["normal_probability_chart", "residuals_fitted_chart"]
 
@@ -46,8 +46,8 @@ def residuals_fitted_chart(results: Results, *, max_points: int = MAX_POINTS, wi
     if columns is not None:
         frame, tip = columns.attach(frame), tip + columns.tooltips()
     base = alt.Chart(frame).encode(
-        x=alt.X("fitted:Q", title="fitted value (level mean)", scale=alt.Scale(zero=False)),
-        y=alt.Y("residual:Q", title="residual"),
+        x=alt.X("fitted:Q", title=response_title(results.spec, "fitted value (level mean)"), scale=alt.Scale(zero=False)),
+        y=alt.Y("residual:Q", title=response_title(results.spec, "residual")),
     )
     zero = alt.Chart().mark_rule(color=GUIDE, strokeDash=[4, 3]).encode(y=alt.datum(0))
     chart = alt.layer(zero, row_marks(base, pick_param(), tip, size=45, legend=False)).properties(width=width, height=height)
@@ -77,7 +77,7 @@ def normal_probability_chart(results: Results, *, max_points: int = MAX_POINTS, 
     if columns is not None:
         frame, tip = columns.attach(frame), tip + columns.tooltips()
     base = alt.Chart(frame).encode(x=alt.X("quantile:Q", title="normal quantile"),
-                                   y=alt.Y("residual:Q", title="ordered residual"))
+                                   y=alt.Y("residual:Q", title=response_title(results.spec, "ordered residual")))
     chart = alt.layer(line, row_marks(base, pick_param(), tip, size=45, legend=False)).properties(width=width, height=height)
     sub = [f"Points near the dashed line suggest normal residuals (correlation {r:.4f})."]
     if picked.note:

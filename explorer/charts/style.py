@@ -12,7 +12,8 @@ from typing import Any
 import altair as alt
 
 __all__ = ["BASELINE", "CURRENT", "HEIGHT", "IN_ANALYSIS", "KEPT", "LEFT_OUT", "LEFT_OUT_STATE", "MEAN", "MOVED",
-           "MOVED_STATE", "PICKED", "STATE_DOMAIN", "STATE_SCALE", "WIDTH", "finish"]
+           "MOVED_STATE", "PICKED", "STATE_DOMAIN", "STATE_SCALE", "WIDTH", "finish", "id_labels",
+           "response_title", "split_subtitle"]
 
 WIDTH = 380
 HEIGHT = 240
@@ -70,3 +71,27 @@ def id_labels(frame: Any, past: Any, score: Any, x: str, y: str, *, what: str, l
     if idx.size > limit:
         return text, f"Labelled: the {limit} rows furthest past {what} (of {idx.size})."
     return text, f"Labelled: the {idx.size} row(s) past {what}."
+
+
+def response_title(spec: Any, what: str = "") -> str:
+    """Axis title of the response with its units: ``thickness_um (µm)``, ``residual (µm)``."""
+    units = getattr(spec, "units", "") or ""
+    name = what or spec.response
+    return f"{name} ({units})" if units else name
+
+
+def split_subtitle(chart: alt.TopLevelMixin) -> tuple[alt.TopLevelMixin, list[str]]:
+    """The chart without its subtitle, and the subtitle's lines.
+
+    Vega does not wrap text, and a chart sized to its container shrinks its plot to make room
+    for a long subtitle; shown as HTML under the chart (widget card, report figure caption),
+    the same sentences wrap instead.
+    """
+    title = getattr(chart, "title", alt.Undefined)
+    sub = getattr(title, "subtitle", alt.Undefined) if isinstance(title, alt.TitleParams) else alt.Undefined
+    if sub is alt.Undefined or not sub:
+        return chart, []
+    lines = [sub] if isinstance(sub, str) else [str(s) for s in sub if s]
+    bare = title.copy(deep=True)
+    bare.subtitle = alt.Undefined
+    return chart.properties(title=bare), lines

@@ -128,7 +128,7 @@ def sensitivity_part(study: "Study", *, charts: bool = True) -> Part:
         return _call(title, lambda: study.sensitivity(), "")  # type: ignore[attr-defined]
     from ..engine.errors import DesignError
     from .sensitivity_summary import curve_html, sensitivity_summary
-    from .svg_charts import curve_svg
+    from .svg_charts import sensitivity_figures
 
     try:
         summary = sensitivity_summary(study)
@@ -139,8 +139,8 @@ def sensitivity_part(study: "Study", *, charts: bool = True) -> Part:
     except Exception as exc:  # a failing optional part must not stop the hand-off
         return Part(title=title, note=f"could not be computed on this study: {exc}")
     parts = [summary._repr_html_()]
-    if charts and summary.curve is not None:
-        svg, why = curve_svg(summary.curve, summary.alpha)
-        parts.append(f"<figure class='vx-chart'>{svg}</figure>" if svg else f"<p class='note'>{html.escape(why or '')}</p>")
+    if charts:
+        figures = sensitivity_figures(summary.deletion, summary.sweep)
+        parts.append("<div class='vx-figures'>" + "".join(f.html() for f in figures) + "</div>")
     parts.append(curve_html(summary))
     return Part(title=title, html="".join(parts), text=summary.to_text())

@@ -17,17 +17,15 @@ from collections.abc import Iterable
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-import numpy as np
 
 from ..study.output_files import check_output_path, write_text_atomic
 from ..engine.tables import fmt
 from .cautions import cautions_html
 from .extras import Part, battery_part, sensitivity_part
 from .replay_code import study_to_code
-from .svg_charts import model_check_svgs, results_svg
+from .svg_charts import Figure, model_check_figures, observation_figures
 
 if TYPE_CHECKING:
-    from ..engine.results import Results
     from ..study.study import Study
 
 __all__ = ["report_html", "write_report"]
@@ -41,10 +39,14 @@ h1{font-size:1.6em;margin-bottom:.2em} h2{font-size:1.2em;border-bottom:1px soli
 .scenario{font-size:1.1em;color:#333}
 .side{display:grid;grid-template-columns:1fr 1fr;gap:1.5em}
 .side>div{overflow-x:auto}
-.side table.vx-table{font-size:80%}
-table.vx-table{border-collapse:collapse;margin:.5em 0;font-size:90%}
-table.vx-table th,table.vx-table td{border:1px solid #ddd;padding:2px 6px;text-align:right}
-table.vx-table td:first-child,table.vx-table th:first-child{text-align:left}
+.side table.vx-table{font-size:80%;width:100%}
+table.vx-table{border-collapse:collapse;margin:.5em 0;font-size:90%;min-width:min(100%,34em)}
+table.vx-table caption{text-align:left;font-weight:600;padding-bottom:.2em}
+table.vx-table th,table.vx-table td{border:1px solid #ddd;padding:2px 6px;text-align:left;vertical-align:top}
+table.vx-table td.vx-num{text-align:right;white-space:nowrap;font-variant-numeric:tabular-nums}
+figure.vx-chart{margin:.5em 0;max-width:100%;overflow:hidden}
+figure.vx-chart svg{max-width:100%;height:auto}
+figure.vx-chart figcaption{font-size:85%;color:#444;max-width:36em}
 .disclosure{background:#fff6e0;border-left:4px solid #d08c00;padding:.4em .8em}
 .vx-cautions li{margin:.3em 0}
 .vx-figures{display:flex;flex-wrap:wrap;gap:1em}
@@ -108,30 +110,36 @@ def _headline(study: "Study") -> str:
     )
 
 
-def _row_levels(study: "Study", res: "Results", baseline: bool) -> list[str]:
-    """The first factor's level of each row in ``res.fit``, in the view ``res`` was computed on."""
-    f = study.spec.factors[0]
-    ds = study.dataset
-    labels = np.asarray(ds.levels[f], dtype=object)[ds.codes[f]] if baseline else study.view.labels(f)
-    return [str(v) for v in labels[np.asarray(res.fit.positions)]]
-
-
-def _results_column(study: "Study", baseline: bool, heading: str, charts: bool) -> str:
+def _results_column(study: "Study", baseline: bool, heading: str, figure: "Figure | None") -> str:
     res = study.baseline if baseline else study.results
     parts = [f"<h3>{html.escape(heading)}</h3>"]
-    if charts:
-        svg, why = results_svg(res, heading, _row_levels(study, res, baseline))
-        parts.append(f"<figure class='vx-chart'>{svg}</figure>" if svg else f"<p class='note'>{html.escape(why or '')}</p>")
+    if figure is not None:
+        parts.append(figure.html())
     parts.append(res._repr_html_())
     return "<div>" + "".join(parts) + "</div>"
 
 
+def _side_by_side(study: "Study", charts: bool) -> str:
+    """Unedited and current results in two columns; their observation charts share one response axis."""
+    base_fig, cur_fig = observation_figures(study) if charts else (None, None)
+    return ("<div class='side'>"
+            + _results_column(study, True, "Baseline (unedited data)", base_fig)
+            + _results_column(study, False, f"Current (after {len(study.edits)} edit(s))", cur_fig)
+            + "</div>")
+
+
 def _model_checks(study: "Study") -> str:
-    svgs, why = model_check_svgs(study.baseline, study.results)
-    if not svgs:
-        return f"<p class='note'>{html.escape(why or '')}</p>"
-    figures = "".join(f"<figure class='vx-chart'>{svg}</figure>" for svg in svgs)
+    figures = "".join(f.html() for f in model_check_figures(study))
     return f"<h3>Partition and model checks</h3><div class='vx-figures'>{figures}</div>"
+
+
+def _moved(study: "Study") -> str:
+    moved = study.moved_rows()
+    if not moved:
+        return ""
+    items = "".join(f"<li>{html.escape(m.describe())}: {html.escape(m.reason or '(no reason given)')}</li>"
+                    for m in moved)
+    return f"<p>{len(moved)} row(s) now at another level than the one recorded (from → to):</p><ul>{items}</ul>"
 
 
 def _edits(study: "Study") -> str:
@@ -177,11 +185,8 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
         f"<section id='provenance'><h2>Data and provenance</h2>{_provenance(study)}</section>",
         f"<section id='cautions'><h2>Cautions</h2>{cautions_html()}</section>",
         "<section id='comparison'><h2>Baseline and current results</h2>" + _headline(study)
-        + "<div class='side'>"
-        + _results_column(study, True, "Baseline (unedited data)", charts)
-        + _results_column(study, False, f"Current (after {len(study.edits)} edit(s))", charts)
-        + "</div>" + (_model_checks(study) if charts else "") + "</section>",
-        f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}</section>",
+        + _side_by_side(study, charts) + (_model_checks(study) if charts else "") + "</section>",
+        f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}{_moved(study)}</section>",
         f"<section id='battery'><h2>{html.escape(battery.title)}</h2>{_part(battery)}</section>",
         f"<section id='sensitivity'><h2>{html.escape(sensitivity.title)}</h2>{_part(sensitivity)}"
         f"<p><strong>Disclosure:</strong> {html.escape(disclosure.sentence())}.</p></section>",

@@ -64,6 +64,8 @@ class SensitivitySummary:
     strongest_choice: dict | None
     examined: int
     notes: tuple[str, ...] = field(default=())
+    deletion: Any = None  # the case-deletion scan itself, for its chart
+    sweep: Any = None  # the robustness sweep itself, for the specification curve
 
     def lines(self) -> list[tuple[str, str]]:
         """(question, answer) pairs, the summary's rows (scans that did not run are left out)."""
@@ -146,7 +148,7 @@ def sensitivity_summary(study: "Study") -> SensitivitySummary:
         moves_examined=0 if regroup is None else int(regroup.move_rows.size),
         share_agreeing=None if sweep is None else sweep.share_agreeing,
         n_specifications=0 if sweep is None else int(sweep.n_specifications),
-        curve=curve, strongest_choice=None if sweep is None else sweep.strongest_choice,
+        curve=curve, strongest_choice=None if sweep is None else sweep.strongest_choice, deletion=deletion, sweep=sweep,
         examined=examined, notes=tuple(dict.fromkeys(notes)),
     )
 

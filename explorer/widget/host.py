@@ -15,6 +15,7 @@ import altair as alt
 import ipywidgets as W
 
 from explorer.charts import PICK
+from explorer.charts.style import split_subtitle
 
 from .panels import Panel, PanelContext
 
@@ -43,22 +44,6 @@ def _param_names(spec: dict) -> list[str]:
         for sub in spec.get(key, []):
             names += _param_names(sub)
     return sorted(str(n) for n in names)
-
-
-def _subtitle_apart(chart: alt.TopLevelMixin) -> tuple[alt.TopLevelMixin, list[str]]:
-    """The chart without its subtitle, and the subtitle's lines.
-
-    Vega does not wrap text, and a chart sized to its card shrinks its plot to make room for a
-    long subtitle; shown as HTML under the chart, the same sentences wrap instead.
-    """
-    title = getattr(chart, "title", alt.Undefined)
-    sub = getattr(title, "subtitle", alt.Undefined) if isinstance(title, alt.TitleParams) else alt.Undefined
-    if sub is alt.Undefined or not sub:
-        return chart, []
-    lines = [sub] if isinstance(sub, str) else [str(s) for s in sub if s]
-    bare = title.copy(deep=True)
-    bare.subtitle = alt.Undefined
-    return chart.properties(title=bare), lines
 
 
 class PanelCard:
@@ -140,7 +125,7 @@ class PanelCard:
 
     def _show_chart(self, chart: alt.TopLevelMixin) -> None:
         self._kind("chart")
-        chart, lines = _subtitle_apart(chart)
+        chart, lines = split_subtitle(chart)
         self.note.value = "".join(f"<div>{html.escape(str(line))}</div>" for line in lines)
         if isinstance(chart, (alt.Chart, alt.LayerChart)):
             chart = chart.properties(width="container")  # the card's width, whatever the page gives it
