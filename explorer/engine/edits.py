@@ -26,6 +26,8 @@ __all__ = [
     "Reassign",
     "MergeLevels",
     "RenameLevel",
+    "DropUnit",
+    "RestoreUnit",
     "edit_from_dict",
     "register_edit",
     "utc_now",
@@ -286,3 +288,50 @@ class RenameLevel(Edit):
 
     def describe(self) -> str:
         return f"rename {self.factor} level {self.old} to {self.new}"
+
+
+@dataclass(frozen=True, kw_only=True)
+class _UnitEdit(Edit):
+    """Shared shape of the edits that set whether every row of one level (a unit) is kept."""
+
+    keep: ClassVar[bool]
+    verb: ClassVar[str]
+    column: str
+    level: str
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "level", str(self.level))
+
+    def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        _check_factor(view, self.column)
+        (code,) = _check_levels(view, self.column, (self.level,))
+        rows = view.codes[self.column] == code
+        if bool(np.all(view.kept[rows] == self.keep)):
+            state = "in the analysis; nothing to restore" if self.keep else "already left out"
+            raise EditError(f"every row of {self.column} = {self.level!r} is {state}")
+        kept = view.kept.copy()
+        kept[rows] = self.keep
+        return view.replace(kept=_ro(kept))
+
+    def describe(self) -> str:
+        return f"{self.verb} every row of {self.column} = {self.level}"
+
+
+@register_edit
+@dataclass(frozen=True, kw_only=True)
+class DropUnit(_UnitEdit):
+    """Leave out every row of one level of a column: a whole subject, operator, part, lot or plot."""
+
+    kind: ClassVar[str] = "drop_unit"
+    keep: ClassVar[bool] = False
+    verb: ClassVar[str] = "leave out"
+
+
+@register_edit
+@dataclass(frozen=True, kw_only=True)
+class RestoreUnit(_UnitEdit):
+    """Bring back every row of one level of a column."""
+
+    kind: ClassVar[str] = "restore_unit"
+    keep: ClassVar[bool] = True
+    verb: ClassVar[str] = "restore"

@@ -21,7 +21,7 @@ import math
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ..engine.edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows
+from ..engine.edits import DropRows, DropUnit, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, RestoreUnit
 
 if TYPE_CHECKING:
     from ..study.study import Study
@@ -79,6 +79,9 @@ def edit_to_code(edit: Edit, name: str = "study") -> str:
         return f"{name}.merge_levels({_lit(edit.factor)}, {_lit(edit.levels)}, into={_lit(edit.into)}, {r})"
     if type(edit) is RenameLevel:
         return f"{name}.rename_level({_lit(edit.factor)}, {_lit(edit.old)}, {_lit(edit.new)}, {r})"
+    if type(edit) in (DropUnit, RestoreUnit):
+        verb = "drop_unit" if type(edit) is DropUnit else "restore_unit"
+        return f"{name}.{verb}({_lit(edit.column)}, {_lit(edit.level)}, {r})"  # type: ignore[attr-defined]
     return f"{name}.apply(ex.edit_from_dict({_lit(edit.to_dict())}))"
 
 
@@ -106,7 +109,7 @@ def _role_args(spec) -> list[str]:
     if spec.terms is not None:
         out.append(f"terms={_lit([' × '.join(t) if len(t) > 1 else t[0] for t in spec.terms])}")
     if spec.max_order is not None:
-        out.append(f"max_order={_lit(int(spec.max_order))}")
+        out.append(f"max_order={_lit(spec.max_order)}")
     if spec.random:
         out.append(f"random={_lit(list(spec.random))}")
     if spec.nested:
@@ -114,6 +117,8 @@ def _role_args(spec) -> list[str]:
     if spec.subject is not None:
         out.append(f"subject={_lit(spec.subject)}")
         out.append(f"within={_lit(list(spec.within))}")
+    if spec.variance_method != "auto":
+        out.append(f"variance_method={_lit(spec.variance_method)}")
     return out
 
 

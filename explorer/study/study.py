@@ -20,7 +20,7 @@ import pandas as pd
 from ..engine.analysis import analyze
 from ..engine.disclosure import Disclosure
 from ..engine.dataset import Dataset, RowId, SetAsideRow, build_dataset
-from ..engine.edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows
+from ..engine.edits import DropRows, DropUnit, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, RestoreUnit
 from ..engine.errors import DesignError, EditError, ReplayError
 from ..engine.moves import MovedRow, moved_rows
 from .output_files import write_text_atomic
@@ -38,6 +38,7 @@ if TYPE_CHECKING:
     from ..sensitivity.regroup import RegroupScan
     from ..inference.measurement_system import MeasurementSystem
     from ..inference.repeated_measures import RepeatedMeasures
+    from ..sensitivity.unit_deletion import UnitDeletionScan
     from ..sensitivity.sweep import SweepResult
 
 __all__ = ["Study", "StudyEvent", "Disclosure"]
@@ -221,6 +222,14 @@ class Study:
     def rename_level(self, factor: str, old: str, new: str, reason: str = "") -> Results:
         return self.apply(RenameLevel(factor=factor, old=old, new=new, reason=reason))
 
+    def drop_unit(self, column: str, level: str, reason: str = "") -> Results:
+        """Leave out every row of one level of ``column``: a whole subject, operator, part, lot or plot."""
+        return self.apply(DropUnit(column=column, level=level, reason=reason))
+
+    def restore_unit(self, column: str, level: str, reason: str = "") -> Results:
+        """Bring back every row of one level of ``column``."""
+        return self.apply(RestoreUnit(column=column, level=level, reason=reason))
+
     def undo(self) -> Results:
         if self._position == 0:
             raise EditError("nothing to undo: the study is at its baseline")
@@ -375,6 +384,19 @@ class Study:
         return measurement_system(self.results, part, operator, tolerance=tolerance, multiplier=multiplier)
 
     # ----------------------------------------------------------------- sensitivity (reads, never edits)
+    def unit_deletion(self, column: str, **options: Any) -> UnitDeletionScan:
+        """Each subject, operator, part or other level of ``column`` left out in turn, refitted
+        (see :func:`explorer.sensitivity.unit_deletion.unit_deletion`)."""
+        from ..sensitivity.unit_deletion import unit_deletion
+
+        return unit_deletion(self, column, **options)
+
+    def row_deletion(self, **options: Any) -> UnitDeletionScan:
+        """Each kept row left out in turn by a full refit (for models with random terms)."""
+        from ..sensitivity.unit_deletion import row_deletion
+
+        return row_deletion(self, **options)
+
     def influence(self, **options: Any) -> Influence:
         """Leverage, studentized residuals, Cook's distance, DFFITS (see :func:`explorer.sensitivity.influence.influence`)."""
         from ..sensitivity.influence import influence
