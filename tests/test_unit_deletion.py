@@ -15,7 +15,7 @@ import pandas as pd
 import pytest
 
 import explorer as ex
-from explorer.core.errors import EditError, ExplorerError
+from explorer.engine.errors import EditError, ExplorerError
 
 pg = pytest.importorskip("pingouin")
 
