@@ -56,14 +56,16 @@ def confidence_matching_test(alpha: float) -> float:
     return 1 - 2 * alpha
 
 
-def zero_statement(f_obs: float, df1: float, df2: float, alpha: float, what: str = "the effect") -> tuple[bool, str]:
+def zero_statement(f_obs: float, df1: float, df2: float, alpha: float, what: str = "the effect",
+                   lower: float | None = None) -> tuple[bool, str]:
     """Whether the ``1 - 2 alpha`` noncentrality interval excludes zero, and the sentence that says so.
 
     Its lower limit is above zero exactly when ``P(F >= f_obs; lambda = 0) < alpha``
-    (Steiger 2004), so the sentence never contradicts the F test.
+    (Steiger 2004), so the sentence never contradicts the F test. ``lower`` is that
+    interval's lower limit when the caller has it already.
     """
     conf = confidence_matching_test(alpha)
-    lo = noncentrality_interval(f_obs, df1, df2, conf)[0]
+    lo = noncentrality_interval(f_obs, df1, df2, conf)[0] if lower is None else lower
     pct = f"{conf:.0%}"
     if lo > 0:
         return True, (f"The {pct} interval of {what} (1 - 2 alpha, which matches the F test at alpha {alpha:g}; "

@@ -139,7 +139,9 @@ def effect_sizes(results: Results, *, confidence: float | None = None, alpha: fl
         ci_p = (lo / (lo + n), hi / (hi + n))
         ci_f = (float(np.sqrt(lo / n)), float(np.sqrt(hi / n)))
         if 0 < a < 0.5:
-            excludes, sentence = zero_statement(float(f_stat), df1, df2, a, "the proportion of variance explained")
+            same = abs(confidence - confidence_matching_test(a)) < 1e-12
+            excludes, sentence = zero_statement(float(f_stat), df1, df2, a, "the proportion of variance explained",
+                                                lower=lo if same else None)
             notes.append(sentence)
     return EffectSizes(
         eta_squared=float(eta2), omega_squared=float(omega2), epsilon_squared=float(eps2), cohens_f=cohens_f,
