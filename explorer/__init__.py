@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from ._version import __version__
 from .engine import *  # noqa: F403
 from .engine import __all__ as _engine_all
 from .inference import *  # noqa: F403
@@ -17,9 +18,8 @@ from .sensitivity import __all__ as _sensitivity_all
 from .study import *  # noqa: F403
 from .study import __all__ as _study_all
 
-from ._version import __version__
 _core_all = [*_engine_all, *_inference_all, *_sensitivity_all, *(n for n in _study_all if n not in _engine_all)]
-__all__ = list(_core_all) + ["explore", "Explorer", "SummaryStudy", "__version__"]
+__all__ = list(_core_all) + ["explore", "Explorer", "SummaryStudy", "__version__"]  # noqa: F405
 
 
 def __getattr__(name: str) -> Any:

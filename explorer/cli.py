@@ -28,10 +28,10 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from .engine import ExplorerError, OutputError, ReplayError
+from .engine.spec import ModelSpec
 from .study import Study
 from .study.output_files import check_output_path, write_text_atomic
 from .study.persistence import read_study_file
-from .engine.spec import ModelSpec
 
 __all__ = ["main", "EXIT_CODES", "PROG"]
 

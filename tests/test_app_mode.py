@@ -61,7 +61,7 @@ def served(tmp_path_factory):
         except OSError:
             if proc.poll() is not None or time.time() > deadline:
                 os.killpg(proc.pid, signal.SIGKILL)
-                raise RuntimeError((root / "voila.log").read_text())
+                raise RuntimeError((root / "voila.log").read_text()) from None
             time.sleep(0.3)
     yield base, saved, study
     proc.terminate()  # the command passes SIGTERM on to Voila and removes its page

@@ -14,8 +14,8 @@ import pytest
 from groups_support import random_groups, study_from_groups
 from scipy import stats
 
-from explorer.inference.assumptions import bartlett, levene, recommend, shapiro_residuals
 from explorer.engine.errors import ExplorerError
+from explorer.inference.assumptions import bartlett, levene, recommend, shapiro_residuals
 
 
 @pytest.fixture(scope="module")

@@ -18,9 +18,9 @@ from groups_support import NIST_TUKEY_GROUPS, frame_from_groups, study_from_grou
 from scipy import stats
 
 import explorer as ex
+from explorer.engine.errors import DesignError, ExplorerError
 from explorer.inference.battery import Battery, run_battery
 from explorer.inference.comparisons import tukey
-from explorer.engine.errors import DesignError, ExplorerError
 
 
 def _methods(b: Battery) -> tuple:
@@ -79,7 +79,8 @@ def test_battery_changes_nothing_and_repr_is_clean() -> None:
     assert study.edits == () and study.results.n_used == 20
     page = b._repr_html_()
     assert "nan" not in page.lower()
-    for heading in ("Tests of equal level means", "Assumption checks", "Suggested overall test (information, not a switch)", "Games-Howell",
+    for heading in ("Tests of equal level means", "Assumption checks",
+                    "Suggested overall test (information, not a switch)", "Games-Howell",
                     "Dunnett", "Letters", "Effect sizes", "Power", "Grubbs"):
         assert heading in page
     assert b.flagged_rows() == {s.method: s.flagged for s in b.screens}

@@ -22,6 +22,7 @@ from groups_support import (
 from scipy import stats
 from statsmodels.stats.multitest import multipletests
 
+from explorer.engine.errors import ExplorerError
 from explorer.inference.comparisons import (
     adjust_pvalues,
     dunnett,
@@ -30,7 +31,6 @@ from explorer.inference.comparisons import (
     simultaneous_pairs,
     tukey,
 )
-from explorer.engine.errors import ExplorerError
 
 # scipy.stats.tukey_hsd docstring example (three groups of five).
 SCIPY_TUKEY_GROUPS = [

@@ -258,7 +258,8 @@ def test_fitted_residuals_leverage_match_statsmodels():
 
 def test_marginal_means_match_statsmodels_contrasts():
     """Least-squares means (Searle, Speed and Milliken 1980) = statsmodels t_test of the design rows averaged
-    over the grid of the other factor; Tukey-Kramer q and p from those with scipy studentized_range (the test uses q = sqrt(2)|t|)."""
+    over the grid of the other factor; Tukey-Kramer q and p from those with scipy studentized_range
+    (the test uses q = sqrt(2)|t|)."""
     rng = np.random.default_rng(3)
     frame = pd.DataFrame({"fa": rng.choice(["a1", "a2", "a3"], 70), "fb": rng.choice(["b1", "b2"], 70, p=[0.8, 0.2])})
     frame["y"] = rng.normal(size=70) + frame.fa.map({"a1": 0, "a2": 1, "a3": 3}) + (frame.fb == "b2") * 2

@@ -36,7 +36,8 @@ RANKS: dict[str, int] = {
     "core": 8,  # the deprecated aliases of the old flat package point at every layer
 }
 
-#: the documented exceptions (lazy imports of the hand-off by a study's own hand-off methods): (importing module, imported part) -> why
+#: the documented exceptions (lazy imports of the hand-off by a study's own hand-off methods):
+#: (importing module, imported part) -> why
 EXCEPTIONS: dict[tuple[str, str], str] = {
     ("explorer.study.study", "report"): (
         "Study.report() and Study.to_code() hand the study to the report package, imported lazily "

@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 from groups_support import NIST_TUKEY_GROUPS, random_groups, study_from_groups
 
-from explorer.inference.comparisons import tukey
 from explorer.engine.errors import ExplorerError
+from explorer.inference.comparisons import tukey
 from explorer.inference.letters import compact_letters
 
 # Ten fixed deviations with mean 0 and SD 1 (so MSE = 1 and the Tukey HSD is q * sqrt(1/10)).

@@ -216,10 +216,10 @@ def test_balanced_synthesis_equals_exact_counts():
         pos = np.flatnonzero(study.view.kept)
         layout, _ = layout_cells([study.view.codes[c][pos] for c in spec.columns],
                                  [study.view.levels[c] for c in spec.columns], spec.columns)
-        from explorer.engine.factorial import fit_factorial  # noqa: F401  (the study's fit is the reference)
         from explorer.engine.cellfit import fit_cells
-        from explorer.engine.groupstats import group_stats
         from explorer.engine.design import fitted_terms
+        from explorer.engine.factorial import fit_factorial  # noqa: F401  (the study's fit is the reference)
+        from explorer.engine.groupstats import group_stats
 
         _, row_cell = layout_cells([study.view.codes[c][pos] for c in spec.columns],
                                    [study.view.levels[c] for c in spec.columns], spec.columns)

@@ -10,9 +10,9 @@ from __future__ import annotations
 
 import pandas as pd
 import pytest
+from nist_strd import SETS, available, exact_oneway, lre, read_set
 
 import explorer as ex
-from nist_strd import SETS, available, exact_oneway, lre, read_set
 
 pytestmark = pytest.mark.skipif(not available(), reason="NIST StRD files not found in the installed scipy")
 

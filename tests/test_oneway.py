@@ -123,7 +123,7 @@ def test_level_table_against_direct_computation():
     """Level SD/SE and own-SD CI from numpy/scipy.stats.t directly (textbook formulas)."""
     df = _frame(HANDBOOK_7433)
     lt = ex.Study(df, "y", "level").results.levels["level"]
-    for i, (lv, vals) in enumerate(HANDBOOK_7433.items()):
+    for i, vals in enumerate(HANDBOOK_7433.values()):
         v = np.array(vals)
         assert lt.sd[i] == pytest.approx(v.std(ddof=1), rel=1e-12)
         half = stats.t.ppf(0.975, 4) * v.std(ddof=1) / np.sqrt(5)

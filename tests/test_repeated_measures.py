@@ -158,7 +158,7 @@ def test_multivariate_tests_against_statsmodels_manova():
     for source, key in [("time", "Intercept"), ("group × time", "C(group, Sum)")]:
         ours = next(m for m in rm.multivariate if m.source == source)
         table = ref.results[key]["stat"]
-        for name, value, F, df1, df2, p in ours.statistics:
+        for name, value, F, _df1, df2, p in ours.statistics:
             r = table.loc[names[name]]
             assert value == pytest.approx(float(r["Value"]), rel=1e-8)
             assert F == pytest.approx(float(r["F Value"]), rel=1e-8)

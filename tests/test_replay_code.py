@@ -62,7 +62,8 @@ def test_replay_in_fresh_interpreter_is_exact():
     study.undo()
     study.record_search("leave-one-out scan", 112)
     code = study.to_code()
-    assert "to be undone" in code and sum(ln.startswith("study.drop(") for ln in code.splitlines()) == 1  # undone edit listed, not replayed
+    # the undone edit is listed, not replayed
+    assert "to be undone" in code and sum(ln.startswith("study.drop(") for ln in code.splitlines()) == 1
     got = _run_fresh(code, ROOT)
     assert got == _snapshot(study)
 

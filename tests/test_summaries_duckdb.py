@@ -20,8 +20,8 @@ from nist_strd import SETS, available, exact_oneway, lre, read_set
 from summaries_support import assert_same_results, close, unbalanced_frame
 
 import explorer as ex
-from explorer.inference import comparisons
 from explorer.engine.errors import ColumnError, DataError, EditError, ReplayError
+from explorer.inference import comparisons
 from explorer.inference.omnibus import brown_forsythe_f, welch_f
 from explorer.summaries import (
     DuckDBSource,

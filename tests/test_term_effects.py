@@ -92,11 +92,11 @@ def test_one_factor_term_effects_equal_the_oneway_effect_sizes_and_power() -> No
     """One factor through the general engine: partial = plain eta², and the interval and power
     equal the one-way effect_sizes (same 1 - 2 alpha interval) and power_plan at the observed f."""
     from explorer.engine.dataset import build_dataset
-    from explorer.inference.effect_sizes import effect_sizes
     from explorer.engine.factorial import fit_factorial
-    from explorer.inference.power import power_plan
     from explorer.engine.spec import ModelSpec
     from explorer.engine.view import initial_view
+    from explorer.inference.effect_sizes import effect_sizes
+    from explorer.inference.power import power_plan
 
     frame = _frame(3, balanced=False)[["fa", "y"]]
     ds = build_dataset(frame, "y", ["fa"])

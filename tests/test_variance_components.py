@@ -86,7 +86,8 @@ def test_negative_estimate_rule():
 def test_balanced_nested_moments():
     """Nested: sigma²_lot = (MS_lot(supplier) - MS_E) / n (Montgomery ch. 14, from memory)."""
     rng = np.random.default_rng(4)
-    rows = [(s, f"L{l}", 5 + rng.normal() + 2 * (l == 1)) for s in ("S1", "S2", "S3") for l in range(4) for _ in range(3)]
+    rows = [(s, f"L{lot}", 5 + rng.normal() + 2 * (lot == 1)) for s in ("S1", "S2", "S3") for lot in range(4)
+            for _ in range(3)]
     frame = pd.DataFrame(rows, columns=["supplier", "lot", "y"])
     res = ex.Study(frame, "y", ["supplier", "lot"], random=["lot"], nested={"lot": "supplier"}).results
     t = res.partition

@@ -14,8 +14,8 @@ import numpy as np
 import pandas as pd
 
 from explorer.engine import Results
-from explorer.study import Study
 from explorer.engine.moves import moved_mask
+from explorer.study import Study
 
 from .style import IN_ANALYSIS, LEFT_OUT_STATE, MOVED_STATE
 

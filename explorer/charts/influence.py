@@ -56,7 +56,7 @@ def cooks_distance_chart(results: Results, *, max_points: int = MAX_POINTS, widt
     guide = alt.Chart().mark_rule(color=GUIDE, strokeDash=[4, 3]).encode(y=alt.datum(yard))
     dist = frame["distance"].astype("float64").to_numpy(na_value=np.nan)
     labels, named = id_labels(frame, np.nan_to_num(dist, nan=0.0) > yard, dist, "order", "distance",
-                              what=f"the 4/n line")
+                              what="the 4/n line")
     layers = [stems, guide, row_marks(base, pick_param(), tip, size=35, legend=False)]
     chart = alt.layer(*layers, *([labels] if labels is not None else []))
     sub = [f"Dashed line: 4/n = {yard:.3g}, a common rule of thumb for a closer look. {named}"]

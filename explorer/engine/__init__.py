@@ -13,7 +13,16 @@ from .design import model_terms, term_name
 from .design_checks import check_design
 from .disclosure import Disclosure
 from .edits import DropRows, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, edit_from_dict
-from .errors import ColumnError, DataError, DesignError, EditError, ExplorerError, OutputError, PredicateError, ReplayError
+from .errors import (
+    ColumnError,
+    DataError,
+    DesignError,
+    EditError,
+    ExplorerError,
+    OutputError,
+    PredicateError,
+    ReplayError,
+)
 from .factorial import factorial_from_cells, fit_factorial
 from .groupstats import GroupStats, group_stats
 from .marginal_means import MarginalMeans, marginal_means

@@ -254,7 +254,8 @@ def build_dataset(
             [str(v) for v in idx], dtype=object)
         id_source = f"column {id_column!r}"
     elif usable_index:
-        ids = np.asarray([_py(v) for v in idx], dtype=object) if not pd.api.types.is_integer_dtype(idx.dtype) else np.asarray(idx, dtype=np.int64)
+        ids = (np.asarray([_py(v) for v in idx], dtype=object) if not pd.api.types.is_integer_dtype(idx.dtype)
+               else np.asarray(idx, dtype=np.int64))
         id_source = "index"
     else:
         ids = np.arange(len(frame), dtype=np.int64)

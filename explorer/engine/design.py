@@ -25,7 +25,10 @@ import numpy as np
 
 from .spec import ModelSpec
 
-__all__ = ["CellDesign", "Term", "cell_design", "contains", "fitted_terms", "model_terms", "sum_contrasts", "term_columns", "term_name"]
+__all__ = [
+    "CellDesign", "Term", "cell_design", "contains", "fitted_terms", "model_terms", "sum_contrasts", "term_columns",
+    "term_name",
+]
 
 Term = tuple[str, ...]
 

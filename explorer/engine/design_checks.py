@@ -88,7 +88,6 @@ def _check_subjects(layout: CellLayout, spec: ModelSpec) -> list[str]:
     if spec.subject is None:
         return []
     j = layout.columns.index(spec.subject)
-    subj = layout.cell_levels[:, j]
     for f in spec.between:
         i = layout.columns.index(f)
         pairs = np.unique(layout.cell_levels[:, [j, i]], axis=0)

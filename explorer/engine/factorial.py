@@ -25,20 +25,20 @@ from .cellfit import SS_TYPES, CellFit, fit_cells
 from .cells import CellLayout, CellTable, layout_cells
 from .dataset import Dataset
 from .design import fitted_terms
-from .design_layout import layout_notes
 from .design_checks import check_design
+from .design_layout import layout_notes
 from .distributions import f_sf, t_ppf
+from .ems import expected_mean_squares
 from .fitrows import RowSet, row_fit
 from .groupstats import GroupStats, group_stats, pool_groups
-from .ems import expected_mean_squares
 from .marginal_means import MarginalMeans, marginal_means
 from .mixed_partition import mixed_partition
 from .oneway import NOT_FINITE
 from .results import LevelTable, Results
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow, fmt
-from .variance_components import estimate_components
 from .term_effects import term_effects
+from .variance_components import estimate_components
 from .view import DataView
 
 __all__ = ["factorial_from_cells", "factorial_tables", "fit_factorial", "level_stats_from_cells"]

@@ -6,7 +6,6 @@ the exact decimal offset out, so no digits are lost before the analysis starts.
 
 from __future__ import annotations
 
-import codecs
 import csv
 import importlib.util
 from pathlib import Path

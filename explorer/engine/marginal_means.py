@@ -31,8 +31,8 @@ import numpy as np
 import pandas as pd
 
 from .cellfit import CellFit
-from .pairwise import PairwiseTable, simultaneous_pairs
 from .distributions import t_ppf
+from .pairwise import PairwiseTable, simultaneous_pairs
 from .tables import html_table
 
 __all__ = ["MarginalMeans", "marginal_means"]

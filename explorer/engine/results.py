@@ -17,11 +17,11 @@ from .tables import AnovaTable, fmt, html_table
 if TYPE_CHECKING:  # multi-factor result parts (see factorial.py)
     from .aliasing import AliasedTerm
     from .blocking import BlockingEfficiency
-    from .ems import ExpectedMeanSquares
-    from .variance_components import VarianceComponents
     from .cells import CellTable
+    from .ems import ExpectedMeanSquares
     from .marginal_means import MarginalMeans
     from .term_effects import TermEffects
+    from .variance_components import VarianceComponents
 
 __all__ = ["LevelTable", "TwoSampleT", "Fit", "Results"]
 

@@ -88,7 +88,7 @@ def check_response_values(col: pd.Series, response: str) -> None:
             f"response column {response!r} is categorical; if its categories are measurements, convert them "
             f"first (df[{response!r}].astype(float)), else it is a factor, not the response"
         )
-    if dtype == object:
+    if dtype == object:  # noqa: E721  (a numpy dtype equals object; it is not the object type)
         kinds = {type(v).__name__ for v in col.dropna().head(10_000) if not isinstance(v, (str, int, float, np.number))}
         kinds |= {"complex" for v in col.dropna().head(10_000) if isinstance(v, (complex, np.complexfloating))}
         if kinds:

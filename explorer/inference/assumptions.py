@@ -38,8 +38,8 @@ from scipy import special, stats
 from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
 from ..engine.groupstats import group_stats
-from .oneway_inputs import row_sample_notes
 from ..engine.tables import fmt
+from .oneway_inputs import row_sample_notes
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -272,9 +272,11 @@ def recommend(results: Results, spread: CheckResult, normality: CheckResult, *, 
     chosen_key = str(getattr(results.spec, "test", "classic"))
     chosen = _TEST_NAMES.get(chosen_key, chosen_key)
     bal = "equal" if balanced else f"unequal ({int(n.min())} to {int(n.max())})"
-    sp = ("spreads look different" if differ else "spreads look similar") if differ is not None else "spreads could not be compared"
+    sp = (("spreads look different" if differ else "spreads look similar") if differ is not None
+          else "spreads could not be compared")
     sp += f" ({spread.method}, p = {fmt(spread.pvalue, 3)})" if spread.pvalue is not None else ""
-    nm = ("residuals depart from normal" if nonnormal else "residuals look normal") if nonnormal is not None else "normality could not be checked"
+    nm = (("residuals depart from normal" if nonnormal else "residuals look normal") if nonnormal is not None
+          else "normality could not be checked")
     nm += f" (Shapiro-Wilk, p = {fmt(normality.pvalue, 3)})" if normality.pvalue is not None else ""
     parts = [
         "Welch's F (Games-Howell for pairs) is suggested before looking at the data: it keeps its error rate "

@@ -20,6 +20,8 @@ from typing import TYPE_CHECKING, Literal
 import numpy as np
 import pandas as pd
 
+from ..engine.errors import DesignError, ExplorerError
+from ..engine.tables import html_table
 from .assumptions import (
     CheckResult,
     Recommendation,
@@ -37,7 +39,6 @@ from .comparisons import (
     tukey,
 )
 from .effect_sizes import EffectSizes, effect_sizes
-from ..engine.errors import DesignError, ExplorerError
 from .letters import LetterDisplay, compact_letters
 from .omnibus import (
     OmnibusTest,
@@ -54,7 +55,6 @@ from .outliers import (
     robust_z_screen,
 )
 from .power import PowerPlan, power_plan
-from ..engine.tables import html_table
 
 if TYPE_CHECKING:
     from ..engine.results import Results

@@ -25,15 +25,14 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, Literal
 
 import numpy as np
-import pandas as pd
 from scipy import optimize, special
 
 from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import DesignError, ExplorerError, closest_names, preview
 from ..engine.groupstats import GroupStats
-from .oneway_inputs import require_oneway
 from ..engine.pairwise import PairwiseTable, _check_confidence, _pairs, _ro, adjust_pvalues, simultaneous_pairs
 from ..engine.studentized_range import _outer_grid, srange_ppf, srange_sf
+from .oneway_inputs import require_oneway
 
 if TYPE_CHECKING:
     from ..engine.results import Results

@@ -40,10 +40,11 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
+
 from ..engine.errors import ExplorerError
 from ..engine.noncentral_f import confidence_matching_test, noncentrality_interval, zero_statement
-from .oneway_inputs import require_oneway
 from ..engine.tables import html_table
+from .oneway_inputs import require_oneway
 
 if TYPE_CHECKING:
     from ..engine.results import Results

@@ -26,9 +26,9 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .comparisons import PairwiseTable
 from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
+from .comparisons import PairwiseTable
 
 __all__ = ["LetterDisplay", "compact_letters"]
 

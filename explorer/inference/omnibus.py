@@ -30,8 +30,8 @@ from scipy import special
 
 from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
-from .oneway_inputs import require_oneway, row_sample_notes
 from ..engine.tables import fmt
+from .oneway_inputs import require_oneway, row_sample_notes
 
 if TYPE_CHECKING:
     from ..engine.results import Results

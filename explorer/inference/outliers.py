@@ -33,8 +33,8 @@ import pandas as pd
 
 from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import ExplorerError
-from .oneway_inputs import row_sample_notes
 from ..engine.tables import fmt, html_table
+from .oneway_inputs import row_sample_notes
 
 if TYPE_CHECKING:
     from ..engine.results import Results

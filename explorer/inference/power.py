@@ -22,10 +22,11 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
 import numpy as np
+
 from ..engine.errors import ExplorerError
 from ..engine.noncentral_f import f_test_power as _f_power
-from .oneway_inputs import require_oneway
 from ..engine.tables import fmt
+from .oneway_inputs import require_oneway
 
 if TYPE_CHECKING:
     from ..engine.results import Results

@@ -188,7 +188,7 @@ def _between_design(uniq: list[tuple[str, ...]], code: np.ndarray, between: list
     slices: dict[tuple[str, ...], slice] = {}
     start = 1
     per_factor = []
-    for j, b in enumerate(between):
+    for j, _factor in enumerate(between):
         labels = [u[j] for u in uniq]
         levels = list(dict.fromkeys(labels))
         k = len(levels)

@@ -21,7 +21,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .mixed_guard import refuse_mixed
+from ..engine.disclosure import Disclosure
+from ..engine.tables import fmt, html_table
 from .alternatives import (
     STATUS_NOTES,
     OnewayInput,
@@ -29,8 +30,7 @@ from .alternatives import (
     deletion_fits,
     oneway_input,
 )
-from ..engine.disclosure import Disclosure
-from ..engine.tables import fmt, html_table
+from .mixed_guard import refuse_mixed
 
 __all__ = ["CaseDeletionScan", "case_deletion_scan", "nullable"]
 

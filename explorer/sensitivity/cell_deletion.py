@@ -20,12 +20,12 @@ from __future__ import annotations
 
 import numpy as np
 
-from .alternatives import OnewayInput, leave_one_out
 from ..engine.cellfit import fit_cells
 from ..engine.design import term_name
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError
 from ..engine.groupstats import GroupStats, group_stats
+from .alternatives import OnewayInput, leave_one_out
 
 __all__ = ["cell_deletion", "eta_squared_total"]
 

@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import numpy as np
 
-from .alternatives import AlternativeFits, OnewayInput, leave_one_out
 from ..engine.cellfit import CellFit, fit_cells
 from ..engine.cells import layout_cells
 from ..engine.design import term_name
@@ -27,6 +26,7 @@ from ..engine.design_checks import check_design
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError, ExplorerError, closest_names
 from ..engine.groupstats import GroupStats, group_stats
+from .alternatives import AlternativeFits, OnewayInput, leave_one_out
 
 __all__ = ["cell_regroup"]
 

@@ -38,14 +38,14 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
-from .mixed_guard import refuse_mixed
 from ..engine.dataset import RowId
-from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
+from ..engine.disclosure import Disclosure
 from ..engine.errors import ExplorerError, closest_names
 from ..engine.groupstats import group_stats
 from ..engine.studentized_range import srange_ppf, srange_sf
-from ..engine.disclosure import Disclosure
 from ..engine.tables import fmt, html_table
+from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
+from .mixed_guard import refuse_mixed
 
 __all__ = ["FlipSearch", "flip_finder"]
 
@@ -356,8 +356,8 @@ def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | N
     greedy: leave out the row that moves the F test furthest toward the other decision
     on a private copy of the study, re-scan, repeat. The user's study is not changed.
     """
-    from .case_deletion import case_deletion_scan
     from ..engine.errors import EditError
+    from .case_deletion import case_deletion_scan
 
     spec = study.spec  # type: ignore[attr-defined]
     a = float(spec.alpha if alpha is None else alpha)

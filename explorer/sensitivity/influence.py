@@ -33,8 +33,8 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from ..engine.distributions import t_sf
 from ..engine.disclosure import Disclosure
+from ..engine.distributions import t_sf
 from ..engine.tables import fmt, html_table
 
 __all__ = ["Influence", "influence", "influence_measures"]

@@ -22,7 +22,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .mixed_guard import refuse_mixed
+from ..engine.disclosure import Disclosure
+from ..engine.tables import fmt, html_table
 from .alternatives import (
     AlternativeFits,
     base_fit,
@@ -31,8 +32,7 @@ from .alternatives import (
     oneway_input,
 )
 from .case_deletion import nullable
-from ..engine.disclosure import Disclosure
-from ..engine.tables import fmt, html_table
+from .mixed_guard import refuse_mixed
 
 __all__ = ["RegroupScan", "regroup_scan"]
 

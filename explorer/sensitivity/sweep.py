@@ -43,18 +43,18 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .mixed_guard import refuse_mixed
+from ..engine.disclosure import Disclosure
+from ..engine.errors import DesignError, ExplorerError, closest_names
+from ..engine.oneway import fit_oneway
+from ..engine.results import Results
+from ..engine.tables import fmt, html_table
+from ..inference.omnibus import OmnibusTest, classic_f, kruskal_wallis, welch_f
+from ..inference.outliers import bonferroni_outlier_test
 from .alternatives import OnewayInput, oneway_input
 from .case_deletion import nullable
-from ..engine.errors import DesignError, ExplorerError, closest_names
 from .influence import influence_measures
-from ..inference.omnibus import OmnibusTest, classic_f, kruskal_wallis, welch_f
-from ..engine.oneway import fit_oneway
-from ..inference.outliers import bonferroni_outlier_test
-from ..engine.results import Results
-from ..engine.disclosure import Disclosure
+from .mixed_guard import refuse_mixed
 from .sweep_coincide import distinct_analyses
-from ..engine.tables import fmt, html_table
 
 __all__ = ["OUTLIER_RULES", "TESTS", "TRANSFORMS", "SweepResult", "robustness_sweep"]
 

@@ -18,28 +18,28 @@ from typing import TYPE_CHECKING, Any
 import pandas as pd
 
 from ..engine.analysis import analyze
-from ..engine.disclosure import Disclosure
 from ..engine.dataset import Dataset, RowId, SetAsideRow, build_dataset
+from ..engine.disclosure import Disclosure
 from ..engine.edits import DropRows, DropUnit, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, RestoreUnit
 from ..engine.errors import DesignError, EditError, ReplayError
 from ..engine.moves import MovedRow, moved_rows
-from .output_files import write_text_atomic
-from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 from ..engine.results import Results
 from ..engine.spec import ModelSpec
 from ..engine.table_checks import column_names
 from ..engine.view import DataView, initial_view
+from .output_files import write_text_atomic
+from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 
 if TYPE_CHECKING:
     from ..inference.battery import Battery
+    from ..inference.measurement_system import MeasurementSystem
+    from ..inference.repeated_measures import RepeatedMeasures
     from ..sensitivity.case_deletion import CaseDeletionScan
     from ..sensitivity.flip import FlipSearch
     from ..sensitivity.influence import Influence
     from ..sensitivity.regroup import RegroupScan
-    from ..inference.measurement_system import MeasurementSystem
-    from ..inference.repeated_measures import RepeatedMeasures
-    from ..sensitivity.unit_deletion import UnitDeletionScan
     from ..sensitivity.sweep import SweepResult
+    from ..sensitivity.unit_deletion import UnitDeletionScan
 
 __all__ = ["Study", "StudyEvent", "Disclosure"]
 
@@ -422,7 +422,10 @@ class Study:
         return regroup_scan(self, **options)
 
     def robustness_sweep(self, **options: Any) -> SweepResult:
-        """Every combination of outlier rule, test, transform and merges (see :func:`explorer.sensitivity.sweep.robustness_sweep`)."""
+        """Every combination of outlier rule, test, transform and merges.
+
+        See :func:`explorer.sensitivity.sweep.robustness_sweep`.
+        """
         from ..sensitivity.sweep import robustness_sweep
 
         return robustness_sweep(self, **options)

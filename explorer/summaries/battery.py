@@ -13,11 +13,11 @@ from __future__ import annotations
 import dataclasses
 from typing import Any
 
+from ..engine.errors import ExplorerError
 from ..inference.assumptions import bartlett, recommend
 from ..inference.battery import Battery, run_battery
 from ..inference.comparisons import dunnett, games_howell, pairwise_t, tukey
 from ..inference.effect_sizes import effect_sizes
-from ..engine.errors import ExplorerError
 from ..inference.letters import compact_letters
 from ..inference.omnibus import brown_forsythe_f, classic_f, welch_f
 from ..inference.power import power_plan

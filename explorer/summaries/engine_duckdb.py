@@ -163,7 +163,9 @@ class DuckDBSource:
             if name not in self.types:
                 near = closest_names(name, self.columns)
                 hint = f" Did you mean {', '.join(repr(n) for n in near)}?" if near else ""
-                raise ColumnError(f"{role} column {name!r} is not in {self.label}.{hint} Columns: {preview(list(self.columns), 12)}")
+                raise ColumnError(
+                    f"{role} column {name!r} is not in {self.label}.{hint} Columns: {preview(list(self.columns), 12)}"
+                )
         if response in factors:
             raise ColumnError(f"column {response!r} is named as both the response and a factor; pick one role")
 

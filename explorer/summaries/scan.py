@@ -49,7 +49,7 @@ class SetAsideScan:
 
     @property
     def flips(self) -> pd.DataFrame:
-        return self.table[self.table["flips"] == True]
+        return self.table[self.table["flips"] == True]  # noqa: E712  (a nullable column: NA is not a flip)
 
     def to_frame(self) -> pd.DataFrame:
         return self.table.copy()

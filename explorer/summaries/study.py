@@ -35,13 +35,13 @@ from ..engine.factorial import factorial_from_cells
 from ..engine.fitrows import RowSet
 from ..engine.groupstats import pool_groups
 from ..engine.oneway import oneway_from_stats
-from ..study.output_files import write_text_atomic
-from ..study.persistence import read_study_file
 from ..engine.response_unit import SAFE, unit_exponent, unit_note
 from ..engine.results import Results
 from ..engine.spec import ModelSpec
-from ..study.study import Study, StudyEvent
 from ..engine.view import DataView
+from ..study.output_files import write_text_atomic
+from ..study.persistence import read_study_file
+from ..study.study import Study, StudyEvent
 from .atoms import MOVE_PREFIX, AtomTable, downdate, level_order, merge_atoms
 from .edits import (
     DropCell,

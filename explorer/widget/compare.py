@@ -11,8 +11,8 @@ import html
 from typing import Any
 
 from explorer.engine import Results
-from explorer.study import Study
 from explorer.engine.tables import fmt
+from explorer.study import Study
 
 __all__ = ["CAUTIONS_HTML", "comparison_html", "disclosure_html", "partition_html"]
 
