@@ -85,6 +85,8 @@ class CellFit:
     cell_fitted: np.ndarray
     cell_leverage: np.ndarray
     aliased: tuple[AliasedTerm, ...] = ()
+    #: Orthonormal bases of xw[:, cols] already computed, keyed by column indices (reused by ems.py).
+    bases: dict[tuple[int, ...], np.ndarray] | None = None
 
     @property
     def ms_resid(self) -> float:
@@ -98,18 +100,36 @@ class CellFit:
         return tuple(self.name(t) for t in self.terms)
 
 
-def _projector(xw: np.ndarray, zw: np.ndarray):
-    """Return ``fitted(cols)``: projection of ``zw`` on the span of ``xw[:, cols]`` (memoised)."""
+def _projector(xw: np.ndarray, zw: np.ndarray, bases: dict[tuple[int, ...], np.ndarray]):
+    """Return ``fitted(cols)``: projection of ``zw`` on the span of ``xw[:, cols]`` (memoised).
+
+    The orthonormal bases are kept in ``bases`` (keyed by the column indices), so that
+    later quadratic forms on the same model comparisons (expected mean squares) reuse them.
+    """
     cache: dict[tuple[int, ...], np.ndarray] = {}
 
     def fitted(cols: np.ndarray) -> np.ndarray:
         key = tuple(int(c) for c in cols)
         if key not in cache:
-            q, _ = np.linalg.qr(xw[:, cols])
+            if key not in bases:
+                bases[key] = np.linalg.qr(xw[:, cols])[0]
+            q = bases[key]
             cache[key] = q @ (q.T @ zw)
         return cache[key]
 
     return fitted
+
+
+def _orthogonal_terms(xw: np.ndarray, design: CellDesign, terms: Sequence[Term]) -> bool:
+    """True when, in the weighted cell space, each term's columns are orthogonal to the intercept
+    and to every other term's columns (then Types I, II and III coincide)."""
+    g = xw.T @ xw
+    scale = float(np.max(np.abs(np.diag(g)))) if g.size else 1.0
+    owner = np.zeros(g.shape[0], dtype=np.int64)
+    for i, t in enumerate(terms, start=1):
+        owner[design.slices[t]] = i
+    off = owner[:, None] != owner[None, :]
+    return bool(np.all(np.abs(g[off]) <= 1e-10 * scale))
 
 
 def model_comparisons(
@@ -202,8 +222,7 @@ def fit_cells(
             "or restore rows"
         )
 
-    fitted = _projector(xw, zw)
-    f_full = fitted(np.arange(p))
+    f_full = q @ (q.T @ zw)  # the pivoted QR spans the full model
     lof = float(np.sum((zw - f_full) ** 2))
     pure = float(np.sum(stats.m2))
     ss_between_cells = float(np.dot(n_c, zc * zc))
@@ -213,12 +232,25 @@ def fit_cells(
     ncols = {t: design.slices[t].stop - design.slices[t].start for t in terms}
 
     sequence = sequential_order(terms, spec.blocks)
-    for kind, pairs in model_comparisons(terms, sequence, nesting).items():
-        for t, (big_terms, small_terms) in pairs.items():
-            big = fitted(design.columns_of(big_terms))
-            small = fitted(design.columns_of(small_terms))
-            ss[kind][t] = float(np.sum((big - small) ** 2))
-            df[kind][t] = ncols[t]
+    bases: dict[tuple[int, ...], np.ndarray] = {}
+    if _orthogonal_terms(xw, design, terms):
+        # Every term's columns are orthogonal to the intercept and to every other term's (balanced
+        # data): each SS is the squared length of the data's projection on its own columns, and
+        # the three types coincide.
+        for t in terms:
+            qt = np.linalg.qr(xw[:, design.slices[t]])[0]
+            value = float(np.sum((qt.T @ zw) ** 2))
+            for kind in SS_TYPES:
+                ss[kind][t] = value
+                df[kind][t] = ncols[t]
+    else:
+        fitted = _projector(xw, zw, bases)
+        for kind, pairs in model_comparisons(terms, sequence, nesting).items():
+            for t, (big_terms, small_terms) in pairs.items():
+                big = fitted(design.columns_of(big_terms))
+                small = fitted(design.columns_of(small_terms))
+                ss[kind][t] = float(np.sum((big - small) ** 2))
+                df[kind][t] = ncols[t]
 
     rinv = np.linalg.solve(r, np.eye(p))  # R is small and well conditioned (pivoted)
     coef_p = rinv @ (q.T @ zw)
@@ -249,4 +281,5 @@ def fit_cells(
         cov_unscaled=cov,
         cell_fitted=cell_fitted,
         cell_leverage=leverage,
+        bases=bases,
     )

@@ -34,6 +34,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from itertools import combinations
 
 import numpy as np
 import pandas as pd
@@ -43,7 +44,7 @@ from .design import Term, term_columns
 from .spec import ModelSpec
 from .tables import fmt, html_table
 
-__all__ = ["ErrorTerm", "ExpectedMeanSquares", "error_terms", "expected_mean_squares", "is_random", "random_indicators"]
+__all__ = ["complete_balanced", "ErrorTerm", "ExpectedMeanSquares", "error_terms", "expected_mean_squares", "is_random", "random_indicators"]
 
 RESIDUAL = "residual"
 
@@ -158,68 +159,109 @@ def random_indicators(
     return out
 
 
+def complete_balanced(fit: CellFit, cell_levels: np.ndarray, columns: Sequence[str]) -> bool:
+    """True for a complete, equally replicated layout with a hierarchical term list.
+
+    Every cell holds the same count; every crossed column has all its levels with every
+    combination of the others, every nested column the same number of levels under each
+    combination of its parents (so the cells number the product of those counts); and
+    every term's marginal terms are in the model. Then the classic E(MS) rules hold.
+    """
+    n = fit.stats.n
+    if n.size == 0 or not bool(np.all(n == n[0])):
+        return False
+    nesting = fit.design.nesting or {}
+    pos = {c: i for i, c in enumerate(columns)}
+    expected = 1
+    for c in columns:
+        if c in nesting:
+            parents = [pos[p] for p in nesting[c]]
+            pairs = np.unique(cell_levels[:, parents + [pos[c]]], axis=0)
+            _, per = np.unique(pairs[:, :-1], axis=0, return_counts=True)
+            if not bool(np.all(per == per[0])):
+                return False
+            expected *= int(per[0])
+        else:
+            expected *= int(np.unique(cell_levels[:, pos[c]]).size)
+    if expected != n.size:
+        return False
+    present = {frozenset(t) for t in fit.terms}
+    for t in fit.terms:
+        for k in range(1, len(t)):
+            for sub in combinations(t, k):
+                crosses_parent = any(p in sub for c in sub for p in nesting.get(c, ()))
+                if not crosses_parent and frozenset(sub) not in present:
+                    return False
+    return True
+
+
 def expected_mean_squares(
     fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str], ss_type: str,
-    *, synthesis_only: bool = False,
+    *, synthesis_only: bool = False, indicators: list[tuple[Term, np.ndarray]] | None = None,
 ) -> ExpectedMeanSquares:
     """E(MS) of every term and the residual of ``fit`` for the ``ss_type`` sums of squares.
 
-    ``synthesis_only`` skips the exact counts of balanced data (for checking one against the other).
+    Complete balanced layouts (:func:`complete_balanced`) get the exact counts; any other
+    layout Hartley's synthesis. ``synthesis_only`` forces the synthesis (to check one
+    against the other); ``indicators`` reuses :func:`random_indicators`.
     """
     nesting = fit.design.nesting
     # components from the most specific (most columns) to the least, as E(MS) are usually written
-    indicators = random_indicators(fit, spec, cell_levels, columns)
+    if indicators is None:
+        indicators = random_indicators(fit, spec, cell_levels, columns)
     random_terms = [u for u, _ in indicators]
     n_c = fit.stats.n.astype(float)
-    w = np.sqrt(n_c)
-    xw = w[:, None] * fit.design.matrix
     n = float(n_c.sum())
-    b_mats, n_combos, equal = [], [], bool(np.all(fit.stats.n == fit.stats.n[0]))
-    for _, z in indicators:
-        b_mats.append(w[:, None] * z)
-        per = n_c @ z
-        equal = equal and bool(np.all(per == per[0]))
-        n_combos.append(z.shape[1])
-    comparisons = model_comparisons(fit.terms, fit.sequence, nesting)[ss_type]
-    cache: dict = {}
     rows = [fit.name(t) for t in fit.terms] + [RESIDUAL]
     comps = [fit.name(u) for u in random_terms] + [RESIDUAL]
-    synth = np.zeros((len(rows), len(comps)))
-    exact = np.zeros_like(synth)
+    fixed = tuple(not is_random(t, spec) for t in fit.terms) + (False,)
+    random_rows = tuple(is_random(t, spec) for t in fit.terms) + (True,)
+    coef = np.zeros((len(rows), len(comps)))
+    coef[:, -1] = 1.0
+    if not synthesis_only and complete_balanced(fit, cell_levels, columns):
+        for i, t in enumerate(fit.terms):
+            cols_t = term_columns(t, nesting)
+            for j, (u, z) in enumerate(indicators):
+                if cols_t <= term_columns(u, nesting):
+                    coef[i, j] = n / z.shape[1]
+        return ExpectedMeanSquares(rows=tuple(rows), components=tuple(comps), coefficients=coef, fixed=fixed,
+                                   random_rows=random_rows, method="balanced data: exact counts", ss_type=ss_type)
+    w = np.sqrt(n_c)
+    xw = w[:, None] * fit.design.matrix
+    b_mats = [w[:, None] * z for _, z in indicators]
+    comparisons = model_comparisons(fit.terms, fit.sequence, nesting)[ss_type]
+    cache: dict = fit.bases if fit.bases is not None else {}
     for i, t in enumerate(fit.terms):
         big, small = comparisons[t]
         qb = _basis(xw, fit.design.columns_of(big), cache)
         qs = _basis(xw, fit.design.columns_of(small), cache)
         df = fit.df[ss_type][t]
-        cols_t = term_columns(t, nesting)
-        for j, (u, b) in enumerate(zip(random_terms, b_mats)):
-            synth[i, j] = (np.sum((qb.T @ b) ** 2) - np.sum((qs.T @ b) ** 2)) / df
-            if cols_t <= term_columns(u, nesting):
-                exact[i, j] = n / n_combos[j]
-        synth[i, -1] = exact[i, -1] = 1.0
+        for j, b in enumerate(b_mats):
+            coef[i, j] = (np.sum((qb.T @ b) ** 2) - np.sum((qs.T @ b) ** 2)) / df
     q_full = _basis(xw, np.arange(fit.design.n_params), cache)
     for j, b in enumerate(b_mats):
         resid_b = b - q_full @ (q_full.T @ b)
-        synth[-1, j] = float(np.sum(resid_b**2)) / fit.df_resid
-    synth[-1, -1] = exact[-1, -1] = 1.0
-    scale = max(1.0, float(np.max(np.abs(exact))))
-    use_exact = not synthesis_only and equal and bool(np.all(np.abs(synth - exact) <= 1e-8 * scale))
-    fixed = tuple(not is_random(t, spec) for t in fit.terms) + (False,)
-    return ExpectedMeanSquares(
-        rows=tuple(rows), components=tuple(comps), coefficients=exact if use_exact else synth,
-        fixed=fixed, random_rows=tuple(is_random(t, spec) for t in fit.terms) + (True,),
-        method="balanced data: exact counts" if use_exact else "unbalanced data: Hartley's synthesis",
-        ss_type=ss_type,
-    )
+        coef[-1, j] = float(np.sum(resid_b**2)) / fit.df_resid
+    return ExpectedMeanSquares(rows=tuple(rows), components=tuple(comps), coefficients=coef, fixed=fixed,
+                               random_rows=random_rows, method="unbalanced data: Hartley's synthesis",
+                               ss_type=ss_type)
 
 
-def error_terms(
-    ems: ExpectedMeanSquares, mean_sq: dict[str, float], df: dict[str, float]
-) -> dict[str, ErrorTerm]:
-    """The denominator of each row's F test (see module docstring)."""
-    out: dict[str, ErrorTerm] = {}
+_DENOMINATORS: dict[tuple, tuple] = {}
+
+
+def _denominators(ems: ExpectedMeanSquares) -> tuple[tuple[tuple[tuple[str, float], ...], bool], ...]:
+    """For each term row: the (row, coefficient) parts of its error term and whether they match exactly.
+
+    Depends on the E(MS) coefficients only, so it is memoised (a balanced design keeps its
+    coefficients from one edit to the next).
+    """
     coef = ems.coefficients
+    key = (ems.rows, ems.components, ems.random_rows, coef.shape, coef.tobytes())
+    if key in _DENOMINATORS:
+        return _DENOMINATORS[key]
     comp_index = {c: j for j, c in enumerate(ems.components)}
+    out = []
     for i, row in enumerate(ems.rows[:-1]):
         target = coef[i].copy()
         if ems.random_rows[i]:
@@ -232,6 +274,19 @@ def error_terms(
         exact = fit_err <= 1e-8 * max(1.0, float(np.max(np.abs(target))))
         parts = tuple((ems.rows[k], float(cc)) for k, cc in zip(cands, c) if abs(cc) > 1e-10)
         parts = tuple((name, float(np.round(cc)) if abs(cc - np.round(cc)) < 1e-9 else cc) for name, cc in parts)
+        out.append((parts, exact))
+    if len(_DENOMINATORS) > 256:
+        _DENOMINATORS.clear()
+    _DENOMINATORS[key] = tuple(out)
+    return _DENOMINATORS[key]
+
+
+def error_terms(
+    ems: ExpectedMeanSquares, mean_sq: dict[str, float], df: dict[str, float]
+) -> dict[str, ErrorTerm]:
+    """The denominator of each row's F test (see module docstring)."""
+    out: dict[str, ErrorTerm] = {}
+    for row, (parts, exact) in zip(ems.rows[:-1], _denominators(ems)):
         if not parts:
             out[row] = ErrorTerm(parts=(), mean_sq=None, df=None, synthesized=False, exact=False)
             continue

@@ -28,11 +28,11 @@ from .design import fitted_terms
 from .design_checks import check_design
 from .design_layout import layout_notes
 from .distributions import f_sf, t_ppf
-from .ems import expected_mean_squares
+from .ems import ExpectedMeanSquares
 from .fitrows import RowSet, row_fit
 from .groupstats import GroupStats, group_stats, pool_groups
 from .marginal_means import MarginalMeans, marginal_means
-from .mixed_partition import mixed_partition
+from .mixed_partition import mixed_tables
 from .oneway import NOT_FINITE
 from .results import LevelTable, Results
 from .spec import ModelSpec
@@ -148,12 +148,17 @@ def factorial_tables(
     With random terms (``spec.is_mixed``; ``layout`` needed) each F is tested against its
     own error term (:mod:`.mixed_partition`).
     """
+    tables, _ = _tables_and_ems(fit, spec, layout)
+    return tables, _type_notes(tables, fit, balanced, spec.alpha)
+
+
+def _tables_and_ems(
+    fit: CellFit, spec: ModelSpec, layout: CellLayout | None
+) -> tuple[dict[str, AnovaTable], dict[str, ExpectedMeanSquares]]:
     zero = _zero_residual(fit)
     if spec.is_mixed and layout is not None:
-        tables = {k: mixed_partition(fit, spec, layout.cell_levels, layout.columns, k, zero)[0] for k in SS_TYPES}
-    else:
-        tables = {k: _partition(fit, k, zero) for k in SS_TYPES}
-    return tables, _type_notes(tables, fit, balanced, spec.alpha)
+        return mixed_tables(fit, spec, layout.cell_levels, layout.columns, zero)
+    return {k: _partition(fit, k, zero) for k in SS_TYPES}, {}
 
 
 def _level_table(gs: GroupStats, factor: str, ms_resid: float, df_resid: float, confidence: float) -> LevelTable:
@@ -266,14 +271,14 @@ def factorial_from_cells(
         notes.append(f"One observation per subject and cell: the residual is the {top} interaction.")
     fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec, terms=terms)
     cell_table = CellTable.from_stats(layout, cells, fit.cell_fitted)
-    tables, type_notes = factorial_tables(fit, spec, cell_table.balanced, layout)
+    tables, ems_by_type = _tables_and_ems(fit, spec, layout)
+    type_notes = _type_notes(tables, fit, cell_table.balanced, spec.alpha)
     notes += [a.sentence() for a in fit.aliased]
     notes += type_notes
     table = tables[spec.ss_type]
     zero = table.row("residual").mean_sq == 0.0
     ms_e = 0.0 if zero else fit.ms_resid
-    ems = (expected_mean_squares(fit, spec, layout.cell_levels, layout.columns, spec.ss_type)
-           if spec.is_mixed else None)
+    ems = ems_by_type.get(spec.ss_type)
 
     levels: dict[str, LevelTable] = {}
     means: dict[str, MarginalMeans] = {}

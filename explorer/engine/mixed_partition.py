@@ -15,16 +15,26 @@ Satterthwaite, F. E. (1946). Biometrics Bulletin 2, 110-114.
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import replace
 
 import numpy as np
 
 from .cellfit import CellFit
 from .distributions import f_sf
-from .ems import RESIDUAL, ErrorTerm, ExpectedMeanSquares, error_terms, expected_mean_squares
+from .cellfit import SS_TYPES
+from .ems import (
+    RESIDUAL,
+    ErrorTerm,
+    ExpectedMeanSquares,
+    complete_balanced,
+    error_terms,
+    expected_mean_squares,
+    random_indicators,
+)
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow
 
-__all__ = ["mixed_partition"]
+__all__ = ["mixed_partition", "mixed_tables"]
 
 CODING = "sum-to-zero"
 
@@ -56,11 +66,34 @@ def _notes(ems: ExpectedMeanSquares, errors: dict[str, ErrorTerm]) -> list[str]:
     return notes
 
 
+def mixed_tables(
+    fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str], zero_resid: bool
+) -> tuple[dict[str, AnovaTable], dict[str, ExpectedMeanSquares]]:
+    """The partition and E(MS) for each SS type; complete balanced layouts are computed once
+    (the three types coincide there)."""
+    indicators = random_indicators(fit, spec, cell_levels, columns)
+    tables: dict[str, AnovaTable] = {}
+    ems_by_type: dict[str, ExpectedMeanSquares] = {}
+    if complete_balanced(fit, cell_levels, columns):
+        ems = expected_mean_squares(fit, spec, cell_levels, columns, "I", indicators=indicators)
+        table, _, _ = mixed_partition(fit, spec, cell_levels, columns, "I", zero_resid, ems=ems)
+        for k in SS_TYPES:
+            ems_by_type[k] = replace(ems, ss_type=k)
+            tables[k] = replace(table, ss_type=k) if k != "I" else table
+        return tables, ems_by_type
+    for k in SS_TYPES:
+        ems_by_type[k] = expected_mean_squares(fit, spec, cell_levels, columns, k, indicators=indicators)
+        tables[k] = mixed_partition(fit, spec, cell_levels, columns, k, zero_resid, ems=ems_by_type[k])[0]
+    return tables, ems_by_type
+
+
 def mixed_partition(
-    fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str], ss_type: str, zero_resid: bool
+    fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str], ss_type: str, zero_resid: bool,
+    *, ems: ExpectedMeanSquares | None = None,
 ) -> tuple[AnovaTable, ExpectedMeanSquares, dict[str, ErrorTerm]]:
     """The partition with each F against its error term, the E(MS) table and the error terms."""
-    ems = expected_mean_squares(fit, spec, cell_levels, columns, ss_type)
+    if ems is None:
+        ems = expected_mean_squares(fit, spec, cell_levels, columns, ss_type)
     names = [fit.name(t) for t in fit.terms]
     ms = {name: fit.ss[ss_type][t] / fit.df[ss_type][t] for name, t in zip(names, fit.terms)}
     ms[RESIDUAL] = fit.ss_resid / fit.df_resid

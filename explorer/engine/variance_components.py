@@ -162,10 +162,26 @@ def _negative_notes(names: list[str], estimates: list[float]) -> list[str]:
     return [f"Negative estimate for {', '.join(neg)}. {NEGATIVE_RULE}"] if neg else []
 
 
+_INVERSES: dict[bytes, tuple[np.ndarray, np.ndarray] | None] = {}
+
+
 def _exact_inverse(a: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
-    """Rows of a^-1 as integer numerators over one denominator per row, when ``a`` is an integer matrix."""
+    """Rows of a^-1 as integer numerators over one denominator per row, when ``a`` is an integer matrix.
+
+    Memoised on the matrix (a balanced design's counts repeat from one edit to the next).
+    """
     if a.shape[0] != a.shape[1] or not np.all(a == np.round(a)) or a.shape[0] > 40:
         return None
+    key = a.shape[0].to_bytes(2, "little") + np.ascontiguousarray(a, dtype=np.float64).tobytes()
+    if key not in _INVERSES:
+        if len(_INVERSES) > 256:
+            _INVERSES.clear()
+        _INVERSES[key] = _rational_inverse(a)
+    return _INVERSES[key]
+
+
+def _rational_inverse(a: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """Gauss-Jordan elimination in exact rationals."""
     k = a.shape[0]
     m = [[Fraction(int(v)) for v in row] + [Fraction(int(i == j)) for j in range(k)] for i, row in enumerate(a)]
     for col in range(k):  # Gauss-Jordan in exact rationals
@@ -257,6 +273,7 @@ def reml_components(
 def estimate_components(
     fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: tuple[str, ...],
     ems: ExpectedMeanSquares, table: AnovaTable, confidence: float = 0.95,
+    indicators: list | None = None,
 ) -> VarianceComponents | None:
     """The variance components of ``fit`` by ``spec.variance_method`` (``None`` without random terms).
 
@@ -271,7 +288,8 @@ def estimate_components(
             return replace(moments, notes=moments.notes + (
                 "Balanced data: moment estimates (equal to REML when none is negative).",))
         return moments
-    indicators = random_indicators(fit, spec, cell_levels, columns)
+    if indicators is None:
+        indicators = random_indicators(fit, spec, cell_levels, columns)
     fixed = [t for t in fit.terms if not is_random(t, spec)]
     x = fit.design.matrix[:, fit.design.columns_of(fixed)]
     resid = moments.component(RESIDUAL).estimate

@@ -1,0 +1,198 @@
+"""Benchmark: edit + recompute of random-factor designs, against statsmodels in the same run.
+
+Cases (median wall time of one edit + recompute; every figure from its own process):
+  msa-balanced     10 parts x 3 operators x 3 repeats. Ours: drop (or restore) a whole
+                   part - the design stays balanced, closed-form moment estimates -
+                   + study.results + study.measurement_system(). Reference:
+                   statsmodels ols + anova_lm on the edited table + the balanced
+                   variance-component algebra by hand (the cheapest statsmodels route).
+  msa-balanced-vs-mixedlm  the same edit of ours; reference: statsmodels MixedLM REML
+                   (part, operator and part x operator as variance components, one group)
+                   on the edited balanced table - statsmodels' route to variance components
+                   with a likelihood fit.
+  msa-unbalanced   the same study, one row dropped or restored (unbalanced: REML).
+                   Reference: statsmodels MixedLM REML with part and operator as
+                   variance components (one group).
+  random-intercept 1e4 rows, 200 subjects of unequal size, a fixed 3-level factor.
+                   Ours: drop or restore one row + study.results (REML). Reference:
+                   statsmodels MixedLM("y ~ C(dose)", groups=subject).fit(reml=True).
+Each reference runs pinned to one BLAS thread (OPENBLAS/OMP/MKL_NUM_THREADS=1) and
+again with the default threads; ours runs pinned to one thread. Rounds are
+interleaved (ours, reference 1 thread, reference default, ours, ...); the script prints
+the median over rounds, each process's peak resident memory, and the load average
+before and after. Targets: balanced (closed form) reference/ours >= 20; random-intercept
+reference/ours >= 1.
+
+Run: python tests/benchmarks/bench_mixed.py [--rounds 5] [--repeats 9]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import statistics
+import subprocess
+import sys
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from bench_support import median_time
+
+HERE = Path(__file__).resolve().parent
+THREAD_VARS = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def gauge_table(parts: int = 10, operators: int = 3, reps: int = 3, seed: int = 0) -> pd.DataFrame:
+    """Invented measurement study (parts x operators x repeats)."""
+    rng = np.random.default_rng(seed)
+    p_eff, o_eff = rng.normal(scale=2.0, size=parts), rng.normal(scale=0.5, size=operators)
+    po = rng.normal(scale=0.3, size=(parts, operators))
+    rows = [(f"P{p:02d}", f"O{o}", 50 + p_eff[p] + o_eff[o] + po[p, o] + rng.normal(scale=0.4))
+            for p in range(parts) for o in range(operators) for _ in range(reps)]
+    return pd.DataFrame(rows, columns=["part", "operator", "y"])
+
+
+def intercept_table(n: int = 10_000, subjects: int = 200, seed: int = 0) -> pd.DataFrame:
+    """Invented random-intercept data: subjects of unequal size, a fixed three-level dose."""
+    rng = np.random.default_rng(seed)
+    sizes = rng.multinomial(n - subjects, np.full(subjects, 1 / subjects)) + 1
+    subj = np.repeat(np.arange(subjects), sizes)
+    dose = rng.choice(["low", "mid", "high"], n)
+    u = rng.normal(scale=1.5, size=subjects)
+    y = 20 + u[subj] + (dose == "mid") * 0.4 + (dose == "high") * 0.9 + rng.normal(size=n)
+    return pd.DataFrame({"subject": [f"s{s:03d}" for s in subj], "dose": dose, "y": y})
+
+
+def _ours(case: str):
+    import explorer as ex
+
+    if case.startswith("msa"):
+        balanced = case.startswith("msa-balanced")
+        frame = gauge_table()
+        study = ex.Study(frame, "y", ["part", "operator"], random=["part", "operator"])
+        state = {"i": 0}
+
+        def step():
+            i = state["i"]
+            if balanced:
+                part = f"P{(i // 2) % 10:02d}"
+                (study.drop_unit if i % 2 == 0 else study.restore_unit)("part", part, reason="bench")
+            else:
+                row = (i // 2) % 50
+                (study.drop if i % 2 == 0 else study.restore)([row], reason="bench")
+            state["i"] += 1
+            study.results
+            return study.measurement_system("part", "operator")
+
+        return step
+    frame = intercept_table()
+    study = ex.Study(frame, "y", ["dose", "subject"], random=["subject"], interactions=False)
+    state = {"i": 0}
+
+    def step():
+        i = state["i"]
+        row = (i // 2) % 50
+        (study.drop if i % 2 == 0 else study.restore)([row], reason="bench")
+        state["i"] += 1
+        return study.results.variance_components
+
+    return step
+
+
+def _reference(case: str):
+    import statsmodels.formula.api as smf
+    from statsmodels.stats.anova import anova_lm
+
+    warnings.simplefilter("ignore")
+    if case == "msa-balanced":
+        edited = gauge_table()
+        edited = edited[edited.part != "P03"]
+
+        def step():
+            t = anova_lm(smf.ols("y ~ C(part) * C(operator)", data=edited).fit(), typ=1)
+            ms = t.sum_sq / t.df
+            r, o, p = 3, 3, 9
+            return {"part": (ms["C(part)"] - ms["C(part):C(operator)"]) / (o * r),
+                    "operator": (ms["C(operator)"] - ms["C(part):C(operator)"]) / (p * r),
+                    "part x operator": (ms["C(part):C(operator)"] - ms["Residual"]) / r, "residual": ms["Residual"]}
+
+        return step
+    if case in ("msa-unbalanced", "msa-balanced-vs-mixedlm"):
+        edited = gauge_table()
+        edited = (edited.drop(index=[7]) if case == "msa-unbalanced" else edited[edited.part != "P03"]).assign(one=1)
+
+        def step():
+            m = smf.mixedlm("y ~ 1", edited, groups="one", re_formula="0",
+                            vc_formula={"part": "0 + C(part)", "operator": "0 + C(operator)",
+                                        "po": "0 + C(part):C(operator)"})
+            return m.fit(reml=True)
+
+        return step
+    edited = intercept_table().drop(index=[7])
+
+    def step():
+        return smf.mixedlm("y ~ C(dose)", edited, groups="subject").fit(reml=True)
+
+    return step
+
+
+def worker(case: str, side: str, repeats: int) -> None:
+    fn = _ours(case) if side == "ours" else _reference(case)
+    fn()  # warm
+    t = median_time(fn, repeats)
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024  # MiB on Linux
+    print(json.dumps({"seconds": t, "peak_mib": peak}))
+
+
+def _run(case: str, side: str, threads: str, repeats: int) -> dict:
+    env = dict(os.environ)
+    if threads == "1":
+        env.update({v: "1" for v in THREAD_VARS})
+    else:
+        for v in THREAD_VARS:
+            env.pop(v, None)
+    out = subprocess.run([sys.executable, __file__, "--worker", case, side, str(repeats)], env=env,
+                         capture_output=True, text=True, check=True)
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--rounds", type=int, default=5)
+    ap.add_argument("--repeats", type=int, default=9)
+    ap.add_argument("--cases", default="msa-balanced,msa-balanced-vs-mixedlm,msa-unbalanced,random-intercept")
+    ap.add_argument("--worker", nargs=3, metavar=("CASE", "SIDE", "REPEATS"))
+    args = ap.parse_args()
+    if args.worker:
+        worker(args.worker[0], args.worker[1], int(args.worker[2]))
+        return
+    print(f"load average before: {os.getloadavg()}")
+    rows = []
+    for case in args.cases.split(","):
+        ref_repeats = max(3, args.repeats // 3) if case != "msa-balanced" else args.repeats
+        runs: dict[str, list[dict]] = {"ours": [], "ref1": [], "refdef": []}
+        for _ in range(args.rounds):
+            runs["ours"].append(_run(case, "ours", "1", args.repeats))
+            runs["ref1"].append(_run(case, "reference", "1", ref_repeats))
+            runs["refdef"].append(_run(case, "reference", "default", ref_repeats))
+        med = {k: statistics.median(r["seconds"] for r in v) for k, v in runs.items()}
+        mem = {k: max(r["peak_mib"] for r in v) for k, v in runs.items()}
+        rows.append({
+            "case": case, "ours ms": med["ours"] * 1e3,
+            "statsmodels ms (1 thread)": med["ref1"] * 1e3, "statsmodels ms (default threads)": med["refdef"] * 1e3,
+            "ratio (1 thread)": med["ref1"] / med["ours"], "ratio (default threads)": med["refdef"] / med["ours"],
+            "ours peak MiB": mem["ours"], "statsmodels peak MiB": mem["ref1"],
+        })
+    pd.set_option("display.width", 200)
+    print(pd.DataFrame(rows).to_string(index=False, float_format=lambda x: f"{x:,.2f}"))
+    print(f"load average after: {os.getloadavg()}")
+    print("medians over interleaved rounds; each figure from a fresh process (peak memory includes imports); "
+          "ratio > 1: we are faster")
+
+
+if __name__ == "__main__":
+    main()
