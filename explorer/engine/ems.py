@@ -44,7 +44,10 @@ from .design import Term, term_columns
 from .spec import ModelSpec
 from .tables import fmt, html_table
 
-__all__ = ["complete_balanced", "ErrorTerm", "ExpectedMeanSquares", "error_terms", "expected_mean_squares", "is_random", "random_indicators"]
+__all__ = [
+    "complete_balanced", "ErrorTerm", "ExpectedMeanSquares", "error_terms", "expected_mean_squares", "is_random",
+    "random_indicators",
+]
 
 RESIDUAL = "residual"
 

@@ -19,9 +19,8 @@ from dataclasses import replace
 
 import numpy as np
 
-from .cellfit import CellFit
+from .cellfit import SS_TYPES, CellFit
 from .distributions import f_sf
-from .cellfit import SS_TYPES
 from .ems import (
     RESIDUAL,
     ErrorTerm,

@@ -85,7 +85,7 @@ def _ours(case: str):
                 row = (i // 2) % 50
                 (study.drop if i % 2 == 0 else study.restore)([row], reason="bench")
             state["i"] += 1
-            study.results
+            _ = study.results
             return study.measurement_system("part", "operator")
 
         return step
