@@ -40,10 +40,23 @@ def noncentrality_interval(f_obs: float, df1: float, df2: float, confidence: flo
     def solve(target: float) -> float:
         if cdf(0.0) <= target:
             return 0.0
-        hi = max(1.0, f_obs * df1 * 2)
-        while cdf(hi) > target:
-            hi *= 2
-        return float(optimize.brentq(lambda lam: cdf(lam) - target, 0.0, hi, xtol=1e-10, rtol=1e-12))
+        # Bracket the root by doubling from 1, so both ends stay near it: far beyond the root the
+        # noncentral F cdf underflows into its least accurate range (scipy's ncfdtr then returns
+        # non-monotone values or NaN, e.g. df 1499 and 19500 with lambda near 3000).
+        lo, hi = 0.0, 1.0
+        while True:
+            value = cdf(hi)
+            if not np.isfinite(value):
+                raise ExplorerError(
+                    f"the noncentral F distribution (df {df1:g} and {df2:g}) could not be evaluated at "
+                    f"noncentrality {hi:.6g}; no interval"
+                )
+            if value <= target:
+                break
+            if hi > 1e15:
+                raise ExplorerError(f"no noncentrality up to 1e15 puts F = {f_obs:.6g} in the interval's tail; no interval")
+            lo, hi = hi, hi * 2
+        return float(optimize.brentq(lambda lam: cdf(lam) - target, lo, hi, xtol=1e-10, rtol=1e-12))
 
     return solve(lower_p), solve(upper_p)
 

@@ -31,6 +31,8 @@ from functools import lru_cache
 import numpy as np
 from scipy import special
 
+from .errors import ExplorerError
+
 __all__ = ["srange_cdf", "srange_ppf", "srange_sf"]
 
 _LOG_CUTOFF = 40.0  # outer grid spans log-density within e^-40 of its peak
@@ -114,14 +116,8 @@ def _outer_grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return hit
 
 
-def _grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Nodes ``s`` (shape (len(df), M)) and normalised weights of ``S = sqrt(chi2_nu / nu)``.
-
-    Trapezoidal rule in ``t = log s`` over the span where the log-density is within
-    e^-40 of its peak; weights are normalised to sum to one. Infinite df gives the
-    single node ``s = 1``.
-    """
-    df = np.asarray(df, dtype=float)
+def _span(df: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, int]:
+    """Finite mask, df used, ends of the span in log s, and the number of nodes M for ``df``."""
     finite = np.isfinite(df)
     nu = np.where(finite, df, 1.0)
     a = np.sqrt(_LOG_CUTOFF / nu)
@@ -130,6 +126,20 @@ def _grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     sigma = 1 / np.sqrt(2 * nu)
     h_want = np.minimum(0.5 * sigma, 0.15)
     m = int(np.clip(np.max(np.ceil((t_hi - t_lo) / h_want)) + 1, 9, 600)) if finite.any() else 1
+    return finite, nu, t_lo, t_hi, m
+
+
+def _grid(df: np.ndarray, nodes: int | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Nodes ``s`` (shape (len(df), M)) and normalised weights of ``S = sqrt(chi2_nu / nu)``.
+
+    Trapezoidal rule in ``t = log s`` over the span where the log-density is within
+    e^-40 of its peak; weights are normalised to sum to one. Infinite df gives the
+    single node ``s = 1``. ``nodes`` sets M (blocks of one batch share the batch's M, so
+    a result does not depend on how the batch was cut).
+    """
+    df = np.asarray(df, dtype=float)
+    finite, nu, t_lo, t_hi, m = _span(df)
+    m = m if nodes is None else nodes  # a block of a larger batch uses the batch's node count
     x = np.linspace(0.0, 1.0, m)
     t = t_lo[:, None] + (t_hi - t_lo)[:, None] * x[None, :]
     logg = nu[:, None] * t - 0.5 * nu[:, None] * np.exp(2 * t)
@@ -148,22 +158,51 @@ def _grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return s, w
 
 
+#: Points x nodes evaluated at once: bounds the working memory (about 30 arrays of this many floats,
+#: ~60 MiB) whatever the number of comparisons; a 2,000-level table has 2e6 pairs.
+_BLOCK_CELLS = 1 << 18
+
+
+def _blocks(n: int, nodes: int) -> list[slice]:
+    rows = max(1, _BLOCK_CELLS // max(nodes, 1))
+    return [slice(i, min(i + rows, n)) for i in range(0, n, rows)]
+
+
 def _sf_pdf(q: np.ndarray, k: int, df: np.ndarray, grid: tuple[np.ndarray, np.ndarray] | None = None
             ) -> tuple[np.ndarray, np.ndarray]:
-    """Upper tail and density of Q at ``q`` (1-d arrays of equal length, or broadcastable)."""
+    """Upper tail and density of Q at ``q`` (1-d arrays of equal length, or broadcastable).
+
+    ``grid`` (nodes and weights per point) may be passed when it is already known. Points
+    are taken in blocks (:data:`_BLOCK_CELLS`); one df for every point shares one grid row.
+    """
     q, df = np.broadcast_arrays(np.asarray(q, dtype=float), np.asarray(df, dtype=float))
     shape = q.shape
     qf, dff = q.ravel(), df.ravel()
-    s, wts = _outer_grid(dff) if grid is None else grid
-    sf, pdf = _range_sf_pdf(qf[:, None] * s, k)
-    out_sf = np.einsum("ij,ij->i", sf, wts).reshape(shape)
-    out_pdf = np.einsum("ij,ij->i", pdf * s, wts).reshape(shape)
-    return out_sf, out_pdf
+    out_sf = np.empty(qf.size)
+    out_pdf = np.empty(qf.size)
+    one_df = qf.size > 0 and grid is None and bool(np.all(dff == dff[0]))
+    if one_df:
+        s1, w1 = _outer_grid(dff[:1])
+        nodes = s1.shape[1]
+    else:
+        nodes = grid[0].shape[1] if grid is not None else (_span(dff)[4] if dff.size else 1)
+    small = grid is None and not one_df and qf.size * nodes <= _BLOCK_CELLS
+    for block in _blocks(qf.size, nodes):
+        if one_df:
+            s, wts = s1, w1
+        elif grid is not None:
+            s, wts = grid[0][block], grid[1][block]
+        else:
+            s, wts = _outer_grid(dff[block]) if small else _grid(dff[block], nodes)
+        sf, pdf = _range_sf_pdf(qf[block, None] * s, k)
+        out_sf[block] = (sf * wts).sum(axis=1)
+        out_pdf[block] = (pdf * s * wts).sum(axis=1)
+    return out_sf.reshape(shape), out_pdf.reshape(shape)
 
 
 def _check(k: int) -> int:
-    if int(k) != k or k < 2:
-        raise ValueError(f"the number of means k must be an integer of at least 2, not {k!r}")
+    if isinstance(k, bool) or not isinstance(k, (int, np.integer, float)) or int(k) != k or k < 2:
+        raise ExplorerError(f"the number of means k must be an integer of at least 2, not {k!r}")
     return int(k)
 
 
@@ -180,13 +219,22 @@ def srange_cdf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndar
     return 1.0 - srange_sf(q, k, df)
 
 
-def _newton_from_left(p: float, k: int, df: np.ndarray, q: np.ndarray, tol: float) -> np.ndarray:
+def _newton_from_left(p: float, k: int, df: np.ndarray, q: np.ndarray, tol: float,
+                      m_nodes: int | None = None) -> np.ndarray:
     """Solve ``P(Q > q) = 1 - p`` by Newton steps from a point at or left of the root.
 
     In the upper tail ``1 - p - sf(q)`` is increasing and concave, so Newton iterates
     started on the left stay on the left and increase monotonically to the root.
+    Many df are solved in blocks, each with its own grid (of the batch's node count
+    ``m_nodes``), so memory stays bounded.
     """
-    grid = _outer_grid(df)
+    nodes = m_nodes if m_nodes is not None else _span(df)[4]
+    if df.size * nodes > _BLOCK_CELLS:
+        out = np.empty(df.size)
+        for block in _blocks(df.size, nodes):
+            out[block] = _newton_from_left(p, k, df[block], q[block], tol, nodes)
+        return out
+    grid = _outer_grid(df) if m_nodes is None else _grid(df, m_nodes)
     for _ in range(100):
         sf, pdf = _sf_pdf(q, k, df, grid)
         f = (1 - p) - sf
@@ -225,7 +273,7 @@ def srange_ppf(p: float, k: int, df: np.ndarray | float, *, tol: float = 1e-12) 
     """
     k = _check(k)
     if not 0.5 <= p < 1:
-        raise ValueError(f"probability must be in [0.5, 1) for studentized-range quantiles, not {p!r}")
+        raise ExplorerError(f"probability must be in [0.5, 1) for studentized-range quantiles, not {p!r}")
     df = np.atleast_1d(np.asarray(df, dtype=float))
     q0 = _ppf_infinite_df(float(p), k)
     if np.all(np.isinf(df)):

@@ -43,12 +43,21 @@ def fmt(x: Any, digits: int = 6) -> str:
     return f"{xf:.{digits}g}"
 
 
+#: Rows an HTML table shows at most (the rest stay in the value's ``to_frame()``).
+MAX_HTML_ROWS = 500
+
+
 def html_table(frame: pd.DataFrame, caption: str = "", notes: tuple[str, ...] = (), digits: int = 6) -> str:
     """A small self-contained HTML table (no styling framework needed).
 
     Each cell carries its column heading (``data-label``) and the table its column count
-    (``vx-cols-N``), so a narrow page can stack a row into "heading: value" lines.
+    (``vx-cols-N``), so a narrow page can stack a row into "heading: value" lines. At most
+    :data:`MAX_HTML_ROWS` rows are shown, with a note saying how many there are.
     """
+    if len(frame) > MAX_HTML_ROWS:
+        notes = (f"Showing the first {MAX_HTML_ROWS:,} of {len(frame):,} rows; the whole table is in to_frame().",
+                 *notes)
+        frame = frame.iloc[:MAX_HTML_ROWS]
     labels = [html.escape(str(c)) for c in frame.columns]
     head = "".join(f"<th>{c}</th>" for c in labels)
     body = []

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import html
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
 import numpy as np
 import pandas as pd
@@ -31,6 +31,7 @@ from .assumptions import (
     shapiro_residuals,
 )
 from .comparisons import (
+    MAX_DUNNETT,
     Alternative,
     PairwiseTable,
     dunnett,
@@ -39,6 +40,7 @@ from .comparisons import (
     tukey,
 )
 from .effect_sizes import EffectSizes, effect_sizes
+from .letters import MAX_LEVELS as MAX_LETTER_LEVELS
 from .letters import LetterDisplay, compact_letters
 from .omnibus import (
     OmnibusTest,
@@ -48,6 +50,7 @@ from .omnibus import (
     permutation_f,
     welch_f,
 )
+from .on_demand import OnDemand, resolve
 from .outliers import (
     OutlierScreen,
     bonferroni_outlier_test,
@@ -59,7 +62,75 @@ from .power import PowerPlan, power_plan
 if TYPE_CHECKING:
     from ..engine.results import Results
 
-__all__ = ["Battery", "run_battery"]
+__all__ = ["EAGER_PAIRS", "Battery", "comparison_parts", "run_battery"]
+
+#: Comparison tables with more pairs than this (about 200 levels) are computed when first read.
+EAGER_PAIRS = 20_000
+_PAIRWISE = ("tukey", "games_howell", "pairwise_t")
+
+
+def _letters_not_built(results: Results, why: str, alpha: float) -> LetterDisplay:
+    gs = results.groups
+    order = np.argsort(-np.asarray(gs.original_means), kind="stable")
+    return LetterDisplay(labels=tuple(gs.labels[i] for i in order), estimates=np.asarray(gs.original_means)[order],
+                         letters=tuple("" for _ in order), method="none", alpha=alpha,
+                         notes=(f"No letters: {why}.",))
+
+
+def comparison_parts(
+    results: Results,
+    *,
+    confidence: float,
+    pairwise_adjust: str,
+    letters_from: str,
+    alpha: float,
+    control: str | None,
+    dunnett_alternative: Alternative,
+) -> dict[str, Any]:
+    """The battery's comparison tables, letters and Dunnett table, each bounded in memory and time.
+
+    Above :data:`EAGER_PAIRS` pairs the three all-pairs tables are :class:`OnDemand`
+    (computed when first read); letters stop at :data:`letters.MAX_LEVELS` levels or
+    when the display would need too many letters; Dunnett's table at
+    :data:`comparisons.MAX_DUNNETT` comparisons. Each limit reached adds a note.
+    """
+    k = results.groups.k
+    pairs = k * (k - 1) // 2
+    notes: list[str] = []
+    makers = {
+        "tukey": ("Tukey-Kramer", lambda: tukey(results, confidence=confidence)),
+        "games_howell": ("Games-Howell", lambda: games_howell(results, confidence=confidence)),
+        "pairwise_t": ("pairwise t", lambda: pairwise_t(results, adjust=pairwise_adjust,  # type: ignore[arg-type]
+                                                         confidence=confidence)),
+    }
+    tables: dict[str, Any] = {}
+    for name, (what, make) in makers.items():
+        tables[name] = make() if pairs <= EAGER_PAIRS else OnDemand(what, pairs, make)
+    if pairs > EAGER_PAIRS:
+        notes.append(
+            f"With {k:,} levels each table of all pairs holds {pairs:,} comparisons: the Tukey-Kramer, Games-Howell "
+            "and pairwise t tables are computed when first read (battery.tukey, ...), Games-Howell can take "
+            "minutes at this size; displays show the first rows."
+        )
+    letters: LetterDisplay | None = None
+    if k > MAX_LETTER_LEVELS:
+        why = f"letters are built for at most {MAX_LETTER_LEVELS} levels, this view has {k:,}"
+    else:
+        try:
+            letters = compact_letters(resolve(tables[letters_from.replace("-", "_")]), alpha=alpha)
+        except ExplorerError as exc:
+            why = str(exc)
+    if letters is None:
+        letters = _letters_not_built(results, why, alpha)
+        notes.append(f"No letters: {why}.")
+    dun = None
+    if control is not None:
+        if k - 1 > MAX_DUNNETT and str(control) in results.groups.labels:
+            notes.append(f"No Dunnett table: it is computed for at most {MAX_DUNNETT} comparisons with the control, "
+                         f"this view has {k - 1:,}.")
+        else:  # an unknown control is the caller's mistake: refused
+            dun = dunnett(results, control, alternative=dunnett_alternative, confidence=confidence)
+    return {**tables, "dunnett": dun, "letters": letters, "notes": notes}
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -76,9 +147,9 @@ class Battery:
     bartlett: CheckResult
     shapiro: CheckResult
     recommendation: Recommendation
-    tukey: PairwiseTable
-    games_howell: PairwiseTable
-    pairwise_t: PairwiseTable
+    tukey: PairwiseTable = field(repr=False)  # computed when first read above EAGER_PAIRS pairs (see OnDemand)
+    games_howell: PairwiseTable = field(repr=False)
+    pairwise_t: PairwiseTable = field(repr=False)
     dunnett: PairwiseTable | None
     letters: LetterDisplay
     effect_sizes: EffectSizes | None
@@ -88,6 +159,15 @@ class Battery:
     robust_z: OutlierScreen
     options: tuple[tuple[str, object], ...] = ()
     notes: tuple[str, ...] = field(default=())
+
+    def __getattribute__(self, name: str) -> Any:
+        return resolve(object.__getattribute__(self, name))
+
+    @property
+    def deferred(self) -> tuple[str, ...]:
+        """Comparison tables not computed yet (large families are computed when first read)."""
+        return tuple(n for n in _PAIRWISE if isinstance(object.__getattribute__(self, n), OnDemand)
+                     and not object.__getattribute__(self, n).ready)
 
     @property
     def omnibus(self) -> tuple[OmnibusTest, ...]:
@@ -132,8 +212,14 @@ class Battery:
             html_table(self.checks_frame(), "Assumption checks"),
             self.recommendation._repr_html_(),
         ]
-        for t in self.comparisons:
-            parts.append(t._repr_html_())
+        waiting = self.deferred
+        for name in (*_PAIRWISE, "dunnett"):
+            if name in waiting:
+                part = object.__getattribute__(self, name)
+                parts.append(f"<div class='vx-small'>{html.escape(part.what)}: {part.size:,} comparisons, computed "
+                             f"when first read (battery.{name}).</div>")
+            elif getattr(self, name) is not None:
+                parts.append(getattr(self, name)._repr_html_())
         parts.append(self.letters._repr_html_())
         if self.effect_sizes is not None:
             parts.append(self.effect_sizes._repr_html_())
@@ -196,12 +282,12 @@ def run_battery(
     confidence = 1 - a if confidence is None else float(confidence)
     spread = levene(results, center=levene_center)
     normal = shapiro_residuals(results)
-    tk = tukey(results, confidence=confidence)
-    gh = games_howell(results, confidence=confidence)
-    pt = pairwise_t(results, adjust=pairwise_adjust, confidence=confidence)
-    source = {"tukey": tk, "games-howell": gh, "pairwise-t": pt}[letters_from]
     n = results.groups.n
     notes: list[str] = []
+    compared = comparison_parts(results, confidence=confidence, pairwise_adjust=pairwise_adjust,
+                                letters_from=letters_from, alpha=a, control=control,
+                                dunnett_alternative=dunnett_alternative)
+    notes.extend(compared.pop("notes"))
     if not np.all(n == n[0]):
         notes.append(
             f"Group sizes are unequal ({int(n.min())} to {int(n.max())}): the same tests are reported as for equal "
@@ -237,12 +323,7 @@ def run_battery(
         bartlett=bartlett(results),
         shapiro=normal,
         recommendation=recommend(results, spread, normal, alpha=a),
-        tukey=tk,
-        games_howell=gh,
-        pairwise_t=pt,
-        dunnett=dunnett(results, control, alternative=dunnett_alternative, confidence=confidence)
-        if control is not None else None,
-        letters=compact_letters(source, alpha=a),
+        **compared,
         effect_sizes=sizes,
         power=plan,
         studentized=bonferroni_outlier_test(results, alpha=a),

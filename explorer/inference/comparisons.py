@@ -48,6 +48,9 @@ __all__ = [
 ]
 
 Alternative = Literal["two-sided", "greater", "less"]
+
+#: Dunnett's p-values and quantile are computed for at most this many comparisons with the control.
+MAX_DUNNETT = 100
 Adjustment = Literal["holm", "bonferroni", "none"]
 
 
@@ -211,17 +214,21 @@ def _dunnett_exceed(c: float, lam: np.ndarray, df: float, alternative: str) -> f
     s = s[0]
     w = w[0]
     root = np.sqrt(1 - lam * lam)
-    cs = c * s[:, None, None]  # (S, 1, 1)
     lz = lam[None, :, None] * _DZ[None, None, :]  # (1, m, Z)
     r = root[None, :, None]
-    upper = special.ndtr((lz - cs) / r)  # P(Z_i > c s | z)
-    if alternative == "two-sided":
-        a = upper + special.ndtr((-lz - cs) / r)  # + P(Z_i < -c s | z)
-    else:
-        a = upper
-    a = np.clip(a, 0.0, 1.0)
-    with np.errstate(divide="ignore"):
-        tail = -np.expm1(np.log1p(-a).sum(axis=1))  # (S, Z)
+    log_none = np.empty((s.size, _DZ.size))  # log P(no comparison exceeds | s, z)
+    step = max(1, (1 << 18) // max(lam.size * _DZ.size, 1))  # nodes per block: bounded memory
+    for start in range(0, s.size, step):
+        cs = c * s[start:start + step, None, None]  # (S_block, 1, 1)
+        upper = special.ndtr((lz - cs) / r)  # P(Z_i > c s | z)
+        if alternative == "two-sided":
+            a = upper + special.ndtr((-lz - cs) / r)  # + P(Z_i < -c s | z)
+        else:
+            a = upper
+        a = np.clip(a, 0.0, 1.0)
+        with np.errstate(divide="ignore"):
+            log_none[start:start + step] = np.log1p(-a).sum(axis=1)
+    tail = -np.expm1(log_none)  # (S, Z)
     return float(w @ (tail @ _DPHI))
 
 
@@ -253,6 +260,12 @@ def dunnett(
             f"control level {control!r} is not among the levels in this view ({preview(labels)}).{hint}"
         )
     c0 = labels.index(str(control))
+    if gs.k - 1 > MAX_DUNNETT:
+        raise ExplorerError(
+            f"Dunnett's comparisons are computed for at most {MAX_DUNNETT} treatments against the control, not "
+            f"{gs.k - 1}: each p-value is an integral over all of them, so the cost grows with their square; "
+            "compare fewer levels (merge or leave some out) or use pairwise t with Holm's adjustment"
+        )
     idx = np.array([x for x in range(gs.k) if x != c0])
     msw = results.ms_resid or 0.0
     df = float(results.df_resid)

@@ -30,7 +30,12 @@ from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
 from .comparisons import PairwiseTable
 
-__all__ = ["LetterDisplay", "compact_letters"]
+__all__ = ["MAX_LEVELS", "MAX_WORK", "LetterDisplay", "compact_letters"]
+
+#: Letters are built for at most this many levels (beyond it a display cannot be read).
+MAX_LEVELS = 150
+#: Column comparisons the insert-absorb steps may make before the display is given up (bounds the time).
+MAX_WORK = 1e7
 
 _ALPHABET = string.ascii_lowercase + string.ascii_uppercase
 
@@ -93,23 +98,42 @@ def compact_letters(table: PairwiseTable, *, alpha: float = 0.05) -> LetterDispl
     if not 0 < alpha < 1:
         raise ExplorerError(f"alpha must be between 0 and 1, not {alpha!r}")
     labels = table.labels
+    n_levels = len(labels)
+    if n_levels > MAX_LEVELS:
+        raise ExplorerError(
+            f"letters not built for {n_levels} levels (at most {MAX_LEVELS}): a display that long cannot be read "
+            "and its cost grows steeply with the levels; read the comparison table instead"
+        )
     est = np.asarray(table.estimates, dtype=float)
     order = np.argsort(-est, kind="stable")
     rank = {labels[i]: r for r, i in enumerate(order)}
     sig = table.significant(alpha)
     columns: list[frozenset[str]] = [frozenset(labels)]
+    work = 0
     for a, b, s in zip(table.first, table.second, sig):
         if not s:
             continue
+        kept: list[frozenset[str]] = []
         split: list[frozenset[str]] = []
         for col in columns:
             if a in col and b in col:
                 split.extend((col - {a}, col - {b}))
             else:
-                split.append(col)
-        # absorb: drop duplicates and columns contained in another
-        uniq = list(dict.fromkeys(split))
-        columns = [c for c in uniq if not any(c < o for o in uniq)]
+                kept.append(col)
+        if not split:
+            continue
+        # absorb: drop duplicates and columns contained in another. A column that was not split
+        # cannot lie inside a split one (it would have lain inside the column split), so only
+        # the split columns are checked.
+        work += len(split) * (len(kept) + len(split))
+        if work > MAX_WORK:
+            raise ExplorerError(
+                f"letters not built: the {n_levels} levels' significant pairs need more than {MAX_WORK:.0e} column "
+                "comparisons (the display would have too many letters to read); read the comparison table instead"
+            )
+        old = set(kept)
+        fresh = [c for c in dict.fromkeys(split) if c not in old]
+        columns = kept + [c for c in fresh if not any(c < o for o in kept) and not any(c < o for o in fresh)]
     columns = [c for c in columns if c]
     columns.sort(key=lambda c: sorted(rank[x] for x in c))
     columns = _sweep(columns, rank)
@@ -118,7 +142,6 @@ def compact_letters(table: PairwiseTable, *, alpha: float = 0.05) -> LetterDispl
         for lab in col:
             letters[lab] += _letter(i)
     notes: list[str] = []
-    n_levels = len(labels)
     if table.family_size < n_levels * (n_levels - 1) // 2:
         notes.append(
             f"The table tests {table.family_size} of the {n_levels * (n_levels - 1) // 2} pairs; pairs it did "

@@ -15,10 +15,8 @@ from typing import Any
 
 from ..engine.errors import ExplorerError
 from ..inference.assumptions import bartlett, recommend
-from ..inference.battery import Battery, run_battery
-from ..inference.comparisons import dunnett, games_howell, pairwise_t, tukey
+from ..inference.battery import Battery, comparison_parts, run_battery
 from ..inference.effect_sizes import effect_sizes
-from ..inference.letters import compact_letters
 from ..inference.omnibus import brown_forsythe_f, classic_f, welch_f
 from ..inference.power import power_plan
 
@@ -35,12 +33,12 @@ def summary_battery(study: Any, **options: Any) -> Battery:
     full = study.results
     opts = dict(part.options)
     a, conf = part.alpha, float(opts["confidence"])  # type: ignore[arg-type]
-    tk = tukey(full, confidence=conf)
-    gh = games_howell(full, confidence=conf)
-    pt = pairwise_t(full, adjust=opts["pairwise_adjust"], confidence=conf)  # type: ignore[arg-type]
-    source = {"tukey": tk, "games-howell": gh, "pairwise-t": pt}[str(opts["letters_from"])]
-    control = opts["control"]
-    notes = [n for n in part.notes if not n.startswith(("No effect sizes", "No power", "Group sizes"))]
+    compared = comparison_parts(full, confidence=conf, pairwise_adjust=str(opts["pairwise_adjust"]),
+                                letters_from=str(opts["letters_from"]), alpha=a,
+                                control=opts["control"],  # type: ignore[arg-type]
+                                dunnett_alternative=opts["dunnett_alternative"])  # type: ignore[arg-type]
+    skip = ("No effect sizes", "No power", "Group sizes", "No letters", "No Dunnett", "With ")
+    notes = [n for n in part.notes if not n.startswith(skip)] + compared.pop("notes")
     try:
         eff_conf = opts.get("effect_confidence")
         sizes = effect_sizes(full, confidence=None if eff_conf is None else float(eff_conf), alpha=a)  # type: ignore[arg-type]
@@ -61,8 +59,5 @@ def summary_battery(study: Any, **options: Any) -> Battery:
         part,
         classic=classic_f(full), welch=welch_f(full), brown_forsythe=brown_forsythe_f(full), bartlett=bartlett(full),
         recommendation=recommend(full, part.levene, part.shapiro, alpha=a),
-        tukey=tk, games_howell=gh, pairwise_t=pt,
-        dunnett=dunnett(full, control, alternative=opts["dunnett_alternative"], confidence=conf)  # type: ignore[arg-type]
-        if control is not None else None,
-        letters=compact_letters(source, alpha=a), effect_sizes=sizes, power=plan, notes=tuple(notes),
+        **compared, effect_sizes=sizes, power=plan, notes=tuple(notes),
     )
