@@ -124,6 +124,9 @@ class CellTable:
     mean: np.ndarray
     balanced: bool
     fitted: np.ndarray | None = None
+    #: (cells x columns) level codes into ``levels`` (as :class:`CellLayout`), for row-level designs.
+    cell_levels: np.ndarray | None = None
+    levels: tuple[tuple[str, ...], ...] | None = None
 
     @classmethod
     def from_stats(cls, layout: CellLayout, stats: GroupStats, fitted: np.ndarray | None = None) -> CellTable:
@@ -133,7 +136,8 @@ class CellTable:
         full = layout.n_cells == int(np.prod(layout.n_levels))
         balanced = bool(full and np.all(stats.n == stats.n[0]))
         return cls(columns=layout.columns, labels=labels, n=stats.n, mean=stats.original_means, balanced=balanced,
-                   fitted=None if fitted is None else fitted + stats.offset)
+                   fitted=None if fitted is None else fitted + stats.offset, cell_levels=layout.cell_levels,
+                   levels=layout.levels)
 
     def to_frame(self) -> pd.DataFrame:
         frame = pd.DataFrame(list(self.labels), columns=list(self.columns))

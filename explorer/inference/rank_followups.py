@@ -1,0 +1,176 @@
+"""Rank-based follow-ups: Dunn's pairwise test after Kruskal-Wallis, Friedman's test for blocks.
+
+Dunn (1964): with mid-ranks over all kept rows, the pair (i, j) is compared by
+``z = (Rbar_i - Rbar_j) / sqrt(s2 (1/n_i + 1/n_j))``, ``s2 = N (N + 1)/12 -
+sum(t^3 - t) / (12 (N - 1))`` (tie-corrected variance of a rank), two-sided normal
+p-values adjusted over the k (k - 1)/2 pairs by Holm's step-down method by default.
+
+Friedman (1937): a randomized complete block design, one observation of each treatment
+in each of b blocks. Within each block the k observations are ranked (mid-ranks for
+ties); with rank sums R_j, ``Q = (12 / (b k (k + 1)) sum R_j^2 - 3 b (k + 1)) / C``,
+``C = 1 - sum(t^3 - t) / (b k (k^2 - 1))`` over the tie blocks within blocks,
+chi-square on k - 1 df. Kendall's W = Q / (b (k - 1)) is given beside it.
+
+References
+----------
+Dunn, O. J. (1964). Multiple comparisons using rank sums. Technometrics 6, 241-252.
+Friedman, M. (1937). The use of ranks to avoid the assumption of normality implicit in
+the analysis of variance. JASA 32, 675-701.
+Hollander, M., Wolfe, D. A. and Chicken, E. (2014). Nonparametric Statistical Methods,
+3rd ed., sec. 6.5 and 7.1 (ties).
+"""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy import special
+
+from ..engine.errors import DesignError
+from ..engine.pairwise import adjust_pvalues
+from ..engine.results import Results
+from ..engine.tables import fmt, html_table
+from .oneway_inputs import require_oneway, row_sample_notes
+from .two_levels import mid_ranks
+
+__all__ = ["DunnTable", "FriedmanTest", "dunn", "friedman"]
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class DunnTable:
+    """Dunn's comparisons of every pair of levels on mean ranks."""
+
+    labels: tuple[str, ...]
+    mean_rank: np.ndarray
+    first: tuple[str, ...]
+    second: tuple[str, ...]
+    z: np.ndarray
+    pvalue: np.ndarray
+    adjusted: np.ndarray
+    adjustment: str
+    alpha: float
+    notes: tuple[str, ...] = field(default=())
+
+    def to_frame(self) -> pd.DataFrame:
+        return pd.DataFrame({"first": list(self.first), "second": list(self.second), "z": self.z,
+                             "p-value": self.pvalue, f"p-value ({self.adjustment})": self.adjusted,
+                             "different": ["yes" if p < self.alpha else "no" for p in self.adjusted]})
+
+    def matrix(self) -> pd.DataFrame:
+        """Adjusted p-values as a symmetric level x level table (1 on the diagonal)."""
+        k = len(self.labels)
+        m = np.ones((k, k))
+        for a, b, p in zip(self.first, self.second, self.adjusted):
+            i, j = self.labels.index(a), self.labels.index(b)
+            m[i, j] = m[j, i] = p
+        return pd.DataFrame(m, index=list(self.labels), columns=list(self.labels))
+
+    @property
+    def title(self) -> str:
+        return f"Dunn's rank comparisons: {self.adjustment} adjustment, family of {len(self.first)}"
+
+    def _repr_html_(self) -> str:
+        return html_table(self.to_frame(), self.title, self.notes)
+
+    def to_text(self) -> str:
+        f = self.to_frame()
+        return f"{self.title}\n{f.to_string(index=False)}"
+
+
+def dunn(results: Results, *, adjust: str = "holm") -> DunnTable:
+    """Dunn's pairwise rank test of a one-factor study (the follow-up of Kruskal-Wallis)."""
+    require_oneway(results, "Dunn's test")
+    fit = results.fit
+    g = np.asarray(fit.group)
+    k = results.groups.k
+    ranks, ties = mid_ranks(np.asarray(fit.y, dtype=float))
+    n = np.bincount(g, minlength=k).astype(float)
+    big_n = float(n.sum())
+    rbar = np.bincount(g, weights=ranks, minlength=k) / n
+    t = ties.astype(float)
+    s2 = big_n * (big_n + 1) / 12.0 - np.sum(t**3 - t) / (12.0 * (big_n - 1))
+    i, j = np.triu_indices(k, 1)
+    if not s2 > 0:
+        raise DesignError("every kept observation is tied: Dunn's test is undefined")
+    z = (rbar[i] - rbar[j]) / np.sqrt(s2 * (1 / n[i] + 1 / n[j]))
+    p = special.erfc(np.abs(z) / np.sqrt(2.0))
+    labels = tuple(results.groups.labels)
+    notes = row_sample_notes(results) + (
+        "Mean ranks are from one ranking of all kept rows, as in the Kruskal-Wallis test (Dunn 1964).",)
+    return DunnTable(labels=labels, mean_rank=rbar, first=tuple(labels[a] for a in i),
+                     second=tuple(labels[b] for b in j), z=z, pvalue=p, adjusted=adjust_pvalues(p, adjust),
+                     adjustment=adjust, alpha=float(results.spec.alpha), notes=notes)
+
+
+@dataclass(frozen=True, kw_only=True)
+class FriedmanTest:
+    """Friedman's rank test of the treatments of a randomized complete block design."""
+
+    factor: str
+    block: str
+    statistic: float | None
+    df: int
+    pvalue: float | None
+    blocks: int
+    kendall_w: float | None
+    rank_sums: tuple[tuple[str, float], ...]
+    notes: tuple[str, ...] = field(default=())
+
+    def _repr_html_(self) -> str:
+        sums = ", ".join(f"{html.escape(k)} {fmt(v, 5)}" for k, v in self.rank_sums)
+        return (f"<div><b>Friedman rank test</b> of {html.escape(self.factor)} within {html.escape(self.block)} "
+                f"({self.blocks} blocks): chi-square = {fmt(self.statistic)} on {self.df} df, p = {fmt(self.pvalue)}; "
+                f"Kendall's W = {fmt(self.kendall_w, 4)}; rank sums: {sums}</div>"
+                + "".join(f"<div class='note'>{html.escape(n)}</div>" for n in self.notes))
+
+    def to_text(self) -> str:
+        return (f"Friedman rank test of {self.factor} within {self.block} ({self.blocks} blocks): "
+                f"chi-square = {fmt(self.statistic)} on {self.df} df, p = {fmt(self.pvalue)}; "
+                f"Kendall's W = {fmt(self.kendall_w, 4)}")
+
+
+def friedman(results: Results) -> FriedmanTest:
+    """Friedman's test: one treatment factor, one block, one observation per treatment and block."""
+    spec = results.spec
+    if len(spec.factors) != 1 or len(spec.blocks) != 1 or spec.is_mixed or bool(getattr(spec, "covariates", ())):
+        raise DesignError("Friedman's test needs a randomized complete block design: one treatment factor and one "
+                          f"block (this study has factors {list(spec.factors)} and blocks {list(spec.blocks)})")
+    cells = results.cells
+    if cells is None or cells.cell_levels is None:
+        raise DesignError("Friedman's test needs the cell layout of the block design")
+    k, b = (len(lv) for lv in cells.levels)  # type: ignore[union-attr]
+    if len(cells.n) != k * b or np.any(np.asarray(cells.n) != 1):
+        raise DesignError(
+            f"Friedman's test needs exactly one observation of each level of {spec.factors[0]!r} in each "
+            f"{spec.blocks[0]!r} ({k} x {b} = {k * b} cells); this view has {int(np.sum(cells.n))} rows in "
+            f"{len(cells.n)} cells. Average replicates yourself or use the F test of the block design."
+        )
+    fit = results.fit
+    y = np.asarray(fit.y, dtype=float)
+    cl = np.asarray(cells.cell_levels)[np.asarray(fit.group)]
+    grid = np.empty((b, k))
+    grid[cl[:, 1], cl[:, 0]] = y
+    ranks = np.empty_like(grid)
+    tie_term = 0.0
+    for r in range(b):
+        rr, tt = mid_ranks(grid[r])
+        ranks[r] = rr
+        tf = tt.astype(float)
+        tie_term += float(np.sum(tf**3 - tf))
+    rsum = ranks.sum(axis=0)
+    c = 1 - tie_term / (b * k * (k * k - 1))
+    labels = cells.levels[0]  # type: ignore[index]
+    sums = tuple((lab, float(s)) for lab, s in zip(labels, rsum))
+    if not c > 0:
+        return FriedmanTest(factor=spec.factors[0], block=spec.blocks[0], statistic=None, df=k - 1, pvalue=None,
+                            blocks=b, kendall_w=None, rank_sums=sums,
+                            notes=("Every block is tied throughout: the statistic is undefined.",))
+    q = (12.0 / (b * k * (k + 1)) * float(np.sum(rsum**2)) - 3.0 * b * (k + 1)) / c
+    notes = ("The chi-square approximation is rough with few blocks; with k = 3 and fewer than about 10 blocks "
+             "compare with exact tables.",) if b < 10 else ()
+    return FriedmanTest(factor=spec.factors[0], block=spec.blocks[0], statistic=q, df=k - 1,
+                        pvalue=float(special.chdtrc(k - 1, q)), blocks=b, kendall_w=q / (b * (k - 1)),
+                        rank_sums=sums, notes=notes)
