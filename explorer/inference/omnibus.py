@@ -26,17 +26,23 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
-from scipy import special
 
-from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
 from ..engine.tables import fmt
+from .omnibus_batch import brown_forsythe_batch, kruskal_batch, welch_batch
 from .oneway_inputs import require_oneway, row_sample_notes
 
 if TYPE_CHECKING:
     from ..engine.results import Results
 
-__all__ = ["OmnibusTest", "brown_forsythe_f", "classic_f", "kruskal_wallis", "permutation_f", "welch_f"]
+__all__ = [
+    "PERMUTATIONS", "PERMUTATION_SEED", "OmnibusTest", "brown_forsythe_f", "classic_f", "kruskal_wallis", "midranks",
+    "overall_test", "permutation_f", "welch_f",
+]
+
+#: Permutations and seed of the permutation F when it is a study's chosen test.
+PERMUTATIONS = 9999
+PERMUTATION_SEED = 0
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -93,10 +99,6 @@ class OmnibusTest:
         )
 
 
-def _f_sf(f: float, d1: float, d2: float) -> float:
-    return float(f_sf(f, d1, d2))
-
-
 def _stats(results: Results) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
     require_oneway(results, "this test")
     gs = results.groups
@@ -105,7 +107,7 @@ def _stats(results: Results) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
 
 def classic_f(results: Results) -> OmnibusTest:
     """The classic F test of the one-way partition, as an :class:`OmnibusTest` (Fisher)."""
-    row = results.partition.row(results.main_term)
+    row = results.partition.row(results.spec.factors[0])
     resid = results.partition.rows[1]
     return OmnibusTest(
         method="classic F", statistic=row.statistic, df_num=float(row.df), df_den=float(resid.df),
@@ -136,16 +138,10 @@ def welch_f(results: Results) -> OmnibusTest:
     if problem:
         return OmnibusTest(method="Welch F", statistic=None, df_num=float(k - 1), df_den=None, pvalue=None,
                            assumes=assumes, notes=(problem,))
-    w = n / var
-    sw = w.sum()
-    mw = np.dot(w, mean) / sw
-    a = np.dot(w, (mean - mw) ** 2) / (k - 1)
-    lam = np.sum((1 - w / sw) ** 2 / (n - 1))
-    b = 1 + 2 * (k - 2) / (k * k - 1) * lam
-    f = float(a / b)
-    df2 = float((k * k - 1) / (3 * lam))
+    out = welch_batch(n[None, :], mean[None, :], var[None, :])
+    f, df2 = float(out.statistic[0]), float(out.df_den[0])
     return OmnibusTest(method="Welch F", statistic=f, df_num=float(k - 1), df_den=df2,
-                       pvalue=_f_sf(f, k - 1, df2), assumes=assumes)
+                       pvalue=float(out.pvalue[0]), assumes=assumes)
 
 
 def brown_forsythe_f(results: Results) -> OmnibusTest:
@@ -168,20 +164,15 @@ def brown_forsythe_f(results: Results) -> OmnibusTest:
     if problem:
         return OmnibusTest(method=method, statistic=None, df_num=None, df_den=None, pvalue=None, assumes=assumes,
                            notes=(problem,), original_df_num=float(k - 1))
-    big_n = n.sum()
-    c = 1 - n / big_n
-    denom = np.dot(c, var)
-    f = float(results.groups.ss_between / denom)
-    df2 = float(denom**2 / np.sum((c * var) ** 2 / (n - 1)))
-    p = n / big_n
-    df1_m = float(denom**2 / (np.sum(var**2) + np.dot(p, var) ** 2 - 2 * np.dot(p, var**2)))
+    out = brown_forsythe_batch(n[None, :], _mean[None, :], var[None, :])
     return OmnibusTest(
-        method=method, statistic=f, df_num=df1_m, df_den=df2, pvalue=_f_sf(f, df1_m, df2), assumes=assumes,
-        original_df_num=float(k - 1), original_pvalue=_f_sf(f, k - 1, df2),
+        method=method, statistic=float(out.statistic[0]), df_num=float(out.df_num[0]), df_den=float(out.df_den[0]),
+        pvalue=float(out.pvalue[0]), assumes=assumes,
+        original_df_num=float(k - 1), original_pvalue=float(out.original_pvalue[0]),  # type: ignore[index]
     )
 
 
-def _ranks_and_ties(y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def midranks(y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Mid-ranks of ``y`` (1-based) and the sizes of its tie blocks."""
     order = np.argsort(y)  # tie order is irrelevant: tied values share their mid-rank
     ys = y[order]
@@ -205,23 +196,22 @@ def kruskal_wallis(results: Results) -> OmnibusTest:
     g = fit.group
     k = results.groups.k
     n = np.bincount(g, minlength=k).astype(float)
-    big_n = float(n.sum())
-    ranks, ties = _ranks_and_ties(np.asarray(fit.y, dtype=float))
+    ranks, ties = midranks(np.asarray(fit.y, dtype=float))
     rsum = np.bincount(g, weights=ranks, minlength=k)
-    h = 12.0 / (big_n * (big_n + 1)) * float(np.sum(np.where(n > 0, (rsum - n * (big_n + 1) / 2) ** 2 / np.maximum(n, 1), 0.0)))
     t = ties.astype(float)
-    corr = 1 - np.sum(t**3 - t) / (big_n**3 - big_n)
+    out = kruskal_batch(n[None, :], rsum[None, :], np.array([np.sum(t**3 - t)]))
     assumes = "independent observations; a shift in location with similar shapes and spreads across levels"
-    if not corr > 0:
+    if out.status[0]:
         return OmnibusTest(method="Kruskal-Wallis H", statistic=None, df_num=float(k - 1), df_den=None,
                            pvalue=None, assumes=assumes, notes=("All observations are tied: H is undefined.",))
-    h = float(h / corr)
+    big_n = float(n.sum())
+    corr = 1 - np.sum(t**3 - t) / (big_n**3 - big_n)
     notes: tuple[str, ...] = row_sample_notes(results)
     if n[n > 0].min() < 5:
         notes += ("Some levels have fewer than 5 observations; the chi-square approximation to H is rough there.",)
     return OmnibusTest(
-        method="Kruskal-Wallis H", statistic=h, df_num=float(k - 1), df_den=None,
-        pvalue=float(special.chdtrc(k - 1, h)), assumes=assumes,
+        method="Kruskal-Wallis H", statistic=float(out.statistic[0]), df_num=float(k - 1), df_den=None,
+        pvalue=float(out.pvalue[0]), assumes=assumes,
         details=(("tie correction", float(corr)),), notes=notes,
     )
 
@@ -262,10 +252,28 @@ def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) 
         done += c
     p = (hits + 1) / (b_total + 1)
     se = float(np.sqrt(p * (1 - p) / b_total))
-    classic = results.partition.row(results.main_term)
+    classic = results.partition.row(results.spec.factors[0])
     return OmnibusTest(
         method="permutation F", statistic=classic.statistic, df_num=None, df_den=None, pvalue=float(p),
         assumes="exchangeable observations under the null (same distribution in every level)",
         details=(("permutations", b_total), ("seed", int(seed)), ("Monte-Carlo SE of p", se)),
         notes=row_sample_notes(results),
     )
+
+
+def overall_test(results: Results, test: str) -> OmnibusTest:
+    """The one-factor overall test named ``test`` (a key of :data:`.spec.OVERALL_TESTS`) on ``results``.
+
+    The permutation F uses :data:`PERMUTATIONS` orderings with seed :data:`PERMUTATION_SEED`.
+    """
+    if test == "classic":
+        return classic_f(results)
+    if test == "welch":
+        return welch_f(results)
+    if test == "brown-forsythe":
+        return brown_forsythe_f(results)
+    if test == "kruskal":
+        return kruskal_wallis(results)
+    if test == "permutation":
+        return permutation_f(results, PERMUTATIONS, seed=PERMUTATION_SEED)
+    raise ExplorerError(f"no overall test named {test!r}")
