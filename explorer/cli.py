@@ -26,12 +26,14 @@ import sys
 import tempfile
 from collections.abc import Sequence
 from pathlib import Path
+from typing import Any
 
 from .engine import ExplorerError, OutputError, ReplayError
 from .engine.spec import ModelSpec
 from .study import Study
 from .study.output_files import check_output_path, write_text_atomic
 from .study.persistence import read_study_file
+from .engine.spec import OVERALL_TESTS, ModelSpec
 
 __all__ = ["main", "EXIT_CODES", "PROG"]
 
@@ -71,6 +73,8 @@ def _add_data_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--factor", action="append", default=[], help="grouping column (repeat for more factors)")
     p.add_argument("--block", action="append", default=[], help="additive block column (repeatable)")
     p.add_argument("--alpha", type=float, help="level at which decisions are read (default 0.05)")
+    p.add_argument("--test", choices=list(OVERALL_TESTS),
+                   help="overall test the decision is read from (default classic; the others need one factor)")
     p.add_argument("--id-column", help="column of unique row ids (panel, sample, plot) used to name rows")
     p.add_argument("--edits", help="study file written by study.save: its edits (with reasons) are replayed")
 
@@ -142,6 +146,8 @@ def _spec_conflict(saved: ModelSpec, args: argparse.Namespace) -> str | None:
         asked.append(f"--block {args.block} but the file has {list(saved.blocks)}")
     if args.alpha is not None and args.alpha != saved.alpha:
         asked.append(f"--alpha {args.alpha:g} but the file has {saved.alpha:g}")
+    if args.test is not None and args.test != saved.test:
+        asked.append(f"--test {args.test} but the file has {saved.test}")
     return "; ".join(asked) or None
 
 
@@ -167,7 +173,9 @@ def load_study(args: argparse.Namespace) -> Study:
     if not args.response or not args.factor:
         missing = [n for n, v in (("--response", args.response), ("--factor", args.factor)) if not v]
         raise CommandError(EXIT_BAD_INPUT, f"name the {' and '.join(missing)} (or give --edits with a saved study)")
-    kwargs = {"alpha": args.alpha} if args.alpha is not None else {}
+    kwargs: dict[str, Any] = {"alpha": args.alpha} if args.alpha is not None else {}
+    if args.test is not None:
+        kwargs["test"] = args.test
     return Study(data, response=args.response, factors=args.factor, blocks=args.block, id_column=args.id_column,
                  **kwargs)
 
@@ -217,7 +225,7 @@ def _report(args: argparse.Namespace) -> int:
                            overwrite=args.force, protect=_inputs(args))
     except OutputError as exc:
         raise CommandError(EXIT_NO_OUTPUT, str(exc)) from None
-    print(f"wrote {out} ({out.stat().st_size // 1024} KB): {study.results.decision()}")
+    print(f"wrote {out} ({out.stat().st_size // 1024} KB): {study.decision.sentence()}")
     return EXIT_OK
 
 

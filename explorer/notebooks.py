@@ -55,8 +55,8 @@ the explorer above redraws."""),
 study.drop(["P1007"], reason="gauge slip, see the line log")
 study.drop(["P1071"], reason="recoated by mistake, see the rework sheet")
 study.merge_levels("nozzle", ["N2", "N3"], into="N2+N3", reason="N2 and N3 come from one supplier")
-print("baseline:", study.baseline.decision())
-print("current: ", study.results.decision())
+print("baseline:", study.baseline_decision.sentence())
+print("current: ", study.decision.sentence())
 study.battery()"""),
     ("markdown", """\
 ## Save and hand off

@@ -115,7 +115,7 @@ def test_montgomery_example_5_1_battery_life():
     assert (resid.df, total.df) == (27, 35)
     assert round(resid.sum_sq, 2) == 18230.75 and round(resid.mean_sq, 2) == 675.21
     assert round(total.sum_sq, 2) == 77646.97
-    assert r.significant("material × temperature")
+    assert r.pvalue("material × temperature") < 0.05
 
 
 def test_montgomery_example_4_1_vascular_graft_blocks():
@@ -420,7 +420,7 @@ def test_results_display_and_frames():
     assert r.cells is not None and r.cells.counts("material", "temperature").to_numpy().sum() == 35
     assert r.partition.coding == "sum-to-zero" and r.partition.ss_type == "II"
     assert r.compare_means().to_frame().shape[0] == 3
-    assert r.main_term == "material"
+    assert r.spec.factors[0] == "material"
 
 
 # --------------------------------------------------------------------------- degenerate and hard data

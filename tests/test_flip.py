@@ -56,7 +56,7 @@ def test_from_not_significant_to_significant():
     """Other direction: a wild value in level b hides the difference; removing it makes f_oneway significant."""
     df = pd.DataFrame({"g": list("aaaaabbbbb"), "y": [1.0, 1.1, 0.9, 1.05, 0.95, 1.5, 1.6, 1.4, 1.55, -3.0]})
     study = ex.Study(df, "y", "g")
-    assert not study.results.significant()
+    assert not study.decision.significant
     res = flip_finder(study)
     assert res.found and res.rows == (9,) and not res.base_significant
     assert res.pvalues[0] == pytest.approx(_p(df, [9]), rel=1e-10) and res.pvalues[0] < 0.05

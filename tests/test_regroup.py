@@ -45,7 +45,7 @@ def test_flips_are_listed_first_and_match_refits(demo_csv):
     """Demo data (nozzle effect hangs on a few panels): every listed flip confirmed by an f_oneway refit, flips first."""
     df = pd.read_csv(demo_csv).rename(columns={"nozzle": "g", "thickness_um": "y"})
     study = ex.Study(df, "y", "g")
-    base_sig = study.results.significant()
+    base_sig = study.decision.significant
     scan = regroup_scan(study)
     assert scan.merge_flips and scan.move_flips
     merges = scan.merges_frame()

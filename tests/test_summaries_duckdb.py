@@ -343,7 +343,7 @@ def test_set_aside_scan_matches_edits(parquet):
     assert row["p-value"] is pd.NA and "one level" in row["note"]
     row = scan.table[scan.table["change"] == "set aside line = L2"].iloc[0]
     s.drop_level("line", "L2")
-    assert close(row["p-value"], s.results.pvalue())
+    assert close(row["p-value"], s.results.pvalue(scan.term))
 
 
 # ---------------------------------------------------------------- bad input and imports

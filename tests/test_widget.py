@@ -9,6 +9,8 @@ widget passes them through unchanged.
 
 from __future__ import annotations
 
+import html
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -217,9 +219,12 @@ def test_battery_panels_follow_the_pickers(demo):
     e.comparison_picker.value = "games-howell"
     e.tabs.selected_index = e._tab_groups.index("Tests")
     welch = welch_f(e.study.results)
-    assert f"Chosen test: {welch.method}</b>: statistic {fmt(welch.statistic, 5)}" in e.cards["overall_tests"].html.value
+    assert e.study.spec.test == "welch" and e.study.decision.pvalue == welch.pvalue
+    sentence = html.escape(e.study.decision.sentence())
+    assert "The decision (Welch F)" in e.cards["overall_tests"].html.value
+    assert sentence in e.cards["overall_tests"].html.value
     assert "Games-Howell" in e.cards["comparisons"].html.value
-    assert "Chosen test (Welch F)" in e.header.value
+    assert sentence in e.header.value
 
 
 def test_fragility_scans_run_when_opened_and_are_counted_once_per_view(demo):

@@ -36,7 +36,9 @@ def _p_or_none(values: np.ndarray) -> list[float | None]:
 
 def case_deletion_chart(scan: CaseDeletionScan, *, max_points: int = MAX_POINTS, width: int = WIDTH,
                         height: int = HEIGHT) -> alt.TopLevelMixin:
-    """p-value of the F test with each row left out in turn, against table order; flip rows stand out."""
+    """p-value of the decision's test with each row left out in turn, against table order; flip rows stand out.
+
+    The subtitle names the term and test scored (the study's decision unless the scan was asked for another)."""
     flips = np.asarray(scan.flips, dtype=bool)
     with np.errstate(divide="ignore", invalid="ignore"):
         move = np.abs(np.log(np.asarray(scan.pvalue, dtype=float)) - np.log(scan.base_pvalue or np.nan))
@@ -54,7 +56,8 @@ def case_deletion_chart(scan: CaseDeletionScan, *, max_points: int = MAX_POINTS,
     pick = pick_param()
     tip = [alt.Tooltip("row:N", title="row id"), alt.Tooltip("level:N"),
            alt.Tooltip("p:Q", title="p-value without this row", format=".4g"),
-           alt.Tooltip("F:Q", title="F without this row", format=".4g"), alt.Tooltip("effect:N", title="decision")]
+           alt.Tooltip("F:Q", title="statistic without this row", format=".4g"),
+           alt.Tooltip("effect:N", title="decision")]
     points = alt.Chart(frame).mark_point(filled=True, opacity=0.9).encode(
         x=alt.X("order:Q", title="row left out (table order)"),
         y=alt.Y("p:Q", title="p-value (log)", scale=alt.Scale(type="log")),
@@ -69,7 +72,8 @@ def case_deletion_chart(scan: CaseDeletionScan, *, max_points: int = MAX_POINTS,
         lines.append(alt.Chart().mark_rule(color=LEFT_OUT).encode(y=alt.datum(scan.base_pvalue)))
     n_flip = int(flips.sum())
     labels, named = id_labels(frame, flips[pos], move[pos], "order", "p", what=f"alpha {scan.alpha:g}")
-    sub = [(f"{n_flip} row(s) flip the decision on their own (their p crosses alpha). Red dashes: alpha "
+    sub = [(f"Decision on {scan.term} ({scan.test} test): {n_flip} row(s) flip the decision on their own (their p "
+            f"crosses alpha). Red dashes: alpha "
             f"{scan.alpha:g}; grey line: p with every row. {named if n_flip else ''}").strip()]
     if picked.note:
         sub.append(picked.note)

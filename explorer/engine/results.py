@@ -10,6 +10,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from .errors import ExplorerError
 from .groupstats import GroupStats
 from .spec import ModelSpec
 from .tables import AnovaTable, fmt, html_table
@@ -153,38 +154,34 @@ class Results:
     aliased: "tuple[AliasedTerm, ...]" = ()  # terms left out because the cells cannot separate them
 
     def compare_means(self, factor: str | None = None, confidence: float | None = None) -> Any:
-        """Tukey-Kramer comparisons of the marginal (least-squares) means of ``factor``."""
-        f = factor or self.main_term
+        """Tukey-Kramer comparisons of the marginal (least-squares) means of ``factor`` (default the first)."""
+        f = factor or self.spec.factors[0]
         if f not in self.marginal_means:
             raise KeyError(f"no marginal means for {f!r}; they exist for {list(self.marginal_means)}")
         return self.marginal_means[f].compare(confidence)
 
-    @property
-    def main_term(self) -> str:
-        """The term the decision is read from: the first treatment factor (its main effect)."""
-        return self.spec.factors[0]
+    def _term(self, term: str | None) -> str:
+        if term is not None:
+            return term
+        if self.spec.is_oneway:
+            return self.spec.factors[0]
+        raise ExplorerError(
+            f"name the term: this model has rows {[r.source for r in self.partition.rows]}; the term a "
+            "conclusion is about is the study's decision (study.decision.term)")
 
     def pvalue(self, term: str | None = None) -> float | None:
-        """The term's p-value; ``None`` when its test is undefined (never NaN, so no decision rests on NaN)."""
-        p = self.partition.row(term or self.main_term).pvalue
+        """The classic F test's p-value of one term of the partition (``term`` may be left out with one factor);
+        ``None`` when its test is undefined (never NaN, so no decision rests on NaN).
+
+        This is a number, not a decision: which term and test a conclusion is read from is
+        the study's decision (``study.decision``).
+        """
+        p = self.partition.row(self._term(term)).pvalue
         return p if p is not None and np.isfinite(p) else None
 
     def statistic(self, term: str | None = None) -> float | None:
-        return self.partition.row(term or self.main_term).statistic
-
-    def significant(self, term: str | None = None, alpha: float | None = None) -> bool:
-        """Whether the term's F test rejects at ``alpha`` (the spec's alpha by default)."""
-        p = self.pvalue(term)
-        return p is not None and p < (self.spec.alpha if alpha is None else alpha)
-
-    def decision(self, term: str | None = None, alpha: float | None = None) -> str:
-        a = self.spec.alpha if alpha is None else alpha
-        t = term or self.main_term
-        p = self.pvalue(t)
-        if p is None:
-            return f"{t}: no F test (see notes)"
-        verdict = "differences detected" if p < a else "no differences detected"
-        return f"{t}: {verdict} at alpha {a:g} (p = {fmt(p, 4)})"
+        """The classic F statistic of one term of the partition (``term`` may be left out with one factor)."""
+        return self.partition.row(self._term(term)).statistic
 
     def to_frame(self) -> pd.DataFrame:
         return self.partition.to_frame()
@@ -192,8 +189,7 @@ class Results:
     def _repr_html_(self) -> str:
         parts = [self.partition._repr_html_()]
         parts.append(
-            f"<div>n = {self.n_used}, R² = {fmt(self.r_squared, 4)}, residual SD = {fmt(self.residual_sd, 4)}; "
-            f"{html.escape(self.decision())}</div>"
+            f"<div>n = {self.n_used}, R² = {fmt(self.r_squared, 4)}, residual SD = {fmt(self.residual_sd, 4)}</div>"
         )
         for table in self.levels.values():
             parts.append(table._repr_html_())

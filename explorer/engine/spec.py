@@ -9,9 +9,20 @@ from typing import Any, Literal
 from .errors import ExplorerError
 from .table_checks import column_names
 
-__all__ = ["ModelSpec", "parse_term"]
+__all__ = ["ModelSpec", "ONE_FACTOR_TESTS", "OVERALL_TESTS", "parse_term"]
 
 SSType = Literal["I", "II", "III"]
+
+#: The overall tests a study's decision can be read from: name -> what it is.
+OVERALL_TESTS: dict[str, str] = {
+    "classic": "classic F (equal variances)",
+    "welch": "Welch F (unequal variances)",
+    "brown-forsythe": "Brown-Forsythe F* (unequal variances, Mehrotra df)",
+    "kruskal": "Kruskal-Wallis H (ranks)",
+    "permutation": "permutation F (9999 seeded permutations)",
+}
+#: Tests defined for one fixed factor without blocks only.
+ONE_FACTOR_TESTS = ("welch", "brown-forsythe", "kruskal", "permutation")
 VarianceMethod = Literal["auto", "moments", "reml"]
 VARIANCE_METHODS = ("auto", "moments", "reml")
 
@@ -68,7 +79,9 @@ class ModelSpec:
       between-subject factors (``factors`` not listed in ``within``); the subject-by-
       within terms are random and carry the within-subject tests.
 
-    ``alpha`` is the level at which decisions are read.
+    ``alpha`` is the level at which decisions are read and ``test`` the overall test
+    they are read from (a key of :data:`OVERALL_TESTS`; the tests other than
+    ``"classic"`` compare the levels of one fixed factor, so they need a one-way spec).
     """
 
     response: str
@@ -84,6 +97,7 @@ class ModelSpec:
     subject: str | None = None
     within: tuple[str, ...] = field(default=())
     variance_method: VarianceMethod = "auto"
+    test: str = "classic"
 
     def __post_init__(self) -> None:
         setf = object.__setattr__
@@ -114,6 +128,7 @@ class ModelSpec:
             parsed = tuple(parse_term(t, self.columns) for t in self.terms)
             self._check_terms(parsed)
             setf(self, "terms", parsed)
+        _check_test(self)
 
     # ----------------------------------------------------------------- validation
     def _check_roles(self) -> None:
@@ -251,6 +266,8 @@ class ModelSpec:
             d["within"] = list(self.within)
         if self.variance_method != "auto":
             d["variance_method"] = self.variance_method
+        if self.test != "classic":
+            d["test"] = self.test
         return d
 
     @classmethod
@@ -269,6 +286,7 @@ class ModelSpec:
             nested=d.get("nested", ()),  # type: ignore[arg-type]
             subject=d.get("subject"),
             within=tuple(d.get("within", ())),
+            test=d.get("test", "classic"),
             variance_method=d.get("variance_method", "auto"),
         )
 
@@ -294,3 +312,17 @@ def _normalise_nested(nested: Any) -> tuple[tuple[str, tuple[str, ...]], ...]:
             raise ExplorerError(f"{inner!r} is nested in nothing; give the column it is nested in")
         out.append((inner, parents_t))
     return tuple(out)
+
+
+def _check_test(spec: ModelSpec) -> None:
+    """Refuse an unknown test name, or a one-factor test on a design other than one fixed factor."""
+    test = spec.test
+    if not isinstance(test, str) or test not in OVERALL_TESTS:
+        raise ExplorerError(f"test must be one of {list(OVERALL_TESTS)}, not {test!r}")
+    if test in ONE_FACTOR_TESTS and not spec.is_oneway:
+        raise ExplorerError(
+            f"the {OVERALL_TESTS[test]} test compares the levels of one fixed factor; this design has factors "
+            f"{list(spec.factors)}" + (f" and blocks {list(spec.blocks)}" if spec.blocks else "")
+            + (" with other roles or terms" if (spec.is_mixed or spec.terms is not None) else "")
+            + ". Use test='classic' (the F tests of the model's terms), or a one-factor study of the factor of interest."
+        )

@@ -129,7 +129,7 @@ def effect_sizes(results: Results, *, confidence: float | None = None, alpha: fl
     cohens_f = float(np.sqrt(eta2 / (1 - eta2))) if eta2 < 1 else None
     ci_p = ci_f = ci_l = None
     excludes: bool | None = None
-    f_stat = results.partition.row(results.main_term).statistic
+    f_stat = results.partition.row(results.spec.factors[0]).statistic
     if f_stat is None:
         notes.append("No interval: the F statistic is undefined (zero residual sum of squares).")
         if cohens_f is None:

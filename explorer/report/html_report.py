@@ -88,24 +88,33 @@ def _provenance(study: "Study") -> str:
 
 def _headline(study: "Study") -> str:
     base, cur = study.baseline, study.results
-    term = base.main_term
+    db, dc = study.baseline_decision, study.decision
+    term = dc.term
+    try:
+        vb = db.verdict_for(term)
+    except KeyError:
+        vb = None
+    vc = dc.verdict_for(term)
 
     def line(label: str, a: object, b: object) -> tuple[str, str, str]:
-        return (label, fmt(a, 6) if not isinstance(a, str) else html.escape(a),
+        return (html.escape(label), fmt(a, 6) if not isinstance(a, str) else html.escape(a),
                 fmt(b, 6) if not isinstance(b, str) else html.escape(b))
 
     rows = [
         line("observations used", base.n_used, cur.n_used),
-        line(f"F for {term}", base.statistic(term), cur.statistic(term)),
-        line(f"p-value for {term}", base.pvalue(term), cur.pvalue(term)),
+        line(f"{dc.test_label} for {term}", vb.statistic if vb else None, vc.statistic),
+        line(f"p-value for {term}", vb.pvalue if vb else None, vc.pvalue),
         line("R²", base.r_squared, cur.r_squared),
         line("residual SD", base.residual_sd, cur.residual_sd),
-        line("decision", base.decision(term), cur.decision(term)),
+        line("the decision is about", db.term, dc.term),
+        line("decision", db.sentence(), dc.sentence()),
     ]
     body = "".join(f"<tr><th>{k}</th><td>{a}</td><td>{b}</td></tr>" for k, a, b in rows)
+    caveats = "".join(f"<p class='note'>{html.escape(c)}</p>" for c in dict.fromkeys((db.caveat, dc.caveat)) if c)
     return (
         "<table class='vx-table vx-headline'><thead><tr><th></th><th>baseline (unedited)</th>"
         f"<th>current (after {len(study.edits)} edit(s))</th></tr></thead><tbody>{body}</tbody></table>"
+        f"<p class='note'>Decisions read from the {html.escape(dc.method)} at alpha {dc.alpha:g}.</p>{caveats}"
     )
 
 

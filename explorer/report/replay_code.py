@@ -97,6 +97,8 @@ def _spec_args(study: "Study") -> str:
         args.append(f"ss_type={_lit(spec.ss_type)}")
     if spec.alpha != 0.05:
         args.append(f"alpha={_lit(float(spec.alpha))}")
+    if spec.test != "classic":
+        args.append(f"test={_lit(spec.test)}")
     if study.dataset.id_column is not None:
         args.append(f"id_column={_lit(study.dataset.id_column)}")
     args.extend(_role_args(spec))

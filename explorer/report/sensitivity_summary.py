@@ -119,7 +119,6 @@ def sensitivity_summary(study: "Study") -> SensitivitySummary:
     from ..sensitivity.regroup import regroup_scan
     from ..sensitivity.sweep import robustness_sweep
 
-    res = study.results
     notes: list[str] = []
     deletion = _try(lambda: case_deletion_scan(study, record=False), notes)
     flip = _try(lambda: flip_finder(study, record=False), notes)
@@ -137,7 +136,7 @@ def sensitivity_summary(study: "Study") -> SensitivitySummary:
     curve = None if sweep is None else sweep.table[
         ["rank", "outlier rule", "test", "transform", "merges", "p-value", "significant"]].copy()
     return SensitivitySummary(
-        decision=res.decision(), alpha=study.spec.alpha,
+        decision=study.decision.sentence(), alpha=study.spec.alpha,
         single_flip_rows=None if deletion is None else tuple(deletion.flip_rows),
         smallest_flip_rows=None if flip is None else tuple(flip.rows),
         smallest_flip_found=bool(flip is not None and flip.found),

@@ -10,6 +10,7 @@ from .extras import battery_part, frame_text, sensitivity_part
 
 if TYPE_CHECKING:
     from ..engine.results import Results
+    from ..study.decision import Decision
     from ..study.study import Study
 
 __all__ = ["results_text", "summary_text"]
@@ -19,8 +20,8 @@ def _heading(title: str) -> str:
     return f"{title}\n{'=' * len(title)}"
 
 
-def results_text(res: "Results") -> str:
-    """The partition, a one-line summary and the level tables."""
+def results_text(res: "Results", decision: "Decision") -> str:
+    """The partition, a one-line summary, the level tables and the study's decision (with its caveat)."""
     parts = [frame_text(res.partition.to_frame())]
     parts.append(f"n = {res.n_used}, R² = {fmt(res.r_squared, 4)}, residual SD = {fmt(res.residual_sd, 4)}")
     parts.extend(res.partition.notes)
@@ -30,7 +31,9 @@ def results_text(res: "Results") -> str:
         parts.append(frame_text(table.to_frame()))
         parts.extend(table.notes)
     parts.extend(n for n in res.notes if n not in res.partition.notes)
-    parts.append(res.decision())
+    parts.append(f"Decision ({decision.method}): {decision.sentence()}")
+    if decision.caveat:
+        parts.append(decision.caveat)
     return "\n".join(parts)
 
 
@@ -43,14 +46,14 @@ def summary_text(study: "Study", *, cautions: bool = True) -> str:
     ]
     out.extend(f"set aside at load: row {s.row}: {s.reason}" for s in ds.set_aside)
     out.extend(ds.notes)
-    out += ["", _heading("Baseline (unedited data)"), results_text(study.baseline)]
+    out += ["", _heading("Baseline (unedited data)"), results_text(study.baseline, study.baseline_decision)]
     if study.edits or study.redo_edits:
         out += ["", _heading("Edits, with reasons")]
         for i, e in enumerate(study.edits, 1):
             out.append(f"{i}. {e.describe()} -- {e.reason or '(no reason given)'} [{e.at}]")
         for e in study.redo_edits:
             out.append(f"   (undone) {e.describe()} -- {e.reason or '(no reason given)'} [{e.at}]")
-        out += ["", _heading(f"Current (after {len(study.edits)} edit(s))"), results_text(study.results)]
+        out += ["", _heading(f"Current (after {len(study.edits)} edit(s))"), results_text(study.results, study.decision)]
     for part in (battery_part(study), sensitivity_part(study, charts=False)):
         out += ["", _heading(part.title), part.text if part.present else f"not included: {part.note}"]
     out += ["", f"Disclosure: {study.disclosure.sentence()}."]

@@ -27,13 +27,14 @@ sample variance: analysis and recommendations. The American Statistician 37(3), 
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError
 from ..engine.groupstats import GroupStats, group_stats
+from ..inference.omnibus_batch import UNDEFINED, TestBatch, brown_forsythe_batch, welch_batch
 
 __all__ = [
     "STATUS_NOTES",
@@ -45,6 +46,7 @@ __all__ = [
     "fits_from_sums",
     "leave_one_out",
     "oneway_input",
+    "with_test",
 ]
 
 #: Why an alternative has no F test (status code -> plain sentence).
@@ -54,7 +56,10 @@ STATUS_NOTES: dict[int, str] = {
     2: "no residual degrees of freedom (every level has one observation): no F test",
     3: "residual sum of squares is zero (every observation equals its level mean): F undefined",
     4: "the model cannot be fitted after this change (an emptied cell or a factor left with one level; see notes)",
+    **{code: note for code, note in UNDEFINED.items() if code > 4},
 }
+#: Tests :func:`evaluate_alternatives` computes from group counts, means and sums of squares alone.
+MOMENT_TESTS = ("classic", "welch", "brown-forsythe")
 
 #: Share of a group's sum of squares below which a downdated value is recomputed exactly.
 _REFINE_BELOW = 1e-4
@@ -152,13 +157,18 @@ class AlternativeFits:
         return [STATUS_NOTES[int(s)] for s in self.status]
 
 
-def evaluate_alternatives(n: np.ndarray, mean: np.ndarray, m2: np.ndarray, scale: float) -> AlternativeFits:
-    """Classic one-way F test for each row of ``(m, k)`` arrays of group statistics.
+def evaluate_alternatives(n: np.ndarray, mean: np.ndarray, m2: np.ndarray, scale: float,
+                          test: str = "classic") -> AlternativeFits:
+    """One-way test ``test`` for each row of ``(m, k)`` arrays of group statistics.
 
-    ``scale`` is the magnitude of the data (offset or largest mean) used, as in the
-    one-way engine, to call a residual sum of squares zero. Groups with ``n == 0`` are
-    absent from that alternative.
+    ``test`` is 'classic' (F), 'welch' or 'brown-forsythe' (:data:`MOMENT_TESTS`); the
+    sums of squares and eta squared are the classic partition's in every case. ``scale``
+    is the magnitude of the data (offset or largest mean) used, as in the one-way
+    engine, to call a residual sum of squares zero. Groups with ``n == 0`` are absent
+    from that alternative.
     """
+    if test not in MOMENT_TESTS:
+        raise ValueError(f"{test!r} is not computed from group moments; use one of {MOMENT_TESTS}")
     n = np.atleast_2d(np.asarray(n, dtype=np.float64))
     mean = np.atleast_2d(np.asarray(mean, dtype=np.float64))
     m2 = np.atleast_2d(np.asarray(m2, dtype=np.float64))
@@ -170,7 +180,19 @@ def evaluate_alternatives(n: np.ndarray, mean: np.ndarray, m2: np.ndarray, scale
     dev = np.where(present, mean - gm[:, None], 0.0)
     ssb = (n * dev * dev).sum(axis=1)
     ssw = np.where(present, np.maximum(m2, 0.0), 0.0).sum(axis=1)
-    return fits_from_sums(ssb, ssw, levels, total, scale)
+    fits = fits_from_sums(ssb, ssw, levels, total, scale)
+    if test == "classic":
+        return fits
+    with np.errstate(divide="ignore", invalid="ignore"):
+        var = np.where(n > 1, np.maximum(m2, 0.0) / (n - 1), np.nan)
+    batch = (welch_batch if test == "welch" else brown_forsythe_batch)(n, np.where(present, mean, 0.0), var)
+    return with_test(fits, batch)
+
+
+def with_test(fits: AlternativeFits, batch: TestBatch) -> AlternativeFits:
+    """``fits`` (classic sums of squares) with the statistic, df, p-value and status of another test."""
+    return replace(fits, statistic=batch.statistic, pvalue=batch.pvalue, df_between=batch.df_num,
+                   df_within=batch.df_den, status=batch.status)
 
 
 def fits_from_sums(

@@ -1,10 +1,13 @@
-"""Case-deletion scan: the one-way analysis with each kept row left out in turn.
+"""Case-deletion scan: the analysis with each kept row left out in turn.
 
-For every row at once: the F test, p-value, decision at alpha, effect size (eta
-squared) and the largest change in any pairwise comparison if that row alone were
-left out. Each deletion changes one group's sufficient statistics, so the scan is a
-closed-form downdate per row (:func:`.alternatives.leave_one_out`), O(n k) in all,
-not n refits. Rows whose deletion flips the decision are listed first.
+For every row at once: the study's chosen overall test (its statistic, p-value and
+decision at alpha), the effect size (eta squared) and the largest change in any
+pairwise comparison if that row alone were left out. The term scored is the one the
+study's decision is about unless the caller names another. Each deletion changes one
+group's sufficient statistics, so the scan is a closed-form downdate per row
+(:func:`.alternatives.leave_one_out`), O(n k) in all, not n refits; Kruskal-Wallis uses
+exact rank downdates and the permutation F shared permutations (:mod:`.chosen_test`).
+Rows whose deletion flips the decision are listed first.
 
 References
 ----------
@@ -26,11 +29,11 @@ from ..engine.tables import fmt, html_table
 from .alternatives import (
     STATUS_NOTES,
     OnewayInput,
-    base_fit,
-    deletion_fits,
     oneway_input,
 )
 from .mixed_guard import refuse_mixed
+from ..engine.errors import ExplorerError, closest_names
+from .chosen_test import STATISTIC_NAMES, ChosenTest
 
 __all__ = ["CaseDeletionScan", "case_deletion_scan", "nullable"]
 
@@ -45,13 +48,17 @@ def nullable(a: np.ndarray) -> pd.array:
 
 @dataclass(frozen=True, kw_only=True, eq=False)
 class CaseDeletionScan:
-    """The one-way analysis with each row left out (arrays follow ``row_ids``).
+    """The analysis with each row left out (arrays follow ``row_ids``).
 
+    ``term`` is the term scored and ``test`` the overall test (a key of
+    :data:`explorer.engine.spec.OVERALL_TESTS`); ``how`` says how the scan computed it.
     ``statistic``/``pvalue``/``eta_squared`` are NaN where the test is undefined after
     the deletion (``status`` > 0; the sentence is in ``STATUS_NOTES``). ``pair`` names
     the pairwise comparison whose t statistic (difference of means over its standard
     error from the residual mean square) changes most; ``pair_t_before`` and
-    ``pair_t_after`` give it. ``flips`` marks rows whose deletion changes the decision.
+    ``pair_t_after`` give it. ``flips`` marks rows whose deletion changes the decision
+    on ``term``. ``permutations_used`` (permutation test only) is the number of
+    orderings behind each row's p-value.
     """
 
     factor: str
@@ -71,7 +78,10 @@ class CaseDeletionScan:
     base_pvalue: float | None
     base_significant: bool
     term: str = ""
+    test: str = "classic"
+    how: str = ""
     term_pvalues: dict[str, np.ndarray] = field(default_factory=dict)
+    permutations_used: np.ndarray | None = None
     disclosure: Disclosure | None = None
     notes: tuple[str, ...] = field(default=())
 
@@ -101,11 +111,12 @@ class CaseDeletionScan:
         o = self._order()
         with np.errstate(invalid="ignore"):
             change = self.pvalue - (self.base_pvalue if self.base_pvalue is not None else np.nan)
+        extra = {} if self.permutations_used is None else {"orderings used": self.permutations_used[o].astype(np.int64)}
         return pd.DataFrame(
             {
                 "row": self.row_ids[o],
                 "group": self.group[o],
-                "F": nullable(self.statistic[o]),
+                STATISTIC_NAMES[self.test]: nullable(self.statistic[o]),
                 "p-value": nullable(self.pvalue[o]),
                 "change in p-value": nullable(change[o]),
                 "significant": self.significant[o],
@@ -117,6 +128,7 @@ class CaseDeletionScan:
                 "pair t (all rows)": nullable(self.pair_t_before[o]),
                 "pair t (row left out)": nullable(self.pair_t_after[o]),
                 "note": [STATUS_NOTES[int(s)] for s in self.status[o]],
+                **extra,
                 **{f"p-value ({t})": nullable(p[o]) for t, p in self.term_pvalues.items()},
             }
         )
@@ -125,8 +137,8 @@ class CaseDeletionScan:
         frame = self.to_frame().head(20)
         n_flip = int(self.flips.sum())
         caption = (
-            f"Leaving out one row at a time ({self.row_ids.size} rows): {n_flip} deletion(s) flip the decision "
-            f"at alpha {self.alpha:g} (p with all rows = {fmt(self.base_pvalue, 4)})"
+            f"Leaving out one row at a time ({self.row_ids.size} rows): {n_flip} deletion(s) flip the decision on "
+            f"{self.term} at alpha {self.alpha:g} (p with all rows = {fmt(self.base_pvalue, 4)})"
         )
         notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
         return "<div>" + html_table(frame, html.escape(caption), notes) + "</div>"
@@ -187,66 +199,91 @@ def _pairwise_change(
     return names[code], t_before, t_after
 
 
-def case_deletion_scan(study: object, *, alpha: float | None = None, record: bool = True) -> CaseDeletionScan:
-    """Leave each kept row of a one-factor ``study`` out in turn; see :class:`CaseDeletionScan`.
+def scored_term(study: object, term: str | None) -> tuple[str, object]:
+    """The term a scan scores (``term``, else the one the study's decision is about) and its verdict.
 
-    The study is not changed; the ``n`` alternatives examined are added to its
+    Raises :class:`ExplorerError` naming the treatment terms when ``term`` is not one.
+    """
+    decision = study.decision  # type: ignore[attr-defined]
+    name = decision.term if term is None else str(term)
+    try:
+        return name, decision.verdict_for(name)
+    except KeyError:
+        names = [t.term for t in decision.terms]
+        near = closest_names(name, names)
+        hint = f" Did you mean {near[0]!r}?" if near else ""
+        raise ExplorerError(f"{name!r} is not a treatment term of this study; terms: {names}.{hint}") from None
+
+
+def case_deletion_scan(study: object, *, term: str | None = None, alpha: float | None = None,
+                       record: bool = True) -> CaseDeletionScan:
+    """Leave each kept row of ``study`` out in turn; see :class:`CaseDeletionScan`.
+
+    ``term`` is the term whose decision is scored (default: the term the study's
+    decision is about, ``study.decision.term``); the test is the study's chosen overall
+    test. The study is not changed; the ``n`` alternatives examined are added to its
     disclosure count (``record=False`` skips that, for internal re-use).
     """
     refuse_mixed(study, "case-deletion scan")
+    name, verdict = scored_term(study, term)
     if not study.spec.is_oneway:  # type: ignore[attr-defined]
-        return _factorial_scan(study, alpha, record)
+        return _factorial_scan(study, name, verdict, alpha, record)
     data = oneway_input(study, "the case-deletion scan")
+    spec = study.spec  # type: ignore[attr-defined]
     a = data.alpha if alpha is None else float(alpha)
-    fits, new_n, new_mean = deletion_fits(data)
-    base = base_fit(data)
+    chosen = ChosenTest(data, spec)
+    fits, new_n, new_mean, used = chosen.deletion()
     with np.errstate(divide="ignore", invalid="ignore"):
-        msw = np.where(fits.status == 0, fits.ss_within / fits.df_within, np.nan)
-    base_msw = float(base.ss_within[0] / base.df_within[0]) if base.status[0] == 0 else np.nan
+        df_w = data.n - 1 - fits.levels
+        msw = np.where((fits.ss_within > 0) & (df_w > 0), fits.ss_within / df_w, np.nan)
+    gs = data.stats
+    base_msw = float(gs.ss_within / (data.n - data.k)) if data.n > data.k and gs.ss_within > 0 else np.nan
     pair, t_before, t_after = _pairwise_change(data, new_n, new_mean, msw, base_msw)
-    notes = [("Pair t: difference of the two level means over its standard error from the residual mean square "
-             "of the fit in question (all rows, or the row left out).")]
+    notes = [f"Test: {chosen.how}.",
+             ("Pair t: difference of the two level means over its standard error from the residual mean square "
+              "of the fit in question (all rows, or the row left out).")]
     single = int((data.stats.n == 1).sum())
     if single:
         notes.append(f"{single} level(s) have one observation; leaving it out removes the level (one df fewer for the term).")
     if record:
         study.record_search("case deletion", data.n)  # type: ignore[attr-defined]
-    base_p = None if base.status[0] else float(base.pvalue[0])
+    base_p = verdict.pvalue  # type: ignore[attr-defined]
     return CaseDeletionScan(
         factor=data.factor, alpha=a, row_ids=data.row_ids, group=np.asarray(data.labels, dtype=object)[data.codes],
         statistic=fits.statistic, pvalue=fits.pvalue, eta_squared=fits.eta_squared, df_between=fits.df_between,
         df_within=fits.df_within, status=fits.status, pair=pair, pair_t_before=t_before, pair_t_after=t_after,
-        base_statistic=None if base.status[0] else float(base.statistic[0]), base_pvalue=base_p,
-        base_significant=bool(base_p is not None and base_p < a), term=data.factor,
-        disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        base_statistic=verdict.statistic, base_pvalue=base_p,  # type: ignore[attr-defined]
+        base_significant=bool(base_p is not None and base_p < a), term=name, test=spec.test, how=chosen.how,
+        permutations_used=used, disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
         notes=tuple(notes),
     )
 
 
-def _factorial_scan(study: object, alpha: float | None, record: bool) -> CaseDeletionScan:
-    """Case deletion for multi-factor designs (see :mod:`.cell_deletion`); the decision is read
-    from the first treatment factor's main effect, every term's p-value is listed."""
+def _factorial_scan(study: object, name: str, verdict: object, alpha: float | None, record: bool) -> CaseDeletionScan:
+    """Case deletion for multi-factor designs (see :mod:`.cell_deletion`): the decision on ``name`` is
+    scored, every term's p-value is listed."""
     from .cell_deletion import cell_deletion, eta_squared_total
 
-    res = study.results  # type: ignore[attr-defined]
     spec = study.spec  # type: ignore[attr-defined]
     a = float(spec.alpha if alpha is None else alpha)
     per_term, status, data, notes = cell_deletion(study)
-    main = res.main_term
-    m = per_term[main]
+    m = per_term[name]
     if record:
         study.record_search("case deletion", data.n)  # type: ignore[attr-defined]
-    base_p = res.pvalue()
+    base_p = verdict.pvalue  # type: ignore[attr-defined]
     empty = np.full(data.n, np.nan)
-    notes = notes + [(f"Decision read from the {main!r} term ({spec.ss_type} sums of squares); pairwise changes "
-                     "are computed for one-factor studies only.")]
+    notes = [f"Test: classic F of {name!r} ({spec.ss_type} sums of squares) from quadratic updates of the cell means "
+             "(three cell fits per cell)."] + notes + [
+        "Pairwise changes are computed for one-factor studies only."]
     return CaseDeletionScan(
-        factor=main, alpha=a, row_ids=data.row_ids, group=np.asarray(data.labels, dtype=object)[data.codes],
+        factor=name, alpha=a, row_ids=data.row_ids, group=np.asarray(data.labels, dtype=object)[data.codes],
         statistic=m["statistic"], pvalue=m["pvalue"], eta_squared=eta_squared_total(data, m["ss"]),
         df_between=m["df"].astype(np.int64), df_within=per_term["residual"]["df"].astype(np.int64), status=status,
         pair=np.full(data.n, "", dtype=object), pair_t_before=empty, pair_t_after=empty,
-        base_statistic=res.statistic(), base_pvalue=base_p, base_significant=bool(base_p is not None and base_p < a),
-        term=main, term_pvalues={t: v["pvalue"] for t, v in per_term.items() if t != "residual"},
+        base_statistic=verdict.statistic, base_pvalue=base_p,  # type: ignore[attr-defined]
+        base_significant=bool(base_p is not None and base_p < a),
+        term=name, test="classic", how="classic F from quadratic updates of the cell means",
+        term_pvalues={t: v["pvalue"] for t, v in per_term.items() if t != "residual"},
         disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
         notes=tuple(notes),
     )

@@ -21,7 +21,7 @@ import numpy as np
 
 from ..engine.cellfit import CellFit, fit_cells
 from ..engine.cells import layout_cells
-from ..engine.design import term_name
+from ..engine.design import model_terms, term_name
 from ..engine.design_checks import check_design
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError, ExplorerError, closest_names
@@ -34,7 +34,7 @@ __all__ = ["cell_regroup"]
 class _Context:
     """The kept rows of a multi-factor study and the pieces every refit needs."""
 
-    def __init__(self, study: object, factor: str | None) -> None:
+    def __init__(self, study: object, factor: str | None, term: str) -> None:
         from ..engine.factorial import layout_of
 
         res = study.results  # type: ignore[attr-defined]
@@ -56,7 +56,8 @@ class _Context:
         self.j = self.layout.columns.index(self.factor)
         self.col_codes = [np.asarray(view.codes[c])[pos] for c in spec.columns]
         self.levels = self.layout.levels
-        self.term = term_name((spec.factors[0],))
+        self.term = term
+        self.term_column = list(spec.columns).index({term_name(t): t for t in model_terms(spec)}[term][0])
         self.ss_total = self.cells.ss_within + self.cells.ss_between
         self.row_ids = np.asarray(res.fit.row_ids)
         base = fit_cells(self.cells, self.layout.cell_levels, self.layout.columns, self.layout.n_levels, spec)
@@ -69,13 +70,15 @@ class _Context:
         raise KeyError(self.term)
 
     def refit_rows(self, col_codes: list[np.ndarray]) -> tuple[float, int, float, int, int]:
-        """Direct refit from row codes: (term SS, term df, residual SS, residual df, levels of the first factor)."""
+        """Direct refit from row codes: (term SS, term df, residual SS, residual df, levels of the first factor).
+
+        The scored term's 'levels' is that of its first factor (a one-level factor leaves no test)."""
         layout, cell = layout_cells(col_codes, [tuple(lv) for lv in self.full_levels()], self.spec.columns)
         gs = group_stats(self.y, cell, tuple(str(i) for i in range(layout.n_cells)), self.offset)
         check_design(layout, gs.n, self.spec, ())  # what the engine would refuse, this refuses too
         fit = fit_cells(gs, layout.cell_levels, layout.columns, layout.n_levels, self.spec)
         ss, df = self.main_ss(fit)
-        return ss, df, fit.ss_resid, fit.df_resid, len(layout.levels[0])
+        return ss, df, fit.ss_resid, fit.df_resid, len(layout.levels[self.term_column])
 
     def full_levels(self) -> list[tuple[str, ...]]:
         return [tuple(str(i) for i in range(int(c.max()) + 1)) for c in self.col_codes]
@@ -140,13 +143,13 @@ def _moved_ss(ctx: _Context, s: int, t: int, u: float, v: float) -> tuple[float,
     return ctx.main_ss(fit)[0], fit.ss_lack_of_fit
 
 
-def cell_regroup(study: object, factor: str | None = None, *, moves: bool = True):  # type: ignore[no-untyped-def]
+def cell_regroup(study: object, factor: str | None = None, *, term: str, moves: bool = True):  # type: ignore[no-untyped-def]
     """Merges of two levels of ``factor`` and moves of one row to another of its levels, multi-factor designs.
 
     Returns ``(factor, pairs, merge_fits, move_rows, move_from, move_to, move_fits, notes)``
-    with the F test of the first treatment factor for each alternative.
+    with the F test of the model term ``term`` for each alternative.
     """
-    ctx = _Context(study, factor)
+    ctx = _Context(study, factor, term)
     spec, j, lv = ctx.spec, ctx.j, ctx.levels[ctx.j]
     k = len(lv)
     notes: list[str] = []
@@ -215,13 +218,13 @@ def cell_regroup(study: object, factor: str | None = None, *, moves: bool = True
                 m2_t = cells.m2[t] + d_t * d_t * (n_t / (n_t + 1))
                 pure = (m2_total - cells.m2[s] - cells.m2[t]) + down_m2[rows] + m2_t
                 move_block.add(val[:, 0], ctx.main_ss(ctx.base)[1], pure + np.maximum(val[:, 1], 0.0),
-                               ctx.base.df_resid, len(ctx.levels[0]))
+                               ctx.base.df_resid, len(ctx.levels[ctx.term_column]))
     move_fits = move_block.fits(ctx.ss_total)
     moved = np.concatenate(move_rows_l) if move_rows_l else np.zeros(0, dtype=np.int64)
     targets = np.concatenate(move_to_l) if move_to_l else np.zeros(0, dtype=np.int64)
     src = ctx.layout.cell_levels[ctx.cell[moved], j]
     labels = np.asarray(lv, dtype=object)
-    notes.append(f"Regrouping {ctx.factor!r}; the decision is read from the {ctx.term!r} term "
+    notes.append(f"Regrouping {ctx.factor!r}; the decision scored is the classic F of the {ctx.term!r} term "
                  f"({spec.ss_type} sums of squares).")
     return (ctx.factor, [(lv[a], lv[b]) for a, b in pairs], merge_fits,
             ctx.row_ids[moved], labels[src], labels[targets], move_fits, notes)

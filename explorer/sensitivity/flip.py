@@ -1,9 +1,10 @@
 """Flip finder: the fewest rows whose removal changes the decision.
 
-Works in both directions: if the factor's F test currently rejects at alpha, it looks
+Works in both directions: if the decision's test currently rejects at alpha, it looks
 for the smallest set of rows whose removal makes it not reject, and the other way
-round. On request it does the same for one pairwise decision (Tukey-Kramer, at the
-same alpha) instead of the omnibus one.
+round. The decision scored is the study's (its term and chosen overall test) unless the
+caller names another term; on request it does the same for one pairwise decision
+(Tukey-Kramer, at the same alpha) instead of the overall one.
 
 Two searches:
 
@@ -15,8 +16,11 @@ Two searches:
   set it finds need not be the smallest (see the tests for a documented case).
 
 Sets are scored on group sufficient statistics (removal of a set is a closed-form
-downdate); the p-values reported for each step come from a fresh two-pass fit of the
-remaining rows.
+downdate; Kruskal-Wallis by exact rank downdates); the permutation F scores sets against
+the permutation critical value of all rows (stated in the notes). The p-values reported
+for each step, and whether the decision flipped, come from a fresh analysis of the
+remaining rows under the study's test, as the decision would be read after leaving
+those rows out.
 
 References
 ----------
@@ -46,6 +50,7 @@ from ..engine.studentized_range import srange_ppf, srange_sf
 from ..engine.tables import fmt, html_table
 from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
 from .mixed_guard import refuse_mixed
+from .chosen_test import ChosenTest
 
 __all__ = ["FlipSearch", "flip_finder"]
 
@@ -81,6 +86,8 @@ class FlipSearch:
     exact_up_to: int
     sets_examined: int
     flipping_sets_at_size: int | None
+    term: str = ""
+    test: str = "classic"
     disclosure: Disclosure | None = None
     notes: tuple[str, ...] = field(default=())
 
@@ -113,21 +120,28 @@ class FlipSearch:
 
 
 class _Scorer:
-    """Margin of the decision for batches of group statistics: > 1 means 'significant'."""
+    """Margin of the decision for row sets: > 1 means 'significant'.
 
-    def __init__(self, data: OnewayInput, alpha: float, pair: tuple[int, int] | None) -> None:
-        self.data, self.alpha, self.pair = data, alpha, pair
+    The overall decision uses the study's chosen test (statistic over its critical value
+    at alpha); a pairwise decision uses Tukey-Kramer's studentized range.
+    """
 
-    def margin(self, n: np.ndarray, mean: np.ndarray, m2: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """(margin, defined) for each row of ``(m, k)`` arrays."""
+    def __init__(self, data: OnewayInput, alpha: float, pair: tuple[int, int] | None, chosen: ChosenTest) -> None:
+        self.data, self.alpha, self.pair, self.chosen = data, alpha, pair, chosen
+
+    def margin_of(self, sets: np.ndarray, keep: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """(margin, defined) after removing each row set (``(m, s)`` positions) from the kept rows."""
+        n, mean, m2 = _removal_stats(self.data, sets, keep)
+        if self.pair is None:
+            fits = self.chosen.removal(sets, n, mean, m2, keep)
+            ok = fits.status == 0
+            out = np.full(ok.shape, np.nan)
+            crit = self.chosen.critical(fits, self.alpha)
+            out[ok] = fits.statistic[ok] / crit[ok]
+            return out, ok
         fits = evaluate_alternatives(n, mean, m2, self.data.scale())
         ok = fits.status == 0
         out = np.full(ok.shape, np.nan)
-        if self.pair is None:
-            if ok.any():
-                crit = special.fdtri(fits.df_between[ok].astype(float), fits.df_within[ok].astype(float), 1 - self.alpha)
-                out[ok] = fits.statistic[ok] / crit
-            return out, ok
         a, b = self.pair
         ok &= (n[:, a] > 0) & (n[:, b] > 0)
         if not ok.any():
@@ -144,20 +158,25 @@ class _Scorer:
         return out, ok
 
     def pvalue(self, keep: np.ndarray) -> float | None:
-        """Exact p-value of the decision on the kept rows (fresh two-pass fit)."""
+        """p-value of the decision on the kept rows, computed afresh."""
         d = self.data
+        if self.pair is None:
+            return self.chosen.refit(keep)
         gs = group_stats(d.y[keep], d.codes[keep], d.labels, d.offset)
         fits = evaluate_alternatives(gs.n[None, :], gs.mean[None, :], gs.m2[None, :], d.scale())
         if fits.status[0]:
             return None
-        if self.pair is None:
-            return float(fits.pvalue[0])
         a, b = self.pair
         if gs.n[a] == 0 or gs.n[b] == 0:
             return None
         msw = fits.ss_within[0] / fits.df_within[0]
         q = abs(gs.mean[a] - gs.mean[b]) / math.sqrt(msw / 2 * (1 / gs.n[a] + 1 / gs.n[b]))
         return float(srange_sf(q, int(fits.levels[0]), float(fits.df_within[0])).reshape(-1)[0])
+
+    def flipped(self, keep: np.ndarray, want_sig: bool) -> tuple[bool, float | None]:
+        """Whether the decision on the kept rows is the wanted one (fresh analysis), and its p-value."""
+        p = self.pvalue(keep)
+        return (p is not None and ((p < self.alpha) if want_sig else (p >= self.alpha))), p
 
 
 def _removal_stats(data: OnewayInput, sets: np.ndarray, keep_mask: np.ndarray | None = None):  # type: ignore[no-untyped-def]
@@ -194,7 +213,7 @@ def _exact(scorer: _Scorer, want_sig: bool, budget: int, max_size: int) -> tuple
             if chunk.size == 0:
                 break
             sets = chunk.reshape(-1, s)
-            margin, ok = scorer.margin(*_removal_stats(d, sets))
+            margin, ok = scorer.margin_of(sets)
             hit = ok & ((margin > 1) if want_sig else (margin <= 1))
             count += int(hit.sum())
             if hit.any():
@@ -217,7 +236,7 @@ def _greedy(scorer: _Scorer, want_sig: bool, max_steps: int) -> tuple[list[int],
     examined = 0
     for _ in range(max_steps):
         cand = np.flatnonzero(keep)
-        margin, ok = scorer.margin(*_removal_stats(d, cand[:, None], keep))
+        margin, ok = scorer.margin_of(cand[:, None], keep)
         examined += cand.size
         if not ok.any():
             break
@@ -226,7 +245,7 @@ def _greedy(scorer: _Scorer, want_sig: bool, max_steps: int) -> tuple[list[int],
         chosen.append(j)
         keep[j] = False
         mj = margin[np.argmax(score)]
-        if (mj > 1) if want_sig else (mj <= 1):
+        if ((mj > 1) if want_sig else (mj <= 1)) and scorer.flipped(keep, want_sig)[0]:
             return chosen, True, examined
     return chosen, False, examined
 
@@ -234,6 +253,7 @@ def _greedy(scorer: _Scorer, want_sig: bool, max_steps: int) -> tuple[list[int],
 def flip_finder(
     study: object,
     *,
+    term: str | None = None,
     pair: tuple[str, str] | None = None,
     method: str = "auto",
     budget: int = 200_000,
@@ -242,28 +262,35 @@ def flip_finder(
     alpha: float | None = None,
     record: bool = True,
 ) -> FlipSearch:
-    """Find the fewest rows of a one-factor ``study`` whose removal flips the decision.
+    """Find the fewest rows of ``study`` whose removal flips the decision.
 
     Parameters
     ----------
-    pair : two level names to flip that pairwise (Tukey-Kramer) decision instead of the F test's.
+    term : the term whose decision is flipped (default: the term the study's decision is
+        about, ``study.decision.term``), under the study's chosen overall test.
+    pair : two level names to flip that pairwise (Tukey-Kramer) decision instead (one factor).
     method : 'exact' (exhaustive up to ``budget`` sets and ``max_size`` rows), 'greedy', or
         'auto' (exact first; greedy when the exact search finds nothing within its reach).
     budget : largest number of row sets the exact search may score.
     max_steps : most removals the greedy search makes.
     """
+    from .case_deletion import scored_term
+
     if method not in ("auto", "exact", "greedy"):
         raise ExplorerError(f"method must be 'auto', 'exact' or 'greedy', not {method!r}")
     refuse_mixed(study, "flip finder")
-    if not study.spec.is_oneway:  # type: ignore[attr-defined]
+    name, verdict = scored_term(study, term)
+    spec = study.spec  # type: ignore[attr-defined]
+    if not spec.is_oneway:
         if pair is not None:
             raise ExplorerError("pairwise flips are searched in one-factor studies; for this design search the "
-                                "F test of the first factor (leave out pair=)")
-        return _factorial_flip(study, method, max_steps, alpha, record)
+                                "F test of a term (leave out pair=)")
+        return _factorial_flip(study, name, verdict, method, max_steps, alpha, record)
     data = oneway_input(study, "the flip finder")
     a = data.alpha if alpha is None else float(alpha)
+    chosen = ChosenTest(data, spec)
     pair_idx = None
-    target = f"F test of {data.factor}"
+    target = f"{chosen.statistic_name} test of {data.factor} ({spec.test})"
     if pair is not None:
         idx = []
         for lv in pair:
@@ -276,9 +303,9 @@ def flip_finder(
             raise ExplorerError("a pairwise decision needs two different levels")
         pair_idx = (idx[0], idx[1])
         target = f"{pair[0]} vs {pair[1]} (Tukey-Kramer)"
-    scorer = _Scorer(data, a, pair_idx)
+    scorer = _Scorer(data, a, pair_idx, chosen)
     keep_all = np.ones(data.n, dtype=bool)
-    base_p = scorer.pvalue(keep_all)
+    base_p = verdict.pvalue if pair is None else scorer.pvalue(keep_all)  # type: ignore[attr-defined]
     base_sig = base_p is not None and base_p < a
     want_sig = not base_sig
     notes: list[str] = []
@@ -291,35 +318,49 @@ def flip_finder(
         best, covered, examined, count = _exact(scorer, want_sig, budget, max_size)
         used = "exact"
         if best is not None:
-            found, at_size = True, count
-            rows_found = _order_within(scorer, list(best.tolist()), want_sig)
-            notes.append(f"Exact search: every set of up to {covered} row(s) was scored ({examined} sets); "
-                         f"{count} set(s) of {covered} row(s) flip the decision, the one shown moves it furthest.")
+            keep = keep_all.copy()
+            keep[best] = False
+            ok, p_set = scorer.flipped(keep, want_sig)
+            if ok:
+                found, at_size = True, count
+                rows_found = _order_within(scorer, list(best.tolist()), want_sig)
+                notes.append(f"Exact search: every set of up to {covered} row(s) was scored ({examined} sets); "
+                             f"{count} set(s) of {covered} row(s) flip the decision, the one shown moves it furthest.")
+            else:
+                notes.append(f"Exact search: the best-scored set of {covered} row(s) does not flip the decision when "
+                             f"the remaining rows are tested afresh (p = {fmt(p_set, 4)}).")
+                covered -= 1
         else:
             notes.append(f"Exact search: no set of up to {covered} row(s) flips the decision ({examined} sets scored; "
                          f"budget {budget}, at most {max_size} rows).")
     if not found and method in ("auto", "greedy"):
-        chosen, found, g_examined = _greedy(scorer, want_sig, max_steps)
+        picked, found, g_examined = _greedy(scorer, want_sig, max_steps)
         used = "greedy"
         examined += g_examined
-        rows_found = chosen
+        rows_found = picked
         notes.append("Greedy search: each step removes the row that moves the test furthest toward the other "
                      "decision; the set need not be the smallest possible"
                      + (f" (none smaller than {covered + 1} rows exists: exact search)." if covered else "."))
         if not found:
-            notes.append(f"Greedy search stopped after {len(chosen)} removal(s) without flipping the decision.")
+            notes.append(f"Greedy search stopped after {len(picked)} removal(s) without flipping the decision.")
     pvals: list[float | None] = []
     keep = keep_all.copy()
     for j in rows_found:
         keep[j] = False
         pvals.append(scorer.pvalue(keep))
+    if pair is None:
+        notes.append(f"Test: {chosen.how}.")
+        if spec.test == "permutation":
+            notes.append(f"Row sets are scored by F against the permutation critical value of all rows "
+                         f"({fmt(chosen.critical_value(a), 4)}); each step's p-value and the flip itself are "
+                         "checked by a permutation test of the remaining rows.")
     if record:
         study.record_search("flip finder", examined)  # type: ignore[attr-defined]
     return FlipSearch(
         target=target, alpha=a, base_significant=base_sig, base_pvalue=base_p, found=found, method=used,
         rows=tuple(_py_id(data.row_ids[j]) for j in rows_found),
         groups=tuple(data.labels[data.codes[j]] for j in rows_found), pvalues=tuple(pvals),
-        exact_up_to=covered, sets_examined=examined, flipping_sets_at_size=at_size,
+        exact_up_to=covered, sets_examined=examined, flipping_sets_at_size=at_size, term=name, test=spec.test,
         disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
         notes=tuple(notes),
     )
@@ -340,7 +381,7 @@ def _order_within(scorer: _Scorer, rows: list[int], want_sig: bool) -> list[int]
     left = list(rows)
     while left:
         cand = np.asarray(left)
-        margin, ok = scorer.margin(*_removal_stats(scorer.data, cand[:, None], keep))
+        margin, ok = scorer.margin_of(cand[:, None], keep)
         score = np.where(ok, margin if want_sig else -margin, -np.inf)
         j = int(cand[np.argmax(score)])
         out.append(j)
@@ -349,8 +390,9 @@ def _order_within(scorer: _Scorer, rows: list[int], want_sig: bool) -> list[int]
     return out
 
 
-def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | None, record: bool) -> FlipSearch:
-    """Flip finder for factorial and block designs, on the first factor's F test.
+def _factorial_flip(study: object, name: str, verdict: object, method: str, max_steps: int, alpha: float | None,
+                    record: bool) -> FlipSearch:
+    """Flip finder for factorial and block designs, on the F test of the term ``name``.
 
     Exact for single rows (the case-deletion scan covers every row); beyond one row,
     greedy: leave out the row that moves the F test furthest toward the other decision
@@ -361,12 +403,11 @@ def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | N
 
     spec = study.spec  # type: ignore[attr-defined]
     a = float(spec.alpha if alpha is None else alpha)
-    res = study.results  # type: ignore[attr-defined]
-    base_p = res.pvalue()
+    base_p = verdict.pvalue  # type: ignore[attr-defined]
     base_sig = base_p is not None and base_p < a
     want_sig = not base_sig
-    term = f"F test of {res.main_term}"
-    scan = case_deletion_scan(study, alpha=a, record=False)
+    term = f"F test of {name}"
+    scan = case_deletion_scan(study, term=name, alpha=a, record=False)
     examined = int(scan.row_ids.size)
     notes: list[str] = []
     found = False
@@ -413,7 +454,7 @@ def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | N
                     continue
                 rows.append(_py_id(sc.row_ids[j]))
                 groups.append(str(sc.group[j]))
-                pvals.append(tmp.results.pvalue())
+                pvals.append(tmp.results.pvalue(name))
                 moved = True
                 break
             if not moved:
@@ -422,7 +463,7 @@ def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | N
             if p_now is not None and ((p_now < a) if want_sig else (p_now >= a)):
                 found = True
                 break
-            sc = case_deletion_scan(tmp, alpha=a, record=False)
+            sc = case_deletion_scan(tmp, term=name, alpha=a, record=False)
             examined += int(sc.row_ids.size)
         method_used = "greedy"
         notes.append("Greedy search: each step leaves out the row that moves the F test furthest toward the other "
@@ -437,6 +478,6 @@ def _factorial_flip(study: object, method: str, max_steps: int, alpha: float | N
     return FlipSearch(
         target=term, alpha=a, base_significant=base_sig, base_pvalue=base_p, found=found, method=method_used,
         rows=tuple(rows), groups=tuple(groups), pvalues=tuple(pvals), exact_up_to=covered, sets_examined=examined,
-        flipping_sets_at_size=at_size, disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        flipping_sets_at_size=at_size, term=name, test="classic", disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
         notes=tuple(notes),
     )

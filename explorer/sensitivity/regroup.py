@@ -26,24 +26,25 @@ from ..engine.disclosure import Disclosure
 from ..engine.tables import fmt, html_table
 from .alternatives import (
     AlternativeFits,
-    base_fit,
-    evaluate_alternatives,
     leave_one_out,
     oneway_input,
 )
 from .case_deletion import nullable
 from .mixed_guard import refuse_mixed
+from .case_deletion import nullable, scored_term
+from .chosen_test import STATISTIC_NAMES, ChosenTest
 
 __all__ = ["RegroupScan", "regroup_scan"]
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
 class RegroupScan:
-    """F tests after each merge of two levels and each move of one row to another level.
+    """The decision's test after each merge of two levels and each move of one row to another level.
 
-    Merges: ``merge_levels[i]`` pairs with ``merge_fits`` entry ``i``. Moves: row
-    ``move_rows[j]`` from ``move_from[j]`` to ``move_to[j]`` pairs with ``move_fits``
-    entry ``j``.
+    ``factor`` is the factor regrouped, ``term`` the term whose decision is scored and
+    ``test`` the overall test. Merges: ``merge_levels[i]`` pairs with ``merge_fits``
+    entry ``i``. Moves: row ``move_rows[j]`` from ``move_from[j]`` to ``move_to[j]``
+    pairs with ``move_fits`` entry ``j``.
     """
 
     factor: str
@@ -56,6 +57,8 @@ class RegroupScan:
     move_from: np.ndarray
     move_to: np.ndarray
     move_fits: AlternativeFits
+    term: str = ""
+    test: str = "classic"
     disclosure: Disclosure | None = None
     notes: tuple[str, ...] = field(default=())
 
@@ -80,7 +83,7 @@ class RegroupScan:
                 "row": pd.array(row, dtype=object),
                 "from": src,
                 "to": dst,
-                "F": nullable(fits.statistic),
+                STATISTIC_NAMES[self.test]: nullable(fits.statistic),
                 "p-value": nullable(fits.pvalue),
                 "significant": fits.significant(self.alpha),
                 "flips decision": flips,
@@ -111,30 +114,36 @@ class RegroupScan:
         merges = self.merges_frame()
         moves = self.moves_frame()
         moves = moves[moves["flips decision"]].head(20)
-        cap1 = (f"Merging two levels of {self.factor} ({len(merges)} pairs; p now {fmt(self.base_pvalue, 4)}): "
-                f"{len(self.merge_flips)} flip the decision at alpha {self.alpha:g}")
+        cap1 = (f"Merging two levels of {self.factor} ({len(merges)} pairs; decision on {self.term}, p now "
+                f"{fmt(self.base_pvalue, 4)}): {len(self.merge_flips)} flip the decision at alpha {self.alpha:g}")
         cap2 = f"Moving one row to another level: {len(self.move_flips)} of {self.move_rows.size} moves flip the decision"
         notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
         return ("<div>" + html_table(merges, html.escape(cap1)) + html_table(moves, html.escape(cap2), notes) + "</div>")
 
 
 def regroup_scan(
-    study: object, *, factor: str | None = None, alpha: float | None = None, moves: bool = True, record: bool = True
+    study: object, *, factor: str | None = None, term: str | None = None, alpha: float | None = None,
+    moves: bool = True, record: bool = True,
 ) -> RegroupScan:
     """Every merge of two levels and every move of one row to another level of a factor of ``study``.
 
-    One-factor studies: closed-form updates of the group statistics. Factorial and block
-    designs (see :mod:`.cell_regroup`): ``factor`` names the factor to regroup (default
-    the first), and the decision is read from the first factor's F test. The study is
-    not changed; the alternatives examined are added to its disclosure. ``moves=False``
-    skips the row moves (``n (k - 1)`` alternatives).
+    ``term`` is the term whose decision is scored (default: the term the study's decision
+    is about), under the study's chosen overall test. One-factor studies: closed-form
+    updates of the group statistics (rank sums for Kruskal-Wallis, shared permutations
+    for the permutation F; see :mod:`.chosen_test`). Factorial and block designs (see
+    :mod:`.cell_regroup`): ``factor`` names the factor to regroup (default the first).
+    The study is not changed; the alternatives examined are added to its disclosure.
+    ``moves=False`` skips the row moves (``n (k - 1)`` alternatives).
     """
     refuse_mixed(study, "regroup scan")
+    name, verdict = scored_term(study, term)
     if not study.spec.is_oneway:  # type: ignore[attr-defined]
-        return _factorial_regroup(study, factor, alpha, moves, record)
+        return _factorial_regroup(study, factor, name, verdict, alpha, moves, record)
     data = oneway_input(study, "the regroup scan")
+    spec = study.spec  # type: ignore[attr-defined]
+    chosen = ChosenTest(data, spec)
     a = data.alpha if alpha is None else float(alpha)
-    gs, k, scale = data.stats, data.k, data.scale()
+    gs, k = data.stats, data.k
     labels = data.labels
     # Merges: the pooled group takes the first level's place, the second is emptied.
     pairs = [(i, j) for i in range(k) for j in range(i + 1, k)]
@@ -146,8 +155,7 @@ def regroup_scan(
         pooled = gs.merged([i, j], f"{labels[i]}+{labels[j]}")
         n_m[r, i], mean_m[r, i], m2_m[r, i] = pooled.n[i], pooled.mean[i], pooled.m2[i]
         n_m[r, j], mean_m[r, j], m2_m[r, j] = 0.0, 0.0, 0.0
-    merge_fits = evaluate_alternatives(n_m, mean_m, m2_m, scale) if P else evaluate_alternatives(
-        np.zeros((0, k)), np.zeros((0, k)), np.zeros((0, k)), scale)
+    merge_fits = chosen.merges(n_m, mean_m, m2_m, pairs)
     # Moves: row i leaves its group g (downdate) and joins h (update).
     rows_l, src_l, dst_l = [], [], []
     n_parts, mean_parts, m2_parts = [], [], []
@@ -179,29 +187,31 @@ def regroup_scan(
             src_l.append(gi)
             dst_l.append(np.full(m, h))
     if n_parts:
-        move_fits = evaluate_alternatives(np.vstack(n_parts), np.vstack(mean_parts), np.vstack(m2_parts), scale)
         ridx = np.concatenate(rows_l)
         src = np.concatenate(src_l)
         dst = np.concatenate(dst_l)
         order = np.lexsort((dst, ridx))
-        move_fits = _take(move_fits, order)
         ridx, src, dst = ridx[order], src[order], dst[order]
+        move_fits = chosen.moves(np.vstack(n_parts)[order], np.vstack(mean_parts)[order], np.vstack(m2_parts)[order],
+                                 ridx, dst)
     else:
-        move_fits = evaluate_alternatives(np.zeros((0, k)), np.zeros((0, k)), np.zeros((0, k)), scale)
+        move_fits = chosen.moves(np.zeros((0, k)), np.zeros((0, k)), np.zeros((0, k)), np.zeros(0, dtype=np.int64),
+                                 np.zeros(0, dtype=np.int64))
         ridx = src = dst = np.zeros(0, dtype=np.int64)
     lab = np.asarray(labels, dtype=object)
-    base = base_fit(data)
-    base_p = None if base.status[0] else float(base.pvalue[0])
+    base_p = verdict.pvalue  # type: ignore[attr-defined]
     count = P + int(ridx.size)
     notes = [("A merge pools two levels into one (one df fewer for the term); a move puts one row under "
-             "another level (a unit logged under the wrong level).")]
+             "another level (a unit logged under the wrong level)."), f"Test: {chosen.how}."]
+    if spec.test == "permutation":
+        notes.append("Each merge and move is a permutation test of that grouping, all from the same orderings.")
     if record:
         study.record_search("regroup scan", count)  # type: ignore[attr-defined]
     return RegroupScan(
         factor=data.factor, alpha=a, base_pvalue=base_p, base_significant=bool(base_p is not None and base_p < a),
         merge_levels=tuple((labels[i], labels[j]) for i, j in pairs), merge_fits=merge_fits,
         move_rows=data.row_ids[ridx], move_from=lab[src], move_to=lab[dst], move_fits=move_fits,
-        disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        term=name, test=spec.test, disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
         notes=tuple(notes),
     )
 
@@ -211,19 +221,20 @@ def _take(f: AlternativeFits, order: np.ndarray) -> AlternativeFits:
 
 
 
-def _factorial_regroup(study: object, factor: str | None, alpha: float | None, moves: bool,
-                       record: bool) -> RegroupScan:
+def _factorial_regroup(study: object, factor: str | None, term: str, verdict: object, alpha: float | None,
+                       moves: bool, record: bool) -> RegroupScan:
     from .cell_regroup import cell_regroup
 
     spec = study.spec  # type: ignore[attr-defined]
     a = float(spec.alpha if alpha is None else alpha)
-    name, pairs, merge_fits, rows, src, dst, move_fits, notes = cell_regroup(study, factor, moves=moves)
-    base_p = study.results.pvalue()  # type: ignore[attr-defined]
+    name, pairs, merge_fits, rows, src, dst, move_fits, notes = cell_regroup(study, factor, term=term, moves=moves)
+    base_p = verdict.pvalue  # type: ignore[attr-defined]
     if record:
         study.record_search("regroup scan", len(pairs) + int(rows.size))  # type: ignore[attr-defined]
     return RegroupScan(
         factor=name, alpha=a, base_pvalue=base_p, base_significant=bool(base_p is not None and base_p < a),
         merge_levels=tuple(pairs), merge_fits=merge_fits, move_rows=rows, move_from=src, move_to=dst,
-        move_fits=move_fits, disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        move_fits=move_fits, term=term, test="classic",
+        disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
         notes=tuple(notes),
     )

@@ -7,8 +7,10 @@ can be drawn as a specification curve (Simonsohn et al. 2020). The choices cross
   residual exceeds 3 in absolute value; rows whose Cook's distance exceeds 4/n; rows
   the Bonferroni outlier test flags at alpha (one pass on the model of that
   specification, see :mod:`.influence`);
-* **test**: the classic F test, Welch's F test for unequal variances (Welch 1951), or
-  the rank-based Kruskal-Wallis test (Kruskal and Wallis 1952);
+* **test**: the study's chosen overall test first (the default specification is the
+  study's own analysis), then the classic F, Welch's F for unequal variances (Welch
+  1951) and the rank-based Kruskal-Wallis test (Kruskal and Wallis 1952); any of the
+  overall tests may be listed (:data:`.spec.OVERALL_TESTS`);
 * **transform** of the response: none, or the natural log (only when every value is
   positive; otherwise the log specifications are left out and a note says so);
 * **merges**: every subset of the level merges the user marks as plausible.
@@ -54,6 +56,8 @@ from .alternatives import OnewayInput, oneway_input
 from .case_deletion import nullable
 from .influence import influence_measures
 from .mixed_guard import refuse_mixed
+from ..inference.omnibus import overall_test
+from ..engine.spec import OVERALL_TESTS
 from .sweep_coincide import distinct_analyses
 
 __all__ = ["OUTLIER_RULES", "TESTS", "TRANSFORMS", "SweepResult", "robustness_sweep"]
@@ -65,12 +69,10 @@ OUTLIER_RULES = {
     "cooks": "leave out Cook's distance > 4/n",
     "outlier_test": "leave out rows the Bonferroni outlier test flags",
 }
-#: Omnibus tests: name -> plain description.
-TESTS = {
-    "classic": "classic F test (equal variances)",
-    "welch": "Welch F test (unequal variances)",
-    "rank": "Kruskal-Wallis rank test",
-}
+#: Overall tests: name -> plain description (the study's tests, :data:`.spec.OVERALL_TESTS`).
+TESTS = dict(OVERALL_TESTS)
+#: Tests swept by default after the study's own.
+DEFAULT_TESTS = ("classic", "welch", "kruskal")
 #: Response transforms: name -> plain description.
 TRANSFORMS = {"none": "response as measured", "log": "natural log of the response"}
 
@@ -95,6 +97,8 @@ class SweepResult:
     share_agreeing: float | None
     share_significant: float | None
     n_specifications: int
+    term: str = ""
+    test: str = "classic"
     disclosure: Disclosure | None = None
     notes: tuple[str, ...] = field(default=())
     n_combinations: int | None = None
@@ -115,8 +119,8 @@ class SweepResult:
     def _repr_html_(self) -> str:
         verdict = "significant" if self.current_significant else "not significant"
         share = "—" if self.share_agreeing is None else f"{self.share_agreeing:.0%}"
-        cap = (f"Robustness sweep: {self.n_specifications} specifications; {share} agree with the current decision "
-               f"({verdict} at alpha {self.alpha:g})")
+        cap = (f"Robustness sweep of {self.term}: {self.n_specifications} specifications; {share} agree with the "
+               f"current decision ({verdict} at alpha {self.alpha:g}, {self.test} test)")
         best = self.strongest_choice
         notes = list(self.notes)
         if best is not None:
@@ -126,14 +130,6 @@ class SweepResult:
             notes.append(self.disclosure.sentence())
         shown = self.table.drop(columns=["rows left out"])
         return "<div>" + html_table(shown, html.escape(cap), tuple(notes)) + "</div>"
-
-
-def _test(results: object, test: str) -> OmnibusTest:
-    if test == "classic":
-        return classic_f(results)  # type: ignore[arg-type]
-    if test == "welch":
-        return welch_f(results)  # type: ignore[arg-type]
-    return kruskal_wallis(results)  # type: ignore[arg-type]
 
 
 def _merge_codes(data: OnewayInput, merges: Sequence[Sequence[str]], chosen: tuple[int, ...]):  # type: ignore[no-untyped-def]
@@ -247,7 +243,7 @@ def _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes):  # 
                 for test in tests:
                     stat = d1 = d2 = p = None
                     if isinstance(res, Results):
-                        out = _test(res, test)
+                        out = overall_test(res, test)
                         stat, d1, d2, p = out.statistic, out.df_num, out.df_den, out.pvalue
                         note = " ".join(out.notes) if p is None else ""
                     else:
@@ -261,11 +257,12 @@ def _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes):  # 
     return rows, responses
 
 
-def _factorial_rows(study, outlier_rules, transforms, merges, a, notes):  # type: ignore[no-untyped-def]
+def _factorial_rows(study, term, outlier_rules, transforms, merges, a, notes):  # type: ignore[no-untyped-def]
     """Specifications of a factorial or block design, each analysed by the engine on a derived view.
 
     Merges pool levels of the first treatment factor; outlier rules read the fit of the
-    specification (influence measures from its cell-level leverages).
+    specification (influence measures from its cell-level leverages); ``term``'s F test
+    is read from each.
     """
     import dataclasses
 
@@ -308,9 +305,9 @@ def _factorial_rows(study, outlier_rules, transforms, merges, a, notes):  # type
                         except DesignError as exc:
                             res = str(exc)
                 stat = d1 = d2 = p = None
-                note = res if isinstance(res, str) else " ".join(res.partition.notes) if res.pvalue() is None else ""
+                note = res if isinstance(res, str) else " ".join(res.partition.notes) if res.pvalue(term) is None else ""
                 if isinstance(res, Results):
-                    row = res.partition.row(res.main_term)
+                    row = res.partition.row(term)
                     stat, d1, d2, p = row.statistic, float(row.df), float(res.df_resid), row.pvalue
                 n_used = res.n_used if isinstance(res, Results) else int(kept_pos.size) - len(left_out)
                 levels = len(res.levels[factor].labels) if isinstance(res, Results) else None
@@ -335,8 +332,9 @@ def _pooled_groups(present: tuple[str, ...], chosen: list[tuple[str, ...]]) -> l
 def robustness_sweep(
     study: object,
     *,
+    term: str | None = None,
     outlier_rules: Sequence[str] = tuple(OUTLIER_RULES),
-    tests: Sequence[str] = tuple(TESTS),
+    tests: Sequence[str] | None = None,
     transforms: Sequence[str] = tuple(TRANSFORMS),
     merges: Sequence[Sequence[str]] = (),
     alpha: float | None = None,
@@ -344,34 +342,46 @@ def robustness_sweep(
 ) -> SweepResult:
     """Run every combination of the listed choices on ``study``; see :class:`SweepResult`.
 
-    The first option of each choice is the default specification (by default: no
-    outlier rule, classic F, no transform, no merge). ``merges`` lists level groups (of
-    the first factor) the user considers plausible to pool, e.g. ``[["N2", "N3"]]``;
-    every subset of them is a specification. Factorial and block designs are swept with
-    the classic F test of the first factor (Welch and rank tests are one-factor tests),
-    each specification analysed by the engine on a derived view.
+    The first option of each choice is the default specification, which is the study's
+    own analysis: no outlier rule, the study's chosen test (``tests`` defaults to it,
+    then the classic F, Welch F and Kruskal-Wallis), no transform, no merge. ``term`` is
+    the term whose decision is scored (default: the term the study's decision is
+    about). ``merges`` lists level groups (of the first factor) the user considers
+    plausible to pool, e.g. ``[["N2", "N3"]]``; every subset of them is a specification.
+    Factorial and block designs are swept with the classic F test of ``term`` (the
+    other tests are one-factor tests), each specification analysed by the engine on a
+    derived view.
     """
-    a = float(study.spec.alpha if alpha is None else alpha)  # type: ignore[attr-defined]
+    from .case_deletion import scored_term
+
+    spec = study.spec  # type: ignore[attr-defined]
+    name, verdict = scored_term(study, term)
+    a = float(spec.alpha if alpha is None else alpha)
     outlier_rules = _check_options("outlier_rules", outlier_rules, OUTLIER_RULES)
+    if tests is None:
+        tests = tuple(dict.fromkeys((spec.test, *DEFAULT_TESTS)))
     tests = _check_options("tests", tests, TESTS)
     transforms = _check_options("transforms", transforms, TRANSFORMS)
     notes: list[str] = []
     refuse_mixed(study, "robustness sweep")
-    if study.spec.is_oneway:  # type: ignore[attr-defined]
+    if spec.is_oneway:
         rows, responses = _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes)
     else:
         if tests != ("classic",):
-            notes.append("Welch and rank tests are one-factor tests; this design is swept with the classic F test only.")
+            notes.append("Welch, Brown-Forsythe, rank and permutation tests are one-factor tests; this design is swept "
+                         "with the classic F test only.")
             tests = ("classic",)
-        rows, responses = _factorial_rows(study, outlier_rules, transforms, merges, a, notes)
+        rows, responses = _factorial_rows(study, name, outlier_rules, transforms, merges, a, notes)
+    notes.insert(0, f"Scored: the decision on {name}; the default specification is the study's own analysis "
+                    f"({tests[0]} test).")
     every = pd.DataFrame(rows)
     table, coincide = distinct_analyses(every)
     notes.extend(coincide)
     p = table["p-value"].astype(float).to_numpy()
     defined = np.isfinite(p)
     sig = defined & (np.nan_to_num(p, nan=1.0) < a)
-    base = study.results  # type: ignore[attr-defined]
-    current = bool(base.significant(alpha=a))
+    base_p = verdict.pvalue  # type: ignore[attr-defined]
+    current = bool(base_p is not None and base_p < a)
     table["significant"] = sig
     table["agrees with current decision"] = np.where(defined, sig == current, False)
     rank = np.full(p.size, np.nan)
@@ -424,6 +434,6 @@ def robustness_sweep(
         alpha=a, current_significant=current, default_pvalue=default_p, table=table, single_choice=single_df,
         share_agreeing=float(table["agrees with current decision"].sum() / n_def) if n_def else None,
         share_significant=float(sig.sum() / n_def) if n_def else None, n_specifications=len(table),
-        disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        term=name, test=tests[0], disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
         notes=tuple(notes), n_combinations=len(every),
     )

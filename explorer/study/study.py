@@ -11,7 +11,7 @@ from __future__ import annotations
 import json
 import warnings
 from collections.abc import Callable, Iterable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -23,12 +23,13 @@ from ..engine.disclosure import Disclosure
 from ..engine.edits import DropRows, DropUnit, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, RestoreUnit
 from ..engine.errors import DesignError, EditError, ReplayError
 from ..engine.moves import MovedRow, moved_rows
+from .decision import Decision, decide
+from .output_files import write_text_atomic
+from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 from ..engine.results import Results
 from ..engine.spec import ModelSpec
 from ..engine.table_checks import column_names
 from ..engine.view import DataView, initial_view
-from .output_files import write_text_atomic
-from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 
 if TYPE_CHECKING:
     from ..inference.battery import Battery
@@ -40,13 +41,14 @@ if TYPE_CHECKING:
     from ..sensitivity.regroup import RegroupScan
     from ..sensitivity.sweep import SweepResult
     from ..sensitivity.unit_deletion import UnitDeletionScan
+    from ..inference.simple_effects import SimpleEffects
 
 __all__ = ["Study", "StudyEvent", "Disclosure"]
 
 
 @dataclass(frozen=True)
 class StudyEvent:
-    """What changed: ``kind`` is 'edit', 'undo', 'redo', 'reset' or 'search'."""
+    """What changed: ``kind`` is 'edit', 'undo', 'redo', 'reset', 'search' or 'spec' (the overall test)."""
 
     kind: str
     edit: Edit | None
@@ -65,6 +67,9 @@ class Study:
     interactions : cross the treatment factors (full factorial) when True.
     ss_type : 'I', 'II' or 'III' sums of squares for multi-factor designs.
     alpha : level at which decisions are read.
+    test : the overall test the decision is read from: 'classic' (the F tests of the
+        model's terms), or for one factor without blocks 'welch', 'brown-forsythe',
+        'kruskal' or 'permutation' (see :data:`explorer.engine.spec.OVERALL_TESTS`).
     id_column : column of unique row labels (panel, sample or plot ids) used as row ids
         in edits, charts and saved files; by default the index (or row positions).
     terms : the treatment terms explicitly, e.g. ``["N", "P", "K", "N × P"]``.
@@ -89,6 +94,7 @@ class Study:
         interactions: bool = True,
         ss_type: str = "II",
         alpha: float = 0.05,
+        test: str = "classic",
         id_column: str | None = None,
         terms: Sequence[str | Sequence[str]] | None = None,
         max_order: int | None = None,
@@ -105,7 +111,7 @@ class Study:
                          terms=None if terms is None else tuple(terms),  # type: ignore[arg-type]
                          max_order=max_order, random=random, nested=nested or (),  # type: ignore[arg-type]
                          subject=subject, within=within,  # type: ignore[arg-type]
-                         variance_method=variance_method)  # type: ignore[arg-type]
+                         variance_method=variance_method, test=test)  # type: ignore[arg-type]
         self._init(build_dataset(data, response, spec.columns, id_column), spec,
                    data_source=data if isinstance(data, (str, Path)) else None)
 
@@ -118,6 +124,7 @@ class Study:
         self._log: list[Edit] = []
         self._views: list[DataView] = [initial_view(dataset)]
         self._results: dict[int, Results] = {}
+        self._decisions: dict[int, tuple[Results, Decision]] = {}
         self._position = 0
         self._made = 0
         self._undos = 0
@@ -153,7 +160,50 @@ class Study:
     @property
     def baseline(self) -> Results:
         """Results on the unedited data."""
-        return self._results[0]
+        return self._results_at(0)
+
+    @property
+    def decision(self) -> Decision:
+        """What the current view concludes, about which term, under the chosen test (see :mod:`.decision`).
+
+        Computed once per view and test; every surface (header, history, comparison,
+        scans, report, command line) reads this value.
+        """
+        return self._decision_at(self._position)
+
+    @property
+    def baseline_decision(self) -> Decision:
+        """The decision on the unedited data, under the same test and alpha."""
+        return self._decision_at(0)
+
+    def _decision_at(self, pos: int) -> Decision:
+        res = self._results_at(pos)
+        cache = self.__dict__.setdefault("_decisions", {})  # position -> (results, decision)
+        hit = cache.get(pos)
+        if hit is None or hit[0] is not res:  # a redo branch or a new test made other results
+            hit = cache[pos] = (res, decide(res))
+        return hit[1]
+
+    def set_test(self, test: str) -> Decision:
+        """Read the decision from another overall test; recorded as a specification choice.
+
+        ``test`` is a key of :data:`explorer.engine.spec.OVERALL_TESTS`; the tests other
+        than 'classic' need one factor without blocks. Returns the new decision.
+        """
+        new_spec = replace(self.spec, test=test)
+        if new_spec.test == self.spec.test:
+            return self.decision
+        old = self.spec.test
+        self.spec = new_spec
+        self._results = {}
+        self.__dict__["_decisions"] = {}
+        self._record_choice("overall test", old, new_spec.test)
+        self._emit("spec", None)
+        return self.decision
+
+    def _record_choice(self, what: str, old: object, new: object) -> None:
+        """Count a specification choice as one alternative analysis examined (kept in the study file)."""
+        self._searches.append({"what": f"specification: {what} {old} -> {new}", "count": 1})
 
     @property
     def set_aside(self) -> tuple[SetAsideRow, ...]:
@@ -362,6 +412,13 @@ class Study:
         if path is not None:
             write_text_atomic(path, code, overwrite=overwrite, protect=self.files_read())
         return code
+
+    def simple_effects(self, factor: str, within: str, **options: Any) -> SimpleEffects:
+        """The test of ``factor`` at each level of ``within`` with the full model's residual mean square and a
+        stated family-wise adjustment (see :func:`explorer.inference.simple_effects.simple_effects`)."""
+        from .simple_effects import simple_effects
+
+        return simple_effects(self.results, factor, within, **options)
 
     def battery(self, **options: Any) -> Battery:
         """The one-way battery on the current view (see :func:`explorer.inference.battery.run_battery` for options)."""

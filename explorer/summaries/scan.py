@@ -77,7 +77,7 @@ def set_aside_scan(
     spec = study.spec
     a = spec.alpha if alpha is None else float(alpha)
     now = study.results
-    t = term or now.main_term
+    t = term or study.decision.term
     p_now = now.pvalue(t)
     alts: list[tuple[str, SummaryView]] = []
     set_aside = set(view.set_aside)

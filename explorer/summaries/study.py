@@ -30,7 +30,7 @@ from ..engine.analysis import analyze
 from ..engine.cells import layout_cells
 from ..engine.dataset import Dataset, _label, build_dataset
 from ..engine.edits import Edit, MergeLevels, RenameLevel, edit_from_dict
-from ..engine.errors import DataError, DesignError, EditError, ReplayError
+from ..engine.errors import DataError, DesignError, EditError, ExplorerError, ReplayError
 from ..engine.factorial import factorial_from_cells
 from ..engine.fitrows import RowSet
 from ..engine.groupstats import pool_groups
@@ -82,6 +82,9 @@ class SummaryStudy(Study):
     source : Parquet/CSV path(s) or a pandas DataFrame (read by DuckDB), a Spark
         DataFrame (summarised by Spark), or a source object from this package.
     response, factors, blocks, interactions, ss_type, alpha : as for :class:`~explorer.study.Study`.
+    test : 'classic', or with one factor 'welch' or 'brown-forsythe' (exact from the
+        summaries); the rank and permutation tests need every row and are refused (run
+        them on :meth:`sample_study`, which says it is a sample).
     sample_size : rows drawn (seeded, by the engine) for residuals and charts; 0 for none.
     seed : the sample's seed.
     """
@@ -96,15 +99,17 @@ class SummaryStudy(Study):
         interactions: bool = True,
         ss_type: str = "II",
         alpha: float = 0.05,
+        test: str = "classic",
         sample_size: int = 2000,
         seed: int = 0,
     ) -> None:
         spec = ModelSpec(response=response, factors=factors, blocks=blocks,  # type: ignore[arg-type]
-                         interactions=interactions, ss_type=ss_type, alpha=alpha)  # type: ignore[arg-type]
+                         interactions=interactions, ss_type=ss_type, alpha=alpha, test=test)  # type: ignore[arg-type]
         self._setup(as_source(source), spec, int(sample_size), int(seed))
         self._read_files = _local_files(source)
 
     def _setup(self, source: Any, spec: ModelSpec, sample_size: int, seed: int) -> None:
+        _summary_test(spec.test)
         self._read_files = _local_files(source)
         self._own_files: list[Path] = []
         self.source = source
@@ -472,6 +477,11 @@ class SummaryStudy(Study):
         return self.apply(RestoreCell(factors=tuple(cell), levels=tuple(str(v) for v in cell.values()), reason=reason))
 
     # ------------------------------------------------------------ checks and scans
+    def set_test(self, test: str) -> Any:
+        """As :meth:`Study.set_test`; the rank and permutation tests are refused (they need every row)."""
+        _summary_test(test)
+        return super().set_test(test)
+
     def battery(self, **options: Any) -> Any:
         """The one-way battery: exact parts from the summaries, row parts from the sample
         (see :func:`explorer.summaries.battery.summary_battery`)."""
@@ -592,7 +602,7 @@ class SummaryStudy(Study):
             "from explorer.summaries import SummaryStudy",
             f"study = SummaryStudy({lit(source)}, "
             f"response={lit(s.response)}, factors={lit(list(s.factors))}, blocks={lit(list(s.blocks))}, "
-            f"interactions={lit(bool(s.interactions))}, ss_type={lit(s.ss_type)}, alpha={lit(float(s.alpha))}, "
+            f"interactions={lit(bool(s.interactions))}, ss_type={lit(s.ss_type)}, alpha={lit(float(s.alpha))}, test={lit(s.test)}, "
             f"sample_size={lit(int(self.sample_size))}, seed={lit(int(self.seed))})",
         ]
         lines += [f"study.apply(edit_from_dict({lit(e.to_dict())}))" for e in self.edits]
@@ -612,6 +622,14 @@ def _local_files(source: Any) -> list[Path]:
     """The existing local files named by a source argument (a path or a list of paths), resolved."""
     items = source if isinstance(source, (list, tuple)) else [source]
     return [Path(x).resolve() for x in items if isinstance(x, (str, Path)) and Path(x).is_file()]
+
+
+def _summary_test(test: str) -> None:
+    if test in ("kruskal", "permutation"):
+        raise ExplorerError(
+            f"the {test} test needs every row, and a summary-backed study holds cell summaries; read the decision "
+            "from 'classic', 'welch' or 'brown-forsythe' (exact from the summaries), or run the rank or permutation "
+            "test on study.sample_study() (a seeded sample, and it says so)")
 
 
 def _ro(a: np.ndarray) -> np.ndarray:

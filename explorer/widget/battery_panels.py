@@ -21,6 +21,7 @@ from explorer.engine.tables import fmt, html_table
 from explorer.inference.assumptions import bartlett, levene, shapiro_residuals
 from explorer.inference.battery import Battery, run_battery
 from explorer.inference.letters import compact_letters
+from explorer.engine.tables import html_table
 
 from .panels import PanelContext, explains_refusals, panel
 
@@ -30,7 +31,7 @@ GROUP = "Tests"
 _CACHE: OrderedDict[tuple, tuple[Results, Battery]] = OrderedDict()
 _LETTERS = {"tukey-kramer": "tukey", "games-howell": "games-howell", "holm": "pairwise-t", "dunnett": "tukey"}
 _OMNIBUS = {"classic": "classic", "welch": "welch", "brown-forsythe": "brown_forsythe",
-            "kruskal-wallis": "kruskal_wallis"}
+            "kruskal": "kruskal_wallis", "permutation": "permutation"}
 
 
 def battery_for(ctx: PanelContext) -> Battery:
@@ -53,22 +54,20 @@ def battery_for(ctx: PanelContext) -> Battery:
 
 
 def chosen_omnibus(bat: Battery, choice: str) -> Any:
-    return getattr(bat, _OMNIBUS.get(choice, "classic"))
+    """The battery's entry for the study's test (``None`` when the battery did not run it)."""
+    return getattr(bat, _OMNIBUS.get(choice, "classic"), None)
 
 
 @panel("overall_tests", "Tests of equal level means", group=GROUP, order=10)
 @explains_refusals
 def overall_tests(ctx: PanelContext) -> str:
     if not ctx.results.spec.is_oneway:
-        return _multi_factor_partitions(ctx.results)
+        return _multi_factor_partitions(ctx.results, ctx.study.decision)
     bat = battery_for(ctx)
-    test = chosen_omnibus(bat, ctx.settings.omnibus)
-    if test.pvalue is None:
-        verdict = "undefined on this view"
-    else:
-        verdict = "differences detected" if test.pvalue < bat.alpha else "no differences detected"
-    head = (f"<div class='vx-decision'><b>Chosen test: {html.escape(test.method)}</b>: "
-            f"statistic {fmt(test.statistic, 5)}, p = {fmt(test.pvalue, 4)}; {verdict} at alpha {bat.alpha:g}.</div>")
+    d = ctx.study.decision
+    caveat = f" {html.escape(d.caveat)}" if d.caveat else ""
+    head = (f"<div class='vx-decision'><b>The decision ({html.escape(d.method)})</b>: "
+            f"{html.escape(d.sentence())}.{caveat}</div>")
     return head + html_table(bat.omnibus_frame(), "All tests of equal means on this view") + bat.recommendation._repr_html_()
 
 
@@ -129,9 +128,10 @@ def screens(ctx: PanelContext) -> str:
         "with a reason.</div>")
 
 
-def _multi_factor_partitions(res: Results) -> str:
+def _multi_factor_partitions(res: Results, decision: Any) -> str:
     """The partition under each type of sums of squares (they differ when the cells are unbalanced)."""
-    parts = [f"<div class='vx-decision'><b>{html.escape(res.decision(term))}</b></div>" for term in res.spec.factors]
+    parts = [f"<div class='vx-decision'><b>{html.escape(decision.sentence())}</b></div>",
+             decision._repr_html_()]
     for ss_type in ("I", "II", "III"):
         table = res.partitions.get(ss_type)
         if table is not None:

@@ -13,6 +13,7 @@ from typing import Any
 from explorer.engine import Results
 from explorer.engine.tables import fmt
 from explorer.study import Study
+from explorer.study.decision import Decision
 
 __all__ = ["CAUTIONS_HTML", "comparison_html", "disclosure_html", "partition_html"]
 
@@ -34,14 +35,15 @@ def disclosure_html(study: Study) -> str:
             "</span>")
 
 
-def partition_html(results: Results) -> str:
-    """The current partition with its decision line, in a block the tests and the browser can find."""
+def partition_html(results: Results, decision: Decision) -> str:
+    """The current partition with the study's decision line, in a block the tests and the browser can find."""
     notes = "".join(f"<div class='vx-small'>{html.escape(n)}</div>" for n in results.notes)
+    caveat = f"<div class='vx-small'>{html.escape(decision.caveat)}</div>" if decision.caveat else ""
     return (
         f"<div class='vx-partition'>{results.partition._repr_html_()}"
         f"<div class='vx-small'>n = {results.n_used}, R² = {fmt(results.r_squared, 4)}, "
         f"residual SD = {fmt(results.residual_sd, 4)}</div>"
-        f"<div class='vx-decision'>{html.escape(results.decision())}</div>{notes}</div>"
+        f"<div class='vx-decision'>{html.escape(decision.sentence())}</div>{caveat}{notes}</div>"
     )
 
 
@@ -62,31 +64,43 @@ def _line(label: str, base: Any, cur: Any, digits: int = 5, numeric: bool = True
             f"<td{num} data-label='current view'>{c}</td><td class='vx-mark' data-label='difference'>{change}</td></tr>")
 
 
+def _verdict_on(decision: Decision, term: str) -> Any:
+    try:
+        return decision.verdict_for(term)
+    except KeyError:
+        return None
+
+
 def comparison_html(study: Study) -> str:
-    """Unedited data beside the current view: partition figures, decision, rows left out, disclosure."""
+    """Unedited data beside the current view: partition figures, the two decisions, rows left out, disclosure.
+
+    Both columns read the study's decisions (one test, one alpha); the figures are those of
+    the term the current decision is about.
+    """
     b, c = study.baseline, study.results
-    term = c.main_term
-    tb, tc = b.partition.row(term), c.partition.row(term)
+    db, dc = study.baseline_decision, study.decision
+    term = dc.term
+    vb, vc = _verdict_on(db, term), dc.verdict_for(term)
     rb, rc = b.partition.row("residual"), c.partition.row("residual")
-    alpha = c.spec.alpha
-    verdict_b = "differences" if b.significant(alpha=alpha) else "no differences"
-    verdict_c = "differences" if c.significant(alpha=alpha) else "no differences"
+    tb = b.partition.row(term) if term in [r.source for r in b.partition.rows] else None
+    tc = c.partition.row(term)
     rows = [
         _line("rows in analysis", b.n_used, c.n_used),
-        _line(f"levels of {term}", b.groups.k, c.groups.k),
+        _line("groups (levels or cells)", b.groups.k, c.groups.k),
         _line("df, residual", rb.df, rc.df),
-        _line(f"sum of squares, {term}", tb.sum_sq, tc.sum_sq),
+        _line(f"sum of squares, {term}", tb.sum_sq if tb else None, tc.sum_sq),
         _line("sum of squares, residual", rb.sum_sq, rc.sum_sq),
-        _line(f"F, {term}", tb.statistic, tc.statistic, 5),
-        _line("p-value", tb.pvalue, tc.pvalue, 4),
+        _line(f"{dc.test_label}, {term}", vb.statistic if vb else None, vc.statistic, 5),
+        _line(f"p-value ({dc.test_label})", vb.pvalue if vb else None, vc.pvalue, 4),
         _line("R²", b.r_squared, c.r_squared, 4),
         _line("residual SD", b.residual_sd, c.residual_sd, 4),
-        _line(f"decision at alpha {alpha:g}", verdict_b, verdict_c, numeric=False),
+        _line("decision is about", db.term, dc.term, numeric=False),
+        _line(f"decision at alpha {dc.alpha:g}", db.verdict, dc.verdict, numeric=False),
     ]
     flip = ""
-    if verdict_b != verdict_c:
-        flip = (f"<div class='vx-decision-flip'>The edits change the decision: unedited data: {verdict_b}; "
-                f"current view: {verdict_c}.</div>")
+    if not db.agrees_with(dc):
+        flip = (f"<div class='vx-decision-flip'>The edits change the decision: unedited data: "
+                f"{html.escape(db.sentence())}; current view: {html.escape(dc.sentence())}.</div>")
     head = "<tr><th></th><th>unedited data</th><th>current view</th><th>difference</th></tr>"
     dropped = study.dropped
     left = (f"<div class='vx-small'>Left out now: {len(dropped)} row(s)"

@@ -29,7 +29,7 @@ def observations(ctx: PanelContext) -> Any:
 
 @panel("partition", "Current view", group="main", order=20, token=view_token)
 def partition(ctx: PanelContext) -> Any:
-    return partition_html(ctx.results)
+    return partition_html(ctx.results, ctx.study.decision)
 
 
 def _disclosure_token(ctx: PanelContext) -> Any:

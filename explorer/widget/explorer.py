@@ -23,6 +23,7 @@ from explorer.charts import HistoryStep
 from explorer.engine import ExplorerError
 from explorer.engine.moves import level_homes
 from explorer.study import Study, StudyEvent
+from explorer.engine.spec import OVERALL_TESTS
 
 from . import battery_panels, core_panels, fragility_panels  # noqa: F401  (register the built-in panels)
 from .compare import CAUTIONS_HTML, disclosure_html
@@ -33,8 +34,7 @@ from .stylesheet import STYLESHEET
 
 __all__ = ["COMPARISON_CHOICES", "OMNIBUS_CHOICES", "Explorer", "explore"]
 
-OMNIBUS_CHOICES = [("classic F (equal variances)", "classic"), ("Welch F (unequal variances)", "welch"),
-                   ("Brown-Forsythe F (unequal variances)", "brown-forsythe"), ("Kruskal-Wallis (ranks)", "kruskal-wallis")]
+OMNIBUS_CHOICES = [(label, name) for name, label in OVERALL_TESTS.items()]
 COMPARISON_CHOICES = [("Tukey-Kramer (all pairs)", "tukey-kramer"), ("Games-Howell (all pairs, unequal SD)", "games-howell"),
                       ("Dunnett (each level against the first)", "dunnett"), ("t tests, Holm-adjusted", "holm")]
 _ALPHAS = [0.01, 0.05, 0.10]
@@ -110,7 +110,7 @@ class Explorer(W.VBox):
         alphas = sorted(set(_ALPHAS) | {study.spec.alpha})
         self.alpha_picker = W.Dropdown(description="alpha", options=[(f"{a:g}", a) for a in alphas],
                                        value=study.spec.alpha)
-        self.omnibus_picker = W.Dropdown(description="overall test", options=OMNIBUS_CHOICES, value="classic")
+        self.omnibus_picker = W.Dropdown(description="overall test", options=OMNIBUS_CHOICES, value=study.spec.test)
         self.comparison_picker = W.Dropdown(description="comparisons", options=COMPARISON_CHOICES, value="tukey-kramer")
         for w in (self.response_picker, self.factor_picker, self.alpha_picker, self.omnibus_picker, self.comparison_picker):
             w.style.description_width = "90px"
@@ -118,7 +118,7 @@ class Explorer(W.VBox):
         self.response_picker.observe(self._on_model_choice, "value")
         self.factor_picker.observe(self._on_model_choice, "value")
         self.alpha_picker.observe(self._on_model_choice, "value")
-        self.omnibus_picker.observe(self._on_setting, "value")
+        self.omnibus_picker.observe(self._on_test_choice, "value")
         self.comparison_picker.observe(self._on_setting, "value")
 
         self.picked_label = W.HTML()
@@ -216,12 +216,15 @@ class Explorer(W.VBox):
         return PanelContext(study=self.study, settings=self.settings, history=tuple(self.history))
 
     def _record(self, action: str) -> None:
-        res = self.study.results
-        self.history.append(HistoryStep(step=len(self.history), action=action, pvalue=res.pvalue(),
-                                        r_squared=res.r_squared, edits_in_effect=len(self.study.edits)))
+        d = self.study.decision
+        self.history.append(HistoryStep(step=len(self.history), action=action, pvalue=d.pvalue,
+                                        r_squared=self.study.results.r_squared, edits_in_effect=len(self.study.edits),
+                                        term=d.term, test=d.test_label, significant=d.significant))
 
     def _on_study_change(self, study: Study, event: StudyEvent) -> None:
-        if event.kind != "search":
+        if event.kind == "spec":
+            self._record(f"overall test: {study.decision.test_label}")
+        elif event.kind != "search":
             what = event.edit.describe() if event.edit is not None else "all edits"
             self._record(what if event.kind == "edit" else f"{event.kind}: {what}")
         if self._batch or self._refreshing:
@@ -439,9 +442,22 @@ class Explorer(W.VBox):
 
     # ================================================================= model choices
     def _on_setting(self, _: Any) -> None:
-        self.settings = replace(self.settings, omnibus=self.omnibus_picker.value,
-                                comparisons=self.comparison_picker.value)
+        self.settings = replace(self.settings, comparisons=self.comparison_picker.value)
         self.refresh()
+
+    def _on_test_choice(self, _: Any) -> None:
+        """The overall test is part of the model: the study reads its decision from it (recorded)."""
+        choice = self.omnibus_picker.value
+        if choice == self.study.spec.test:
+            return
+        try:
+            self.study.set_test(choice)
+        except ExplorerError as exc:
+            self.omnibus_picker.value = self.study.spec.test
+            self._status(str(exc), "error")
+            return
+        self._status(f"The decision is now read from the {OVERALL_TESTS[choice]} test (recorded as a specification "
+                     "choice).")
 
     def _on_model_choice(self, _: Any) -> None:
         response = self.response_picker.value
@@ -476,8 +492,9 @@ class Explorer(W.VBox):
             # Reread the original file when there is one, so the exact decimal reading, the
             # id column and the replay code carry over to the new model.
             source = old.data_source if old.data_source is not None else old.dataset.table
+            test = old.spec.test if len(factors) == 1 and not old.spec.blocks else "classic"
             new = Study(source, response, factors, blocks=old.spec.blocks, interactions=old.spec.interactions,
-                        ss_type=old.spec.ss_type, alpha=alpha, id_column=old.dataset.id_column)
+                        ss_type=old.spec.ss_type, alpha=alpha, test=test, id_column=old.dataset.id_column)
             new.data_source = old.data_source
         skipped = []
         for e in old.edits:
@@ -502,6 +519,7 @@ class Explorer(W.VBox):
             if study.spec.alpha not in [v for _, v in self.alpha_picker.options]:
                 self.alpha_picker.options = list(self.alpha_picker.options) + [(f"{study.spec.alpha:g}", study.spec.alpha)]
             self.alpha_picker.value = study.spec.alpha
+        self.omnibus_picker.value = study.spec.test  # the study's own test (no new choice recorded)
         self.refresh(force=True)
 
     @contextmanager
@@ -552,34 +570,14 @@ class Explorer(W.VBox):
         if errors:
             self._status("Some panels could not be drawn: " + "; ".join(errors), "warn")
 
-    def _chosen_test(self) -> str:
-        """One sentence on the overall test chosen in the picker, when it is not the classic F."""
-        choice = self.settings.omnibus
-        if choice == "classic" or not self.study.spec.is_oneway:
-            return ""
-        from explorer.inference import omnibus
-
-        fn = {"welch": omnibus.welch_f, "brown-forsythe": omnibus.brown_forsythe_f,
-              "kruskal-wallis": omnibus.kruskal_wallis}.get(choice)
-        if fn is None:
-            return ""
-        try:
-            test = fn(self.study.results)
-        except ExplorerError as exc:
-            return f" <b>Chosen test:</b> not available ({html.escape(str(exc))})."
-        if test.pvalue is None:
-            return f" <b>Chosen test ({html.escape(test.method)}):</b> undefined on this view."
-        verdict = "differences detected" if test.pvalue < self.study.spec.alpha else "no differences detected"
-        return f" <b>Chosen test ({html.escape(test.method)}):</b> {verdict} (p = {test.pvalue:.4g})."
-
     def _refresh_header(self) -> None:
         res = self.study.results
         s = self.study.spec
         self.header.value = (
             f"<div class='vx-banner'><b>{html.escape(s.response)} by {html.escape(' × '.join(s.factors))}</b> "
             f"({res.n_used} rows in analysis, {len(self.study.dropped)} left out). "
-            f"<b>Current view:</b> {html.escape(res.decision())}. "
-            f"<b>Unedited data:</b> {html.escape(self.study.baseline.decision())}.{self._chosen_test()}"
+            f"<b>Current view:</b> {html.escape(self.study.decision.sentence())}. "
+            f"<b>Unedited data:</b> {html.escape(self.study.baseline_decision.sentence())}."
             f"<br>{disclosure_html(self.study)}</div>"
         )
 

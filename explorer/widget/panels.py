@@ -39,10 +39,10 @@ __all__ = [
 
 @dataclass(frozen=True, kw_only=True)
 class Settings:
-    """Choices made in the explorer's controls that panels may read."""
+    """Choices made in the explorer's controls that panels may read (the overall test is part of the
+    study's model: ``ctx.study.spec.test``, and its decision ``ctx.study.decision``)."""
 
     alpha: float = 0.05
-    omnibus: str = "classic"
     comparisons: str = "tukey-kramer"
     max_points: int = 5000
 

@@ -1,0 +1,273 @@
+"""The decision: what one analysis concludes, about which term, under which test.
+
+Every surface of the kit (the widget's header and history, the unedited-vs-current
+table, each sensitivity scan, the report and the command line) states the decision of
+an analysis. It is computed here, once per analysis, from the model specification: the
+design, the chosen overall test and alpha. Nothing else reads a p-value and calls it
+the decision.
+
+Which term the decision is about follows the hierarchy of the model (Montgomery,
+*Design and Analysis of Experiments*, 9th ed., sec. 5.3; Kutner et al., *Applied Linear
+Statistical Models*, 5th ed., sec. 19.4):
+
+1. the highest-order interaction whose test rejects at alpha (among several of that
+   order, the one with the smallest p-value): "the effect of A depends on B";
+2. otherwise the first treatment factor's main effect (the factor listed first is the
+   study's factor of interest);
+3. blocks are in the model to remove their variation and are never the decision term.
+
+Main effects of factors that take part in a detected interaction are still reported,
+with the caveat that they are averages over the other factor's levels and can hide
+effects of opposite sign (a crossover); the simple effects
+(:func:`.simple_effects.simple_effects`) say what happens at each level.
+
+With one factor and no blocks the test can be any of :data:`.spec.OVERALL_TESTS`;
+designs with several factors or blocks read the F tests of their terms (classic).
+"""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass, field
+from typing import Any
+
+import pandas as pd
+
+from .design import model_terms, term_name
+from .omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
+from .results import Results
+from .tables import fmt, html_table
+
+__all__ = ["TEST_LABELS", "Decision", "TermVerdict", "decide", "interaction_verdict"]
+
+#: Short names of the overall tests, as the decision states them.
+TEST_LABELS = {
+    "classic": "classic F",
+    "welch": "Welch F",
+    "brown-forsythe": "Brown-Forsythe F*",
+    "kruskal": "Kruskal-Wallis H",
+    "permutation": "permutation F",
+}
+DETECTED = "differences detected"
+NOT_DETECTED = "no differences detected"
+NO_INTERACTION = "no interaction detected"
+
+
+def _listing(names: list[str]) -> str:
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
+
+
+def interaction_verdict(factors: tuple[str, ...]) -> str:
+    """The plain statement of a detected interaction of ``factors``."""
+    if len(factors) == 2:
+        return f"the effect of {factors[0]} depends on {factors[1]}"
+    return f"the effects of {_listing(list(factors))} depend on one another"
+
+
+@dataclass(frozen=True, kw_only=True)
+class TermVerdict:
+    """The test of one treatment term and what it says at alpha.
+
+    ``role`` is 'factor' (one-factor study), 'main effect' or 'interaction'.
+    ``significant`` is ``None`` when the test is undefined (``verdict`` says why).
+    """
+
+    term: str
+    factors: tuple[str, ...]
+    role: str
+    statistic: float | None
+    df_num: float | None
+    df_den: float | None
+    pvalue: float | None
+    significant: bool | None
+    verdict: str
+    caveat: str = ""
+
+    def row(self) -> dict[str, Any]:
+        return {"term": self.term, "role": self.role, "statistic": self.statistic, "df (term)": self.df_num,
+                "df (residual)": self.df_den, "p-value": self.pvalue, "verdict": self.verdict, "caveat": self.caveat}
+
+
+@dataclass(frozen=True, kw_only=True)
+class Decision:
+    """What an analysis concludes: the headline term, its verdict and everything needed to read it.
+
+    ``term`` is the term the decision is about (see the module docstring for how it is
+    chosen), ``verdict`` the plain statement and ``significant`` whether the test of
+    that term rejects at ``alpha`` (``None`` when the test is undefined on this view).
+    ``test`` is the key of the overall test (``"classic"``, ``"welch"``, ...),
+    ``test_label`` its short name and ``method`` how it was computed. ``caveat`` is
+    what a reader must keep in mind (empty when nothing). ``terms`` holds the verdict
+    on every treatment term, headline included.
+    """
+
+    term: str
+    factors: tuple[str, ...]
+    role: str
+    verdict: str
+    significant: bool | None
+    pvalue: float | None
+    statistic: float | None
+    df_num: float | None
+    df_den: float | None
+    test: str
+    test_label: str
+    method: str
+    alpha: float
+    caveat: str
+    terms: tuple[TermVerdict, ...]
+    notes: tuple[str, ...] = field(default=())
+
+    def sentence(self) -> str:
+        """One line: ``"A × B: the effect of A depends on B at alpha 0.05 (classic F, p = 6.066e-08)"``."""
+        if self.pvalue is None:
+            return f"{self.term}: {self.verdict}"
+        return f"{self.term}: {self.verdict} at alpha {self.alpha:g} ({self.test_label}, p = {fmt(self.pvalue, 4)})"
+
+    def verdict_for(self, term: str) -> TermVerdict:
+        """The verdict on one treatment term (``KeyError`` naming the terms when absent)."""
+        for t in self.terms:
+            if t.term == term:
+                return t
+        raise KeyError(f"no treatment term {term!r} in this decision; terms: {[t.term for t in self.terms]}")
+
+    def agrees_with(self, other: Decision) -> bool:
+        """Same term and same verdict."""
+        return self.term == other.term and self.significant == other.significant
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain values (for files and the command line)."""
+        return {
+            "term": self.term, "role": self.role, "verdict": self.verdict, "significant": self.significant,
+            "pvalue": self.pvalue, "statistic": self.statistic, "df_num": self.df_num, "df_den": self.df_den,
+            "test": self.test, "method": self.method, "alpha": self.alpha, "caveat": self.caveat,
+            "sentence": self.sentence(),
+        }
+
+    def to_frame(self) -> pd.DataFrame:
+        """One line per treatment term, the headline term first."""
+        ordered = [self.verdict_for(self.term)] + [t for t in self.terms if t.term != self.term]
+        return pd.DataFrame([t.row() for t in ordered])
+
+    def _repr_html_(self) -> str:
+        notes = ((self.caveat,) if self.caveat else ()) + self.notes
+        return ("<div class='vx-decision-value'>" + f"<div><b>{html.escape(self.sentence())}</b></div>"
+                + html_table(self.to_frame(), html.escape(f"Verdict on every term ({self.method})"), notes) + "</div>")
+
+
+def _significant(p: float | None, alpha: float) -> bool | None:
+    return None if p is None else bool(p < alpha)
+
+
+def _oneway(results: Results) -> Decision:
+    spec = results.spec
+    factor = spec.factors[0]
+    out = overall_test(results, spec.test)
+    sig = _significant(out.pvalue, spec.alpha)
+    if sig is None:
+        verdict = "no test on this view" + (f" ({out.notes[0]})" if out.notes else "")
+    else:
+        verdict = DETECTED if sig else NOT_DETECTED
+    method = out.method
+    if spec.test == "permutation":
+        method = f"permutation F ({PERMUTATIONS} permutations, seed {PERMUTATION_SEED})"
+    tv = TermVerdict(term=factor, factors=(factor,), role="factor", statistic=out.statistic, df_num=out.df_num,
+                     df_den=out.df_den, pvalue=out.pvalue, significant=sig, verdict=verdict)
+    return Decision(term=factor, factors=(factor,), role="factor", verdict=verdict, significant=sig,
+                    pvalue=out.pvalue, statistic=out.statistic, df_num=out.df_num, df_den=out.df_den,
+                    test=spec.test, test_label=TEST_LABELS[spec.test], method=method, alpha=spec.alpha, caveat="",
+                    terms=(tv,), notes=tuple(out.notes))
+
+
+def _term_verdicts(results: Results) -> list[TermVerdict]:
+    """The classic F verdict of every treatment term of a multi-factor partition."""
+    spec = results.spec
+    alpha = spec.alpha
+    resid_df = float(results.df_resid)
+    treatment = {term_name(t): t for t in model_terms(spec) if set(t) <= set(spec.factors)}
+    out = []
+    for row in results.partition.rows:
+        names = treatment.get(row.source)
+        if names is None:
+            continue  # blocks, residual, total
+        sig = _significant(row.pvalue, alpha)
+        inter = len(names) > 1
+        if sig is None:
+            verdict = "no test on this view"
+        elif inter:
+            verdict = interaction_verdict(names) if sig else NO_INTERACTION
+        else:
+            verdict = DETECTED if sig else NOT_DETECTED
+        out.append(TermVerdict(term=row.source, factors=names, role="interaction" if inter else "main effect",
+                               statistic=row.statistic, df_num=float(row.df), df_den=resid_df, pvalue=row.pvalue,
+                               significant=sig, verdict=verdict))
+    return out
+
+
+def _with_caveats(terms: list[TermVerdict], spec: Any) -> list[TermVerdict]:
+    """Main effects of factors in a detected interaction are averages: say so beside each."""
+    detected = [t for t in terms if t.role == "interaction" and t.significant]
+    out = []
+    for t in terms:
+        caveat = ""
+        if t.role == "main effect" and len(spec.factors) > 1:
+            inside = [i for i in detected if t.factors[0] in i.factors]
+            others = [f for f in spec.factors if f != t.factors[0]]
+            if inside:
+                i = min(inside, key=lambda x: x.pvalue if x.pvalue is not None else 1.0)
+                rest = _listing([f for f in i.factors if f != t.factors[0]])
+                caveat = (f"averaged over the levels of {_listing(others)}; the {i.term} interaction was detected, "
+                          f"so this average can hide effects that differ, even in sign, between levels of {rest}")
+            else:
+                caveat = f"averaged over the levels of {_listing(others)}"
+        out.append(TermVerdict(**{**t.__dict__, "caveat": caveat}))
+    return out
+
+
+def _multi(results: Results) -> Decision:
+    spec = results.spec
+    terms = _with_caveats(_term_verdicts(results), spec)
+    by_name = {t.term: t for t in terms}
+    interactions = [t for t in terms if t.role == "interaction"]
+    head: TermVerdict | None = None
+    for order in sorted({len(t.factors) for t in interactions}, reverse=True):
+        hits = [t for t in interactions if len(t.factors) == order and t.significant]
+        if hits:
+            head = min(hits, key=lambda x: x.pvalue if x.pvalue is not None else 1.0)
+            break
+    notes: list[str] = []
+    if head is not None:
+        a, b = head.factors[0], head.factors[1]
+        caveat = (f"Main effects of {_listing(list(head.factors))} are averages over the other factors' levels and "
+                  "can mislead when the effect of one depends on another; read the simple effects "
+                  f"(study.simple_effects({a!r}, within={b!r})) and the interaction chart.")
+    else:
+        head = by_name[spec.factors[0]]
+        others = [f for f in spec.factors if f != head.term]
+        if not others:
+            caveat = ""
+        elif not spec.interactions:
+            caveat = (f"The model has no interaction terms, so the effect of {head.term} is taken to be the same at "
+                      f"every level of {_listing(others)}.")
+        else:
+            mine = [t for t in interactions if head.term in t.factors]
+            tested = "; ".join(f"{t.term}: p = {fmt(t.pvalue, 4)}" for t in mine)
+            caveat = (f"The effect of {head.term} is averaged over the levels of {_listing(others)}; no interaction "
+                      f"involving it was detected ({tested}).")
+    if spec.blocks:
+        notes.append(f"Blocks ({', '.join(spec.blocks)}) are in the model to remove their variation; they are never "
+                     "the decision term.")
+    if any(t.significant is None for t in terms):
+        notes.extend(n for n in results.partition.notes if n not in notes)
+    method = f"classic F, type {spec.ss_type} sums of squares"
+    return Decision(term=head.term, factors=head.factors, role=head.role, verdict=head.verdict,
+                    significant=head.significant, pvalue=head.pvalue, statistic=head.statistic, df_num=head.df_num,
+                    df_den=head.df_den, test=spec.test, test_label=TEST_LABELS[spec.test], method=method,
+                    alpha=spec.alpha, caveat=caveat, terms=tuple(terms), notes=tuple(notes))
+
+
+def decide(results: Results) -> Decision:
+    """The decision of ``results`` under its spec's overall test and alpha (see the module docstring)."""
+    if results.spec.is_oneway:
+        return _oneway(results)
+    return _multi(results)
