@@ -1,0 +1,120 @@
+"""Simple effects with the full model's residual mean square (checked against statsmodels OLS f_test)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import patsy
+import pytest
+import statsmodels.formula.api as smf
+from decision_support import ADDITIVE, CROSSOVER
+from statsmodels.stats.multitest import multipletests
+
+import explorer as ex
+from explorer.core.errors import ExplorerError
+
+
+def _reference(df: pd.DataFrame, formula: str, factor: str, within: str, averaged: dict[str, list[str]] | None = None
+               ) -> tuple[list[float], list[float], dict]:
+    """statsmodels OLS of the full model; at each level of ``within`` the Wald F test (model.f_test) that the
+    least-squares means of ``factor`` are equal, the means averaged with equal weight over ``averaged``."""
+    fit = smf.ols(formula, df).fit()
+    info = fit.model.data.model_spec  # the patsy DesignInfo of the fitted formula
+    fa = sorted(df[factor].unique())
+    fb = sorted(df[within].unique())
+    extra = averaged or {}
+    grid_other = pd.MultiIndex.from_product(list(extra.values()), names=list(extra)).to_frame(index=False) if extra \
+        else pd.DataFrame(index=[0])
+    rows = {}
+    for a in fa:
+        for b in fb:
+            new = grid_other.assign(**{factor: a, within: b, "y": 0.0})
+            (x,) = patsy.build_design_matrices([info], new)
+            rows[(a, b)] = np.asarray(x).mean(axis=0)
+    f_vals, p_vals = [], []
+    for b in fb:
+        L = np.array([rows[(a, b)] - rows[(fa[-1], b)] for a in fa[:-1]])
+        t = fit.f_test(L)
+        f_vals.append(float(np.squeeze(t.fvalue)))
+        p_vals.append(float(t.pvalue))
+    means = {k: float(v @ fit.params.to_numpy()) for k, v in rows.items()}
+    return f_vals, p_vals, means
+
+
+def _unbalanced(seed: int = 3) -> pd.DataFrame:
+    """Every cell of 3 x 4 x 2 twice, plus 30 rows at random cells (unbalanced)."""
+    rng = np.random.default_rng(seed)
+    grid = pd.MultiIndex.from_product([["a1", "a2", "a3"], ["b1", "b2", "b3", "b4"], ["w1", "w2"], [0, 1]],
+                                      names=["A", "B", "W", "r"]).to_frame(index=False).drop(columns="r")
+    extra = grid.sample(30, replace=True, random_state=seed)
+    df = pd.concat([grid, extra], ignore_index=True)
+    effect = {("a1", "b1"): 2.0, ("a2", "b2"): -1.5, ("a3", "b4"): 1.0}
+    df["y"] = 50 + rng.normal(size=len(df)) + [effect.get((a, b), 0.0) for a, b in zip(df.A, df.B)]
+    return df
+
+
+def test_crossover_matches_statsmodels():
+    """Balanced crossover: F, p and least-squares cell means equal statsmodels OLS f_test on the full model
+    (y ~ C(A, Sum) * C(B, Sum)); Holm-adjusted p-values equal multipletests(method='holm')."""
+    se = ex.Study(CROSSOVER, "y", ["A", "B"]).simple_effects("A", within="B")
+    f, p, means = _reference(CROSSOVER, "y ~ C(A, Sum) * C(B, Sum)", "A", "B")
+    np.testing.assert_allclose(se.statistic, f, rtol=1e-9)
+    np.testing.assert_allclose(se.pvalue, p, rtol=1e-9)
+    np.testing.assert_allclose(se.adjusted_pvalue, multipletests(p, method="holm")[1], rtol=1e-12)
+    got = {(r.A, r.B): r._5 for r in se.cells.itertuples()}
+    for key, v in means.items():
+        assert got[key] == pytest.approx(v, rel=1e-12)
+    assert se.significant.all() and se.adjustment == "holm" and se.family_size == 2
+    assert se.interaction == "A × B" and se.interaction_pvalue == pytest.approx(6.07e-8, rel=1e-2)
+    assert "full model's residual mean square" in se.notes[-1]
+
+
+def test_unbalanced_three_factors_average_over_the_third():
+    """Unbalanced 3 x 4 x 2 with every interaction: tests of A within B (means averaged over W) and of B within A
+    against statsmodels OLS f_test of the full model y ~ C(A, Sum) * C(B, Sum) * C(W, Sum)."""
+    df = _unbalanced()
+    study = ex.Study(df, "y", ["A", "B", "W"])
+    formula = "y ~ C(A, Sum) * C(B, Sum) * C(W, Sum)"
+    for factor, within in (("A", "B"), ("B", "A")):
+        se = study.simple_effects(factor, within=within, adjust="bonferroni")
+        f, p, means = _reference(df, formula, factor, within, {"W": ["w1", "w2"]})
+        np.testing.assert_allclose(se.statistic, f, rtol=1e-8)
+        np.testing.assert_allclose(se.pvalue, p, rtol=1e-8)
+        np.testing.assert_allclose(se.adjusted_pvalue, np.minimum(np.asarray(p) * len(p), 1), rtol=1e-12)
+        col = "mean (least squares)"
+        for _, r in se.cells.iterrows():
+            assert r[col] == pytest.approx(means[(r[factor], r[within])], rel=1e-10)
+        assert se.df_den == len(df) - 24 and se.family_size == df[within].nunique()
+
+
+def test_blocks_and_additive_models():
+    """With a block the means average over it (statsmodels f_test, y ~ C(A, Sum) * C(B, Sum) + C(day, Sum)); with
+    no interaction term every level gives the same F numerator direction and a note says so."""
+    df = _unbalanced(5).rename(columns={"W": "day"})
+    se = ex.Study(df, "y", ["A", "B"], blocks="day").simple_effects("A", within="B", adjust="none")
+    f, p, _ = _reference(df, "y ~ C(A, Sum) * C(B, Sum) + C(day, Sum)", "A", "B", {"day": ["w1", "w2"]})
+    np.testing.assert_allclose(se.statistic, f, rtol=1e-8)
+    np.testing.assert_allclose(se.adjusted_pvalue, p, rtol=1e-8)
+    add = ex.Study(ADDITIVE, "y", ["A", "B"], interactions=False).simple_effects("A", within="B")
+    f, p, _ = _reference(ADDITIVE, "y ~ C(A, Sum) + C(B, Sum)", "A", "B")
+    np.testing.assert_allclose(add.statistic, f, rtol=1e-9)
+    assert add.interaction is None and any("no A × B term" in n for n in add.notes)
+
+
+def test_intervals_follow_alpha_and_bad_requests_are_refused():
+    """Cell-mean intervals at 1 - alpha (t quantile on the residual df, scipy.stats.t)."""
+    from scipy import stats
+
+    study = ex.Study(CROSSOVER, "y", ["A", "B"], alpha=0.01)
+    se = study.simple_effects("B", within="A")
+    half = stats.t.ppf(0.995, se.df_den) * se.cells["standard error"]
+    np.testing.assert_allclose(se.cells["99% CI high"] - se.cells["mean (least squares)"], half, rtol=1e-10)
+    with pytest.raises(ExplorerError, match="not a treatment factor"):
+        study.simple_effects("C", within="A")
+    with pytest.raises(ExplorerError, match="two different factors"):
+        study.simple_effects("A", within="A")
+    with pytest.raises(ExplorerError, match="adjust must be one of"):
+        study.simple_effects("A", within="B", adjust="tukey")
+    with pytest.raises(ExplorerError, match="two or more factors"):
+        ex.Study(CROSSOVER, "y", "A").simple_effects("A", within="B")
+    assert "Simple effects of B" in se._repr_html_() and len(se.verdicts()) == 2
