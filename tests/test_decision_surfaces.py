@@ -93,4 +93,4 @@ def test_a_one_factor_test_on_two_factors_is_refused_in_the_widget():
     e = ex.Explorer(ex.Study(TWO_WAY_CASES["crossover"], "y", ["A", "B"]))
     e.omnibus_picker.value = "welch"
     assert e.study.spec.test == "classic" and e.omnibus_picker.value == "classic"
-    assert "compares the levels of one factor" in e.status.value
+    assert "compares the levels of one fixed factor" in e.status.value

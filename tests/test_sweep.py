@@ -76,7 +76,7 @@ def test_every_specification_matches_reference_libraries():
     assert any(len(r) for r in sweep.table["rows left out"])
     distinct = set()
     for rule, test, transform, merges in itertools.product(
-            ["none", "studentized", "cooks", "outlier_test"], ["classic", "welch", "rank"], ["none", "log"],
+            ["none", "studentized", "cooks", "outlier_test"], ["classic", "welch", "kruskal"], ["none", "log"],
             ["none", "L2+L3", "L1+L4", "L2+L3; L1+L4"]):
         combo = pd.Series({"outlier rule": rule, "test": test, "transform": transform, "merges": merges})
         rows, p = _reference(df, combo)
@@ -152,11 +152,11 @@ def test_rank_test_on_the_log_is_the_same_analysis():
     the disclosure counts 3, and the p-values equal scipy.stats.kruskal on the raw and the logged data."""
     df = _data()
     study = ex.Study(df, "y", "g")
-    sweep = robustness_sweep(study, outlier_rules=["none"], tests=["classic", "rank"])
+    sweep = robustness_sweep(study, outlier_rules=["none"], tests=["classic", "kruskal"])
     t = sweep.table
     assert sweep.n_combinations == 4 and sweep.n_specifications == 3 == len(t)
     assert study.disclosure.specifications == 3
-    rank = t[t["test"] == "rank"]
+    rank = t[t["test"] == "kruskal"]
     assert len(rank) == 1 and rank["transform"].iloc[0] == "none"
     assert "transform log" in rank["also reached by"].iloc[0] and "monotone" in rank["also reached by"].iloc[0]
     groups = [v.to_numpy() for _, v in df.groupby("g")["y"]]

@@ -31,6 +31,7 @@ import html
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from .design import model_terms, term_name
@@ -179,18 +180,32 @@ def _oneway(results: Results) -> Decision:
                     terms=(tv,), notes=tuple(out.notes))
 
 
-def _term_verdicts(results: Results) -> list[TermVerdict]:
-    """The classic F verdict of every treatment term of a multi-factor partition."""
+def _term_verdicts(results: Results) -> tuple[list[TermVerdict], list[str]]:
+    """The F verdict of every fixed treatment term of a multi-factor partition, and notes.
+
+    Blocks are left out; so are terms with a random factor (variance components) when the
+    model has fixed treatment terms. A term tested against another error term (mixed
+    models) carries that error term's df.
+    """
     spec = results.spec
     alpha = spec.alpha
-    resid_df = float(results.df_resid)
-    treatment = {term_name(t): t for t in model_terms(spec) if set(t) <= set(spec.factors)}
+    nesting = spec.nesting
+    random = set(spec.random_columns)
+    treatment = [t for t in model_terms(spec) if set(t) <= set(spec.factors)]
+    fixed = [t for t in treatment if not set(t) & random]
+    notes: list[str] = []
+    if fixed and len(fixed) < len(treatment):
+        notes.append("Terms with a random factor ({}) are variance components; their tests are in the partition, and "
+                     "the decision is read from the fixed terms.".format(
+                         ", ".join(term_name(t, nesting) for t in treatment if t not in fixed)))
+    chosen = {term_name(t, nesting): t for t in (fixed or treatment)}
     out = []
     for row in results.partition.rows:
-        names = treatment.get(row.source)
+        names = chosen.get(row.source)
         if names is None:
-            continue  # blocks, residual, total
-        sig = _significant(row.pvalue, alpha)
+            continue  # blocks, random terms, residual, total
+        p = row.pvalue if row.pvalue is not None and np.isfinite(row.pvalue) else None
+        sig = _significant(p, alpha)
         inter = len(names) > 1
         if sig is None:
             verdict = "no test on this view"
@@ -198,10 +213,11 @@ def _term_verdicts(results: Results) -> list[TermVerdict]:
             verdict = interaction_verdict(names) if sig else NO_INTERACTION
         else:
             verdict = DETECTED if sig else NOT_DETECTED
+        df_den = float(row.df_error) if row.df_error is not None else float(results.df_resid)
         out.append(TermVerdict(term=row.source, factors=names, role="interaction" if inter else "main effect",
-                               statistic=row.statistic, df_num=float(row.df), df_den=resid_df, pvalue=row.pvalue,
+                               statistic=row.statistic, df_num=float(row.df), df_den=df_den, pvalue=p,
                                significant=sig, verdict=verdict))
-    return out
+    return out, notes
 
 
 def _with_caveats(terms: list[TermVerdict], spec: Any) -> list[TermVerdict]:
@@ -226,8 +242,8 @@ def _with_caveats(terms: list[TermVerdict], spec: Any) -> list[TermVerdict]:
 
 def _multi(results: Results) -> Decision:
     spec = results.spec
-    terms = _with_caveats(_term_verdicts(results), spec)
-    by_name = {t.term: t for t in terms}
+    verdicts, notes = _term_verdicts(results)
+    terms = _with_caveats(verdicts, spec)
     interactions = [t for t in terms if t.role == "interaction"]
     head: TermVerdict | None = None
     for order in sorted({len(t.factors) for t in interactions}, reverse=True):
@@ -235,22 +251,23 @@ def _multi(results: Results) -> Decision:
         if hits:
             head = min(hits, key=lambda x: x.pvalue if x.pvalue is not None else 1.0)
             break
-    notes: list[str] = []
     if head is not None:
         a, b = head.factors[0], head.factors[1]
         caveat = (f"Main effects of {_listing(list(head.factors))} are averages over the other factors' levels and "
                   "can mislead when the effect of one depends on another; read the simple effects "
                   f"(study.simple_effects({a!r}, within={b!r})) and the interaction chart.")
+    elif not terms:
+        return _no_term(results, notes)
     else:
-        head = by_name[spec.factors[0]]
-        others = [f for f in spec.factors if f != head.term]
+        head = next((t for t in terms if t.factors == (spec.factors[0],)), terms[0])
+        others = [f for f in spec.factors if f != head.factors[0]]
+        mine = [t for t in interactions if head.factors[0] in t.factors]
         if not others:
             caveat = ""
-        elif not spec.interactions:
-            caveat = (f"The model has no interaction terms, so the effect of {head.term} is taken to be the same at "
-                      f"every level of {_listing(others)}.")
+        elif not mine:
+            caveat = (f"The model has no interaction term involving {head.term}, so its effect is taken to be the same "
+                      f"at every level of {_listing(others)}.")
         else:
-            mine = [t for t in interactions if head.term in t.factors]
             tested = "; ".join(f"{t.term}: p = {fmt(t.pvalue, 4)}" for t in mine)
             caveat = (f"The effect of {head.term} is averaged over the levels of {_listing(others)}; no interaction "
                       f"involving it was detected ({tested}).")
@@ -260,10 +277,23 @@ def _multi(results: Results) -> Decision:
     if any(t.significant is None for t in terms):
         notes.extend(n for n in results.partition.notes if n not in notes)
     method = f"classic F, type {spec.ss_type} sums of squares"
+    if spec.is_mixed:
+        method += ", each term against its own error term"
     return Decision(term=head.term, factors=head.factors, role=head.role, verdict=head.verdict,
                     significant=head.significant, pvalue=head.pvalue, statistic=head.statistic, df_num=head.df_num,
                     df_den=head.df_den, test=spec.test, test_label=TEST_LABELS[spec.test], method=method,
                     alpha=spec.alpha, caveat=caveat, terms=tuple(terms), notes=tuple(notes))
+
+
+def _no_term(results: Results, notes: list[str]) -> Decision:
+    """No treatment term has a row in the partition (e.g. every term aliased): no decision can be read."""
+    spec = results.spec
+    name = spec.factors[0]
+    verdict = "no test on this view (no treatment term could be tested)"
+    return Decision(term=name, factors=(name,), role="main effect", verdict=verdict, significant=None, pvalue=None,
+                    statistic=None, df_num=None, df_den=None, test=spec.test, test_label=TEST_LABELS[spec.test],
+                    method=f"classic F, type {spec.ss_type} sums of squares", alpha=spec.alpha, caveat="",
+                    terms=(), notes=tuple(notes) + tuple(results.notes))
 
 
 def decide(results: Results) -> Decision:
