@@ -118,3 +118,29 @@ def test_intervals_follow_alpha_and_bad_requests_are_refused():
     with pytest.raises(ExplorerError, match="two or more factors"):
         ex.Study(CROSSOVER, "y", "A").simple_effects("A", within="B")
     assert "Simple effects of B" in se._repr_html_() and len(se.verdicts()) == 2
+
+
+def test_chart_report_text_and_widget_show_the_interaction():
+    """The chart draws the simple-effects cell means (chart.to_dict data = the table); the report, the command-line
+    text and the widget's Tests tab show them for the decision's pair of factors."""
+    from explorer import charts
+    from explorer.report import report_html
+    from explorer.report.text_summary import summary_text
+
+    study = ex.Study(CROSSOVER, "y", ["A", "B"])
+    assert study.decision.simple_effects_pair == ("A", "B")
+    effects = study.simple_effects("A", within="B")
+    spec = charts.interaction_chart(effects).to_dict()
+    data = next(iter(spec["datasets"].values()))
+    assert [round(d["mean"], 12) for d in data] == [round(v, 12) for v in effects.cells["mean (least squares)"]]
+    assert "A × B: p = 6.07e-08." in spec["title"]["subtitle"]
+    page = report_html(study, charts=False)
+    assert "id='interaction'" in page and "Simple effects of A at each level of B" in page
+    text = summary_text(study, cautions=False)
+    assert "Simple effects of A at each level of B" in text and "A at B = b1: differences detected" in text
+    e = ex.Explorer(study)
+    e.tabs.selected_index = e._tab_groups.index("Tests")
+    assert e.cards["interaction"].chart is not None
+    assert "Simple effects of A" in e.cards["simple_effects"].html.value
+    one = ex.Study(CROSSOVER, "y", "A")
+    assert one.decision.simple_effects_pair is None and "id='interaction'" not in report_html(one, charts=False)

@@ -14,6 +14,7 @@ from .frames import (
 )
 from .history import HistoryStep, history_chart
 from .influence import cooks_distance_chart, influence_of
+from .interaction import interaction_chart, interaction_frame
 from .observations import PICK, observations_chart
 from .partition import BASELINE_LABEL, CURRENT_LABEL, partition_chart, partition_frame
 from .residuals import normal_probability_chart, residuals_fitted_chart
@@ -31,6 +32,8 @@ __all__ = [
     "fit_frame",
     "history_chart",
     "influence_of",
+    "interaction_chart",
+    "interaction_frame",
     "normal_probability_chart",
     "observation_frame",
     "observations_chart",

@@ -118,6 +118,13 @@ class Decision:
     caveat: str
     terms: tuple[TermVerdict, ...]
     notes: tuple[str, ...] = field(default=())
+    pair: tuple[str, str] | None = None
+
+    @property
+    def simple_effects_pair(self) -> tuple[str, str] | None:
+        """(factor, within) whose simple effects and interaction chart explain this decision: the first two
+        factors of the headline interaction, else the first two fixed factors; ``None`` with one factor."""
+        return self.pair
 
     def sentence(self) -> str:
         """One line: ``"A × B: the effect of A depends on B at alpha 0.05 (classic F, p = 6.066e-08)"``."""
@@ -253,9 +260,10 @@ def _multi(results: Results) -> Decision:
             break
     if head is not None:
         a, b = head.factors[0], head.factors[1]
+        where = ("the cell means of each combination" if spec.is_mixed else
+                 f"the simple effects (study.simple_effects({a!r}, within={b!r})) and the interaction chart")
         caveat = (f"Main effects of {_listing(list(head.factors))} are averages over the other factors' levels and "
-                  "can mislead when the effect of one depends on another; read the simple effects "
-                  f"(study.simple_effects({a!r}, within={b!r})) and the interaction chart.")
+                  f"can mislead when the effect of one depends on another; read {where}.")
     elif not terms:
         return _no_term(results, notes)
     else:
@@ -279,10 +287,14 @@ def _multi(results: Results) -> Decision:
     method = f"classic F, type {spec.ss_type} sums of squares"
     if spec.is_mixed:
         method += ", each term against its own error term"
+    fixed = [t.factors[0] for t in terms if t.role == "main effect"]
+    pair = (head.factors[0], head.factors[1]) if head.role == "interaction" else (
+        (fixed[0], fixed[1]) if len(fixed) >= 2 and not spec.is_mixed else None)
     return Decision(term=head.term, factors=head.factors, role=head.role, verdict=head.verdict,
                     significant=head.significant, pvalue=head.pvalue, statistic=head.statistic, df_num=head.df_num,
                     df_den=head.df_den, test=spec.test, test_label=TEST_LABELS[spec.test], method=method,
-                    alpha=spec.alpha, caveat=caveat, terms=tuple(terms), notes=tuple(notes))
+                    alpha=spec.alpha, caveat=caveat, terms=tuple(terms), notes=tuple(notes),
+                    pair=None if spec.is_mixed else pair)
 
 
 def _no_term(results: Results, notes: list[str]) -> Decision:

@@ -168,6 +168,10 @@ def simple_effects(results: Results, factor: str, within: str, *, adjust: str = 
         raise ExplorerError(f"adjust must be one of {list(ADJUSTMENTS)}, not {adjust!r}")
     if len(spec.factors) < 2:
         raise ExplorerError(f"simple effects need a study with two or more factors; this one has {list(spec.factors)}")
+    if spec.is_mixed:
+        raise DesignError("simple effects here use the residual mean square of a fixed-effects model; this model tests "
+                          "its terms against other error terms (random, nested or subject terms), so they are not "
+                          "offered for it")
     for name in (factor, within):
         if name not in spec.factors:
             near = closest_names(str(name), spec.factors)

@@ -17,12 +17,14 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from ..engine.tables import fmt
+
+from ..engine.errors import ExplorerError
 from ..study.output_files import check_output_path, write_text_atomic
+from ..engine.tables import fmt
 from .cautions import cautions_html
 from .extras import Part, battery_part, sensitivity_part
 from .replay_code import study_to_code
-from .svg_charts import Figure, model_check_figures, observation_figures
+from .svg_charts import Figure, interaction_figure, model_check_figures, observation_figures
 
 if TYPE_CHECKING:
     from ..study.study import Study
@@ -150,6 +152,20 @@ def _moved(study: "Study") -> str:
     return f"<p>{len(moved)} row(s) now at another level than the one recorded (from → to):</p><ul>{items}</ul>"
 
 
+def _interaction(study: "Study", charts: bool) -> str:
+    """Cell means of the decision's pair of factors (chart) and the simple effects, or '' with one factor."""
+    pair = study.decision.simple_effects_pair
+    if pair is None:
+        return ""
+    try:
+        effects = study.simple_effects(pair[0], within=pair[1])
+    except ExplorerError as exc:
+        return f"<section id='interaction'><h2>Interaction</h2><p class='note'>{html.escape(str(exc))}</p></section>"
+    figure = interaction_figure(effects).html() if charts else ""
+    return (f"<section id='interaction'><h2>Interaction: {html.escape(pair[0])} by {html.escape(pair[1])}</h2>"
+            f"{figure}{effects._repr_html_()}</section>")
+
+
 def _edits(study: "Study") -> str:
     rows = []
     for i, e in enumerate(study.edits, 1):
@@ -194,6 +210,7 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
         f"<section id='cautions'><h2>Cautions</h2>{cautions_html()}</section>",
         "<section id='comparison'><h2>Baseline and current results</h2>" + _headline(study)
         + _side_by_side(study, charts) + (_model_checks(study) if charts else "") + "</section>",
+        _interaction(study, charts),
         f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}{_moved(study)}</section>",
         f"<section id='battery'><h2>{html.escape(battery.title)}</h2>{_part(battery)}</section>",
         f"<section id='sensitivity'><h2>{html.escape(sensitivity.title)}</h2>{_part(sensitivity)}"

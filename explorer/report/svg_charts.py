@@ -26,7 +26,8 @@ import numpy as np
 if TYPE_CHECKING:
     from ..study.study import Study
 
-__all__ = ["Figure", "chart_to_svg", "charts_available", "figure", "model_check_figures", "observation_figures"]
+__all__ = ["Figure", "chart_to_svg", "charts_available", "figure", "interaction_figure", "model_check_figures",
+           "observation_figures"]
 
 #: Most observations a report chart draws (the statistics always use every row).
 MAX_POINTS = 5000
@@ -134,3 +135,13 @@ def sensitivity_figures(deletion: Any = None, sweep: Any = None) -> list[Figure]
     if sweep is not None:
         out.append(figure(specification_curve_chart(sweep, width=REPORT_WIDTH)))
     return out
+
+
+def interaction_figure(effects: Any) -> Figure:
+    """The interaction chart (:mod:`explorer.charts.interaction`) of a simple-effects result as a figure."""
+    why = charts_available()
+    if why:
+        return Figure(why=why)
+    from ..charts.interaction import interaction_chart
+
+    return figure(interaction_chart(effects, width=REPORT_WIDTH))

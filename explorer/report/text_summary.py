@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
+from ..engine.errors import ExplorerError
 from ..engine.tables import fmt
 from .cautions import cautions_text
 from .extras import battery_part, frame_text, sensitivity_part
@@ -37,6 +38,19 @@ def results_text(res: "Results", decision: "Decision") -> str:
     return "\n".join(parts)
 
 
+def _simple_effects_text(study: "Study") -> list[str]:
+    """The simple effects behind the decision's pair of factors (none with one factor)."""
+    pair = study.decision.simple_effects_pair
+    if pair is None:
+        return []
+    try:
+        effects = study.simple_effects(pair[0], within=pair[1])
+    except ExplorerError as exc:
+        return ["", _heading("Simple effects"), f"not available: {exc}"]
+    return ["", _heading(f"Simple effects of {pair[0]} at each level of {pair[1]}"),
+            frame_text(effects.to_frame()), *effects.verdicts(), "Cell means:", frame_text(effects.cells), *effects.notes]
+
+
 def summary_text(study: "Study", *, cautions: bool = True) -> str:
     """Provenance, baseline, edits, current results, battery, sensitivity, disclosure and cautions."""
     ds = study.dataset
@@ -54,6 +68,7 @@ def summary_text(study: "Study", *, cautions: bool = True) -> str:
         for e in study.redo_edits:
             out.append(f"   (undone) {e.describe()} -- {e.reason or '(no reason given)'} [{e.at}]")
         out += ["", _heading(f"Current (after {len(study.edits)} edit(s))"), results_text(study.results, study.decision)]
+    out += _simple_effects_text(study)
     for part in (battery_part(study), sensitivity_part(study, charts=False)):
         out += ["", _heading(part.title), part.text if part.present else f"not included: {part.note}"]
     out += ["", f"Disclosure: {study.disclosure.sentence()}."]
