@@ -248,3 +248,20 @@ def test_two_way_scans_can_score_another_term():
     assert study.robustness_sweep(term="B", record=False, transforms=["none"]).term == "B"
     with pytest.raises(ExplorerError, match="not a treatment term"):
         study.case_deletion(term="C")
+
+
+@pytest.mark.parametrize("test", ["welch", "brown-forsythe", "kruskal"])
+def test_case_deletion_when_a_level_has_one_row(test):
+    """A level of one row: Welch and Brown-Forsythe are undefined on all rows (statsmodels needs two per level) but
+    defined, on one level fewer, once that row is left out; every row checked against the reference refit."""
+    df = _data(8)
+    df.loc[len(df)] = ["f", 12.5]
+    scan = ex.Study(df, "y", "g", test=test).case_deletion(record=False)
+    lone = scan.row_ids.tolist().index(len(df) - 1)
+    for j, row in enumerate(scan.row_ids.tolist()):
+        stat, p = _reference(test, _groups(df.drop(index=row)))
+        if np.isnan(p):
+            assert np.isnan(scan.pvalue[j]) and scan.status[j] > 0
+        else:
+            assert scan.pvalue[j] == pytest.approx(p, rel=1e-9) and scan.statistic[j] == pytest.approx(stat, rel=1e-9)
+    assert np.isfinite(scan.pvalue[lone])

@@ -26,8 +26,10 @@ from .alternatives import (
     OnewayInput,
     deletion_fits,
     evaluate_alternatives,
+    leave_one_out,
     with_test,
 )
+from .moment_deletion import brown_forsythe_deletion, welch_deletion
 from .omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 from .omnibus_batch import kruskal_batch
 from .rank_updates import RankData, rank_data
@@ -104,8 +106,16 @@ class ChosenTest:
         classic, new_n, new_mean = deletion_fits(self.data)
         used = None
         if self.test in ("welch", "brown-forsythe"):
-            fits = self._moments(*self._deletion_moments(new_n, new_mean))
-            fits = with_test(classic, _batch_of(fits))
+            gs, g = self.data.stats, self.data.codes
+            _, _, new_m2 = leave_one_out(self.data)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                new_var = np.where(new_n > 1, new_m2 / (new_n - 1), 0.0)
+            var = gs.variances()
+            if self.test == "welch":
+                batch = welch_deletion(gs.n, gs.mean, var, g, new_n, new_mean, new_var)
+            else:
+                batch = brown_forsythe_deletion(gs.n, var, g, new_n, new_var, classic.ss_between)
+            fits = with_test(classic, batch)
         elif self.test == "kruskal":
             fits = self._ranked(classic, self.ranks.deletion())
         elif self.test == "permutation":
@@ -114,18 +124,6 @@ class ChosenTest:
         else:
             fits = classic
         return fits, new_n, new_mean, used
-
-    def _deletion_moments(self, new_n: np.ndarray, new_mean: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        from .alternatives import leave_one_out
-
-        d = self.data
-        _, _, new_m2 = leave_one_out(d)
-        rows = np.arange(d.n)
-        n = np.repeat(d.stats.n[None, :].astype(float), d.n, axis=0)
-        mean = np.repeat(d.stats.mean[None, :], d.n, axis=0)
-        m2 = np.repeat(d.stats.m2[None, :], d.n, axis=0)
-        n[rows, d.codes], mean[rows, d.codes], m2[rows, d.codes] = new_n, new_mean, new_m2
-        return n, mean, m2
 
     def merges(self, n: np.ndarray, mean: np.ndarray, m2: np.ndarray, pairs: list[tuple[int, int]]) -> AlternativeFits:
         """Each pair of levels pooled (``(P, k)`` pooled statistics, second level emptied)."""
@@ -218,12 +216,3 @@ class ChosenTest:
         except DesignError:
             return None
         return overall_test(res, self.test).pvalue
-
-
-def _batch_of(fits: AlternativeFits):  # type: ignore[no-untyped-def]
-    """The test part of ``fits`` as a batch (to lay it over other classic fits)."""
-    from .omnibus_batch import TestBatch
-
-    return TestBatch(statistic=fits.statistic, df_num=np.asarray(fits.df_between, dtype=float),
-                     df_den=np.asarray(fits.df_within, dtype=float), pvalue=fits.pvalue, status=fits.status,
-                     levels=fits.levels)

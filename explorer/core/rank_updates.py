@@ -134,14 +134,19 @@ def rank_data(y: np.ndarray, codes: np.ndarray, k: int) -> RankData:
     block_sorted = np.cumsum(np.r_[True, ys[1:] != ys[:-1]]) - 1 if y.size else np.zeros(0, dtype=np.int64)
     block = np.empty(y.size, dtype=np.int64)
     block[order] = block_sorted
-    above = np.zeros((y.size, k), dtype=np.int64)
-    tied = np.zeros((y.size, k), dtype=np.int64)
-    for g in range(k):
-        vals = np.sort(y[codes == g])
-        hi = np.searchsorted(vals, y, side="right")
-        lo = np.searchsorted(vals, y, side="left")
-        above[:, g] = vals.size - hi
-        tied[:, g] = hi - lo
+    # Counts per level at or below each value: cumulative counts along the sorted order, read at the
+    # last (and just before the first) position of each tie block. O(n k), no search per level.
+    size = y.size
+    last = np.r_[np.flatnonzero(ys[1:] != ys[:-1]), size - 1] if size else np.zeros(0, dtype=np.int64)
+    first = np.r_[0, last[:-1] + 1] if size else np.zeros(0, dtype=np.int64)
+    onehot = np.zeros((size + 1, k), dtype=np.int64)
+    onehot[np.arange(1, size + 1), codes[order]] = 1
+    np.cumsum(onehot, axis=0, out=onehot)  # onehot[p, g]: level-g values among the p smallest
+    le = onehot[last + 1][block]  # values <= y[i], per level
+    lt = onehot[first][block]  # values < y[i], per level
+    n_levels = onehot[size]
+    above = n_levels[None, :] - le
+    tied = le - lt
     n = np.bincount(codes, minlength=k).astype(np.float64)
     return RankData(y=y, codes=codes, k=k, n=n, ranks=ranks, rank_sum=np.bincount(codes, weights=ranks, minlength=k),
                     block=block, block_size=np.asarray(sizes, dtype=np.int64),
