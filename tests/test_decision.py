@@ -13,8 +13,8 @@ from statsmodels.stats.anova import anova_lm
 from statsmodels.stats.oneway import anova_oneway
 
 import explorer as ex
-from explorer.core.errors import ExplorerError, ReplayError
-from explorer.core.omnibus import PERMUTATION_SEED, PERMUTATIONS, permutation_f
+from explorer.engine.errors import ExplorerError, ReplayError
+from explorer.inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, permutation_f
 from decision_support import ADDITIVE, CROSSOVER, QUANTITATIVE, RANKS_DISAGREE
 
 

@@ -19,9 +19,9 @@ from scipy import stats
 from statsmodels.stats.oneway import anova_oneway
 
 import explorer as ex
-from explorer.core.alternatives import oneway_input
-from explorer.core.chosen_test import ChosenTest
-from explorer.core.omnibus import PERMUTATIONS, permutation_f
+from explorer.sensitivity.alternatives import oneway_input
+from explorer.sensitivity.chosen_test import ChosenTest
+from explorer.inference.omnibus import PERMUTATIONS, permutation_f
 
 
 def _data(seed: int = 11) -> pd.DataFrame:
@@ -234,7 +234,7 @@ def test_two_way_scans_can_score_another_term():
     from statsmodels.stats.anova import anova_lm
 
     from decision_support import CROSSOVER
-    from explorer.core.errors import ExplorerError
+    from explorer.engine.errors import ExplorerError
 
     study = ex.Study(CROSSOVER, "y", ["A", "B"])
     scan = study.case_deletion(term="B", record=False)

@@ -11,7 +11,7 @@ from decision_support import ADDITIVE, CROSSOVER
 from statsmodels.stats.multitest import multipletests
 
 import explorer as ex
-from explorer.core.errors import ExplorerError
+from explorer.engine.errors import ExplorerError
 
 
 def _reference(df: pd.DataFrame, formula: str, factor: str, within: str, averaged: dict[str, list[str]] | None = None

@@ -3,7 +3,7 @@
 Parallel lines mean the effect of the first factor is the same at every level of the
 second (no interaction); lines that converge, diverge or cross mean it depends on the
 level (a crossing is a reversal). The means are the model's least-squares cell means of
-:func:`explorer.core.simple_effects.simple_effects` (averaged over any other factors and
+:func:`explorer.inference.simple_effects.simple_effects` (averaged over any other factors and
 blocks), the intervals their confidence intervals from the full model's residual mean
 square, and the subtitle gives the interaction test and the simple-effect verdicts.
 
@@ -18,8 +18,8 @@ from __future__ import annotations
 import altair as alt
 import pandas as pd
 
-from explorer.core.simple_effects import SimpleEffects
-from explorer.core.tables import fmt
+from explorer.inference.simple_effects import SimpleEffects
+from explorer.engine.tables import fmt
 
 from .style import HEIGHT, WIDTH, finish
 

@@ -5,6 +5,7 @@ The top of the statistical layers: it may import engine, inference and sensitivi
 """
 
 from ..engine.disclosure import Disclosure
+from .decision import Decision, TermVerdict, decide
 from .study import Study, StudyEvent
 
-__all__ = ["Study", "StudyEvent", "Disclosure"]
+__all__ = ["Study", "StudyEvent", "Disclosure", "Decision", "TermVerdict", "decide"]

@@ -416,7 +416,7 @@ class Study:
     def simple_effects(self, factor: str, within: str, **options: Any) -> SimpleEffects:
         """The test of ``factor`` at each level of ``within`` with the full model's residual mean square and a
         stated family-wise adjustment (see :func:`explorer.inference.simple_effects.simple_effects`)."""
-        from .simple_effects import simple_effects
+        from ..inference.simple_effects import simple_effects
 
         return simple_effects(self.results, factor, within, **options)
 

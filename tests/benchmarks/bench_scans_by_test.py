@@ -36,7 +36,7 @@ from statsmodels.stats.oneway import anova_oneway
 from threadpoolctl import threadpool_limits
 
 import explorer as ex
-from explorer.core.omnibus import permutation_f
+from explorer.inference.omnibus import permutation_f
 
 TESTS = ("classic", "welch", "brown-forsythe", "kruskal", "permutation")
 

@@ -34,10 +34,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .design import model_terms, term_name
-from .omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
-from .results import Results
-from .tables import fmt, html_table
+from ..engine.design import model_terms, term_name
+from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
+from ..engine.results import Results
+from ..engine.tables import fmt, html_table
 
 __all__ = ["TEST_LABELS", "Decision", "TermVerdict", "decide", "interaction_verdict"]
 

@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .omnibus import midranks
+from ..inference.omnibus import midranks
 
 __all__ = ["RankData", "rank_data"]
 

@@ -33,12 +33,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from .cellfit import CellFit, fit_cells
-from .comparisons import adjust_pvalues
-from .distributions import f_sf, t_ppf
-from .errors import DesignError, ExplorerError, closest_names
-from .results import Results
-from .tables import fmt, html_table
+from ..engine.cellfit import CellFit, fit_cells
+from ..engine.pairwise import adjust_pvalues
+from ..engine.distributions import f_sf, t_ppf
+from ..engine.errors import DesignError, ExplorerError, closest_names
+from ..engine.results import Results
+from ..engine.tables import fmt, html_table
 
 __all__ = ["ADJUSTMENTS", "SimpleEffects", "simple_effects"]
 

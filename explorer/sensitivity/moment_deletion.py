@@ -20,8 +20,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .distributions import f_sf
-from .omnibus_batch import TestBatch
+from ..engine.distributions import f_sf
+from ..inference.omnibus_batch import TestBatch
 
 __all__ = ["brown_forsythe_deletion", "welch_deletion"]
 

@@ -30,11 +30,11 @@ from .alternatives import (
     with_test,
 )
 from .moment_deletion import brown_forsythe_deletion, welch_deletion
-from .omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
-from .omnibus_batch import kruskal_batch
+from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
+from ..inference.omnibus_batch import kruskal_batch
 from .rank_updates import RankData, rank_data
 from .shared_permutations import SharedPermutations
-from .spec import ModelSpec
+from ..engine.spec import ModelSpec
 
 __all__ = ["HOW", "STATISTIC_NAMES", "ChosenTest"]
 
@@ -206,8 +206,8 @@ class ChosenTest:
     def refit(self, keep: np.ndarray) -> float | None:
         """The test's p-value on the kept rows, computed afresh as the decision would be after leaving
         the others out (a two-pass fit, then the study's overall test on it)."""
-        from .errors import DesignError
-        from .oneway import fit_oneway
+        from ..engine.errors import DesignError
+        from ..engine.oneway import fit_oneway
 
         d = self.data
         try:
