@@ -9,7 +9,7 @@ from typing import Any, Literal
 from .errors import ExplorerError
 from .table_checks import column_names
 
-__all__ = ["ModelSpec", "ONE_FACTOR_TESTS", "OVERALL_TESTS", "parse_term"]
+__all__ = ["ModelSpec", "ONE_FACTOR_TESTS", "OVERALL_TESTS", "TEST_LABELS", "parse_term"]
 
 SSType = Literal["I", "II", "III"]
 
@@ -20,6 +20,14 @@ OVERALL_TESTS: dict[str, str] = {
     "brown-forsythe": "Brown-Forsythe F* (unequal variances, Mehrotra df)",
     "kruskal": "Kruskal-Wallis H (ranks)",
     "permutation": "permutation F (9999 seeded permutations)",
+}
+#: Short names of the overall tests, as a decision states them.
+TEST_LABELS: dict[str, str] = {
+    "classic": "classic F",
+    "welch": "Welch F",
+    "brown-forsythe": "Brown-Forsythe F*",
+    "kruskal": "Kruskal-Wallis H",
+    "permutation": "permutation F",
 }
 #: Tests defined for one fixed factor without blocks only.
 ONE_FACTOR_TESTS = ("welch", "brown-forsythe", "kruskal", "permutation")

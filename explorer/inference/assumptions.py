@@ -38,8 +38,9 @@ from scipy import special, stats
 from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
 from ..engine.groupstats import group_stats
-from ..engine.tables import fmt
+from ..engine.spec import TEST_LABELS
 from .oneway_inputs import row_sample_notes
+from ..engine.tables import fmt
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -220,8 +221,7 @@ PRETEST_REFERENCE = (
     "instead of Student's t-test. International Review of Social Psychology 30(1), 92-101"
 )
 
-_TEST_NAMES = {"classic": "classic F", "welch": "Welch F", "brown-forsythe": "Brown-Forsythe F*",
-               "kruskal": "Kruskal-Wallis H", "permutation": "permutation F"}
+_TEST_NAMES = TEST_LABELS
 
 
 @dataclass(frozen=True, kw_only=True)

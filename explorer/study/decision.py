@@ -37,18 +37,11 @@ import pandas as pd
 from ..engine.design import model_terms, term_name
 from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 from ..engine.results import Results
+from ..engine.spec import TEST_LABELS
 from ..engine.tables import fmt, html_table
 
 __all__ = ["TEST_LABELS", "Decision", "TermVerdict", "decide", "interaction_verdict"]
 
-#: Short names of the overall tests, as the decision states them.
-TEST_LABELS = {
-    "classic": "classic F",
-    "welch": "Welch F",
-    "brown-forsythe": "Brown-Forsythe F*",
-    "kruskal": "Kruskal-Wallis H",
-    "permutation": "permutation F",
-}
 DETECTED = "differences detected"
 NOT_DETECTED = "no differences detected"
 NO_INTERACTION = "no interaction detected"

@@ -56,7 +56,7 @@ def test_oneway_f_and_p_equal_the_rescaled_data(k):
         r = s.results
     ref = stats.f_oneway(*[base.y[base.nozzle == lv] for lv in ("N1", "N2", "N3")])
     assert _close(r.statistic(), ref.statistic) and _close(r.pvalue(), ref.pvalue, 1e-8)
-    assert r.significant() == (ref.pvalue < 0.05)
+    assert s.decision.significant == (ref.pvalue < 0.05)
     e = s.dataset.unit_exponent
     assert e != 0 and any("2**" in n or "2^" in n for n in s.dataset.notes)
     # Sums of squares and means are those of the data in units of 2**e.
