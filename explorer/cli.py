@@ -29,11 +29,10 @@ from pathlib import Path
 from typing import Any
 
 from .engine import ExplorerError, OutputError, ReplayError
-from .engine.spec import ModelSpec
+from .engine.spec import OVERALL_TESTS, ModelSpec
 from .study import Study
 from .study.output_files import check_output_path, write_text_atomic
 from .study.persistence import read_study_file
-from .engine.spec import OVERALL_TESTS, ModelSpec
 
 __all__ = ["main", "EXIT_CODES", "PROG"]
 

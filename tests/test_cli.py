@@ -50,7 +50,8 @@ def test_check_prints_tables_and_decision(capsys):
     assert code == 0 and err == ""
     res = ex.Study(DEMO, response="thickness_um", factors="nozzle").results
     assert f"{res.partition.row('nozzle').statistic:f}" in out
-    assert "Baseline (unedited data)" in out and ex.Study(DEMO, response="thickness_um", factors="nozzle").decision.sentence() in out
+    decision = ex.Study(DEMO, response="thickness_um", factors="nozzle").decision
+    assert "Baseline (unedited data)" in out and decision.sentence() in out
     assert "Sensitivity of the decision" in out and "Disclosure:" in out
     assert "Leaving data out needs a documented reason." in out
 

@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.formula.api as smf
+from decision_support import ADDITIVE, CROSSOVER, QUANTITATIVE, RANKS_DISAGREE
 from scipy import stats
 from statsmodels.stats.anova import anova_lm
 from statsmodels.stats.oneway import anova_oneway
@@ -15,7 +16,6 @@ from statsmodels.stats.oneway import anova_oneway
 import explorer as ex
 from explorer.engine.errors import ExplorerError, ReplayError
 from explorer.inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, permutation_f
-from decision_support import ADDITIVE, CROSSOVER, QUANTITATIVE, RANKS_DISAGREE
 
 
 def _anova(df: pd.DataFrame) -> pd.DataFrame:

@@ -19,9 +19,9 @@ from scipy import stats
 from statsmodels.stats.oneway import anova_oneway
 
 import explorer as ex
+from explorer.inference.omnibus import PERMUTATIONS, permutation_f
 from explorer.sensitivity.alternatives import oneway_input
 from explorer.sensitivity.chosen_test import ChosenTest
-from explorer.inference.omnibus import PERMUTATIONS, permutation_f
 
 
 def _data(seed: int = 11) -> pd.DataFrame:
@@ -231,9 +231,9 @@ def test_sweep_default_specification_is_the_study(test):
 def test_two_way_scans_can_score_another_term():
     """term= picks the term scored (statsmodels anova_lm typ=2 refit per row for 'B'); an unknown term is refused."""
     import statsmodels.formula.api as smf
+    from decision_support import CROSSOVER
     from statsmodels.stats.anova import anova_lm
 
-    from decision_support import CROSSOVER
     from explorer.engine.errors import ExplorerError
 
     study = ex.Study(CROSSOVER, "y", ["A", "B"])

@@ -18,8 +18,8 @@ from __future__ import annotations
 import altair as alt
 import pandas as pd
 
-from explorer.inference.simple_effects import SimpleEffects
 from explorer.engine.tables import fmt
+from explorer.inference.simple_effects import SimpleEffects
 
 from .style import HEIGHT, WIDTH, finish
 

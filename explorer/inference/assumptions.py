@@ -39,8 +39,8 @@ from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
 from ..engine.groupstats import group_stats
 from ..engine.spec import TEST_LABELS
-from .oneway_inputs import row_sample_notes
 from ..engine.tables import fmt
+from .oneway_inputs import row_sample_notes
 
 if TYPE_CHECKING:
     from ..engine.results import Results

@@ -34,9 +34,9 @@ import numpy as np
 import pandas as pd
 
 from ..engine.cellfit import CellFit, fit_cells
-from ..engine.pairwise import adjust_pvalues
 from ..engine.distributions import f_sf, t_ppf
 from ..engine.errors import DesignError, ExplorerError, closest_names
+from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
 from ..engine.tables import fmt, html_table
 

@@ -17,10 +17,9 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-
 from ..engine.errors import ExplorerError
-from ..study.output_files import check_output_path, write_text_atomic
 from ..engine.tables import fmt
+from ..study.output_files import check_output_path, write_text_atomic
 from .cautions import cautions_html
 from .extras import Part, battery_part, sensitivity_part
 from .replay_code import study_to_code

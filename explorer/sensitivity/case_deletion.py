@@ -25,15 +25,15 @@ import numpy as np
 import pandas as pd
 
 from ..engine.disclosure import Disclosure
+from ..engine.errors import ExplorerError, closest_names
 from ..engine.tables import fmt, html_table
 from .alternatives import (
     STATUS_NOTES,
     OnewayInput,
     oneway_input,
 )
-from .mixed_guard import refuse_mixed
-from ..engine.errors import ExplorerError, closest_names
 from .chosen_test import STATISTIC_NAMES, ChosenTest
+from .mixed_guard import refuse_mixed
 
 __all__ = ["CaseDeletionScan", "case_deletion_scan", "nullable"]
 

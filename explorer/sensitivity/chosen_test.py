@@ -20,6 +20,9 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
+from ..engine.spec import ModelSpec
+from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
+from ..inference.omnibus_batch import kruskal_batch
 from .alternatives import (
     MOMENT_TESTS,
     AlternativeFits,
@@ -30,11 +33,8 @@ from .alternatives import (
     with_test,
 )
 from .moment_deletion import brown_forsythe_deletion, welch_deletion
-from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
-from ..inference.omnibus_batch import kruskal_batch
 from .rank_updates import RankData, rank_data
 from .shared_permutations import SharedPermutations
-from ..engine.spec import ModelSpec
 
 __all__ = ["HOW", "STATISTIC_NAMES", "ChosenTest"]
 

@@ -49,8 +49,8 @@ from ..engine.groupstats import group_stats
 from ..engine.studentized_range import srange_ppf, srange_sf
 from ..engine.tables import fmt, html_table
 from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
-from .mixed_guard import refuse_mixed
 from .chosen_test import ChosenTest
+from .mixed_guard import refuse_mixed
 
 __all__ = ["FlipSearch", "flip_finder"]
 

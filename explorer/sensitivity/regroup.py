@@ -29,10 +29,9 @@ from .alternatives import (
     leave_one_out,
     oneway_input,
 )
-from .case_deletion import nullable
-from .mixed_guard import refuse_mixed
 from .case_deletion import nullable, scored_term
 from .chosen_test import STATISTIC_NAMES, ChosenTest
+from .mixed_guard import refuse_mixed
 
 __all__ = ["RegroupScan", "regroup_scan"]
 

@@ -49,15 +49,14 @@ from ..engine.disclosure import Disclosure
 from ..engine.errors import DesignError, ExplorerError, closest_names
 from ..engine.oneway import fit_oneway
 from ..engine.results import Results
+from ..engine.spec import OVERALL_TESTS
 from ..engine.tables import fmt, html_table
-from ..inference.omnibus import OmnibusTest, classic_f, kruskal_wallis, welch_f
+from ..inference.omnibus import overall_test
 from ..inference.outliers import bonferroni_outlier_test
 from .alternatives import OnewayInput, oneway_input
 from .case_deletion import nullable
 from .influence import influence_measures
 from .mixed_guard import refuse_mixed
-from ..inference.omnibus import overall_test
-from ..engine.spec import OVERALL_TESTS
 from .sweep_coincide import distinct_analyses
 
 __all__ = ["OUTLIER_RULES", "TESTS", "TRANSFORMS", "SweepResult", "robustness_sweep"]

@@ -35,10 +35,10 @@ import numpy as np
 import pandas as pd
 
 from ..engine.design import model_terms, term_name
-from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 from ..engine.results import Results
 from ..engine.spec import TEST_LABELS
 from ..engine.tables import fmt, html_table
+from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 
 __all__ = ["TEST_LABELS", "Decision", "TermVerdict", "decide", "interaction_verdict"]
 

@@ -23,25 +23,25 @@ from ..engine.disclosure import Disclosure
 from ..engine.edits import DropRows, DropUnit, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, RestoreUnit
 from ..engine.errors import DesignError, EditError, ReplayError
 from ..engine.moves import MovedRow, moved_rows
-from .decision import Decision, decide
-from .output_files import write_text_atomic
-from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 from ..engine.results import Results
 from ..engine.spec import ModelSpec
 from ..engine.table_checks import column_names
 from ..engine.view import DataView, initial_view
+from .decision import Decision, decide
+from .output_files import write_text_atomic
+from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 
 if TYPE_CHECKING:
     from ..inference.battery import Battery
     from ..inference.measurement_system import MeasurementSystem
     from ..inference.repeated_measures import RepeatedMeasures
+    from ..inference.simple_effects import SimpleEffects
     from ..sensitivity.case_deletion import CaseDeletionScan
     from ..sensitivity.flip import FlipSearch
     from ..sensitivity.influence import Influence
     from ..sensitivity.regroup import RegroupScan
     from ..sensitivity.sweep import SweepResult
     from ..sensitivity.unit_deletion import UnitDeletionScan
-    from ..inference.simple_effects import SimpleEffects
 
 __all__ = ["Study", "StudyEvent", "Disclosure"]
 

@@ -602,7 +602,8 @@ class SummaryStudy(Study):
             "from explorer.summaries import SummaryStudy",
             f"study = SummaryStudy({lit(source)}, "
             f"response={lit(s.response)}, factors={lit(list(s.factors))}, blocks={lit(list(s.blocks))}, "
-            f"interactions={lit(bool(s.interactions))}, ss_type={lit(s.ss_type)}, alpha={lit(float(s.alpha))}, test={lit(s.test)}, "
+            f"interactions={lit(bool(s.interactions))}, ss_type={lit(s.ss_type)}, alpha={lit(float(s.alpha))}, "
+            f"test={lit(s.test)}, "
             f"sample_size={lit(int(self.sample_size))}, seed={lit(int(self.seed))})",
         ]
         lines += [f"study.apply(edit_from_dict({lit(e.to_dict())}))" for e in self.edits]

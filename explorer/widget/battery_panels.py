@@ -17,11 +17,10 @@ from typing import Any
 import pandas as pd
 
 from explorer.engine import Results
-from explorer.engine.tables import fmt, html_table
+from explorer.engine.tables import html_table
 from explorer.inference.assumptions import bartlett, levene, shapiro_residuals
 from explorer.inference.battery import Battery, run_battery
 from explorer.inference.letters import compact_letters
-from explorer.engine.tables import html_table
 
 from .panels import PanelContext, explains_refusals, panel
 

@@ -22,8 +22,8 @@ import pandas as pd
 from explorer.charts import HistoryStep
 from explorer.engine import ExplorerError
 from explorer.engine.moves import level_homes
-from explorer.study import Study, StudyEvent
 from explorer.engine.spec import OVERALL_TESTS
+from explorer.study import Study, StudyEvent
 
 from . import battery_panels, core_panels, fragility_panels, interaction_panels  # noqa: F401  (register the built-in panels)
 from .compare import CAUTIONS_HTML, disclosure_html

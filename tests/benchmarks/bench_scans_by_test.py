@@ -85,7 +85,7 @@ def _peak_mib(fn) -> float:  # type: ignore[no-untyped-def]
 def bench_deletion(test: str, n: int, subset: int, repeats: int) -> dict:
     df = _data(n, 5)
     study = ex.Study(df, "y", "g", test=test)
-    study.decision  # the decision (and the permutation test) is computed once per view, not by the scan
+    _ = study.decision  # the decision (and the permutation test) is computed once per view, not by the scan
     scan = study.case_deletion(record=False)
     y, g = df["y"].to_numpy(), df["g"].to_numpy()
     rows = np.linspace(0, n - 1, subset).astype(int)
@@ -119,7 +119,7 @@ def bench_regroup(test: str, n: int, subset: int, repeats: int) -> dict:
     k = 8
     df = _data(n, k, 1)
     study = ex.Study(df, "y", "g", test=test)
-    study.decision
+    _ = study.decision
     scan = study.regroup_scan(record=False)
     y = df["y"].to_numpy()
     codes = df["g"].map({f"L{i + 1}": i for i in range(k)}).to_numpy()
