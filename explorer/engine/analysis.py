@@ -6,7 +6,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from .dataset import Dataset
+from .dataset import Dataset, RowId
 from .oneway import fit_oneway
 from .response_unit import unit_note
 from .results import Results
@@ -27,7 +27,7 @@ def analyze(dataset: Dataset, view: DataView, spec: ModelSpec) -> Results:
     return results
 
 
-def _fit(dataset: Dataset, view: DataView, spec: ModelSpec, positions: np.ndarray, dropped: tuple,
+def _fit(dataset: Dataset, view: DataView, spec: ModelSpec, positions: np.ndarray, dropped: tuple[RowId, ...],
          y: np.ndarray) -> Results:
     if spec.is_oneway:
         f = spec.factors[0]

@@ -30,7 +30,7 @@ Golub, G. H. and Van Loan, C. F. (2013). Matrix Computations, 4th ed., sec. 5.3
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -100,7 +100,9 @@ class CellFit:
         return tuple(self.name(t) for t in self.terms)
 
 
-def _projector(xw: np.ndarray, zw: np.ndarray, bases: dict[tuple[int, ...], np.ndarray]):
+def _projector(
+    xw: np.ndarray, zw: np.ndarray, bases: dict[tuple[int, ...], np.ndarray]
+) -> Callable[[np.ndarray], np.ndarray]:
     """Return ``fitted(cols)``: projection of ``zw`` on the span of ``xw[:, cols]`` (memoised).
 
     The orthonormal bases are kept in ``bases`` (keyed by the column indices), so that

@@ -15,7 +15,7 @@ import re
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Union
+from typing import Any, Union
 
 import numpy as np
 import pandas as pd
@@ -41,7 +41,7 @@ class SetAsideRow:
     reason: str
 
 
-def _natural_key(s: str) -> tuple:
+def _natural_key(s: str) -> tuple[object, ...]:
     return tuple(int(t) if t.isdigit() else t.lower() for t in re.split(r"(\d+)", s))
 
 
@@ -107,7 +107,7 @@ class Dataset:
     id_column: str | None = None
     notes: tuple[str, ...] = field(default=())
     unit_exponent: int = 0
-    _positions: dict = field(default_factory=dict, repr=False)
+    _positions: dict[RowId, int] = field(default_factory=dict, repr=False)
 
     @property
     def n(self) -> int:
@@ -378,11 +378,11 @@ def _in_safe_unit(y: np.ndarray, offset: float, raw: np.ndarray) -> tuple[np.nda
     return rescale(y, e), float(np.ldexp(offset, -e)), e
 
 
-def encode_digests(ids: np.ndarray, digests: np.ndarray) -> dict:
+def encode_digests(ids: np.ndarray, digests: np.ndarray) -> dict[str, Any]:
     """Compact per-row digests for a saved file (ids as a list, digests base64)."""
     return {"ids": [_py(i) for i in ids.tolist()], "digests": base64.b64encode(digests.astype("<u4").tobytes()).decode()}
 
 
-def decode_digests(blob: dict) -> dict[RowId, int]:
+def decode_digests(blob: dict[str, Any]) -> dict[RowId, int]:
     raw = np.frombuffer(base64.b64decode(blob["digests"]), dtype="<u4")
     return {(_py(i)): int(d) for i, d in zip(blob["ids"], raw)}

@@ -139,7 +139,7 @@ def _combos(cell_levels: np.ndarray, idx: Sequence[int]) -> tuple[np.ndarray, in
     return code, int(code.max()) + 1 if code.size else 0
 
 
-def _basis(xw: np.ndarray, cols: np.ndarray, cache: dict) -> np.ndarray:
+def _basis(xw: np.ndarray, cols: np.ndarray, cache: dict[tuple[int, ...], np.ndarray]) -> np.ndarray:
     key = tuple(int(c) for c in cols)
     if key not in cache:
         cache[key] = np.linalg.qr(xw[:, cols])[0]
@@ -233,7 +233,7 @@ def expected_mean_squares(
     xw = w[:, None] * fit.design.matrix
     b_mats = [w[:, None] * z for _, z in indicators]
     comparisons = model_comparisons(fit.terms, fit.sequence, nesting)[ss_type]
-    cache: dict = fit.bases if fit.bases is not None else {}
+    cache: dict[tuple[int, ...], np.ndarray] = fit.bases if fit.bases is not None else {}
     for i, t in enumerate(fit.terms):
         big, small = comparisons[t]
         qb = _basis(xw, fit.design.columns_of(big), cache)
@@ -250,7 +250,8 @@ def expected_mean_squares(
                                ss_type=ss_type)
 
 
-_DENOMINATORS: dict[tuple, tuple] = {}
+_Denominators = tuple[tuple[tuple[tuple[str, float], ...], bool], ...]
+_DENOMINATORS: dict[tuple[object, ...], _Denominators] = {}
 
 
 def _denominators(ems: ExpectedMeanSquares) -> tuple[tuple[tuple[tuple[str, float], ...], bool], ...]:

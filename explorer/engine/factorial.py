@@ -23,7 +23,7 @@ import numpy as np
 from .blocking import BlockingEfficiency, blocking_efficiency
 from .cellfit import SS_TYPES, CellFit, fit_cells
 from .cells import CellLayout, CellTable, layout_cells
-from .dataset import Dataset
+from .dataset import Dataset, RowId
 from .design import fitted_terms
 from .design_checks import check_design
 from .design_layout import layout_notes
@@ -203,7 +203,7 @@ def fit_factorial(
     spec: ModelSpec,
     *,
     positions: np.ndarray,
-    dropped: tuple = (),
+    dropped: tuple[RowId, ...] = (),
     confidence: float | None = None,
 ) -> Results:
     """Analyse the kept rows ``positions`` of ``view`` with the multi-factor model ``spec``.
@@ -249,7 +249,7 @@ def factorial_from_cells(
     rows: RowSet,
     level_stats: list[GroupStats] | None = None,
     dataset_notes: tuple[str, ...] = (),
-    dropped: tuple = (),
+    dropped: tuple[RowId, ...] = (),
     confidence: float | None = None,
     method: str | None = None,
 ) -> Results:

@@ -9,6 +9,7 @@ from __future__ import annotations
 import csv
 import importlib.util
 from pathlib import Path
+from typing import Any
 
 import pandas as pd
 
@@ -117,7 +118,7 @@ def _read_delimited(path: Path, sep: str | None, text_columns: tuple[str, ...]) 
     """Read a delimited text table, with a specific message for each way a text file can be unusable."""
     encoding = _encoding(path)
     engine = "python" if sep is None else "c"
-    options: dict = {"sep": sep, "engine": engine, "encoding": encoding}
+    options: dict[str, Any] = {"sep": sep, "engine": engine, "encoding": encoding}
     try:
         header = pd.read_csv(path, nrows=1, header=None, dtype=str, keep_default_na=False, **options)
     except pd.errors.EmptyDataError:

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .dataset import RowId
 from .distributions import f_sf, t_ppf, t_two_sided_p
 from .errors import DesignError, preview
 from .fitrows import RowSet, row_fit
@@ -93,7 +94,7 @@ def fit_oneway(
     positions: np.ndarray,
     offset: float,
     spec: ModelSpec,
-    dropped: tuple = (),
+    dropped: tuple[RowId, ...] = (),
     confidence: float | None = None,
 ) -> Results:
     """One-way analysis of the shifted response ``y`` grouped by ``codes`` into ``labels``.
@@ -111,7 +112,7 @@ def oneway_from_stats(
     spec: ModelSpec,
     *,
     rows: RowSet,
-    dropped: tuple = (),
+    dropped: tuple[RowId, ...] = (),
     confidence: float | None = None,
     method: str = "least squares, one-way (group sufficient statistics)",
 ) -> Results:

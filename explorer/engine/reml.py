@@ -28,7 +28,7 @@ Searle, S. R., Casella, G. and McCulloch, C. E. (1992). Variance Components, ch.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -106,7 +106,7 @@ class _Criterion:
 
     def profiled(self, theta: np.ndarray) -> float:
         logdets, r2, dfr = self.parts(np.abs(theta))
-        return logdets + dfr * (1.0 + np.log(2.0 * np.pi * max(r2, 1e-300) / dfr))
+        return float(logdets + dfr * (1.0 + np.log(2.0 * np.pi * max(r2, 1e-300) / dfr)))
 
     def full(self, variances: np.ndarray) -> float:
         """The deviance as a function of (sigma^2_1, ..., sigma^2_k, sigma^2) (not profiled)."""
@@ -115,10 +115,10 @@ class _Criterion:
             return np.inf
         theta = np.sqrt(variances[:-1] / sigma2)
         logdets, r2, dfr = self.parts(theta)
-        return logdets + dfr * np.log(2.0 * np.pi * sigma2) + r2 / sigma2
+        return float(logdets + dfr * np.log(2.0 * np.pi * sigma2) + r2 / sigma2)
 
 
-def _hessian(f, x: np.ndarray) -> np.ndarray | None:
+def _hessian(f: Callable[[np.ndarray], float], x: np.ndarray) -> np.ndarray | None:
     """Central-difference Hessian; ``None`` when a step leaves the parameter space (near the boundary)."""
     k = x.size
     h = 1e-4 * np.maximum(np.abs(x), 1e-8)
@@ -144,7 +144,7 @@ def _hessian(f, x: np.ndarray) -> np.ndarray | None:
     return out
 
 
-def _derivatives(f, x: np.ndarray, f0: float) -> tuple[np.ndarray, np.ndarray]:
+def _derivatives(f: Callable[[np.ndarray], float], x: np.ndarray, f0: float) -> tuple[np.ndarray, np.ndarray]:
     """Finite-difference gradient and Hessian of ``f`` at ``x >= 0`` (one-sided at the boundary)."""
     k = x.size
     h = 1e-4 * np.maximum(x, 1e-2)
@@ -173,7 +173,7 @@ def _derivatives(f, x: np.ndarray, f0: float) -> tuple[np.ndarray, np.ndarray]:
     return g, hess
 
 
-def _projected_newton(f, x0: np.ndarray, max_iter: int = 100) -> tuple[np.ndarray, bool, int]:
+def _projected_newton(f: Callable[[np.ndarray], float], x0: np.ndarray, max_iter: int = 100) -> tuple[np.ndarray, bool, int]:
     """Minimise ``f`` over x >= 0 by Newton steps on the free coordinates with a backtracking line search."""
     x = np.maximum(np.asarray(x0, float), 0.0)
     fx = f(x)

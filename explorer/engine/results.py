@@ -10,6 +10,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from .dataset import RowId
 from .errors import ExplorerError
 from .groupstats import GroupStats
 from .spec import ModelSpec
@@ -138,7 +139,7 @@ class Results:
     groups: GroupStats
     fit: Fit
     n_used: int
-    dropped: tuple = ()
+    dropped: tuple[RowId, ...] = ()
     two_groups: TwoSampleT | None = None
     method: str = "least squares, one-way"
     notes: tuple[str, ...] = field(default=())

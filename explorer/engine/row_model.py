@@ -244,7 +244,8 @@ def hc_meat(fit: RowFit, kind: str = "hc3") -> np.ndarray:
         raise ValueError(f"kind must be 'hc0' or 'hc3', not {kind!r}")
     bread = fit.cov_unscaled
     meat = x.T @ (x * e2[:, None])
-    return bread @ meat @ bread
+    cov: np.ndarray = bread @ meat @ bread
+    return cov
 
 
 def design_of(results: object, covariates: Mapping[str, np.ndarray] | None = None, *,

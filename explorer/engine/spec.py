@@ -291,7 +291,7 @@ class ModelSpec:
             terms=None if terms is None else tuple(terms),
             max_order=d.get("max_order"),
             random=tuple(d.get("random", ())),
-            nested=d.get("nested", ()),  # type: ignore[arg-type]
+            nested=d.get("nested", ()),
             subject=d.get("subject"),
             within=tuple(d.get("within", ())),
             test=d.get("test", "classic"),

@@ -38,6 +38,7 @@ import pandas as pd
 from scipy import special
 
 from .cellfit import CellFit
+from .design import Term
 from .ems import RESIDUAL, ExpectedMeanSquares, is_random, random_indicators
 from .reml import reml_fit
 from .spec import ModelSpec
@@ -273,7 +274,7 @@ def reml_components(
 def estimate_components(
     fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: tuple[str, ...],
     ems: ExpectedMeanSquares, table: AnovaTable, confidence: float = 0.95,
-    indicators: list | None = None,
+    indicators: list[tuple[Term, np.ndarray]] | None = None,
 ) -> VarianceComponents | None:
     """The variance components of ``fit`` by ``spec.variance_method`` (``None`` without random terms).
 

@@ -45,12 +45,13 @@ class DataView:
 
     def labels(self, factor: str) -> np.ndarray:
         """Current level name of every usable row (object array)."""
-        return np.asarray(self.levels[factor], dtype=object)[self.codes[factor]]
+        labels: np.ndarray = np.asarray(self.levels[factor], dtype=object)[self.codes[factor]]
+        return labels
 
     def replace(self, **changes: object) -> "DataView":
         fields: dict[str, Any] = {"kept": self.kept, "codes": self.codes, "levels": self.levels}
         fields.update(changes)
-        return DataView(**fields)  # type: ignore[arg-type]
+        return DataView(**fields)
 
 
 def initial_view(dataset: Dataset) -> DataView:

@@ -14,6 +14,7 @@ tables carry (Tukey -> Tukey-Kramer), never which computation is shown.
 from __future__ import annotations
 
 import html
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Literal
 
@@ -97,7 +98,7 @@ def comparison_parts(
     k = results.groups.k
     pairs = k * (k - 1) // 2
     notes: list[str] = []
-    makers = {
+    makers: dict[str, tuple[str, Callable[[], PairwiseTable]]] = {
         "tukey": ("Tukey-Kramer", lambda: tukey(results, confidence=confidence)),
         "games_howell": ("Games-Howell", lambda: games_howell(results, confidence=confidence)),
         "pairwise_t": ("pairwise t", lambda: pairwise_t(results, adjust=pairwise_adjust,  # type: ignore[arg-type]

@@ -113,7 +113,8 @@ class ContrastTable:
     def significant(self) -> np.ndarray:
         """Which contrasts the family-adjusted p-value declares nonzero at the analysis alpha."""
         with np.errstate(invalid="ignore"):
-            return np.asarray(self.adjusted < self.alpha) & np.isfinite(self.adjusted)
+            out: np.ndarray = np.asarray(self.adjusted < self.alpha) & np.isfinite(self.adjusted)
+            return out
 
     @property
     def title(self) -> str:

@@ -163,7 +163,7 @@ def equivalence(
     else:
         if isinstance(pairs, (str, bytes)) or not pairs:
             raise ExplorerError("pairs is a list of (level, level), e.g. [('new', 'current')]")
-        pair_list: list = [list(pairs)] if len(pairs) == 2 and all(isinstance(q, str) for q in pairs) else list(pairs)
+        pair_list: list[Any] = [list(pairs)] if len(pairs) == 2 and all(isinstance(q, str) for q in pairs) else list(pairs)
         idx = []
         for pair in pair_list:
             if isinstance(pair, (str, bytes)) or len(pair) != 2:

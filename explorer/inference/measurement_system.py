@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -39,6 +40,9 @@ from ..engine.ems import RESIDUAL
 from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
 from ..engine.variance_components import NEGATIVE_RULE, VarianceComponents
+
+if TYPE_CHECKING:
+    from ..engine.results import Results
 
 __all__ = ["GaugeLine", "MeasurementSystem", "measurement_system"]
 
@@ -102,7 +106,7 @@ class MeasurementSystem:
 
 
 def measurement_system(
-    results, part: str, operator: str, *, tolerance: float | None = None, multiplier: float = 6.0
+    results: Results, part: str, operator: str, *, tolerance: float | None = None, multiplier: float = 6.0
 ) -> MeasurementSystem:
     """The measurement-system table of a study of ``part`` x ``operator`` (both random; see module docstring).
 

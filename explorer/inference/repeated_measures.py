@@ -44,6 +44,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from itertools import combinations
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
@@ -52,6 +53,11 @@ from scipy import special
 from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
+
+if TYPE_CHECKING:
+    from ..engine.results import Results
+    from ..engine.spec import ModelSpec
+    from ..engine.tables import AnovaTable, TermRow
 
 __all__ = ["MultivariateTest", "RepeatedMeasures", "SphericityTest", "repeated_measures"]
 
@@ -138,7 +144,7 @@ def _helmert(k: int) -> np.ndarray:
     return c
 
 
-def _subject_table(results) -> tuple[np.ndarray, np.ndarray, list[str], list[int], list[tuple[str, ...]], list[str]]:
+def _subject_table(results: Results) -> tuple[np.ndarray, np.ndarray, list[str], list[int], list[tuple[str, ...]], list[str]]:
     """(Y subjects x within cells, between group code per subject, within factors, their level counts,
     between label tuples, subject labels)."""
     spec = results.spec
@@ -181,7 +187,9 @@ def _transform(within: list[str], sizes: list[int], term: tuple[str, ...]) -> np
     return m
 
 
-def _between_design(uniq: list[tuple[str, ...]], code: np.ndarray, between: list[str]) -> tuple[np.ndarray, dict]:
+def _between_design(
+    uniq: list[tuple[str, ...]], code: np.ndarray, between: list[str]
+) -> tuple[np.ndarray, dict[tuple[str, ...], slice]]:
     """Sum-to-zero full factorial design of the between factors at subject level; slices per between term."""
     n = code.size
     cols = [np.ones((n, 1))]
@@ -262,7 +270,7 @@ def _multivariate(z: np.ndarray, x: np.ndarray, rows: slice, source: str) -> Mul
     return MultivariateTest(source=source, hypothesis_df=q, error_df=int(dfe), statistics=tuple(stats_out))
 
 
-def repeated_measures(results, *, multivariate: bool = True) -> RepeatedMeasures:
+def repeated_measures(results: Results, *, multivariate: bool = True) -> RepeatedMeasures:
     """Sphericity, epsilons, epsilon-corrected p-values and multivariate tests of a repeated-measures study.
 
     ``results`` are the results of a study with ``subject=`` and ``within=``; the
@@ -346,7 +354,7 @@ def _mauchly(s: np.ndarray, p: int, nu: int, tr: float) -> tuple[float | None, f
     return float(np.exp(logw)), chi, p1 + w2 * (p2 - p1), p1
 
 
-def _row(table, source: str, spec):
+def _row(table: AnovaTable, source: str, spec: ModelSpec) -> TermRow | None:
     """The partition row of a within term, whatever order its factors were written in."""
     wanted = set(source.split(" × "))
     for r in table.rows:

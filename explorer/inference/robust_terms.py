@@ -25,6 +25,7 @@ in the linear regression model. The American Statistician 54, 217-224.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -84,7 +85,9 @@ def _wald(fit: RowFit, cov: np.ndarray, cols: list[int]) -> float:
     return float(b @ np.linalg.solve(v, b))
 
 
-def hc3_tests(results: Results, *, ss_type: str | None = None, covariates: dict | None = None) -> RobustTermTests:
+def hc3_tests(
+    results: Results, *, ss_type: str | None = None, covariates: dict[str, Any] | None = None
+) -> RobustTermTests:
     """HC3 Wald F tests of every term of ``results``' fixed-effects model (types II or III).
 
     ``ss_type`` defaults to the study's (type I has no robust counterpart here: type II

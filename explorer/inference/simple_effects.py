@@ -79,7 +79,8 @@ class SimpleEffects:
     @property
     def significant(self) -> np.ndarray:
         with np.errstate(invalid="ignore"):
-            return np.isfinite(self.adjusted_pvalue) & (self.adjusted_pvalue < self.alpha)
+            out: np.ndarray = np.isfinite(self.adjusted_pvalue) & (self.adjusted_pvalue < self.alpha)
+            return out
 
     def verdicts(self) -> list[str]:
         """One plain line per level of ``within``."""

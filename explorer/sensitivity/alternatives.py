@@ -35,6 +35,7 @@ from ..engine.distributions import f_sf
 from ..engine.errors import DesignError
 from ..engine.groupstats import GroupStats, group_stats
 from ..inference.omnibus_batch import UNDEFINED, TestBatch, brown_forsythe_batch, welch_batch
+from .study_like import StudyLike
 
 __all__ = [
     "STATUS_NOTES",
@@ -98,20 +99,20 @@ class OnewayInput:
         return max(abs(self.offset), m, 1e-300)
 
 
-def oneway_input(study: object, what: str = "this scan") -> OnewayInput:
+def oneway_input(study: StudyLike, what: str = "this scan") -> OnewayInput:
     """Collect the current view of a one-factor ``study`` for a scan.
 
     Raises :class:`DesignError` for studies with several factors or blocks (the scans
     here work on the groups of a single factor).
     """
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     if not spec.is_oneway:
         raise DesignError(
             f"{what} works on one-factor studies; this study has factors {list(spec.columns)}. "
             "Make a one-factor study of the factor of interest (Study(data, response, factors='...')) to scan it."
         )
-    res = study.results  # type: ignore[attr-defined]
-    dataset = study.dataset  # type: ignore[attr-defined]
+    res = study.results
+    dataset = study.dataset
     if int(np.asarray(res.fit.positions).size) != int(res.groups.n_total):
         raise DesignError(
             f"{what} needs every kept row, but this study's results carry {np.asarray(res.fit.positions).size} "

@@ -34,6 +34,7 @@ from .alternatives import (
 )
 from .chosen_test import STATISTIC_NAMES, ChosenTest
 from .mixed_guard import refuse_mixed
+from .study_like import StudyLike
 
 __all__ = ["CaseDeletionScan", "case_deletion_scan", "nullable"]
 
@@ -199,7 +200,7 @@ def _pairwise_change(
     return names[code], t_before, t_after
 
 
-def scored_term(study: object, term: str | None) -> tuple[str, object]:
+def scored_term(study: StudyLike, term: str | None) -> tuple[str, object]:
     """The term a scan scores (``term``, else the one the study's decision is about) and its verdict.
 
     Raises :class:`ExplorerError` naming the treatment terms when ``term`` is not one.
@@ -215,7 +216,7 @@ def scored_term(study: object, term: str | None) -> tuple[str, object]:
         raise ExplorerError(f"{name!r} is not a treatment term of this study; terms: {names}.{hint}") from None
 
 
-def case_deletion_scan(study: object, *, term: str | None = None, alpha: float | None = None,
+def case_deletion_scan(study: StudyLike, *, term: str | None = None, alpha: float | None = None,
                        record: bool = True) -> CaseDeletionScan:
     """Leave each kept row of ``study`` out in turn; see :class:`CaseDeletionScan`.
 
@@ -226,10 +227,10 @@ def case_deletion_scan(study: object, *, term: str | None = None, alpha: float |
     """
     refuse_mixed(study, "case-deletion scan")
     name, verdict = scored_term(study, term)
-    if not study.spec.is_oneway:  # type: ignore[attr-defined]
+    if not study.spec.is_oneway:
         return _factorial_scan(study, name, verdict, alpha, record)
     data = oneway_input(study, "the case-deletion scan")
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     a = data.alpha if alpha is None else float(alpha)
     chosen = ChosenTest(data, spec)
     fits, new_n, new_mean, used = chosen.deletion()
@@ -246,7 +247,7 @@ def case_deletion_scan(study: object, *, term: str | None = None, alpha: float |
     if single:
         notes.append(f"{single} level(s) have one observation; leaving it out removes the level (one df fewer for the term).")
     if record:
-        study.record_search("case deletion", data.n)  # type: ignore[attr-defined]
+        study.record_search("case deletion", data.n)
     base_p = verdict.pvalue  # type: ignore[attr-defined]
     return CaseDeletionScan(
         factor=data.factor, alpha=a, row_ids=data.row_ids, group=np.asarray(data.labels, dtype=object)[data.codes],
@@ -254,22 +255,22 @@ def case_deletion_scan(study: object, *, term: str | None = None, alpha: float |
         df_within=fits.df_within, status=fits.status, pair=pair, pair_t_before=t_before, pair_t_after=t_after,
         base_statistic=verdict.statistic, base_pvalue=base_p,  # type: ignore[attr-defined]
         base_significant=bool(base_p is not None and base_p < a), term=name, test=spec.test, how=chosen.how,
-        permutations_used=used, disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        permutations_used=used, disclosure=study.disclosure if record else None,
         notes=tuple(notes),
     )
 
 
-def _factorial_scan(study: object, name: str, verdict: object, alpha: float | None, record: bool) -> CaseDeletionScan:
+def _factorial_scan(study: StudyLike, name: str, verdict: object, alpha: float | None, record: bool) -> CaseDeletionScan:
     """Case deletion for multi-factor designs (see :mod:`.cell_deletion`): the decision on ``name`` is
     scored, every term's p-value is listed."""
     from .cell_deletion import cell_deletion, eta_squared_total
 
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     a = float(spec.alpha if alpha is None else alpha)
     per_term, status, data, notes = cell_deletion(study)
     m = per_term[name]
     if record:
-        study.record_search("case deletion", data.n)  # type: ignore[attr-defined]
+        study.record_search("case deletion", data.n)
     base_p = verdict.pvalue  # type: ignore[attr-defined]
     empty = np.full(data.n, np.nan)
     notes = [f"Test: classic F of {name!r} ({spec.ss_type} sums of squares) from quadratic updates of the cell means "
@@ -284,6 +285,6 @@ def _factorial_scan(study: object, name: str, verdict: object, alpha: float | No
         base_significant=bool(base_p is not None and base_p < a),
         term=name, test="classic", how="classic F from quadratic updates of the cell means",
         term_pvalues={t: v["pvalue"] for t, v in per_term.items() if t != "residual"},
-        disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        disclosure=study.disclosure if record else None,
         notes=tuple(notes),
     )

@@ -26,6 +26,7 @@ from ..engine.distributions import f_sf
 from ..engine.errors import DesignError
 from ..engine.groupstats import GroupStats, group_stats
 from .alternatives import OnewayInput, leave_one_out
+from .study_like import StudyLike
 
 __all__ = ["cell_deletion", "eta_squared_total"]
 
@@ -43,7 +44,7 @@ def _without_cell(cells: GroupStats, c: int) -> GroupStats:
                       mean=cells.mean[keep], m2=cells.m2[keep], offset=cells.offset)
 
 
-def cell_deletion(study: object) -> tuple[dict[str, dict[str, np.ndarray]], np.ndarray, OnewayInput, list[str]]:
+def cell_deletion(study: StudyLike) -> tuple[dict[str, dict[str, np.ndarray]], np.ndarray, OnewayInput, list[str]]:
     """Every term's F test with each kept row left out in turn.
 
     Returns ``(per_term, status, cells_input, notes)``: ``per_term[name]`` holds arrays
@@ -53,10 +54,10 @@ def cell_deletion(study: object) -> tuple[dict[str, dict[str, np.ndarray]], np.n
     """
     from ..engine.factorial import layout_of
 
-    res = study.results  # type: ignore[attr-defined]
-    spec = study.spec  # type: ignore[attr-defined]
-    dataset = study.dataset  # type: ignore[attr-defined]
-    layout = layout_of(dataset, study.view, spec)  # type: ignore[attr-defined]
+    res = study.results
+    spec = study.spec
+    dataset = study.dataset
+    layout = layout_of(dataset, study.view, spec)
     pos = np.asarray(res.fit.positions)
     if pos.size != int(res.groups.n_total):
         raise DesignError("the case-deletion scan needs every kept row; this study's results carry a sample")

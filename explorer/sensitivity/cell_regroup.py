@@ -27,6 +27,7 @@ from ..engine.distributions import f_sf
 from ..engine.errors import DesignError, ExplorerError, closest_names
 from ..engine.groupstats import GroupStats, group_stats
 from .alternatives import AlternativeFits, OnewayInput, leave_one_out
+from .study_like import StudyLike
 
 __all__ = ["cell_regroup"]
 
@@ -34,12 +35,12 @@ __all__ = ["cell_regroup"]
 class _Context:
     """The kept rows of a multi-factor study and the pieces every refit needs."""
 
-    def __init__(self, study: object, factor: str | None, term: str) -> None:
+    def __init__(self, study: StudyLike, factor: str | None, term: str) -> None:
         from ..engine.factorial import layout_of
 
-        res = study.results  # type: ignore[attr-defined]
-        self.spec = spec = study.spec  # type: ignore[attr-defined]
-        dataset, view = study.dataset, study.view  # type: ignore[attr-defined]
+        res = study.results
+        self.spec = spec = study.spec
+        dataset, view = study.dataset, study.view
         self.factor = factor or spec.factors[0]
         if self.factor not in spec.columns:
             near = closest_names(self.factor, spec.columns)
@@ -143,7 +144,7 @@ def _moved_ss(ctx: _Context, s: int, t: int, u: float, v: float) -> tuple[float,
     return ctx.main_ss(fit)[0], fit.ss_lack_of_fit
 
 
-def cell_regroup(study: object, factor: str | None = None, *, term: str, moves: bool = True):  # type: ignore[no-untyped-def]
+def cell_regroup(study: StudyLike, factor: str | None = None, *, term: str, moves: bool = True):  # type: ignore[no-untyped-def]
     """Merges of two levels of ``factor`` and moves of one row to another of its levels, multi-factor designs.
 
     Returns ``(factor, pairs, merge_fits, move_rows, move_from, move_to, move_fits, notes)``

@@ -51,6 +51,7 @@ from ..engine.tables import fmt, html_table
 from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
 from .chosen_test import ChosenTest
 from .mixed_guard import refuse_mixed
+from .study_like import StudyLike
 
 __all__ = ["FlipSearch", "flip_finder"]
 
@@ -251,7 +252,7 @@ def _greedy(scorer: _Scorer, want_sig: bool, max_steps: int) -> tuple[list[int],
 
 
 def flip_finder(
-    study: object,
+    study: StudyLike,
     *,
     term: str | None = None,
     pair: tuple[str, str] | None = None,
@@ -280,7 +281,7 @@ def flip_finder(
         raise ExplorerError(f"method must be 'auto', 'exact' or 'greedy', not {method!r}")
     refuse_mixed(study, "flip finder")
     name, verdict = scored_term(study, term)
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     if not spec.is_oneway:
         if pair is not None:
             raise ExplorerError("pairwise flips are searched in one-factor studies; for this design search the "
@@ -355,13 +356,13 @@ def flip_finder(
                          f"({fmt(chosen.critical_value(a), 4)}); each step's p-value and the flip itself are "
                          "checked by a permutation test of the remaining rows.")
     if record:
-        study.record_search("flip finder", examined)  # type: ignore[attr-defined]
+        study.record_search("flip finder", examined)
     return FlipSearch(
         target=target, alpha=a, base_significant=base_sig, base_pvalue=base_p, found=found, method=used,
         rows=tuple(_py_id(data.row_ids[j]) for j in rows_found),
         groups=tuple(data.labels[data.codes[j]] for j in rows_found), pvalues=tuple(pvals),
         exact_up_to=covered, sets_examined=examined, flipping_sets_at_size=at_size, term=name, test=spec.test,
-        disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        disclosure=study.disclosure if record else None,
         notes=tuple(notes),
     )
 
@@ -390,7 +391,7 @@ def _order_within(scorer: _Scorer, rows: list[int], want_sig: bool) -> list[int]
     return out
 
 
-def _factorial_flip(study: object, name: str, verdict: object, method: str, max_steps: int, alpha: float | None,
+def _factorial_flip(study: StudyLike, name: str, verdict: object, method: str, max_steps: int, alpha: float | None,
                     record: bool) -> FlipSearch:
     """Flip finder for factorial and block designs, on the F test of the term ``name``.
 
@@ -401,7 +402,7 @@ def _factorial_flip(study: object, name: str, verdict: object, method: str, max_
     from ..engine.errors import EditError
     from .case_deletion import case_deletion_scan
 
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     a = float(spec.alpha if alpha is None else alpha)
     base_p = verdict.pvalue  # type: ignore[attr-defined]
     base_sig = base_p is not None and base_p < a
@@ -436,8 +437,8 @@ def _factorial_flip(study: object, name: str, verdict: object, method: str, max_
             notes.append("Exact search: no single row flips the decision (sets of two or more rows are searched "
                          "exhaustively in one-factor studies only).")
     if not found and method in ("auto", "greedy"):
-        tmp = type(study).from_dataset(study.dataset, spec)  # type: ignore[attr-defined]  # a private copy
-        for e in study.edits:  # type: ignore[attr-defined]
+        tmp = type(study).from_dataset(study.dataset, spec)  # a private copy
+        for e in study.edits:
             tmp.apply(e)
         rows, pvals, groups = [], [], []
         sc = scan
@@ -474,10 +475,10 @@ def _factorial_flip(study: object, name: str, verdict: object, method: str, max_
     else:
         method_used = "exact"
     if record:
-        study.record_search("flip finder", examined)  # type: ignore[attr-defined]
+        study.record_search("flip finder", examined)
     return FlipSearch(
         target=term, alpha=a, base_significant=base_sig, base_pvalue=base_p, found=found, method=method_used,
         rows=tuple(rows), groups=tuple(groups), pvalues=tuple(pvals), exact_up_to=covered, sets_examined=examined,
-        flipping_sets_at_size=at_size, term=name, test="classic", disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        flipping_sets_at_size=at_size, term=name, test="classic", disclosure=study.disclosure if record else None,
         notes=tuple(notes),
     )

@@ -36,6 +36,7 @@ from scipy import stats
 from ..engine.disclosure import Disclosure
 from ..engine.distributions import t_sf
 from ..engine.tables import fmt, html_table
+from .study_like import StudyLike
 
 __all__ = ["Influence", "influence", "influence_measures"]
 
@@ -186,20 +187,20 @@ def influence_measures(
     )
 
 
-def influence(study: object, *, alpha: float | None = None) -> Influence:
+def influence(study: StudyLike, *, alpha: float | None = None) -> Influence:
     """Influence measures of the current model of ``study`` (one-way or factorial).
 
     Uses the fit's residuals and leverages (``study.results.fit``), so any model the
     engine fits is covered; ``p`` is the number of fitted parameters ``n - df_resid``.
     """
-    res = study.results  # type: ignore[attr-defined]
+    res = study.results
     fit = res.fit
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     labels = np.asarray(res.groups.labels, dtype=object)
     group = labels[np.asarray(fit.group)] if len(labels) else None
-    scale = max(abs(float(study.dataset.offset)), float(np.max(np.abs(fit.y))) if fit.y.size else 0.0)  # type: ignore[attr-defined]
+    scale = max(abs(float(study.dataset.offset)), float(np.max(np.abs(fit.y))) if fit.y.size else 0.0)
     out = influence_measures(
         fit.residuals, fit.leverage, res.df_resid, row_ids=fit.row_ids, group=group,
         alpha=spec.alpha if alpha is None else alpha, scale=scale,
     )
-    return dataclasses.replace(out, disclosure=study.disclosure)  # type: ignore[attr-defined]
+    return dataclasses.replace(out, disclosure=study.disclosure)

@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 from ..engine.errors import ExplorerError
+from .study_like import StudyLike
 
 __all__ = ["refuse_mixed"]
 
 
-def refuse_mixed(study: object, scan: str) -> None:
+def refuse_mixed(study: StudyLike, scan: str) -> None:
     """Raise for a model with random, nested or subject terms, naming the scans that fit it."""
     spec = getattr(study, "spec", None)
     if spec is not None and getattr(spec, "is_mixed", False):

@@ -32,6 +32,7 @@ from .alternatives import (
 from .case_deletion import nullable, scored_term
 from .chosen_test import STATISTIC_NAMES, ChosenTest
 from .mixed_guard import refuse_mixed
+from .study_like import StudyLike
 
 __all__ = ["RegroupScan", "regroup_scan"]
 
@@ -121,7 +122,7 @@ class RegroupScan:
 
 
 def regroup_scan(
-    study: object, *, factor: str | None = None, term: str | None = None, alpha: float | None = None,
+    study: StudyLike, *, factor: str | None = None, term: str | None = None, alpha: float | None = None,
     moves: bool = True, record: bool = True,
 ) -> RegroupScan:
     """Every merge of two levels and every move of one row to another level of a factor of ``study``.
@@ -136,10 +137,10 @@ def regroup_scan(
     """
     refuse_mixed(study, "regroup scan")
     name, verdict = scored_term(study, term)
-    if not study.spec.is_oneway:  # type: ignore[attr-defined]
+    if not study.spec.is_oneway:
         return _factorial_regroup(study, factor, name, verdict, alpha, moves, record)
     data = oneway_input(study, "the regroup scan")
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     chosen = ChosenTest(data, spec)
     a = data.alpha if alpha is None else float(alpha)
     gs, k = data.stats, data.k
@@ -205,12 +206,12 @@ def regroup_scan(
     if spec.test == "permutation":
         notes.append("Each merge and move is a permutation test of that grouping, all from the same orderings.")
     if record:
-        study.record_search("regroup scan", count)  # type: ignore[attr-defined]
+        study.record_search("regroup scan", count)
     return RegroupScan(
         factor=data.factor, alpha=a, base_pvalue=base_p, base_significant=bool(base_p is not None and base_p < a),
         merge_levels=tuple((labels[i], labels[j]) for i, j in pairs), merge_fits=merge_fits,
         move_rows=data.row_ids[ridx], move_from=lab[src], move_to=lab[dst], move_fits=move_fits,
-        term=name, test=spec.test, disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        term=name, test=spec.test, disclosure=study.disclosure if record else None,
         notes=tuple(notes),
     )
 
@@ -220,20 +221,20 @@ def _take(f: AlternativeFits, order: np.ndarray) -> AlternativeFits:
 
 
 
-def _factorial_regroup(study: object, factor: str | None, term: str, verdict: object, alpha: float | None,
+def _factorial_regroup(study: StudyLike, factor: str | None, term: str, verdict: object, alpha: float | None,
                        moves: bool, record: bool) -> RegroupScan:
     from .cell_regroup import cell_regroup
 
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     a = float(spec.alpha if alpha is None else alpha)
     name, pairs, merge_fits, rows, src, dst, move_fits, notes = cell_regroup(study, factor, term=term, moves=moves)
     base_p = verdict.pvalue  # type: ignore[attr-defined]
     if record:
-        study.record_search("regroup scan", len(pairs) + int(rows.size))  # type: ignore[attr-defined]
+        study.record_search("regroup scan", len(pairs) + int(rows.size))
     return RegroupScan(
         factor=name, alpha=a, base_pvalue=base_p, base_significant=bool(base_p is not None and base_p < a),
         merge_levels=tuple(pairs), merge_fits=merge_fits, move_rows=rows, move_from=src, move_to=dst,
         move_fits=move_fits, term=term, test="classic",
-        disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        disclosure=study.disclosure if record else None,
         notes=tuple(notes),
     )

@@ -57,6 +57,7 @@ from .alternatives import OnewayInput, oneway_input
 from .case_deletion import nullable
 from .influence import influence_measures
 from .mixed_guard import refuse_mixed
+from .study_like import StudyLike
 from .sweep_coincide import distinct_analyses
 
 __all__ = ["OUTLIER_RULES", "TESTS", "TRANSFORMS", "SweepResult", "robustness_sweep"]
@@ -225,7 +226,7 @@ def _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes):  # 
     merge_list = _check_merges(data, merges)
     responses = _responses(data.y, data.offset, transforms, notes)
     subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     rows = []
     for t, (yt, off) in responses.items():
         for subset in subsets:
@@ -329,7 +330,7 @@ def _pooled_groups(present: tuple[str, ...], chosen: list[tuple[str, ...]]) -> l
 
 
 def robustness_sweep(
-    study: object,
+    study: StudyLike,
     *,
     term: str | None = None,
     outlier_rules: Sequence[str] = tuple(OUTLIER_RULES),
@@ -353,7 +354,7 @@ def robustness_sweep(
     """
     from .case_deletion import scored_term
 
-    spec = study.spec  # type: ignore[attr-defined]
+    spec = study.spec
     name, verdict = scored_term(study, term)
     a = float(spec.alpha if alpha is None else alpha)
     outlier_rules = _check_options("outlier_rules", outlier_rules, OUTLIER_RULES)
@@ -428,11 +429,11 @@ def robustness_sweep(
     notes.append("Outlier rules are applied once, on the fit of that specification (transform and merges included), "
                  "not repeated until nothing is flagged.")
     if record:
-        study.record_search("robustness sweep", len(table))  # type: ignore[attr-defined]
+        study.record_search("robustness sweep", len(table))
     return SweepResult(
         alpha=a, current_significant=current, default_pvalue=default_p, table=table, single_choice=single_df,
         share_agreeing=float(table["agrees with current decision"].sum() / n_def) if n_def else None,
         share_significant=float(sig.sum() / n_def) if n_def else None, n_specifications=len(table),
-        term=name, test=tests[0], disclosure=study.disclosure if record else None,  # type: ignore[attr-defined]
+        term=name, test=tests[0], disclosure=study.disclosure if record else None,
         notes=tuple(notes), n_combinations=len(every),
     )

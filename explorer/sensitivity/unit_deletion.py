@@ -22,6 +22,7 @@ import pandas as pd
 from ..engine.analysis import analyze
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.tables import html_table
+from .study_like import StudyLike
 
 __all__ = ["UnitDeletionScan", "headline_term", "row_deletion", "unit_deletion"]
 
@@ -80,7 +81,7 @@ class UnitDeletionScan:
         return html_table(self.to_frame(), cap, self.notes)
 
 
-def _scan(study, column: str, groups: list[tuple[str, np.ndarray]], record: bool, what: str) -> UnitDeletionScan:
+def _scan(study: StudyLike, column: str, groups: list[tuple[str, np.ndarray]], record: bool, what: str) -> UnitDeletionScan:
     base = study.results
     term = headline_term(base)
     sources = [r.source for r in base.partition.rows if r.statistic is not None]
@@ -122,7 +123,7 @@ def _scan(study, column: str, groups: list[tuple[str, np.ndarray]], record: bool
     )
 
 
-def unit_deletion(study, column: str, *, record: bool = True) -> UnitDeletionScan:
+def unit_deletion(study: StudyLike, column: str, *, record: bool = True) -> UnitDeletionScan:
     """Each level of ``column`` (subject, operator, part, lot, block ...) left out in turn, refitted."""
     view = study.view
     if column not in view.levels:
@@ -136,7 +137,7 @@ def unit_deletion(study, column: str, *, record: bool = True) -> UnitDeletionSca
     return _scan(study, column, groups, record, f"each {column} left out")
 
 
-def row_deletion(study, *, max_rows: int = 5000, record: bool = True) -> UnitDeletionScan:
+def row_deletion(study: StudyLike, *, max_rows: int = 5000, record: bool = True) -> UnitDeletionScan:
     """Each kept row left out in turn, refitted (models with random terms; at most ``max_rows`` rows)."""
     pos = np.flatnonzero(study.view.kept)
     if pos.size > max_rows:
