@@ -8,6 +8,7 @@ from ..engine.errors import ExplorerError
 from ..engine.tables import fmt
 from .cautions import cautions_text
 from .extras import battery_part, frame_text, sensitivity_part
+from .strata_part import strata_part
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -69,7 +70,8 @@ def summary_text(study: "Study", *, cautions: bool = True) -> str:
             out.append(f"   (undone) {e.describe()} -- {e.reason or '(no reason given)'} [{e.at}]")
         out += ["", _heading(f"Current (after {len(study.edits)} edit(s))"), results_text(study.results, study.decision)]
     out += _simple_effects_text(study)
-    for part in (battery_part(study), sensitivity_part(study, charts=False)):
+    strata = strata_part(study)
+    for part in (battery_part(study), *((strata,) if strata.present else ()), sensitivity_part(study, charts=False)):
         out += ["", _heading(part.title), part.text if part.present else f"not included: {part.note}"]
     out += ["", f"Disclosure: {study.disclosure.sentence()}."]
     if cautions:

@@ -25,7 +25,7 @@ from explorer.engine.moves import level_homes
 from explorer.engine.spec import OVERALL_TESTS
 from explorer.study import Study, StudyEvent
 
-from . import battery_panels, core_panels, fragility_panels, interaction_panels  # noqa: F401  (register the built-in panels)
+from . import battery_panels, core_panels, fragility_panels, interaction_panels, mixed_panels  # noqa: F401  (register the built-in panels)
 from .compare import CAUTIONS_HTML, disclosure_html
 from .host import PanelCard
 from .panels import PanelContext, Settings, panels_in_order
@@ -213,7 +213,8 @@ class Explorer(W.VBox):
 
     # ================================================================= state
     def _context(self) -> PanelContext:
-        return PanelContext(study=self.study, settings=self.settings, history=tuple(self.history))
+        return PanelContext(study=self.study, settings=self.settings, history=tuple(self.history),
+                            replace_study=lambda s: self.set_study(s, action="model roles"))
 
     def _record(self, action: str) -> None:
         d = self.study.decision
@@ -493,8 +494,16 @@ class Explorer(W.VBox):
             # id column and the replay code carry over to the new model.
             source = old.data_source if old.data_source is not None else old.dataset.table
             test = old.spec.test if len(factors) == 1 and not old.spec.blocks else "classic"
-            new = Study(source, response, factors, blocks=old.spec.blocks, interactions=old.spec.interactions,
-                        ss_type=old.spec.ss_type, alpha=alpha, test=test, id_column=old.dataset.id_column)
+            o = old.spec
+            kept = set(factors) | set(o.blocks)
+            subject = o.subject if o.subject is not None and o.subject not in factors else None
+            new = Study(source, response, factors, blocks=o.blocks, interactions=o.interactions,
+                        ss_type=o.ss_type, alpha=alpha, test=test, id_column=old.dataset.id_column,
+                        # roles of the columns that stay in the model carry over
+                        random=[c for c in o.random if c in kept],
+                        nested={c: list(p) for c, p in o.nested if c in kept and set(p) <= kept} or None,
+                        subject=subject, within=[w for w in o.within if w in factors] if subject else [],
+                        variance_method=o.variance_method)
             new.data_source = old.data_source
         skipped = []
         for e in old.edits:

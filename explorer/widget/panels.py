@@ -54,6 +54,8 @@ class PanelContext:
     study: Study
     settings: Settings
     history: Sequence[HistoryStep] = ()
+    #: Shows another study in the explorer (e.g. the same data with other column roles); None outside one.
+    replace_study: Callable[[Study], None] | None = None
 
     @property
     def results(self) -> Results:
