@@ -4,6 +4,7 @@ Each builder is a function of its inputs only and is tested through ``chart.to_d
 Row-level charts carry a click selection named ``pick`` on the ``row`` field.
 """
 
+from .equivalence import equivalence_chart, equivalence_frame
 from .frames import (
     MAX_POINTS,
     RowColumns,
@@ -29,6 +30,8 @@ __all__ = [
     "RowColumns",
     "case_deletion_chart",
     "cooks_distance_chart",
+    "equivalence_chart",
+    "equivalence_frame",
     "fit_frame",
     "history_chart",
     "influence_of",

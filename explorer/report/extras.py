@@ -19,7 +19,7 @@ import pandas as pd
 if TYPE_CHECKING:
     from ..study.study import Study
 
-__all__ = ["Part", "battery_part", "sensitivity_part", "as_html", "as_text", "frame_text"]
+__all__ = ["Part", "battery_part", "planned_part", "sensitivity_part", "as_html", "as_text", "frame_text"]
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -144,3 +144,27 @@ def sensitivity_part(study: "Study", *, charts: bool = True) -> Part:
         parts.append("<div class='vx-figures'>" + "".join(f.html() for f in figures) + "</div>")
     parts.append(curve_html(summary))
     return Part(title=title, html="".join(parts), text=summary.to_text())
+
+
+def planned_part(study: "Study", *, charts: bool = True) -> Part:
+    """The study's planned analyses (contrasts, trends, equivalence, follow-ups) on the current state."""
+    title = "Planned analyses"
+    planned = getattr(study, "planned", None)
+    if not callable(planned):
+        return Part(title=title, note="planned analyses are not part of this version of the kit")
+    try:
+        outcomes = planned()
+    except Exception as exc:  # a failing optional part must not stop the hand-off
+        return Part(title=title, note=f"could not be computed on this study: {exc}")
+    if not outcomes:
+        return Part(title=title, note="none were asked for (study.contrast, study.trend, study.equivalence, ...)")
+    parts = [o._repr_html_() for o in outcomes]
+    if charts:
+        from ..inference.equivalence import EquivalenceTable
+        from .svg_charts import equivalence_figures
+
+        tables = [o.value for o in outcomes if isinstance(o.value, EquivalenceTable)]
+        if tables:
+            parts.append("<div class='vx-figures'>" + "".join(f.html() for f in equivalence_figures(tables)) + "</div>")
+    text = "\n\n".join(o.to_text() for o in outcomes)
+    return Part(title=title, html="".join(parts), text=text)

@@ -21,7 +21,7 @@ from ..engine.errors import ExplorerError
 from ..engine.tables import fmt
 from ..study.output_files import check_output_path, write_text_atomic
 from .cautions import cautions_html
-from .extras import Part, battery_part, sensitivity_part
+from .extras import Part, battery_part, planned_part, sensitivity_part
 from .replay_code import study_to_code
 from .strata_part import strata_part
 from .svg_charts import Figure, interaction_figure, model_check_figures, observation_figures
@@ -199,6 +199,7 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
     )
     battery = battery_part(study)
     strata = strata_part(study)
+    planned = planned_part(study, charts=charts)
     sensitivity = sensitivity_part(study, charts=charts)
     disclosure = study.disclosure  # read after the sensitivity scan, which may add to it
     now = datetime.now(timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
@@ -216,6 +217,7 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
         f"<section id='battery'><h2>{html.escape(battery.title)}</h2>{_part(battery)}</section>",
         *([f"<section id='strata'><h2>{html.escape(strata.title)}</h2>{_part(strata)}</section>"]
           if strata.present else []),
+        f"<section id='planned'><h2>{html.escape(planned.title)}</h2>{_part(planned)}</section>",
         f"<section id='sensitivity'><h2>{html.escape(sensitivity.title)}</h2>{_part(sensitivity)}"
         f"<p><strong>Disclosure:</strong> {html.escape(disclosure.sentence())}.</p></section>",
         "<section id='replay'><h2>Rerun this analysis</h2><p>Run this Python (with the kit installed, "

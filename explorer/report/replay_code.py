@@ -168,6 +168,10 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
     if undone:
         lines.append(f"# {len(undone)} undone edit(s), kept for redo and not replayed, in their saved form:")
         lines.append(f"undone = {_lit([e.to_dict() for e in undone])}")
+    for request in getattr(study, "planned_requests", ()):
+        method, args, kwargs = study.planned_call(request)
+        call = ", ".join([_lit(a) for a in args] + [f"{_name(k)}={_lit(v)}" for k, v in kwargs.items()])
+        lines.append(f"{name}.{_name(method)}({call})  # planned analysis, recomputed after every edit")
     for search in getattr(study, "_searches", []):
         lines.append(f"{name}.record_search({_lit(str(search.get('what', '')))}, {int(search.get('count', 0))})")
     lines.append("# Disclosure of the original study, to compare with study.disclosure.sentence():")

@@ -26,7 +26,8 @@ import numpy as np
 if TYPE_CHECKING:
     from ..study.study import Study
 
-__all__ = ["Figure", "chart_to_svg", "charts_available", "figure", "interaction_figure", "model_check_figures",
+__all__ = ["Figure", "chart_to_svg", "charts_available", "equivalence_figures", "figure", "interaction_figure",
+           "model_check_figures",
            "observation_figures"]
 
 #: Most observations a report chart draws (the statistics always use every row).
@@ -145,3 +146,13 @@ def interaction_figure(effects: Any) -> Figure:
     from ..charts.interaction import interaction_chart
 
     return figure(interaction_chart(effects, width=REPORT_WIDTH))
+
+
+def equivalence_figures(tables: list) -> list[Figure]:
+    """Each equivalence table's intervals against its margin."""
+    why = charts_available()
+    if why:
+        return [Figure(why=why)]
+    from ..charts import equivalence_chart
+
+    return [figure(equivalence_chart(t, width=REPORT_WIDTH)) for t in tables]

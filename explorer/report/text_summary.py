@@ -7,7 +7,7 @@ from typing import TYPE_CHECKING
 from ..engine.errors import ExplorerError
 from ..engine.tables import fmt
 from .cautions import cautions_text
-from .extras import battery_part, frame_text, sensitivity_part
+from .extras import battery_part, frame_text, planned_part, sensitivity_part
 from .strata_part import strata_part
 
 if TYPE_CHECKING:
@@ -71,7 +71,9 @@ def summary_text(study: "Study", *, cautions: bool = True) -> str:
         out += ["", _heading(f"Current (after {len(study.edits)} edit(s))"), results_text(study.results, study.decision)]
     out += _simple_effects_text(study)
     strata = strata_part(study)
-    for part in (battery_part(study), *((strata,) if strata.present else ()), sensitivity_part(study, charts=False)):
+    planned = planned_part(study, charts=False)
+    optional = tuple(p for p in (strata, planned) if p.present)
+    for part in (battery_part(study), *optional, sensitivity_part(study, charts=False)):
         out += ["", _heading(part.title), part.text if part.present else f"not included: {part.note}"]
     out += ["", f"Disclosure: {study.disclosure.sentence()}."]
     if cautions:

@@ -30,6 +30,7 @@ from ..engine.view import DataView, initial_view
 from .decision import Decision, decide
 from .output_files import write_text_atomic
 from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
+from .planned import PlannedAnalyses, planned_from_doc
 
 if TYPE_CHECKING:
     from ..inference.battery import Battery
@@ -55,7 +56,7 @@ class StudyEvent:
     position: int
 
 
-class Study:
+class Study(PlannedAnalyses):
     """An analysis of variance whose data can be edited, with every edit logged.
 
     Parameters
@@ -130,6 +131,7 @@ class Study:
         self._undos = 0
         self._searches: list[dict[str, Any]] = []
         self._listeners: list[Callable[["Study", StudyEvent], None]] = []
+        self._planned = []  # planned analyses asked for (see explorer.study.planned)
         self._results[0] = analyze(dataset, self._views[0], spec)
 
     @classmethod
@@ -329,7 +331,10 @@ class Study:
 
     # ----------------------------------------------------------------- files
     def to_dict(self) -> dict[str, Any]:
-        return study_to_dict(self.dataset, self.spec, self._log, self._position, self._searches)
+        doc = study_to_dict(self.dataset, self.spec, self._log, self._position, self._searches)
+        if self.planned_requests:
+            doc["planned"] = self.planned_to_dict()
+        return doc
 
     def save(self, path: str | Path, *, overwrite: bool = False) -> Path:
         """Write the spec, data fingerprint and edit log (with undone edits) as JSON, atomically.
@@ -383,6 +388,8 @@ class Study:
             except EditError as exc:
                 raise ReplayError(f"edit {i + 1} of the saved log ({e.describe()}) does not apply: {exc}") from None
         study._searches = list(doc.get("searches", []))
+        for request, at in planned_from_doc(doc):
+            study._keep_request(request, record=False, at=at)
         while study._position > position:
             study.undo()
         study._made, study._undos = len(edits), 0

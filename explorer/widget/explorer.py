@@ -25,7 +25,14 @@ from explorer.engine.moves import level_homes
 from explorer.engine.spec import OVERALL_TESTS
 from explorer.study import Study, StudyEvent
 
-from . import battery_panels, core_panels, fragility_panels, interaction_panels, mixed_panels  # noqa: F401  (register the built-in panels)
+from . import (  # noqa: F401  (register the built-in panels)
+    battery_panels,
+    core_panels,
+    fragility_panels,
+    interaction_panels,
+    mixed_panels,
+    planned_panels,
+)
 from .compare import CAUTIONS_HTML, disclosure_html
 from .host import PanelCard
 from .panels import PanelContext, Settings, panels_in_order
