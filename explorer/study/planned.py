@@ -258,8 +258,11 @@ def planned_call(request: PlannedRequest) -> tuple[str, list[Any], dict[str, Any
 class PlannedAnalyses:
     """Study methods for planned analyses (mixed into :class:`~explorer.study.study.Study`)."""
 
-    results: Results
     _planned: list[tuple[PlannedRequest, str]]
+
+    if TYPE_CHECKING:
+        @property
+        def results(self) -> Results: ...
 
     def record_search(self, what: str, count: int) -> None:  # pragma: no cover - provided by Study
         raise NotImplementedError
