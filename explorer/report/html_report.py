@@ -217,7 +217,8 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
         f"<section id='battery'><h2>{html.escape(battery.title)}</h2>{_part(battery)}</section>",
         *([f"<section id='strata'><h2>{html.escape(strata.title)}</h2>{_part(strata)}</section>"]
           if strata.present else []),
-        f"<section id='planned'><h2>{html.escape(planned.title)}</h2>{_part(planned)}</section>",
+        *([f"<section id='planned'><h2>{html.escape(planned.title)}</h2>{_part(planned)}</section>"]
+          if planned.present else []),
         f"<section id='sensitivity'><h2>{html.escape(sensitivity.title)}</h2>{_part(sensitivity)}"
         f"<p><strong>Disclosure:</strong> {html.escape(disclosure.sentence())}.</p></section>",
         "<section id='replay'><h2>Rerun this analysis</h2><p>Run this Python (with the kit installed, "
