@@ -20,7 +20,7 @@ from nist_strd import SETS, available, exact_oneway, lre, read_set
 from summaries_support import assert_same_results, close, unbalanced_frame
 
 import explorer as ex
-from explorer.engine.errors import ColumnError, DataError, EditError, ReplayError
+from explorer.engine.errors import ColumnError, DataError, EditError, ExplorerError, ReplayError
 from explorer.inference import comparisons
 from explorer.inference.omnibus import brown_forsythe_f, welch_f
 from explorer.summaries import (
@@ -395,3 +395,22 @@ def test_engines_are_not_imported_by_the_kit():
             "print('duckdb' in sys.modules, 'pyspark' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split()
     assert out == ["False", "False"]
+
+
+def test_summary_study_reads_its_decision_from_welch(frame):
+    """A one-factor summary study with test='welch': the decision and every set-aside/pool alternative are Welch's
+    F of the level summaries (statsmodels anova_oneway(use_var='unequal') on the rows); rank and permutation tests
+    are refused (they need every row)."""
+    from statsmodels.stats.oneway import anova_oneway
+
+    s = SummaryStudy(frame, "thickness", "line", test="welch", sample_size=0)
+    groups = {k: v.to_numpy() for k, v in frame.groupby("line")["thickness"]}
+    assert close(s.decision.pvalue, anova_oneway(list(groups.values()), use_var="unequal").pvalue)
+    scan = set_aside_scan(s, record=False)
+    assert scan.test == "welch" and scan.current_pvalue == s.decision.pvalue
+    a, b = list(groups)[:2]
+    row = scan.table[scan.table["change"] == f"pool line levels {a} and {b}"].iloc[0]
+    pooled = [np.concatenate([groups[a], groups[b]])] + [v for k, v in groups.items() if k not in (a, b)]
+    assert close(row["p-value"], anova_oneway(pooled, use_var="unequal").pvalue)
+    with pytest.raises(ExplorerError, match="needs every row"):
+        s.set_test("kruskal")

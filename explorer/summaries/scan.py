@@ -27,6 +27,7 @@ import pandas as pd
 from ..engine.edits import MergeLevels
 from ..engine.errors import DesignError
 from ..engine.tables import fmt, html_table
+from ..inference.omnibus import overall_test
 from .view import Condition, SummaryView
 
 __all__ = ["SetAsideScan", "set_aside_scan"]
@@ -46,6 +47,7 @@ class SetAsideScan:
     current_pvalue: float | None
     table: pd.DataFrame
     examined: int
+    test: str = "classic"
 
     @property
     def flips(self) -> pd.DataFrame:
@@ -72,13 +74,18 @@ def set_aside_scan(
 ) -> SetAsideScan:
     """Refit the current view of a :class:`~explorer.summaries.SummaryStudy` with each level
     of each factor and block (and, with ``cells``, each observed cell) set aside, and with
-    ``merges`` each pair of levels of each treatment factor pooled."""
+    ``merges`` each pair of levels of each treatment factor pooled.
+
+    ``term`` is the term whose decision is scored (default the study's decision's term),
+    under the study's overall test (Welch and Brown-Forsythe from each alternative's
+    level summaries, exactly as the decision reads them)."""
     view: SummaryView = study.summary_view
     spec = study.spec
     a = spec.alpha if alpha is None else float(alpha)
     now = study.results
     t = term or study.decision.term
-    p_now = now.pvalue(t)
+    p_now = study.decision.verdict_for(t).pvalue
+    test = spec.test
     alts: list[tuple[str, SummaryView]] = []
     set_aside = set(view.set_aside)
     for f in spec.columns:
@@ -108,6 +115,10 @@ def set_aside_scan(
             p = row.pvalue if row is not None else None
             F = row.statistic if row is not None else None
             note = "" if row is not None else f"term {t!r} is not in this model"
+            if test != "classic" and row is not None:  # one factor: the study's own test on the alternative
+                out = overall_test(r, test)
+                p, F = out.pvalue, out.statistic
+                note = " ".join(out.notes) if p is None else ""
             n = r.n_used
         except DesignError as exc:
             p = F = n = None
@@ -121,4 +132,4 @@ def set_aside_scan(
     table = table.assign(_o=order).sort_values(["_o", "p-value"], kind="stable").drop(columns="_o").reset_index(drop=True)
     if record:
         study.record_search("set-aside scan", len(alts))
-    return SetAsideScan(term=t, alpha=a, current_pvalue=p_now, table=table, examined=len(alts))
+    return SetAsideScan(term=t, alpha=a, current_pvalue=p_now, table=table, examined=len(alts), test=test)
