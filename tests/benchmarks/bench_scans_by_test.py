@@ -15,9 +15,10 @@ The naive loops are timed on a subset of the alternatives and scaled to all of t
 (stated in the output). Reference and kit run under one BLAS/OpenMP thread
 (threadpoolctl); the load average is printed with every figure; times are medians of
 interleaved repeats (wall and this process's CPU time); memory is the peak of Python
-allocations during one scan (tracemalloc, numpy arrays included).
+allocations during one scan (tracemalloc, numpy arrays included). Each test also times
+reading the decision of a new view (n = 1e4 and 1e5), the cost an edit pays for it.
 
-Run: python tests/benchmarks/bench_scans_by_test.py [--quick]
+Run: python tests/benchmarks/bench_scans_by_test.py [--quick] [--tests classic welch ...]
 """
 
 from __future__ import annotations
@@ -151,20 +152,33 @@ def bench_regroup(test: str, n: int, subset: int, repeats: int) -> dict:
             "naive timed on": f"{subset} moves"}
 
 
+def bench_decision(test: str, n: int) -> dict:
+    """CPU and wall time of reading the decision of one new view (the permutation F runs 9999 orderings)."""
+    df = _data(n, 5)
+    study = ex.Study(df, "y", "g", test=test)
+    t0, c0 = time.perf_counter(), time.process_time()
+    decision = study.decision
+    return {"n": n, "decision wall s": time.perf_counter() - t0, "decision CPU s": time.process_time() - c0,
+            "p": decision.pvalue}
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller sizes and subsets")
+    ap.add_argument("--tests", nargs="*", choices=TESTS, default=list(TESTS), help="tests to measure (default all)")
     args = ap.parse_args()
     quick = args.quick
     warnings.simplefilter("ignore")
     print(f"load average at start: {os.getloadavg()[0]:.2f} {os.getloadavg()[1]:.2f} {os.getloadavg()[2]:.2f}; "
           "kit and references under one BLAS/OpenMP thread")
     with threadpool_limits(limits=1):
-        for test in TESTS:
+        for test in args.tests:
             n_del = 10_000 if test == "permutation" else (20_000 if quick else 100_000)
             sub_del = 3 if test == "permutation" else (30 if quick else 100)
             sub_reg = 3 if test == "permutation" else (30 if quick else 200)
+            sizes = (10_000,) if quick else (10_000, 100_000)
             for name, res in (
+                *((f"decision of a new view, {test}", bench_decision(test, size)) for size in sizes),
                 (f"case deletion, {test}", bench_deletion(test, n_del, sub_del, 3)),
                 (f"regroup scan, {test}", bench_regroup(test, 10_000, sub_reg, 3)),
             ):
