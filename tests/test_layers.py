@@ -33,6 +33,7 @@ RANKS: dict[str, int] = {
     "_version": 0,  # the version string, readable by every layer
     "__main__": 7,
     "__init__": 8,  # ``explorer`` itself re-exports the public surface
+    "stats": 8,  # the documented public module of statistical functions, a facade over the layers
     "core": 8,  # the deprecated aliases of the old flat package point at every layer
 }
 

@@ -91,7 +91,7 @@ def measure(n: int) -> dict:
     reps = 40 if n <= 1e4 else 10
     t_ours = median_time(ours, reps)
     res = study.results
-    t_bundle = median_time(lambda: ex.run_battery(res), reps)
+    t_bundle = median_time(lambda: ex.stats.run_battery(res), reps)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         t_ref = median_time(lambda: reference_bundle(edited), 3)
