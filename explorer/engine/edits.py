@@ -131,9 +131,15 @@ def edit_from_dict(d: dict[str, Any]) -> Edit:
 
 
 def _rows(rows: Any) -> tuple[RowId, ...]:
-    if isinstance(rows, (str, int, np.integer)):
+    if isinstance(rows, (str, int, np.integer)) and not isinstance(rows, (bool, np.bool_)):
         rows = [rows]
-    return tuple(int(r) if isinstance(r, np.integer) else r for r in rows)
+    if rows is None or isinstance(rows, (bool, np.bool_, float, bytes, dict)) or not hasattr(rows, "__iter__"):
+        raise EditError(f"rows are row ids (integers or text), one or a list, e.g. [3, 17], not {rows!r}")
+    out = tuple(int(r) if isinstance(r, np.integer) else r for r in rows)
+    odd = [r for r in out if isinstance(r, (bool, np.bool_)) or not isinstance(r, (int, str))]
+    if odd:
+        raise EditError(f"row ids are integers or text, not {odd[0]!r} ({type(odd[0]).__name__})")
+    return out
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -114,11 +114,26 @@ def _not_utf8(path: Path, encoding: str) -> DataError:
     return DataError(f"{path.name!r} is not valid {encoding} text; {todo}")
 
 
+def _has_text(path: Path, encoding: str) -> bool:
+    """Whether the file holds anything but white space (read up to the first visible character)."""
+    try:
+        with path.open("r", encoding=encoding, errors="replace") as fh:
+            while chunk := fh.read(1 << 16):
+                if chunk.strip():
+                    return True
+    except OSError:
+        return True  # let the reader report it
+    return False
+
+
 def _read_delimited(path: Path, sep: str | None, text_columns: tuple[str, ...]) -> pd.DataFrame:
     """Read a delimited text table, with a specific message for each way a text file can be unusable."""
     encoding = _encoding(path)
     engine = "python" if sep is None else "c"
-    options: dict[str, Any] = {"sep": sep, "engine": engine, "encoding": encoding}
+    # index_col=False: a row with more fields than the header is an error, never silently turned into an index.
+    options: dict[str, Any] = {"sep": sep, "engine": engine, "encoding": encoding, "index_col": False}
+    if not _has_text(path, encoding):
+        raise DataError(f"{path.name!r} has no header row (the file holds only blank lines)")
     try:
         header = pd.read_csv(path, nrows=1, header=None, dtype=str, keep_default_na=False, **options)
     except pd.errors.EmptyDataError:

@@ -6,10 +6,12 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
+import numpy as np
+
 from .errors import ExplorerError
 from .table_checks import column_names
 
-__all__ = ["ModelSpec", "ONE_FACTOR_TESTS", "OVERALL_TESTS", "TEST_LABELS", "parse_term"]
+__all__ = ["ModelSpec", "ONE_FACTOR_TESTS", "OVERALL_TESTS", "TEST_LABELS", "alpha_or", "check_alpha", "parse_term"]
 
 SSType = Literal["I", "II", "III"]
 
@@ -65,6 +67,21 @@ def parse_term(term: str | Sequence[str], columns: Sequence[str]) -> tuple[str, 
     return parts
 
 
+def check_alpha(alpha: object) -> float:
+    """A level at which decisions are read: a number strictly between 0 and 1, else refused."""
+    if isinstance(alpha, (bool, np.bool_)) or not isinstance(alpha, (int, float, np.integer, np.floating)):
+        raise ExplorerError(f"alpha must be a number between 0 and 1 (e.g. 0.05), not {alpha!r}")
+    a = float(alpha)
+    if not 0 < a < 1:
+        raise ExplorerError(f"alpha must be between 0 and 1, not {alpha!r}")
+    return a
+
+
+def alpha_or(alpha: object, default: float) -> float:
+    """``alpha`` checked by :func:`check_alpha`, or ``default`` when it is ``None`` (the spec's level)."""
+    return float(default) if alpha is None else check_alpha(alpha)
+
+
 @dataclass(frozen=True, kw_only=True)
 class ModelSpec:
     """Response, factors and their roles, model terms, SS type and alpha.
@@ -118,8 +135,10 @@ class ModelSpec:
         if ss not in ("I", "II", "III"):
             raise ExplorerError(f"ss_type must be 'I', 'II' or 'III' (or 1, 2, 3), not {self.ss_type!r}")
         setf(self, "ss_type", ss)
-        if not 0 < float(self.alpha) < 1:
-            raise ExplorerError(f"alpha must be between 0 and 1, not {self.alpha!r}")
+        setf(self, "alpha", check_alpha(self.alpha))
+        if not isinstance(self.interactions, (bool, np.bool_)):
+            raise ExplorerError(f"interactions must be True or False, not {self.interactions!r}")
+        setf(self, "interactions", bool(self.interactions))
         setf(self, "nested", _normalise_nested(self.nested))
         if self.variance_method not in VARIANCE_METHODS:
             raise ExplorerError(f"variance_method must be one of {VARIANCE_METHODS}, not {self.variance_method!r}")

@@ -38,7 +38,7 @@ from scipy import special, stats
 from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
 from ..engine.groupstats import group_stats
-from ..engine.spec import TEST_LABELS
+from ..engine.spec import TEST_LABELS, alpha_or
 from ..engine.tables import fmt
 from .oneway_inputs import row_sample_notes
 
@@ -264,7 +264,7 @@ def recommend(results: Results, spread: CheckResult, normality: CheckResult, *, 
     sentence names it and says what the checks imply for reading it. Nothing here
     changes which tests are reported.
     """
-    a = results.spec.alpha if alpha is None else alpha
+    a = alpha_or(alpha, results.spec.alpha)
     n = results.groups.n
     balanced = bool(np.all(n == n[0]))
     differ = None if spread.pvalue is None else spread.pvalue < a

@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from ..engine.errors import DesignError, ExplorerError
+from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from .assumptions import (
     CheckResult,
@@ -275,7 +276,7 @@ def run_battery(
     """
     if not results.spec.is_oneway:
         raise DesignError("the one-way battery needs a one-way analysis (one factor, no blocks)")
-    a = results.spec.alpha if alpha is None else float(alpha)
+    a = alpha_or(alpha, results.spec.alpha)
     if not 0 < a < 1:
         raise ExplorerError(f"alpha must be between 0 and 1, not {alpha!r}")
     if letters_from not in ("tukey", "games-howell", "pairwise-t"):

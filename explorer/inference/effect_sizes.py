@@ -43,6 +43,7 @@ import pandas as pd
 
 from ..engine.errors import ExplorerError
 from ..engine.noncentral_f import confidence_matching_test, noncentrality_interval, zero_statement
+from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from .oneway_inputs import require_oneway
 
@@ -105,7 +106,7 @@ def effect_sizes(results: Results, *, confidence: float | None = None, alpha: fl
     ``1 - 2 alpha`` (the interval that matches the F test, Steiger 2004).
     """
     require_oneway(results, "these effect sizes")
-    a = results.spec.alpha if alpha is None else float(alpha)
+    a = alpha_or(alpha, results.spec.alpha)
     if confidence is None:
         confidence = confidence_matching_test(a)
     gs = results.groups

@@ -42,6 +42,7 @@ from ..engine.distributions import t_ppf, t_sf
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
+from ..engine.spec import alpha_or
 from ..engine.tables import fmt, html_table
 from .level_means import level_means
 
@@ -152,7 +153,7 @@ def equivalence(
     """
     low, high = parse_margin(margin)
     lm = level_means(results, factor)
-    a = float(results.spec.alpha if alpha is None else alpha)
+    a = alpha_or(alpha, results.spec.alpha)
     if not 0 < a < 0.5:
         raise ExplorerError(f"alpha must be between 0 and 0.5 for two one-sided tests, not {alpha!r}")
     if (pairs is None) == (control is None):

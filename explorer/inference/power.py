@@ -25,6 +25,7 @@ import numpy as np
 
 from ..engine.errors import ExplorerError
 from ..engine.noncentral_f import f_test_power as _f_power
+from ..engine.spec import alpha_or
 from ..engine.tables import fmt
 from .oneway_inputs import require_oneway
 
@@ -123,7 +124,7 @@ def power_plan(results: Results, *, effect_f: float | None = None, alpha: float 
     """Power of the current design for ``effect_f`` (the observed Cohen's f when not given)."""
     require_oneway(results, "the power of the one-way F test")
     gs = results.groups
-    a = results.spec.alpha if alpha is None else float(alpha)
+    a = alpha_or(alpha, results.spec.alpha)
     notes: list[str] = []
     if effect_f is None:
         ssb, ssw = gs.ss_between, gs.ss_within

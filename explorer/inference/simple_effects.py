@@ -38,6 +38,7 @@ from ..engine.distributions import f_sf, t_ppf
 from ..engine.errors import DesignError, ExplorerError, closest_names
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
+from ..engine.spec import alpha_or
 from ..engine.tables import fmt, html_table
 
 __all__ = ["ADJUSTMENTS", "SimpleEffects", "simple_effects"]
@@ -163,7 +164,7 @@ def simple_effects(results: Results, factor: str, within: str, *, adjust: str = 
     confidence : level of the cell-mean intervals (default ``1 - alpha``).
     """
     spec = results.spec
-    a_level = float(spec.alpha if alpha is None else alpha)
+    a_level = alpha_or(alpha, spec.alpha)
     conf = 1 - a_level if confidence is None else float(confidence)
     if adjust not in ADJUSTMENTS:
         raise ExplorerError(f"adjust must be one of {list(ADJUSTMENTS)}, not {adjust!r}")

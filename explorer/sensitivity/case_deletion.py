@@ -26,6 +26,7 @@ import pandas as pd
 
 from ..engine.disclosure import Disclosure
 from ..engine.errors import ExplorerError, closest_names
+from ..engine.spec import alpha_or
 from ..engine.tables import fmt, html_table
 from .alternatives import (
     STATUS_NOTES,
@@ -231,7 +232,7 @@ def case_deletion_scan(study: StudyLike, *, term: str | None = None, alpha: floa
         return _factorial_scan(study, name, verdict, alpha, record)
     data = oneway_input(study, "the case-deletion scan")
     spec = study.spec
-    a = data.alpha if alpha is None else float(alpha)
+    a = alpha_or(alpha, data.alpha)
     chosen = ChosenTest(data, spec)
     fits, new_n, new_mean, used = chosen.deletion()
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -266,7 +267,7 @@ def _factorial_scan(study: StudyLike, name: str, verdict: object, alpha: float |
     from .cell_deletion import cell_deletion, eta_squared_total
 
     spec = study.spec
-    a = float(spec.alpha if alpha is None else alpha)
+    a = alpha_or(alpha, spec.alpha)
     per_term, status, data, notes = cell_deletion(study)
     m = per_term[name]
     if record:

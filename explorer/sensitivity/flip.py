@@ -46,6 +46,7 @@ from ..engine.dataset import RowId
 from ..engine.disclosure import Disclosure
 from ..engine.errors import ExplorerError, closest_names
 from ..engine.groupstats import group_stats
+from ..engine.spec import alpha_or
 from ..engine.studentized_range import srange_ppf, srange_sf
 from ..engine.tables import fmt, html_table
 from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
@@ -279,6 +280,9 @@ def flip_finder(
 
     if method not in ("auto", "exact", "greedy"):
         raise ExplorerError(f"method must be 'auto', 'exact' or 'greedy', not {method!r}")
+    for name, value in (("budget", budget), ("max_size", max_size), ("max_steps", max_steps)):
+        if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 1:
+            raise ExplorerError(f"{name} must be a whole number of 1 or more, not {value!r}")
     refuse_mixed(study, "flip finder")
     name, verdict = scored_term(study, term)
     spec = study.spec
@@ -288,7 +292,7 @@ def flip_finder(
                                 "F test of a term (leave out pair=)")
         return _factorial_flip(study, name, verdict, method, max_steps, alpha, record)
     data = oneway_input(study, "the flip finder")
-    a = data.alpha if alpha is None else float(alpha)
+    a = alpha_or(alpha, data.alpha)
     chosen = ChosenTest(data, spec)
     pair_idx = None
     target = f"{chosen.statistic_name} test of {data.factor} ({spec.test})"
@@ -403,7 +407,7 @@ def _factorial_flip(study: StudyLike, name: str, verdict: object, method: str, m
     from .case_deletion import case_deletion_scan
 
     spec = study.spec
-    a = float(spec.alpha if alpha is None else alpha)
+    a = alpha_or(alpha, spec.alpha)
     base_p = verdict.pvalue  # type: ignore[attr-defined]
     base_sig = base_p is not None and base_p < a
     want_sig = not base_sig

@@ -35,6 +35,7 @@ from scipy import stats
 
 from ..engine.disclosure import Disclosure
 from ..engine.distributions import t_sf
+from ..engine.spec import alpha_or
 from ..engine.tables import fmt, html_table
 from .study_like import StudyLike
 
@@ -201,6 +202,6 @@ def influence(study: StudyLike, *, alpha: float | None = None) -> Influence:
     scale = max(abs(float(study.dataset.offset)), float(np.max(np.abs(fit.y))) if fit.y.size else 0.0)
     out = influence_measures(
         fit.residuals, fit.leverage, res.df_resid, row_ids=fit.row_ids, group=group,
-        alpha=spec.alpha if alpha is None else alpha, scale=scale,
+        alpha=alpha_or(alpha, spec.alpha), scale=scale,
     )
     return dataclasses.replace(out, disclosure=study.disclosure)

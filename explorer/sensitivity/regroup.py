@@ -23,6 +23,8 @@ import numpy as np
 import pandas as pd
 
 from ..engine.disclosure import Disclosure
+from ..engine.errors import ExplorerError
+from ..engine.spec import alpha_or
 from ..engine.tables import fmt, html_table
 from .alternatives import (
     AlternativeFits,
@@ -140,9 +142,11 @@ def regroup_scan(
     if not study.spec.is_oneway:
         return _factorial_regroup(study, factor, name, verdict, alpha, moves, record)
     data = oneway_input(study, "the regroup scan")
+    if factor is not None and factor != data.factor:
+        raise ExplorerError(f"factor {factor!r} is not the factor of this one-factor study ({data.factor!r})")
     spec = study.spec
     chosen = ChosenTest(data, spec)
-    a = data.alpha if alpha is None else float(alpha)
+    a = alpha_or(alpha, data.alpha)
     gs, k = data.stats, data.k
     labels = data.labels
     # Merges: the pooled group takes the first level's place, the second is emptied.
@@ -226,7 +230,7 @@ def _factorial_regroup(study: StudyLike, factor: str | None, term: str, verdict:
     from .cell_regroup import cell_regroup
 
     spec = study.spec
-    a = float(spec.alpha if alpha is None else alpha)
+    a = alpha_or(alpha, spec.alpha)
     name, pairs, merge_fits, rows, src, dst, move_fits, notes = cell_regroup(study, factor, term=term, moves=moves)
     base_p = verdict.pvalue  # type: ignore[attr-defined]
     if record:

@@ -49,7 +49,7 @@ from ..engine.disclosure import Disclosure
 from ..engine.errors import DesignError, ExplorerError, closest_names
 from ..engine.oneway import fit_oneway
 from ..engine.results import Results
-from ..engine.spec import OVERALL_TESTS
+from ..engine.spec import OVERALL_TESTS, alpha_or
 from ..engine.tables import fmt, html_table
 from ..inference.omnibus import overall_test
 from ..inference.outliers import bonferroni_outlier_test
@@ -356,7 +356,7 @@ def robustness_sweep(
 
     spec = study.spec
     name, verdict = scored_term(study, term)
-    a = float(spec.alpha if alpha is None else alpha)
+    a = alpha_or(alpha, spec.alpha)
     outlier_rules = _check_options("outlier_rules", outlier_rules, OUTLIER_RULES)
     if tests is None:
         tests = tuple(dict.fromkeys((spec.test, *DEFAULT_TESTS)))

@@ -28,6 +28,7 @@ designs with several factors or blocks read the F tests of their terms (classic)
 from __future__ import annotations
 
 import html
+import math
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -157,7 +158,7 @@ class Decision:
 
 
 def _significant(p: float | None, alpha: float) -> bool | None:
-    return None if p is None else bool(p < alpha)
+    return None if p is None or not math.isfinite(p) else bool(p < alpha)  # never a verdict from NaN
 
 
 def _oneway(results: Results) -> Decision:

@@ -26,6 +26,7 @@ import pandas as pd
 
 from ..engine.edits import MergeLevels
 from ..engine.errors import DesignError
+from ..engine.spec import alpha_or
 from ..engine.tables import fmt, html_table
 from ..inference.omnibus import overall_test
 from .view import Condition, SummaryView
@@ -81,7 +82,7 @@ def set_aside_scan(
     level summaries, exactly as the decision reads them)."""
     view: SummaryView = study.summary_view
     spec = study.spec
-    a = spec.alpha if alpha is None else float(alpha)
+    a = alpha_or(alpha, spec.alpha)
     now = study.results
     t = term or study.decision.term
     p_now = study.decision.verdict_for(t).pvalue

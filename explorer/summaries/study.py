@@ -65,6 +65,9 @@ def as_source(data: Any, **options: Any) -> Any:
     """A summary source for ``data``: a source object as is, a Spark DataFrame, or files/DataFrame for DuckDB."""
     if hasattr(data, "atoms") and hasattr(data, "prepare"):
         return data
+    if not isinstance(data, (str, Path, list, tuple, pd.DataFrame)) and not type(data).__module__.startswith("pyspark"):
+        raise DataError(f"the data of a summary-backed study are Parquet or CSV path(s), a pandas DataFrame or a Spark "
+                        f"DataFrame, not {type(data).__name__}")
     if type(data).__module__.startswith("pyspark"):
         from .engine_spark import SparkSource
 
@@ -114,7 +117,9 @@ class SummaryStudy(Study):
         self._own_files: list[Path] = []
         self.source = source
         self.spec = spec
-        self.sample_size = max(sample_size, 0)
+        if sample_size < 0:
+            raise DataError(f"sample_size is a number of rows, 0 or more, not {sample_size}")
+        self.sample_size = sample_size
         self.seed = seed
         self.data_source = None
         self.prepared = source.prepare(spec.response, spec.columns)
