@@ -34,6 +34,26 @@ distributions             :func:`srange_sf`, :func:`srange_cdf`, :func:`srange_p
                           (studentized range)
 ========================  ==============================================================
 
+Examples
+--------
+An invented coating line: three nozzles, four panels each, film thickness in micrometres.
+
+>>> import pandas as pd
+>>> import explorer as ex
+>>> df = pd.DataFrame({
+...     "nozzle": ["A"] * 4 + ["B"] * 4 + ["C"] * 4,
+...     "thickness_um": [50.1, 49.8, 50.4, 50.0, 51.2, 51.5, 50.9, 51.3, 49.6, 49.9, 50.2, 49.7],
+... })
+>>> results = ex.Study(df, "thickness_um", "nozzle").results
+>>> welch = ex.stats.welch_f(results)
+>>> round(welch.statistic, 2), bool(welch.pvalue < 0.01)
+(30.42, True)
+>>> pairs = ex.stats.tukey(results)
+>>> pairs.method, pairs.family_size
+('Tukey', 3)
+>>> [f"{a}-{b}" for a, b, hit in zip(pairs.first, pairs.second, pairs.significant(0.05)) if hit]
+['A-B', 'B-C']
+
 Where each is defined (and its references) is in its own module under
 :mod:`explorer.engine`, :mod:`explorer.inference` and :mod:`explorer.sensitivity`;
 everything not listed here is internal to the kit and may change between releases.

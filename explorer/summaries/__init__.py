@@ -6,9 +6,9 @@ Spark for a cluster's DataFrame); the rows never leave it. Neither duckdb nor py
 is imported until a source needs it.
 
 >>> from explorer.summaries import SummaryStudy            # doctest: +SKIP
->>> study = SummaryStudy("readings/*.parquet", "thickness", ["line", "shift"])
->>> study.drop_where("gauge_reading > 120", reason="outside the gauge range")
->>> study.drop_level("day", "2026-03-14", reason="line stop, see log")
+>>> study = SummaryStudy("readings/*.parquet", "thickness", ["line", "shift"])  # doctest: +SKIP
+>>> study.drop_where("gauge_reading > 120", reason="outside the gauge range")  # doctest: +SKIP
+>>> study.drop_level("day", "2026-03-14", reason="line stop, see log")  # doctest: +SKIP
 """
 
 from __future__ import annotations
