@@ -35,7 +35,7 @@ from .alternatives import (
 )
 from .chosen_test import STATISTIC_NAMES, ChosenTest
 from .mixed_guard import refuse_mixed
-from .study_like import StudyLike
+from .study_like import StudyLike, VerdictLike
 
 __all__ = ["CaseDeletionScan", "case_deletion_scan", "nullable"]
 
@@ -201,12 +201,12 @@ def _pairwise_change(
     return names[code], t_before, t_after
 
 
-def scored_term(study: StudyLike, term: str | None) -> tuple[str, object]:
+def scored_term(study: StudyLike, term: str | None) -> tuple[str, VerdictLike]:
     """The term a scan scores (``term``, else the one the study's decision is about) and its verdict.
 
     Raises :class:`ExplorerError` naming the treatment terms when ``term`` is not one.
     """
-    decision = study.decision  # type: ignore[attr-defined]
+    decision = study.decision
     name = decision.term if term is None else str(term)
     try:
         return name, decision.verdict_for(name)
@@ -249,19 +249,19 @@ def case_deletion_scan(study: StudyLike, *, term: str | None = None, alpha: floa
         notes.append(f"{single} level(s) have one observation; leaving it out removes the level (one df fewer for the term).")
     if record:
         study.record_search("case deletion", data.n)
-    base_p = verdict.pvalue  # type: ignore[attr-defined]
+    base_p = verdict.pvalue
     return CaseDeletionScan(
         factor=data.factor, alpha=a, row_ids=data.row_ids, group=np.asarray(data.labels, dtype=object)[data.codes],
         statistic=fits.statistic, pvalue=fits.pvalue, eta_squared=fits.eta_squared, df_between=fits.df_between,
         df_within=fits.df_within, status=fits.status, pair=pair, pair_t_before=t_before, pair_t_after=t_after,
-        base_statistic=verdict.statistic, base_pvalue=base_p,  # type: ignore[attr-defined]
+        base_statistic=verdict.statistic, base_pvalue=base_p,
         base_significant=bool(base_p is not None and base_p < a), term=name, test=spec.test, how=chosen.how,
         permutations_used=used, disclosure=study.disclosure if record else None,
         notes=tuple(notes),
     )
 
 
-def _factorial_scan(study: StudyLike, name: str, verdict: object, alpha: float | None, record: bool) -> CaseDeletionScan:
+def _factorial_scan(study: StudyLike, name: str, verdict: VerdictLike, alpha: float | None, record: bool) -> CaseDeletionScan:
     """Case deletion for multi-factor designs (see :mod:`.cell_deletion`): the decision on ``name`` is
     scored, every term's p-value is listed."""
     from .cell_deletion import cell_deletion, eta_squared_total
@@ -272,7 +272,7 @@ def _factorial_scan(study: StudyLike, name: str, verdict: object, alpha: float |
     m = per_term[name]
     if record:
         study.record_search("case deletion", data.n)
-    base_p = verdict.pvalue  # type: ignore[attr-defined]
+    base_p = verdict.pvalue
     empty = np.full(data.n, np.nan)
     notes = [f"Test: classic F of {name!r} ({spec.ss_type} sums of squares) from quadratic updates of the cell means "
              "(three cell fits per cell)."] + notes + [
@@ -282,7 +282,7 @@ def _factorial_scan(study: StudyLike, name: str, verdict: object, alpha: float |
         statistic=m["statistic"], pvalue=m["pvalue"], eta_squared=eta_squared_total(data, m["ss"]),
         df_between=m["df"].astype(np.int64), df_within=per_term["residual"]["df"].astype(np.int64), status=status,
         pair=np.full(data.n, "", dtype=object), pair_t_before=empty, pair_t_after=empty,
-        base_statistic=verdict.statistic, base_pvalue=base_p,  # type: ignore[attr-defined]
+        base_statistic=verdict.statistic, base_pvalue=base_p,
         base_significant=bool(base_p is not None and base_p < a),
         term=name, test="classic", how="classic F from quadratic updates of the cell means",
         term_pvalues={t: v["pvalue"] for t, v in per_term.items() if t != "residual"},

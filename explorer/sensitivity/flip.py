@@ -52,7 +52,7 @@ from ..engine.tables import fmt, html_table
 from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
 from .chosen_test import ChosenTest
 from .mixed_guard import refuse_mixed
-from .study_like import StudyLike
+from .study_like import StudyLike, VerdictLike
 
 __all__ = ["FlipSearch", "flip_finder"]
 
@@ -310,7 +310,7 @@ def flip_finder(
         target = f"{pair[0]} vs {pair[1]} (Tukey-Kramer)"
     scorer = _Scorer(data, a, pair_idx, chosen)
     keep_all = np.ones(data.n, dtype=bool)
-    base_p = verdict.pvalue if pair is None else scorer.pvalue(keep_all)  # type: ignore[attr-defined]
+    base_p = verdict.pvalue if pair is None else scorer.pvalue(keep_all)
     base_sig = base_p is not None and base_p < a
     want_sig = not base_sig
     notes: list[str] = []
@@ -395,7 +395,7 @@ def _order_within(scorer: _Scorer, rows: list[int], want_sig: bool) -> list[int]
     return out
 
 
-def _factorial_flip(study: StudyLike, name: str, verdict: object, method: str, max_steps: int, alpha: float | None,
+def _factorial_flip(study: StudyLike, name: str, verdict: VerdictLike, method: str, max_steps: int, alpha: float | None,
                     record: bool) -> FlipSearch:
     """Flip finder for factorial and block designs, on the F test of the term ``name``.
 
@@ -408,7 +408,7 @@ def _factorial_flip(study: StudyLike, name: str, verdict: object, method: str, m
 
     spec = study.spec
     a = alpha_or(alpha, spec.alpha)
-    base_p = verdict.pvalue  # type: ignore[attr-defined]
+    base_p = verdict.pvalue
     base_sig = base_p is not None and base_p < a
     want_sig = not base_sig
     term = f"F test of {name}"

@@ -34,7 +34,7 @@ from .alternatives import (
 from .case_deletion import nullable, scored_term
 from .chosen_test import STATISTIC_NAMES, ChosenTest
 from .mixed_guard import refuse_mixed
-from .study_like import StudyLike
+from .study_like import StudyLike, VerdictLike
 
 __all__ = ["RegroupScan", "regroup_scan"]
 
@@ -203,7 +203,7 @@ def regroup_scan(
                                  np.zeros(0, dtype=np.int64))
         ridx = src = dst = np.zeros(0, dtype=np.int64)
     lab = np.asarray(labels, dtype=object)
-    base_p = verdict.pvalue  # type: ignore[attr-defined]
+    base_p = verdict.pvalue
     count = P + int(ridx.size)
     notes = [("A merge pools two levels into one (one df fewer for the term); a move puts one row under "
              "another level (a unit logged under the wrong level)."), f"Test: {chosen.how}."]
@@ -225,14 +225,14 @@ def _take(f: AlternativeFits, order: np.ndarray) -> AlternativeFits:
 
 
 
-def _factorial_regroup(study: StudyLike, factor: str | None, term: str, verdict: object, alpha: float | None,
+def _factorial_regroup(study: StudyLike, factor: str | None, term: str, verdict: VerdictLike, alpha: float | None,
                        moves: bool, record: bool) -> RegroupScan:
     from .cell_regroup import cell_regroup
 
     spec = study.spec
     a = alpha_or(alpha, spec.alpha)
     name, pairs, merge_fits, rows, src, dst, move_fits, notes = cell_regroup(study, factor, term=term, moves=moves)
-    base_p = verdict.pvalue  # type: ignore[attr-defined]
+    base_p = verdict.pvalue
     if record:
         study.record_search("regroup scan", len(pairs) + int(rows.size))
     return RegroupScan(

@@ -380,7 +380,7 @@ def robustness_sweep(
     p = table["p-value"].astype(float).to_numpy()
     defined = np.isfinite(p)
     sig = defined & (np.nan_to_num(p, nan=1.0) < a)
-    base_p = verdict.pvalue  # type: ignore[attr-defined]
+    base_p = verdict.pvalue
     current = bool(base_p is not None and base_p < a)
     table["significant"] = sig
     table["agrees with current decision"] = np.where(defined, sig == current, False)
