@@ -9,13 +9,13 @@ sender's file) and write the offline report.
 
 from __future__ import annotations
 
-import html
 from collections.abc import Callable
 from pathlib import Path
 
 import ipywidgets as W
 
 from .engine import ExplorerError
+from .engine.tables import esc
 from .study import Study
 from .widget import Explorer
 
@@ -45,9 +45,9 @@ def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
     explorer = Explorer(study)
     log_path, report_path = review_paths(study_file)
     title = W.HTML(
-        f"<h2 style='margin:4px 0'>{html.escape(study.spec.response)} by {html.escape(', '.join(study.spec.factors))}</h2>"
-        f"<div class='vx-small'>Saved study <code>{html.escape(Path(study_file).name)}</code> on data "
-        f"<code>{html.escape(Path(data).name)}</code>: {len(study.edits)} edit(s) loaded. Pick points, write a "
+        f"<h2 style='margin:4px 0'>{esc(study.spec.response)} by {esc(', '.join(study.spec.factors))}</h2>"
+        f"<div class='vx-small'>Saved study <code>{esc(Path(study_file).name)}</code> on data "
+        f"<code>{esc(Path(data).name)}</code>: {len(study.edits)} edit(s) loaded. Pick points, write a "
         "reason, edit; then save your review.</div>"
     )
     save = W.Button(description="Save the edit log", icon="save", layout=W.Layout(width="auto"))
@@ -61,9 +61,9 @@ def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
         try:
             write()
         except (OSError, ExplorerError) as exc:
-            status.value = f"<span class='vx-status-error'>{action}: {html.escape(str(exc))}</span>"
+            status.value = f"<span class='vx-status-error'>{action}: {esc(str(exc))}</span>"
             return
-        status.value = f"<span class='vx-status-ok'>{html.escape(done())}</span>"
+        status.value = f"<span class='vx-status-ok'>{esc(done())}</span>"
 
     written: set[Path] = set()  # files this page wrote: it may replace those, and nothing else
 

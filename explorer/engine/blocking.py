@@ -24,10 +24,9 @@ Fisher, R. A. (1935). The Design of Experiments, sec. 74 (df correction).
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass
 
-from .tables import fmt
+from .tables import esc, fmt
 
 __all__ = ["BlockingEfficiency", "blocking_efficiency"]
 
@@ -49,8 +48,8 @@ class BlockingEfficiency:
             f"Relative efficiency of blocking: {fmt(self.relative_efficiency, 4)} (residual mean square "
             f"{fmt(self.ms_resid_blocked)} with blocks against an estimated {fmt(self.ms_resid_unblocked)} without)"
         )
-        notes = "".join(f"<div style='font-size:90%;color:#555'>{html.escape(n)}</div>" for n in self.notes)
-        return f"<div>{html.escape(text)}</div>{notes}"
+        notes = "".join(f"<div style='font-size:90%;color:#555'>{esc(n)}</div>" for n in self.notes)
+        return f"<div>{esc(text)}</div>{notes}"
 
 
 def blocking_efficiency(

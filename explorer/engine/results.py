@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import html
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -14,7 +13,7 @@ from .dataset import RowId
 from .errors import ExplorerError
 from .groupstats import GroupStats
 from .spec import ModelSpec
-from .tables import AnovaTable, fmt, html_table
+from .tables import AnovaTable, esc, fmt, html_table
 
 if TYPE_CHECKING:  # multi-factor result parts (see factorial.py)
     from .aliasing import AliasedTerm
@@ -92,7 +91,7 @@ class TwoSampleT:
 
     def _repr_html_(self) -> str:
         return (
-            f"<div>Pooled t test, {html.escape(self.first)} − {html.escape(self.second)}: difference "
+            f"<div>Pooled t test, {esc(self.first)} − {esc(self.second)}: difference "
             f"{fmt(self.difference)}, t = {fmt(self.statistic)} on {self.df} df, p = {fmt(self.pvalue)}, "
             f"{self.confidence:.0%} CI ({fmt(self.ci_low)}, {fmt(self.ci_high)})</div>"
         )
@@ -201,5 +200,5 @@ class Results:
         parts.extend(x._repr_html_() for x in extras if x is not None)
         if self.two_groups is not None:
             parts.append(self.two_groups._repr_html_())
-        parts.extend(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)
+        parts.extend(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
         return "<div class='vx-results'>" + "".join(parts) + "</div>"

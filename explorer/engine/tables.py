@@ -14,12 +14,18 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-__all__ = ["TermRow", "AnovaTable", "COLUMNS", "ERROR_COLUMNS", "html_table", "fmt"]
+__all__ = ["TermRow", "AnovaTable", "COLUMNS", "ERROR_COLUMNS", "html_table", "fmt", "esc"]
 
 #: Column headings of a partition table (plain trade words).
 COLUMNS = ("source", "df", "sum of squares", "mean square", "F", "p-value")
 #: Extra columns of a partition whose terms have their own error terms (random and mixed models).
 ERROR_COLUMNS = ("tested against", "error df")
+
+
+def esc(value: object) -> str:
+    """The one escaping helper: any value as HTML text (``& < > " '`` escaped), safe in content and
+    quoted attributes. Every user string (names, levels, row ids, reasons, paths) goes through it."""
+    return html.escape(str(value), quote=True)
 
 
 def fmt(x: Any, digits: int = 6) -> str:
@@ -33,7 +39,7 @@ def fmt(x: Any, digits: int = 6) -> str:
     try:
         xf = float(x)
     except (TypeError, ValueError):
-        return html.escape(str(x))
+        return esc(str(x))
     if xf != xf:
         return "—"
     if xf == 0:
@@ -58,18 +64,18 @@ def html_table(frame: pd.DataFrame, caption: str = "", notes: tuple[str, ...] = 
         notes = (f"Showing the first {MAX_HTML_ROWS:,} of {len(frame):,} rows; the whole table is in to_frame().",
                  *notes)
         frame = frame.iloc[:MAX_HTML_ROWS]
-    labels = [html.escape(str(c)) for c in frame.columns]
+    labels = [esc(str(c)) for c in frame.columns]
     head = "".join(f"<th>{c}</th>" for c in labels)
     body = []
     for _, row in frame.iterrows():
         cells = "".join(
-            f"<td data-label='{lab}'>{html.escape(v)}</td>" if isinstance(v, str)
+            f"<td data-label='{lab}'>{esc(v)}</td>" if isinstance(v, str)
             else f"<td class='vx-num' data-label='{lab}'>{fmt(v, digits)}</td>"
             for lab, v in zip(labels, row.tolist())
         )
         body.append(f"<tr>{cells}</tr>")
-    cap = f"<caption style='text-align:left;font-weight:600'>{html.escape(caption)}</caption>" if caption else ""
-    foot = "".join(f"<div style='font-size:90%;color:#555'>{html.escape(n)}</div>" for n in notes)
+    cap = f"<caption style='text-align:left;font-weight:600'>{esc(caption)}</caption>" if caption else ""
+    foot = "".join(f"<div style='font-size:90%;color:#555'>{esc(n)}</div>" for n in notes)
     return (
         f"<table class='vx-table vx-cols-{len(labels)}'>{cap}<thead><tr>{head}</tr></thead>"
         f"<tbody>{''.join(body)}</tbody></table>{foot}"
@@ -146,8 +152,8 @@ class AnovaTable:
         if self.aliased:  # named inside the table, below the fitted terms
             width = len(self.to_frame().columns)
             extra = "".join(
-                f"<tr><td>{html.escape(name)}</td><td colspan='{width - 1}'>not estimable: aliased with "
-                f"{html.escape(other)} (left out of the fit)</td></tr>"
+                f"<tr><td>{esc(name)}</td><td colspan='{width - 1}'>not estimable: aliased with "
+                f"{esc(other)} (left out of the fit)</td></tr>"
                 for name, other in self.aliased
             )
             out = out.replace("</tbody>", extra + "</tbody>", 1)

@@ -26,7 +26,6 @@ Welch's t-test instead of Student's t-test. Int. Rev. Soc. Psychol. 30(1), 92-10
 
 from __future__ import annotations
 
-import html
 import warnings
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Literal
@@ -39,7 +38,7 @@ from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
 from ..engine.groupstats import group_stats
 from ..engine.spec import TEST_LABELS, alpha_or
-from ..engine.tables import fmt
+from ..engine.tables import esc, fmt
 from .oneway_inputs import row_sample_notes
 
 if TYPE_CHECKING:
@@ -76,10 +75,10 @@ class CheckResult:
         return pd.DataFrame([self.row()])
 
     def _repr_html_(self) -> str:
-        notes = "".join(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)
+        notes = "".join(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
         return (
-            f"<div><b>{html.escape(self.method)}</b> ({html.escape(self.tests)}): statistic {fmt(self.statistic)}, "
-            f"p = {fmt(self.pvalue)}. <i>{html.escape(self.limits)}</i>{notes}</div>"
+            f"<div><b>{esc(self.method)}</b> ({esc(self.tests)}): statistic {fmt(self.statistic)}, "
+            f"p = {fmt(self.pvalue)}. <i>{esc(self.limits)}</i>{notes}</div>"
         )
 
 
@@ -245,9 +244,9 @@ class Recommendation:
     references: tuple[str, ...] = (WELCH_DEFAULT_REFERENCE, PRETEST_REFERENCE)
 
     def _repr_html_(self) -> str:
-        refs = "".join(f"<div style='font-size:90%;color:#555'>{html.escape(r)}.</div>" for r in self.references)
-        return (f"<div><b>Suggested overall test (information, not a switch): {html.escape(self.test)}.</b> "
-                f"{html.escape(self.sentence)}{refs}</div>")
+        refs = "".join(f"<div style='font-size:90%;color:#555'>{esc(r)}.</div>" for r in self.references)
+        return (f"<div><b>Suggested overall test (information, not a switch): {esc(self.test)}.</b> "
+                f"{esc(self.sentence)}{refs}</div>")
 
 
 def recommend(results: Results, spread: CheckResult, normality: CheckResult, *, alpha: float | None = None,

@@ -13,7 +13,6 @@ tables carry (Tukey -> Tukey-Kramer), never which computation is shown.
 
 from __future__ import annotations
 
-import html
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Literal
@@ -23,7 +22,7 @@ import pandas as pd
 
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.spec import alpha_or
-from ..engine.tables import html_table
+from ..engine.tables import esc, html_table
 from .assumptions import (
     CheckResult,
     Recommendation,
@@ -218,7 +217,7 @@ class Battery:
         for name in (*_PAIRWISE, "dunnett"):
             if name in waiting:
                 part = object.__getattribute__(self, name)
-                parts.append(f"<div class='vx-small'>{html.escape(part.what)}: {part.size:,} comparisons, computed "
+                parts.append(f"<div class='vx-small'>{esc(part.what)}: {part.size:,} comparisons, computed "
                              f"when first read (battery.{name}).</div>")
             elif getattr(self, name) is not None:
                 parts.append(getattr(self, name)._repr_html_())
@@ -233,7 +232,7 @@ class Battery:
             "<div style='font-size:90%;color:#555'>Screens flag rows for a look; leaving a row out needs a "
             "documented reason.</div>"
         )
-        parts.extend(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)
+        parts.extend(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
         return "<div class='vx-battery'>" + "".join(parts) + "</div>"
 
 

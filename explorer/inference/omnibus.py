@@ -20,7 +20,6 @@ Springer (permutation F; p-value (b + 1) / (B + 1)).
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
@@ -28,7 +27,7 @@ import numpy as np
 import pandas as pd
 
 from ..engine.errors import ExplorerError
-from ..engine.tables import fmt
+from ..engine.tables import esc, fmt
 from .omnibus_batch import brown_forsythe_batch, kruskal_batch, welch_batch
 from .oneway_inputs import require_oneway, row_sample_notes
 
@@ -85,17 +84,17 @@ class OmnibusTest:
 
     def _repr_html_(self) -> str:
         dfs = ", ".join(fmt(x, 5) for x in (self.df_num, self.df_den) if x is not None)
-        extra = "; ".join(f"{html.escape(k)} {fmt(v) if not isinstance(v, str) else html.escape(v)}"
+        extra = "; ".join(f"{esc(k)} {fmt(v) if not isinstance(v, str) else esc(v)}"
                           for k, v in self.details)
         if self.original_pvalue is not None:
             first = (f"with the original k - 1 = {fmt(self.original_df_num, 5)} numerator df, "
                      f"p = {fmt(self.original_pvalue)} (liberal when variances differ)")
             extra = f"{extra}; {first}" if extra else first
-        notes = "".join(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)
+        notes = "".join(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
         return (
-            f"<div><b>{html.escape(self.method)}</b>: statistic {fmt(self.statistic)}"
+            f"<div><b>{esc(self.method)}</b>: statistic {fmt(self.statistic)}"
             f"{f' on ({dfs}) df' if dfs else ''}, p = {fmt(self.pvalue)}"
-            f"{'; ' + extra if extra else ''}. <i>Assumes {html.escape(self.assumes)}.</i>{notes}</div>"
+            f"{'; ' + extra if extra else ''}. <i>Assumes {esc(self.assumes)}.</i>{notes}</div>"
         )
 
 

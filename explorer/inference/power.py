@@ -17,7 +17,6 @@ Hoenig, J. M. and Heisey, D. M. (2001). The abuse of power. Am. Stat. 55, 19-24.
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING
 
@@ -26,7 +25,7 @@ import numpy as np
 from ..engine.errors import ExplorerError
 from ..engine.noncentral_f import f_test_power as _f_power
 from ..engine.spec import alpha_or
-from ..engine.tables import fmt
+from ..engine.tables import esc, fmt
 from .oneway_inputs import require_oneway
 
 if TYPE_CHECKING:
@@ -115,8 +114,8 @@ class PowerPlan:
                 f"{self.k} levels and {self.n_total} observations, the F test has power {fmt(self.power, 3)}; {need}.")
 
     def _repr_html_(self) -> str:
-        notes = "".join(f"<div style='color:#8a4b00'>{html.escape(n)}</div>" for n in self.notes)
-        return f"<div><b>Power</b>: {html.escape(self.sentence())}{notes}</div>"
+        notes = "".join(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
+        return f"<div><b>Power</b>: {esc(self.sentence())}{notes}</div>"
 
 
 def power_plan(results: Results, *, effect_f: float | None = None, alpha: float | None = None,

@@ -22,7 +22,6 @@ Hollander, M., Wolfe, D. A. and Chicken, E. (2014). Nonparametric Statistical Me
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -32,7 +31,7 @@ from scipy import special
 from ..engine.errors import DesignError
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
-from ..engine.tables import fmt, html_table
+from ..engine.tables import esc, fmt, html_table
 from .oneway_inputs import require_oneway, row_sample_notes
 from .two_levels import mid_ranks
 
@@ -120,11 +119,11 @@ class FriedmanTest:
     notes: tuple[str, ...] = field(default=())
 
     def _repr_html_(self) -> str:
-        sums = ", ".join(f"{html.escape(k)} {fmt(v, 5)}" for k, v in self.rank_sums)
-        return (f"<div><b>Friedman rank test</b> of {html.escape(self.factor)} within {html.escape(self.block)} "
+        sums = ", ".join(f"{esc(k)} {fmt(v, 5)}" for k, v in self.rank_sums)
+        return (f"<div><b>Friedman rank test</b> of {esc(self.factor)} within {esc(self.block)} "
                 f"({self.blocks} blocks): chi-square = {fmt(self.statistic)} on {self.df} df, p = {fmt(self.pvalue)}; "
                 f"Kendall's W = {fmt(self.kendall_w, 4)}; rank sums: {sums}</div>"
-                + "".join(f"<div class='note'>{html.escape(n)}</div>" for n in self.notes))
+                + "".join(f"<div class='note'>{esc(n)}</div>" for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Friedman rank test of {self.factor} within {self.block} ({self.blocks} blocks): "

@@ -27,7 +27,6 @@ linear model. The American Statistician 34, 216-221.
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -113,8 +112,8 @@ class SimpleEffects:
         cap = (f"Simple effects of {self.factor} at each level of {self.within} (full model's residual mean square, "
                f"{self.df_den} df; {ADJUSTMENTS[self.adjustment]} adjustment over {self.family_size} tests)")
         pct = f"{self.confidence:.0%}"
-        return ("<div class='vx-simple-effects'>" + html_table(self.to_frame(), html.escape(cap), self.notes)
-                + html_table(self.cells, html.escape(f"Cell means (least squares) with {pct} intervals")) + "</div>")
+        return ("<div class='vx-simple-effects'>" + html_table(self.to_frame(), cap, self.notes)
+                + html_table(self.cells, f"Cell means (least squares) with {pct} intervals") + "</div>")
 
 
 def _layout(results: Results) -> tuple[tuple[str, ...], list[tuple[str, ...]], np.ndarray]:

@@ -23,7 +23,6 @@ Hollander, M., Wolfe, D. A. and Chicken, E. (2014). Nonparametric Statistical Me
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -32,7 +31,7 @@ from scipy import special
 from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import DesignError
 from ..engine.results import Results
-from ..engine.tables import fmt
+from ..engine.tables import esc, fmt
 from .oneway_inputs import require_oneway, row_sample_notes
 
 __all__ = ["WelchT", "MannWhitney", "welch_t", "mann_whitney", "mid_ranks"]
@@ -74,10 +73,10 @@ class WelchT:
     notes: tuple[str, ...] = field(default=())
 
     def _repr_html_(self) -> str:
-        return (f"<div><b>Welch two-sample t</b>, {html.escape(self.first)} − {html.escape(self.second)}: "
+        return (f"<div><b>Welch two-sample t</b>, {esc(self.first)} − {esc(self.second)}: "
                 f"difference {fmt(self.difference)}, t = {fmt(self.statistic)} on {fmt(self.df, 5)} df, "
                 f"p = {fmt(self.pvalue)}, {self.confidence:.0%} interval ({fmt(self.ci_low)}, {fmt(self.ci_high)})"
-                "</div>" + "".join(f"<div class='note'>{html.escape(n)}</div>" for n in self.notes))
+                "</div>" + "".join(f"<div class='note'>{esc(n)}</div>" for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Welch two-sample t, {self.first} - {self.second}: difference {fmt(self.difference)}, "
@@ -123,10 +122,10 @@ class MannWhitney:
 
     def _repr_html_(self) -> str:
         z = "" if self.z is None else f", z = {fmt(self.z, 5)}"
-        return (f"<div><b>Mann-Whitney</b> ({html.escape(self.method)}), {html.escape(self.first)} vs "
-                f"{html.escape(self.second)}: U = {fmt(self.u)}{z}, p = {fmt(self.pvalue)}; "
-                f"P({html.escape(self.first)} above {html.escape(self.second)}) estimated {fmt(self.probability, 4)}</div>"
-                + "".join(f"<div class='note'>{html.escape(n)}</div>" for n in self.notes))
+        return (f"<div><b>Mann-Whitney</b> ({esc(self.method)}), {esc(self.first)} vs "
+                f"{esc(self.second)}: U = {fmt(self.u)}{z}, p = {fmt(self.pvalue)}; "
+                f"P({esc(self.first)} above {esc(self.second)}) estimated {fmt(self.probability, 4)}</div>"
+                + "".join(f"<div class='note'>{esc(n)}</div>" for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Mann-Whitney ({self.method}), {self.first} vs {self.second}: U = {fmt(self.u)}, p = {fmt(self.pvalue)}, "

@@ -5,8 +5,9 @@ A test checks that these match README.md, so the two cannot drift apart.
 
 from __future__ import annotations
 
-import html
 import re
+
+from ..engine.tables import esc
 
 __all__ = ["CAUTIONS", "cautions_html", "cautions_text"]
 
@@ -37,5 +38,5 @@ def cautions_text() -> str:
 def cautions_html() -> str:
     """An HTML list of the cautions."""
     bold = r"<strong>\1</strong>"
-    items = "".join("<li>" + _BOLD.sub(bold, html.escape(c)) + "</li>" for c in CAUTIONS)
+    items = "".join("<li>" + _BOLD.sub(bold, esc(c)) + "</li>" for c in CAUTIONS)
     return f"<ul class='vx-cautions'>{items}</ul>"

@@ -9,12 +9,13 @@ form, shared by the HTML report and the command line.
 
 from __future__ import annotations
 
-import html
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import pandas as pd
+
+from ..engine.tables import esc
 
 if TYPE_CHECKING:
     from ..study.study import Study
@@ -46,7 +47,7 @@ def as_html(obj: Any) -> str:
         from ..engine.tables import html_table
 
         return html_table(obj.to_frame())
-    return f"<pre>{html.escape(str(obj))}</pre>"
+    return f"<pre>{esc(str(obj))}</pre>"
 
 
 def frame_text(frame: pd.DataFrame) -> str:

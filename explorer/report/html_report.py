@@ -10,7 +10,6 @@ time, the test battery, the sensitivity summary and the replay code. The saved s
 
 from __future__ import annotations
 
-import html
 import json
 from collections.abc import Iterable
 from datetime import datetime, timezone
@@ -18,7 +17,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from ..engine.errors import ExplorerError
-from ..engine.tables import fmt
+from ..engine.tables import esc, fmt
 from ..study.output_files import check_output_path, write_text_atomic
 from .cautions import cautions_html
 from .extras import Part, battery_part, planned_part, sensitivity_part
@@ -59,32 +58,32 @@ pre{background:#f6f6f6;padding:.8em;overflow-x:auto;font-size:85%}
 
 
 def _kv_table(rows: list[tuple[str, str]]) -> str:
-    body = "".join(f"<tr><th>{html.escape(k)}</th><td>{v}</td></tr>" for k, v in rows)
+    body = "".join(f"<tr><th>{esc(k)}</th><td>{v}</td></tr>" for k, v in rows)
     return f"<table class='vx-table'>{body}</table>"
 
 
 def _provenance(study: "Study") -> str:
     ds = study.dataset
     rows = [
-        ("data file", html.escape(ds.source)),
-        ("fingerprint", f"<code>{html.escape(ds.fingerprint)}</code>"),
+        ("data file", esc(ds.source)),
+        ("fingerprint", f"<code>{esc(ds.fingerprint)}</code>"),
         ("rows in the file", str(len(ds.table))),
         ("rows usable", str(ds.n)),
-        ("row ids", html.escape(ds.describe_ids())),
-        ("response", html.escape(study.spec.response)),
-        ("factors", html.escape(", ".join(study.spec.factors))),
+        ("row ids", esc(ds.describe_ids())),
+        ("response", esc(study.spec.response)),
+        ("factors", esc(", ".join(study.spec.factors))),
     ]
     if study.spec.blocks:
-        rows.append(("blocks", html.escape(", ".join(study.spec.blocks))))
-    rows.append(("sums of squares", html.escape(study.results.partition.ss_caption)))
+        rows.append(("blocks", esc(", ".join(study.spec.blocks))))
+    rows.append(("sums of squares", esc(study.results.partition.ss_caption)))
     rows.append(("decisions read at alpha", f"{study.spec.alpha:g}"))
     out = _kv_table(rows)
     if ds.set_aside:
-        items = "".join(f"<li>row {html.escape(str(s.row))}: {html.escape(s.reason)}</li>" for s in ds.set_aside)
+        items = "".join(f"<li>row {esc(str(s.row))}: {esc(s.reason)}</li>" for s in ds.set_aside)
         out += f"<p>{len(ds.set_aside)} row(s) set aside when the data were loaded:</p><ul>{items}</ul>"
     else:
         out += "<p>No rows were set aside when the data were loaded.</p>"
-    out += "".join(f"<p class='note'>{html.escape(n)}</p>" for n in ds.notes)
+    out += "".join(f"<p class='note'>{esc(n)}</p>" for n in ds.notes)
     return out
 
 
@@ -99,8 +98,8 @@ def _headline(study: "Study") -> str:
     vc = dc.verdict_for(term)
 
     def line(label: str, a: object, b: object) -> tuple[str, str, str]:
-        return (html.escape(label), fmt(a, 6) if not isinstance(a, str) else html.escape(a),
-                fmt(b, 6) if not isinstance(b, str) else html.escape(b))
+        return (esc(label), fmt(a, 6) if not isinstance(a, str) else esc(a),
+                fmt(b, 6) if not isinstance(b, str) else esc(b))
 
     rows = [
         line("observations used", base.n_used, cur.n_used),
@@ -112,17 +111,17 @@ def _headline(study: "Study") -> str:
         line("decision", db.sentence(), dc.sentence()),
     ]
     body = "".join(f"<tr><th>{k}</th><td>{a}</td><td>{b}</td></tr>" for k, a, b in rows)
-    caveats = "".join(f"<p class='note'>{html.escape(c)}</p>" for c in dict.fromkeys((db.caveat, dc.caveat)) if c)
+    caveats = "".join(f"<p class='note'>{esc(c)}</p>" for c in dict.fromkeys((db.caveat, dc.caveat)) if c)
     return (
         "<table class='vx-table vx-headline'><thead><tr><th></th><th>baseline (unedited)</th>"
         f"<th>current (after {len(study.edits)} edit(s))</th></tr></thead><tbody>{body}</tbody></table>"
-        f"<p class='note'>Decisions read from the {html.escape(dc.method)} at alpha {dc.alpha:g}.</p>{caveats}"
+        f"<p class='note'>Decisions read from the {esc(dc.method)} at alpha {dc.alpha:g}.</p>{caveats}"
     )
 
 
 def _results_column(study: "Study", baseline: bool, heading: str, figure: "Figure | None") -> str:
     res = study.baseline if baseline else study.results
-    parts = [f"<h3>{html.escape(heading)}</h3>"]
+    parts = [f"<h3>{esc(heading)}</h3>"]
     if figure is not None:
         parts.append(figure.html())
     parts.append(res._repr_html_())
@@ -147,7 +146,7 @@ def _moved(study: "Study") -> str:
     moved = study.moved_rows()
     if not moved:
         return ""
-    items = "".join(f"<li>{html.escape(m.describe())}: {html.escape(m.reason or '(no reason given)')}</li>"
+    items = "".join(f"<li>{esc(m.describe())}: {esc(m.reason or '(no reason given)')}</li>"
                     for m in moved)
     return f"<p>{len(moved)} row(s) now at another level than the one recorded (from → to):</p><ul>{items}</ul>"
 
@@ -160,9 +159,9 @@ def _interaction(study: "Study", charts: bool) -> str:
     try:
         effects = study.simple_effects(pair[0], within=pair[1])
     except ExplorerError as exc:
-        return f"<section id='interaction'><h2>Interaction</h2><p class='note'>{html.escape(str(exc))}</p></section>"
+        return f"<section id='interaction'><h2>Interaction</h2><p class='note'>{esc(str(exc))}</p></section>"
     figure = interaction_figure(effects).html() if charts else ""
-    return (f"<section id='interaction'><h2>Interaction: {html.escape(pair[0])} by {html.escape(pair[1])}</h2>"
+    return (f"<section id='interaction'><h2>Interaction: {esc(pair[0])} by {esc(pair[1])}</h2>"
             f"{figure}{effects._repr_html_()}</section>")
 
 
@@ -176,7 +175,7 @@ def _edits(study: "Study") -> str:
         return "<p>No edits: the current results are the baseline.</p>"
     head = "".join(f"<th>{h}</th>" for h in ("#", "edit", "reason", "made (UTC)", "status"))
     body = "".join(
-        "<tr>" + "".join(f"<td>{html.escape(c)}</td>" for c in r) + "</tr>" for r in rows
+        "<tr>" + "".join(f"<td>{esc(c)}</td>" for c in r) + "</tr>" for r in rows
     )
     return f"<table class='vx-table vx-edits'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
 
@@ -184,7 +183,7 @@ def _edits(study: "Study") -> str:
 def _part(part: Part) -> str:
     if part.present:
         return part.html
-    return f"<p class='note'>Not included: {html.escape(part.note or '')}.</p>"
+    return f"<p class='note'>Not included: {esc(part.note or '')}.</p>"
 
 
 def report_html(study: "Study", *, title: str | None = None, scenario: str | None = None, charts: bool = True) -> str:
@@ -206,24 +205,24 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
     saved = json.dumps(study.to_dict(), indent=1).replace("<", "\\u003c")  # inert inside <script>
     code = study_to_code(study)
     sections = [
-        f"<header><h1>{html.escape(title)}</h1><p class='scenario'>{html.escape(scenario)}</p>"
-        f"<p class='disclosure'><strong>Disclosure:</strong> {html.escape(disclosure.sentence())}.</p></header>",
+        f"<header><h1>{esc(title)}</h1><p class='scenario'>{esc(scenario)}</p>"
+        f"<p class='disclosure'><strong>Disclosure:</strong> {esc(disclosure.sentence())}.</p></header>",
         f"<section id='provenance'><h2>Data and provenance</h2>{_provenance(study)}</section>",
         f"<section id='cautions'><h2>Cautions</h2>{cautions_html()}</section>",
         "<section id='comparison'><h2>Baseline and current results</h2>" + _headline(study)
         + _side_by_side(study, charts) + (_model_checks(study) if charts else "") + "</section>",
         _interaction(study, charts),
         f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}{_moved(study)}</section>",
-        f"<section id='battery'><h2>{html.escape(battery.title)}</h2>{_part(battery)}</section>",
-        *([f"<section id='strata'><h2>{html.escape(strata.title)}</h2>{_part(strata)}</section>"]
+        f"<section id='battery'><h2>{esc(battery.title)}</h2>{_part(battery)}</section>",
+        *([f"<section id='strata'><h2>{esc(strata.title)}</h2>{_part(strata)}</section>"]
           if strata.present else []),
-        *([f"<section id='planned'><h2>{html.escape(planned.title)}</h2>{_part(planned)}</section>"]
+        *([f"<section id='planned'><h2>{esc(planned.title)}</h2>{_part(planned)}</section>"]
           if planned.present else []),
-        f"<section id='sensitivity'><h2>{html.escape(sensitivity.title)}</h2>{_part(sensitivity)}"
-        f"<p><strong>Disclosure:</strong> {html.escape(disclosure.sentence())}.</p></section>",
+        f"<section id='sensitivity'><h2>{esc(sensitivity.title)}</h2>{_part(sensitivity)}"
+        f"<p><strong>Disclosure:</strong> {esc(disclosure.sentence())}.</p></section>",
         "<section id='replay'><h2>Rerun this analysis</h2><p>Run this Python (with the kit installed, "
-        f"next to the data file) to rebuild the current state:</p><pre>{html.escape(code)}</pre></section>",
-        f"<footer><p>Written {now} by variance-explorer {html.escape(__version__)}. The saved study (edit log "
+        f"next to the data file) to rebuild the current state:</p><pre>{esc(code)}</pre></section>",
+        f"<footer><p>Written {now} by variance-explorer {esc(__version__)}. The saved study (edit log "
         "with reasons) is embedded in this file as JSON (element id <code>vx-study</code>).</p></footer>",
         f"<script type='application/json' id='vx-study'>{saved}</script>",
     ]
@@ -231,7 +230,7 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
         "<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
         f"<meta http-equiv='Content-Security-Policy' content=\"{CSP}\">"
         "<meta name='viewport' content='width=device-width, initial-scale=1'>"
-        f"<title>{html.escape(title)}</title><style>{STYLE}</style></head><body>"
+        f"<title>{esc(title)}</title><style>{STYLE}</style></head><body>"
         + "\n".join(sections)
         + "</body></html>\n"
     )

@@ -19,7 +19,6 @@ Simonsohn, U., Simmons, J. P. and Nelson, L. D. (2020). Nature Human Behaviour 4
 
 from __future__ import annotations
 
-import html
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -157,5 +156,4 @@ def curve_html(summary: SensitivitySummary) -> str:
     if summary.curve is None:
         return ""
     shown = summary.curve.assign(significant=["yes" if v else "no" for v in summary.curve["significant"]])
-    return html_table(shown, html.escape(
-        f"Specification curve: {summary.n_specifications} specifications ranked by p-value"))
+    return html_table(shown, f"Specification curve: {summary.n_specifications} specifications ranked by p-value")

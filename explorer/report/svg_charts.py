@@ -15,13 +15,14 @@ without charts and says so.
 
 from __future__ import annotations
 
-import html
 import re
 from dataclasses import dataclass
 from types import SimpleNamespace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
+
+from ..engine.tables import esc
 
 if TYPE_CHECKING:
     from ..study.study import Study
@@ -46,8 +47,8 @@ class Figure:
 
     def html(self) -> str:
         if not self.svg:
-            return f"<p class='note'>{html.escape(self.why)}</p>"
-        cap = "".join(f"<div>{html.escape(line)}</div>" for line in self.caption)
+            return f"<p class='note'>{esc(self.why)}</p>"
+        cap = "".join(f"<div>{esc(line)}</div>" for line in self.caption)
         return f"<figure class='vx-chart'>{self.svg}<figcaption>{cap}</figcaption></figure>"
 
 

@@ -18,7 +18,6 @@ Welford, B. P. (1962). Technometrics 4(3), 419-420 (the downdate).
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -143,7 +142,7 @@ class CaseDeletionScan:
             f"{self.term} at alpha {self.alpha:g} (p with all rows = {fmt(self.base_pvalue, 4)})"
         )
         notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
-        return "<div>" + html_table(frame, html.escape(caption), notes) + "</div>"
+        return "<div>" + html_table(frame, caption, notes) + "</div>"
 
 
 def _pairwise_change(

@@ -33,7 +33,6 @@ Cook, R. D. and Weisberg, S. (1982). Residuals and Influence in Regression, ch. 
 
 from __future__ import annotations
 
-import html
 import itertools
 import math
 from dataclasses import dataclass, field
@@ -118,7 +117,7 @@ class FlipSearch:
         else:
             head = f"{self.target}: no set of rows within the search's reach makes the decision {wanted}"
         notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
-        return "<div>" + html_table(self.to_frame(), html.escape(head), notes) + "</div>"
+        return "<div>" + html_table(self.to_frame(), head, notes) + "</div>"
 
 
 class _Scorer:

@@ -26,7 +26,6 @@ Weisberg, S. (2005). Applied Linear Regression, 3rd ed. Wiley, ch. 9.
 from __future__ import annotations
 
 import dataclasses
-import html
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -116,7 +115,7 @@ class Influence:
         if self.disclosure is not None:
             notes += (self.disclosure.sentence(),)
         caption = f"Influence: {len(shown)} of {self.n} rows beyond a cut-off"
-        return "<div>" + html_table(shown, html.escape(caption), notes) + "</div>"
+        return "<div>" + html_table(shown, caption, notes) + "</div>"
 
 
 def influence_measures(

@@ -16,7 +16,6 @@ Welford, B. P. (1962). Technometrics 4(3), 419-420.
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -120,7 +119,7 @@ class RegroupScan:
                 f"{fmt(self.base_pvalue, 4)}): {len(self.merge_flips)} flip the decision at alpha {self.alpha:g}")
         cap2 = f"Moving one row to another level: {len(self.move_flips)} of {self.move_rows.size} moves flip the decision"
         notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
-        return ("<div>" + html_table(merges, html.escape(cap1)) + html_table(moves, html.escape(cap2), notes) + "</div>")
+        return ("<div>" + html_table(merges, cap1) + html_table(moves, cap2, notes) + "</div>")
 
 
 def regroup_scan(

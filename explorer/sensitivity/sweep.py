@@ -37,7 +37,6 @@ analysis. JASA 47, 583-621.
 
 from __future__ import annotations
 
-import html
 import itertools
 from collections.abc import Sequence
 from dataclasses import dataclass, field
@@ -129,7 +128,7 @@ class SweepResult:
         if self.disclosure is not None:
             notes.append(self.disclosure.sentence())
         shown = self.table.drop(columns=["rows left out"])
-        return "<div>" + html_table(shown, html.escape(cap), tuple(notes)) + "</div>"
+        return "<div>" + html_table(shown, cap, tuple(notes)) + "</div>"
 
 
 def _merge_codes(data: OnewayInput, merges: Sequence[Sequence[str]], chosen: tuple[int, ...]):  # type: ignore[no-untyped-def]

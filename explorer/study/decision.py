@@ -27,7 +27,6 @@ designs with several factors or blocks read the F tests of their terms (classic)
 
 from __future__ import annotations
 
-import html
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -38,7 +37,7 @@ import pandas as pd
 from ..engine.design import model_terms, term_name
 from ..engine.results import Results
 from ..engine.spec import TEST_LABELS
-from ..engine.tables import fmt, html_table
+from ..engine.tables import esc, fmt, html_table
 from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 
 __all__ = ["TEST_LABELS", "Decision", "TermVerdict", "decide", "interaction_verdict"]
@@ -153,8 +152,8 @@ class Decision:
 
     def _repr_html_(self) -> str:
         notes = ((self.caveat,) if self.caveat else ()) + self.notes
-        return ("<div class='vx-decision-value'>" + f"<div><b>{html.escape(self.sentence())}</b></div>"
-                + html_table(self.to_frame(), html.escape(f"Verdict on every term ({self.method})"), notes) + "</div>")
+        return ("<div class='vx-decision-value'>" + f"<div><b>{esc(self.sentence())}</b></div>"
+                + html_table(self.to_frame(), f"Verdict on every term ({self.method})", notes) + "</div>")
 
 
 def _significant(p: float | None, alpha: float) -> bool | None:

@@ -17,7 +17,6 @@ Chan, T. F., Golub, G. H. and LeVeque, R. J. (1983). The American Statistician 3
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass
 from itertools import combinations
 from typing import Any
@@ -58,7 +57,7 @@ class SetAsideScan:
         return self.table.copy()
 
     def _repr_html_(self) -> str:
-        caption = (f"Set-aside scan of {html.escape(self.term)} at alpha {self.alpha:g}: {len(self.flips)} of "
+        caption = (f"Set-aside scan of {esc(self.term)} at alpha {self.alpha:g}: {len(self.flips)} of "
                    f"{self.examined} alternatives flip the decision (now p = {fmt(self.current_pvalue, 4)})")
         return html_table(self.table, caption)
 
