@@ -204,3 +204,10 @@ def test_reasons_must_be_text():
     with pytest.raises(ex.EditError, match="reason must be text"):
         study.drop([0], reason=["not", "text"])  # type: ignore[arg-type]
     assert study.edits == ()
+
+
+def test_levels_with_superscript_digits_load():
+    """'²' is a digit to str.isdigit but not to int(): level ordering used to fail on it (found by the fuzzing)."""
+    study = ex.Study(pd.DataFrame({"y": [1.0, 2, 3, 4, 5, 6.5], "g": ["²", "²", "a1", "a1", "b٣", "b٣"]}),
+                     response="y", factors="g")
+    assert set(study.levels("g")) == {"²", "a1", "b٣"}

@@ -42,7 +42,7 @@ class SetAsideRow:
 
 
 def _natural_key(s: str) -> tuple[object, ...]:
-    return tuple(int(t) if t.isdigit() else t.lower() for t in re.split(r"(\d+)", s))
+    return tuple(int(t) if t.isdecimal() else t.lower() for t in re.split(r"(\d+)", s))
 
 
 def _level_order(col: pd.Series, labels: pd.Series) -> tuple[list[str], list[str]]:

@@ -8,18 +8,24 @@ File layout (schema 1)::
      "position": k, "searches": [...]}
 
 ``position`` is the undo cursor: edits after it were undone but are kept for redo.
+The published JSON Schema of each format and version ships in ``explorer/schemas``;
+:func:`read_study_file` checks a file against it before anything uses the file.
 """
 
 from __future__ import annotations
 
+import base64
+import binascii
 import json
+import stat
 from pathlib import Path
 from typing import Any
 
 from ..engine.dataset import Dataset, decode_digests, encode_digests
-from ..engine.edits import Edit, edit_from_dict
+from ..engine.edits import Edit, check_utc_time, edit_from_dict
 from ..engine.errors import ReplayError, preview
 from ..engine.spec import ModelSpec
+from .schema_check import SCHEMA_FILES, first_violation, load_schema
 
 FORMAT = "variance-explorer/study"
 SCHEMA = 1
@@ -44,22 +50,133 @@ def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position
     }
 
 
+#: A study file larger than this is refused before it is read (row ids and digests of ~20 million rows).
+MAX_STUDY_FILE_BYTES = 512 * 1024 * 1024
+#: Lists and objects nested deeper than this are refused (the schemas need 5 levels).
+MAX_DEPTH = 32
+
+
 def read_study_file(path: str | Path, format_marker: str = FORMAT) -> dict[str, Any]:
-    """The saved study at ``path`` as a dict; clear errors for a missing file, bad JSON or another format."""
+    """The saved study at ``path`` as a dict, checked against its shipped JSON Schema before use.
+
+    Every problem is a :class:`ReplayError` naming the file and, for content, the field
+    (``edits[2].reason: must be text (a string), not a whole number``): a missing file,
+    a folder or other non-file, an oversize file, bytes that are not UTF-8, invalid or
+    too deeply nested JSON, another format, a newer schema, and any break of the schema
+    (types, missing keys, negative counts, times that are not ISO 8601 UTC, digests
+    that are not base64 of whole 32-bit words, an undo position past the log).
+    """
     p = Path(path)
-    if not p.exists():
-        raise ReplayError(f"no saved study at {str(p)!r}")
+    name = f"study file {p.name!r}"
     try:
-        doc = json.loads(p.read_text(encoding="utf-8"))
+        info = p.stat()
+    except FileNotFoundError:
+        raise ReplayError(f"no saved study at {str(p)!r}") from None
+    except OSError as exc:
+        raise ReplayError(f"cannot read the study file {str(p)!r}: {exc.strerror or exc}") from None
+    if stat.S_ISDIR(info.st_mode):
+        raise ReplayError(f"{str(p)!r} is a folder; give the path of a study file (*.study.json)")
+    if not stat.S_ISREG(info.st_mode):
+        raise ReplayError(f"{str(p)!r} is not a regular file (a device, pipe or socket); give a study file")
+    if info.st_size > MAX_STUDY_FILE_BYTES:
+        raise ReplayError(f"{name} is {info.st_size / 2**20:.0f} MiB, more than the "
+                          f"{MAX_STUDY_FILE_BYTES // 2**20} MiB a study file may have; it is not a study file")
+    try:
+        with open(p, "rb") as fh:
+            raw = fh.read(MAX_STUDY_FILE_BYTES + 1)
+    except OSError as exc:
+        raise ReplayError(f"cannot read the study file {str(p)!r}: {exc.strerror or exc}") from None
+    if len(raw) > MAX_STUDY_FILE_BYTES:
+        raise ReplayError(f"{name} grew past {MAX_STUDY_FILE_BYTES // 2**20} MiB while it was read")
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise ReplayError(f"{name} is not UTF-8 text (byte {exc.start} is 0x{raw[exc.start]:02x}); "
+                          "it may be a binary file or another encoding") from None
+    doc = parse_study_json(text, name)
+    return check_study_doc(doc, format_marker, name)
+
+
+def _refuse_constant(token: str) -> Any:
+    raise ValueError(f"{token} is not a JSON number")
+
+
+def parse_study_json(text: str, name: str = "the study file") -> Any:
+    """JSON text to Python values; NaN/Infinity, bad syntax and deep nesting become ReplayError."""
+    try:
+        doc = json.loads(text, parse_constant=_refuse_constant)
     except json.JSONDecodeError as exc:
-        raise ReplayError(f"{p.name!r} is not valid JSON (line {exc.lineno}): {exc.msg}") from None
+        raise ReplayError(f"{name} is not valid JSON (line {exc.lineno}, column {exc.colno}): {exc.msg}") from None
+    except ValueError as exc:
+        raise ReplayError(f"{name} is not valid JSON: {exc}") from None
+    except RecursionError:
+        raise ReplayError(f"{name}: lists or objects are nested too deeply to be a study file") from None
+    where = _too_deep(doc)
+    if where is not None:
+        raise ReplayError(f"{name}: {where or 'the file'}: lists or objects nested more than {MAX_DEPTH} deep; "
+                          "a study file needs far fewer")
+    return doc
+
+
+def _too_deep(doc: Any) -> str | None:
+    """The path of the first value nested deeper than MAX_DEPTH, else None (iterative: no recursion).
+
+    Only containers are visited; paths are spelled out only once a value is found too deep.
+    """
+    stack: list[tuple[Any, int]] = [(doc, 0)]
+    while stack:
+        value, depth = stack.pop()
+        if depth > MAX_DEPTH:
+            return _path_to(doc, value)
+        children = value.values() if isinstance(value, dict) else value
+        stack.extend((v, depth + 1) for v in children if isinstance(v, (dict, list)))
+    return None
+
+
+def _path_to(doc: Any, target: Any) -> str:
+    """The path (``edits[0].rows[0]...``) from ``doc`` to the object ``target`` (by identity)."""
+    stack: list[tuple[Any, str]] = [(doc, "")]
+    while stack:
+        value, where = stack.pop()
+        if value is target:
+            return where
+        items = value.items() if isinstance(value, dict) else enumerate(value)
+        for k, v in items:
+            if isinstance(v, (dict, list)):
+                stack.append((v, f"{where}[{k}]" if isinstance(k, int) else (f"{where}.{k}" if where else str(k))))
+    return ""
+
+
+def check_study_doc(doc: Any, format_marker: str = FORMAT, name: str = "the study file") -> dict[str, Any]:
+    """``doc`` if it is a valid study of ``format_marker`` (schema, then the checks a schema cannot state)."""
     if not isinstance(doc, dict) or doc.get("format") != format_marker:
-        raise ReplayError(f"{p.name!r} is not a saved study of this kind (no format marker {format_marker!r})")
-    if int(doc.get("schema", 0)) > SCHEMA:
-        raise ReplayError(f"{p.name!r} uses schema {doc.get('schema')}, newer than this kit reads ({SCHEMA}); upgrade the kit")
-    for key in ("spec", "data", "edits"):
-        if key not in doc:
-            raise ReplayError(f"{p.name!r} has no {key!r} section")
+        raise ReplayError(f"{name} is not a saved study of this kind (no format marker {format_marker!r})")
+    version = doc.get("schema")
+    if isinstance(version, bool) or not isinstance(version, int) or version < 1:
+        raise ReplayError(f"{name}: schema: must be a whole number from 1, not {version!r}"[:300])
+    known = sorted(v for (f, v) in SCHEMA_FILES if f == format_marker)
+    if version > known[-1]:
+        raise ReplayError(f"{name} uses schema {version}, newer than this kit reads ({known[-1]}); upgrade the kit")
+    if version not in known:
+        raise ReplayError(f"{name} uses schema {version}, which this kit cannot read (it reads {known})")
+    base = load_schema(format_marker, version)["$id"]
+    problem = first_violation(doc, load_schema(format_marker, version), base)
+    if problem is not None:
+        raise ReplayError(f"{name}: {problem}")
+    position = doc.get("position", len(doc["edits"]))
+    if position > len(doc["edits"]):
+        raise ReplayError(f"{name}: position: {position} is past the end of the edit log ({len(doc['edits'])} edits)")
+    for i, edit in enumerate(doc["edits"]):
+        check_utc_time(edit["at"], f"{name}: edits[{i}].at")
+    check = doc["data"].get("row_check")
+    if check is not None:
+        try:
+            raw = base64.b64decode(check["digests"], validate=True)
+        except (binascii.Error, ValueError) as exc:
+            raise ReplayError(f"{name}: data.row_check.digests: not valid base64 ({exc})") from None
+        if len(raw) != 4 * len(check["ids"]):
+            raise ReplayError(f"{name}: data.row_check.digests: holds {len(raw)} bytes, not 4 for each of the "
+                              f"{len(check['ids'])} row ids")
     return doc
 
 

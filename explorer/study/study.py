@@ -29,7 +29,7 @@ from ..engine.table_checks import column_names
 from ..engine.view import DataView, initial_view
 from .decision import Decision, decide
 from .output_files import write_text_atomic
-from .persistence import describe_mismatch, edits_from_doc, read_study_file, study_to_dict
+from .persistence import check_study_doc, describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 from .planned import PlannedAnalyses, planned_from_doc
 
 if TYPE_CHECKING:
@@ -372,6 +372,8 @@ class Study(PlannedAnalyses):
 
     @classmethod
     def from_dict(cls, doc: dict[str, Any], data: pd.DataFrame | str | Path, *, allow_mismatch: bool = False) -> "Study":
+        """Replay a saved study given as a dict (checked against the study-file schema first)."""
+        check_study_doc(doc)
         spec = ModelSpec.from_dict(doc["spec"])
         dataset = build_dataset(data, spec.response, spec.columns, doc["data"].get("id_column"))
         problem = describe_mismatch(doc, dataset)

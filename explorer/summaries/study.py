@@ -40,7 +40,7 @@ from ..engine.results import Results
 from ..engine.spec import ModelSpec
 from ..engine.view import DataView
 from ..study.output_files import write_text_atomic
-from ..study.persistence import read_study_file
+from ..study.persistence import check_study_doc, read_study_file
 from ..study.study import Study, StudyEvent
 from .atoms import MOVE_PREFIX, AtomTable, downdate, level_order, merge_atoms
 from .edits import (
@@ -564,8 +564,7 @@ class SummaryStudy(Study):
         if not isinstance(doc, dict) or doc.get("format") != FORMAT:
             raise ReplayError(f"not a saved summary-backed study (no format marker {FORMAT!r}); "
                               "row studies load with explorer.Study.load")
-        if int(doc.get("schema", 0)) > SCHEMA:
-            raise ReplayError(f"the file uses schema {doc.get('schema')}, newer than this kit reads ({SCHEMA})")
+        check_study_doc(doc, FORMAT)
         spec = ModelSpec.from_dict(doc["spec"])
         sample = doc.get("sample", {})
         study = cls.__new__(cls)
