@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import secrets
 import sys
 import tempfile
 from collections.abc import Sequence
@@ -113,6 +114,10 @@ def build_parser() -> argparse.ArgumentParser:
     app = sub.add_parser("app", help="serve the explorer for a saved study as a web page (Voila on 127.0.0.1)")
     app.add_argument("study_file", help="study file written by study.save")
     app.add_argument("--data", required=True, help="the data file the study was made on")
+    app.add_argument("--idle-minutes", type=float, default=15.0, help="shut down the kernel of a page closed for "
+                     "this long (default 15)")
+    app.add_argument("--no-token", action="store_true", help="serve without the access token (anyone on this "
+                     "machine can then open the page and read the data)")
     _server_args(app)
     return parser
 
@@ -246,8 +251,8 @@ class _Stop(Exception):
     """Raised by the SIGTERM handler so the server is stopped and temporary files removed."""
 
 
-def _run(cmd: list[str], dry_run: bool, cwd: Path) -> int:
-    """Print ``cmd``; unless ``dry_run``, run it until it ends, Ctrl-C or SIGTERM (passed on to it)."""
+def _run(cmd: list[str], dry_run: bool, cwd: Path, env: dict[str, str] | None = None) -> int:
+    """Print ``cmd``; unless ``dry_run``, run it (with ``env``) until it ends, Ctrl-C or SIGTERM (passed on to it)."""
     import shlex
     import signal
     import subprocess
@@ -260,7 +265,7 @@ def _run(cmd: list[str], dry_run: bool, cwd: Path) -> int:
         raise _Stop
 
     previous = signal.signal(signal.SIGTERM, stop)
-    child = subprocess.Popen(cmd, cwd=cwd)
+    child = subprocess.Popen(cmd, cwd=cwd, env=env)
     try:
         return child.wait()
     except (KeyboardInterrupt, _Stop):
@@ -303,16 +308,26 @@ def _app(args: argparse.Namespace) -> int:
     except ExplorerError as exc:
         raise CommandError(EXIT_BAD_EDITS, _about(study_file, exc)) from None
     _need("voila", "widget")
+    from .app_server import TOKEN_ENV
+
     with tempfile.TemporaryDirectory(prefix="variance-explorer-app-") as tmp:
         page = Path(tmp) / "explorer.ipynb"
         if not args.dry_run:
             write_notebook(app_notebook(study_file.resolve(), data.resolve()), page)
-        cmd = [sys.executable, "-m", "voila", str(page), "--Voila.ip=127.0.0.1", f"--port={args.port or 8866}",
-               "--theme=light"]
+        port = args.port or 8866
+        cmd = [sys.executable, "-m", "explorer.app_server", str(page), "--Voila.ip=127.0.0.1", f"--port={port}",
+               "--theme=light", f"--MappingKernelManager.cull_idle_timeout={max(int(args.idle_minutes * 60), 1)}"]
         if args.no_browser:
             cmd.append("--no-browser")
         cmd += args.extra
-        return _run(cmd, args.dry_run, Path.cwd())
+        token = "" if args.no_token else secrets.token_urlsafe(32)
+        if not args.dry_run:
+            if token:
+                print(f"open http://127.0.0.1:{port}/?token={token} (if that port is taken, the server prints "
+                      "the address it uses); the token keeps other users of this machine out", flush=True)
+            else:
+                print("warning: no token: anyone on this machine can open the page and read the data", flush=True)
+        return _run(cmd, args.dry_run, Path.cwd(), env={**os.environ, TOKEN_ENV: token})
 
 
 COMMANDS = {"check": _check, "report": _report, "code": _code, "demo": _demo, "app": _app}

@@ -7,6 +7,7 @@ and saves the reviewed log. Drives Debian's chromium with Playwright (no browser
 from __future__ import annotations
 
 import os
+import re
 import signal
 import socket
 import subprocess
@@ -63,7 +64,8 @@ def served(tmp_path_factory):
                 os.killpg(proc.pid, signal.SIGKILL)
                 raise RuntimeError((root / "voila.log").read_text()) from None
             time.sleep(0.3)
-    yield base, saved, study
+    token = re.search(r"\?token=([A-Za-z0-9_-]+)", (root / "voila.log").read_text()).group(1)
+    yield f"{base}/?token={token}", saved, study
     proc.terminate()  # the command passes SIGTERM on to Voila and removes its page
     try:
         proc.wait(timeout=30)

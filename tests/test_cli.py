@@ -95,7 +95,7 @@ def test_demo_dry_run_prints_a_loopback_command(capsys):
 
 def test_app_dry_run(capsys, saved):
     code, out, _ = run(capsys, "app", str(saved), "--data", DEMO, "--dry-run", "--no-browser")
-    assert code == 0 and "-m voila" in out and "--Voila.ip=127.0.0.1" in out
+    assert code == 0 and "-m explorer.app_server" in out and "--Voila.ip=127.0.0.1" in out
 
 
 def test_module_and_script_exit_codes(tmp_path):
