@@ -29,6 +29,7 @@ RANKS: dict[str, int] = {
     "widget": 5,
     "app": 6,
     "cli": 6,
+    "app_server": 5,  # Voila with the app's locks; imports no kit module, the cli starts it
     "notebooks": 5,  # builds notebooks whose cells import the kit (as text, not as imports)
     "_version": 0,  # the version string, readable by every layer
     "__main__": 7,
