@@ -52,7 +52,7 @@ class SchemaViolation(Exception):
 
 
 def _read(name: str) -> dict[str, Any]:
-    return json.loads(resources.files("explorer").joinpath("schemas", name).read_text(encoding="utf-8"))
+    return json.loads(resources.files("explorer").joinpath("schemas").joinpath(name).read_text(encoding="utf-8"))
 
 
 @lru_cache(maxsize=None)
