@@ -337,3 +337,18 @@ def test_no_raw_errors_from_any_broken_file_through_the_command_line(saved_doc, 
                           text=True, timeout=300, env={**os.environ, "PYTHONPATH": str(ROOT)})
     assert proc.returncode == 0 and "Traceback" not in proc.stderr, proc.stderr[-2000:]
     assert json.loads(proc.stdout.strip().splitlines()[-1]) == [EXIT_BAD_EDITS] * len(paths)
+
+
+@pytest.mark.parametrize("planned,field", [([{"kind": 5}], r"planned\[0\]\.kind"),
+                                           ([{"kind": "contrast", "code": "x"}], r"planned\[0\]\.code"),
+                                           ([{"kind": "contrast", "at": "soon"}], r"planned\[0\]\.at"),
+                                           ({"kind": "contrast"}, "planned")])
+def test_planned_analyses_are_checked(saved_doc, tmp_path, planned, field):
+    doc = copy.deepcopy(saved_doc)
+    doc["planned"] = planned
+    path = tmp_path / "p.study.json"
+    path.write_text(json.dumps(doc))
+    with pytest.raises(ReplayError, match=field):
+        ex.Study.load(path, DEMO)
+    schema = load_schema(FORMAT, 1)
+    assert first_violation(doc, schema, schema["$id"]) is not None and not _oracle().is_valid(doc)

@@ -9,9 +9,9 @@ add to the study's count of alternatives).
 
 from __future__ import annotations
 
-import html
 from typing import TYPE_CHECKING, Any
 
+from ..engine.tables import esc
 from .extras import Part, as_html, as_text
 
 if TYPE_CHECKING:
@@ -59,7 +59,7 @@ def strata_part(study: "Study") -> Part:
         return Part(title=TITLE, note=f"could not be computed on this study: {exc}")
     body_html, body_text = [], []
     for heading, obj in pieces:
-        body_html.append(f"<h3>{html.escape(heading)}</h3>" + (as_html(obj) if not isinstance(obj, str)
-                                                               else f"<p>{html.escape(obj)}</p>"))
+        body_html.append(f"<h3>{esc(heading)}</h3>" + (as_html(obj) if not isinstance(obj, str)
+                                                               else f"<p>{esc(obj)}</p>"))
         body_text.append(f"{heading}\n{as_text(obj) if not isinstance(obj, str) else obj}")
     return Part(title=TITLE, html="".join(body_html), text="\n\n".join(body_text))

@@ -24,6 +24,7 @@ from datetime import datetime, timezone
 from typing import TYPE_CHECKING, Any
 
 from ..engine.errors import ExplorerError, ReplayError
+from ..engine.tables import esc
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -210,12 +211,10 @@ class PlannedOutcome:
     problem: str | None = None
 
     def _repr_html_(self) -> str:
-        import html
-
-        head = f"<h4>{html.escape(self.request.label())}</h4>"
+        head = f"<h4>{esc(self.request.label())}</h4>"
         if self.problem is not None:
-            return head + f"<p class='note'>Not available on this view: {html.escape(self.problem)}</p>"
-        body = self.value._repr_html_() if hasattr(self.value, "_repr_html_") else html.escape(str(self.value))
+            return head + f"<p class='note'>Not available on this view: {esc(self.problem)}</p>"
+        body = self.value._repr_html_() if hasattr(self.value, "_repr_html_") else esc(str(self.value))
         return head + body
 
     def to_text(self) -> str:
