@@ -57,7 +57,7 @@ class SetAsideScan:
         return self.table.copy()
 
     def _repr_html_(self) -> str:
-        caption = (f"Set-aside scan of {esc(self.term)} at alpha {self.alpha:g}: {len(self.flips)} of "
+        caption = (f"Set-aside scan of {self.term} at alpha {self.alpha:g}: {len(self.flips)} of "
                    f"{self.examined} alternatives flip the decision (now p = {fmt(self.current_pvalue, 4)})")
         return html_table(self.table, caption)
 
