@@ -191,7 +191,8 @@ def first_violation(value: Any, schema: dict[str, Any] | bool, base: str, where:
         if "maxLength" in schema and len(value) > schema["maxLength"]:
             return SchemaViolation(where, f"must have at most {schema['maxLength']} characters")
         if "pattern" in schema and not re.search(schema["pattern"], value):
-            return SchemaViolation(where, f"{value[:60]!r} does not have the expected form")
+            wanted = f"is not {schema['title']}" if "title" in schema else "does not have the expected form"
+            return SchemaViolation(where, f"{value[:60]!r} {wanted}")
     if _is_type(value, "number"):
         if "minimum" in schema and value < schema["minimum"]:
             return SchemaViolation(where, f"must be at least {schema['minimum']}, not {value!r}")
