@@ -75,8 +75,10 @@ def id_labels(frame: Any, past: Any, score: Any, x: str, y: str, *, what: str, l
 
 def response_title(spec: Any, what: str = "") -> str:
     """Axis title of the response with its units: ``thickness_um (µm)``, ``residual (µm)``."""
+    from explorer.engine.transforms import transform_label
+
     units = getattr(spec, "units", "") or ""
-    name = what or spec.response
+    name = what or transform_label(getattr(spec, "transform", "none"), spec.response)
     return f"{name} ({units})" if units else name
 
 

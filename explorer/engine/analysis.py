@@ -11,19 +11,29 @@ from .oneway import fit_oneway
 from .response_unit import unit_note
 from .results import Results
 from .spec import ModelSpec
+from .transforms import transform_label, with_transform
 from .view import DataView
 
 __all__ = ["analyze"]
 
 
 def analyze(dataset: Dataset, view: DataView, spec: ModelSpec) -> Results:
-    """Fit ``spec`` on the kept rows of ``view``; raise :class:`DesignError` if it cannot be fitted."""
+    """Fit ``spec`` on the kept rows of ``view``; raise :class:`DesignError` if it cannot be fitted.
+
+    The response is ``spec.transform`` of the measured one (:mod:`.transforms`; the same
+    dataset when it holds that transform already).
+    """
+    dataset = with_transform(dataset, spec.transform)
     positions = np.flatnonzero(view.kept)
     dropped = view.dropped_ids(dataset)
     y = dataset.y[positions]
     results = _fit(dataset, view, spec, positions, dropped, y)
     if dataset.unit_exponent:
         results = replace(results, notes=results.notes + (unit_note(spec.response, dataset.unit_exponent),))
+    if spec.transform != "none":
+        label = transform_label(spec.transform, spec.response)
+        results = replace(results, notes=(f"Analysed on {label}: means, differences, intervals and residuals are on "
+                                          "that scale.",) + results.notes)
     return results
 
 

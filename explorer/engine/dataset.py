@@ -107,6 +107,9 @@ class Dataset:
     id_column: str | None = None
     notes: tuple[str, ...] = field(default=())
     unit_exponent: int = 0
+    #: The transform the response holds (see :mod:`.transforms`), and the dataset as measured when not 'none'.
+    transform: str | float = "none"
+    untransformed: Dataset | None = field(default=None, repr=False)
     _positions: dict[RowId, int] = field(default_factory=dict, repr=False)
 
     @property

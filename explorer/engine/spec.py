@@ -10,6 +10,7 @@ import numpy as np
 
 from .errors import ExplorerError
 from .table_checks import column_names
+from .transforms import check_transform
 
 __all__ = ["ModelSpec", "ONE_FACTOR_TESTS", "OVERALL_TESTS", "TEST_LABELS", "alpha_or", "check_alpha", "parse_term"]
 
@@ -123,6 +124,7 @@ class ModelSpec:
     within: tuple[str, ...] = field(default=())
     variance_method: VarianceMethod = "auto"
     test: str = "classic"
+    transform: str | float = "none"
 
     def __post_init__(self) -> None:
         setf = object.__setattr__
@@ -156,6 +158,7 @@ class ModelSpec:
             self._check_terms(parsed)
             setf(self, "terms", parsed)
         _check_test(self)
+        setf(self, "transform", check_transform(self.transform))
 
     # ----------------------------------------------------------------- validation
     def _check_roles(self) -> None:
@@ -295,6 +298,8 @@ class ModelSpec:
             d["variance_method"] = self.variance_method
         if self.test != "classic":
             d["test"] = self.test
+        if self.transform != "none":
+            d["transform"] = self.transform
         return d
 
     @classmethod
@@ -314,6 +319,7 @@ class ModelSpec:
             subject=d.get("subject"),
             within=tuple(d.get("within", ())),
             test=d.get("test", "classic"),
+            transform=d.get("transform", "none"),
             variance_method=d.get("variance_method", "auto"),
         )
 

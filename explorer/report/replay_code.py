@@ -99,6 +99,8 @@ def _spec_args(study: "Study") -> str:
         args.append(f"alpha={_lit(float(spec.alpha))}")
     if spec.test != "classic":
         args.append(f"test={_lit(spec.test)}")
+    if spec.transform != "none":
+        args.append(f"transform={_lit(spec.transform)}")
     if study.dataset.id_column is not None:
         args.append(f"id_column={_lit(study.dataset.id_column)}")
     args.extend(_role_args(spec))

@@ -11,8 +11,10 @@ can be drawn as a specification curve (Simonsohn et al. 2020). The choices cross
   study's own analysis), then the classic F, Welch's F for unequal variances (Welch
   1951) and the rank-based Kruskal-Wallis test (Kruskal and Wallis 1952); any of the
   overall tests may be listed (:data:`.spec.OVERALL_TESTS`);
-* **transform** of the response: none, or the natural log (only when every value is
-  positive; otherwise the log specifications are left out and a note says so);
+* **transform** of the response: the study's own (first; see ``study.set_transform``), the
+  response as measured and the natural log by default; the square root and Box-Cox powers
+  when listed. A transform the response cannot take (the log of zero) is left out with a
+  note;
 * **merges**: every subset of the level merges the user marks as plausible.
 
 Every combination is computed; combinations that are the same analysis (a rank test on
@@ -45,11 +47,12 @@ import numpy as np
 import pandas as pd
 
 from ..engine.disclosure import Disclosure
-from ..engine.errors import DesignError, ExplorerError, closest_names
+from ..engine.errors import DataError, DesignError, ExplorerError, closest_names
 from ..engine.oneway import fit_oneway
 from ..engine.results import Results
 from ..engine.spec import OVERALL_TESTS, alpha_or
 from ..engine.tables import fmt, html_table
+from ..engine.transforms import NAMED, check_transform, with_transform
 from ..inference.omnibus import overall_test
 from ..inference.outliers import bonferroni_outlier_test
 from .alternatives import OnewayInput, oneway_input
@@ -72,8 +75,10 @@ OUTLIER_RULES = {
 TESTS = dict(OVERALL_TESTS)
 #: Tests swept by default after the study's own.
 DEFAULT_TESTS = ("classic", "welch", "kruskal")
-#: Response transforms: name -> plain description.
-TRANSFORMS = {"none": "response as measured", "log": "natural log of the response"}
+#: Response transforms by name: name -> plain description (a number is a Box-Cox power).
+TRANSFORMS = NAMED
+#: Transforms swept besides the study's own when none are listed.
+DEFAULT_TRANSFORMS = ("none", "log")
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -192,19 +197,45 @@ def _check_options(name: str, chosen: Sequence[str], known: dict[str, str]) -> t
     return chosen
 
 
-def _responses(y: np.ndarray, offset: float, transforms: Sequence[str], notes: list[str]) -> dict[str, tuple[np.ndarray, float]]:
-    """The response on the shifted scale for each transform (log only when every value is positive)."""
-    y_orig = y + offset
+def transform_name(t: object) -> str:
+    """The sweep's name of a transform: 'none', 'log', 'sqrt' or 'power 0.37' (a Box-Cox power)."""
+    return t if isinstance(t, str) else f"power {float(t):g}"  # type: ignore[arg-type]
+
+
+def _check_transforms(transforms: Sequence[object] | None, current: object) -> tuple[object, ...]:
+    """Canonical transforms (the study's own first by default), each once."""
+    if transforms is None:
+        transforms = (current, *DEFAULT_TRANSFORMS)
+    if isinstance(transforms, str) or not len(transforms):
+        raise ExplorerError(f"transforms must be a non-empty list from {list(TRANSFORMS)} or Box-Cox powers; "
+                            f"got {transforms!r}")
+    out = []
+    for t in transforms:
+        try:
+            c = check_transform(t)
+        except ExplorerError as exc:
+            raise ExplorerError(f"transforms: {exc}") from None
+        if c not in out:
+            out.append(c)
+    return tuple(out)
+
+
+def _responses(dataset: object, positions: np.ndarray, transforms: Sequence[object], notes: list[str]
+               ) -> dict[str, tuple[np.ndarray, float]]:
+    """The response of the rows at ``positions`` on the shifted scale for each transform.
+
+    Each transform starts from the values as measured (the study's own transform is the
+    study's dataset as it is, bit for one bit); one the response cannot take (the log of
+    zero) is left out with a note.
+    """
     out: dict[str, tuple[np.ndarray, float]] = {}
     for t in transforms:
-        if t == "none":
-            out[t] = (y, offset)
-        elif np.all(y_orig > 0):
-            ly = np.log(y_orig)
-            off = float(np.median(ly)) if abs(float(np.median(ly))) >= 1 else 0.0
-            out[t] = (ly - off, off)
-        else:
-            notes.append("Log transform left out: the response has values of zero or below.")
+        try:
+            ds = with_transform(dataset, t)  # type: ignore[arg-type]
+        except DataError as exc:
+            notes.append(f"{transform_name(t).capitalize()} transform left out: {exc}")
+            continue
+        out[transform_name(t)] = (np.asarray(ds.y)[positions], float(ds.offset))
     return out
 
 
@@ -223,7 +254,7 @@ def _outlier_keep(res: Results, rule: str, alpha: float, scale: float, row_ids: 
 def _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes):  # type: ignore[no-untyped-def]
     data = oneway_input(study, "the robustness sweep")
     merge_list = _check_merges(data, merges)
-    responses = _responses(data.y, data.offset, transforms, notes)
+    responses = _responses(study.dataset, data.positions, transforms, notes)
     subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
     spec = study.spec
     rows = []
@@ -273,7 +304,7 @@ def _factorial_rows(study, term, outlier_rules, transforms, merges, a, notes):  
     kept_pos = np.flatnonzero(view.kept)
     present = tuple(lv for i, lv in enumerate(view.levels[factor]) if np.any(view.codes[factor][kept_pos] == i))
     merge_list = _check_merge_names(factor, present, merges)
-    all_resp = _responses(np.asarray(dataset.y), float(dataset.offset), transforms, notes)
+    all_resp = _responses(dataset, np.arange(dataset.n), transforms, notes)
     subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
     rows = []
     for t, (yt, off) in all_resp.items():
@@ -334,7 +365,7 @@ def robustness_sweep(
     term: str | None = None,
     outlier_rules: Sequence[str] = tuple(OUTLIER_RULES),
     tests: Sequence[str] | None = None,
-    transforms: Sequence[str] = tuple(TRANSFORMS),
+    transforms: Sequence[object] | None = None,
     merges: Sequence[Sequence[str]] = (),
     alpha: float | None = None,
     record: bool = True,
@@ -360,7 +391,7 @@ def robustness_sweep(
     if tests is None:
         tests = tuple(dict.fromkeys((spec.test, *DEFAULT_TESTS)))
     tests = _check_options("tests", tests, TESTS)
-    transforms = _check_options("transforms", transforms, TRANSFORMS)
+    transforms = _check_transforms(transforms, spec.transform)
     notes: list[str] = []
     refuse_mixed(study, "robustness sweep")
     if spec.is_oneway:

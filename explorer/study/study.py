@@ -26,6 +26,7 @@ from ..engine.moves import MovedRow, moved_rows
 from ..engine.results import Results
 from ..engine.spec import ModelSpec
 from ..engine.table_checks import column_names
+from ..engine.transforms import with_transform
 from ..engine.view import DataView, initial_view
 from .decision import Decision, decide
 from .output_files import write_text_atomic
@@ -104,6 +105,7 @@ class Study(PlannedAnalyses):
         subject: str | None = None,
         within: str | Sequence[str] = (),
         variance_method: str = "auto",
+        transform: str | float = "none",
     ) -> None:
         factors_t = column_names(factors, "factors")
         blocks_t = column_names(blocks, "blocks") if isinstance(blocks, str) or blocks else ()
@@ -112,12 +114,12 @@ class Study(PlannedAnalyses):
                          terms=None if terms is None else tuple(terms),  # type: ignore[arg-type]
                          max_order=max_order, random=random, nested=nested or (),  # type: ignore[arg-type]
                          subject=subject, within=within,  # type: ignore[arg-type]
-                         variance_method=variance_method, test=test)  # type: ignore[arg-type]
+                         variance_method=variance_method, test=test, transform=transform)  # type: ignore[arg-type]
         self._init(build_dataset(data, response, spec.columns, id_column), spec,
                    data_source=data if isinstance(data, (str, Path)) else None)
 
     def _init(self, dataset: Dataset, spec: ModelSpec, data_source: str | Path | None = None) -> None:
-        self.dataset = dataset
+        self.dataset = with_transform(dataset, spec.transform)  # the response as the model reads it
         self.spec = spec
         self.data_source = data_source  # the file the data came from, for replay code
         self._read_files: list[Path] = [Path(data_source).resolve()] if data_source is not None else []
@@ -202,6 +204,36 @@ class Study(PlannedAnalyses):
         self._record_choice("overall test", old, new_spec.test)
         self._emit("spec", None)
         return self.decision
+
+    def set_transform(self, transform: str | float, *, reason: str = "") -> Results:
+        """Analyse another transform of the response: 'none', 'log', 'sqrt' or a Box-Cox power (a number).
+
+        Recorded as a specification choice (it counts as an alternative examined, like every
+        other change of the model; see :meth:`box_cox` for the evidence on a power). The
+        edits stay in effect. A response the transform cannot take (zero or negative values
+        for the log) is refused and the study is unchanged.
+        """
+        new_spec = replace(self.spec, transform=transform)
+        if new_spec.transform == self.spec.transform:
+            return self.results
+        dataset = with_transform(self.dataset, new_spec.transform)
+        try:
+            analyze(dataset, self.view, new_spec)
+        except DesignError as exc:
+            raise EditError(f"transform refused ({new_spec.transform!r}): {exc}") from None
+        old = self.spec.transform
+        self.dataset, self.spec = dataset, new_spec
+        self._results = {}
+        self.__dict__["_decisions"] = {}
+        self._record_choice("transform", old, new_spec.transform)
+        self._emit("spec", None)
+        return self.results
+
+    def box_cox(self, *, lambdas: Sequence[float] | None = None, record: bool = True) -> Any:
+        """Box-Cox profile likelihood of the power of the response under this model, with its interval
+        (see :func:`explorer.inference.box_cox.box_cox`); kept with the planned analyses."""
+        return self._ask("box_cox", None, {"lambdas": None if lambdas is None else [float(v) for v in lambdas]},
+                         record)
 
     def _record_choice(self, what: str, old: object, new: object) -> None:
         """Count a specification choice as one alternative analysis examined (kept in the study file)."""

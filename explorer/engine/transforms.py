@@ -1,0 +1,143 @@
+"""Transforms of the response: the log, the square root and Box-Cox powers, as a model choice.
+
+A transform is part of the model specification (``ModelSpec.transform``): ``"none"``,
+``"log"`` (natural log), ``"sqrt"`` or a number lambda, the Box-Cox power
+``(y^lambda - 1) / lambda`` (Box and Cox 1964). A power of 0 is the log and a power of 1
+a shift of the response, so they are written ``"log"`` and ``"none"`` (one name for one
+analysis). The analysis then runs on the transformed response: every table, test, scan
+and chart of the study reads it, and the study's dataset says which transform it holds.
+
+The log and Box-Cox powers need every usable value above zero, the square root every
+value at zero or above; a response that breaks this is refused with the rows named (the
+check covers every usable row, so no later edit can bring back a value the transform
+cannot take).
+
+References
+----------
+Box, G. E. P. and Cox, D. R. (1964). An analysis of transformations. JRSS B 26, 211-252.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import weakref
+from numbers import Real
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from .errors import DataError, ExplorerError, preview
+
+if TYPE_CHECKING:
+    from .dataset import Dataset
+
+__all__ = ["NAMED", "Transform", "check_transform", "inverse", "transform_label", "transform_values", "with_transform"]
+
+Transform = Any  # "none" | "log" | "sqrt" | float (a Box-Cox power)
+
+#: Named transforms: name -> plain description.
+NAMED = {"none": "response as measured", "log": "natural log of the response", "sqrt": "square root of the response"}
+
+
+def check_transform(value: Any) -> str | float:
+    """The transform in its one written form; a clear error for anything else."""
+    if isinstance(value, str):
+        v = value.strip().lower()
+        if v in NAMED:
+            return v
+        raise ExplorerError(f"transform must be one of {list(NAMED)} or a Box-Cox power (a number), not {value!r}")
+    if isinstance(value, bool) or not isinstance(value, (Real, np.integer, np.floating)):
+        raise ExplorerError(f"transform must be one of {list(NAMED)} or a Box-Cox power (a number), not {value!r}")
+    lam = float(value)
+    if not math.isfinite(lam) or abs(lam) > 10:
+        raise ExplorerError(f"a Box-Cox power must be a finite number between -10 and 10, not {value!r}")
+    if lam == 0:
+        return "log"
+    if lam == 1:
+        return "none"
+    return lam
+
+
+def transform_label(transform: Transform, response: str) -> str:
+    """``log(thickness)``, ``sqrt(thickness)``, ``Box-Cox 0.37 of thickness`` or the name itself."""
+    if transform == "none":
+        return response
+    if transform in ("log", "sqrt"):
+        return f"{transform}({response})"
+    return f"Box-Cox {float(transform):g} of {response}"
+
+
+def transform_values(y: np.ndarray, transform: Transform, response: str = "the response",
+                     row_ids: np.ndarray | None = None) -> np.ndarray:
+    """The transformed values; :class:`DataError` naming the rows a transform cannot take."""
+    y = np.asarray(y, dtype=np.float64)
+    if transform == "none":
+        return y
+    if transform == "sqrt":
+        bad = ~(y >= 0)
+        need = "at zero or above"
+    else:
+        bad = ~(y > 0)
+        need = "above zero"
+    if np.any(bad):
+        where = np.flatnonzero(bad)
+        ids = row_ids[where].tolist() if row_ids is not None else where.tolist()
+        name = "the log" if transform == "log" else "the square root" if transform == "sqrt" else "a Box-Cox power"
+        raise DataError(
+            f"{name} needs every value of {response!r} {need}; {where.size} row(s) are not (rows {preview(ids)}, "
+            f"smallest {float(np.min(y)):.6g}). Keep the response as measured, or use a rank or trimmed-means test"
+        )
+    if transform == "log":
+        return np.log(y)
+    if transform == "sqrt":
+        return np.sqrt(y)
+    lam = float(transform)
+    return np.expm1(lam * np.log(y)) / lam
+
+
+def inverse(t: np.ndarray, transform: Transform) -> np.ndarray:
+    """The response as measured from transformed values (to rounding)."""
+    t = np.asarray(t, dtype=np.float64)
+    if transform == "none":
+        return t
+    if transform == "log":
+        return np.exp(t)
+    if transform == "sqrt":
+        return t * t
+    lam = float(transform)
+    return np.exp(np.log1p(lam * t) / lam)
+
+
+_CACHE: weakref.WeakKeyDictionary[Any, dict[Any, Any]] = weakref.WeakKeyDictionary()
+
+
+def with_transform(dataset: Dataset, transform: Transform) -> Dataset:
+    """The dataset whose response is ``transform`` of the measured one (the same dataset for 'none').
+
+    The measured dataset is kept in ``untransformed``, so asking for another transform
+    (or none) always starts from the values as measured. Memoised per dataset.
+    """
+    transform = check_transform(transform)
+    base = dataset.untransformed if dataset.untransformed is not None else dataset
+    if transform == getattr(dataset, "transform", "none"):
+        return dataset
+    if transform == "none":
+        return base
+    per = _CACHE.setdefault(base, {})
+    hit = per.get(transform)
+    if hit is not None:
+        return hit  # type: ignore[no-any-return]
+    measured = base.y_original * (2.0 ** base.unit_exponent)
+    t = transform_values(measured, transform, base.response, base.row_ids)
+    if not np.all(np.isfinite(t)):
+        raise DataError(f"{transform_label(transform, base.response)} is not finite for some rows "
+                        "(values too large for the power); choose another transform")
+    med = float(np.median(t)) if t.size else 0.0
+    offset = float(np.float32(med)) if abs(med) >= 1 else 0.0
+    y = t - offset
+    y.setflags(write=False)
+    out = dataclasses.replace(base, y=y, offset=offset, offset_text=repr(offset), unit_exponent=0,
+                              transform=transform, untransformed=base)
+    per[transform] = out
+    return out
