@@ -51,6 +51,10 @@ def _fit(dataset: Dataset, view: DataView, spec: ModelSpec, positions: np.ndarra
             spec=spec,
             dropped=dropped,
         )
+    if spec.covariates:
+        from .covariate_fit import fit_with_covariates  # least squares on the rows
+
+        return fit_with_covariates(dataset, view, spec, positions=positions, dropped=dropped)
     from .factorial import fit_factorial  # the general least-squares engine
 
     return fit_factorial(dataset, view, spec, positions=positions, dropped=dropped)

@@ -110,6 +110,8 @@ class Dataset:
     #: The transform the response holds (see :mod:`.transforms`), and the dataset as measured when not 'none'.
     transform: str | float = "none"
     untransformed: Dataset | None = field(default=None, repr=False)
+    #: Numeric covariates of the usable rows (read-only float64), by column name.
+    covariates: Mapping[str, np.ndarray] = field(default_factory=dict)
     _positions: dict[RowId, int] = field(default_factory=dict, repr=False)
 
     @property
@@ -220,11 +222,13 @@ def build_dataset(
     response: str,
     factors: Sequence[str],
     id_column: str | None = None,
+    covariates: Sequence[str] = (),
 ) -> Dataset:
     """Copy and validate the table; see :class:`Dataset`.
 
     ``id_column`` names a column of unique row labels (panel, sample or plot ids) to use
-    as row ids instead of the index.
+    as row ids instead of the index. ``covariates`` are numeric columns measured on each
+    row (analysis of covariance); a row without a value is set aside with the reason.
     """
     response = column_names(response, "response")[0]
     factors = column_names(factors, "factors")
@@ -287,11 +291,15 @@ def build_dataset(
             "replace them with real measurements or drop those rows before loading"
         )
 
-    # Rows with a missing response or factor value are set aside with a reason.
+    # Rows with a missing response, factor or covariate value are set aside with a reason.
     missing_y = np.isnan(yv)
     reasons: dict[int, list[str]] = {}
     for i in np.flatnonzero(missing_y):
         reasons.setdefault(int(i), []).append(f"missing {response}")
+    cov_values = _covariate_values(frame, covariates, response, factors, id_column, ids)
+    for c, v in cov_values.items():
+        for i in np.flatnonzero(np.isnan(v)):
+            reasons.setdefault(int(i), []).append(f"missing {c}")
     for f in factors:
         fcol = frame[f]
         for i in np.flatnonzero(fcol.isna().to_numpy()):
@@ -336,11 +344,19 @@ def build_dataset(
     row_ids.setflags(write=False)
     hashed = pd.util.hash_pandas_object(
         pd.DataFrame(
-            {"id": [str(i) for i in ids.tolist()], "y": yv, **{f: frame[f].astype(str).to_numpy() for f in factors}}
+            {"id": [str(i) for i in ids.tolist()], "y": yv, **{f: frame[f].astype(str).to_numpy() for f in factors},
+             **{f"covariate {c}": v for c, v in cov_values.items()}}
         ),
         index=False,
     ).to_numpy()
     head = f"{response}|{'|'.join(factors)}|{len(frame)}".encode()
+    if cov_values:  # files of studies without covariates keep their fingerprints
+        head += f"|covariates {'|'.join(cov_values)}".encode()
+    kept_cov = {}
+    for c, v in cov_values.items():
+        kv = np.ascontiguousarray(v[usable])
+        kv.setflags(write=False)
+        kept_cov[c] = kv
     fingerprint = hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
     return Dataset(
         table=frame,
@@ -361,7 +377,40 @@ def build_dataset(
         id_column=id_column,
         notes=tuple(notes),
         unit_exponent=unit,
+        covariates=kept_cov,
     )
+
+
+def _covariate_values(frame: pd.DataFrame, covariates: Sequence[str], response: str, factors: Sequence[str],
+                      id_column: str | None, ids: np.ndarray) -> dict[str, np.ndarray]:
+    """Each covariate as float64 over all rows (NaN where missing); clear errors for unusable columns."""
+    out: dict[str, np.ndarray] = {}
+    names = column_names(covariates, "covariates") if isinstance(covariates, str) or covariates else ()
+    for c in names:
+        if c not in frame.columns:
+            near = closest_names(c, [str(x) for x in frame.columns])
+            hint = f" Did you mean {', '.join(repr(n) for n in near)}?" if near else ""
+            raise ColumnError(f"covariate column {c!r} is not in the table.{hint}")
+        if c == response or c in factors or c == id_column:
+            raise ColumnError(f"column {c!r} cannot be both a covariate and the response, a factor or the row id")
+        if c in out:
+            raise ColumnError(f"covariate {c!r} is named twice")
+        col = frame[c]
+        if pd.api.types.is_bool_dtype(col.dtype) or isinstance(col.dtype, pd.CategoricalDtype):
+            raise DataError(f"covariate {c!r} is not a number column ({col.dtype}); a covariate is a quantity measured "
+                            "on each row (a grouping belongs in factors= or blocks=)")
+        numeric = pd.to_numeric(col, errors="coerce")
+        bad = numeric.isna() & col.notna()
+        if bad.any():
+            bad_ids = ids[np.flatnonzero(bad.to_numpy())].tolist()
+            shown = [str(v) for v in col[bad].head(3)]
+            raise DataError(f"covariate {c!r} has non-numeric values in rows {preview(bad_ids)} (e.g. {preview(shown, 3)})"
+                            f"; a covariate is a number measured on each row.{decimal_comma_hint(shown)}")
+        v = numeric.to_numpy(dtype=np.float64, na_value=np.nan)
+        if np.isinf(v).any():
+            raise DataError(f"covariate {c!r} has infinite values in rows {preview(ids[np.isinf(v)].tolist())}")
+        out[c] = v
+    return out
 
 
 def _in_safe_unit(y: np.ndarray, offset: float, raw: np.ndarray) -> tuple[np.ndarray, float, int]:

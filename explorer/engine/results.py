@@ -19,6 +19,7 @@ if TYPE_CHECKING:  # multi-factor result parts (see factorial.py)
     from .aliasing import AliasedTerm
     from .blocking import BlockingEfficiency
     from .cells import CellTable
+    from .covariate_fit import CovariateSummary
     from .ems import ExpectedMeanSquares
     from .marginal_means import MarginalMeans
     from .term_effects import TermEffects
@@ -152,6 +153,13 @@ class Results:
     expected_mean_squares: "ExpectedMeanSquares | None" = None  # E(MS) of each row of the spec's type
     variance_components: "VarianceComponents | None" = None  # random terms and residual: estimates, intervals, shares
     aliased: "tuple[AliasedTerm, ...]" = ()  # terms left out because the cells cannot separate them
+    # Analysis of covariance (covariate_fit.py): slopes, the means adjusted to, the homogeneity-of-slopes check.
+    covariates: "CovariateSummary | None" = None
+
+    @property
+    def covariate_values(self) -> Mapping[str, np.ndarray] | None:
+        """Each covariate's values of the kept rows in ``fit`` order (``None`` without covariates)."""
+        return None if self.covariates is None else self.covariates.values
 
     def compare_means(self, factor: str | None = None, confidence: float | None = None) -> Any:
         """Tukey-Kramer comparisons of the marginal (least-squares) means of ``factor`` (default the first)."""
@@ -193,7 +201,7 @@ class Results:
         )
         for table in self.levels.values():
             parts.append(table._repr_html_())
-        extras: list[Any] = [*self.marginal_means.values(), self.term_effects, self.blocking,
+        extras: list[Any] = [self.covariates, *self.marginal_means.values(), self.term_effects, self.blocking,
                              self.expected_mean_squares, self.variance_components]
         if self.cells is not None and not self.cells.balanced:
             extras.append(self.cells)

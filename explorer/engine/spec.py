@@ -125,11 +125,12 @@ class ModelSpec:
     variance_method: VarianceMethod = "auto"
     test: str = "classic"
     transform: str | float = "none"
+    covariates: tuple[str, ...] = field(default=())
 
     def __post_init__(self) -> None:
         setf = object.__setattr__
         setf(self, "response", column_names(self.response, "response")[0])
-        for name in ("factors", "blocks", "random", "within"):
+        for name in ("factors", "blocks", "random", "within", "covariates"):
             value = getattr(self, name)
             setf(self, name, column_names(value, name) if isinstance(value, str) or value else ())
         ss = str(self.ss_type).upper()
@@ -157,6 +158,7 @@ class ModelSpec:
             parsed = tuple(parse_term(t, self.columns) for t in self.terms)
             self._check_terms(parsed)
             setf(self, "terms", parsed)
+        _check_covariates(self)
         _check_test(self)
         setf(self, "transform", check_transform(self.transform))
 
@@ -271,7 +273,8 @@ class ModelSpec:
 
     @property
     def is_oneway(self) -> bool:
-        return len(self.factors) == 1 and not self.blocks and not self.is_mixed and self.terms is None
+        return (len(self.factors) == 1 and not self.blocks and not self.is_mixed and self.terms is None
+                and not self.covariates)
 
     def to_dict(self) -> dict[str, Any]:
         d: dict[str, Any] = {
@@ -300,6 +303,8 @@ class ModelSpec:
             d["test"] = self.test
         if self.transform != "none":
             d["transform"] = self.transform
+        if self.covariates:
+            d["covariates"] = list(self.covariates)
         return d
 
     @classmethod
@@ -320,6 +325,7 @@ class ModelSpec:
             within=tuple(d.get("within", ())),
             test=d.get("test", "classic"),
             transform=d.get("transform", "none"),
+            covariates=tuple(d.get("covariates", ())),
             variance_method=d.get("variance_method", "auto"),
         )
 
@@ -345,6 +351,19 @@ def _normalise_nested(nested: Any) -> tuple[tuple[str, tuple[str, ...]], ...]:
             raise ExplorerError(f"{inner!r} is nested in nothing; give the column it is nested in")
         out.append((inner, parents_t))
     return tuple(out)
+
+
+def _check_covariates(spec: ModelSpec) -> None:
+    """Covariates are numeric columns of their own: not the response, not a grouping column; fixed models only."""
+    cov = spec.covariates
+    if len(set(cov)) != len(cov):
+        raise ExplorerError(f"a covariate is listed twice: {list(cov)}")
+    clash = [c for c in cov if c == spec.response or c in spec.columns]
+    if clash:
+        raise ExplorerError(f"{clash[0]!r} cannot be both a covariate and the response, a factor, a block or the subject")
+    if cov and spec.is_mixed:
+        raise ExplorerError("covariates are supported in fixed-effects models (factors and blocks); this model has "
+                            "random, nested or subject terms")
 
 
 def _check_test(spec: ModelSpec) -> None:

@@ -88,12 +88,15 @@ def transform_values(y: np.ndarray, transform: Transform, response: str = "the r
             f"{name} needs every value of {response!r} {need}; {where.size} row(s) are not (rows {preview(ids)}, "
             f"smallest {float(np.min(y)):.6g}). Keep the response as measured, or use a rank or trimmed-means test"
         )
+    out: np.ndarray
     if transform == "log":
-        return np.log(y)
-    if transform == "sqrt":
-        return np.sqrt(y)
-    lam = float(transform)
-    return np.expm1(lam * np.log(y)) / lam
+        out = np.log(y)
+    elif transform == "sqrt":
+        out = np.sqrt(y)
+    else:
+        lam = float(transform)
+        out = np.expm1(lam * np.log(y)) / lam
+    return out
 
 
 def inverse(t: np.ndarray, transform: Transform) -> np.ndarray:
@@ -101,12 +104,15 @@ def inverse(t: np.ndarray, transform: Transform) -> np.ndarray:
     t = np.asarray(t, dtype=np.float64)
     if transform == "none":
         return t
+    out: np.ndarray
     if transform == "log":
-        return np.exp(t)
-    if transform == "sqrt":
-        return t * t
-    lam = float(transform)
-    return np.exp(np.log1p(lam * t) / lam)
+        out = np.exp(t)
+    elif transform == "sqrt":
+        out = t * t
+    else:
+        lam = float(transform)
+        out = np.exp(np.log1p(lam * t) / lam)
+    return out
 
 
 _CACHE: weakref.WeakKeyDictionary[Any, dict[Any, Any]] = weakref.WeakKeyDictionary()

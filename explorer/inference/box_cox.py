@@ -63,7 +63,7 @@ def profile_loglik(y: np.ndarray, x: np.ndarray) -> tuple[Callable[[float], floa
         rss = float(r @ r)
         if not np.isfinite(rss) or rss <= 0:
             return -np.inf
-        return -n * m - 0.5 * n * np.log(rss / n)
+        return float(-n * m - 0.5 * n * np.log(rss / n))
 
     return loglik, m
 

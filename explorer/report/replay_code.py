@@ -101,6 +101,8 @@ def _spec_args(study: "Study") -> str:
         args.append(f"test={_lit(spec.test)}")
     if spec.transform != "none":
         args.append(f"transform={_lit(spec.transform)}")
+    if spec.covariates:
+        args.append(f"covariates={_lit(list(spec.covariates))}")
     if study.dataset.id_column is not None:
         args.append(f"id_column={_lit(study.dataset.id_column)}")
     args.extend(_role_args(spec))

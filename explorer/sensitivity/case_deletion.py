@@ -264,17 +264,22 @@ def _factorial_scan(study: StudyLike, name: str, verdict: VerdictLike, alpha: fl
     """Case deletion for multi-factor designs (see :mod:`.cell_deletion`): the decision on ``name`` is
     scored, every term's p-value is listed."""
     from .cell_deletion import cell_deletion, eta_squared_total
+    from .covariate_deletion import covariate_deletion
 
     spec = study.spec
     a = alpha_or(alpha, spec.alpha)
-    per_term, status, data, notes = cell_deletion(study)
+    with_cov = bool(getattr(spec, "covariates", ()))
+    per_term, status, data, notes = (covariate_deletion if with_cov else cell_deletion)(study)
     m = per_term[name]
     if record:
         study.record_search("case deletion", data.n)
     base_p = verdict.pvalue
     empty = np.full(data.n, np.nan)
-    notes = [f"Test: classic F of {name!r} ({spec.ss_type} sums of squares) from quadratic updates of the cell means "
-             "(three cell fits per cell)."] + notes + [
+    how = ("classic F from closed-form downdates of the cross-products (covariates)" if with_cov else
+           "classic F from quadratic updates of the cell means")
+    notes = [f"Test: classic F of {name!r} ({spec.ss_type} sums of squares) from "
+             + ("rank-one downdates of every model compared (the model has covariates)." if with_cov else
+                "quadratic updates of the cell means (three cell fits per cell).")] + notes + [
         "Pairwise changes are computed for one-factor studies only."]
     return CaseDeletionScan(
         factor=name, alpha=a, row_ids=data.row_ids, group=np.asarray(data.labels, dtype=object)[data.codes],
@@ -283,7 +288,7 @@ def _factorial_scan(study: StudyLike, name: str, verdict: VerdictLike, alpha: fl
         pair=np.full(data.n, "", dtype=object), pair_t_before=empty, pair_t_after=empty,
         base_statistic=verdict.statistic, base_pvalue=base_p,
         base_significant=bool(base_p is not None and base_p < a),
-        term=name, test="classic", how="classic F from quadratic updates of the cell means",
+        term=name, test="classic", how=how,
         term_pvalues={t: v["pvalue"] for t, v in per_term.items() if t != "residual"},
         disclosure=study.disclosure if record else None,
         notes=tuple(notes),

@@ -137,6 +137,11 @@ def regroup_scan(
     ``moves=False`` skips the row moves (``n (k - 1)`` alternatives).
     """
     refuse_mixed(study, "regroup scan")
+    if getattr(study.spec, "covariates", ()):
+        raise ExplorerError(
+            "the regroup scan scores merges and moves from cell means, which do not carry a covariate; with covariates "
+            "try a merge as an edit (study.merge_levels, then undo) or list plausible merges in the robustness sweep "
+            "(study.robustness_sweep(merges=[...]): each is refitted with the covariates)")
     name, verdict = scored_term(study, term)
     if not study.spec.is_oneway:
         return _factorial_regroup(study, factor, name, verdict, alpha, moves, record)

@@ -83,6 +83,9 @@ class Study(PlannedAnalyses):
     within : the factors that vary within a subject (repeated-measures factors).
     variance_method : variance-component estimator: 'auto' (moments on balanced data, REML
         otherwise), 'moments' or 'reml'.
+    transform : analyse 'log', 'sqrt' or a Box-Cox power of the response (default 'none').
+    covariates : numeric columns measured on each row to adjust for (analysis of covariance:
+        common slopes, the homogeneity-of-slopes check, means adjusted to the covariate means).
     See :class:`~explorer.engine.spec.ModelSpec` for how these build the model.
     """
 
@@ -106,6 +109,7 @@ class Study(PlannedAnalyses):
         within: str | Sequence[str] = (),
         variance_method: str = "auto",
         transform: str | float = "none",
+        covariates: str | Sequence[str] = (),
     ) -> None:
         factors_t = column_names(factors, "factors")
         blocks_t = column_names(blocks, "blocks") if isinstance(blocks, str) or blocks else ()
@@ -114,8 +118,9 @@ class Study(PlannedAnalyses):
                          terms=None if terms is None else tuple(terms),  # type: ignore[arg-type]
                          max_order=max_order, random=random, nested=nested or (),  # type: ignore[arg-type]
                          subject=subject, within=within,  # type: ignore[arg-type]
-                         variance_method=variance_method, test=test, transform=transform)  # type: ignore[arg-type]
-        self._init(build_dataset(data, response, spec.columns, id_column), spec,
+                         variance_method=variance_method, test=test, transform=transform,  # type: ignore[arg-type]
+                         covariates=covariates)  # type: ignore[arg-type]
+        self._init(build_dataset(data, response, spec.columns, id_column, spec.covariates), spec,
                    data_source=data if isinstance(data, (str, Path)) else None)
 
     def _init(self, dataset: Dataset, spec: ModelSpec, data_source: str | Path | None = None) -> None:
@@ -407,7 +412,7 @@ class Study(PlannedAnalyses):
         """Replay a saved study given as a dict (checked against the study-file schema first)."""
         check_study_doc(doc)
         spec = ModelSpec.from_dict(doc["spec"])
-        dataset = build_dataset(data, spec.response, spec.columns, doc["data"].get("id_column"))
+        dataset = build_dataset(data, spec.response, spec.columns, doc["data"].get("id_column"), spec.covariates)
         problem = describe_mismatch(doc, dataset)
         if problem and not allow_mismatch:
             raise ReplayError(problem + ". Pass allow_mismatch=True to replay anyway (edits that no longer apply fail).")
