@@ -23,7 +23,7 @@ planned questions         :func:`contrasts`, :func:`control_contrasts`,
                           :func:`equivalence`, :func:`simple_effects`
 two levels, ranks, robust :func:`welch_t`, :func:`mann_whitney`, :func:`dunn`,
                           :func:`friedman`, :func:`trimmed_means_test`,
-                          :func:`hc3_tests`
+                          :func:`hc3_tests`, :func:`box_cox`
 bundles and designs       :func:`run_battery`, :func:`repeated_measures`,
                           :func:`measurement_system`
 sensitivity scans         :func:`influence_measures`, :func:`case_deletion_scan`,
@@ -66,6 +66,7 @@ from .engine.pairwise import adjust_pvalues, simultaneous_pairs
 from .engine.studentized_range import srange_cdf, srange_ppf, srange_sf
 from .inference.assumptions import bartlett, levene, recommend, shapiro_residuals
 from .inference.battery import run_battery
+from .inference.box_cox import box_cox
 from .inference.comparisons import dunnett, games_howell, pairwise_t, tukey
 from .inference.contrasts import contrasts, control_contrasts, later_levels_contrasts
 from .inference.effect_sizes import effect_sizes
@@ -96,7 +97,7 @@ __all__ = [
     "effect_sizes", "noncentrality_interval", "f_test_power", "group_size_for_power", "power_plan",
     "bonferroni_outlier_test", "grubbs_test", "grubbs_critical", "robust_z_screen",
     "contrasts", "control_contrasts", "later_levels_contrasts", "trend", "equivalence", "simple_effects",
-    "welch_t", "mann_whitney", "dunn", "friedman", "trimmed_means_test", "hc3_tests",
+    "welch_t", "mann_whitney", "dunn", "friedman", "trimmed_means_test", "hc3_tests", "box_cox",
     "run_battery", "repeated_measures", "measurement_system",
     "influence_measures", "case_deletion_scan", "flip_finder", "regroup_scan", "robustness_sweep",
     "unit_deletion", "row_deletion",
