@@ -126,7 +126,7 @@ def test_click_drop_and_undo_in_jupyterlab(lab, page):
 
     # the other tabs draw when opened; the fragility scans add to the disclosure count
     page.locator(".vx-explorer .lm-TabBar-tab", has_text="Tests").click()
-    expect(page.locator(".vx-panel-overall_tests")).to_contain_text("Chosen test")
+    expect(page.locator(".vx-panel-overall_tests")).to_contain_text("The decision (classic F)")
     _shot(page, "explorer-tests-tab.png")
     page.locator(".vx-explorer .lm-TabBar-tab", has_text="Fragility").click()
     expect(page.locator(".vx-chart-leave_one_out .mark-symbol path").first).to_be_visible()
