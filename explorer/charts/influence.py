@@ -12,6 +12,7 @@ import altair as alt
 import numpy as np
 
 from explorer.engine import Results
+from explorer.engine.numerics import response_scale
 from explorer.sensitivity.influence import Influence, influence_measures
 
 from .frames import MAX_POINTS, RowColumns, fit_frame, thin
@@ -24,7 +25,7 @@ __all__ = ["cooks_distance_chart", "influence_of"]
 def influence_of(results: Results) -> Influence:
     """The influence measures of a fit (any design the engine fits), for drawing."""
     fit = results.fit
-    scale = max(abs(float(results.groups.offset)), float(np.max(np.abs(fit.y))) if fit.y.size else 0.0)
+    scale = response_scale(results.groups.offset, fit.y)
     return influence_measures(fit.residuals, fit.leverage, results.df_resid, row_ids=fit.row_ids,
                               alpha=results.spec.alpha, scale=scale)
 

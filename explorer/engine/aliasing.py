@@ -30,6 +30,7 @@ from scipy import linalg
 
 from .design import CellDesign, Term, term_name
 from .errors import DesignError
+from .numerics import qr_rank
 
 __all__ = ["AliasedTerm", "find_aliased"]
 
@@ -61,8 +62,7 @@ def _rank(a: np.ndarray, scale: float) -> int:
     if a.shape[1] == 0:
         return 0
     r = linalg.qr(a, mode="r", pivoting=True)[0]
-    d = np.abs(np.diag(r))
-    return int(np.sum(d > scale * max(a.shape) * np.finfo(float).eps))
+    return qr_rank(np.diag(r), a.shape, reference=scale)
 
 
 def find_aliased(

@@ -48,6 +48,7 @@ from .design import (
 )
 from .errors import DesignError
 from .groupstats import GroupStats
+from .numerics import qr_rank
 from .spec import ModelSpec
 
 __all__ = ["SS_TYPES", "CellFit", "fit_cells"]
@@ -202,9 +203,7 @@ def fit_cells(
     xw = w[:, None] * x
 
     q, r, piv = linalg.qr(xw, mode="economic", pivoting=True)
-    diag = np.abs(np.diag(r))
-    tol = diag[0] * max(xw.shape) * np.finfo(float).eps if diag.size else 0.0
-    rank = int(np.sum(diag > tol))
+    rank = qr_rank(np.diag(r), xw.shape)
     p = x.shape[1]
     if rank < p:
         kept, aliased = find_aliased(xw, design, sequential_order(terms, spec.blocks), spec.blocks, nesting)

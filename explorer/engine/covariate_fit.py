@@ -45,6 +45,7 @@ from .errors import DesignError
 from .fitrows import RowSet
 from .groupstats import group_stats
 from .marginal_means import MarginalMeans
+from .numerics import is_zero_ss, response_scale
 from .results import Fit, LevelTable, Results
 from .row_model import RowDesign, RowFit, expand_cells, fit_rows
 from .spec import ModelSpec
@@ -202,8 +203,7 @@ def fit_with_covariates(dataset: Dataset, view: DataView, spec: ModelSpec, *, po
     sequence = covariate_sequence(design.terms, spec)
     fit = fit_rows(design, y, sequence=sequence)
     check = _slope_check(cd, row_cell, covs, y, fit, treatment, spec)
-    scale = max(abs(float(dataset.offset)), float(np.max(np.abs(y))) if y.size else 0.0, 1e-300)
-    zero = bool(fit.ss_resid <= fit.n * (8 * np.finfo(float).eps * scale) ** 2)
+    zero = bool(is_zero_ss(fit.ss_resid, fit.n, response_scale(dataset.offset, y)))
     tables = _tables(fit, design, zero, (check.sentence(),))
     table = tables[spec.ss_type]
     ms_e = 0.0 if zero else fit.ms_resid

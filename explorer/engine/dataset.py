@@ -23,6 +23,7 @@ import pandas as pd
 from .decimal_shift import shift_float, shift_text
 from .errors import ColumnError, DataError, EditError, closest_names, preview
 from .loading import read_table
+from .numerics import read_only
 from .response_unit import rescale, unit_exponent, unit_note
 from .table_checks import check_response_values, column_names, decimal_comma_hint, refuse_text_collisions, text_columns
 
@@ -323,8 +324,7 @@ def build_dataset(
     y, offset, unit = _in_safe_unit(y, offset, yv[usable])
     if unit:
         notes.append(unit_note(response, unit))
-    y = np.ascontiguousarray(y, dtype=np.float64)
-    y.setflags(write=False)
+    y = read_only(np.ascontiguousarray(y, dtype=np.float64))
 
     codes: dict[str, np.ndarray] = {}
     levels: dict[str, tuple[str, ...]] = {}
@@ -336,12 +336,9 @@ def build_dataset(
         if unused:
             notes.append(f"Factor {f!r}: unused categories {preview(unused)} are left out.")
         lookup = {lab: i for i, lab in enumerate(order)}
-        c = labels.map(lookup).to_numpy(dtype=np.int32)
-        c.setflags(write=False)
-        codes[f], levels[f] = c, tuple(order)
+        codes[f], levels[f] = read_only(labels.map(lookup).to_numpy(dtype=np.int32)), tuple(order)
 
-    row_ids = ids[usable]
-    row_ids.setflags(write=False)
+    row_ids = read_only(ids[usable])
     hashed = pd.util.hash_pandas_object(
         pd.DataFrame(
             {"id": [str(i) for i in ids.tolist()], "y": yv, **{f: frame[f].astype(str).to_numpy() for f in factors},
@@ -354,9 +351,7 @@ def build_dataset(
         head += f"|covariates {'|'.join(cov_values)}".encode()
     kept_cov = {}
     for c, v in cov_values.items():
-        kv = np.ascontiguousarray(v[usable])
-        kv.setflags(write=False)
-        kept_cov[c] = kv
+        kept_cov[c] = read_only(np.ascontiguousarray(v[usable]))
     fingerprint = hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
     return Dataset(
         table=frame,

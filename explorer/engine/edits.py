@@ -17,6 +17,7 @@ import numpy as np
 
 from .dataset import Dataset, RowId
 from .errors import EditError, ReplayError, closest_names, preview
+from .numerics import read_only
 from .view import DataView
 
 __all__ = [
@@ -65,11 +66,6 @@ def level_name(name: object) -> str:
     if not text.strip():
         raise EditError("a level name cannot be empty")
     return text
-
-
-def _ro(a: np.ndarray) -> np.ndarray:
-    a.setflags(write=False)
-    return a
 
 
 def _check_factor(view: DataView, factor: str) -> None:
@@ -163,7 +159,7 @@ class _RowsEdit(Edit):
             raise EditError(f"rows {preview(unchanged)} are {state}")
         kept = view.kept.copy()
         kept[pos] = self.keep
-        return view.replace(kept=_ro(kept))
+        return view.replace(kept=read_only(kept))
 
     def describe(self) -> str:
         return f"{self.verb} row(s) {preview(list(self.rows))}"
@@ -215,7 +211,7 @@ class Reassign(Edit):
         codes = view.codes[self.factor].copy()
         codes[pos] = levels.index(self.level)
         return view.replace(
-            codes={**view.codes, self.factor: _ro(codes)}, levels={**view.levels, self.factor: levels}
+            codes={**view.codes, self.factor: read_only(codes)}, levels={**view.levels, self.factor: levels}
         )
 
     def describe(self) -> str:
@@ -259,7 +255,7 @@ class MergeLevels(Edit):
             remap[i] = remap[target]
         codes = remap[view.codes[self.factor]]
         return view.replace(
-            codes={**view.codes, self.factor: _ro(codes)},
+            codes={**view.codes, self.factor: read_only(codes)},
             levels={**view.levels, self.factor: tuple(new_levels)},
         )
 
@@ -317,7 +313,7 @@ class _UnitEdit(Edit):
             raise EditError(f"every row of {self.column} = {self.level!r} is {state}")
         kept = view.kept.copy()
         kept[rows] = self.keep
-        return view.replace(kept=_ro(kept))
+        return view.replace(kept=read_only(kept))
 
     def describe(self) -> str:
         return f"{self.verb} every row of {self.column} = {self.level}"

@@ -33,6 +33,7 @@ from .fitrows import RowSet, row_fit
 from .groupstats import GroupStats, group_stats, pool_groups
 from .marginal_means import MarginalMeans, marginal_means
 from .mixed_partition import mixed_tables
+from .numerics import is_zero_ss, response_scale
 from .oneway import NOT_FINITE
 from .results import LevelTable, Results
 from .spec import ModelSpec
@@ -51,9 +52,7 @@ def _finite(fit: CellFit) -> bool:
 
 
 def _zero_residual(fit: CellFit) -> bool:
-    st = fit.stats
-    scale = max(abs(st.offset), float(np.max(np.abs(st.mean))), 1e-300)
-    return bool(fit.ss_resid <= fit.n * (8 * np.finfo(float).eps * scale) ** 2)
+    return bool(is_zero_ss(fit.ss_resid, fit.n, response_scale(fit.stats.offset, fit.stats.mean)))
 
 
 def _partition(fit: CellFit, ss_type: str, zero_resid: bool) -> AnovaTable:

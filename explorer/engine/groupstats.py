@@ -18,12 +18,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .numerics import read_only
+
 __all__ = ["GroupStats", "group_stats", "pool_groups"]
-
-
-def _readonly(a: np.ndarray) -> np.ndarray:
-    a.setflags(write=False)
-    return a
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -79,9 +76,9 @@ class GroupStats:
             return self
         return GroupStats(
             labels=tuple(lab for lab, k in zip(self.labels, keep) if k),
-            n=_readonly(self.n[keep].copy()),
-            mean=_readonly(self.mean[keep].copy()),
-            m2=_readonly(self.m2[keep].copy()),
+            n=read_only(self.n[keep].copy()),
+            mean=read_only(self.mean[keep].copy()),
+            m2=read_only(self.m2[keep].copy()),
             offset=self.offset,
         )
 
@@ -108,9 +105,9 @@ class GroupStats:
         labels[groups[0]] = label
         return GroupStats(
             labels=tuple(labels[i] for i in keep),
-            n=_readonly(n[keep]),
-            mean=_readonly(mean[keep]),
-            m2=_readonly(m2[keep]),
+            n=read_only(n[keep]),
+            mean=read_only(mean[keep]),
+            m2=read_only(m2[keep]),
             offset=self.offset,
         )
 
@@ -134,7 +131,7 @@ def group_stats(y: np.ndarray, codes: np.ndarray, labels: tuple[str, ...], offse
         corr = np.where(n > 0, rs / np.maximum(n, 1), 0.0)
     mean = mean + corr
     m2 = np.maximum(r2 - rs * corr, 0.0)
-    return GroupStats(labels=tuple(labels), n=_readonly(n), mean=_readonly(mean), m2=_readonly(m2), offset=offset)
+    return GroupStats(labels=tuple(labels), n=read_only(n), mean=read_only(mean), m2=read_only(m2), offset=offset)
 
 
 def pool_groups(
@@ -157,5 +154,5 @@ def pool_groups(
     pooled = pooled + np.bincount(codes, weights=nf * (mean - pooled[codes]), minlength=k) / safe
     dev = mean - pooled[codes]
     m2_p = np.bincount(codes, weights=np.asarray(m2, dtype=np.float64) + nf * dev * dev, minlength=k)
-    return GroupStats(labels=tuple(labels), n=_readonly(np.rint(tot).astype(np.int64)), mean=_readonly(pooled),
-                      m2=_readonly(m2_p), offset=offset)
+    return GroupStats(labels=tuple(labels), n=read_only(np.rint(tot).astype(np.int64)), mean=read_only(pooled),
+                      m2=read_only(m2_p), offset=offset)

@@ -20,6 +20,7 @@ from .distributions import f_sf, t_ppf, t_two_sided_p
 from .errors import DesignError, preview
 from .fitrows import RowSet, row_fit
 from .groupstats import GroupStats, group_stats
+from .numerics import is_zero_ss, response_scale
 from .results import LevelTable, Results, TwoSampleT
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow
@@ -32,8 +33,7 @@ NOT_FINITE = ("F is undefined: the sums of squares are not finite numbers (the r
 
 
 def _zero_residual(ss_within: float, gs: GroupStats) -> bool:
-    scale = max(abs(gs.offset), float(np.max(np.abs(gs.mean))) if gs.k else 0.0, 1e-300)
-    return bool(ss_within <= gs.n_total * (8 * np.finfo(float).eps * scale) ** 2)
+    return bool(is_zero_ss(ss_within, gs.n_total, response_scale(gs.offset, gs.mean)))
 
 
 def oneway_partition(gs: GroupStats, factor: str, ss_type: str = "I") -> tuple[AnovaTable, AnovaTable, tuple[str, ...]]:

@@ -28,16 +28,11 @@ import pandas as pd
 
 from .distributions import t_ppf, t_two_sided_p
 from .errors import DesignError, ExplorerError, preview
+from .numerics import read_only_copy
 from .studentized_range import srange_ppf, srange_sf
 from .tables import html_table
 
 __all__ = ["PairwiseTable", "adjust_pvalues", "simultaneous_pairs"]
-
-
-def _ro(a: np.ndarray) -> np.ndarray:
-    a = np.asarray(a, dtype=float).copy()
-    a.setflags(write=False)
-    return a
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -236,9 +231,10 @@ def simultaneous_pairs(
         raise ExplorerError(f"method must be 'tukey', 'bonferroni' or 'none', not {method!r}")
     half = crit * se
     return PairwiseTable(
-        method=name, adjustment=adjustment, family_size=m, labels=labels, estimates=_ro(est + offset),
+        method=name, adjustment=adjustment, family_size=m, labels=labels, estimates=read_only_copy(est + offset),
         first=tuple(labels[a] for a in i), second=tuple(labels[b] for b in j),
-        difference=_ro(d), se=_ro(se), df=_ro(dfs), statistic=_ro(t), pvalue=_ro(p),
-        ci_low=_ro(np.where(bad, np.nan, d - half)), ci_high=_ro(np.where(bad, np.nan, d + half)),
+        difference=read_only_copy(d), se=read_only_copy(se), df=read_only_copy(dfs), statistic=read_only_copy(t),
+        pvalue=read_only_copy(p),
+        ci_low=read_only_copy(np.where(bad, np.nan, d - half)), ci_high=read_only_copy(np.where(bad, np.nan, d + half)),
         confidence=confidence, range_based=range_based, notes=tuple(notes),
     )

@@ -33,6 +33,7 @@ from scipy import linalg
 from .cellfit import SS_TYPES, model_comparisons
 from .design import CellDesign, Term, term_name
 from .errors import DesignError
+from .numerics import qr_rank
 
 __all__ = ["RowDesign", "RowFit", "expand_cells", "fit_rows", "hc_meat"]
 
@@ -152,11 +153,7 @@ class RowFit:
 
 
 def _rank(r: np.ndarray, shape: tuple[int, int]) -> int:
-    diag = np.abs(np.diag(r))
-    if not diag.size:
-        return 0
-    tol = diag[0] * max(shape) * np.finfo(float).eps
-    return int(np.sum(diag > tol))
+    return qr_rank(np.diag(r), shape)
 
 
 def fit_rows(

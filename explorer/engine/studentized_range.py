@@ -32,6 +32,7 @@ import numpy as np
 from scipy import special
 
 from .errors import ExplorerError
+from .numerics import read_only
 
 __all__ = ["srange_cdf", "srange_ppf", "srange_sf"]
 
@@ -65,9 +66,7 @@ def _range_table(k: int) -> tuple[np.ndarray, np.ndarray]:
     pdf = k * h * (np.nan_to_num(pdf_in, nan=0.0) @ phi)
     log_sf = np.log(np.maximum(sf, 1e-300))
     dlog = -pdf / np.maximum(sf, 1e-300)
-    log_sf.setflags(write=False)
-    dlog.setflags(write=False)
-    return log_sf, dlog
+    return read_only(log_sf), read_only(dlog)
 
 
 @lru_cache(maxsize=32)
@@ -77,8 +76,7 @@ def _range_cubics(k: int) -> np.ndarray:
     y0, y1 = log_sf[:-1], log_sf[1:]
     d0, d1 = dlog[:-1] * _HW, dlog[1:] * _HW
     coef = np.stack([y0, d0, 3 * (y1 - y0) - 2 * d0 - d1, 2 * (y0 - y1) + d0 + d1], axis=1)
-    coef.setflags(write=False)
-    return coef
+    return read_only(coef)
 
 
 def _range_sf_pdf(w: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
@@ -153,9 +151,7 @@ def _grid(df: np.ndarray, nodes: int | None = None) -> tuple[np.ndarray, np.ndar
         s[~finite] = 1.0
         w[~finite] = 0.0
         w[~finite, 0] = 1.0
-    s.setflags(write=False)
-    w.setflags(write=False)
-    return s, w
+    return read_only(s), read_only(w)
 
 
 #: Points x nodes evaluated at once: bounds the working memory (about 30 arrays of this many floats,

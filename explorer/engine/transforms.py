@@ -28,6 +28,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from .errors import DataError, ExplorerError, preview
+from .numerics import read_only
 
 if TYPE_CHECKING:
     from .dataset import Dataset
@@ -141,8 +142,7 @@ def with_transform(dataset: Dataset, transform: Transform) -> Dataset:
                         "(values too large for the power); choose another transform")
     med = float(np.median(t)) if t.size else 0.0
     offset = float(np.float32(med)) if abs(med) >= 1 else 0.0
-    y = t - offset
-    y.setflags(write=False)
+    y = read_only(t - offset)
     out = dataclasses.replace(base, y=y, offset=offset, offset_text=repr(offset), unit_exponent=0,
                               transform=transform, untransformed=base)
     per[transform] = out

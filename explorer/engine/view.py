@@ -13,6 +13,7 @@ from typing import Any
 import numpy as np
 
 from .dataset import Dataset, RowId
+from .numerics import read_only
 
 __all__ = ["DataView", "initial_view"]
 
@@ -55,6 +56,4 @@ class DataView:
 
 
 def initial_view(dataset: Dataset) -> DataView:
-    kept = np.ones(dataset.n, dtype=bool)
-    kept.setflags(write=False)
-    return DataView(kept=kept, codes=dict(dataset.codes), levels=dict(dataset.levels))
+    return DataView(kept=read_only(np.ones(dataset.n, dtype=bool)), codes=dict(dataset.codes), levels=dict(dataset.levels))

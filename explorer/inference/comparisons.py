@@ -30,7 +30,8 @@ from scipy import optimize, special
 from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import DesignError, ExplorerError, closest_names, preview
 from ..engine.groupstats import GroupStats
-from ..engine.pairwise import PairwiseTable, _check_confidence, _pairs, _ro, adjust_pvalues, simultaneous_pairs
+from ..engine.numerics import read_only_copy
+from ..engine.pairwise import PairwiseTable, _check_confidence, _pairs, adjust_pvalues, simultaneous_pairs
 from ..engine.studentized_range import _outer_grid, srange_ppf, srange_sf
 from .oneway_inputs import require_oneway
 
@@ -144,10 +145,11 @@ def games_howell(results: Results, *, confidence: float | None = None) -> Pairwi
         hi[ok] = d[ok] + crit * se[ok]
     return PairwiseTable(
         method="Games-Howell", adjustment=f"studentized range, {k} means, Welch df per pair",
-        family_size=len(d), labels=gs.labels, estimates=_ro(gs.original_means),
+        family_size=len(d), labels=gs.labels, estimates=read_only_copy(gs.original_means),
         first=tuple(gs.labels[x] for x in i), second=tuple(gs.labels[x] for x in j),
-        difference=_ro(d), se=_ro(np.where(bad, np.nan, se)), df=_ro(np.where(bad, np.nan, dfs)),
-        statistic=_ro(np.where(bad, np.nan, t)), pvalue=_ro(p), ci_low=_ro(lo), ci_high=_ro(hi),
+        difference=read_only_copy(d), se=read_only_copy(np.where(bad, np.nan, se)),
+        df=read_only_copy(np.where(bad, np.nan, dfs)), statistic=read_only_copy(np.where(bad, np.nan, t)),
+        pvalue=read_only_copy(p), ci_low=read_only_copy(lo), ci_high=read_only_copy(hi),
         confidence=confidence, range_based=True, notes=tuple(notes),
     )
 
@@ -188,9 +190,10 @@ def pairwise_t(results: Results, *, adjust: Adjustment = "holm", confidence: flo
     names = {"holm": "Holm", "bonferroni": "Bonferroni", "none": "none (per comparison)"}
     return PairwiseTable(
         method="pairwise t (pooled variance)", adjustment=names[adjust_l], family_size=m,
-        labels=gs.labels, estimates=_ro(gs.original_means), first=tuple(gs.labels[x] for x in i),
-        second=tuple(gs.labels[x] for x in j), difference=_ro(d), se=_ro(se), df=_ro(np.full(m, float(df))),
-        statistic=_ro(t), pvalue=_ro(p), ci_low=_ro(d - crit * se), ci_high=_ro(d + crit * se),
+        labels=gs.labels, estimates=read_only_copy(gs.original_means), first=tuple(gs.labels[x] for x in i),
+        second=tuple(gs.labels[x] for x in j), difference=read_only_copy(d), se=read_only_copy(se),
+        df=read_only_copy(np.full(m, float(df))), statistic=read_only_copy(t), pvalue=read_only_copy(p),
+        ci_low=read_only_copy(d - crit * se), ci_high=read_only_copy(d + crit * se),
         confidence=confidence, notes=tuple(notes),
     )
 
@@ -303,8 +306,9 @@ def dunnett(
         notes.append("One-sided intervals (treatment minus control is at most the upper bound).")
     return PairwiseTable(
         method=f"Dunnett (control {labels[c0]})", adjustment=f"Dunnett multivariate t, {m} comparisons",
-        family_size=m, labels=labels, estimates=_ro(gs.original_means), first=tuple(labels[x] for x in idx),
-        second=tuple(labels[c0] for _ in idx), difference=_ro(d), se=_ro(se), df=_ro(np.full(m, df)),
-        statistic=_ro(t), pvalue=_ro(np.clip(p, 0.0, 1.0)), ci_low=_ro(lo), ci_high=_ro(hi),
+        family_size=m, labels=labels, estimates=read_only_copy(gs.original_means), first=tuple(labels[x] for x in idx),
+        second=tuple(labels[c0] for _ in idx), difference=read_only_copy(d), se=read_only_copy(se),
+        df=read_only_copy(np.full(m, df)), statistic=read_only_copy(t), pvalue=read_only_copy(np.clip(p, 0.0, 1.0)),
+        ci_low=read_only_copy(lo), ci_high=read_only_copy(hi),
         confidence=confidence, alternative=alternative, notes=tuple(notes),
     )

@@ -33,6 +33,7 @@ import pandas as pd
 
 from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import ExplorerError
+from ..engine.numerics import read_only_copy
 from ..engine.tables import fmt, html_table
 from .oneway_inputs import row_sample_notes
 
@@ -82,12 +83,6 @@ class OutlierScreen:
         return html_table(self.to_frame(), cap, self.notes)
 
 
-def _ro(a: np.ndarray) -> np.ndarray:
-    a = np.asarray(a).copy()
-    a.setflags(write=False)
-    return a
-
-
 def _flag(row_ids: np.ndarray, mask: np.ndarray, order_by: np.ndarray) -> tuple[object, ...]:
     idx = np.flatnonzero(mask)
     idx = idx[np.argsort(-np.abs(order_by[idx]), kind="stable")]
@@ -113,7 +108,7 @@ def bonferroni_outlier_test(results: Results, *, alpha: float = 0.05) -> Outlier
     rule = f"|studentized residual| above the t quantile at alpha/(2N), N = {n}"
     if df < 1 or not (results.ms_resid or 0) > 0:
         return OutlierScreen(method="studentized residuals (Bonferroni)", rule=rule, threshold=None,
-                             row_ids=fit.row_ids, scores=_ro(np.full(n, np.nan)), flagged=(), ran=False,
+                             row_ids=fit.row_ids, scores=read_only_copy(np.full(n, np.nan)), flagged=(), ran=False,
                              notes=("Not run: too few residual df or a zero residual mean square.",))
     sse = float(results.ms_resid or 0.0) * results.df_resid
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -128,7 +123,7 @@ def bonferroni_outlier_test(results: Results, *, alpha: float = 0.05) -> Outlier
     mask = np.isfinite(t) & (np.abs(np.nan_to_num(t)) > crit)
     return OutlierScreen(
         method="studentized residuals (Bonferroni)", rule=rule, threshold=crit, row_ids=fit.row_ids,
-        scores=_ro(t), flagged=_flag(fit.row_ids, mask, np.nan_to_num(t)),
+        scores=read_only_copy(t), flagged=_flag(fit.row_ids, mask, np.nan_to_num(t)),
         details=(("df", df), ("fitted means", p_fit), ("smallest Bonferroni p", p_min)),
         notes=tuple(notes) + row_sample_notes(results),
     )
@@ -155,12 +150,12 @@ def grubbs_test(results: Results, *, alpha: float = 0.05) -> OutlierScreen:
     rule = "largest |residual - mean| / SD above the two-sided Grubbs critical value"
     if n < GRUBBS_MIN_N:
         return OutlierScreen(method="Grubbs (two-sided)", rule=rule, threshold=None, row_ids=fit.row_ids,
-                             scores=_ro(np.full(n, np.nan)), flagged=(), ran=False,
+                             scores=read_only_copy(np.full(n, np.nan)), flagged=(), ran=False,
                              notes=(f"Not run: {n} residuals; Grubbs' test needs at least {GRUBBS_MIN_N}.",))
     sd = float(np.std(e, ddof=1))
     if not sd > 0:
         return OutlierScreen(method="Grubbs (two-sided)", rule=rule, threshold=None, row_ids=fit.row_ids,
-                             scores=_ro(np.full(n, np.nan)), flagged=(), ran=False,
+                             scores=read_only_copy(np.full(n, np.nan)), flagged=(), ran=False,
                              notes=("Not run: every residual is zero.",))
     z = np.abs(e - e.mean()) / sd
     crit = grubbs_critical(n, alpha)
@@ -168,7 +163,7 @@ def grubbs_test(results: Results, *, alpha: float = 0.05) -> OutlierScreen:
     mask = np.zeros(n, dtype=bool)
     mask[top] = z[top] > crit
     return OutlierScreen(method="Grubbs (two-sided)", rule=rule, threshold=crit, row_ids=fit.row_ids,
-                         scores=_ro(z), flagged=_flag(fit.row_ids, mask, z),
+                         scores=read_only_copy(z), flagged=_flag(fit.row_ids, mask, z),
                          details=(("G", float(z[top])), ("alpha", alpha)), notes=row_sample_notes(results))
 
 
@@ -183,9 +178,9 @@ def robust_z_screen(results: Results, *, cutoff: float = 3.5) -> OutlierScreen:
     rule = "|0.6745 (residual - median) / MAD| above the cutoff"
     if not mad > 0:
         return OutlierScreen(method="robust z (median/MAD)", rule=rule, threshold=cutoff, row_ids=fit.row_ids,
-                             scores=_ro(np.full(len(e), np.nan)), flagged=(), ran=False,
+                             scores=read_only_copy(np.full(len(e), np.nan)), flagged=(), ran=False,
                              notes=("Not run: at least half the residuals are equal, so the MAD is zero.",))
     z = 0.6745 * (e - med) / mad
     return OutlierScreen(method="robust z (median/MAD)", rule=rule, threshold=cutoff, row_ids=fit.row_ids,
-                         scores=_ro(z), flagged=_flag(fit.row_ids, np.abs(z) > cutoff, z),
+                         scores=read_only_copy(z), flagged=_flag(fit.row_ids, np.abs(z) > cutoff, z),
                          details=(("median", med), ("MAD", mad)), notes=row_sample_notes(results))

@@ -34,6 +34,7 @@ import numpy as np
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError
 from ..engine.groupstats import GroupStats, group_stats
+from ..engine.numerics import is_zero_ss, response_scale
 from ..inference.omnibus_batch import UNDEFINED, TestBatch, brown_forsythe_batch, welch_batch
 from .study_like import StudyLike
 
@@ -94,9 +95,8 @@ class OnewayInput:
         return len(self.labels)
 
     def scale(self) -> float:
-        """Magnitude used to decide that a residual sum of squares is zero (as the one-way engine does)."""
-        m = float(np.max(np.abs(self.stats.mean))) if self.k else 0.0
-        return max(abs(self.offset), m, 1e-300)
+        """Magnitude used to decide that a residual sum of squares is zero (:func:`~explorer.engine.numerics.response_scale`)."""
+        return response_scale(self.offset, self.stats.mean)
 
 
 def oneway_input(study: StudyLike, what: str = "this scan") -> OnewayInput:
@@ -207,7 +207,7 @@ def fits_from_sums(
     df_b = levels - 1
     df_w = total - levels
     status = np.zeros(ssb.shape[0], dtype=np.int8)
-    zero = ssw <= total * (8 * np.finfo(float).eps * scale) ** 2
+    zero = is_zero_ss(ssw, total, scale)
     status[zero] = 3
     status[df_w < 1] = 2
     status[levels < 2] = 1

@@ -25,6 +25,7 @@ from ..engine.design import term_name
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError
 from ..engine.groupstats import GroupStats, group_stats
+from ..engine.numerics import is_zero_ss
 from .alternatives import OnewayInput, leave_one_out
 from .study_like import StudyLike
 
@@ -105,8 +106,7 @@ def cell_deletion(study: StudyLike) -> tuple[dict[str, dict[str, np.ndarray]], n
             lof[rows] = f.ss_lack_of_fit
             df_resid[rows] = f.df_resid
     resid = others_m2[codes] + new_m2 + lof
-    scale = data.scale()
-    zero = resid <= n * (8 * np.finfo(float).eps * scale) ** 2
+    zero = is_zero_ss(resid, n, data.scale())
     status[(status == 0) & zero] = 3
     status[(status == 0) & (df_resid < 1)] = 2
     ok = status == 0

@@ -33,6 +33,7 @@ from ..engine.covariate_fit import covariate_sequence
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError
 from ..engine.groupstats import group_stats
+from ..engine.numerics import is_zero_ss
 from ..engine.row_model import design_of
 from .alternatives import OnewayInput
 from .study_like import StudyLike
@@ -117,8 +118,7 @@ def covariate_deletion(study: StudyLike) -> tuple[dict[str, dict[str, np.ndarray
         df_resid[i] = r.df_resid
     if np.any(~safe):
         notes.append(f"{int((~safe).sum())} row(s) with leverage one were refitted directly.")
-    scale = data.scale()
-    zero = resid <= n * (8 * np.finfo(float).eps * scale) ** 2
+    zero = is_zero_ss(resid, n, data.scale())
     status[(status == 0) & zero] = 3
     status[(status == 0) & (df_resid < 1)] = 2
     ok = status == 0

@@ -34,6 +34,7 @@ from scipy import stats
 
 from ..engine.disclosure import Disclosure
 from ..engine.distributions import t_sf
+from ..engine.numerics import is_zero_ss, response_scale
 from ..engine.spec import alpha_or
 from ..engine.tables import fmt, html_table
 from .study_like import StudyLike
@@ -143,7 +144,7 @@ def influence_measures(
     nan = np.full(n, np.nan)
     r = t = cook = dff = pout = nan
     exact = h >= 1 - 1e-12
-    if df < 1 or rss <= n * (8 * np.finfo(float).eps * max(scale, 1e-300)) ** 2:
+    if df < 1 or is_zero_ss(rss, n, scale):
         notes.append("No residual variation (no residual df or every residual zero): scaled residuals are undefined.")
     else:
         s2 = rss / df
@@ -198,7 +199,7 @@ def influence(study: StudyLike, *, alpha: float | None = None) -> Influence:
     spec = study.spec
     labels = np.asarray(res.groups.labels, dtype=object)
     group = labels[np.asarray(fit.group)] if len(labels) else None
-    scale = max(abs(float(study.dataset.offset)), float(np.max(np.abs(fit.y))) if fit.y.size else 0.0)
+    scale = response_scale(study.dataset.offset, fit.y)
     out = influence_measures(
         fit.residuals, fit.leverage, res.df_resid, row_ids=fit.row_ids, group=group,
         alpha=alpha_or(alpha, spec.alpha), scale=scale,

@@ -48,6 +48,7 @@ import pandas as pd
 
 from ..engine.disclosure import Disclosure
 from ..engine.errors import DataError, DesignError, ExplorerError, closest_names
+from ..engine.numerics import response_scale
 from ..engine.oneway import fit_oneway
 from ..engine.results import Results
 from ..engine.spec import OVERALL_TESTS, alpha_or
@@ -263,7 +264,7 @@ def _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes):  # 
             codes, labels = _merge_codes(data, merge_list, subset)
             merge_name = "; ".join("+".join(merge_list[i]) for i in subset) or "none"
             fit_all = _fit(yt, codes, labels, data, np.ones(data.n, dtype=bool), off, spec)
-            scale = max(abs(off), float(np.max(np.abs(yt))))
+            scale = response_scale(off, yt)
             for rule in outlier_rules:
                 keep = np.ones(data.n, dtype=bool)
                 if isinstance(fit_all, Results):
@@ -309,7 +310,7 @@ def _factorial_rows(study, term, outlier_rules, transforms, merges, a, notes):  
     rows = []
     for t, (yt, off) in all_resp.items():
         ds = dataclasses.replace(dataset, y=yt, offset=off)
-        scale = max(abs(off), float(np.max(np.abs(yt[kept_pos]))))
+        scale = response_scale(off, yt[kept_pos])
         for subset in subsets:
             merge_name = "; ".join("+".join(merge_list[i]) for i in subset) or "none"
             v = view

@@ -15,6 +15,7 @@ import numpy as np
 
 from ..engine.edits import Edit, _check_factor, _check_levels, level_name, register_edit
 from ..engine.errors import EditError
+from ..engine.numerics import read_only
 from .atoms import MOVE_PREFIX
 from .predicate import Predicate, parse_predicate
 from .view import Condition, SummaryView
@@ -99,8 +100,7 @@ class MoveWhere(Edit):
         if self.level not in levels:
             levels = levels + (self.level,)
         key = MOVE_PREFIX + str(len(v.moves) + 1)
-        codes = np.append(v.codes[self.factor], levels.index(self.level)).astype(np.int64)
-        codes.setflags(write=False)
+        codes = read_only(np.append(v.codes[self.factor], levels.index(self.level)).astype(np.int64))
         return v.replace(
             moves=v.moves + ((p, self.factor),),
             keys={**v.keys, self.factor: v.keys[self.factor] + (key,)},

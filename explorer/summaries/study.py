@@ -34,6 +34,7 @@ from ..engine.errors import DataError, DesignError, EditError, ExplorerError, Re
 from ..engine.factorial import factorial_from_cells
 from ..engine.fitrows import RowSet
 from ..engine.groupstats import pool_groups
+from ..engine.numerics import read_only
 from ..engine.oneway import oneway_from_stats
 from ..engine.response_unit import SAFE, unit_exponent, unit_note
 from ..engine.results import Results
@@ -147,7 +148,7 @@ class SummaryStudy(Study):
             keys[f] = level_order(atoms.raw[j], f in self.prepared.numeric_factors)
         view = SummaryView(
             filters=(), moves=(), keys=keys, levels=dict(keys),
-            codes={f: _ro(np.arange(len(k), dtype=np.int64)) for f, k in keys.items()},
+            codes={f: read_only(np.arange(len(k), dtype=np.int64)) for f, k in keys.items()},
         )
         self._atom_cache[view.engine_state()] = atoms
         self.fingerprint = _fingerprint(atoms, spec, self.prepared.unit_exponent)
@@ -382,7 +383,8 @@ class SummaryStudy(Study):
             raise DesignError("no row sample is available (sample_size=0 or no rows left)")
         codes = self._codes(sv, self._sample_keys(frame))
         kept = ~self._set_aside_mask(sv, codes)
-        return DataView(kept=_ro(kept), codes={f: _ro(codes[:, j].astype(np.int32)) for j, f in enumerate(self.spec.columns)},
+        return DataView(kept=read_only(kept),
+                        codes={f: read_only(codes[:, j].astype(np.int32)) for j, f in enumerate(self.spec.columns)},
                         levels=dict(sv.levels))
 
     @property
@@ -635,11 +637,6 @@ def _summary_test(test: str) -> None:
             f"the {test} test needs every row, and a summary-backed study holds cell summaries; read the decision "
             "from 'classic', 'welch' or 'brown-forsythe' (exact from the summaries), or run the rank or permutation "
             "test on study.sample_study() (a seeded sample, and it says so)")
-
-
-def _ro(a: np.ndarray) -> np.ndarray:
-    a.setflags(write=False)
-    return a
 
 
 def _fingerprint(atoms: AtomTable, spec: ModelSpec, unit: int = 0) -> str:
