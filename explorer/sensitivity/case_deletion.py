@@ -24,16 +24,14 @@ import numpy as np
 import pandas as pd
 
 from ..engine.disclosure import Disclosure
-from ..engine.errors import ExplorerError, closest_names
 from ..engine.spec import alpha_or
 from ..engine.tables import fmt, html_table
 from .alternatives import (
     STATUS_NOTES,
     OnewayInput,
-    oneway_input,
 )
 from .chosen_test import STATISTIC_NAMES, ChosenTest
-from .mixed_guard import refuse_mixed
+from .scan_target import scan_target
 from .study_like import StudyLike, VerdictLike
 
 __all__ = ["CaseDeletionScan", "case_deletion_scan", "nullable"]
@@ -200,22 +198,6 @@ def _pairwise_change(
     return names[code], t_before, t_after
 
 
-def scored_term(study: StudyLike, term: str | None) -> tuple[str, VerdictLike]:
-    """The term a scan scores (``term``, else the one the study's decision is about) and its verdict.
-
-    Raises :class:`ExplorerError` naming the treatment terms when ``term`` is not one.
-    """
-    decision = study.decision
-    name = decision.term if term is None else str(term)
-    try:
-        return name, decision.verdict_for(name)
-    except KeyError:
-        names = [t.term for t in decision.terms]
-        near = closest_names(name, names)
-        hint = f" Did you mean {near[0]!r}?" if near else ""
-        raise ExplorerError(f"{name!r} is not a treatment term of this study; terms: {names}.{hint}") from None
-
-
 def case_deletion_scan(study: StudyLike, *, term: str | None = None, alpha: float | None = None,
                        record: bool = True) -> CaseDeletionScan:
     """Leave each kept row of ``study`` out in turn; see :class:`CaseDeletionScan`.
@@ -225,11 +207,10 @@ def case_deletion_scan(study: StudyLike, *, term: str | None = None, alpha: floa
     test. The study is not changed; the ``n`` alternatives examined are added to its
     disclosure count (``record=False`` skips that, for internal re-use).
     """
-    refuse_mixed(study, "case-deletion scan")
-    name, verdict = scored_term(study, term)
-    if not study.spec.is_oneway:
+    target = scan_target(study, "case-deletion scan", term)
+    name, verdict, data = target.term, target.verdict, target.oneway
+    if data is None:
         return _factorial_scan(study, name, verdict, alpha, record)
-    data = oneway_input(study, "the case-deletion scan")
     spec = study.spec
     a = alpha_or(alpha, data.alpha)
     chosen = ChosenTest(data, spec)

@@ -48,9 +48,9 @@ from ..engine.groupstats import group_stats
 from ..engine.spec import alpha_or
 from ..engine.studentized_range import srange_ppf, srange_sf
 from ..engine.tables import fmt, html_table
-from .alternatives import OnewayInput, evaluate_alternatives, oneway_input
+from .alternatives import OnewayInput, evaluate_alternatives
 from .chosen_test import ChosenTest
-from .mixed_guard import refuse_mixed
+from .scan_target import scan_target
 from .study_like import StudyLike, VerdictLike
 
 __all__ = ["FlipSearch", "flip_finder"]
@@ -275,22 +275,19 @@ def flip_finder(
     budget : largest number of row sets the exact search may score.
     max_steps : most removals the greedy search makes.
     """
-    from .case_deletion import scored_term
-
     if method not in ("auto", "exact", "greedy"):
         raise ExplorerError(f"method must be 'auto', 'exact' or 'greedy', not {method!r}")
     for name, value in (("budget", budget), ("max_size", max_size), ("max_steps", max_steps)):
         if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 1:
             raise ExplorerError(f"{name} must be a whole number of 1 or more, not {value!r}")
-    refuse_mixed(study, "flip finder")
-    name, verdict = scored_term(study, term)
+    scanned = scan_target(study, "flip finder", term)
+    name, verdict, data = scanned.term, scanned.verdict, scanned.oneway
     spec = study.spec
-    if not spec.is_oneway:
+    if data is None:
         if pair is not None:
             raise ExplorerError("pairwise flips are searched in one-factor studies; for this design search the "
                                 "F test of a term (leave out pair=)")
         return _factorial_flip(study, name, verdict, method, max_steps, alpha, record)
-    data = oneway_input(study, "the flip finder")
     a = alpha_or(alpha, data.alpha)
     chosen = ChosenTest(data, spec)
     pair_idx = None

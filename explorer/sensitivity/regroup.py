@@ -28,11 +28,10 @@ from ..engine.tables import fmt, html_table
 from .alternatives import (
     AlternativeFits,
     leave_one_out,
-    oneway_input,
 )
-from .case_deletion import nullable, scored_term
+from .case_deletion import nullable
 from .chosen_test import STATISTIC_NAMES, ChosenTest
-from .mixed_guard import refuse_mixed
+from .scan_target import scan_target
 from .study_like import StudyLike, VerdictLike
 
 __all__ = ["RegroupScan", "regroup_scan"]
@@ -136,16 +135,15 @@ def regroup_scan(
     The study is not changed; the alternatives examined are added to its disclosure.
     ``moves=False`` skips the row moves (``n (k - 1)`` alternatives).
     """
-    refuse_mixed(study, "regroup scan")
     if getattr(study.spec, "covariates", ()):
         raise ExplorerError(
             "the regroup scan scores merges and moves from cell means, which do not carry a covariate; with covariates "
             "try a merge as an edit (study.merge_levels, then undo) or list plausible merges in the robustness sweep "
             "(study.robustness_sweep(merges=[...]): each is refitted with the covariates)")
-    name, verdict = scored_term(study, term)
-    if not study.spec.is_oneway:
+    target = scan_target(study, "regroup scan", term)
+    name, verdict, data = target.term, target.verdict, target.oneway
+    if data is None:
         return _factorial_regroup(study, factor, name, verdict, alpha, moves, record)
-    data = oneway_input(study, "the regroup scan")
     if factor is not None and factor != data.factor:
         raise ExplorerError(f"factor {factor!r} is not the factor of this one-factor study ({data.factor!r})")
     spec = study.spec

@@ -56,10 +56,10 @@ from ..engine.tables import fmt, html_table
 from ..engine.transforms import NAMED, check_transform, with_transform
 from ..inference.omnibus import overall_test
 from ..inference.outliers import bonferroni_outlier_test
-from .alternatives import OnewayInput, oneway_input
+from .alternatives import OnewayInput
 from .case_deletion import nullable
 from .influence import influence_measures
-from .mixed_guard import refuse_mixed
+from .scan_target import scan_target
 from .study_like import StudyLike
 from .sweep_coincide import distinct_analyses
 
@@ -252,8 +252,7 @@ def _outlier_keep(res: Results, rule: str, alpha: float, scale: float, row_ids: 
     return ~infl.flagged("studentized" if rule == "studentized" else "cooks_4_over_n")
 
 
-def _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes):  # type: ignore[no-untyped-def]
-    data = oneway_input(study, "the robustness sweep")
+def _oneway_rows(study, data, outlier_rules, tests, transforms, merges, a, notes):  # type: ignore[no-untyped-def]
     merge_list = _check_merges(data, merges)
     responses = _responses(study.dataset, data.positions, transforms, notes)
     subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
@@ -383,10 +382,9 @@ def robustness_sweep(
     other tests are one-factor tests), each specification analysed by the engine on a
     derived view.
     """
-    from .case_deletion import scored_term
-
     spec = study.spec
-    name, verdict = scored_term(study, term)
+    target = scan_target(study, "robustness sweep", term)
+    name, verdict = target.term, target.verdict
     a = alpha_or(alpha, spec.alpha)
     outlier_rules = _check_options("outlier_rules", outlier_rules, OUTLIER_RULES)
     if tests is None:
@@ -394,9 +392,8 @@ def robustness_sweep(
     tests = _check_options("tests", tests, TESTS)
     transforms = _check_transforms(transforms, spec.transform)
     notes: list[str] = []
-    refuse_mixed(study, "robustness sweep")
-    if spec.is_oneway:
-        rows, responses = _oneway_rows(study, outlier_rules, tests, transforms, merges, a, notes)
+    if target.oneway is not None:
+        rows, responses = _oneway_rows(study, target.oneway, outlier_rules, tests, transforms, merges, a, notes)
     else:
         if tests != ("classic",):
             notes.append("Welch, Brown-Forsythe, rank and permutation tests are one-factor tests; this design is swept "
