@@ -31,7 +31,7 @@ from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import DesignError, ExplorerError, closest_names, preview
 from ..engine.groupstats import GroupStats
 from ..engine.numerics import read_only_copy
-from ..engine.pairwise import PairwiseTable, _check_confidence, _pairs, adjust_pvalues, simultaneous_pairs
+from ..engine.pairwise import PairwiseTable, _check_confidence, _names, _pairs, adjust_pvalues, simultaneous_pairs
 from ..engine.studentized_range import _outer_grid, srange_ppf, srange_sf
 from .oneway_inputs import require_oneway
 
@@ -146,7 +146,7 @@ def games_howell(results: Results, *, confidence: float | None = None) -> Pairwi
     return PairwiseTable(
         method="Games-Howell", adjustment=f"studentized range, {k} means, Welch df per pair",
         family_size=len(d), labels=gs.labels, estimates=read_only_copy(gs.original_means),
-        first=tuple(gs.labels[x] for x in i), second=tuple(gs.labels[x] for x in j),
+        first=_names(gs.labels, i), second=_names(gs.labels, j),
         difference=read_only_copy(d), se=read_only_copy(np.where(bad, np.nan, se)),
         df=read_only_copy(np.where(bad, np.nan, dfs)), statistic=read_only_copy(np.where(bad, np.nan, t)),
         pvalue=read_only_copy(p), ci_low=read_only_copy(lo), ci_high=read_only_copy(hi),
@@ -190,8 +190,8 @@ def pairwise_t(results: Results, *, adjust: Adjustment = "holm", confidence: flo
     names = {"holm": "Holm", "bonferroni": "Bonferroni", "none": "none (per comparison)"}
     return PairwiseTable(
         method="pairwise t (pooled variance)", adjustment=names[adjust_l], family_size=m,
-        labels=gs.labels, estimates=read_only_copy(gs.original_means), first=tuple(gs.labels[x] for x in i),
-        second=tuple(gs.labels[x] for x in j), difference=read_only_copy(d), se=read_only_copy(se),
+        labels=gs.labels, estimates=read_only_copy(gs.original_means), first=_names(gs.labels, i),
+        second=_names(gs.labels, j), difference=read_only_copy(d), se=read_only_copy(se),
         df=read_only_copy(np.full(m, float(df))), statistic=read_only_copy(t), pvalue=read_only_copy(p),
         ci_low=read_only_copy(d - crit * se), ci_high=read_only_copy(d + crit * se),
         confidence=confidence, notes=tuple(notes),

@@ -17,6 +17,7 @@ Chan, T. F., Golub, G. H. and LeVeque, R. J. (1983). The American Statistician 3
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from itertools import combinations
 from typing import Any
@@ -63,7 +64,7 @@ class SetAsideScan:
 
 
 def _decision(p: float | None, alpha: float) -> str | None:
-    if p is None:
+    if p is None or not math.isfinite(p):  # never a verdict from NaN
         return None
     return "differences detected" if p < alpha else "no differences detected"
 
