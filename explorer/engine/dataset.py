@@ -24,7 +24,7 @@ from .decimal_shift import shift_float, shift_text
 from .errors import ColumnError, DataError, EditError, closest_names, preview
 from .loading import read_table
 from .numerics import read_only
-from .response_unit import rescale, unit_exponent, unit_note
+from .response_unit import rescale, safe_unit, unit_exponent, unit_note
 from .table_checks import check_response_values, column_names, decimal_comma_hint, refuse_text_collisions, text_columns
 
 __all__ = ["Dataset", "SetAsideRow", "RowId", "build_dataset"]
@@ -321,7 +321,7 @@ def build_dataset(
         y, offset, offset_text = shift_text(t)
     else:
         y, offset, offset_text = shift_float(yv[usable])
-    y, offset, unit = _in_safe_unit(y, offset, yv[usable])
+    y, offset, unit = safe_unit(y, offset, yv[usable])
     if unit:
         notes.append(unit_note(response, unit))
     y = read_only(np.ascontiguousarray(y, dtype=np.float64))
@@ -351,7 +351,14 @@ def build_dataset(
         head += f"|covariates {'|'.join(cov_values)}".encode()
     kept_cov = {}
     for c, v in cov_values.items():
-        kept_cov[c] = read_only(np.ascontiguousarray(v[usable]))
+        kv = np.ascontiguousarray(v[usable])
+        e = unit_exponent(float(np.max(np.abs(kv - np.median(kv))))) if kv.size else 0
+        if e:  # as for the response: an exact power-of-two unit when squares would overflow or underflow
+            kv = rescale(kv, e)
+            notes.append(f"Covariate {c!r} in units of 2**{e}: its spread is so far from 1 that squares would "
+                         f"{'overflow' if e > 0 else 'underflow'}; its slope is per that unit, F tests and adjusted "
+                         "means do not depend on it.")
+        kept_cov[c] = read_only(kv)
     fingerprint = hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
     return Dataset(
         table=frame,
@@ -407,22 +414,6 @@ def _covariate_values(frame: pd.DataFrame, covariates: Sequence[str], response: 
         out[c] = v
     return out
 
-
-def _in_safe_unit(y: np.ndarray, offset: float, raw: np.ndarray) -> tuple[np.ndarray, float, int]:
-    """The shifted response and its offset in units of 2**e (see :mod:`.response_unit`), and e.
-
-    When the shift itself overflows (values of both signs near the float limit), the raw
-    values are scaled first: scaling by a power of two commutes with the subtraction.
-    """
-    if y.size and not np.all(np.isfinite(y)):
-        pre = 8
-        y, offset, _ = shift_float(rescale(raw, pre))
-        e = pre + unit_exponent(float(np.max(np.abs(y))))
-        return rescale(y, e - pre), float(np.ldexp(offset, pre - e)), e
-    e = unit_exponent(float(np.max(np.abs(y)))) if y.size else 0
-    if not e:
-        return y, offset, 0
-    return rescale(y, e), float(np.ldexp(offset, -e)), e
 
 
 def encode_digests(ids: np.ndarray, digests: np.ndarray) -> dict[str, Any]:

@@ -25,7 +25,9 @@ import math
 
 import numpy as np
 
-__all__ = ["SAFE", "pow2_factors", "rescale", "unit_exponent", "unit_note"]
+from .decimal_shift import shift_float
+
+__all__ = ["SAFE", "pow2_factors", "rescale", "safe_unit", "unit_exponent", "unit_note"]
 
 #: The shifted response is left in its own unit while its largest magnitude is within 2**-SAFE .. 2**SAFE.
 SAFE = 200
@@ -69,3 +71,20 @@ def unit_note(response: str, e: int) -> str:
         "Means, SDs, intervals, fitted values and residuals are in that unit and sums of squares in its square; "
         "F, p-values, effect sizes and decisions do not depend on the unit."
     )
+
+
+def safe_unit(y: np.ndarray, offset: float, raw: np.ndarray) -> tuple[np.ndarray, float, int]:
+    """The shifted response and its offset in units of 2**e (see the module docstring), and e.
+
+    When the shift itself overflows (values of both signs near the float limit), the raw
+    values are scaled first: scaling by a power of two commutes with the subtraction.
+    """
+    if y.size and not np.all(np.isfinite(y)):
+        pre = 8
+        y, offset, _ = shift_float(rescale(raw, pre))
+        e = pre + unit_exponent(float(np.max(np.abs(y))))
+        return rescale(y, e - pre), float(np.ldexp(offset, pre - e)), e
+    e = unit_exponent(float(np.max(np.abs(y)))) if y.size else 0
+    if not e:
+        return y, offset, 0
+    return rescale(y, e), float(np.ldexp(offset, -e)), e

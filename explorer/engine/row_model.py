@@ -170,7 +170,13 @@ def fit_rows(
     constant within the cells, or a term the kept rows cannot separate) or no residual
     df remain.
     """
-    x = design.matrix
+    # Columns scaled by powers of two to a largest magnitude in [0.5, 1) (exact): the rank decision
+    # and the projections no longer depend on a covariate's unit (a covariate near 1e300 or 1e-300
+    # would otherwise swamp, or vanish beside, the 0/1 columns). Spans, so sums of squares, are unchanged.
+    raw = design.matrix
+    peak = np.max(np.abs(raw), axis=0) if raw.size else np.ones(raw.shape[1])
+    d = np.ldexp(1.0, -np.frexp(np.where(peak > 0, peak, 1.0))[1])
+    x = raw * d
     n, p = x.shape
     y = np.asarray(y, dtype=np.float64)
     center = float(np.mean(y))
@@ -216,9 +222,11 @@ def fit_rows(
     coef_p = rinv @ (q.T @ z)
     coef = np.empty(p)
     coef[piv] = coef_p
+    coef = coef * d  # back to the design's own columns
     coef[0] += center
     cov = np.empty((p, p))
     cov[np.ix_(piv, piv)] = rinv @ rinv.T
+    cov = cov * d[:, None] * d[None, :]
     leverage = np.sum(q * q, axis=1)
     return RowFit(
         design=design, terms=terms, sequence=seq, coef=coef, cov_unscaled=cov, fitted=center + f_full,

@@ -29,6 +29,7 @@ import numpy as np
 
 from .errors import DataError, ExplorerError, preview
 from .numerics import read_only
+from .response_unit import safe_unit, unit_note
 
 if TYPE_CHECKING:
     from .dataset import Dataset
@@ -135,15 +136,17 @@ def with_transform(dataset: Dataset, transform: Transform) -> Dataset:
     hit = per.get(transform)
     if hit is not None:
         return hit  # type: ignore[no-any-return]
-    measured = base.y_original * (2.0 ** base.unit_exponent)
+    measured = np.ldexp(base.y_original, base.unit_exponent)  # exact, also where 2.0**e would overflow
     t = transform_values(measured, transform, base.response, base.row_ids)
     if not np.all(np.isfinite(t)):
         raise DataError(f"{transform_label(transform, base.response)} is not finite for some rows "
                         "(values too large for the power); choose another transform")
     med = float(np.median(t)) if t.size else 0.0
-    offset = float(np.float32(med)) if abs(med) >= 1 else 0.0
-    y = read_only(t - offset)
-    out = dataclasses.replace(base, y=y, offset=offset, offset_text=repr(offset), unit_exponent=0,
-                              transform=transform, untransformed=base)
+    offset = (float(np.float32(med)) if abs(med) < 3e38 else med) if abs(med) >= 1 else 0.0
+    y, offset, unit = safe_unit(t - offset, offset, t)  # transformed values far from 1 get a power-of-two unit too
+    y = read_only(y)
+    notes = base.notes + ((unit_note(transform_label(transform, base.response), unit),) if unit else ())
+    out = dataclasses.replace(base, y=y, offset=offset, offset_text=repr(offset), unit_exponent=unit,
+                              transform=transform, untransformed=base, notes=notes)
     per[transform] = out
     return out

@@ -123,7 +123,7 @@ def _too_deep(doc: Any) -> str | None:
 
     Only containers are visited; paths are spelled out only once a value is found too deep.
     """
-    stack: list[tuple[Any, int]] = [(doc, 0)]
+    stack: list[tuple[Any, int]] = [(doc, 0)] if isinstance(doc, (dict, list)) else []  # a bare value: not deep
     while stack:
         value, depth = stack.pop()
         if depth > MAX_DEPTH:

@@ -176,3 +176,34 @@ def test_summary_backed_study_matches_the_row_study(k):
         s = ex.SummaryStudy(_scaled(base, k), "y", "nozzle", sample_size=0)
     ref = stats.f_oneway(*[base.y[base.nozzle == lv] for lv in ("N1", "N2", "N3")])
     assert _close(s.results.statistic(), ref.statistic, 1e-9) and _close(s.results.pvalue(), ref.pvalue, 1e-7)
+
+
+@pytest.mark.parametrize("k_y,k_x", [(997, 0), (0, 997), (0, -997), (-997, 997)])
+def test_covariates_far_from_one_match_statsmodels_on_the_rescaled_data(k_y, k_x):
+    """Analysis of covariance with a response and/or covariate times 2**k: the treatment F equals statsmodels
+    ols('y ~ C(nozzle, Sum) + x') anova_lm(typ=2) on the unscaled data (F is invariant to both units)."""
+    smf = pytest.importorskip("statsmodels.formula.api")
+    from statsmodels.stats.anova import anova_lm
+
+    base = _base(n_per=10)
+    base = base.assign(x=np.random.default_rng(9).normal(size=len(base)))
+    frame = base.assign(y=np.ldexp(base.y.to_numpy(), k_y), x=np.ldexp(base.x.to_numpy(), k_x))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        s = ex.Study(frame, "y", "nozzle", covariates=["x"])
+    ref = anova_lm(smf.ols("y ~ C(nozzle, Sum) + x", data=base).fit(), typ=2)
+    assert _close(s.results.statistic("nozzle"), ref.loc["C(nozzle, Sum)", "F"], 1e-9)
+    assert _close(s.results.pvalue("nozzle"), ref.loc["C(nozzle, Sum)", "PR(>F)"], 1e-7)
+
+
+@pytest.mark.parametrize("transform,fn", [("log", np.log), ("sqrt", np.sqrt)])
+@pytest.mark.parametrize("k", [996, -996])
+def test_transforms_of_values_far_from_one(transform, fn, k):
+    """log and square root of the data times 2**k: reference f_oneway on the transformed unscaled data
+    (log adds a constant, the square root multiplies by 2**(k/2): F is unchanged)."""
+    base = _base().assign(y=lambda d: d.y + 5.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        r = ex.Study(_scaled(base, k), "y", "nozzle", transform=transform).results
+    ref = stats.f_oneway(*[fn(base.y[base.nozzle == lv]) for lv in ("N1", "N2", "N3")])
+    assert _close(r.statistic(), ref.statistic, 1e-8) and _close(r.pvalue(), ref.pvalue, 1e-6)
