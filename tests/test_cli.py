@@ -15,6 +15,7 @@ import pytest
 
 import explorer as ex
 from explorer.cli import EXIT_CODES, main
+from explorer.formatting import show_stat
 from explorer.report import CAUTIONS
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -49,7 +50,7 @@ def test_check_prints_tables_and_decision(capsys):
     code, out, err = run(capsys, "check", DEMO, *BASE)
     assert code == 0 and err == ""
     res = ex.Study(DEMO, response="thickness_um", factors="nozzle").results
-    assert f"{res.partition.row('nozzle').statistic:f}" in out
+    assert f" {show_stat(res.partition.row('nozzle').statistic)} " in out  # the one formatter's digits
     decision = ex.Study(DEMO, response="thickness_um", factors="nozzle").decision
     assert "Baseline (unedited data)" in out and decision.sentence() in out
     assert "Sensitivity of the decision" in out and "Disclosure:" in out

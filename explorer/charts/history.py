@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import altair as alt
 import pandas as pd
 
-from .style import CURRENT, GUIDE, WIDTH, finish
+from .style import CURRENT, GUIDE, WIDTH, finish, shown
 
 R2 = "#5b9a48"
 
@@ -44,7 +44,8 @@ def history_chart(steps: Sequence[HistoryStep], alpha: float, *, width: int | st
         frame = pd.DataFrame({"step": [], "action": [], "p": [], "r2": [], "edits": [], "decision": []})
     tip = [alt.Tooltip("step:Q"), alt.Tooltip("action:N", title="what was done"),
            alt.Tooltip("edits:Q", title="edits in effect"), alt.Tooltip("decision:N", title="decision on"),
-           alt.Tooltip("p:Q", title="p-value", format=".3g"), alt.Tooltip("r2:Q", title="R²", format=".3f")]
+           alt.Tooltip(f"{shown(frame, 'p', 'p')}:N", title="p-value"),
+           alt.Tooltip(f"{shown(frame, 'r2', 'share')}:N", title="R²")]
     x = alt.X("step:O", title="step", axis=alt.Axis(labelAngle=0))
     base = alt.Chart(frame).encode(x=x, tooltip=tip)
     pv = base.mark_line(point=True, color=CURRENT).encode(

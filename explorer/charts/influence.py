@@ -15,9 +15,10 @@ from explorer.engine import Results
 from explorer.engine.numerics import response_scale
 from explorer.sensitivity.influence import Influence, influence_measures
 
+from ..formatting import show_stat
 from .frames import MAX_POINTS, RowColumns, fit_frame, thin
 from .observations import pick_param, row_marks
-from .style import GUIDE, HEIGHT, KEPT, WIDTH, finish, id_labels
+from .style import GUIDE, HEIGHT, KEPT, WIDTH, finish, id_labels, shown
 
 __all__ = ["cooks_distance_chart", "influence_of"]
 
@@ -46,8 +47,9 @@ def cooks_distance_chart(results: Results, *, max_points: int = MAX_POINTS, widt
     frame["state"] = "in analysis"
     frame["aria"] = [f"row {r}: Cook's distance" for r in frame["row"]]
     tip = [alt.Tooltip("row:N", title="row id"), alt.Tooltip("level:N", title="level"),
-           alt.Tooltip("distance:Q", title="Cook's distance", format=".4g"),
-           alt.Tooltip("residual:Q", format=".4g"), alt.Tooltip("leverage:Q", format=".4g")]
+           alt.Tooltip(f"{shown(frame, 'distance', 'stat')}:N", title="Cook's distance"),
+           alt.Tooltip(f"{shown(frame, 'residual', 'measure')}:N", title="residual"),
+           alt.Tooltip(f"{shown(frame, 'leverage', 'stat')}:N", title="leverage")]
     if columns is not None:
         frame, tip = columns.attach(frame), tip + columns.tooltips()
     yard = infl.cutoffs["cooks_4_over_n"]
@@ -60,6 +62,6 @@ def cooks_distance_chart(results: Results, *, max_points: int = MAX_POINTS, widt
                               what="the 4/n line")
     layers = [stems, guide, row_marks(base, pick_param(), tip, size=35, legend=False)]
     chart = alt.layer(*layers, *([labels] if labels is not None else []))
-    sub = [f"Dashed line: 4/n = {yard:.3g}, a common rule of thumb for a closer look. {named}"]
+    sub = [f"Dashed line: 4/n = {show_stat(yard)}, a common rule of thumb for a closer look. {named}"]
     sub += [s for s in (*infl.notes, picked.note) if s]
     return finish(chart.properties(width=width, height=height), "Cook's distance by row", sub)

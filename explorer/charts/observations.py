@@ -16,7 +16,7 @@ import pandas as pd
 from explorer.study import Study
 
 from .frames import MAX_POINTS, column_fields, observation_frame
-from .style import HEIGHT, MEAN, PICKED, STATE_SCALE, WIDTH, finish, response_title
+from .style import HEIGHT, MEAN, PICKED, STATE_SCALE, WIDTH, finish, response_title, shown
 
 __all__ = ["PICK", "observations_chart"]
 
@@ -96,9 +96,9 @@ def observations_chart(study: Study, *, max_points: int = MAX_POINTS, factor: st
         lv["jitter"] = 1.55  # the interval sits to the right of the level's points
         mbase = alt.Chart(lv).encode(x=x, xOffset=alt.XOffset("jitter:Q", scale=_OFFSET))
         mtip = [alt.Tooltip("level:N", title=f), alt.Tooltip("n:Q", title="n in analysis"),
-                alt.Tooltip("mean:Q", title="mean", format=".4g"),
-                alt.Tooltip("low:Q", title=f"{pct} interval low", format=".4g"),
-                alt.Tooltip("high:Q", title=f"{pct} interval high", format=".4g")]
+                alt.Tooltip(f"{shown(lv, 'mean', 'measure')}:N", title="mean"),
+                alt.Tooltip(f"{shown(lv, 'low', 'measure')}:N", title=f"{pct} interval low"),
+                alt.Tooltip(f"{shown(lv, 'high', 'measure')}:N", title=f"{pct} interval high")]
         ci = mbase.mark_rule(color=MEAN, strokeWidth=2, opacity=0.8).encode(
             y=alt.Y("low:Q", title=y_title), y2="high:Q", tooltip=mtip)
         mean = mbase.mark_tick(color=MEAN, thickness=3, size=18).encode(y="mean:Q", tooltip=mtip)

@@ -7,7 +7,7 @@ import pandas as pd
 
 from explorer.engine import AnovaTable, Results
 
-from .style import BASELINE, HEIGHT, WIDTH, finish
+from .style import BASELINE, HEIGHT, WIDTH, finish, shown
 
 __all__ = ["BASELINE_LABEL", "CURRENT_LABEL", "partition_chart", "partition_frame"]
 
@@ -50,9 +50,10 @@ def partition_chart(baseline: Results, current: Results, *, width: int = WIDTH, 
         color=alt.Color("source:N", title="source", scale=alt.Scale(domain=terms + ["residual"], range=colours)),
         order=alt.Order("order:Q"),
         tooltip=[alt.Tooltip("view:N", title="data"), alt.Tooltip("source:N"), alt.Tooltip("df:Q"),
-                 alt.Tooltip("sum_sq:Q", title="sum of squares", format=".6g"),
-                 alt.Tooltip("mean_sq:Q", title="mean square", format=".6g"),
-                 alt.Tooltip("F:Q", format=".4g"), alt.Tooltip("p:Q", title="p-value", format=".4g")],
+                 alt.Tooltip(f"{shown(frame, 'sum_sq', 'ss')}:N", title="sum of squares"),
+                 alt.Tooltip(f"{shown(frame, 'mean_sq', 'ss')}:N", title="mean square"),
+                 alt.Tooltip(f"{shown(frame, 'F', 'stat')}:N", title="F"),
+                 alt.Tooltip(f"{shown(frame, 'p', 'p')}:N", title="p-value")],
     ).properties(width=width, height=height)
     sub = "Each bar is the corrected total; the coloured share is what the factor explains."
     return finish(bars, "Partition: unedited data and current view", sub)

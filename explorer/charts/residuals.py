@@ -15,9 +15,10 @@ from scipy import stats
 
 from explorer.engine import Results
 
+from ..formatting import show_share
 from .frames import MAX_POINTS, RowColumns, fit_frame, thin
 from .observations import pick_param, row_marks
-from .style import GUIDE, HEIGHT, WIDTH, finish, response_title
+from .style import GUIDE, HEIGHT, WIDTH, finish, response_title, shown
 
 __all__ = ["normal_probability_chart", "residuals_fitted_chart"]
 
@@ -41,8 +42,9 @@ def residuals_fitted_chart(results: Results, *, max_points: int = MAX_POINTS, wi
     frame = frame.iloc[picked.positions].copy()
     frame["state"] = "in analysis"
     frame["aria"] = _aria(frame, "residual")
-    tip = _row_tooltip([alt.Tooltip("observed:Q", format=".6g"), alt.Tooltip("fitted:Q", format=".6g"),
-                        alt.Tooltip("residual:Q", format=".4g")])
+    tip = _row_tooltip([alt.Tooltip(f"{shown(frame, 'observed', 'reading')}:N", title="observed"),
+                        alt.Tooltip(f"{shown(frame, 'fitted', 'measure')}:N", title="fitted"),
+                        alt.Tooltip(f"{shown(frame, 'residual', 'measure')}:N", title="residual")])
     if columns is not None:
         frame, tip = columns.attach(frame), tip + columns.tooltips()
     base = alt.Chart(frame).encode(
@@ -72,14 +74,14 @@ def normal_probability_chart(results: Results, *, max_points: int = MAX_POINTS, 
     lo, hi = float(quantiles.min()), float(quantiles.max())
     line = alt.Chart(alt.Data(values=[{"q": lo, "r": intercept + slope * lo}, {"q": hi, "r": intercept + slope * hi}]))
     line = line.mark_line(color=GUIDE, strokeDash=[4, 3]).encode(x="q:Q", y="r:Q")
-    tip = _row_tooltip([alt.Tooltip("residual:Q", format=".4g"), alt.Tooltip("quantile:Q", title="normal quantile",
-                                                                              format=".3f")])
+    tip = _row_tooltip([alt.Tooltip(f"{shown(frame, 'residual', 'measure')}:N", title="residual"),
+                        alt.Tooltip(f"{shown(frame, 'quantile', 'stat')}:N", title="normal quantile")])
     if columns is not None:
         frame, tip = columns.attach(frame), tip + columns.tooltips()
     base = alt.Chart(frame).encode(x=alt.X("quantile:Q", title="normal quantile"),
                                    y=alt.Y("residual:Q", title=response_title(results.spec, "ordered residual")))
     chart = alt.layer(line, row_marks(base, pick_param(), tip, size=45, legend=False)).properties(width=width, height=height)
-    sub = [f"Points near the dashed line suggest normal residuals (correlation {r:.4f})."]
+    sub = [f"Points near the dashed line suggest normal residuals (correlation {show_share(r)})."]
     if picked.note:
         sub.append(picked.note)
     return finish(chart, "Normal probability plot of residuals", sub)

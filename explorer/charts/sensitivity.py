@@ -23,7 +23,7 @@ from explorer.sensitivity.sweep import SweepResult
 
 from .frames import MAX_POINTS, thin
 from .observations import pick_param
-from .style import CURRENT, GUIDE, HEIGHT, LEFT_OUT, PICKED, WIDTH, finish, id_labels
+from .style import CURRENT, GUIDE, HEIGHT, LEFT_OUT, PICKED, WIDTH, finish, id_labels, shown
 
 __all__ = ["case_deletion_chart", "specification_curve_chart"]
 
@@ -55,8 +55,8 @@ def case_deletion_chart(scan: CaseDeletionScan, *, max_points: int = MAX_POINTS,
     frame["aria"] = [f"row {r}: p-value with the row left out" for r in frame["row"]]
     pick = pick_param()
     tip = [alt.Tooltip("row:N", title="row id"), alt.Tooltip("level:N"),
-           alt.Tooltip("p:Q", title="p-value without this row", format=".4g"),
-           alt.Tooltip("F:Q", title="statistic without this row", format=".4g"),
+           alt.Tooltip(f"{shown(frame, 'p', 'p')}:N", title="p-value without this row"),
+           alt.Tooltip(f"{shown(frame, 'F', 'stat')}:N", title="statistic without this row"),
            alt.Tooltip("effect:N", title="decision")]
     points = alt.Chart(frame).mark_point(filled=True, opacity=0.9).encode(
         x=alt.X("order:Q", title="row left out (table order)"),
@@ -94,7 +94,7 @@ def specification_curve_chart(sweep: SweepResult, *, width: int = WIDTH, height:
         "left out": t["left out"].to_numpy(),
     })
     frame = frame.dropna(subset=["rank"])
-    tip = [alt.Tooltip("rank:Q"), alt.Tooltip("p:Q", title="p-value", format=".4g"), "outlier rule", "test",
+    tip = [alt.Tooltip("rank:Q"), alt.Tooltip(f"{shown(frame, 'p', 'p')}:N", title="p-value"), "outlier rule", "test",
            "transform", "merges", alt.Tooltip("left out:Q", title="rows left out"),
            alt.Tooltip("agrees:N", title="current decision")]
     pts = alt.Chart(frame).mark_point(filled=True, size=45).encode(

@@ -13,7 +13,7 @@ import altair as alt
 
 __all__ = ["BASELINE", "CURRENT", "HEIGHT", "IN_ANALYSIS", "KEPT", "LEFT_OUT", "LEFT_OUT_STATE", "MEAN", "MOVED",
            "MOVED_STATE", "PICKED", "STATE_DOMAIN", "STATE_SCALE", "WIDTH", "finish", "id_labels",
-           "response_title", "split_subtitle"]
+           "response_title", "shown", "split_subtitle"]
 
 WIDTH = 380
 HEIGHT = 240
@@ -97,3 +97,13 @@ def split_subtitle(chart: alt.TopLevelMixin) -> tuple[alt.TopLevelMixin, list[st
     bare = title.copy(deep=True)
     bare.subtitle = alt.Undefined
     return chart.properties(title=bare), lines
+
+
+def shown(frame: Any, column: str, role: str) -> str:
+    """Add ``<column> shown``: the column's values as the kit writes them (:mod:`explorer.formatting`),
+    for hover text; returns the new field's name. The number drawn stays the full-precision one."""
+    from ..formatting import format_value
+
+    name = f"{column} shown"
+    frame[name] = [format_value(v, role) for v in frame[column].tolist()]
+    return name

@@ -6,6 +6,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from ..formatting import Scale
 from .dataset import Dataset, RowId
 from .oneway import fit_oneway
 from .response_unit import unit_note
@@ -34,7 +35,14 @@ def analyze(dataset: Dataset, view: DataView, spec: ModelSpec) -> Results:
         label = transform_label(spec.transform, spec.response)
         results = replace(results, notes=(f"Analysed on {label}: means, differences, intervals and residuals are on "
                                           "that scale.",) + results.notes)
-    return results
+    return _with_display(results, dataset.reading_decimals())
+
+
+def _with_display(results: Results, decimals: int | None) -> Results:
+    """The results with the readings' decimals and the units attached, for display only."""
+    shown = Scale(decimals=decimals, units=results.spec.units)
+    levels = {f: replace(t, display=shown) for f, t in results.levels.items()}
+    return replace(results, reading_decimals=decimals, levels=levels)
 
 
 def _fit(dataset: Dataset, view: DataView, spec: ModelSpec, positions: np.ndarray, dropped: tuple[RowId, ...],

@@ -26,7 +26,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from .tables import esc, fmt
+from ..formatting import show_share, show_ss
+from .tables import esc
 
 __all__ = ["BlockingEfficiency", "blocking_efficiency"]
 
@@ -45,8 +46,8 @@ class BlockingEfficiency:
 
     def _repr_html_(self) -> str:
         text = (
-            f"Relative efficiency of blocking: {fmt(self.relative_efficiency, 4)} (residual mean square "
-            f"{fmt(self.ms_resid_blocked)} with blocks against an estimated {fmt(self.ms_resid_unblocked)} without)"
+            f"Relative efficiency of blocking: {show_share(self.relative_efficiency)} (residual mean square "
+            f"{show_ss(self.ms_resid_blocked)} with blocks against an estimated {show_ss(self.ms_resid_unblocked)} without)"
         )
         notes = "".join(f"<div style='font-size:90%;color:#555'>{esc(n)}</div>" for n in self.notes)
         return f"<div>{esc(text)}</div>{notes}"

@@ -15,6 +15,7 @@ from itertools import product
 import numpy as np
 import pandas as pd
 
+from ..formatting import result_frame
 from .groupstats import GroupStats
 from .tables import html_table
 
@@ -145,7 +146,7 @@ class CellTable:
         frame["mean"] = self.mean
         if self.fitted is not None:
             frame["fitted mean"] = self.fitted
-        return frame
+        return result_frame(frame)
 
     def counts(self, rows: str, cols: str) -> pd.DataFrame:
         """Cell counts as a two-way table of ``rows`` by ``cols`` (summed over other columns)."""

@@ -20,6 +20,7 @@ from typing import Any, Union
 import numpy as np
 import pandas as pd
 
+from ..formatting import measurement_decimals
 from .decimal_shift import shift_float, shift_text
 from .errors import ColumnError, DataError, EditError, closest_names, preview
 from .loading import read_table
@@ -114,6 +115,7 @@ class Dataset:
     #: Numeric covariates of the usable rows (read-only float64), by column name.
     covariates: Mapping[str, np.ndarray] = field(default_factory=dict)
     _positions: dict[RowId, int] = field(default_factory=dict, repr=False)
+    _memo: dict[str, int | None] = field(default_factory=dict, repr=False)  # derived once from the frozen data
 
     @property
     def n(self) -> int:
@@ -122,6 +124,15 @@ class Dataset:
     @property
     def y_original(self) -> np.ndarray:
         return self.y + self.offset
+
+    def reading_decimals(self) -> int | None:
+        """Decimals the response was recorded with (0.1 µm steps: 1), from the usable rows as read;
+        ``None`` when the readings have no fixed decimal step. Shown numbers follow it
+        (:mod:`explorer.formatting`)."""
+        if "decimals" not in self._memo:
+            raw = pd.to_numeric(self.table[self.response], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+            self._memo["decimals"] = measurement_decimals(raw)
+        return self._memo["decimals"]
 
     def positions(self, rows: Iterable[RowId] | RowId) -> np.ndarray:
         """Positions (among usable rows) of the given row ids; clear error for unknown ids."""
@@ -155,6 +166,10 @@ class Dataset:
 
     def describe_ids(self) -> str:
         if self.id_source == "index":
+            index = self.table.index
+            if isinstance(index, pd.RangeIndex) and index.start == 0 and index.step == 1:
+                return ("rows are named by their 0-based position among the data rows (row 0 is the first row "
+                        "under the header); name an id column to use its values instead")
             return "row ids are the table's index labels"
         if self.id_source.startswith("column"):
             return f"row ids are the values of {self.id_source}"

@@ -39,10 +39,11 @@ from itertools import combinations
 import numpy as np
 import pandas as pd
 
+from ..formatting import result_frame, show_coefficient
 from .cellfit import CellFit, model_comparisons
 from .design import Term, term_columns
 from .spec import ModelSpec
-from .tables import fmt, html_table
+from .tables import html_table
 
 __all__ = [
     "complete_balanced", "ErrorTerm", "ExpectedMeanSquares", "error_terms", "expected_mean_squares", "is_random",
@@ -88,7 +89,7 @@ class ExpectedMeanSquares:
             if abs(c) < 1e-12:
                 continue
             name = "σ²" if comp == RESIDUAL else f"σ²[{comp}]"
-            parts.append(name if abs(c - 1) < 1e-12 else f"{fmt(c, 5)} {name}")
+            parts.append(name if abs(c - 1) < 1e-12 else f"{show_coefficient(c)} {name}")
         if self.fixed[i]:
             parts.append(f"fixed[{row}]")
         return " + ".join(parts) if parts else "0"
@@ -99,7 +100,7 @@ class ExpectedMeanSquares:
         frame.insert(1, "random", list(self.random_rows))
         frame["fixed effect"] = list(self.fixed)
         frame["expected mean square"] = [self.expression(r) for r in self.rows]
-        return frame
+        return result_frame(frame)
 
     def _repr_html_(self) -> str:
         return html_table(self.to_frame()[["source", "random", "expected mean square"]],
@@ -129,7 +130,7 @@ class ErrorTerm:
         for i, (name, c) in enumerate(self.parts):
             sign = "−" if c < 0 else "+"
             mag = abs(c)
-            piece = name if abs(mag - 1) < 1e-9 else f"{fmt(mag, 4)}·{name}"
+            piece = name if abs(mag - 1) < 1e-9 else f"{show_coefficient(mag)}·{name}"
             out += (piece if i == 0 and c > 0 else (f"{sign}{piece}" if i == 0 else f" {sign} {piece}"))
         return out
 

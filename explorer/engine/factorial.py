@@ -20,6 +20,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from ..formatting import show_p
 from .blocking import BlockingEfficiency, blocking_efficiency
 from .cellfit import SS_TYPES, CellFit, fit_cells
 from .cells import CellLayout, CellTable, layout_cells
@@ -37,7 +38,7 @@ from .numerics import is_zero_ss, response_scale
 from .oneway import NOT_FINITE
 from .results import LevelTable, Results
 from .spec import ModelSpec
-from .tables import AnovaTable, TermRow, fmt
+from .tables import AnovaTable, TermRow
 from .term_effects import term_effects
 from .variance_components import estimate_components
 from .view import DataView
@@ -119,7 +120,7 @@ def _type_notes(tables: dict[str, AnovaTable], fit: CellFit, balanced: bool, alp
             continue
         verdicts = {k: p < alpha for k, p in ps.items()}  # type: ignore[operator]
         if len(set(verdicts.values())) > 1:
-            detail = ", ".join(f"type {k} p = {fmt(p, 4)}" for k, p in ps.items())
+            detail = ", ".join(f"type {k} p = {show_p(p)}" for k, p in ps.items())
             notes.append(f"The types disagree about {name!r} at alpha {alpha:g}: {detail}.")
     return notes
 

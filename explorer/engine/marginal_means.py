@@ -30,6 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from ..formatting import result_frame
 from .cellfit import CellFit
 from .distributions import t_ppf
 from .pairwise import PairwiseTable, simultaneous_pairs
@@ -81,7 +82,7 @@ class MarginalMeans:
 
     def to_frame(self) -> pd.DataFrame:
         pct = f"{self.confidence:.0%}"
-        return pd.DataFrame(
+        return result_frame(
             {
                 "level": list(self.labels), "n": self.n, "raw mean": self.raw_mean,
                 "marginal mean": self.estimate, "standard error": self.se,

@@ -26,6 +26,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
+from ..formatting import result_frame
 from .distributions import t_ppf, t_two_sided_p
 from .errors import DesignError, ExplorerError, preview
 from .numerics import read_only_copy
@@ -100,7 +101,7 @@ class PairwiseTable:
         for c in frame.columns[2:]:
             frame[c] = pd.array(np.asarray(frame[c], dtype=float), dtype="Float64")
             frame[c] = frame[c].mask(frame[c].isna(), pd.NA)
-        return frame
+        return result_frame(frame)
 
     @property
     def title(self) -> str:

@@ -9,11 +9,22 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from ..formatting import (
+    Scale,
+    measurement_decimals,
+    result_frame,
+    scale,
+    show_measure,
+    show_p,
+    show_share,
+    show_stat,
+    text_table,
+)
 from .dataset import RowId
 from .errors import ExplorerError
 from .groupstats import GroupStats
 from .spec import ModelSpec
-from .tables import AnovaTable, esc, fmt, html_table
+from .tables import AnovaTable, esc, html_table
 
 if TYPE_CHECKING:  # multi-factor result parts (see factorial.py)
     from .aliasing import AliasedTerm
@@ -49,10 +60,11 @@ class LevelTable:
     own_high: np.ndarray
     confidence: float = 0.95
     notes: tuple[str, ...] = ()
+    display: Scale | None = None  # the readings' decimals and the units, for showing the table on its own
 
     def to_frame(self) -> pd.DataFrame:
         pct = f"{self.confidence:.0%}"
-        return pd.DataFrame(
+        frame = result_frame(
             {
                 "level": list(self.labels),
                 "n": self.n,
@@ -65,6 +77,9 @@ class LevelTable:
                 f"{pct} CI high (own SD)": self.own_high,
             }
         )
+        if self.display is not None:
+            frame.attrs.update(units=self.display.units, decimals=self.display.measure_decimals)
+        return frame
 
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), f"Levels of {self.factor}", self.notes)
@@ -93,8 +108,8 @@ class TwoSampleT:
     def _repr_html_(self) -> str:
         return (
             f"<div>Pooled t test, {esc(self.first)} − {esc(self.second)}: difference "
-            f"{fmt(self.difference)}, t = {fmt(self.statistic)} on {self.df} df, p = {fmt(self.pvalue)}, "
-            f"{self.confidence:.0%} CI ({fmt(self.ci_low)}, {fmt(self.ci_high)})</div>"
+            f"{show_measure(self.difference)}, t = {show_stat(self.statistic)} on {self.df} df, p = {show_p(self.pvalue)}, "
+            f"{self.confidence:.0%} CI ({show_measure(self.ci_low)}, {show_measure(self.ci_high)})</div>"
         )
 
 
@@ -111,7 +126,7 @@ class Fit:
     group: np.ndarray  # group (or cell) code of each kept row, into Results.groups
 
     def to_frame(self) -> pd.DataFrame:
-        return pd.DataFrame(
+        return result_frame(
             {"row": self.row_ids, "observed": self.y, "fitted": self.fitted,
              "residual": self.residuals, "leverage": self.leverage}
         )
@@ -152,6 +167,7 @@ class Results:
     # Models with random, nested or subject terms (ems.py, mixed_partition.py); empty/None otherwise.
     expected_mean_squares: "ExpectedMeanSquares | None" = None  # E(MS) of each row of the spec's type
     variance_components: "VarianceComponents | None" = None  # random terms and residual: estimates, intervals, shares
+    reading_decimals: int | None = None  # decimals the response was recorded with (display only)
     aliased: "tuple[AliasedTerm, ...]" = ()  # terms left out because the cells cannot separate them
     # Analysis of covariance (covariate_fit.py): slopes, the means adjusted to, the homogeneity-of-slopes check.
     covariates: "CovariateSummary | None" = None
@@ -191,14 +207,48 @@ class Results:
         """The classic F statistic of one term of the partition (``term`` may be left out with one factor)."""
         return self.partition.row(self._term(term)).statistic
 
+    def display_scale(self) -> Scale:
+        """How this result's numbers are shown: the decimals the readings were recorded with (from the
+        whole data set when known, else from the rows analysed) and the response's units."""
+        d = self.reading_decimals if self.reading_decimals is not None else measurement_decimals(self.fit.y)
+        return Scale(decimals=d, units=self.spec.units)
+
     def to_frame(self) -> pd.DataFrame:
-        return self.partition.to_frame()
+        """The partition (full precision; it displays with the kit's digits and the response's units)."""
+        frame = self.partition.to_frame()
+        frame.attrs.update(units=self.spec.units)
+        return frame
+
+    def summary_line(self) -> str:
+        """``n = 114, R² = 0.077, residual SD = 2.35 µm``."""
+        units = f" {self.spec.units}" if self.spec.units and self.residual_sd is not None else ""
+        return (f"n = {self.n_used}, R² = {show_share(self.r_squared)}, "
+                f"residual SD = {show_measure(self.residual_sd)}{units}")
+
+    def to_text(self) -> str:
+        """Short plain text: the partition, one summary line and the level tables (``study.decision``
+        states what they conclude)."""
+        with scale(of=self.display_scale()):
+            parts = [self.partition.title_line(), text_table(self.partition.to_frame()), self.summary_line()]
+            for factor, table in self.levels.items():
+                parts += ["", f"Levels of {factor}:", text_table(table.to_frame().iloc[:, :5])]
+            parts += [f"Note: {n}" for n in self.notes]
+        return "\n".join(parts)
+
+    def __str__(self) -> str:
+        return self.to_text()
+
+    def __repr__(self) -> str:
+        factors = " × ".join(self.spec.factors)
+        return f"<Results {self.spec.response} by {factors}: n = {self.n_used}; print() for the tables>"
 
     def _repr_html_(self) -> str:
+        with scale(of=self.display_scale()):
+            return self._html()
+
+    def _html(self) -> str:
         parts = [self.partition._repr_html_()]
-        parts.append(
-            f"<div>n = {self.n_used}, R² = {fmt(self.r_squared, 4)}, residual SD = {fmt(self.residual_sd, 4)}</div>"
-        )
+        parts.append(f"<div>{esc(self.summary_line())}</div>")
         for table in self.levels.values():
             parts.append(table._repr_html_())
         extras: list[Any] = [self.covariates, *self.marginal_means.values(), self.term_effects, self.blocking,

@@ -126,9 +126,17 @@ class ModelSpec:
     test: str = "classic"
     transform: str | float = "none"
     covariates: tuple[str, ...] = field(default=())
+    units: str = ""  # units of the response (e.g. "µm"), for axis titles and table headings only
 
     def __post_init__(self) -> None:
         setf = object.__setattr__
+        if not isinstance(self.units, str):
+            raise ExplorerError(f"units must be text such as 'µm' or 'mg/L', not {self.units!r}")
+        units = self.units.strip()
+        if len(units) > 24 or any(ord(ch) < 32 or ch in "<>&\"'" for ch in units):
+            raise ExplorerError(f"units {self.units!r}: give a short unit such as 'µm' or 'mg/L' "
+                                "(at most 24 characters, no markup or control characters)")
+        setf(self, "units", units)
         setf(self, "response", column_names(self.response, "response")[0])
         for name in ("factors", "blocks", "random", "within", "covariates"):
             value = getattr(self, name)
@@ -305,6 +313,8 @@ class ModelSpec:
             d["transform"] = self.transform
         if self.covariates:
             d["covariates"] = list(self.covariates)
+        if self.units:
+            d["units"] = self.units
         return d
 
     @classmethod
@@ -326,6 +336,7 @@ class ModelSpec:
             test=d.get("test", "classic"),
             transform=d.get("transform", "none"),
             covariates=tuple(d.get("covariates", ())),
+            units=d.get("units", ""),
             variance_method=d.get("variance_method", "auto"),
         )
 

@@ -11,8 +11,9 @@ import html
 from dataclasses import dataclass, field
 from typing import Any
 
-import numpy as np
 import pandas as pd
+
+from ..formatting import format_value, html_cells, result_frame
 
 __all__ = ["TermRow", "AnovaTable", "COLUMNS", "ERROR_COLUMNS", "html_table", "fmt", "esc"]
 
@@ -28,56 +29,46 @@ def esc(value: object) -> str:
     return html.escape(str(value), quote=True)
 
 
-def fmt(x: Any, digits: int = 6) -> str:
-    """Display a number with ``digits`` significant digits; '—' for undefined."""
-    if x is None or x is pd.NA:
-        return "—"
-    if isinstance(x, (bool, np.bool_)):
-        return "yes" if x else "no"
-    if isinstance(x, (int,)):
-        return str(x)
-    try:
-        xf = float(x)
-    except (TypeError, ValueError):
-        return esc(str(x))
-    if xf != xf:
-        return "—"
-    if xf == 0:
-        return "0"
-    if abs(xf) < 1e-4:
-        return f"{xf:.{max(digits - 3, 2)}e}"
-    return f"{xf:.{digits}g}"
+def fmt(x: Any, digits: int | None = None) -> str:
+    """A number as the kit shows numbers of no stated kind (:func:`explorer.formatting.format_value`,
+    4 significant digits); text is HTML-escaped. Prefer the role functions of
+    :mod:`explorer.formatting` (``show_p``, ``show_stat``, ...); ``digits`` is ignored."""
+    if isinstance(x, str):
+        return esc(x)
+    return format_value(x, "number")
 
 
 #: Rows an HTML table shows at most (the rest stay in the value's ``to_frame()``).
 MAX_HTML_ROWS = 500
 
 
-def html_table(frame: pd.DataFrame, caption: str = "", notes: tuple[str, ...] = (), digits: int = 6) -> str:
+def html_table(frame: pd.DataFrame, caption: str = "", notes: tuple[str, ...] = (), digits: int | None = None) -> str:
     """A small self-contained HTML table (no styling framework needed).
 
-    Each cell carries its column heading (``data-label``) and the table its column count
-    (``vx-cols-N``), so a narrow page can stack a row into "heading: value" lines. At most
+    Numbers go through the one formatter (:func:`explorer.formatting.format_frame`: each
+    column by its role, units in the headings under a display scale). Each cell carries its
+    column heading (``data-label``) and the table its column count (``vx-cols-N``), so a
+    narrow page can stack a row into "heading: value" lines. At most
     :data:`MAX_HTML_ROWS` rows are shown, with a note saying how many there are.
+    ``digits`` is ignored.
     """
     if len(frame) > MAX_HTML_ROWS:
         notes = (f"Showing the first {MAX_HTML_ROWS:,} of {len(frame):,} rows; the whole table is in to_frame().",
                  *notes)
         frame = frame.iloc[:MAX_HTML_ROWS]
-    labels = [esc(str(c)) for c in frame.columns]
-    head = "".join(f"<th>{c}</th>" for c in labels)
+    heads, rows = html_cells(frame)
+    head = "".join(f"<th>{c}</th>" for c in heads)
     body = []
-    for _, row in frame.iterrows():
+    for row in rows:
         cells = "".join(
-            f"<td data-label='{lab}'>{esc(v)}</td>" if isinstance(v, str)
-            else f"<td class='vx-num' data-label='{lab}'>{fmt(v, digits)}</td>"
-            for lab, v in zip(labels, row.tolist())
+            f"<td class='vx-num' data-label='{lab}'>{text}</td>" if num else f"<td data-label='{lab}'>{text}</td>"
+            for lab, (text, num) in zip(heads, row)
         )
         body.append(f"<tr>{cells}</tr>")
     cap = f"<caption style='text-align:left;font-weight:600'>{esc(caption)}</caption>" if caption else ""
     foot = "".join(f"<div style='font-size:90%;color:#555'>{esc(n)}</div>" for n in notes)
     return (
-        f"<table class='vx-table vx-cols-{len(labels)}'>{cap}<thead><tr>{head}</tr></thead>"
+        f"<table class='vx-table vx-cols-{len(heads)}'>{cap}<thead><tr>{head}</tr></thead>"
         f"<tbody>{''.join(body)}</tbody></table>{foot}"
     )
 
@@ -144,10 +135,14 @@ class AnovaTable:
         if any(r.error_term is not None for r in self.rows):
             frame[ERROR_COLUMNS[0]] = [r.error_term or "" for r in self.rows]
             frame[ERROR_COLUMNS[1]] = pd.array([r.df_error for r in self.rows], dtype="Float64")
-        return frame
+        return result_frame(frame)
+
+    def title_line(self) -> str:
+        """The table's caption as one line of text."""
+        return f"{self.title} ({self.ss_caption})"
 
     def _repr_html_(self) -> str:
-        caption = f"{self.title} ({self.ss_caption})"
+        caption = self.title_line()
         out = html_table(self.to_frame(), caption, self.notes)
         if self.aliased:  # named inside the table, below the fitted terms
             width = len(self.to_frame().columns)

@@ -42,6 +42,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from ..formatting import result_frame
 from .noncentral_f import confidence_matching_test, f_test_power, noncentrality_interval
 from .tables import AnovaTable, html_table
 
@@ -101,7 +102,7 @@ class TermEffects:
             ci = getattr(r, name)
             return None if ci is None else ci[i]
 
-        return pd.DataFrame(
+        return result_frame(
             {
                 "term": [r.term for r in self.rows],
                 "df": [r.df for r in self.rows],
@@ -114,7 +115,8 @@ class TermEffects:
                 "Cohen's f (partial)": col([r.cohens_f for r in self.rows]),
                 f"power at alpha {self.alpha:g}" if self.alpha is not None else "power": col(
                     [r.power for r in self.rows]),
-            }
+            },
+            roles={f"{pct}CI low (partial)": "share", f"{pct}CI high (partial)": "share"},
         )
 
     def _repr_html_(self) -> str:

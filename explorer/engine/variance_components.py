@@ -37,6 +37,7 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
+from ..formatting import result_frame
 from .cellfit import CellFit
 from .design import Term
 from .ems import RESIDUAL, ExpectedMeanSquares, is_random, random_indicators
@@ -137,7 +138,7 @@ class VarianceComponents:
 
     def to_frame(self) -> pd.DataFrame:
         pct = f"{self.confidence:.0%}"
-        return pd.DataFrame({
+        return result_frame({
             "source": [c.source for c in self.components],
             "variance": [c.estimate for c in self.components],
             "SD": [c.sd for c in self.components],

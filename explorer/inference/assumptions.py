@@ -38,7 +38,8 @@ from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
 from ..engine.groupstats import group_stats
 from ..engine.spec import TEST_LABELS, alpha_or
-from ..engine.tables import esc, fmt
+from ..engine.tables import esc
+from ..formatting import result_frame, show_df, show_p, show_stat
 from .oneway_inputs import row_sample_notes
 
 if TYPE_CHECKING:
@@ -69,16 +70,16 @@ class CheckResult:
 
     def row(self) -> dict[str, object]:
         return {"check": self.method, "tests": self.tests, "statistic": self.statistic,
-                "df": ", ".join(fmt(d, 5) for d in self.df), "p-value": self.pvalue, "limits": self.limits}
+                "df": ", ".join(show_df(d) for d in self.df), "p-value": self.pvalue, "limits": self.limits}
 
     def to_frame(self) -> pd.DataFrame:
-        return pd.DataFrame([self.row()])
+        return result_frame([self.row()])
 
     def _repr_html_(self) -> str:
         notes = "".join(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
         return (
-            f"<div><b>{esc(self.method)}</b> ({esc(self.tests)}): statistic {fmt(self.statistic)}, "
-            f"p = {fmt(self.pvalue)}. <i>{esc(self.limits)}</i>{notes}</div>"
+            f"<div><b>{esc(self.method)}</b> ({esc(self.tests)}): statistic {show_stat(self.statistic)}, "
+            f"p = {show_p(self.pvalue)}. <i>{esc(self.limits)}</i>{notes}</div>"
         )
 
 
@@ -273,10 +274,10 @@ def recommend(results: Results, spread: CheckResult, normality: CheckResult, *, 
     bal = "equal" if balanced else f"unequal ({int(n.min())} to {int(n.max())})"
     sp = (("spreads look different" if differ else "spreads look similar") if differ is not None
           else "spreads could not be compared")
-    sp += f" ({spread.method}, p = {fmt(spread.pvalue, 3)})" if spread.pvalue is not None else ""
+    sp += f" ({spread.method}, p = {show_p(spread.pvalue)})" if spread.pvalue is not None else ""
     nm = (("residuals depart from normal" if nonnormal else "residuals look normal") if nonnormal is not None
           else "normality could not be checked")
-    nm += f" (Shapiro-Wilk, p = {fmt(normality.pvalue, 3)})" if normality.pvalue is not None else ""
+    nm += f" (Shapiro-Wilk, p = {show_p(normality.pvalue)})" if normality.pvalue is not None else ""
     parts = [
         "Welch's F (Games-Howell for pairs) is suggested before looking at the data: it keeps its error rate "
         "whether or not the level spreads are equal and loses little power when they are, which is why "

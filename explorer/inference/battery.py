@@ -23,6 +23,7 @@ import pandas as pd
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.spec import alpha_or
 from ..engine.tables import esc, html_table
+from ..formatting import Scale, result_frame, scale, show_p, show_share, text_table
 from .assumptions import (
     CheckResult,
     Recommendation,
@@ -160,6 +161,7 @@ class Battery:
     robust_z: OutlierScreen
     options: tuple[tuple[str, object], ...] = ()
     notes: tuple[str, ...] = field(default=())
+    display: Scale | None = None  # the readings' decimals and units of the results it ran on
 
     def __getattribute__(self, name: str) -> Any:
         return resolve(object.__getattribute__(self, name))
@@ -195,19 +197,57 @@ class Battery:
         frame = pd.DataFrame([t.row() for t in self.omnibus])
         for c in ("statistic", "df (numerator)", "df (denominator)", "p-value"):
             frame[c] = pd.array([None if v is None else float(v) for v in frame[c]], dtype="Float64")
-        return frame
+        return result_frame(frame)
 
     def checks_frame(self) -> pd.DataFrame:
         frame = pd.DataFrame([c.row() for c in self.checks])
         for c in ("statistic", "p-value"):
             frame[c] = pd.array([None if v is None else float(v) for v in frame[c]], dtype="Float64")
-        return frame
+        return result_frame(frame)
 
     def to_frame(self) -> pd.DataFrame:
         """The omnibus tests (the other parts have their own ``to_frame``)."""
         return self.omnibus_frame()
 
+    def to_text(self) -> str:
+        """Short plain text: the tests, the checks, the suggested test, the featured comparisons, effect
+        size, power and the rows the screens flag (``print(battery)``)."""
+        with scale(of=self.display or Scale()):
+            tests = self.omnibus_frame()[["test", "statistic", "df (numerator)", "df (denominator)", "p-value"]]
+            checks = self.checks_frame()[["check", "statistic", "p-value"]]
+            table = self.tukey.to_frame()
+            keep = [c for c in table.columns if c in ("first", "second", "difference") or c.startswith("p-value")
+                    or "low" in c or "high" in c]
+            parts = [f"Tests of equal level means (alpha {self.alpha:g}):", text_table(tests), "",
+                     "Assumption checks:", text_table(checks), "",
+                     f"Suggested test: {self.recommendation.test}.", "",
+                     f"{self.tukey.method} comparisons:", text_table(table[keep]), "",
+                     "Letters (same letter: not declared different): "
+                     + ", ".join(f"{lv} {lt}" for lv, lt in zip(self.letters.labels, self.letters.letters))]
+            if self.effect_sizes is not None:
+                e = self.effect_sizes
+                lo, hi = e.ci_proportion if e.ci_proportion else (None, None)
+                parts.append(f"eta squared {show_share(e.eta_squared)} ({e.confidence:.0%} interval "
+                             f"{show_share(lo)} to {show_share(hi)}); omega squared {show_share(e.omega_squared)}")
+            if self.power is not None:
+                parts.append(f"power of the F test {show_share(self.power.power)}")
+            flagged = "; ".join(f"{k}: {', '.join(map(str, v))}" for k, v in self.flagged_rows().items() if v)
+            parts.append(f"Rows flagged by the screens (none left out): {flagged or 'none'}")
+            parts += list(self.notes)
+        return "\n".join(parts)
+
+    def __str__(self) -> str:
+        return self.to_text()
+
+    def __repr__(self) -> str:
+        return (f"<Battery at alpha {self.alpha:g}: classic F p = {show_p(self.classic.pvalue)}, Welch F p = "
+                f"{show_p(self.welch.pvalue)}, suggested {self.recommendation.test}; print() for the tables>")
+
     def _repr_html_(self) -> str:
+        with scale(of=self.display or Scale()):
+            return self._html()
+
+    def _html(self) -> str:
         parts = [
             html_table(self.omnibus_frame(), "Tests of equal level means"),
             html_table(self.checks_frame(), "Assumption checks"),
@@ -332,4 +372,5 @@ def run_battery(
         robust_z=robust_z_screen(results, cutoff=robust_cutoff),
         options=options,
         notes=tuple(notes),
+        display=results.display_scale(),
     )

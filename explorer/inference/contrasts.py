@@ -47,7 +47,8 @@ from ..engine.distributions import f_sf, t_ppf, t_two_sided_p
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import show_df, show_measure, show_p, show_stat
 from .level_means import LevelMeans, level_means
 
 __all__ = [
@@ -69,8 +70,8 @@ class JointTest:
     pvalue: float | None
 
     def sentence(self) -> str:
-        return (f"{self.label}: F = {fmt(self.statistic, 5)} on ({self.df_num}, {fmt(self.df_den, 5)}) df, "
-                f"p = {fmt(self.pvalue, 4)}.")
+        return (f"{self.label}: F = {show_stat(self.statistic)} on ({self.df_num}, {show_df(self.df_den)}) df, "
+                f"p = {show_p(self.pvalue)}.")
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -161,7 +162,7 @@ class ContrastTable:
         return f"{self.title}\n{body}" + (f"\n{extra}" if extra else "")
 
     def __repr__(self) -> str:
-        rows = "; ".join(f"{n}: {fmt(e, 5)} (p {fmt(p, 3)})" for n, e, p in zip(self.names, self.estimate, self.adjusted))
+        rows = "; ".join(f"{n}: {show_measure(e)} (p {show_p(p)})" for n, e, p in zip(self.names, self.estimate, self.adjusted))
         return f"ContrastTable({self.factor!r}, {self.family}, {self.adjustment}: {rows})"
 
 
@@ -290,7 +291,7 @@ def contrast_table(
         r = k - 1
         padj = np.asarray(f_sf(t * t / r, r, df), dtype=float)
         crit = float(np.sqrt(r * special.fdtri(r, df, conf)))
-        out_notes.append(f"Scheffe: protects every contrast among the {k} means (F on {r} and {fmt(df, 5)} df), "
+        out_notes.append(f"Scheffe: protects every contrast among the {k} means (F on {r} and {show_df(df)} df), "
                          "including ones chosen after seeing the data.")
     else:  # dunnett, one-way control set
         from .comparisons import dunnett

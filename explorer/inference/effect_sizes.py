@@ -45,6 +45,7 @@ from ..engine.errors import ExplorerError
 from ..engine.noncentral_f import confidence_matching_test, noncentrality_interval, zero_statement
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
+from ..formatting import result_frame, show_share
 from .oneway_inputs import require_oneway
 
 if TYPE_CHECKING:
@@ -92,7 +93,7 @@ class EffectSizes:
         })
         for c in frame.columns[1:]:
             frame[c] = pd.array([None if v is None else float(v) for v in frame[c]], dtype="Float64")
-        return frame
+        return result_frame(frame, roles={c: "share" for c in frame.columns[1:]})  # proportions, not the response
 
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), "Effect sizes (interval: population proportion of variance explained)",
@@ -124,7 +125,8 @@ def effect_sizes(results: Results, *, confidence: float | None = None, alpha: fl
     omega2, eps2 = max(omega_raw, 0.0), max(eps_raw, 0.0)
     if omega_raw < 0:
         notes.append(
-            f"Omega and epsilon squared are negative before the floor ({omega_raw:.4g}, {eps_raw:.4g}) because F < 1; "
+            f"Omega and epsilon squared are negative before the floor ({show_share(omega_raw)}, "
+            f"{show_share(eps_raw)}) because F < 1; "
             "shown as 0 (no variance explained)."
         )
     cohens_f = float(np.sqrt(eta2 / (1 - eta2))) if eta2 < 1 else None

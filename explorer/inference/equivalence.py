@@ -43,7 +43,8 @@ from ..engine.errors import DesignError, ExplorerError
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
 from ..engine.spec import alpha_or
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import show_measure
 from .level_means import level_means
 
 __all__ = ["EquivalenceTable", "equivalence", "parse_margin"]
@@ -86,7 +87,7 @@ class EquivalenceTable:
 
     @property
     def title(self) -> str:
-        return (f"Equivalence of the {self.means} of {self.factor} within ({fmt(self.low, 6)}, {fmt(self.high, 6)}): "
+        return (f"Equivalence of the {self.means} of {self.factor} within ({show_measure(self.low)}, {show_measure(self.high)}): "
                 f"two one-sided tests at alpha {self.alpha:g}"
                 + ("" if self.adjustment == "none" else f", {self.adjustment} over {len(self.first)} pairs"))
 
@@ -191,7 +192,7 @@ def equivalence(
     crit = float(t_ppf(1 - a, df))
     lo, hi = d - crit * se, d + crit * se
     notes = [
-        f"The margin ({fmt(low, 6)}, {fmt(high, 6)}) is the user's, in response units; the kit does not propose "
+        f"The margin ({show_measure(low)}, {show_measure(high)}) is the user's, in response units; the kit does not propose "
         "margins. Fix it before looking at the data.",
         f"Equivalence at alpha {a:g} is the same claim as the {1 - 2 * a:.0%} interval lying inside the margin.",
     ]

@@ -28,6 +28,7 @@ import pandas as pd
 
 from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
+from ..formatting import result_frame
 from .comparisons import PairwiseTable
 
 __all__ = ["MAX_LEVELS", "MAX_WORK", "LetterDisplay", "compact_letters"]
@@ -67,7 +68,7 @@ class LetterDisplay:
             raise ExplorerError(f"no level {level!r}; levels are {list(self.labels)}") from None
 
     def to_frame(self) -> pd.DataFrame:
-        return pd.DataFrame({"level": list(self.labels), "estimate": self.estimates, "letters": list(self.letters)})
+        return result_frame({"level": list(self.labels), "estimate": self.estimates, "letters": list(self.letters)})
 
     def _repr_html_(self) -> str:
         cap = f"Letters (same letter: not declared different by {self.method} at alpha {self.alpha:g})"

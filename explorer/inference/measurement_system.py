@@ -40,6 +40,7 @@ from ..engine.ems import RESIDUAL
 from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
 from ..engine.variance_components import NEGATIVE_RULE, VarianceComponents
+from ..formatting import result_frame
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -96,7 +97,7 @@ class MeasurementSystem:
             data["share of tolerance"] = [x.share_of_tolerance for x in self.lines]
         data[f"variance {pct} CI low"] = pd.array([x.ci_low for x in self.lines], dtype="Float64")
         data[f"variance {pct} CI high"] = pd.array([x.ci_high for x in self.lines], dtype="Float64")
-        return pd.DataFrame(data)
+        return result_frame(data)
 
     def _repr_html_(self) -> str:
         ndc = "—" if self.distinct_categories is None else str(self.distinct_categories)

@@ -27,7 +27,8 @@ import numpy as np
 import pandas as pd
 
 from ..engine.errors import ExplorerError
-from ..engine.tables import esc, fmt
+from ..engine.tables import esc
+from ..formatting import result_frame, show_df, show_number, show_p, show_stat
 from .omnibus_batch import brown_forsythe_batch, kruskal_batch, welch_batch
 from .oneway_inputs import require_oneway, row_sample_notes
 
@@ -80,20 +81,20 @@ class OmnibusTest:
         }
 
     def to_frame(self) -> pd.DataFrame:
-        return pd.DataFrame([self.row()])
+        return result_frame([self.row()])
 
     def _repr_html_(self) -> str:
-        dfs = ", ".join(fmt(x, 5) for x in (self.df_num, self.df_den) if x is not None)
-        extra = "; ".join(f"{esc(k)} {fmt(v) if not isinstance(v, str) else esc(v)}"
+        dfs = ", ".join(show_number(x) for x in (self.df_num, self.df_den) if x is not None)
+        extra = "; ".join(f"{esc(k)} {show_stat(v) if not isinstance(v, str) else esc(v)}"
                           for k, v in self.details)
         if self.original_pvalue is not None:
-            first = (f"with the original k - 1 = {fmt(self.original_df_num, 5)} numerator df, "
-                     f"p = {fmt(self.original_pvalue)} (liberal when variances differ)")
+            first = (f"with the original k - 1 = {show_df(self.original_df_num)} numerator df, "
+                     f"p = {show_p(self.original_pvalue)} (liberal when variances differ)")
             extra = f"{extra}; {first}" if extra else first
         notes = "".join(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
         return (
-            f"<div><b>{esc(self.method)}</b>: statistic {fmt(self.statistic)}"
-            f"{f' on ({dfs}) df' if dfs else ''}, p = {fmt(self.pvalue)}"
+            f"<div><b>{esc(self.method)}</b>: statistic {show_stat(self.statistic)}"
+            f"{f' on ({dfs}) df' if dfs else ''}, p = {show_p(self.pvalue)}"
             f"{'; ' + extra if extra else ''}. <i>Assumes {esc(self.assumes)}.</i>{notes}</div>"
         )
 

@@ -34,7 +34,8 @@ import pandas as pd
 from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import ExplorerError
 from ..engine.numerics import read_only_copy
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import result_frame, show_stat
 from .oneway_inputs import row_sample_notes
 
 if TYPE_CHECKING:
@@ -76,10 +77,10 @@ class OutlierScreen:
         """Flagged rows with their scores (empty when nothing is flagged)."""
         ids = list(self.flagged)
         pos = {r: i for i, r in enumerate(self.row_ids.tolist())}
-        return pd.DataFrame({"row": ids, "score": [float(self.scores[pos[r]]) for r in ids]})
+        return result_frame({"row": ids, "score": [float(self.scores[pos[r]]) for r in ids]})
 
     def _repr_html_(self) -> str:
-        cap = f"{self.method}: {self.rule} (threshold {fmt(self.threshold, 5)}); {len(self.flagged)} row(s) flagged"
+        cap = f"{self.method}: {self.rule} (threshold {show_stat(self.threshold)}); {len(self.flagged)} row(s) flagged"
         return html_table(self.to_frame(), cap, self.notes)
 
 

@@ -25,7 +25,8 @@ import numpy as np
 from ..engine.errors import ExplorerError
 from ..engine.noncentral_f import f_test_power as _f_power
 from ..engine.spec import alpha_or
-from ..engine.tables import esc, fmt
+from ..engine.tables import esc
+from ..formatting import show_share
 from .oneway_inputs import require_oneway
 
 if TYPE_CHECKING:
@@ -109,9 +110,9 @@ class PowerPlan:
 
     def sentence(self) -> str:
         need = (f"{self.n_per_level_needed} per level ({self.n_per_level_needed * self.k} in all) reach power "
-                f"{fmt(self.target_power, 3)}" if self.n_per_level_needed else "no group size computed")
-        return (f"With Cohen's f = {fmt(self.effect_f, 4)} ({self.effect_source}), alpha {self.alpha:g}, "
-                f"{self.k} levels and {self.n_total} observations, the F test has power {fmt(self.power, 3)}; {need}.")
+                f"{show_share(self.target_power)}" if self.n_per_level_needed else "no group size computed")
+        return (f"With Cohen's f = {show_share(self.effect_f)} ({self.effect_source}), alpha {self.alpha:g}, "
+                f"{self.k} levels and {self.n_total} observations, the F test has power {show_share(self.power)}; {need}.")
 
     def _repr_html_(self) -> str:
         notes = "".join(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)

@@ -31,7 +31,8 @@ from scipy import special
 from ..engine.errors import DesignError
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
-from ..engine.tables import esc, fmt, html_table
+from ..engine.tables import esc, html_table
+from ..formatting import show_p, show_share, show_stat
 from .oneway_inputs import require_oneway, row_sample_notes
 from .two_levels import mid_ranks
 
@@ -119,16 +120,16 @@ class FriedmanTest:
     notes: tuple[str, ...] = field(default=())
 
     def _repr_html_(self) -> str:
-        sums = ", ".join(f"{esc(k)} {fmt(v, 5)}" for k, v in self.rank_sums)
+        sums = ", ".join(f"{esc(k)} {show_stat(v)}" for k, v in self.rank_sums)
         return (f"<div><b>Friedman rank test</b> of {esc(self.factor)} within {esc(self.block)} "
-                f"({self.blocks} blocks): chi-square = {fmt(self.statistic)} on {self.df} df, p = {fmt(self.pvalue)}; "
-                f"Kendall's W = {fmt(self.kendall_w, 4)}; rank sums: {sums}</div>"
+                f"({self.blocks} blocks): chi-square = {show_stat(self.statistic)} on {self.df} df, p = {show_p(self.pvalue)}; "
+                f"Kendall's W = {show_share(self.kendall_w)}; rank sums: {sums}</div>"
                 + "".join(f"<div class='note'>{esc(n)}</div>" for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Friedman rank test of {self.factor} within {self.block} ({self.blocks} blocks): "
-                f"chi-square = {fmt(self.statistic)} on {self.df} df, p = {fmt(self.pvalue)}; "
-                f"Kendall's W = {fmt(self.kendall_w, 4)}")
+                f"chi-square = {show_stat(self.statistic)} on {self.df} df, p = {show_p(self.pvalue)}; "
+                f"Kendall's W = {show_share(self.kendall_w)}")
 
 
 def friedman(results: Results) -> FriedmanTest:

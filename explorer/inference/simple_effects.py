@@ -38,7 +38,8 @@ from ..engine.errors import DesignError, ExplorerError, closest_names
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
 from ..engine.spec import alpha_or
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import show_p, show_ss
 
 __all__ = ["ADJUSTMENTS", "SimpleEffects", "simple_effects"]
 
@@ -90,7 +91,7 @@ class SimpleEffects:
                 out.append(f"{self.factor} at {self.within} = {lv}: no test")
             else:
                 word = "differences detected" if sig else "no differences detected"
-                out.append(f"{self.factor} at {self.within} = {lv}: {word} (adjusted p = {fmt(float(p), 4)})")
+                out.append(f"{self.factor} at {self.within} = {lv}: {word} (adjusted p = {show_p(float(p))})")
         return out
 
     def to_frame(self) -> pd.DataFrame:
@@ -238,7 +239,7 @@ def simple_effects(results: Results, factor: str, within: str, *, adjust: str = 
     others = [c for c in columns if c not in (factor, within)]
     if others:
         notes.append(f"Cell means are averaged with equal weight over {', '.join(others)}.")
-    notes.append(f"Tests use the full model's residual mean square ({fmt(ms, 6)} on {fit.df_resid} df); the family is "
+    notes.append(f"Tests use the full model's residual mean square ({show_ss(ms)} on {fit.df_resid} df); the family is "
                  f"the {b} tests at the levels of {within}, adjusted by {ADJUSTMENTS[adjust]}.")
     return SimpleEffects(
         factor=factor, within=within, levels=fb, statistic=stat, df_num=df_num, df_den=int(fit.df_resid), pvalue=p,

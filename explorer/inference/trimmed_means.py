@@ -34,7 +34,8 @@ import pandas as pd
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.results import Results
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import show_df, show_p, show_stat
 from .oneway_inputs import require_oneway, row_sample_notes
 
 __all__ = ["TrimmedMeansTest", "trimmed_means_test", "trimmed_stats"]
@@ -80,8 +81,8 @@ class TrimmedMeansTest:
 
     @property
     def title(self) -> str:
-        return (f"Trimmed means ({self.trim:.0%} from each end) of {self.factor}: F = {fmt(self.statistic, 5)} on "
-                f"({fmt(self.df_num, 4)}, {fmt(self.df_den, 5)}) df, p = {fmt(self.pvalue, 4)}")
+        return (f"Trimmed means ({self.trim:.0%} from each end) of {self.factor}: F = {show_stat(self.statistic)} on "
+                f"({show_df(self.df_num)}, {show_df(self.df_den)}) df, p = {show_p(self.pvalue)}")
 
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), self.title, self.notes)

@@ -31,7 +31,8 @@ from scipy import special
 from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import DesignError
 from ..engine.results import Results
-from ..engine.tables import esc, fmt
+from ..engine.tables import esc
+from ..formatting import show_df, show_measure, show_p, show_share, show_stat
 from .oneway_inputs import require_oneway, row_sample_notes
 
 __all__ = ["WelchT", "MannWhitney", "welch_t", "mann_whitney", "mid_ranks"]
@@ -74,14 +75,15 @@ class WelchT:
 
     def _repr_html_(self) -> str:
         return (f"<div><b>Welch two-sample t</b>, {esc(self.first)} − {esc(self.second)}: "
-                f"difference {fmt(self.difference)}, t = {fmt(self.statistic)} on {fmt(self.df, 5)} df, "
-                f"p = {fmt(self.pvalue)}, {self.confidence:.0%} interval ({fmt(self.ci_low)}, {fmt(self.ci_high)})"
+                f"difference {show_measure(self.difference)}, t = {show_stat(self.statistic)} on {show_df(self.df)} df, "
+                f"p = {show_p(self.pvalue)}, {self.confidence:.0%} interval ({show_measure(self.ci_low)}, "
+                f"{show_measure(self.ci_high)})"
                 "</div>" + "".join(f"<div class='note'>{esc(n)}</div>" for n in self.notes))
 
     def to_text(self) -> str:
-        return (f"Welch two-sample t, {self.first} - {self.second}: difference {fmt(self.difference)}, "
-                f"t = {fmt(self.statistic)} on {fmt(self.df, 5)} df, p = {fmt(self.pvalue)}, "
-                f"{self.confidence:.0%} interval ({fmt(self.ci_low)}, {fmt(self.ci_high)})")
+        return (f"Welch two-sample t, {self.first} - {self.second}: difference {show_measure(self.difference)}, "
+                f"t = {show_stat(self.statistic)} on {show_df(self.df)} df, p = {show_p(self.pvalue)}, "
+                f"{self.confidence:.0%} interval ({show_measure(self.ci_low)}, {show_measure(self.ci_high)})")
 
 
 def welch_t(results: Results, *, confidence: float | None = None) -> WelchT:
@@ -121,15 +123,16 @@ class MannWhitney:
     notes: tuple[str, ...] = field(default=())
 
     def _repr_html_(self) -> str:
-        z = "" if self.z is None else f", z = {fmt(self.z, 5)}"
+        z = "" if self.z is None else f", z = {show_stat(self.z)}"
         return (f"<div><b>Mann-Whitney</b> ({esc(self.method)}), {esc(self.first)} vs "
-                f"{esc(self.second)}: U = {fmt(self.u)}{z}, p = {fmt(self.pvalue)}; "
-                f"P({esc(self.first)} above {esc(self.second)}) estimated {fmt(self.probability, 4)}</div>"
+                f"{esc(self.second)}: U = {show_stat(self.u)}{z}, p = {show_p(self.pvalue)}; "
+                f"P({esc(self.first)} above {esc(self.second)}) estimated {show_share(self.probability)}</div>"
                 + "".join(f"<div class='note'>{esc(n)}</div>" for n in self.notes))
 
     def to_text(self) -> str:
-        return (f"Mann-Whitney ({self.method}), {self.first} vs {self.second}: U = {fmt(self.u)}, p = {fmt(self.pvalue)}, "
-                f"P({self.first} above {self.second}) estimated {fmt(self.probability, 4)}")
+        return (f"Mann-Whitney ({self.method}), {self.first} vs {self.second}: U = {show_stat(self.u)}, "
+                f"p = {show_p(self.pvalue)}, "
+                f"P({self.first} above {self.second}) estimated {show_share(self.probability)}")
 
 
 def _u_distribution(m: int, n: int) -> np.ndarray:

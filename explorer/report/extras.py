@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 import pandas as pd
 
 from ..engine.tables import esc
+from ..formatting import text_table
 
 if TYPE_CHECKING:
     from ..study.study import Study
@@ -51,8 +52,8 @@ def as_html(obj: Any) -> str:
 
 
 def frame_text(frame: pd.DataFrame) -> str:
-    """A table as aligned text; undefined cells are blank."""
-    return frame.astype(object).where(frame.notna(), "").to_string(index=False)
+    """A table as aligned text through the one formatter (:func:`explorer.formatting.text_table`)."""
+    return text_table(frame)
 
 
 def as_text(obj: Any) -> str:

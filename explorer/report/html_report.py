@@ -17,7 +17,8 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from ..engine.errors import ExplorerError
-from ..engine.tables import esc, fmt
+from ..engine.tables import esc
+from ..formatting import format_value, heading, scale
 from ..study.output_files import check_output_path, write_text_atomic
 from .cautions import cautions_html
 from .extras import Part, battery_part, planned_part, sensitivity_part
@@ -97,18 +98,20 @@ def _headline(study: "Study") -> str:
         vb = None
     vc = dc.verdict_for(term)
 
-    def line(label: str, a: object, b: object) -> tuple[str, str, str]:
-        return (esc(label), fmt(a, 6) if not isinstance(a, str) else esc(a),
-                fmt(b, 6) if not isinstance(b, str) else esc(b))
+    def line(label: str, a: object, b: object, role: str) -> tuple[str, str, str]:
+        if role == "text":
+            return (esc(label), esc(a), esc(b))
+        return (esc(label), f"<span class='vx-num'>{esc(format_value(a, role))}</span>",
+                f"<span class='vx-num'>{esc(format_value(b, role))}</span>")
 
     rows = [
-        line("observations used", base.n_used, cur.n_used),
-        line(f"{dc.test_label} for {term}", vb.statistic if vb else None, vc.statistic),
-        line(f"p-value for {term}", vb.pvalue if vb else None, vc.pvalue),
-        line("R²", base.r_squared, cur.r_squared),
-        line("residual SD", base.residual_sd, cur.residual_sd),
-        line("the decision is about", db.term, dc.term),
-        line("decision", db.sentence(), dc.sentence()),
+        line("observations used", base.n_used, cur.n_used, "count"),
+        line(f"{dc.test_label} for {term}", vb.statistic if vb else None, vc.statistic, "stat"),
+        line(f"p-value for {term}", vb.pvalue if vb else None, vc.pvalue, "p"),
+        line("R²", base.r_squared, cur.r_squared, "share"),
+        line(heading("residual SD", "measure"), base.residual_sd, cur.residual_sd, "measure"),
+        line("the decision is about", db.term, dc.term, "text"),
+        line("decision", db.sentence(), dc.sentence(), "text"),
     ]
     body = "".join(f"<tr><th>{k}</th><td>{a}</td><td>{b}</td></tr>" for k, a, b in rows)
     caveats = "".join(f"<p class='note'>{esc(c)}</p>" for c in dict.fromkeys((db.caveat, dc.caveat)) if c)
@@ -187,7 +190,15 @@ def _part(part: Part) -> str:
 
 
 def report_html(study: "Study", *, title: str | None = None, scenario: str | None = None, charts: bool = True) -> str:
-    """The report page as a string (see the module docstring for its contents)."""
+    """The report page as a string (see the module docstring for its contents).
+
+    Numbers follow the study's display scale (:mod:`explorer.formatting`), as in the explorer.
+    """
+    with scale(of=study.display_scale()):
+        return _report_html(study, title=title, scenario=scenario, charts=charts)
+
+
+def _report_html(study: "Study", *, title: str | None, scenario: str | None, charts: bool) -> str:
     from .._version import __version__
 
     spec = study.spec

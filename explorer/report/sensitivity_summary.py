@@ -26,7 +26,8 @@ from typing import TYPE_CHECKING, Any
 import pandas as pd
 
 from ..engine.errors import DesignError
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import result_frame, show_p
 
 if TYPE_CHECKING:
     from ..study.study import Study
@@ -86,11 +87,11 @@ class SensitivitySummary:
         if self.strongest_choice:
             c = self.strongest_choice
             out.append(("the single analysis choice that moves p most",
-                        f"{c['choice']} = {c['option']} (p = {fmt(c['p-value'], 4)})"))
+                        f"{c['choice']} = {c['option']} (p = {show_p(c['p-value'])})"))
         return out
 
     def to_frame(self) -> pd.DataFrame:
-        return pd.DataFrame(self.lines(), columns=["question", "answer"])
+        return result_frame(self.lines(), columns=["question", "answer"])
 
     def to_text(self) -> str:
         width = max(len(q) for q, _ in self.lines())

@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from ..engine.errors import ExplorerError
-from ..engine.tables import fmt
+from ..formatting import scale
 from .cautions import cautions_text
 from .extras import battery_part, frame_text, planned_part, sensitivity_part
 from .strata_part import strata_part
@@ -24,8 +24,7 @@ def _heading(title: str) -> str:
 
 def results_text(res: "Results", decision: "Decision") -> str:
     """The partition, a one-line summary, the level tables and the study's decision (with its caveat)."""
-    parts = [frame_text(res.partition.to_frame())]
-    parts.append(f"n = {res.n_used}, R² = {fmt(res.r_squared, 4)}, residual SD = {fmt(res.residual_sd, 4)}")
+    parts = [frame_text(res.partition.to_frame()), res.summary_line()]
     parts.extend(res.partition.notes)
     for factor, table in res.levels.items():
         parts.append("")
@@ -53,11 +52,18 @@ def _simple_effects_text(study: "Study") -> list[str]:
 
 
 def summary_text(study: "Study", *, cautions: bool = True) -> str:
-    """Provenance, baseline, edits, current results, battery, sensitivity, disclosure and cautions."""
+    """Provenance, baseline, edits, current results, battery, sensitivity, disclosure and cautions
+    (numbers as in the explorer and the report: the study's display scale)."""
+    with scale(of=study.display_scale()):
+        return _summary_text(study, cautions=cautions)
+
+
+def _summary_text(study: "Study", *, cautions: bool) -> str:
     ds = study.dataset
     out = [
         _heading(f"{study.spec.response} by {', '.join(study.spec.factors)}"),
         f"data: {ds.source} ({len(ds.table)} rows, {ds.n} usable), fingerprint {ds.fingerprint}",
+        f"{ds.describe_ids()[:1].upper()}{ds.describe_ids()[1:]}.",
     ]
     out.extend(f"set aside at load: row {s.row}: {s.reason}" for s in ds.set_aside)
     out.extend(ds.notes)

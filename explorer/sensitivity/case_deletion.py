@@ -25,7 +25,8 @@ import pandas as pd
 
 from ..engine.disclosure import Disclosure
 from ..engine.spec import alpha_or
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import result_frame, show_p
 from .alternatives import (
     STATUS_NOTES,
     OnewayInput,
@@ -111,7 +112,7 @@ class CaseDeletionScan:
         with np.errstate(invalid="ignore"):
             change = self.pvalue - (self.base_pvalue if self.base_pvalue is not None else np.nan)
         extra = {} if self.permutations_used is None else {"orderings used": self.permutations_used[o].astype(np.int64)}
-        return pd.DataFrame(
+        return result_frame(
             {
                 "row": self.row_ids[o],
                 "group": self.group[o],
@@ -137,7 +138,7 @@ class CaseDeletionScan:
         n_flip = int(self.flips.sum())
         caption = (
             f"Leaving out one row at a time ({self.row_ids.size} rows): {n_flip} deletion(s) flip the decision on "
-            f"{self.term} at alpha {self.alpha:g} (p with all rows = {fmt(self.base_pvalue, 4)})"
+            f"{self.term} at alpha {self.alpha:g} (p with all rows = {show_p(self.base_pvalue)})"
         )
         notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
         return "<div>" + html_table(frame, caption, notes) + "</div>"

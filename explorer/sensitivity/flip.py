@@ -47,7 +47,8 @@ from ..engine.errors import ExplorerError, closest_names
 from ..engine.groupstats import group_stats
 from ..engine.spec import alpha_or
 from ..engine.studentized_range import srange_ppf, srange_sf
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import result_frame, show_p, show_stat
 from .alternatives import OnewayInput, evaluate_alternatives
 from .chosen_test import ChosenTest
 from .scan_target import scan_target
@@ -99,7 +100,7 @@ class FlipSearch:
     def to_frame(self) -> pd.DataFrame:
         """One line per removal step: row, its group, p-value after the step, decision."""
         p = np.array([np.nan if v is None else v for v in self.pvalues], dtype=float)
-        return pd.DataFrame(
+        return result_frame(
             {
                 "step": np.arange(1, len(self.rows) + 1),
                 "row": list(self.rows),
@@ -113,7 +114,7 @@ class FlipSearch:
         wanted = "not significant" if self.base_significant else "significant"
         if self.found:
             head = (f"{self.target}: removing {len(self.rows)} row(s) makes the decision {wanted} at alpha "
-                    f"{self.alpha:g} ({self.method} search; p with all rows = {fmt(self.base_pvalue, 4)})")
+                    f"{self.alpha:g} ({self.method} search; p with all rows = {show_p(self.base_pvalue)})")
         else:
             head = f"{self.target}: no set of rows within the search's reach makes the decision {wanted}"
         notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
@@ -329,7 +330,7 @@ def flip_finder(
                              f"{count} set(s) of {covered} row(s) flip the decision, the one shown moves it furthest.")
             else:
                 notes.append(f"Exact search: the best-scored set of {covered} row(s) does not flip the decision when "
-                             f"the remaining rows are tested afresh (p = {fmt(p_set, 4)}).")
+                             f"the remaining rows are tested afresh (p = {show_p(p_set)}).")
                 covered -= 1
         else:
             notes.append(f"Exact search: no set of up to {covered} row(s) flips the decision ({examined} sets scored; "
@@ -353,7 +354,7 @@ def flip_finder(
         notes.append(f"Test: {chosen.how}.")
         if spec.test == "permutation":
             notes.append(f"Row sets are scored by F against the permutation critical value of all rows "
-                         f"({fmt(chosen.critical_value(a), 4)}); each step's p-value and the flip itself are "
+                         f"({show_stat(chosen.critical_value(a))}); each step's p-value and the flip itself are "
                          "checked by a permutation test of the remaining rows.")
     if record:
         study.record_search("flip finder", examined)

@@ -36,7 +36,8 @@ from ..engine.disclosure import Disclosure
 from ..engine.distributions import t_sf
 from ..engine.numerics import is_zero_ss, response_scale
 from ..engine.spec import alpha_or
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import result_frame, show_stat
 from .study_like import StudyLike
 
 __all__ = ["Influence", "influence", "influence_measures"]
@@ -105,13 +106,13 @@ class Influence:
         )
         for rule in self.cutoffs:
             frame[f"beyond {rule}"] = self.flagged(rule)
-        return frame
+        return result_frame(frame)
 
     def _repr_html_(self) -> str:
         frame = self.to_frame()
         flags = frame[[c for c in frame.columns if c.startswith("beyond ")]].any(axis=1)
         shown = frame[flags].drop(columns=[c for c in frame.columns if c.startswith("beyond ")])
-        rules = "; ".join(f"{k}: {v} ({fmt(self.cutoffs[k], 4)})" for k, v in self.cutoff_rules.items())
+        rules = "; ".join(f"{v} ({show_stat(self.cutoffs[k])})" for k, v in self.cutoff_rules.items())
         notes = (f"Cut-offs: {rules}.",) + self.notes
         if self.disclosure is not None:
             notes += (self.disclosure.sentence(),)

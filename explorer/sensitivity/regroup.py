@@ -24,7 +24,8 @@ import pandas as pd
 from ..engine.disclosure import Disclosure
 from ..engine.errors import ExplorerError
 from ..engine.spec import alpha_or
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import result_frame, show_p
 from .alternatives import (
     AlternativeFits,
     leave_one_out,
@@ -108,14 +109,14 @@ class RegroupScan:
 
     def to_frame(self) -> pd.DataFrame:
         """Merges then moves, each with the flips first (then p-values moving furthest from the decision)."""
-        return pd.concat([self.merges_frame(), self.moves_frame()], ignore_index=True)
+        return result_frame(pd.concat([self.merges_frame(), self.moves_frame()], ignore_index=True))
 
     def _repr_html_(self) -> str:
         merges = self.merges_frame()
         moves = self.moves_frame()
         moves = moves[moves["flips decision"]].head(20)
         cap1 = (f"Merging two levels of {self.factor} ({len(merges)} pairs; decision on {self.term}, p now "
-                f"{fmt(self.base_pvalue, 4)}): {len(self.merge_flips)} flip the decision at alpha {self.alpha:g}")
+                f"{show_p(self.base_pvalue)}): {len(self.merge_flips)} flip the decision at alpha {self.alpha:g}")
         cap2 = f"Moving one row to another level: {len(self.move_flips)} of {self.move_rows.size} moves flip the decision"
         notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
         return ("<div>" + html_table(merges, cap1) + html_table(moves, cap2, notes) + "</div>")

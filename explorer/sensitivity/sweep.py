@@ -52,8 +52,9 @@ from ..engine.numerics import response_scale
 from ..engine.oneway import fit_oneway
 from ..engine.results import Results
 from ..engine.spec import OVERALL_TESTS, alpha_or
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
 from ..engine.transforms import NAMED, check_transform, with_transform
+from ..formatting import result_frame, show_p
 from ..inference.omnibus import overall_test
 from ..inference.outliers import bonferroni_outlier_test
 from .alternatives import OnewayInput
@@ -119,7 +120,7 @@ class SweepResult:
 
     def to_frame(self) -> pd.DataFrame:
         """The specification-curve table (a copy)."""
-        return self.table.copy()
+        return result_frame(self.table.copy())
 
     def _repr_html_(self) -> str:
         verdict = "significant" if self.current_significant else "not significant"
@@ -130,7 +131,7 @@ class SweepResult:
         notes = list(self.notes)
         if best is not None:
             notes.insert(0, f"The single choice that moves p most: {best['choice']} = {best['option']} "
-                            f"(p {fmt(self.default_pvalue, 3)} -> {fmt(best['p-value'], 3)}).")
+                            f"(p {show_p(self.default_pvalue)} -> {show_p(best['p-value'])}).")
         if self.disclosure is not None:
             notes.append(self.disclosure.sentence())
         shown = self.table.drop(columns=["rows left out"])

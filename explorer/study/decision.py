@@ -37,7 +37,8 @@ import pandas as pd
 from ..engine.design import model_terms, term_name
 from ..engine.results import Results
 from ..engine.spec import TEST_LABELS
-from ..engine.tables import esc, fmt, html_table
+from ..engine.tables import esc, html_table
+from ..formatting import show_p
 from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 
 __all__ = ["TEST_LABELS", "Decision", "TermVerdict", "decide", "interaction_verdict"]
@@ -123,7 +124,7 @@ class Decision:
         """One line: ``"A × B: the effect of A depends on B at alpha 0.05 (classic F, p = 6.066e-08)"``."""
         if self.pvalue is None:
             return f"{self.term}: {self.verdict}"
-        return f"{self.term}: {self.verdict} at alpha {self.alpha:g} ({self.test_label}, p = {fmt(self.pvalue, 4)})"
+        return f"{self.term}: {self.verdict} at alpha {self.alpha:g} ({self.test_label}, p = {show_p(self.pvalue)})"
 
     def verdict_for(self, term: str) -> TermVerdict:
         """The verdict on one treatment term (``KeyError`` naming the terms when absent)."""
@@ -269,7 +270,7 @@ def _multi(results: Results) -> Decision:
             caveat = (f"The model has no interaction term involving {head.term}, so its effect is taken to be the same "
                       f"at every level of {_listing(others)}.")
         else:
-            tested = "; ".join(f"{t.term}: p = {fmt(t.pvalue, 4)}" for t in mine)
+            tested = "; ".join(f"{t.term}: p = {show_p(t.pvalue)}" for t in mine)
             caveat = (f"The effect of {head.term} is averaged over the levels of {_listing(others)}; no interaction "
                       f"involving it was detected ({tested}).")
     if spec.blocks:

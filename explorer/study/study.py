@@ -28,6 +28,7 @@ from ..engine.spec import ModelSpec
 from ..engine.table_checks import column_names
 from ..engine.transforms import with_transform
 from ..engine.view import DataView, initial_view
+from ..formatting import Scale
 from .decision import Decision, decide
 from .output_files import write_text_atomic
 from .persistence import check_study_doc, describe_mismatch, edits_from_doc, read_study_file, study_to_dict
@@ -86,6 +87,8 @@ class Study(PlannedAnalyses):
     transform : analyse 'log', 'sqrt' or a Box-Cox power of the response (default 'none').
     covariates : numeric columns measured on each row to adjust for (analysis of covariance:
         common slopes, the homogeneity-of-slopes check, means adjusted to the covariate means).
+    units : units of the response (e.g. ``"µm"``): shown in axis titles and table headings
+        (sums of squares in squared units); saved with the study.
     See :class:`~explorer.engine.spec.ModelSpec` for how these build the model.
     """
 
@@ -110,6 +113,7 @@ class Study(PlannedAnalyses):
         variance_method: str = "auto",
         transform: str | float = "none",
         covariates: str | Sequence[str] = (),
+        units: str = "",
     ) -> None:
         factors_t = column_names(factors, "factors")
         blocks_t = column_names(blocks, "blocks") if isinstance(blocks, str) or blocks else ()
@@ -119,7 +123,7 @@ class Study(PlannedAnalyses):
                          max_order=max_order, random=random, nested=nested or (),  # type: ignore[arg-type]
                          subject=subject, within=within,  # type: ignore[arg-type]
                          variance_method=variance_method, test=test, transform=transform,  # type: ignore[arg-type]
-                         covariates=covariates)  # type: ignore[arg-type]
+                         covariates=covariates, units=units)  # type: ignore[arg-type]
         self._init(build_dataset(data, response, spec.columns, id_column, spec.covariates), spec,
                    data_source=data if isinstance(data, (str, Path)) else None)
 
@@ -466,11 +470,49 @@ class Study(PlannedAnalyses):
 
         return simple_effects(self.results, factor, within, **options)
 
-    def battery(self, **options: Any) -> Battery:
-        """The one-way battery on the current view (see :func:`explorer.inference.battery.run_battery` for options)."""
+    def battery(
+        self,
+        *,
+        alpha: float | None = None,
+        confidence: float | None = None,
+        effect_confidence: float | None = None,
+        levene_center: str = "median",
+        letters_from: str = "tukey",
+        pairwise_adjust: str = "holm",
+        control: str | None = None,
+        dunnett_alternative: str = "two-sided",
+        permutations: int = 0,
+        seed: int = 0,
+        effect_f: float | None = None,
+        target_power: float = 0.8,
+        robust_cutoff: float = 3.5,
+    ) -> Battery:
+        """The one-way battery on the current view: every overall test, check, comparison, effect size,
+        power and outlier screen (:func:`explorer.inference.battery.run_battery`).
+
+        Parameters
+        ----------
+        alpha : level for decisions, letters and screens (the study's alpha by default).
+        confidence : coverage of the comparison intervals (``1 - alpha`` by default).
+        effect_confidence : coverage of the effect-size intervals (``1 - 2 alpha`` by default).
+        levene_center : centre of Levene's test: 'median' (Brown-Forsythe), 'mean' or 'trimmed'.
+        letters_from : table the letters come from: 'tukey', 'games-howell' or 'pairwise-t'.
+        pairwise_adjust : adjustment of the pairwise t table: 'holm', 'bonferroni' or 'none'.
+        control : a level to compare every other level with (adds Dunnett's table; none by default).
+        dunnett_alternative : 'two-sided', 'greater' or 'less' (Dunnett).
+        permutations : number of permutations of the permutation F (0: not run; 9999 is usual).
+        seed : seed of the permutation F, so that it repeats.
+        effect_f : Cohen's f the power is computed for (the observed one by default).
+        target_power : power the needed group size is computed for.
+        robust_cutoff : |robust z| above which the median/MAD screen flags a row.
+        """
         from ..inference.battery import run_battery
 
-        return run_battery(self.results, **options)
+        return run_battery(
+            self.results, alpha=alpha, confidence=confidence, effect_confidence=effect_confidence,
+            levene_center=levene_center, letters_from=letters_from, pairwise_adjust=pairwise_adjust,  # type: ignore[arg-type]
+            control=control, dunnett_alternative=dunnett_alternative, permutations=permutations,  # type: ignore[arg-type]
+            seed=seed, effect_f=effect_f, target_power=target_power, robust_cutoff=robust_cutoff)
 
     def repeated_measures(self, *, multivariate: bool = True) -> RepeatedMeasures:
         """Sphericity, epsilons, corrected p-values and multivariate tests (studies with subject= and within=)."""
@@ -538,6 +580,34 @@ class Study(PlannedAnalyses):
             f"Study(response={self.spec.response!r}, factors={list(self.spec.columns)}, n={self.dataset.n}, "
             f"edits={self._position})"
         )
+
+    def display_scale(self) -> Scale:
+        """How the study's numbers are shown everywhere: the readings' decimals and the response's units."""
+        return Scale(decimals=self.dataset.reading_decimals(), units=self.spec.units)
+
+    def to_text(self) -> str:
+        """A short readable account (``print(study)``): what is analysed, the decision on the unedited data
+        and on the current view, the edits in effect with their reasons, moved rows and the searching done."""
+        s, ds = self.spec, self.dataset
+        units = f" ({s.units})" if s.units else ""
+        by = " × ".join(s.factors) + (f", blocks {', '.join(s.blocks)}" if s.blocks else "")
+        lines = [f"Study of {s.response}{units} by {by}: {ds.n} usable rows of {ds.source}; {ds.describe_ids()}",
+                 f"Unedited data: {self.baseline_decision.sentence()}",
+                 f"Current view:  {self.decision.sentence()}"]
+        if self.edits:
+            lines.append(f"Edits in effect ({len(self.edits)}):")
+            lines += [f"  {i}. {e.describe()}: {e.reason or '(no reason given)'}" for i, e in enumerate(self.edits, 1)]
+        else:
+            lines.append("No edits in effect: the current view is the unedited data.")
+        moved = self.moved_rows()
+        if moved:
+            lines.append("Moved to another level: " + "; ".join(m.describe() for m in moved))
+        lines.append(f"Searching so far: {self.disclosure.sentence()}.")
+        lines.append("print(study.results) for the tables; study.report('x.html') for the hand-off.")
+        return "\n".join(lines)
+
+    def __str__(self) -> str:
+        return self.to_text()
 
     def _repr_html_(self) -> str:
         return self.results._repr_html_()

@@ -27,7 +27,8 @@ import pandas as pd
 from ..engine.edits import MergeLevels
 from ..engine.errors import DesignError
 from ..engine.spec import alpha_or
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
+from ..formatting import result_frame, show_p
 from ..inference.omnibus import overall_test
 from .view import Condition, SummaryView
 
@@ -55,11 +56,11 @@ class SetAsideScan:
         return self.table[self.table["flips"] == True]  # noqa: E712  (a nullable column: NA is not a flip)
 
     def to_frame(self) -> pd.DataFrame:
-        return self.table.copy()
+        return result_frame(self.table.copy())
 
     def _repr_html_(self) -> str:
         caption = (f"Set-aside scan of {self.term} at alpha {self.alpha:g}: {len(self.flips)} of "
-                   f"{self.examined} alternatives flip the decision (now p = {fmt(self.current_pvalue, 4)})")
+                   f"{self.examined} alternatives flip the decision (now p = {show_p(self.current_pvalue)})")
         return html_table(self.table, caption)
 
 

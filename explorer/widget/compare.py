@@ -11,9 +11,10 @@ import html
 from typing import Any
 
 from explorer.engine import Results
-from explorer.engine.tables import fmt
 from explorer.study import Study
 from explorer.study.decision import Decision
+
+from ..formatting import format_value, heading, show_measure, show_share
 
 __all__ = ["CAUTIONS_HTML", "comparison_html", "disclosure_html", "partition_html"]
 
@@ -41,27 +42,32 @@ def partition_html(results: Results, decision: Decision) -> str:
     caveat = f"<div class='vx-small'>{html.escape(decision.caveat)}</div>" if decision.caveat else ""
     return (
         f"<div class='vx-partition'>{results.partition._repr_html_()}"
-        f"<div class='vx-small'>n = {results.n_used}, R² = {fmt(results.r_squared, 4)}, "
-        f"residual SD = {fmt(results.residual_sd, 4)}</div>"
+        f"<div class='vx-small'>n = {results.n_used}, R² = {show_share(results.r_squared)}, "
+        f"residual SD = {show_measure(results.residual_sd)}</div>"
         f"<div class='vx-decision'>{html.escape(decision.sentence())}</div>{caveat}{notes}</div>"
     )
 
 
-def _line(label: str, base: Any, cur: Any, digits: int = 5, numeric: bool = True) -> str:
+def _line(label: str, base: Any, cur: Any, role: str = "number") -> str:
+    """One line of the comparison: both values by their role (one formatter), the change marked."""
+    numeric = role != "text"
     same = base == cur if not numeric else (base is None and cur is None) or (
         base is not None and cur is not None and float(base) == float(cur))
     cls = "" if same else " class='vx-diff'"
     if same:
         change = ""
     elif numeric and base is not None and cur is not None:
-        change = f"changed ({'+' if float(cur) >= float(base) else ''}{fmt(float(cur) - float(base), 3)})"
+        delta = float(cur) - float(base)
+        shown = format_value(delta, "number" if role == "p" else role)
+        change = f"changed ({'+' if delta >= 0 else ''}{shown})"
     else:
         change = "changed"
-    b = fmt(base, digits) if numeric else html.escape(str(base))
-    c = fmt(cur, digits) if numeric else html.escape(str(cur))
+    b = format_value(base, role) if numeric else str(base)
+    c = format_value(cur, role) if numeric else str(cur)
     num = " class='vx-num'" if numeric else ""
-    return (f"<tr{cls}><td data-label=''>{html.escape(label)}</td><td{num} data-label='unedited data'>{b}</td>"
-            f"<td{num} data-label='current view'>{c}</td><td class='vx-mark' data-label='difference'>{change}</td></tr>")
+    return (f"<tr{cls}><td data-label=''>{html.escape(label)}</td><td{num} data-label='unedited data'>"
+            f"{html.escape(b)}</td><td{num} data-label='current view'>{html.escape(c)}</td>"
+            f"<td class='vx-mark' data-label='difference'>{html.escape(change)}</td></tr>")
 
 
 def _verdict_on(decision: Decision, term: str) -> Any:
@@ -85,17 +91,17 @@ def comparison_html(study: Study) -> str:
     tb = b.partition.row(term) if term in [r.source for r in b.partition.rows] else None
     tc = c.partition.row(term)
     rows = [
-        _line("rows in analysis", b.n_used, c.n_used),
-        _line("groups (levels or cells)", b.groups.k, c.groups.k),
-        _line("df, residual", rb.df, rc.df),
-        _line(f"sum of squares, {term}", tb.sum_sq if tb else None, tc.sum_sq),
-        _line("sum of squares, residual", rb.sum_sq, rc.sum_sq),
-        _line(f"{dc.test_label}, {term}", vb.statistic if vb else None, vc.statistic, 5),
-        _line(f"p-value ({dc.test_label})", vb.pvalue if vb else None, vc.pvalue, 4),
-        _line("R²", b.r_squared, c.r_squared, 4),
-        _line("residual SD", b.residual_sd, c.residual_sd, 4),
-        _line("decision is about", db.term, dc.term, numeric=False),
-        _line(f"decision at alpha {dc.alpha:g}", db.verdict, dc.verdict, numeric=False),
+        _line("rows in analysis", b.n_used, c.n_used, "count"),
+        _line("groups (levels or cells)", b.groups.k, c.groups.k, "count"),
+        _line("df, residual", rb.df, rc.df, "df"),
+        _line(heading(f"sum of squares, {term}", "ss"), tb.sum_sq if tb else None, tc.sum_sq, "ss"),
+        _line(heading("sum of squares, residual", "ss"), rb.sum_sq, rc.sum_sq, "ss"),
+        _line(f"{dc.test_label}, {term}", vb.statistic if vb else None, vc.statistic, "stat"),
+        _line(f"p-value ({dc.test_label})", vb.pvalue if vb else None, vc.pvalue, "p"),
+        _line("R²", b.r_squared, c.r_squared, "share"),
+        _line(heading("residual SD", "measure"), b.residual_sd, c.residual_sd, "measure"),
+        _line("decision is about", db.term, dc.term, "text"),
+        _line(f"decision at alpha {dc.alpha:g}", db.verdict, dc.verdict, "text"),
     ]
     flip = ""
     if not db.agrees_with(dc):

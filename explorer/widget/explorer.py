@@ -25,6 +25,7 @@ from explorer.engine.moves import level_homes
 from explorer.engine.spec import OVERALL_TESTS
 from explorer.study import Study, StudyEvent
 
+from ..formatting import scale, show_reading
 from . import (  # noqa: F401  (register the built-in panels)
     battery_panels,
     core_panels,
@@ -320,7 +321,9 @@ class Explorer(W.VBox):
             except ExplorerError:
                 continue
             state = "in analysis" if view.kept[p] else "left out"
-            parts.append(f"row {r} ({f} {view.level_of(p, f)}, {ds.y_original[p]:.6g}, {state})")
+            with scale(of=self.study.display_scale()):
+                value = show_reading(ds.y_original[p])
+            parts.append(f"row {r} ({f} {view.level_of(p, f)}, {value}, {state})")
         more = f" and {len(self._picked) - 8} more" if len(self._picked) > 8 else ""
         self.picked_label.value = f"<span class='vx-picked-rows'>Picked: {html.escape('; '.join(parts))}{more}</span>"
 
@@ -554,15 +557,17 @@ class Explorer(W.VBox):
         """Redraw what changed: header and tables first, then charts; hidden tabs when opened."""
         self._refreshing = True
         try:
-            self._redraw(force)
+            with scale(of=self.study.display_scale()):  # one formatter: the study's decimals and units
+                self._redraw(force)
         finally:
             self._refreshing = False
         if self._dirty and not self._batch:
             self._dirty = False
-            self._refresh_header()  # a scan added to the disclosure count while drawing
-            for card in self.cards.values():
-                if card.panel.group == "main":
-                    card.update(self._context())
+            with scale(of=self.study.display_scale()):
+                self._refresh_header()  # a scan added to the disclosure count while drawing
+                for card in self.cards.values():
+                    if card.panel.group == "main":
+                        card.update(self._context())
 
     def _redraw(self, force: bool) -> None:
         ctx = self._context()

@@ -23,7 +23,7 @@ WIDTHS = (800, 1100, 1500)
 CELL = r'''
 import shutil, explorer as ex
 shutil.copy({data!r}, "coating_thickness.csv")
-study = ex.Study("coating_thickness.csv", response="thickness_um", factors="nozzle", id_column="panel")
+study = ex.Study("coating_thickness.csv", response="thickness_um", factors="nozzle", id_column="panel", units="µm")
 study.drop(["P1007"], reason="gauge slip, see the line log")
 study.reassign("P1040", "nozzle", "N1", reason="line log says this panel was sprayed through N1")
 study.merge_levels("nozzle", ["N2", "N3"], into="N2+N3", reason="N2 and N3 come from one supplier")
