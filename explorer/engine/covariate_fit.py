@@ -35,6 +35,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from ..formatting import show_p, show_stat
 from .cells import CellTable, layout_cells
 from .dataset import Dataset, RowId
 from .design import cell_design, fitted_terms, sequential_order
@@ -49,7 +50,7 @@ from .numerics import is_zero_ss, response_scale
 from .results import Fit, LevelTable, Results
 from .row_model import RowDesign, RowFit, expand_cells, fit_rows
 from .spec import ModelSpec
-from .tables import AnovaTable, TermRow, fmt, html_table
+from .tables import AnovaTable, TermRow, html_table
 from .term_effects import term_effects
 from .view import DataView
 
@@ -79,8 +80,8 @@ class SlopeCheck:
         if self.problem is not None:
             return f"Homogeneity of slopes (covariate × {by}) could not be checked: {self.problem}"
         head = (f"Homogeneity of slopes, checked before the adjusted test: separate slopes for each level of {by} "
-                f"against one common slope, F = {fmt(self.statistic, 5)} on ({self.df_num}, {self.df_den}) df, "
-                f"p = {fmt(self.pvalue, 4)}.")
+                f"against one common slope, F = {show_stat(self.statistic)} on ({self.df_num}, {self.df_den}) df, "
+                f"p = {show_p(self.pvalue)}.")
         if self.slopes_differ:
             return head + (f" The slopes differ at alpha {self.alpha:g}: the adjusted comparison depends on the "
                            "covariate value, and the adjusted means below hold at the covariate mean only.")

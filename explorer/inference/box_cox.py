@@ -38,8 +38,9 @@ from scipy import optimize, special
 from ..engine.errors import DesignError
 from ..engine.results import Results
 from ..engine.row_model import design_of
-from ..engine.tables import fmt, html_table
+from ..engine.tables import html_table
 from ..engine.transforms import inverse
+from ..formatting import show_number
 
 __all__ = ["BoxCoxProfile", "box_cox", "profile_estimate", "profile_loglik", "SIMPLE_POWERS"]
 
@@ -96,8 +97,8 @@ class BoxCoxProfile:
 
     @property
     def title(self) -> str:
-        return (f"Box-Cox power of {self.response}: estimate {fmt(self.estimate, 4)}, {self.confidence:.0%} "
-                f"profile-likelihood interval ({fmt(self.ci_low, 4)}, {fmt(self.ci_high, 4)})")
+        return (f"Box-Cox power of {self.response}: estimate {show_number(self.estimate)}, {self.confidence:.0%} "
+                f"profile-likelihood interval ({show_number(self.ci_low)}, {show_number(self.ci_high)})")
 
     def sentence(self) -> str:
         names = ", ".join(self.inside) if self.inside else "none of the simple powers"
