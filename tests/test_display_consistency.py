@@ -94,3 +94,13 @@ def test_print_gives_short_readable_text(study):
     assert len(battery.splitlines()) < 45 and "Suggested test:" in battery and "Tukey" in battery
     assert "dataclass" not in repr(study.results) and len(repr(study.results)) < 200
     assert show_share(study.results.r_squared) in results
+
+
+def test_units_are_saved_with_the_study_and_checked(tmp_path):
+    s = ex.Study(str(DEMO), "thickness_um", "nozzle", id_column="panel", units="µm")
+    path = s.save(tmp_path / "u.study.json")
+    again = ex.Study.load(path, data=str(DEMO))
+    assert again.spec.units == "µm" and "sum of squares (µm²)" in str(again.results)
+    for bad in ("<b>µm</b>", "x" * 30, 5):
+        with pytest.raises(ex.ExplorerError, match="units"):
+            ex.Study(str(DEMO), "thickness_um", "nozzle", units=bad)
