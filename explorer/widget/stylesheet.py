@@ -69,9 +69,11 @@ def stylesheet() -> str:
 .vx-explorer .vx-tabs {{ min-width: 0; max-width: 100%; }}
 .vx-explorer .vx-tabs > .lm-TabBar, .vx-explorer .vx-tabs > .p-TabBar {{ min-height: fit-content; height: auto;
   overflow: visible; }}
-.vx-explorer .vx-tabs .lm-TabBar-content {{ flex-wrap: wrap; min-width: 0; }}
-.vx-explorer .vx-tabs .lm-TabBar-tab {{ flex: 0 0 auto; min-width: 0; max-width: none; }}
-.vx-explorer .vx-tabs .lm-TabBar-tabLabel {{ overflow: visible; text-overflow: clip; }}
+.vx-explorer .vx-tabs.widget-tab > .lm-TabBar .lm-TabBar-content {{ flex-wrap: wrap; min-width: 0; }}
+.vx-explorer .vx-tabs.widget-tab > .lm-TabBar .lm-TabBar-tab {{ flex: 0 0 auto !important; min-width: 0 !important;
+  max-width: none !important; width: auto !important; }}
+.vx-explorer .vx-tabs.widget-tab > .lm-TabBar .lm-TabBar-tabLabel {{ overflow: visible; text-overflow: clip;
+  max-width: none !important; }}
 .vx-explorer .vx-tabs > .widget-tab-contents {{ min-width: 0; overflow: visible; }}
 .vx-explorer .widget-html-content {{ white-space: normal; line-height: 1.45; }}
 .vx-explorer .vx-level-row {{ display: flex; flex-wrap: wrap; gap: 2px 6px; align-items: center; }}
