@@ -59,6 +59,7 @@ __all__ = [
     "Scale",
     "column_role",
     "current_scale",
+    "esc",
     "format_frame",
     "format_value",
     "heading",
@@ -133,6 +134,13 @@ def measurement_decimals(values: Any, *, most: int = 6) -> int | None:
         if np.all(err <= 1e-7 * np.maximum(1.0, np.abs(scaled)) + 1e-9):
             return d
     return None
+
+
+def esc(value: object) -> str:
+    """The one escaping helper: any value as HTML text (``& < > " '`` escaped), safe in content and
+    quoted attributes. Every user string (names, levels, row ids, reasons, paths) goes through it
+    (``explorer.engine.tables.esc`` is this function)."""
+    return html.escape(str(value), quote=True)
 
 
 # --------------------------------------------------------------------------- single values
@@ -353,11 +361,11 @@ def text_table(frame: pd.DataFrame, *, units: str | None = None, index: bool = F
 def html_cells(frame: pd.DataFrame, *, units: str | None = None) -> tuple[list[str], list[list[tuple[str, bool]]]]:
     """Escaped headings and, per row, (escaped text, is_number) per cell: the HTML renderers' input."""
     shown = format_frame(frame, units=units)
-    heads = [html.escape(str(c)) for c in shown.columns]
+    heads = [esc(c) for c in shown.columns]
     rows = []
     for i in range(len(frame)):
         raw = frame.iloc[i].tolist()
-        rows.append([(html.escape(str(s)), not isinstance(r, str)) for s, r in zip(shown.iloc[i].tolist(), raw)])
+        rows.append([(esc(s), not isinstance(r, str)) for s, r in zip(shown.iloc[i].tolist(), raw)])
     return heads, rows
 
 

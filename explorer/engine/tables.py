@@ -7,13 +7,12 @@ helpers and HTML reprs. A statistic that is undefined is ``None`` and the table'
 
 from __future__ import annotations
 
-import html
 from dataclasses import dataclass, field
 from typing import Any
 
 import pandas as pd
 
-from ..formatting import format_value, html_cells, result_frame
+from ..formatting import esc, format_value, html_cells, result_frame
 
 __all__ = ["TermRow", "AnovaTable", "COLUMNS", "ERROR_COLUMNS", "html_table", "fmt", "esc"]
 
@@ -21,12 +20,6 @@ __all__ = ["TermRow", "AnovaTable", "COLUMNS", "ERROR_COLUMNS", "html_table", "f
 COLUMNS = ("source", "df", "sum of squares", "mean square", "F", "p-value")
 #: Extra columns of a partition whose terms have their own error terms (random and mixed models).
 ERROR_COLUMNS = ("tested against", "error df")
-
-
-def esc(value: object) -> str:
-    """The one escaping helper: any value as HTML text (``& < > " '`` escaped), safe in content and
-    quoted attributes. Every user string (names, levels, row ids, reasons, paths) goes through it."""
-    return html.escape(str(value), quote=True)
 
 
 def fmt(x: Any, digits: int | None = None) -> str:

@@ -10,14 +10,13 @@ effect sizes and blocking efficiency, and the influence screen.
 
 from __future__ import annotations
 
-import html
 from collections import OrderedDict
 from typing import Any
 
 import pandas as pd
 
 from explorer.engine import Results
-from explorer.engine.tables import html_table
+from explorer.engine.tables import esc, html_table
 from explorer.inference.assumptions import bartlett, levene, shapiro_residuals
 from explorer.inference.battery import Battery, run_battery
 from explorer.inference.letters import compact_letters
@@ -64,9 +63,9 @@ def overall_tests(ctx: PanelContext) -> str:
         return _multi_factor_partitions(ctx.results, ctx.study.decision)
     bat = battery_for(ctx)
     d = ctx.study.decision
-    caveat = f" {html.escape(d.caveat)}" if d.caveat else ""
-    head = (f"<div class='vx-decision'><b>The decision ({html.escape(d.method)})</b>: "
-            f"{html.escape(d.sentence())}.{caveat}</div>")
+    caveat = f" {esc(d.caveat)}" if d.caveat else ""
+    head = (f"<div class='vx-decision'><b>The decision ({esc(d.method)})</b>: "
+            f"{esc(d.sentence())}.{caveat}</div>")
     return head + html_table(bat.omnibus_frame(), "All tests of equal means on this view") + bat.recommendation._repr_html_()
 
 
@@ -111,7 +110,7 @@ def effect_power(ctx: PanelContext) -> str:
         return "".join(x._repr_html_() for x in extras if x is not None)
     bat = battery_for(ctx)
     parts = [x._repr_html_() for x in (bat.effect_sizes, bat.power) if x is not None]
-    return "".join(parts) + "".join(f"<div class='vx-small'>{html.escape(n)}</div>" for n in bat.notes)
+    return "".join(parts) + "".join(f"<div class='vx-small'>{esc(n)}</div>" for n in bat.notes)
 
 
 @panel("screens", "Outlier screens (flag only)", group=GROUP, order=50)
@@ -129,7 +128,7 @@ def screens(ctx: PanelContext) -> str:
 
 def _multi_factor_partitions(res: Results, decision: Any) -> str:
     """The partition under each type of sums of squares (they differ when the cells are unbalanced)."""
-    parts = [f"<div class='vx-decision'><b>{html.escape(decision.sentence())}</b></div>",
+    parts = [f"<div class='vx-decision'><b>{esc(decision.sentence())}</b></div>",
              decision._repr_html_()]
     for ss_type in ("I", "II", "III"):
         table = res.partitions.get(ss_type)

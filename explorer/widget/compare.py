@@ -7,13 +7,13 @@ current view.
 
 from __future__ import annotations
 
-import html
 from typing import Any
 
 from explorer.engine import Results
 from explorer.study import Study
 from explorer.study.decision import Decision
 
+from ..engine.tables import esc
 from ..formatting import format_value, heading, show_measure, show_share
 
 __all__ = ["CAUTIONS_HTML", "comparison_html", "disclosure_html", "partition_html"]
@@ -38,13 +38,13 @@ def disclosure_html(study: Study) -> str:
 
 def partition_html(results: Results, decision: Decision) -> str:
     """The current partition with the study's decision line, in a block the tests and the browser can find."""
-    notes = "".join(f"<div class='vx-small'>{html.escape(n)}</div>" for n in results.notes)
-    caveat = f"<div class='vx-small'>{html.escape(decision.caveat)}</div>" if decision.caveat else ""
+    notes = "".join(f"<div class='vx-small'>{esc(n)}</div>" for n in results.notes)
+    caveat = f"<div class='vx-small'>{esc(decision.caveat)}</div>" if decision.caveat else ""
     return (
         f"<div class='vx-partition'>{results.partition._repr_html_()}"
         f"<div class='vx-small'>n = {results.n_used}, R² = {show_share(results.r_squared)}, "
         f"residual SD = {show_measure(results.residual_sd)}</div>"
-        f"<div class='vx-decision'>{html.escape(decision.sentence())}</div>{caveat}{notes}</div>"
+        f"<div class='vx-decision'>{esc(decision.sentence())}</div>{caveat}{notes}</div>"
     )
 
 
@@ -65,9 +65,9 @@ def _line(label: str, base: Any, cur: Any, role: str = "number") -> str:
     b = format_value(base, role) if numeric else str(base)
     c = format_value(cur, role) if numeric else str(cur)
     num = " class='vx-num'" if numeric else ""
-    return (f"<tr{cls}><td data-label=''>{html.escape(label)}</td><td{num} data-label='unedited data'>"
-            f"{html.escape(b)}</td><td{num} data-label='current view'>{html.escape(c)}</td>"
-            f"<td class='vx-mark' data-label='difference'>{html.escape(change)}</td></tr>")
+    return (f"<tr{cls}><td data-label=''>{esc(label)}</td><td{num} data-label='unedited data'>"
+            f"{esc(b)}</td><td{num} data-label='current view'>{esc(c)}</td>"
+            f"<td class='vx-mark' data-label='difference'>{esc(change)}</td></tr>")
 
 
 def _verdict_on(decision: Decision, term: str) -> Any:
@@ -106,15 +106,15 @@ def comparison_html(study: Study) -> str:
     flip = ""
     if not db.agrees_with(dc):
         flip = (f"<div class='vx-decision-flip'>The edits change the decision: unedited data: "
-                f"{html.escape(db.sentence())}; current view: {html.escape(dc.sentence())}.</div>")
+                f"{esc(db.sentence())}; current view: {esc(dc.sentence())}.</div>")
     head = "<tr><th></th><th>unedited data</th><th>current view</th><th>difference</th></tr>"
     dropped = study.dropped
     left = (f"<div class='vx-small'>Left out now: {len(dropped)} row(s)"
-            + (f" ({html.escape(', '.join(str(r) for r in dropped[:12]))}{'…' if len(dropped) > 12 else ''})"
+            + (f" ({esc(', '.join(str(r) for r in dropped[:12]))}{'…' if len(dropped) > 12 else ''})"
                if dropped else "") + "</div>")
     moved = study.moved_rows()
     if moved:
-        items = "; ".join(html.escape(m.describe()) for m in moved[:12]) + ("…" if len(moved) > 12 else "")
+        items = "; ".join(esc(m.describe()) for m in moved[:12]) + ("…" if len(moved) > 12 else "")
         left += f"<div class='vx-small vx-moved'>Moved to another level now: {len(moved)} row(s): {items}</div>"
     return (
         f"<div class='vx-compare'><table class='vx-table vx-cols-4'><thead>{head}</thead>"

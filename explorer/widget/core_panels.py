@@ -2,11 +2,10 @@
 
 from __future__ import annotations
 
-import html
 from typing import Any
 
 from explorer import charts
-from explorer.engine.tables import html_table
+from explorer.engine.tables import esc, html_table
 
 from .compare import comparison_html, partition_html
 from .panels import Panel, PanelContext, panel, register_panel, view_token
@@ -84,4 +83,4 @@ def edit_log(ctx: PanelContext) -> Any:
     frame = pd.DataFrame({"step": range(1, len(edits) + 1), "edit": [e.describe() for e in edits],
                           "reason": [e.reason or "(none given)" for e in edits], "time (UTC)": [e.at for e in edits]})
     return html_table(frame, "Edits in effect, oldest first") + (
-        f"<div class='vx-small'>{html.escape(str(len(ctx.study.redo_edits)))} undone edit(s) can be redone.</div>")
+        f"<div class='vx-small'>{esc(str(len(ctx.study.redo_edits)))} undone edit(s) can be redone.</div>")

@@ -9,7 +9,6 @@ edit shows in the status line and never raises into the notebook.
 
 from __future__ import annotations
 
-import html
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import replace
@@ -25,6 +24,7 @@ from explorer.engine.moves import level_homes
 from explorer.engine.spec import OVERALL_TESTS
 from explorer.study import Study, StudyEvent
 
+from ..engine.tables import esc
 from ..formatting import scale, show_reading
 from . import (  # noqa: F401  (register the built-in panels)
     battery_panels,
@@ -178,7 +178,7 @@ class Explorer(W.VBox):
         self.header.add_class("vx-header")
 
     def _section(self, title: str, *items: W.Widget) -> W.VBox:
-        box = W.VBox([W.HTML(f"<div class='vx-card-title'>{html.escape(title)}</div>"), *items],
+        box = W.VBox([W.HTML(f"<div class='vx-card-title'>{esc(title)}</div>"), *items],
                      layout=W.Layout(margin="0 0 8px 0"))
         box.add_class("vx-section")
         return box
@@ -254,7 +254,7 @@ class Explorer(W.VBox):
                 self.refresh()
 
     def _status(self, text: str, kind: str = "ok") -> None:
-        self.status.value = f"<div class='vx-status-{kind}'>{html.escape(text)}</div>"
+        self.status.value = f"<div class='vx-status-{kind}'>{esc(text)}</div>"
 
     def _reason(self, required: bool, what: str) -> str | None:
         reason = self.reason_box.value.strip()
@@ -325,7 +325,7 @@ class Explorer(W.VBox):
                 value = show_reading(ds.y_original[p])
             parts.append(f"row {r} ({f} {view.level_of(p, f)}, {value}, {state})")
         more = f" and {len(self._picked) - 8} more" if len(self._picked) > 8 else ""
-        self.picked_label.value = f"<span class='vx-picked-rows'>Picked: {html.escape('; '.join(parts))}{more}</span>"
+        self.picked_label.value = f"<span class='vx-picked-rows'>Picked: {esc('; '.join(parts))}{more}</span>"
 
     # ================================================================= actions
     def leave_out_picked(self) -> bool:
@@ -595,10 +595,10 @@ class Explorer(W.VBox):
         res = self.study.results
         s = self.study.spec
         self.header.value = (
-            f"<div class='vx-banner'><b>{html.escape(s.response)} by {html.escape(' × '.join(s.factors))}</b> "
+            f"<div class='vx-banner'><b>{esc(s.response)} by {esc(' × '.join(s.factors))}</b> "
             f"({res.n_used} rows in analysis, {len(self.study.dropped)} left out). "
-            f"<b>Current view:</b> {html.escape(self.study.decision.sentence())}. "
-            f"<b>Unedited data:</b> {html.escape(self.study.baseline_decision.sentence())}."
+            f"<b>Current view:</b> {esc(self.study.decision.sentence())}. "
+            f"<b>Unedited data:</b> {esc(self.study.baseline_decision.sentence())}."
             f"<br>{disclosure_html(self.study)}</div>"
         )
 
@@ -625,14 +625,14 @@ class Explorer(W.VBox):
         self._level_boxes = {}
         for fac, current in mapping.items():
             boxes = {}
-            rows.append(W.HTML(f"<div class='vx-small'><b>{html.escape(fac)}</b></div>"))
+            rows.append(W.HTML(f"<div class='vx-small'><b>{esc(fac)}</b></div>"))
             for orig, now in current.items():
                 box = W.Text(value=now or "", placeholder="new name", layout=W.Layout(width="110px"),
                              disabled=now is None)
                 boxes[orig] = box
                 shown = now if now is not None else "(no rows left at this level)"
                 text = f"{orig} →" if shown == orig else f"{orig} (now {shown}) →"
-                label = W.HTML(f"<span class='vx-small'>{html.escape(text)}</span>",
+                label = W.HTML(f"<span class='vx-small'>{esc(text)}</span>",
                                layout=W.Layout(width="170px"))
                 rows.append(W.HBox([label, box]))
                 self._level_widgets += [label, box]

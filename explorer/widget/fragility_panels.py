@@ -8,11 +8,11 @@ cover factorial and blocked designs as the sensitivity engine does.
 
 from __future__ import annotations
 
-import html
 from typing import Any
 
 from explorer import charts
 
+from ..engine.tables import esc
 from .panels import PanelContext, explains_refusals, panel, view_token
 
 __all__: list[str] = []
@@ -39,8 +39,8 @@ def regroupings(ctx: PanelContext) -> Any:
     merges = ", ".join(f"{a} + {b}" for a, b in scan.merge_flips) or "none"
     moves = "; ".join(f"row {r}: {a} → {b}" for r, a, b in scan.move_flips[:10]) or "none"
     more = f" (and {len(scan.move_flips) - 10} more)" if len(scan.move_flips) > 10 else ""
-    return (f"<div class='vx-small'><b>Merges of two levels that change the decision:</b> {html.escape(merges)}</div>"
-            f"<div class='vx-small'><b>Moves of one row that change it:</b> {html.escape(moves + more)}</div>"
+    return (f"<div class='vx-small'><b>Merges of two levels that change the decision:</b> {esc(merges)}</div>"
+            f"<div class='vx-small'><b>Moves of one row that change it:</b> {esc(moves + more)}</div>"
             + scan._repr_html_())
 
 

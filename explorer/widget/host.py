@@ -7,7 +7,6 @@ token changes, and a builder that fails shows its error in the card instead of r
 
 from __future__ import annotations
 
-import html
 from collections.abc import Callable, Hashable
 from typing import Any, cast
 
@@ -17,6 +16,7 @@ import ipywidgets as W
 from explorer.charts import PICK
 from explorer.charts.style import split_subtitle
 
+from ..engine.tables import esc
 from .panels import Panel, PanelContext
 
 __all__ = ["EMBED_OPTIONS", "PanelCard", "parse_pick"]
@@ -59,7 +59,7 @@ class PanelCard:
         self.body = W.Box(layout=W.Layout(flex_flow="column"))
         self.note = W.HTML()  # a chart's subtitle, as text the browser wraps to the card's width
         self.note.add_class("vx-chart-note")
-        self.title = W.HTML(f"<div class='vx-card-title'>{html.escape(spec.title)}</div>")
+        self.title = W.HTML(f"<div class='vx-card-title'>{esc(spec.title)}</div>")
         self.widget = W.VBox([self.title, self.body], layout=W.Layout(padding="4px 8px", border="1px solid #e2e2e2"))
         self.widget.add_class("vx-card")
         self.widget.add_class(f"vx-card-{spec.key}")
@@ -86,7 +86,7 @@ class PanelCard:
             self.error = ""
         except Exception as exc:  # noqa: BLE001  a panel must never break the explorer
             self.error = f"{self.panel.title}: {type(exc).__name__}: {exc}"
-            self._show_html(f"<div class='vx-status-error'>This panel could not be drawn: {html.escape(str(exc))}</div>")
+            self._show_html(f"<div class='vx-status-error'>This panel could not be drawn: {esc(str(exc))}</div>")
             return True
         self._show(out)
         return True
@@ -105,7 +105,7 @@ class PanelCard:
         elif hasattr(out, "_repr_html_"):
             self._show_html(out._repr_html_())
         else:
-            self._show_html(f"<pre>{html.escape(repr(out))}</pre>")
+            self._show_html(f"<pre>{esc(repr(out))}</pre>")
 
     def _kind(self, kind: str) -> None:
         """Mark the card as holding a chart or HTML (the stylesheet gives HTML cards the full row in tabs)."""
@@ -126,7 +126,7 @@ class PanelCard:
     def _show_chart(self, chart: alt.TopLevelMixin) -> None:
         self._kind("chart")
         chart, lines = split_subtitle(chart)
-        self.note.value = "".join(f"<div>{html.escape(str(line))}</div>" for line in lines)
+        self.note.value = "".join(f"<div>{esc(str(line))}</div>" for line in lines)
         if isinstance(chart, (alt.Chart, alt.LayerChart)):
             chart = chart.properties(width="container")  # the card's width, whatever the page gives it
         self.title.layout.display = "none"  # a chart carries its own title

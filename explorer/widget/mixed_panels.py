@@ -10,7 +10,6 @@
 
 from __future__ import annotations
 
-import html
 from dataclasses import replace
 from typing import Any
 
@@ -21,6 +20,7 @@ from explorer.engine import ExplorerError
 from explorer.engine.spec import ModelSpec
 from explorer.study import Study
 
+from ..engine.tables import esc
 from .panels import PanelContext, explains_refusals, panel, view_token
 
 __all__ = ["ROLES", "RolePickers", "respecified"]
@@ -103,7 +103,7 @@ class RolePickers(W.VBox):
         try:
             new = respecified(self._study, roles, parents)
         except ExplorerError as exc:
-            self.status.value = f"<span class='vx-small'>Not applied: {html.escape(str(exc))}</span>"
+            self.status.value = f"<span class='vx-small'>Not applied: {esc(str(exc))}</span>"
             return None
         self.status.value = "<span class='vx-small'>Roles applied; edits carried over.</span>"
         if self._on_study is not None:
@@ -157,7 +157,7 @@ def _gauge(ctx: PanelContext) -> Any:
         na, nb = len(ctx.study.view.levels[a]), len(ctx.study.view.levels[b])
         part, operator = (a, b) if na >= nb else (b, a)
     table = ctx.study.measurement_system(part, operator)
-    return (f"<div class='vx-small'>Parts: {html.escape(part)}; operators: {html.escape(operator)}.</div>"
+    return (f"<div class='vx-small'>Parts: {esc(part)}; operators: {esc(operator)}.</div>"
             + table._repr_html_())
 
 

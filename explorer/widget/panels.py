@@ -16,7 +16,6 @@ group and are only rebuilt when their tab is open.
 
 from __future__ import annotations
 
-import html
 from collections.abc import Callable, Hashable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -24,6 +23,8 @@ from typing import Any
 from explorer.charts import HistoryStep
 from explorer.engine import ExplorerError, Results
 from explorer.study import Study
+
+from ..engine.tables import esc
 
 __all__ = [
     "PANELS",
@@ -136,7 +137,7 @@ def explains_refusals(fn: Callable[[PanelContext], Any]) -> Callable[[PanelConte
         try:
             return fn(ctx)
         except ExplorerError as exc:
-            return f"<div class='vx-small'>Not available for this view: {html.escape(str(exc))}</div>"
+            return f"<div class='vx-small'>Not available for this view: {esc(str(exc))}</div>"
 
     built.__doc__ = fn.__doc__
     return built

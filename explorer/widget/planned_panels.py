@@ -7,10 +7,10 @@ show their values for the data as edited now, and redraw after every edit.
 
 from __future__ import annotations
 
-import html
 from collections.abc import Hashable
 from typing import Any
 
+from ..engine.tables import esc
 from .panels import PanelContext, explains_refusals, panel
 
 __all__: list[str] = []
@@ -44,7 +44,7 @@ def planned_analyses(ctx: PanelContext) -> str:
         return HOW_TO
     parts = [f"<div class='vx-planned'>{o._repr_html_()}</div>" for o in outcomes]
     return "".join(parts) + ("<div class='vx-small'>Recomputed on the current view "
-                             f"({html.escape(str(len(ctx.study.edits)))} edit(s) in effect).</div>")
+                             f"({esc(str(len(ctx.study.edits)))} edit(s) in effect).</div>")
 
 
 @panel("equivalence_intervals", "Equivalence intervals", group=GROUP, order=20, token=planned_token)
