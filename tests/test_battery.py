@@ -39,7 +39,7 @@ def test_bundle_on_handbook_data() -> None:
     study = study_from_groups(NIST_TUKEY_GROUPS)
     b = study.battery(control="L1", permutations=499, seed=3)
     assert b.classic.pvalue == pytest.approx(stats.f_oneway(*NIST_TUKEY_GROUPS).pvalue, rel=1e-10)
-    assert len(b.omnibus) == 5 and b.permutation.detail("permutations") == 499
+    assert len(b.omnibus) == 5 and b.permutation.permutations == 499
     assert b.dunnett is not None and b.dunnett.family_size == 3
     assert b.letters.letter_of("L2") == "a" and b.tukey.method == "Tukey"
     assert dict(b.options)["control"] == "L1"

@@ -114,7 +114,7 @@ def test_kruskal_matches_scipy_with_ties(groups, results) -> None:
     """H with tie correction (the data are rounded to 0.1, so there are ties) vs scipy.stats.kruskal."""
     ref = stats.kruskal(*groups)
     got = kruskal_wallis(results)
-    assert got.detail("tie correction") < 1
+    assert got.tie_correction < 1
     assert got.statistic == pytest.approx(ref.statistic, rel=1e-12)
     assert got.pvalue == pytest.approx(ref.pvalue, rel=1e-10)
 
@@ -133,7 +133,7 @@ def test_permutation_f_seeded_and_close_to_scipy(groups, results) -> None:
     a = permutation_f(results, 4999, seed=11)
     b = permutation_f(results, 4999, seed=11)
     assert a.pvalue == b.pvalue
-    se = a.detail("Monte-Carlo SE of p")
+    se = a.monte_carlo_se
     assert se == pytest.approx(np.sqrt(a.pvalue * (1 - a.pvalue) / 4999))
     ref = stats.permutation_test(groups, lambda *s, axis: stats.f_oneway(*s, axis=axis).statistic,
                                  permutation_type="independent", vectorized=True, n_resamples=4999,
@@ -151,3 +151,17 @@ def test_undefined_cases_say_why() -> None:
         assert "one observation" in test.notes[0]
     flat = study_from_groups([[1.0, 1.0, 1.0], [2.0, 3.0, 4.0]]).results
     assert welch_f(flat).pvalue is None and "zero spread" in welch_f(flat).notes[0]
+
+
+def test_extras_are_typed_fields_and_the_old_keys_warn(results) -> None:
+    """Extras are attributes; the string-keyed reading of the last release warns and gives the same value."""
+    a = permutation_f(results, 99, seed=2)
+    assert (a.permutations, a.seed) == (99, 2) and a.tie_correction is None
+    assert [label for label, _ in a.extras()] == ["permutations", "seed", "Monte-Carlo SE of p"]
+    with pytest.warns(DeprecationWarning, match=r"read \.monte_carlo_se"):
+        assert a.detail("Monte-Carlo SE of p") == a.monte_carlo_se
+    with pytest.warns(DeprecationWarning, match="details is deprecated"):
+        assert dict(a.details)["seed"] == 2
+    with pytest.raises(KeyError, match="tie correction"):
+        a.detail("tie correction")
+    assert "Monte-Carlo SE of p" in a._repr_html_()

@@ -37,7 +37,8 @@ def test_intercept_only_profile_matches_scipy(seed):
     loglik, _ = profile_loglik(y, np.ones((y.size, 1)))
     for lam in (-1.3, -0.2, 0.0, 0.4, 1.7):
         assert loglik(lam) == pytest.approx(stats.boxcox_llf(lam, y), rel=1e-12)
-    lam, lo, hi, _, _ = profile_estimate(loglik, 0.95)
+    best = profile_estimate(loglik, 0.95)
+    lam, lo, hi = best.estimate, best.low, best.high
     _, lmax, (clo, chi) = stats.boxcox(y, alpha=0.05)
     assert lam == pytest.approx(lmax, abs=1e-6)
     assert (lo, hi) == pytest.approx((clo, chi), abs=1e-6)

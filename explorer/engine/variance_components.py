@@ -45,7 +45,8 @@ from .reml import reml_fit
 from .spec import ModelSpec
 from .tables import AnovaTable, html_table
 
-__all__ = ["VarianceComponent", "VarianceComponents", "estimate_components", "moment_components", "reml_components",
+__all__ = ["CombinedComponents", "VarianceComponent", "VarianceComponents", "estimate_components", "moment_components",
+           "reml_components",
            "NEGATIVE_RULE"]
 
 NEGATIVE_RULE = (
@@ -88,6 +89,19 @@ class VarianceComponent:
         return float(np.sqrt(self.truncated))
 
 
+@dataclass(frozen=True, kw_only=True)
+class CombinedComponents:
+    """The sum of several variance components: its estimate, the df of that estimate
+    (Satterthwaite, or from the REML covariance) and its chi-square interval (``None``
+    when the df or a positive sum is missing)."""
+
+    sources: tuple[str, ...]
+    estimate: float
+    df: float | None
+    ci_low: float | None
+    ci_high: float | None
+
+
 @dataclass(frozen=True, kw_only=True, eq=False)
 class VarianceComponents:
     """Variance components of the random terms and the residual, with the method and notes."""
@@ -110,8 +124,8 @@ class VarianceComponents:
                 return c
         raise KeyError(f"no component {source!r}; components are {[c.source for c in self.components]}")
 
-    def combined(self, sources: list[str] | tuple[str, ...]) -> tuple[float, float | None, float | None, float | None]:
-        """(estimate, df, CI low, CI high) of the sum of several components.
+    def combined(self, sources: list[str] | tuple[str, ...]) -> CombinedComponents:
+        """Estimate, df and interval of the sum of several components (see :class:`CombinedComponents`).
 
         Moments: the sum is one linear combination of mean squares (Satterthwaite's df);
         REML: df = 2 s^4 / Var(s) with Var from the estimates' covariance. Negative
@@ -134,7 +148,7 @@ class VarianceComponents:
             var = float(np.sum(self.covariance[np.ix_(idx, idx)]))
             df = 2 * est**2 / var if var > 0 and est > 0 else None
         lo, hi = chi2_interval(est, df, self.confidence)
-        return est, df, lo, hi
+        return CombinedComponents(sources=tuple(sources), estimate=est, df=df, ci_low=lo, ci_high=hi)
 
     def to_frame(self) -> pd.DataFrame:
         pct = f"{self.confidence:.0%}"

@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Literal
+from typing import TYPE_CHECKING, ClassVar, Literal
 
 import numpy as np
 import pandas as pd
@@ -41,6 +41,7 @@ from ..engine.spec import TEST_LABELS, alpha_or
 from ..engine.tables import esc
 from ..formatting import result_frame, show_df, show_p, show_stat
 from .oneway_inputs import row_sample_notes
+from .result_extras import WithExtras
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -55,8 +56,11 @@ SHAPIRO_MAX_N = 5000
 
 
 @dataclass(frozen=True, kw_only=True)
-class CheckResult:
-    """One assumption check: what it tests, its statistic, p-value and the limits it holds in."""
+class CheckResult(WithExtras):
+    """One assumption check: what it tests, its statistic, p-value and the limits it holds in.
+
+    ``center`` is Levene's centre ('median', 'mean' or 'trimmed'; ``None`` for the other checks).
+    """
 
     method: str
     tests: str
@@ -65,8 +69,10 @@ class CheckResult:
     pvalue: float | None
     limits: str
     within_limits: bool = True
-    details: tuple[tuple[str, float | int | str | None], ...] = ()
     notes: tuple[str, ...] = field(default=())
+    center: str | None = None
+
+    EXTRAS: ClassVar[tuple[tuple[str, str], ...]] = (("centre", "center"),)
 
     def row(self) -> dict[str, object]:
         return {"check": self.method, "tests": self.tests, "statistic": self.statistic,
@@ -140,13 +146,13 @@ def levene(results: Results, *, center: Center = "median", proportion_to_cut: fl
     limits = "Needs at least two observations in some level; robust to non-normality with the median centre."
     if zs.ss_within <= 0 or df1 < 1 or df2 < 1:
         return CheckResult(method=names[center], tests="equal spreads across levels", statistic=None,
-                           df=(df1, df2), pvalue=None, limits=limits,
+                           df=(df1, df2), pvalue=None, limits=limits, center=center,
                            notes=notes + (("Every absolute deviation equals its level's mean deviation (or too few "
                                           "rows): the F is undefined."),))
     f = (zs.ss_between / df1) / (zs.ss_within / df2)
     return CheckResult(method=names[center], tests="equal spreads across levels", statistic=float(f),
                        df=(float(df1), float(df2)), pvalue=float(f_sf(f, df1, df2)), limits=limits,
-                       details=(("centre", center),), notes=notes)
+                       center=center, notes=notes)
 
 
 def bartlett(results: Results) -> CheckResult:

@@ -42,7 +42,7 @@ from ..engine.tables import html_table
 from ..engine.transforms import inverse
 from ..formatting import show_number
 
-__all__ = ["BoxCoxProfile", "box_cox", "profile_estimate", "profile_loglik", "SIMPLE_POWERS"]
+__all__ = ["BoxCoxProfile", "ProfileEstimate", "box_cox", "profile_estimate", "profile_loglik", "SIMPLE_POWERS"]
 
 #: Powers with a plain name, listed when they fall inside the interval.
 SIMPLE_POWERS = {-1.0: "reciprocal", -0.5: "reciprocal square root", 0.0: "log", 0.5: "square root",
@@ -124,8 +124,21 @@ def _bound(loglik, target: float, start: float, step: float) -> float | None:  #
     return None
 
 
-def profile_estimate(loglik, confidence: float):  # type: ignore[no-untyped-def]
-    """``(estimate, low, high, loglik at the estimate, notes)`` of a profile log-likelihood of the power.
+@dataclass(frozen=True, kw_only=True)
+class ProfileEstimate:
+    """The power that maximises a profile log-likelihood (``estimate``), the ends of its
+    interval (``None`` when an end lies beyond the search range), the log-likelihood at the
+    estimate and notes on what was not found."""
+
+    estimate: float
+    low: float | None
+    high: float | None
+    loglik: float
+    notes: tuple[str, ...]
+
+
+def profile_estimate(loglik: Callable[[float], float], confidence: float) -> ProfileEstimate:
+    """The maximum of a profile log-likelihood of the power and its likelihood interval.
 
     Brent's method from the bracket (-2, 2) for the maximum (as ``scipy.stats.boxcox``);
     the interval ends where the profile falls chi2(confidence; 1)/2 below it.
@@ -142,7 +155,7 @@ def profile_estimate(loglik, confidence: float):  # type: ignore[no-untyped-def]
     hi = _bound(loglik, target, lam, 0.25)
     if lo is None or hi is None:
         notes.append(f"The interval has no {'lower' if lo is None else 'upper'} end within ±{_LIMIT:g}.")
-    return lam, lo, hi, top, notes
+    return ProfileEstimate(estimate=lam, low=lo, high=hi, loglik=top, notes=tuple(notes))
 
 
 def box_cox(results: Results, *, lambdas: list[float] | None = None, confidence: float | None = None) -> BoxCoxProfile:
@@ -168,7 +181,8 @@ def box_cox(results: Results, *, lambdas: list[float] | None = None, confidence:
         )
     x = design_of(results, getattr(results, "covariate_values", None)).matrix
     loglik, _ = profile_loglik(measured, x)
-    lam, lo, hi, top, notes = profile_estimate(loglik, conf)
+    best = profile_estimate(loglik, conf)
+    lam, lo, hi, top, notes = best.estimate, best.low, best.high, best.loglik, list(best.notes)
     powers = np.unique(np.r_[np.arange(-2.0, 2.01, 0.5), [round(lam, 4)]] if lambdas is None
                        else np.asarray(lambdas, dtype=float))
     ll = np.array([loglik(float(p)) for p in powers])

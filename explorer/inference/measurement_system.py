@@ -159,7 +159,8 @@ def measurement_system(
     for label, parts in groups:
         var = float(sum(value[p] for p in parts))
         sd = math.sqrt(var)
-        est, df, lo, hi = vc.combined(parts)
+        summed = vc.combined(parts)
+        df, lo, hi = summed.df, summed.ci_low, summed.ci_high
         if any(vc.component(p).estimate < 0 for p in parts):
             df = lo = hi = None  # the interval of a sum with a negative part is not defined by this rule
         lines.append(GaugeLine(

@@ -21,7 +21,7 @@ Springer (permutation F; p-value (b + 1) / (B + 1)).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, ClassVar
 
 import numpy as np
 import pandas as pd
@@ -31,6 +31,7 @@ from ..engine.tables import esc
 from ..formatting import result_frame, show_df, show_number, show_p, show_stat
 from .omnibus_batch import brown_forsythe_batch, kruskal_batch, welch_batch
 from .oneway_inputs import require_oneway, row_sample_notes
+from .result_extras import WithExtras
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -46,12 +47,14 @@ PERMUTATION_SEED = 0
 
 
 @dataclass(frozen=True, kw_only=True)
-class OmnibusTest:
+class OmnibusTest(WithExtras):
     """One test of 'all level means (or distributions) are equal'.
 
     ``statistic``/``pvalue`` are ``None`` when the test is undefined on this view, and
-    ``notes`` say why. ``details`` holds method-specific extras as (name, value) pairs
-    (e.g. the permutation count and the Monte-Carlo standard error of the p-value).
+    ``notes`` say why. Method-specific extras are typed fields, ``None`` where they do
+    not apply: ``tie_correction`` (Kruskal-Wallis), ``permutations``, ``seed`` and
+    ``monte_carlo_se`` (the permutation F's count, seed and the Monte-Carlo standard
+    error of its p-value); ``extras()`` lists the ones set with their labels.
     ``original_df_num``/``original_pvalue`` are a second reading of the same statistic
     with the numerator df its authors first proposed, where the reported ``pvalue`` uses
     a later correction (Brown-Forsythe: k - 1 against Mehrotra's df); ``None`` otherwise.
@@ -63,16 +66,17 @@ class OmnibusTest:
     df_den: float | None
     pvalue: float | None
     assumes: str
-    details: tuple[tuple[str, float | int | str | None], ...] = ()
     notes: tuple[str, ...] = field(default=())
     original_df_num: float | None = None
     original_pvalue: float | None = None
+    tie_correction: float | None = None
+    permutations: int | None = None
+    seed: int | None = None
+    monte_carlo_se: float | None = None
 
-    def detail(self, name: str) -> float | int | str | None:
-        for k, v in self.details:
-            if k == name:
-                return v
-        raise KeyError(f"no detail {name!r}; available: {[k for k, _ in self.details]}")
+    EXTRAS: ClassVar[tuple[tuple[str, str], ...]] = (
+        ("tie correction", "tie_correction"), ("permutations", "permutations"), ("seed", "seed"),
+        ("Monte-Carlo SE of p", "monte_carlo_se"))
 
     def row(self) -> dict[str, object]:
         return {
@@ -86,7 +90,7 @@ class OmnibusTest:
     def _repr_html_(self) -> str:
         dfs = ", ".join(show_number(x) for x in (self.df_num, self.df_den) if x is not None)
         extra = "; ".join(f"{esc(k)} {show_stat(v) if not isinstance(v, str) else esc(v)}"
-                          for k, v in self.details)
+                          for k, v in self.extras())
         if self.original_pvalue is not None:
             first = (f"with the original k - 1 = {show_df(self.original_df_num)} numerator df, "
                      f"p = {show_p(self.original_pvalue)} (liberal when variances differ)")
@@ -212,7 +216,7 @@ def kruskal_wallis(results: Results) -> OmnibusTest:
     return OmnibusTest(
         method="Kruskal-Wallis H", statistic=float(out.statistic[0]), df_num=float(k - 1), df_den=None,
         pvalue=float(out.pvalue[0]), assumes=assumes,
-        details=(("tie correction", float(corr)),), notes=notes,
+        tie_correction=float(corr), notes=notes,
     )
 
 
@@ -222,8 +226,8 @@ def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) 
     With the group sizes fixed, F is an increasing function of ``sum_i S_i^2 / n_i``
     (``S_i`` the level sums of the centred response), which is what each permutation
     computes. The p-value is ``(b + 1) / (B + 1)`` with ``b`` the permutations at least
-    as extreme (Good 2005); its Monte-Carlo standard error ``sqrt(p (1-p) / B)`` is in
-    ``details``. Seeded, so the same seed and count give the same p-value.
+    as extreme (Good 2005); its Monte-Carlo standard error ``sqrt(p (1-p) / B)`` is
+    ``monte_carlo_se``. Seeded, so the same seed and count give the same p-value.
     """
     b_total = int(permutations)
     if b_total < 1:
@@ -256,7 +260,7 @@ def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) 
     return OmnibusTest(
         method="permutation F", statistic=classic.statistic, df_num=None, df_den=None, pvalue=float(p),
         assumes="exchangeable observations under the null (same distribution in every level)",
-        details=(("permutations", b_total), ("seed", int(seed)), ("Monte-Carlo SE of p", se)),
+        permutations=b_total, seed=int(seed), monte_carlo_se=se,
         notes=row_sample_notes(results),
     )
 

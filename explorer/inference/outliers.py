@@ -26,7 +26,7 @@ Iglewicz, B. and Hoaglin, D. C. (1993). How to Detect and Handle Outliers. ASQC.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, ClassVar
 
 import numpy as np
 import pandas as pd
@@ -37,6 +37,7 @@ from ..engine.numerics import read_only_copy
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_stat
 from .oneway_inputs import row_sample_notes
+from .result_extras import WithExtras
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -55,12 +56,16 @@ GRUBBS_MIN_N = 7
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
-class OutlierScreen:
+class OutlierScreen(WithExtras):
     """Rows a screen flags, the rule's threshold and the score of every kept row.
 
     ``scores`` align with ``row_ids`` (all kept rows); ``flagged`` lists the ids whose
     score passes the threshold. ``ran`` is False when the screen's guard stopped it
-    (see ``notes``).
+    (see ``notes``). Extras of each screen are typed fields (``None`` elsewhere): the
+    Bonferroni test's ``df`` (of each external studentized residual), ``n_params``
+    (fitted parameters) and ``smallest_pvalue`` (the smallest Bonferroni-adjusted p);
+    Grubbs' ``statistic`` (G) and ``alpha``; the robust z screen's ``median`` and ``mad``
+    of the residuals.
     """
 
     method: str
@@ -70,8 +75,18 @@ class OutlierScreen:
     scores: np.ndarray
     flagged: tuple[object, ...]
     ran: bool = True
-    details: tuple[tuple[str, float | int | str | None], ...] = ()
     notes: tuple[str, ...] = field(default=())
+    df: int | None = None
+    n_params: int | None = None
+    smallest_pvalue: float | None = None
+    statistic: float | None = None
+    alpha: float | None = None
+    median: float | None = None
+    mad: float | None = None
+
+    EXTRAS: ClassVar[tuple[tuple[str, str], ...]] = (
+        ("df", "df"), ("fitted means", "n_params"), ("smallest Bonferroni p", "smallest_pvalue"), ("G", "statistic"),
+        ("alpha", "alpha"), ("median", "median"), ("MAD", "mad"))
 
     def to_frame(self) -> pd.DataFrame:
         """Flagged rows with their scores (empty when nothing is flagged)."""
@@ -125,7 +140,7 @@ def bonferroni_outlier_test(results: Results, *, alpha: float = 0.05) -> Outlier
     return OutlierScreen(
         method="studentized residuals (Bonferroni)", rule=rule, threshold=crit, row_ids=fit.row_ids,
         scores=read_only_copy(t), flagged=_flag(fit.row_ids, mask, np.nan_to_num(t)),
-        details=(("df", df), ("fitted means", p_fit), ("smallest Bonferroni p", p_min)),
+        df=int(df), n_params=int(p_fit), smallest_pvalue=p_min,
         notes=tuple(notes) + row_sample_notes(results),
     )
 
@@ -165,7 +180,7 @@ def grubbs_test(results: Results, *, alpha: float = 0.05) -> OutlierScreen:
     mask[top] = z[top] > crit
     return OutlierScreen(method="Grubbs (two-sided)", rule=rule, threshold=crit, row_ids=fit.row_ids,
                          scores=read_only_copy(z), flagged=_flag(fit.row_ids, mask, z),
-                         details=(("G", float(z[top])), ("alpha", alpha)), notes=row_sample_notes(results))
+                         statistic=float(z[top]), alpha=alpha, notes=row_sample_notes(results))
 
 
 def robust_z_screen(results: Results, *, cutoff: float = 3.5) -> OutlierScreen:
@@ -184,4 +199,4 @@ def robust_z_screen(results: Results, *, cutoff: float = 3.5) -> OutlierScreen:
     z = 0.6745 * (e - med) / mad
     return OutlierScreen(method="robust z (median/MAD)", rule=rule, threshold=cutoff, row_ids=fit.row_ids,
                          scores=read_only_copy(z), flagged=_flag(fit.row_ids, np.abs(z) > cutoff, z),
-                         details=(("median", med), ("MAD", mad)), notes=row_sample_notes(results))
+                         median=med, mad=mad, notes=row_sample_notes(results))

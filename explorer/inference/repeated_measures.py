@@ -144,9 +144,22 @@ def _helmert(k: int) -> np.ndarray:
     return c
 
 
-def _subject_table(results: Results) -> tuple[np.ndarray, np.ndarray, list[str], list[int], list[tuple[str, ...]], list[str]]:
-    """(Y subjects x within cells, between group code per subject, within factors, their level counts,
-    between label tuples, subject labels)."""
+@dataclass(frozen=True, kw_only=True, eq=False)
+class _SubjectTable:
+    """Each subject's cell means over the within cells (``y``, subjects x cells), its between-subject
+    group (``code`` into ``groups``, tuples of between labels), the within factors with their level
+    counts, and the subject labels."""
+
+    y: np.ndarray
+    code: np.ndarray
+    within: list[str]
+    sizes: list[int]
+    groups: list[tuple[str, ...]]
+    subjects: list[str]
+
+
+def _subject_table(results: Results) -> _SubjectTable:
+    """The subjects-by-within-cells table of ``results`` (see :class:`_SubjectTable`)."""
     spec = results.spec
     cells = results.cells
     if cells is None or spec.subject is None:
@@ -176,7 +189,8 @@ def _subject_table(results: Results) -> tuple[np.ndarray, np.ndarray, list[str],
         labels = [()] * len(wide)
     uniq = list(dict.fromkeys(labels))
     code = np.array([uniq.index(lb) for lb in labels])
-    return wide.to_numpy(float), code, within, [len(lv) for lv in levels], uniq, [str(s) for s in wide.index]
+    return _SubjectTable(y=wide.to_numpy(float), code=code, within=within, sizes=[len(lv) for lv in levels],
+                         groups=uniq, subjects=[str(s) for s in wide.index])
 
 
 def _transform(within: list[str], sizes: list[int], term: tuple[str, ...]) -> np.ndarray:
@@ -278,7 +292,8 @@ def repeated_measures(results: Results, *, multivariate: bool = True) -> Repeate
     subject-by-within error term).
     """
     spec = results.spec
-    y, code, within, sizes, uniq, _ = _subject_table(results)
+    subjects = _subject_table(results)
+    y, code, within, sizes, uniq = subjects.y, subjects.code, subjects.within, subjects.sizes, subjects.groups
     n_sub, g = y.shape[0], len(uniq)
     between = list(spec.between)
     nu = n_sub - g

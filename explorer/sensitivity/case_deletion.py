@@ -215,7 +215,8 @@ def case_deletion_scan(study: StudyLike, *, term: str | None = None, alpha: floa
     spec = study.spec
     a = alpha_or(alpha, data.alpha)
     chosen = ChosenTest(data, spec)
-    fits, new_n, new_mean, used = chosen.deletion()
+    deleted = chosen.deletion()
+    fits, new_n, new_mean, used = deleted.fits, deleted.n, deleted.mean, deleted.permutations_used
     with np.errstate(divide="ignore", invalid="ignore"):
         df_w = data.n - 1 - fits.levels
         msw = np.where((fits.ss_within > 0) & (df_w > 0), fits.ss_within / df_w, np.nan)
@@ -251,7 +252,8 @@ def _factorial_scan(study: StudyLike, name: str, verdict: VerdictLike, alpha: fl
     spec = study.spec
     a = alpha_or(alpha, spec.alpha)
     with_cov = bool(getattr(spec, "covariates", ()))
-    per_term, status, data, notes = (covariate_deletion if with_cov else cell_deletion)(study)
+    deletions = (covariate_deletion if with_cov else cell_deletion)(study)
+    per_term, status, data, notes = deletions.per_term, deletions.status, deletions.cells, deletions.notes
     m = per_term[name]
     if record:
         study.record_search("case deletion", data.n)

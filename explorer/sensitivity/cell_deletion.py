@@ -18,6 +18,8 @@ Welford, B. P. (1962). Technometrics 4(3), 419-420.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from ..engine.cellfit import fit_cells
@@ -29,7 +31,7 @@ from ..engine.numerics import is_zero_ss
 from .alternatives import OnewayInput, leave_one_out
 from .study_like import StudyLike
 
-__all__ = ["cell_deletion", "eta_squared_total"]
+__all__ = ["TermDeletions", "cell_deletion", "eta_squared_total"]
 
 
 def _with_cell(cells: GroupStats, c: int, n: float, mean: float) -> GroupStats:
@@ -45,14 +47,24 @@ def _without_cell(cells: GroupStats, c: int) -> GroupStats:
                       mean=cells.mean[keep], m2=cells.m2[keep], offset=cells.offset)
 
 
-def cell_deletion(study: StudyLike) -> tuple[dict[str, dict[str, np.ndarray]], np.ndarray, OnewayInput, list[str]]:
-    """Every term's F test with each kept row left out in turn.
+@dataclass(frozen=True, kw_only=True, eq=False)
+class TermDeletions:
+    """Every term's F test with each kept row left out (one entry per row in each array).
 
-    Returns ``(per_term, status, cells_input, notes)``: ``per_term[name]`` holds arrays
-    ``statistic``, ``pvalue``, ``ss``, ``df`` (one entry per row); ``status`` follows
-    :data:`.alternatives.STATUS_NOTES` (4 = the row's cell disappears and the model
-    cannot be fitted without it).
+    ``per_term[name]`` holds arrays ``statistic``, ``pvalue``, ``ss``, ``df`` (the
+    residual's under ``"residual"``); ``status`` follows :data:`.alternatives.STATUS_NOTES`
+    (4 = the row's cell disappears and the model cannot be fitted without it); ``cells``
+    are the kept rows with their cells as groups; ``notes`` say what was refitted.
     """
+
+    per_term: dict[str, dict[str, np.ndarray]]
+    status: np.ndarray
+    cells: OnewayInput
+    notes: list[str]
+
+
+def cell_deletion(study: StudyLike) -> TermDeletions:
+    """Every term's F test with each kept row left out in turn; see :class:`TermDeletions`."""
     from ..engine.factorial import layout_of
 
     res = study.results
@@ -119,7 +131,7 @@ def cell_deletion(study: StudyLike) -> tuple[dict[str, dict[str, np.ndarray]], n
         p[ok] = f_sf(stat[ok], float(df_t), df_resid[ok].astype(float))
         per_term[term_name(t)] = {"statistic": stat, "pvalue": p, "ss": ss[t], "df": np.full(n, df_t)}
     per_term["residual"] = {"ss": resid, "df": df_resid}
-    return per_term, status, data, notes
+    return TermDeletions(per_term=per_term, status=status, cells=data, notes=notes)
 
 
 def eta_squared_total(data: OnewayInput, ss_term: np.ndarray) -> np.ndarray:

@@ -17,6 +17,8 @@ Welford, B. P. (1962). Technometrics 4(3), 419-420.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from ..engine.cellfit import CellFit, fit_cells
@@ -26,10 +28,38 @@ from ..engine.design_checks import check_design
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError, ExplorerError, closest_names
 from ..engine.groupstats import GroupStats, group_stats
+from ..engine.numerics import is_zero_ss, response_scale
 from .alternatives import AlternativeFits, OnewayInput, leave_one_out
 from .study_like import StudyLike
 
-__all__ = ["cell_regroup"]
+__all__ = ["CellRegroup", "TermFit", "cell_regroup"]
+
+
+@dataclass(frozen=True, kw_only=True)
+class TermFit:
+    """One refit: the scored term's sum of squares and df, the residual's, and the levels of the term's first factor."""
+
+    ss: float
+    df: int
+    ss_resid: float
+    df_resid: int
+    levels: int
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class CellRegroup:
+    """Every merge of two levels of ``factor`` (``pairs``, ``merge_fits``) and every move of one
+    row (``move_rows`` from level ``move_from`` to ``move_to``, ``move_fits``), each scored by the
+    F test of the model term; ``notes`` say how."""
+
+    factor: str
+    pairs: tuple[tuple[str, str], ...]
+    merge_fits: AlternativeFits
+    move_rows: np.ndarray
+    move_from: np.ndarray
+    move_to: np.ndarray
+    move_fits: AlternativeFits
+    notes: tuple[str, ...]
 
 
 class _Context:
@@ -70,16 +100,17 @@ class _Context:
                 return fit.ss[self.spec.ss_type][t], fit.df[self.spec.ss_type][t]
         raise KeyError(self.term)
 
-    def refit_rows(self, col_codes: list[np.ndarray]) -> tuple[float, int, float, int, int]:
-        """Direct refit from row codes: (term SS, term df, residual SS, residual df, levels of the first factor).
+    def refit_rows(self, col_codes: list[np.ndarray]) -> TermFit:
+        """Direct refit from row codes: the scored term's and the residual's sums of squares and df.
 
-        The scored term's 'levels' is that of its first factor (a one-level factor leaves no test)."""
+        The scored term's ``levels`` is that of its first factor (a one-level factor leaves no test)."""
         layout, cell = layout_cells(col_codes, [tuple(lv) for lv in self.full_levels()], self.spec.columns)
         gs = group_stats(self.y, cell, tuple(str(i) for i in range(layout.n_cells)), self.offset)
         check_design(layout, gs.n, self.spec, ())  # what the engine would refuse, this refuses too
         fit = fit_cells(gs, layout.cell_levels, layout.columns, layout.n_levels, self.spec)
         ss, df = self.main_ss(fit)
-        return ss, df, fit.ss_resid, fit.df_resid, len(layout.levels[self.term_column])
+        return TermFit(ss=ss, df=df, ss_resid=fit.ss_resid, df_resid=fit.df_resid,
+                       levels=len(layout.levels[self.term_column]))
 
     def full_levels(self) -> list[tuple[str, ...]]:
         return [tuple(str(i) for i in range(int(c.max()) + 1)) for c in self.col_codes]
@@ -95,15 +126,15 @@ class _Block:
         m = ssb.size
         self.parts.append((ssb, np.full(m, df_b), ssw, np.full(m, df_w), np.full(m, levels), np.zeros(m, np.int8)))
 
-    def add_result(self, r: tuple[float, int, float, int, int] | str) -> None:
+    def add_result(self, r: TermFit | str) -> None:
         if isinstance(r, str):
             self.parts.append((np.full(1, np.nan), np.zeros(1, int), np.full(1, np.nan), np.zeros(1, int),
                                np.zeros(1, int), np.full(1, 4, np.int8)))
         else:
-            self.add(np.array([r[0]]), r[1], np.array([r[2]]), r[3], r[4])
+            self.add(np.array([r.ss]), r.df, np.array([r.ss_resid]), r.df_resid, r.levels)
 
-    def fits(self, ss_total: float) -> AlternativeFits:
-        """F tests of every alternative collected (vectorised)."""
+    def fits(self, ss_total: float, n: int, scale: float) -> AlternativeFits:
+        """F tests of every alternative collected (vectorised); ``n`` rows, response magnitude ``scale``."""
         if self.parts:
             ssb, df_b, ssw, df_w, lev, status = (np.concatenate(x) for x in zip(*self.parts))
         else:
@@ -113,7 +144,7 @@ class _Block:
         df_b, df_w, lev = df_b.astype(np.int64), df_w.astype(np.int64), lev.astype(np.int64)
         status = status.copy()
         free = status == 0
-        status[free & (ssw <= 0)] = 3
+        status[free & is_zero_ss(ssw, n, scale)] = 3
         status[free & (df_w < 1)] = 2
         status[free & ((lev < 2) | (df_b < 1))] = 1
         ok = status == 0
@@ -144,11 +175,10 @@ def _moved_ss(ctx: _Context, s: int, t: int, u: float, v: float) -> tuple[float,
     return ctx.main_ss(fit)[0], fit.ss_lack_of_fit
 
 
-def cell_regroup(study: StudyLike, factor: str | None = None, *, term: str, moves: bool = True):  # type: ignore[no-untyped-def]
+def cell_regroup(study: StudyLike, factor: str | None = None, *, term: str, moves: bool = True) -> CellRegroup:
     """Merges of two levels of ``factor`` and moves of one row to another of its levels, multi-factor designs.
 
-    Returns ``(factor, pairs, merge_fits, move_rows, move_from, move_to, move_fits, notes)``
-    with the F test of the model term ``term`` for each alternative.
+    Each alternative is scored by the F test of the model term ``term``; see :class:`CellRegroup`.
     """
     ctx = _Context(study, factor, term)
     spec, j, lv = ctx.spec, ctx.j, ctx.levels[ctx.j]
@@ -167,7 +197,7 @@ def cell_regroup(study: StudyLike, factor: str | None = None, *, term: str, move
         except DesignError as exc:
             merge_block.add_result(str(exc))
             notes.append(f"Merging {lv[a]} and {lv[b]}: {exc}")
-    merge_fits = merge_block.fits(ctx.ss_total)
+    merge_fits = merge_block.fits(ctx.ss_total, ctx.y.size, response_scale(ctx.offset, ctx.cells.mean))
     move_rows_l: list[np.ndarray] = []
     move_to_l: list[np.ndarray] = []
     move_block = _Block()
@@ -220,12 +250,13 @@ def cell_regroup(study: StudyLike, factor: str | None = None, *, term: str, move
                 pure = (m2_total - cells.m2[s] - cells.m2[t]) + down_m2[rows] + m2_t
                 move_block.add(val[:, 0], ctx.main_ss(ctx.base)[1], pure + np.maximum(val[:, 1], 0.0),
                                ctx.base.df_resid, len(ctx.levels[ctx.term_column]))
-    move_fits = move_block.fits(ctx.ss_total)
+    move_fits = move_block.fits(ctx.ss_total, ctx.y.size, response_scale(ctx.offset, ctx.cells.mean))
     moved = np.concatenate(move_rows_l) if move_rows_l else np.zeros(0, dtype=np.int64)
     targets = np.concatenate(move_to_l) if move_to_l else np.zeros(0, dtype=np.int64)
     src = ctx.layout.cell_levels[ctx.cell[moved], j]
     labels = np.asarray(lv, dtype=object)
     notes.append(f"Regrouping {ctx.factor!r}; the decision scored is the classic F of the {ctx.term!r} term "
                  f"({spec.ss_type} sums of squares).")
-    return (ctx.factor, [(lv[a], lv[b]) for a, b in pairs], merge_fits,
-            ctx.row_ids[moved], labels[src], labels[targets], move_fits, notes)
+    return CellRegroup(factor=ctx.factor, pairs=tuple((lv[a], lv[b]) for a, b in pairs), merge_fits=merge_fits,
+                       move_rows=ctx.row_ids[moved], move_from=labels[src], move_to=labels[targets],
+                       move_fits=move_fits, notes=tuple(notes))

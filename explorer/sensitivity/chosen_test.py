@@ -17,6 +17,8 @@ test's own statistic and p-value, and :attr:`ChosenTest.how` says how it was com
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 from scipy import special
 
@@ -36,7 +38,7 @@ from .moment_deletion import brown_forsythe_deletion, welch_deletion
 from .rank_updates import RankData, rank_data
 from .shared_permutations import SharedPermutations
 
-__all__ = ["HOW", "STATISTIC_NAMES", "ChosenTest"]
+__all__ = ["HOW", "STATISTIC_NAMES", "ChosenTest", "RowDeletions"]
 
 #: Column name of each test's statistic in scan tables.
 STATISTIC_NAMES = {"classic": "F", "welch": "F", "brown-forsythe": "F*", "kruskal": "H", "permutation": "F"}
@@ -51,6 +53,18 @@ HOW = {
                     f"(seed {PERMUTATION_SEED}); for a row left out, the orderings that place its value in its own "
                     "level (about n_level / n of them; the count is given per row)"),
 }
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class RowDeletions:
+    """The chosen test with each row left out: ``fits`` (one alternative per row), the
+    downdated count ``n`` and ``mean`` of each row's level, and the permutation orderings
+    used (``None`` unless the test is the permutation F)."""
+
+    fits: AlternativeFits
+    n: np.ndarray
+    mean: np.ndarray
+    permutations_used: np.ndarray | None
 
 
 class ChosenTest:
@@ -101,8 +115,8 @@ class ChosenTest:
                                   "pvalue": p})
 
     # ------------------------------------------------------------------ alternatives
-    def deletion(self) -> tuple[AlternativeFits, np.ndarray, np.ndarray, np.ndarray | None]:
-        """Each row left out: (fits, downdated count and mean of the row's level, orderings used or None)."""
+    def deletion(self) -> RowDeletions:
+        """Each row left out: the fits, the downdated count and mean of the row's level, the orderings used."""
         classic, new_n, new_mean = deletion_fits(self.data)
         used = None
         if self.test in ("welch", "brown-forsythe"):
@@ -123,7 +137,7 @@ class ChosenTest:
             fits = self._permuted(classic, p)
         else:
             fits = classic
-        return fits, new_n, new_mean, used
+        return RowDeletions(fits=fits, n=new_n, mean=new_mean, permutations_used=used)
 
     def merges(self, n: np.ndarray, mean: np.ndarray, m2: np.ndarray, pairs: list[tuple[int, int]]) -> AlternativeFits:
         """Each pair of levels pooled (``(P, k)`` pooled statistics, second level emptied)."""

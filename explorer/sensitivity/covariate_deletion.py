@@ -36,6 +36,7 @@ from ..engine.groupstats import group_stats
 from ..engine.numerics import is_zero_ss
 from ..engine.row_model import design_of
 from .alternatives import OnewayInput
+from .cell_deletion import TermDeletions
 from .study_like import StudyLike
 
 __all__ = ["covariate_deletion"]
@@ -48,8 +49,8 @@ def _residual_and_leverage(x: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, np
     return z - q @ (q.T @ z), np.sum(q * q, axis=1)
 
 
-def covariate_deletion(study: StudyLike) -> tuple[dict[str, dict[str, np.ndarray]], np.ndarray, OnewayInput, list[str]]:
-    """Every term's F test with each kept row left out (same return shape as :func:`.cell_deletion.cell_deletion`)."""
+def covariate_deletion(study: StudyLike) -> TermDeletions:
+    """Every term's F test with each kept row left out (as :func:`.cell_deletion.cell_deletion`)."""
     from ..engine.analysis import analyze
 
     res = study.results
@@ -130,4 +131,4 @@ def covariate_deletion(study: StudyLike) -> tuple[dict[str, dict[str, np.ndarray
         p[ok] = f_sf(stat[ok], float(df_t[t]), df_resid[ok].astype(float))
         per_term[design.name(t)] = {"statistic": stat, "pvalue": p, "ss": ss[t], "df": np.full(n, df_t[t])}
     per_term["residual"] = {"ss": resid, "df": df_resid}
-    return per_term, status, data, notes
+    return TermDeletions(per_term=per_term, status=status, cells=data, notes=notes)

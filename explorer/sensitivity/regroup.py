@@ -234,14 +234,14 @@ def _factorial_regroup(study: StudyLike, factor: str | None, term: str, verdict:
 
     spec = study.spec
     a = alpha_or(alpha, spec.alpha)
-    name, pairs, merge_fits, rows, src, dst, move_fits, notes = cell_regroup(study, factor, term=term, moves=moves)
+    found = cell_regroup(study, factor, term=term, moves=moves)
     base_p = verdict.pvalue
     if record:
-        study.record_search("regroup scan", len(pairs) + int(rows.size))
+        study.record_search("regroup scan", len(found.pairs) + int(found.move_rows.size))
     return RegroupScan(
-        factor=name, alpha=a, base_pvalue=base_p, base_significant=bool(base_p is not None and base_p < a),
-        merge_levels=tuple(pairs), merge_fits=merge_fits, move_rows=rows, move_from=src, move_to=dst,
-        move_fits=move_fits, term=term, test="classic",
+        factor=found.factor, alpha=a, base_pvalue=base_p, base_significant=bool(base_p is not None and base_p < a),
+        merge_levels=found.pairs, merge_fits=found.merge_fits, move_rows=found.move_rows, move_from=found.move_from,
+        move_to=found.move_to, move_fits=found.move_fits, term=term, test="classic",
         disclosure=study.disclosure if record else None,
-        notes=tuple(notes),
+        notes=found.notes,
     )
