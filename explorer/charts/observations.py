@@ -18,7 +18,7 @@ from explorer.study import Study
 from .frames import MAX_POINTS, column_fields, observation_frame
 from .style import HEIGHT, MEAN, PICKED, STATE_SCALE, WIDTH, finish, response_title, shown
 
-__all__ = ["PICK", "observations_chart"]
+__all__ = ["PICK", "observations_chart", "pick_param", "row_marks"]
 
 _OFFSET = alt.Scale(domain=[-1.25, 2.0])  # points spread over [-1, 1]; the mean bar at the right
 

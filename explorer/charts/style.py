@@ -13,7 +13,7 @@ import altair as alt
 
 __all__ = ["BASELINE", "CURRENT", "HEIGHT", "IN_ANALYSIS", "KEPT", "LEFT_OUT", "LEFT_OUT_STATE", "MEAN", "MOVED",
            "MOVED_STATE", "PICKED", "STATE_DOMAIN", "STATE_SCALE", "WIDTH", "finish", "id_labels",
-           "response_title", "shown", "split_subtitle"]
+           "response_title", "shown", "split_subtitle", "GUIDE"]
 
 WIDTH = 380
 HEIGHT = 240

@@ -51,7 +51,7 @@ from .groupstats import GroupStats
 from .numerics import qr_rank
 from .spec import ModelSpec
 
-__all__ = ["SS_TYPES", "CellFit", "fit_cells"]
+__all__ = ["SS_TYPES", "CellFit", "fit_cells", "model_comparisons"]
 
 SS_TYPES = ("I", "II", "III")
 

@@ -118,7 +118,7 @@ class CovariateSummary:
 
 
 def _level_table(gs, factor: str, ms: float, df: float, confidence: float) -> LevelTable:  # type: ignore[no-untyped-def]
-    from .factorial import _level_table as level_table
+    from .factorial import raw_level_table as level_table
 
     return level_table(gs, factor, ms, df, confidence)
 

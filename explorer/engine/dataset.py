@@ -28,7 +28,7 @@ from .numerics import read_only
 from .response_unit import rescale, safe_unit, unit_exponent, unit_note
 from .table_checks import check_response_values, column_names, decimal_comma_hint, refuse_text_collisions, text_columns
 
-__all__ = ["Dataset", "SetAsideRow", "RowId", "build_dataset"]
+__all__ = ["Dataset", "SetAsideRow", "RowId", "build_dataset", "level_label", "natural_key", "decode_digests", "encode_digests"]
 
 RowId = Union[int, str]
 
@@ -43,7 +43,7 @@ class SetAsideRow:
     reason: str
 
 
-def _natural_key(s: str) -> tuple[object, ...]:
+def natural_key(s: str) -> tuple[object, ...]:
     return tuple(int(t) if t.isdecimal() else t.lower() for t in re.split(r"(\d+)", s))
 
 
@@ -63,10 +63,10 @@ def _level_order(col: pd.Series, labels: pd.Series) -> tuple[list[str], list[str
             if s not in seen:
                 seen.append(s)
         return seen, unused
-    return sorted((str(p) for p in present), key=_natural_key), unused
+    return sorted((str(p) for p in present), key=natural_key), unused
 
 
-def _label(v: object) -> str:
+def level_label(v: object) -> str:
     if isinstance(v, (float, np.floating)) and float(v).is_integer():
         return str(int(v))
     return str(v)
@@ -345,7 +345,7 @@ def build_dataset(
     levels: dict[str, tuple[str, ...]] = {}
     for f in factors:
         fcol = frame[f][usable]
-        labels = fcol.map(_label).astype(object)
+        labels = fcol.map(level_label).astype(object)
         refuse_text_collisions(fcol, labels, ids[usable], f"factor {f!r}")
         order, unused = _level_order(fcol, labels)
         if unused:
@@ -439,3 +439,9 @@ def encode_digests(ids: np.ndarray, digests: np.ndarray) -> dict[str, Any]:
 def decode_digests(blob: dict[str, Any]) -> dict[RowId, int]:
     raw = np.frombuffer(base64.b64decode(blob["digests"]), dtype="<u4")
     return {(_py(i)): int(d) for i, d in zip(blob["ids"], raw)}
+
+
+# The names these had before they were shared between modules; kept for code written against them, removed in the
+# next release.
+_label = level_label
+_natural_key = natural_key

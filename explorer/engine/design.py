@@ -28,6 +28,7 @@ from .spec import ModelSpec
 __all__ = [
     "CellDesign", "Term", "cell_design", "contains", "fitted_terms", "model_terms", "sum_contrasts", "term_columns",
     "term_name",
+    "sequential_order",
 ]
 
 Term = tuple[str, ...]

@@ -32,6 +32,7 @@ __all__ = [
     "edit_from_dict",
     "register_edit",
     "utc_now",
+    "require_factor", "require_levels", "level_name", "check_utc_time",
 ]
 
 EDIT_KINDS: dict[str, type["Edit"]] = {}
@@ -68,14 +69,14 @@ def level_name(name: object) -> str:
     return text
 
 
-def _check_factor(view: DataView, factor: str) -> None:
+def require_factor(view: DataView, factor: str) -> None:
     if factor not in view.levels:
         near = closest_names(factor, view.levels)
         hint = f" Did you mean {near[0]!r}?" if near else ""
         raise EditError(f"{factor!r} is not a factor of this study (factors: {list(view.levels)}).{hint}")
 
 
-def _check_levels(view: DataView, factor: str, levels: tuple[str, ...]) -> list[int]:
+def require_levels(view: DataView, factor: str, levels: tuple[str, ...]) -> list[int]:
     known = view.levels[factor]
     missing = [lv for lv in levels if lv not in known]
     if missing:
@@ -201,7 +202,7 @@ class Reassign(Edit):
         object.__setattr__(self, "level", level_name(self.level))
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
-        _check_factor(view, self.factor)
+        require_factor(view, self.factor)
         pos = int(dataset.positions([self.row])[0])
         levels = view.levels[self.factor]
         if self.level == levels[view.codes[self.factor][pos]]:
@@ -235,9 +236,9 @@ class MergeLevels(Edit):
         object.__setattr__(self, "into", level_name(self.into))
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
-        _check_factor(view, self.factor)
+        require_factor(view, self.factor)
         known = view.levels[self.factor]
-        sources = _check_levels(view, self.factor, self.levels)
+        sources = require_levels(view, self.factor, self.levels)
         if self.into in known and self.into not in self.levels:
             sources.append(known.index(self.into))
         sources = sorted(set(sources))
@@ -278,8 +279,8 @@ class RenameLevel(Edit):
         object.__setattr__(self, "new", level_name(self.new))
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
-        _check_factor(view, self.factor)
-        (i,) = _check_levels(view, self.factor, (self.old,))
+        require_factor(view, self.factor)
+        (i,) = require_levels(view, self.factor, (self.old,))
         known = view.levels[self.factor]
         if self.new in known:
             raise EditError(
@@ -305,8 +306,8 @@ class _UnitEdit(Edit):
         object.__setattr__(self, "level", str(self.level))
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
-        _check_factor(view, self.column)
-        (code,) = _check_levels(view, self.column, (self.level,))
+        require_factor(view, self.column)
+        (code,) = require_levels(view, self.column, (self.level,))
         rows = view.codes[self.column] == code
         if bool(np.all(view.kept[rows] == self.keep)):
             state = "in the analysis; nothing to restore" if self.keep else "already left out"
@@ -337,3 +338,9 @@ class RestoreUnit(_UnitEdit):
     kind: ClassVar[str] = "restore_unit"
     keep: ClassVar[bool] = True
     verb: ClassVar[str] = "restore"
+
+
+# The names these had before they were shared between modules; kept for code written against them, removed in the
+# next release.
+_check_factor = require_factor
+_check_levels = require_levels

@@ -48,6 +48,7 @@ from .tables import html_table
 __all__ = [
     "complete_balanced", "ErrorTerm", "ExpectedMeanSquares", "error_terms", "expected_mean_squares", "is_random",
     "random_indicators",
+    "RESIDUAL",
 ]
 
 RESIDUAL = "residual"

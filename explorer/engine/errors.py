@@ -10,6 +10,9 @@ from __future__ import annotations
 import difflib
 from collections.abc import Iterable, Sequence
 
+__all__ = ["ColumnError", "DataError", "DesignError", "EditError", "ExplorerError", "OutputError", "PredicateError",
+           "ReplayError", "closest_names", "preview"]
+
 
 class ExplorerError(ValueError):
     """Base class for every error the kit raises on purpose."""

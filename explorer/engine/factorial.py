@@ -43,7 +43,7 @@ from .term_effects import term_effects
 from .variance_components import estimate_components
 from .view import DataView
 
-__all__ = ["factorial_from_cells", "factorial_tables", "fit_factorial", "level_stats_from_cells"]
+__all__ = ["factorial_from_cells", "factorial_tables", "fit_factorial", "level_stats_from_cells", "raw_level_table", "layout_of"]
 
 CODING = "sum-to-zero"
 
@@ -161,7 +161,7 @@ def _tables_and_ems(
     return {k: _partition(fit, k, zero) for k in SS_TYPES}, {}
 
 
-def _level_table(gs: GroupStats, factor: str, ms_resid: float, df_resid: float, confidence: float) -> LevelTable:
+def raw_level_table(gs: GroupStats, factor: str, ms_resid: float, df_resid: float, confidence: float) -> LevelTable:
     """Raw level means with pooled-SD (model residual) and own-SD intervals."""
     nn = gs.n.astype(float)
     with np.errstate(invalid="ignore"):
@@ -286,7 +286,7 @@ def factorial_from_cells(
     for j, f in enumerate(spec.factors):
         gs = level_stats[j] if level_stats is not None else level_stats_from_cells(layout, cells, j)
         ms_f, df_f = _error_of(table, fit.name((f,)), ms_e, fit.df_resid)
-        levels[f] = _level_table(gs, f, ms_f, df_f, confidence)
+        levels[f] = raw_level_table(gs, f, ms_f, df_f, confidence)
         if f not in nested and f not in spec.random:
             means[f] = marginal_means(fit, f, layout.levels[j], gs.original_means, gs.n, ms_f, confidence, df=df_f)
     effects = term_effects(table, fit.term_names(), fit.n, alpha=spec.alpha)

@@ -33,7 +33,7 @@ from .numerics import read_only_copy
 from .studentized_range import srange_ppf, srange_sf
 from .tables import html_table
 
-__all__ = ["PairwiseTable", "adjust_pvalues", "simultaneous_pairs"]
+__all__ = ["PairwiseTable", "adjust_pvalues", "simultaneous_pairs", "check_confidence", "pair_indices", "labels_at"]
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -139,17 +139,17 @@ def adjust_pvalues(p: np.ndarray, method: str) -> np.ndarray:
     return out
 
 
-def _names(labels: Sequence[str], idx: np.ndarray) -> tuple[str, ...]:
+def labels_at(labels: Sequence[str], idx: np.ndarray) -> tuple[str, ...]:
     """``labels`` at positions ``idx`` as a tuple (one numpy gather: millions of pairs in a fraction of a second)."""
     return tuple(np.asarray(labels, dtype=object)[np.asarray(idx, dtype=np.int64)].tolist())
 
 
-def _pairs(k: int) -> tuple[np.ndarray, np.ndarray]:
+def pair_indices(k: int) -> tuple[np.ndarray, np.ndarray]:
     i, j = np.triu_indices(k, 1)
     return i, j
 
 
-def _check_confidence(confidence: float) -> float:
+def check_confidence(confidence: float) -> float:
     if not 0 < float(confidence) < 1:
         raise ExplorerError(f"confidence must be between 0 and 1 (e.g. 0.95), not {confidence!r}")
     return float(confidence)
@@ -188,7 +188,7 @@ def simultaneous_pairs(
     (Kramer 1956; Hochberg and Tamhane 1987, ch. 3). For least-squares means with
     correlated estimates the intervals are conservative (Hayter 1984).
     """
-    confidence = _check_confidence(confidence)
+    confidence = check_confidence(confidence)
     labels = tuple(str(x) for x in labels)
     est = np.asarray(estimates, dtype=float)
     k = len(labels)
@@ -202,7 +202,7 @@ def simultaneous_pairs(
         raise DesignError("pairwise comparisons need at least two levels")
     if not df > 0:
         raise DesignError(f"pairwise comparisons need positive error df, not {df!r}")
-    i, j = _pairs(k)
+    i, j = pair_indices(k)
     d = est[i] - est[j]
     se = se_m[i, j]
     notes: list[str] = []
@@ -238,9 +238,15 @@ def simultaneous_pairs(
     half = crit * se
     return PairwiseTable(
         method=name, adjustment=adjustment, family_size=m, labels=labels, estimates=read_only_copy(est + offset),
-        first=_names(labels, i), second=_names(labels, j),
+        first=labels_at(labels, i), second=labels_at(labels, j),
         difference=read_only_copy(d), se=read_only_copy(se), df=read_only_copy(dfs), statistic=read_only_copy(t),
         pvalue=read_only_copy(p),
         ci_low=read_only_copy(np.where(bad, np.nan, d - half)), ci_high=read_only_copy(np.where(bad, np.nan, d + half)),
         confidence=confidence, range_based=range_based, notes=tuple(notes),
     )
+
+
+# The names these had before they were shared between modules; kept for code written against them, removed in the
+# next release.
+_pairs = pair_indices
+_check_confidence = check_confidence

@@ -35,7 +35,7 @@ from .design import CellDesign, Term, term_name
 from .errors import DesignError
 from .numerics import qr_rank
 
-__all__ = ["RowDesign", "RowFit", "expand_cells", "fit_rows", "hc_meat"]
+__all__ = ["RowDesign", "RowFit", "expand_cells", "fit_rows", "hc_meat", "design_of"]
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)

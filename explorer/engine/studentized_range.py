@@ -34,7 +34,7 @@ from scipy import special
 from .errors import ExplorerError
 from .numerics import read_only
 
-__all__ = ["srange_cdf", "srange_ppf", "srange_sf"]
+__all__ = ["srange_cdf", "srange_ppf", "srange_sf", "outer_grid"]
 
 _LOG_CUTOFF = 40.0  # outer grid spans log-density within e^-40 of its peak
 _HW = 1.0 / 32.0  # step of the table of the range distribution
@@ -103,7 +103,7 @@ def _range_sf_pdf(w: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
 _GRID_CACHE: dict[bytes, tuple[np.ndarray, np.ndarray]] = {}
 
 
-def _outer_grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def outer_grid(df: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Cached :func:`_grid` (the last few df vectors; a pure function of df)."""
     key = np.ascontiguousarray(df, dtype=float).tobytes()
     hit = _GRID_CACHE.get(key)
@@ -178,7 +178,7 @@ def _sf_pdf(q: np.ndarray, k: int, df: np.ndarray, grid: tuple[np.ndarray, np.nd
     out_pdf = np.empty(qf.size)
     one_df = qf.size > 0 and grid is None and bool(np.all(dff == dff[0]))
     if one_df:
-        s1, w1 = _outer_grid(dff[:1])
+        s1, w1 = outer_grid(dff[:1])
         nodes = s1.shape[1]
     else:
         nodes = grid[0].shape[1] if grid is not None else (_span(dff)[4] if dff.size else 1)
@@ -189,7 +189,7 @@ def _sf_pdf(q: np.ndarray, k: int, df: np.ndarray, grid: tuple[np.ndarray, np.nd
         elif grid is not None:
             s, wts = grid[0][block], grid[1][block]
         else:
-            s, wts = _outer_grid(dff[block]) if small else _grid(dff[block], nodes)
+            s, wts = outer_grid(dff[block]) if small else _grid(dff[block], nodes)
         sf, pdf = _range_sf_pdf(qf[block, None] * s, k)
         out_sf[block] = (sf * wts).sum(axis=1)
         out_pdf[block] = (pdf * s * wts).sum(axis=1)
@@ -230,7 +230,7 @@ def _newton_from_left(p: float, k: int, df: np.ndarray, q: np.ndarray, tol: floa
         for block in _blocks(df.size, nodes):
             out[block] = _newton_from_left(p, k, df[block], q[block], tol, nodes)
         return out
-    grid = _outer_grid(df) if m_nodes is None else _grid(df, m_nodes)
+    grid = outer_grid(df) if m_nodes is None else _grid(df, m_nodes)
     for _ in range(100):
         sf, pdf = _sf_pdf(q, k, df, grid)
         f = (1 - p) - sf

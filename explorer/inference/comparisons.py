@@ -31,8 +31,15 @@ from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import DesignError, ExplorerError, closest_names, preview
 from ..engine.groupstats import GroupStats
 from ..engine.numerics import read_only_copy
-from ..engine.pairwise import PairwiseTable, _check_confidence, _names, _pairs, adjust_pvalues, simultaneous_pairs
-from ..engine.studentized_range import _outer_grid, srange_ppf, srange_sf
+from ..engine.pairwise import (
+    PairwiseTable,
+    adjust_pvalues,
+    check_confidence,
+    labels_at,
+    pair_indices,
+    simultaneous_pairs,
+)
+from ..engine.studentized_range import outer_grid, srange_ppf, srange_sf
 from .oneway_inputs import require_oneway
 
 if TYPE_CHECKING:
@@ -46,6 +53,7 @@ __all__ = [
     "pairwise_t",
     "simultaneous_pairs",
     "tukey",
+    "MAX_DUNNETT", "Alternative",
 ]
 
 Alternative = Literal["two-sided", "greater", "less"]
@@ -58,7 +66,7 @@ Adjustment = Literal["holm", "bonferroni", "none"]
 def _confidence_for(results: Results, confidence: float | None) -> float:
     """``confidence``, or ``1 - alpha`` of the analysis when not given, so that an interval
     excludes zero exactly when its test rejects at the alpha the decisions and letters use."""
-    return _check_confidence(1 - results.spec.alpha if confidence is None else confidence)
+    return check_confidence(1 - results.spec.alpha if confidence is None else confidence)
 
 
 def _level_stats(results: Results) -> tuple[GroupStats, np.ndarray, np.ndarray, np.ndarray]:
@@ -120,7 +128,7 @@ def games_howell(results: Results, *, confidence: float | None = None) -> Pairwi
     confidence = _confidence_for(results, confidence)
     gs, n, means, var = _level_stats(results)
     k = gs.k
-    i, j = _pairs(k)
+    i, j = pair_indices(k)
     a, b = var[i] / n[i], var[j] / n[j]
     with np.errstate(divide="ignore", invalid="ignore"):
         se = np.sqrt(a + b)
@@ -146,7 +154,7 @@ def games_howell(results: Results, *, confidence: float | None = None) -> Pairwi
     return PairwiseTable(
         method="Games-Howell", adjustment=f"studentized range, {k} means, Welch df per pair",
         family_size=len(d), labels=gs.labels, estimates=read_only_copy(gs.original_means),
-        first=_names(gs.labels, i), second=_names(gs.labels, j),
+        first=labels_at(gs.labels, i), second=labels_at(gs.labels, j),
         difference=read_only_copy(d), se=read_only_copy(np.where(bad, np.nan, se)),
         df=read_only_copy(np.where(bad, np.nan, dfs)), statistic=read_only_copy(np.where(bad, np.nan, t)),
         pvalue=read_only_copy(p), ci_low=read_only_copy(lo), ci_high=read_only_copy(hi),
@@ -170,7 +178,7 @@ def pairwise_t(results: Results, *, adjust: Adjustment = "holm", confidence: flo
     msw = results.ms_resid or 0.0
     df = results.df_resid
     k = gs.k
-    i, j = _pairs(k)
+    i, j = pair_indices(k)
     se = np.sqrt(msw * (1 / n[i] + 1 / n[j]))
     d = means[i] - means[j]
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -190,8 +198,8 @@ def pairwise_t(results: Results, *, adjust: Adjustment = "holm", confidence: flo
     names = {"holm": "Holm", "bonferroni": "Bonferroni", "none": "none (per comparison)"}
     return PairwiseTable(
         method="pairwise t (pooled variance)", adjustment=names[adjust_l], family_size=m,
-        labels=gs.labels, estimates=read_only_copy(gs.original_means), first=_names(gs.labels, i),
-        second=_names(gs.labels, j), difference=read_only_copy(d), se=read_only_copy(se),
+        labels=gs.labels, estimates=read_only_copy(gs.original_means), first=labels_at(gs.labels, i),
+        second=labels_at(gs.labels, j), difference=read_only_copy(d), se=read_only_copy(se),
         df=read_only_copy(np.full(m, float(df))), statistic=read_only_copy(t), pvalue=read_only_copy(p),
         ci_low=read_only_copy(d - crit * se), ci_high=read_only_copy(d + crit * se),
         confidence=confidence, notes=tuple(notes),
@@ -213,7 +221,7 @@ def _dunnett_exceed(c: float, lam: np.ndarray, df: float, alternative: str) -> f
     ``P(exceed) = E_s int phi(z) [1 - prod_i (1 - a_i(z, s))] dz``, with ``a_i`` the
     conditional tail probability, computed as ``-expm1(sum log1p(-a_i))``.
     """
-    s, w = _outer_grid(np.array([df]))
+    s, w = outer_grid(np.array([df]))
     s = s[0]
     w = w[0]
     root = np.sqrt(1 - lam * lam)

@@ -32,7 +32,7 @@ from ..formatting import result_frame, show_p
 if TYPE_CHECKING:
     from ..study.study import Study
 
-__all__ = ["SensitivitySummary", "sensitivity_summary"]
+__all__ = ["SensitivitySummary", "sensitivity_summary", "curve_html"]
 
 
 def _ids(rows: object) -> str:

@@ -29,7 +29,7 @@ if TYPE_CHECKING:
 
 __all__ = ["Figure", "chart_to_svg", "charts_available", "equivalence_figures", "figure", "interaction_figure",
            "model_check_figures",
-           "observation_figures"]
+           "observation_figures", "sensitivity_figures"]
 
 #: Most observations a report chart draws (the statistics always use every row).
 MAX_POINTS = 5000

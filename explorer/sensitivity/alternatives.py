@@ -49,6 +49,7 @@ __all__ = [
     "leave_one_out",
     "oneway_input",
     "with_test",
+    "MOMENT_TESTS",
 ]
 
 #: Why an alternative has no F test (status code -> plain sentence).

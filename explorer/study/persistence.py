@@ -27,6 +27,9 @@ from ..engine.errors import ReplayError, preview
 from ..engine.spec import ModelSpec
 from .schema_check import SCHEMA_FILES, first_violation, load_schema
 
+__all__ = ["FORMAT", "MAX_DEPTH", "MAX_STUDY_FILE_BYTES", "SCHEMA", "check_study_doc", "describe_mismatch",
+           "edits_from_doc", "parse_study_json", "read_study_file", "study_to_dict"]
+
 FORMAT = "variance-explorer/study"
 SCHEMA = 1
 

@@ -21,11 +21,11 @@ from decimal import Decimal
 
 import numpy as np
 
-from ..engine.dataset import _label, _natural_key
+from ..engine.dataset import level_label, natural_key
 from ..engine.errors import DataError
 from ..engine.groupstats import pool_groups
 
-__all__ = ["MOVE_PREFIX", "AtomTable", "Prepared", "downdate", "finish_two_pass", "level_order", "merge_atoms"]
+__all__ = ["MOVE_PREFIX", "AtomTable", "Prepared", "downdate", "finish_two_pass", "level_order", "merge_atoms", "choose_offset"]
 
 #: Raw key of rows caught by row-move predicate k of a factor: MOVE_PREFIX + str(k).
 MOVE_PREFIX = "\x00move:"
@@ -80,7 +80,7 @@ class AtomTable:
 
     def keys(self, j: int) -> list[str]:
         """Raw key of each atom for factor ``j``: its level label, or the move key."""
-        return [MOVE_PREFIX + str(int(m)) if m else _label(v) for v, m in zip(self.raw[j], self.move[:, j])]
+        return [MOVE_PREFIX + str(int(m)) if m else level_label(v) for v, m in zip(self.raw[j], self.move[:, j])]
 
 
 def finish_two_pass(n: np.ndarray, mean1: np.ndarray, rs: np.ndarray, r2: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -100,10 +100,10 @@ def level_order(values: Sequence[object], numeric: bool) -> tuple[str, ...]:
     """Level labels in display order: numeric values by value, text in natural order (as row studies do)."""
     labels: dict[str, object] = {}
     for v in values:
-        labels.setdefault(_label(v), v)
+        labels.setdefault(level_label(v), v)
     if numeric:
         return tuple(sorted(labels, key=lambda s: float(labels[s])))  # type: ignore[arg-type]
-    return tuple(sorted(labels, key=_natural_key))
+    return tuple(sorted(labels, key=natural_key))
 
 
 def choose_offset(value: object) -> tuple[float, str, Decimal | float]:

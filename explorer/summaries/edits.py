@@ -13,7 +13,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from ..engine.edits import Edit, _check_factor, _check_levels, level_name, register_edit
+from ..engine.edits import Edit, level_name, register_edit, require_factor, require_levels
 from ..engine.errors import EditError
 from ..engine.numerics import read_only
 from .atoms import MOVE_PREFIX
@@ -94,7 +94,7 @@ class MoveWhere(Edit):
 
     def apply(self, view: Any, dataset: Any) -> Any:
         v = _summary_view(view, "moving rows by a condition")
-        _check_factor(v, self.factor)  # type: ignore[arg-type]
+        require_factor(v, self.factor)  # type: ignore[arg-type]
         p = _parse(self.predicate, dataset)
         levels = v.levels[self.factor]
         if self.level not in levels:
@@ -118,8 +118,8 @@ def _condition(view: SummaryView, factors: tuple[str, ...], levels: tuple[str, .
     if len(set(factors)) != len(factors):
         raise EditError(f"a factor is named twice in {list(factors)}")
     for f, lv in zip(factors, levels):
-        _check_factor(view, f)  # type: ignore[arg-type]
-        _check_levels(view, f, (lv,))  # type: ignore[arg-type]
+        require_factor(view, f)  # type: ignore[arg-type]
+        require_levels(view, f, (lv,))  # type: ignore[arg-type]
     return tuple(zip(factors, levels))
 
 

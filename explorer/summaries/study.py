@@ -28,7 +28,7 @@ import pandas as pd
 
 from ..engine.analysis import analyze
 from ..engine.cells import layout_cells
-from ..engine.dataset import Dataset, _label, build_dataset
+from ..engine.dataset import Dataset, build_dataset, level_label
 from ..engine.edits import Edit, MergeLevels, RenameLevel, edit_from_dict
 from ..engine.errors import DataError, DesignError, EditError, ExplorerError, ReplayError
 from ..engine.factorial import factorial_from_cells
@@ -324,7 +324,7 @@ class SummaryStudy(Study):
 
     def _sample_keys(self, frame: pd.DataFrame) -> list[list[str]]:
         return [
-            [MOVE_PREFIX + str(int(m)) if m else _label(v) for v, m in zip(frame[f].tolist(), frame[f"vx_m{j}"].tolist())]
+            [MOVE_PREFIX + str(int(m)) if m else level_label(v) for v, m in zip(frame[f].tolist(), frame[f"vx_m{j}"].tolist())]
             for j, f in enumerate(self.spec.columns)
         ]
 

@@ -35,6 +35,7 @@ __all__ = [
     "panels_in_order",
     "register_panel",
     "unregister_panel",
+    "explains_refusals", "view_token",
 ]
 
 
