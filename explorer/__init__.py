@@ -2,9 +2,10 @@
 
 The public surface: the study types (:class:`Study`, :class:`SummaryStudy`, the edit
 records), the notebook widget (:func:`explore`, :class:`Explorer`), the errors,
-:class:`ModelSpec`, the result types, and the statistical functions in
-:mod:`explorer.stats`. ``explore`` / ``Explorer`` and ``SummaryStudy`` load lazily, so
-the statistics work without ipywidgets, altair, duckdb or pyspark installed.
+:class:`ModelSpec`, the result types, the statistical functions in
+:mod:`explorer.stats`, and :func:`example_data` (the small invented tables the examples
+use). ``explore`` / ``Explorer`` and ``SummaryStudy`` load lazily, so the statistics
+work without ipywidgets, altair, duckdb or pyspark installed.
 
 Everything else lives in the layered packages (:mod:`explorer.engine`,
 :mod:`explorer.inference`, :mod:`explorer.sensitivity`, :mod:`explorer.study`) and is
@@ -36,6 +37,7 @@ from .engine.errors import (
     PredicateError,
     ReplayError,
 )
+from .engine.example_data import example_data
 from .engine.groupstats import GroupStats
 from .engine.marginal_means import MarginalMeans
 from .engine.pairwise import PairwiseTable
@@ -72,6 +74,8 @@ from .study.study import Study, StudyEvent
 #: the study types
 STUDY_TYPES = ["Study", "StudyEvent", "SummaryStudy", "Disclosure", "Decision", "Dataset", "Edit", "DropRows", "RestoreRows",
                "Reassign", "MergeLevels", "RenameLevel", "edit_from_dict"]
+#: small invented tables for the documentation's examples
+DATA = ["example_data"]
 #: the notebook widget's entry points (loaded lazily)
 WIDGET = ["explore", "Explorer"]
 #: every error the kit raises on purpose derives from ExplorerError
@@ -87,7 +91,7 @@ RESULT_TYPES = [
     "DunnTable", "FriedmanTest", "TrimmedMeansTest", "RobustTermTests",
 ]
 
-__all__ = [*STUDY_TYPES, *WIDGET, *ERRORS, "ModelSpec", *RESULT_TYPES, "stats", "__version__"]
+__all__ = [*STUDY_TYPES, *DATA, *WIDGET, *ERRORS, "ModelSpec", *RESULT_TYPES, "stats", "__version__"]
 
 #: names exported before the public surface was trimmed -> where they live now (one release)
 _MOVED_NAMES = {

@@ -19,7 +19,7 @@ import explorer.stats
 
 
 def test_top_level_exports_only_the_public_surface():
-    expected = {*explorer.STUDY_TYPES, *explorer.WIDGET, *explorer.ERRORS, "ModelSpec", *explorer.RESULT_TYPES,
+    expected = {*explorer.STUDY_TYPES, *explorer.DATA, *explorer.WIDGET, *explorer.ERRORS, "ModelSpec", *explorer.RESULT_TYPES,
                 "stats", "__version__"}
     assert set(explorer.__all__) == expected
     assert len(explorer.__all__) < 75  # was 101 names, engine internals included

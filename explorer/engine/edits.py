@@ -107,7 +107,36 @@ class Edit:
 
 
 def edit_from_dict(d: dict[str, Any]) -> Edit:
-    """Rebuild an edit saved with :meth:`Edit.to_dict`."""
+    """Rebuild an edit saved with :meth:`Edit.to_dict` (as in a study file's log).
+
+    Parameters
+    ----------
+    d : dict
+        The saved edit: its ``kind``, its fields, ``reason`` and ``at`` (UTC time).
+
+    Returns
+    -------
+    Edit
+        The frozen edit record, ready for ``study.apply``.
+
+    Raises
+    ------
+    ReplayError
+        For an unknown kind, a missing or ill-typed field, a non-text reason or a time
+        that is not ISO 8601 UTC, naming the field.
+
+    References
+    ----------
+    ISO 8601-1:2019, Date and time (the ``at`` field).
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> edit = ex.edit_from_dict({"kind": "drop", "rows": [3], "reason": "smudged panel",
+    ...                           "at": "2026-01-05T09:30:00Z"})
+    >>> type(edit).__name__, edit.rows, edit.reason
+    ('DropRows', (3,), 'smudged panel')
+    """
     kind = d.get("kind")
     cls = EDIT_KINDS.get(str(kind))
     if cls is None:

@@ -24,9 +24,34 @@ __all__ = ["confidence_matching_test", "f_test_power", "noncentrality_interval",
 def noncentrality_interval(f_obs: float, df1: float, df2: float, confidence: float = 0.95) -> tuple[float, float]:
     """Confidence limits for the noncentrality of F by inverting the noncentral F cdf.
 
-    Lower limit solves ``P(F <= f_obs; lambda) = (1 + confidence)/2``, upper solves
-    ``= (1 - confidence)/2``; each is 0 when even ``lambda = 0`` puts ``f_obs`` below
-    its target (Steiger 2004).
+    Parameters
+    ----------
+    f_obs : float
+        The observed F.
+    df1, df2 : float
+        Its numerator and denominator df.
+    confidence : float, default 0.95
+        Two-sided coverage.
+
+    Returns
+    -------
+    tuple of float
+        ``(lower, upper)``: the lower limit solves ``P(F <= f_obs; lambda) = (1 +
+        confidence)/2``, the upper ``= (1 - confidence)/2``; each is 0 when even
+        ``lambda = 0`` puts ``f_obs`` below its target.
+
+    References
+    ----------
+    Steiger, J. H. (2004). Beyond the F test: effect size confidence intervals and tests
+    of close fit in the analysis of variance and contrast analysis. Psychol. Methods 9,
+    164-182.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> low, high = ex.stats.noncentrality_interval(8.0, 2, 27, confidence=0.90)
+    >>> round(low, 2), round(high, 2)
+    (3.62, 32.93)
     """
     if not 0 < confidence < 1:
         raise ExplorerError(f"confidence must be between 0 and 1, not {confidence!r}")

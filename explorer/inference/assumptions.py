@@ -100,16 +100,46 @@ def _sorted_by_group(values: np.ndarray, g: np.ndarray, n: np.ndarray) -> tuple[
 def levene(results: Results, *, center: Center = "median", proportion_to_cut: float = 0.05) -> CheckResult:
     """Levene's test of equal spreads: the one-way F on ``|y - centre of its level|``.
 
-    ``center='median'`` is the Brown-Forsythe (1974) variant (robust, the usual default);
-    ``'mean'`` is Levene's original; ``'trimmed'`` uses the level mean after cutting
-    ``proportion_to_cut`` of the values from each end (as ``scipy.stats.levene``).
-    With several factors or blocks the groups are the cells of the design, and every
-    centre is the cell's own (median, mean or trimmed mean of its values), as the method
-    defines, whatever model was fitted. The deviations are computed from the residuals
-    minus their cell centre: the fitted value is constant within a cell, so this equals
-    ``y - centre`` exactly while the response offset costs no digits. (The residuals of
-    a non-saturated model, additive factors or blocks, do not average to zero within a
-    cell, so they are not themselves deviations from the cell mean.)
+    Parameters
+    ----------
+    results : Results
+        The analysis (``study.results``); with several factors or blocks the groups are
+        the cells of the design.
+    center : {'median', 'mean', 'trimmed'}, default 'median'
+        The centre of each group: the median (Brown and Forsythe's variant, robust, the
+        usual default), the mean (Levene's original) or the mean after cutting
+        ``proportion_to_cut`` of the values from each end (as ``scipy.stats.levene``).
+    proportion_to_cut : float, default 0.05
+        Share cut from each end for ``center='trimmed'``.
+
+    Returns
+    -------
+    CheckResult
+        F with its df and p-value; ``center`` records the centre used.
+
+    Notes
+    -----
+    Every centre is the group's own, whatever model was fitted. The deviations are
+    computed from the residuals minus their cell centre: the fitted value is constant
+    within a cell, so this equals ``y - centre`` exactly while the response offset costs
+    no digits. (The residuals of a non-saturated model, additive factors or blocks, do
+    not average to zero within a cell, so they are not themselves deviations from the
+    cell mean.)
+
+    References
+    ----------
+    Levene, H. (1960). Robust tests for equality of variances. In Contributions to
+    Probability and Statistics, Stanford Univ. Press, 278-292.
+    Brown, M. B. and Forsythe, A. B. (1974). Robust tests for the equality of variances.
+    JASA 69, 364-367.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> check = ex.stats.levene(results)
+    >>> round(check.statistic, 3), check.df, check.center
+    (0.038, (2.0, 9.0), 'median')
     """
     if center not in ("median", "mean", "trimmed"):
         raise ExplorerError(f"center must be 'median', 'mean' or 'trimmed', not {center!r}")
@@ -158,9 +188,34 @@ def levene(results: Results, *, center: Center = "median", proportion_to_cut: fl
 def bartlett(results: Results) -> CheckResult:
     """Bartlett's (1937) test of equal variances, from the level variances alone.
 
+    Parameters
+    ----------
+    results : Results
+        The analysis (``study.results``); with several factors the groups are the cells
+        of the design.
+
+    Returns
+    -------
+    CheckResult
+        The chi-square statistic on ``k - 1`` df and its p-value.
+
+    Notes
+    -----
     ``T = [(N-k) ln s_p^2 - sum (n_i-1) ln s_i^2] / C``, chi-square on ``k-1`` df. Exact
-    only for normal data: heavy tails make it reject too often (use Levene then). With
-    several factors the groups are the cells of the design.
+    only for normal data: heavy tails make it reject too often (use Levene then).
+
+    References
+    ----------
+    Bartlett, M. S. (1937). Properties of sufficiency and statistical tests. Proc. R.
+    Soc. Lond. A 160, 268-282.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> check = ex.stats.bartlett(results)
+    >>> round(check.statistic, 3), check.df
+    (0.011, (2.0,))
     """
     gs = results.groups
     n = gs.n.astype(float)
@@ -183,12 +238,37 @@ def bartlett(results: Results) -> CheckResult:
 
 
 def shapiro_residuals(results: Results) -> CheckResult:
-    """Shapiro-Wilk W on the model residuals (Shapiro and Wilk 1965; Royston 1995).
+    """Shapiro-Wilk W on the model residuals.
 
-    Works on the residuals of any model the engines fit (one-way, factorial, blocked).
+    Parameters
+    ----------
+    results : Results
+        The analysis of any model the engines fit (one-way, factorial, blocked).
+
+    Returns
+    -------
+    CheckResult
+        W and its p-value, with the limits the test holds in.
+
+    Notes
+    -----
     Valid for ``3 <= n <= 5000`` residuals; above 5000 W is still computed but the
     p-value approximation is unverified (said in the result). Residuals of a fitted
     model are slightly correlated (n - k df), which the test ignores.
+
+    References
+    ----------
+    Shapiro, S. S. and Wilk, M. B. (1965). An analysis of variance test for normality.
+    Biometrika 52, 591-611.
+    Royston, P. (1995). Remark AS R94. Appl. Stat. 44, 547-551.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("lines"), "thickness_um", ["nozzle", "speed"]).results
+    >>> check = ex.stats.shapiro_residuals(results)
+    >>> round(check.statistic, 3), check.within_limits
+    (0.987, True)
     """
     e = np.asarray(results.fit.residuals, dtype=float)  # residuals of any fitted model
     n = len(e)
@@ -260,15 +340,49 @@ def recommend(results: Results, spread: CheckResult, normality: CheckResult, *, 
               large_group: int = 30) -> Recommendation:
     """The suggested overall test as information, with what the spread and normality checks show.
 
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+    spread : CheckResult
+        A test of equal spreads (:func:`levene` or :func:`bartlett`).
+    normality : CheckResult
+        A test of normal residuals (:func:`shapiro_residuals`).
+    alpha : float, optional
+        Level at which the checks are read; the analysis alpha when not given.
+    large_group : int, default 30
+        Group size from which the sentence treats the levels as large samples.
+
+    Returns
+    -------
+    Recommendation
+        The suggested test, a sentence saying what the checks show and which test the
+        study's decision reads, and the references behind the suggestion.
+
+    Notes
+    -----
     The suggestion is Welch's F (Games-Howell for pairs) whatever the checks say: it
     keeps its type I error rate when level variances differ and loses little power when
-    they are equal, so it is recommended as the default (Delacre, Leys, Mora and Lakens
-    2019). The checks are reported, not used to switch: a test picked by a pretest at
-    the analysis alpha has error rates of its own that neither test's p-value describes
-    (Delacre, Lakens and Leys 2017). The study's decision reads the overall test chosen
-    for it (``results.spec.test`` where the spec has one, else the classic F); the
-    sentence names it and says what the checks imply for reading it. Nothing here
-    changes which tests are reported.
+    they are equal. The checks are reported, not used to switch: a test picked by a
+    pretest at the analysis alpha has error rates of its own that neither test's
+    p-value describes. The study's decision reads the overall test chosen for it
+    (``results.spec.test``); nothing here changes which tests are reported.
+
+    References
+    ----------
+    Delacre, M., Leys, C., Mora, Y. L. and Lakens, D. (2019). Taking parametric
+    assumptions seriously: arguments for the use of Welch's F-test instead of the
+    classical F-test in one-way ANOVA. Int. Rev. Soc. Psychol. 32(1), 13.
+    Delacre, M., Lakens, D. and Leys, C. (2017). Why psychologists should by default use
+    Welch's t-test instead of Student's t-test. Int. Rev. Soc. Psychol. 30(1), 92-101.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> advice = ex.stats.recommend(results, ex.stats.levene(results), ex.stats.shapiro_residuals(results))
+    >>> advice.test, advice.chosen
+    ('Welch F', 'classic F')
     """
     a = alpha_or(alpha, results.spec.alpha)
     n = results.groups.n

@@ -293,25 +293,61 @@ def run_battery(
     target_power: float = 0.8,
     robust_cutoff: float = 3.5,
 ) -> Battery:
-    """Run every one-way check on ``results`` (a one-way :class:`Results`).
+    """Run every one-way check on ``results`` and return them as one frozen :class:`Battery`.
 
     Parameters
     ----------
-    alpha : level for decisions, letters and screens (the spec's alpha by default).
-    confidence : coverage of the comparison intervals (``1 - alpha`` by default, so that
-        an interval excludes zero exactly when its pair is declared different).
-    effect_confidence : coverage of the effect-size intervals (``1 - 2 alpha`` by
-        default, the interval that matches the F test; Steiger 2004).
-    levene_center : centre of Levene's test ('median' = Brown-Forsythe).
-    letters_from : which comparison table the letters are built from.
-    pairwise_adjust : adjustment of the pairwise t table ('holm', 'bonferroni', 'none').
-    control : a level to compare the others with (Dunnett); no Dunnett table when None.
-    dunnett_alternative : 'two-sided', 'greater' or 'less'.
-    permutations : number of permutations for the permutation F (0 = not run).
-    seed : seed of the permutation F.
-    effect_f : Cohen's f for the power (the observed one when None).
-    target_power : power the needed group size is computed for.
-    robust_cutoff : cutoff of the robust z screen.
+    results : Results
+        The analysis of a one-factor study.
+    alpha : float, optional
+        Level for decisions, letters and screens (the spec's alpha by default).
+    confidence : float, optional
+        Coverage of the comparison intervals (``1 - alpha`` by default, so that an
+        interval excludes zero exactly when its pair is declared different).
+    effect_confidence : float, optional
+        Coverage of the effect-size intervals (``1 - 2 alpha`` by default, the interval
+        that matches the F test).
+    levene_center : {'median', 'mean', 'trimmed'}, default 'median'
+        Centre of Levene's test ('median' = Brown-Forsythe).
+    letters_from : {'tukey', 'games-howell', 'pairwise-t'}, default 'tukey'
+        Which comparison table the letters are built from.
+    pairwise_adjust : {'holm', 'bonferroni', 'none'}, default 'holm'
+        Adjustment of the pairwise t table.
+    control : str, optional
+        A level to compare the others with (Dunnett); no Dunnett table when None.
+    dunnett_alternative : {'two-sided', 'greater', 'less'}, default 'two-sided'
+        Direction of Dunnett's comparisons.
+    permutations : int, default 0
+        Number of permutations for the permutation F (0 = not run).
+    seed : int, default 0
+        Seed of the permutation F.
+    effect_f : float, optional
+        Cohen's f for the power (the observed one when None).
+    target_power : float, default 0.8
+        Power the needed group size is computed for.
+    robust_cutoff : float, default 3.5
+        Cutoff of the robust z screen.
+
+    Returns
+    -------
+    Battery
+        Omnibus tests, assumption checks and the suggestion, comparisons and letters,
+        effect sizes and power, residual screens; tables of more than 20,000 pairs are
+        computed when first read.
+
+    References
+    ----------
+    The references of each part: :func:`welch_f`, :func:`levene`, :func:`tukey`,
+    :func:`compact_letters`, :func:`effect_sizes`, :func:`power_plan`,
+    :func:`bonferroni_outlier_test` in :mod:`explorer.stats`.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> battery = ex.stats.run_battery(results, control="A")
+    >>> round(battery.welch.pvalue, 5), battery.letters.letter_of("B"), battery.dunnett.family_size
+    (0.00073, 'a', 2)
     """
     if not results.spec.is_oneway:
         raise DesignError("the one-way battery needs a one-way analysis (one factor, no blocks)")

@@ -159,10 +159,38 @@ def profile_estimate(loglik: Callable[[float], float], confidence: float) -> Pro
 
 
 def box_cox(results: Results, *, lambdas: list[float] | None = None, confidence: float | None = None) -> BoxCoxProfile:
-    """Box-Cox profile of the measured response under ``results``' model (see module docstring).
+    """Box-Cox profile of the measured response under ``results``' model.
 
-    ``lambdas`` are the powers at which the profile is tabulated (default -2 to 2 by 0.5
-    and the estimate). Refused, saying so, when a kept value is zero or below.
+    Parameters
+    ----------
+    results : Results
+        The analysis of a fixed-effects study whose kept values are all above zero.
+    lambdas : list of float, optional
+        Powers at which the profile is tabulated (default -2 to 2 by 0.5 and the
+        estimate).
+    confidence : float, optional
+        Coverage of the likelihood interval of the power (``1 - alpha`` by default).
+
+    Returns
+    -------
+    BoxCoxProfile
+        The power that maximises the profile likelihood, its interval, the simple
+        powers inside it and the tabulated profile: evidence for a transform, not a
+        switch (``study.set_transform`` records a choice).
+
+    References
+    ----------
+    Box, G. E. P. and Cox, D. R. (1964). An analysis of transformations. JRSS B 26,
+    211-252.
+    Draper, N. R. and Smith, H. (1998). Applied Regression Analysis, 3rd ed., sec. 13.2.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> profile = ex.stats.box_cox(results)
+    >>> round(profile.estimate, 2), profile.inside[:2]
+    (0.95, ('reciprocal (-1)', 'reciprocal square root (-0.5)'))
     """
     spec = results.spec
     if spec.is_mixed:

@@ -96,9 +96,37 @@ def _balance_note(n: np.ndarray) -> tuple[bool, tuple[str, ...]]:
 def tukey(results: Results, *, confidence: float | None = None) -> PairwiseTable:
     """Tukey (equal sizes) / Tukey-Kramer (unequal sizes) comparisons of all level means.
 
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+    confidence : float, optional
+        Coverage of the intervals; ``1 - alpha`` of the analysis when not given.
+
+    Returns
+    -------
+    PairwiseTable
+        Every pair's difference, standard error, studentized-range p-value and
+        simultaneous interval; ``method`` says Tukey or Tukey-Kramer.
+
+    Notes
+    -----
     Uses the residual mean square of the one-way model. Always the same computation:
-    only the name in the table changes with the balance of the groups. Intervals are
-    ``1 - alpha`` of the analysis unless ``confidence`` is given.
+    only the name in the table changes with the balance of the groups.
+
+    References
+    ----------
+    Tukey, J. W. (1953). The problem of multiple comparisons. Unpublished manuscript.
+    Kramer, C. Y. (1956). Extension of multiple range tests to group means with unequal
+    numbers of replications. Biometrics 12, 307-310.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> pairs = ex.stats.tukey(results)
+    >>> pairs.method, pairs.difference.round(2).tolist()
+    ('Tukey', [-1.15, 0.22, 1.37])
     """
     confidence = _confidence_for(results, confidence)
     gs, n, means, _ = _level_stats(results)
@@ -120,10 +148,36 @@ def _replace(table: PairwiseTable, **changes: object) -> PairwiseTable:
 def games_howell(results: Results, *, confidence: float | None = None) -> PairwiseTable:
     """Games-Howell comparisons: unequal variances, Welch df per pair, studentized range.
 
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+    confidence : float, optional
+        Coverage of the intervals; ``1 - alpha`` of the analysis when not given.
+
+    Returns
+    -------
+    PairwiseTable
+        Every pair's difference, its own standard error and df, p-value and interval;
+        pairs with a one-observation level are undefined and a note says so.
+
+    Notes
+    -----
     ``se_ij = sqrt(v_i/n_i + v_j/n_j)``; df by Welch-Satterthwaite; p from the
-    studentized range with k means at ``q = sqrt(2) |d| / se_ij`` (Games and Howell 1976).
-    Levels with one observation have no variance; their comparisons are undefined.
-    Intervals are ``1 - alpha`` of the analysis unless ``confidence`` is given.
+    studentized range with k means at ``q = sqrt(2) |d| / se_ij``.
+
+    References
+    ----------
+    Games, P. A. and Howell, J. F. (1976). Pairwise multiple comparison procedures with
+    unequal n's and/or variances. J. Educ. Stat. 1, 113-125.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> pairs = ex.stats.games_howell(results)
+    >>> pairs.method, pairs.df.round(1).tolist(), pairs.pvalue.round(4).tolist()
+    ('Games-Howell', [6.0, 6.0, 6.0], [0.0015, 0.477, 0.0007])
     """
     confidence = _confidence_for(results, confidence)
     gs, n, means, var = _level_stats(results)
@@ -165,10 +219,36 @@ def games_howell(results: Results, *, confidence: float | None = None) -> Pairwi
 def pairwise_t(results: Results, *, adjust: Adjustment = "holm", confidence: float | None = None) -> PairwiseTable:
     """Pairwise t tests on the pooled residual variance, adjusted by Holm, Bonferroni or none.
 
-    Holm's step-down method has no matching simultaneous intervals; its table shows the
-    Bonferroni intervals (valid, wider) and says so. With ``adjust='none'`` the intervals
-    are per comparison. Intervals are ``1 - alpha`` of the analysis unless ``confidence``
-    is given.
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+    adjust : {'holm', 'bonferroni', 'none'}, default 'holm'
+        Family-wise adjustment of the p-values.
+    confidence : float, optional
+        Coverage of the intervals; ``1 - alpha`` of the analysis when not given.
+
+    Returns
+    -------
+    PairwiseTable
+        Every pair's difference, t, adjusted p-value and interval. Holm's step-down
+        method has no matching simultaneous intervals: its table shows the Bonferroni
+        intervals (valid, wider) and says so; with ``adjust='none'`` the intervals are
+        per comparison.
+
+    References
+    ----------
+    Holm, S. (1979). A simple sequentially rejective multiple test procedure. Scand. J.
+    Stat. 6, 65-70.
+    Hochberg, Y. and Tamhane, A. C. (1987). Multiple Comparison Procedures. Wiley, ch. 2.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> pairs = ex.stats.pairwise_t(results, adjust="bonferroni")
+    >>> pairs.adjustment, [bool(s) for s in pairs.significant(0.05)]
+    ('Bonferroni', [True, False, True])
     """
     confidence = _confidence_for(results, confidence)
     adjust_l = str(adjust).lower()
@@ -252,12 +332,42 @@ def dunnett(
 ) -> PairwiseTable:
     """Dunnett's comparisons of every level with a control, two- or one-sided.
 
-    ``alternative='greater'`` tests treatment > control (intervals bounded below),
-    ``'less'`` treatment < control. Adjusted p-values are single-step:
-    ``P(max T > |t_i|)`` under the joint multivariate t of the family, computed by
-    Dunnett's (1955) one-factor product integral with deterministic quadrature (the
-    same outer grid as :mod:`.studentized_range`). Intervals are ``1 - alpha`` of the
-    analysis unless ``confidence`` is given.
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+    control : str
+        The level the others are compared with.
+    alternative : {'two-sided', 'greater', 'less'}, default 'two-sided'
+        'greater' tests treatment > control (intervals bounded below), 'less'
+        treatment < control.
+    confidence : float, optional
+        Coverage of the intervals; ``1 - alpha`` of the analysis when not given.
+
+    Returns
+    -------
+    PairwiseTable
+        Each treatment minus the control with single-step adjusted p-values and
+        simultaneous intervals.
+
+    Notes
+    -----
+    Adjusted p-values are ``P(max T > |t_i|)`` under the joint multivariate t of the
+    family, computed by Dunnett's one-factor product integral with deterministic
+    quadrature (the same outer grid as the studentized range).
+
+    References
+    ----------
+    Dunnett, C. W. (1955). A multiple comparison procedure for comparing several
+    treatments with a control. JASA 50, 1096-1121.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> vs_a = ex.stats.dunnett(results, "A")
+    >>> list(zip(vs_a.first, vs_a.second)), vs_a.pvalue.round(4).tolist()
+    ([('B', 'A'), ('C', 'A')], [0.0002, 0.3896])
     """
     confidence = _confidence_for(results, confidence)
     if alternative not in ("two-sided", "greater", "less"):

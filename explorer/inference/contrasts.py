@@ -331,10 +331,43 @@ def _treatments(c: np.ndarray, labels: tuple[str, ...]) -> list[str]:
 
 def contrasts(results: Results, factor: str | None, weights: Any, *, adjust: str | None = None,
               confidence: float | None = None) -> ContrastTable:
-    """User-defined contrasts of ``factor``'s means (see :func:`parse_weights` for ``weights``).
+    """User-defined contrasts of ``factor``'s means.
 
-    One contrast is tested on its own unless ``adjust`` says otherwise; several default to
-    Holm's adjustment. A joint F test of the whole set is given when it has several.
+    Parameters
+    ----------
+    results : Results
+        The analysis (``study.results``) of a one-factor or fixed-effects factorial study.
+    factor : str or None
+        The factor whose level means are compared (``None``: the study's first factor).
+    weights : mapping or list of mappings
+        One ``{level: weight}`` (weights summing to zero; levels left out weigh 0), a
+        mapping ``{name: {level: weight}}``, or a list of ``{level: weight}``.
+    adjust : {'holm', 'bonferroni', 'scheffe', 'dunnett', 'none'}, optional
+        Family-wise adjustment over the contrasts (default: none for one contrast,
+        Holm's for several).
+    confidence : float, optional
+        Coverage of the intervals; ``1 - alpha`` of the analysis when not given.
+
+    Returns
+    -------
+    ContrastTable
+        Each contrast's estimate, standard error, t, p-value (and adjusted p-value) and
+        interval; a joint F test of the whole set when it has several.
+
+    References
+    ----------
+    Maxwell, S. E., Delaney, H. D. and Kelley, K. (2018). Designing Experiments and
+    Analyzing Data, 3rd ed., ch. 4-5.
+    Holm, S. (1979). A simple sequentially rejective multiple test procedure. Scand. J.
+    Stat. 6, 65-70.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> table = ex.stats.contrasts(results, "nozzle", {"B": 1, "A": -0.5, "C": -0.5})
+    >>> round(float(table.estimate[0]), 3), bool(table.pvalue[0] < 0.001)
+    (1.262, True)
     """
     lm = level_means(results, factor)
     names, c = parse_weights(weights, lm)
@@ -345,8 +378,41 @@ def contrasts(results: Results, factor: str | None, weights: Any, *, adjust: str
 
 def control_contrasts(results: Results, factor: str | None, control: str, *, adjust: str | None = None,
                       confidence: float | None = None) -> ContrastTable:
-    """Each level against ``control`` (``mu_i - mu_control``); Dunnett's adjustment by default
-    in a one-factor study, Holm's otherwise."""
+    """Each level against ``control`` (``mu_i - mu_control``).
+
+    Parameters
+    ----------
+    results : Results
+        The analysis (``study.results``) of a one-factor or fixed-effects factorial study.
+    factor : str or None
+        The factor whose level means are compared (``None``: the study's first factor).
+    control : str
+        The reference level.
+    adjust : str, optional
+        Dunnett's adjustment by default in a one-factor study, Holm's otherwise.
+    confidence : float, optional
+        Coverage of the intervals; ``1 - alpha`` of the analysis when not given.
+
+    Returns
+    -------
+    ContrastTable
+        One contrast per other level.
+
+    References
+    ----------
+    Dunnett, C. W. (1955). A multiple comparison procedure for comparing several
+    treatments with a control. JASA 50, 1096-1121.
+    Maxwell, S. E., Delaney, H. D. and Kelley, K. (2018). Designing Experiments and
+    Analyzing Data, 3rd ed., ch. 4-5.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> table = ex.stats.control_contrasts(results, "nozzle", "A")
+    >>> table.names, table.adjustment
+    (('B vs A', 'C vs A'), 'dunnett')
+    """
     lm = level_means(results, factor)
     c0 = lm.index(control, what="control level")
     rows, names = [], []
@@ -366,9 +432,38 @@ def control_contrasts(results: Results, factor: str | None, control: str, *, adj
 
 def later_levels_contrasts(results: Results, factor: str | None, *, adjust: str | None = None,
                            confidence: float | None = None) -> ContrastTable:
-    """Each level against the mean of the levels after it, in the factor's level order (k - 1 contrasts).
+    """Each level against the mean of the levels after it, in the factor's level order.
 
-    With equal counts (one factor) the set is orthogonal; the table says whether it is here.
+    Parameters
+    ----------
+    results : Results
+        The analysis (``study.results``) of a one-factor or fixed-effects factorial study.
+    factor : str or None
+        The factor whose level means are compared (``None``: the study's first factor).
+    adjust : {'holm', 'bonferroni', 'scheffe', 'dunnett', 'none'}, optional
+        Family-wise adjustment over the contrasts (default: none for one contrast,
+        Holm's for several).
+    confidence : float, optional
+        Coverage of the intervals; ``1 - alpha`` of the analysis when not given.
+
+    Returns
+    -------
+    ContrastTable
+        The k - 1 contrasts; with equal counts (one factor) the set is orthogonal and
+        the table says whether it is here.
+
+    References
+    ----------
+    Maxwell, S. E., Delaney, H. D. and Kelley, K. (2018). Designing Experiments and
+    Analyzing Data, 3rd ed., ch. 4-5. (Helmert-type contrasts)
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("oven"), "hardness", "temperature").results
+    >>> table = ex.stats.later_levels_contrasts(results, "temperature")
+    >>> len(table.names), table.orthogonal
+    (3, True)
     """
     lm = level_means(results, factor)
     k = len(lm.labels)

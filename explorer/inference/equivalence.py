@@ -147,10 +147,47 @@ def equivalence(
     adjust: str = "none",
     alpha: float | None = None,
 ) -> EquivalenceTable:
-    """Two one-sided tests for ``pairs`` of levels, or each level against ``control``.
+    """Two one-sided tests of equivalence for ``pairs`` of levels, or each level against ``control``.
 
-    Exactly one of ``pairs`` (e.g. ``[("new", "current")]``, difference first - second)
-    and ``control`` is given. ``alpha`` defaults to the analysis alpha.
+    Parameters
+    ----------
+    results : Results
+        The analysis (``study.results``) of a one-factor or fixed-effects factorial study.
+    factor : str, optional
+        The factor (default the study's first).
+    margin : float or (float, float)
+        The user's equivalence margin in response units: ``d`` for (-d, d), or
+        ``(low, high)``.
+    pairs : sequence of (str, str), optional
+        Pairs of levels, difference first minus second (e.g. ``[("new", "current")]``).
+    control : str, optional
+        Each other level against this one. Exactly one of ``pairs`` and ``control``.
+    adjust : {'none', 'holm', 'bonferroni'}, default 'none'
+        Adjustment over the pairs.
+    alpha : float, optional
+        Level of each one-sided test; the analysis alpha when not given.
+
+    Returns
+    -------
+    EquivalenceTable
+        For each pair the two one-sided t tests, the larger p-value, the ``1 - 2 alpha``
+        interval and whether equivalence is shown.
+
+    References
+    ----------
+    Schuirmann, D. J. (1987). A comparison of the two one-sided tests procedure and the
+    power approach for assessing the equivalence of average bioavailability. J.
+    Pharmacokinet. Biopharm. 15, 657-680.
+    Berger, R. L. (1982). Multiparameter hypothesis testing and acceptance sampling.
+    Technometrics 24, 295-300.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> table = ex.stats.equivalence(results, "nozzle", margin=0.5, pairs=[("C", "A")])
+    >>> round(float(table.difference[0]), 3), table.equivalent.tolist()
+    (-0.225, [False])
     """
     low, high = parse_margin(margin)
     lm = level_means(results, factor)

@@ -95,7 +95,36 @@ def _sweep(columns: list[frozenset[str]], rank: dict[str, int]) -> list[frozense
 
 
 def compact_letters(table: PairwiseTable, *, alpha: float = 0.05) -> LetterDisplay:
-    """Letters for the levels of ``table`` from its significant pairs at ``alpha`` (Piepho 2004)."""
+    """Letters for the levels of ``table`` from its significant pairs at ``alpha``.
+
+    Parameters
+    ----------
+    table : PairwiseTable
+        Any table of pairwise comparisons (Tukey, Games-Howell, pairwise t, Dunnett,
+        least-squares means).
+    alpha : float, default 0.05
+        Level at which a pair counts as different.
+
+    Returns
+    -------
+    LetterDisplay
+        Levels from the largest estimate down with their letters: levels that share a
+        letter are not declared different. Pairs the table did not test count as not
+        different, and the result says so.
+
+    References
+    ----------
+    Piepho, H.-P. (2004). An algorithm for a letter-based representation of
+    all-pairwise comparisons. J. Comput. Graph. Stat. 13(2), 456-466.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> letters = ex.stats.compact_letters(ex.stats.tukey(results))
+    >>> dict(zip(letters.labels, letters.letters))
+    {'B': 'a', 'A': 'b', 'C': 'b'}
+    """
     if not 0 < alpha < 1:
         raise ExplorerError(f"alpha must be between 0 and 1, not {alpha!r}")
     labels = table.labels

@@ -109,11 +109,42 @@ class MeasurementSystem:
 def measurement_system(
     results: Results, part: str, operator: str, *, tolerance: float | None = None, multiplier: float = 6.0
 ) -> MeasurementSystem:
-    """The measurement-system table of a study of ``part`` x ``operator`` (both random; see module docstring).
+    """The measurement-system table of a study of ``part`` x ``operator`` (both random).
 
-    ``results`` are those of a study whose spec has ``part`` and ``operator`` among its
-    random factors, crossed (with or without their interaction) or with ``part`` nested in
-    ``operator``.
+    Parameters
+    ----------
+    results : Results
+        The results of a study whose spec has ``part`` and ``operator`` among its random
+        factors, crossed (with or without their interaction) or with ``part`` nested in
+        ``operator``.
+    part, operator : str
+        The two columns.
+    tolerance : float, optional
+        Upper minus lower specification; adds each line's share of it.
+    multiplier : float, default 6.0
+        Study variation = multiplier x SD.
+
+    Returns
+    -------
+    MeasurementSystem
+        Repeatability, reproducibility, gauge R&R, part-to-part and total: variance,
+        shares, SD, study variation and intervals; the number of distinct categories.
+
+    References
+    ----------
+    Montgomery, D. C. (2013). Design and Analysis of Experiments, 8th ed., ch. 13 (the
+    measurement-systems capability example; from memory).
+    Burdick, R. K., Borror, C. M. and Montgomery, D. C. (2005). Design and Analysis of
+    Gauge R&R Studies. SIAM (from memory).
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> study = ex.Study(ex.example_data("gauge"), "diameter_mm", ["part", "operator"],
+    ...                  random=["part", "operator"])
+    >>> table = ex.stats.measurement_system(study.results, "part", "operator")
+    >>> [line.source for line in table.lines][:3], table.distinct_categories
+    (['repeatability', 'reproducibility', 'operator'], 4)
     """
     spec = results.spec
     vc: VarianceComponents | None = results.variance_components

@@ -110,7 +110,32 @@ def _stats(results: Results) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
 
 
 def classic_f(results: Results) -> OmnibusTest:
-    """The classic F test of the one-way partition, as an :class:`OmnibusTest` (Fisher)."""
+    """The classic F test of the one-way partition, as an :class:`OmnibusTest`.
+
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+
+    Returns
+    -------
+    OmnibusTest
+        F of the factor against the residual mean square, with its df and p-value
+        (``None`` with a note when F is undefined).
+
+    References
+    ----------
+    Fisher, R. A. (1925). Statistical Methods for Research Workers, ch. 7.
+    Montgomery, D. C. (2017). Design and Analysis of Experiments, 9th ed., ch. 3.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> test = ex.stats.classic_f(results)
+    >>> round(test.statistic, 2), test.df_num, test.df_den
+    (33.47, 2.0, 9.0)
+    """
     row = results.partition.row(results.spec.factors[0])
     resid = results.partition.rows[1]
     return OmnibusTest(
@@ -133,8 +158,34 @@ def _unequal_var_guard(n: np.ndarray, var: np.ndarray, labels: tuple[str, ...], 
 def welch_f(results: Results) -> OmnibusTest:
     """Welch's (1951) F for equal means without assuming equal variances.
 
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+
+    Returns
+    -------
+    OmnibusTest
+        F, its numerator and (fractional) denominator df and the p-value; ``None`` with
+        a note when a level has one observation or zero spread.
+
+    Notes
+    -----
     ``w_i = n_i / s_i^2``; ``F = [sum w_i (m_i - m_w)^2 / (k-1)] / [1 + 2(k-2)/(k^2-1) L]``
     with ``L = sum (1 - w_i/W)^2 / (n_i - 1)`` and denominator df ``(k^2 - 1) / (3 L)``.
+
+    References
+    ----------
+    Welch, B. L. (1951). On the comparison of several mean values: an alternative
+    approach. Biometrika 38, 330-336.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> test = ex.stats.welch_f(results)
+    >>> round(test.statistic, 2), round(test.df_den, 2), bool(test.pvalue < 0.01)
+    (30.42, 6.0, True)
     """
     n, mean, var, k = _stats(results)
     assumes = "independent observations, normal residuals within each level (variances may differ)"
@@ -151,15 +202,43 @@ def welch_f(results: Results) -> OmnibusTest:
 def brown_forsythe_f(results: Results) -> OmnibusTest:
     """Brown and Forsythe's (1974) F* test of equal means under unequal variances.
 
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+
+    Returns
+    -------
+    OmnibusTest
+        F*, Mehrotra's numerator df and Satterthwaite's denominator df, the p-value on
+        those df, and the original ``k - 1`` reading in ``original_df_num`` and
+        ``original_pvalue``.
+
+    Notes
+    -----
     ``F* = sum n_i (m_i - m)^2 / sum (1 - n_i/N) s_i^2`` with Satterthwaite denominator
     df. The reported p-value uses Mehrotra's (1997) numerator df
     ``(sum c_i s_i^2)^2 / (sum s_i^4 + (sum p_i s_i^2)^2 - 2 sum p_i s_i^4)`` (``c_i =
     1 - p_i``, ``p_i = n_i / N``), which keeps the type I error near its nominal level
-    where the original ``k - 1`` is liberal under unequal variances; the original
-    reading is kept in ``original_df_num``/``original_pvalue`` (statsmodels
+    where the original ``k - 1`` is liberal under unequal variances (statsmodels
     ``anova_oneway(use_var="bf")`` reports the same pair as ``pvalue``/``pvalue2``).
-    (Not to be confused with the Brown-Forsythe test of equal spreads, which is
-    Levene's test centred at the median, see :mod:`.assumptions`.)
+    Not to be confused with the Brown-Forsythe test of equal spreads, which is Levene's
+    test centred at the median (:func:`levene`).
+
+    References
+    ----------
+    Brown, M. B. and Forsythe, A. B. (1974). The small sample behavior of some
+    statistics which test the equality of several means. Technometrics 16, 129-132.
+    Mehrotra, D. V. (1997). Improving the Brown-Forsythe solution to the generalized
+    Behrens-Fisher problem. Commun. Stat. Simul. Comput. 26, 1139-1145.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> test = ex.stats.brown_forsythe_f(results)
+    >>> round(test.statistic, 2), round(test.df_num, 2), test.original_df_num
+    (33.47, 2.0, 2.0)
     """
     n, _mean, var, k = _stats(results)
     assumes = "independent observations, normal residuals within each level (variances may differ)"
@@ -190,10 +269,36 @@ def midranks(y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def kruskal_wallis(results: Results) -> OmnibusTest:
-    """Kruskal-Wallis H test on mid-ranks, corrected for ties (Kruskal and Wallis 1952).
+    """Kruskal-Wallis H test on mid-ranks, corrected for ties.
 
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+
+    Returns
+    -------
+    OmnibusTest
+        H, its chi-square df (``k - 1``) and p-value; the tie correction in
+        ``tie_correction``.
+
+    Notes
+    -----
     ``H = 12 / (N (N+1)) sum n_i (Rbar_i - (N+1)/2)^2 / C`` with
     ``C = 1 - sum (t^3 - t) / (N^3 - N)``; chi-square on ``k - 1`` df.
+
+    References
+    ----------
+    Kruskal, W. H. and Wallis, W. A. (1952). Use of ranks in one-criterion variance
+    analysis. JASA 47, 583-621.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> test = ex.stats.kruskal_wallis(results)
+    >>> round(test.statistic, 2), test.df_num, round(test.tie_correction, 4)
+    (8.0, 2.0, 1.0)
     """
     require_oneway(results, "Kruskal-Wallis")
     fit = results.fit
@@ -223,11 +328,40 @@ def kruskal_wallis(results: Results) -> OmnibusTest:
 def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) -> OmnibusTest:
     """Permutation test of the classic F: shuffle the responses over the kept rows.
 
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+    permutations : int, default 9999
+        Number of random permutations ``B``.
+    seed : int, default 0
+        Seed of the permutations; the same seed and count give the same p-value.
+
+    Returns
+    -------
+    OmnibusTest
+        The classic F and its permutation p-value, with ``permutations``, ``seed`` and
+        the Monte-Carlo standard error of the p-value (``monte_carlo_se``).
+
+    Notes
+    -----
     With the group sizes fixed, F is an increasing function of ``sum_i S_i^2 / n_i``
     (``S_i`` the level sums of the centred response), which is what each permutation
     computes. The p-value is ``(b + 1) / (B + 1)`` with ``b`` the permutations at least
-    as extreme (Good 2005); its Monte-Carlo standard error ``sqrt(p (1-p) / B)`` is
-    ``monte_carlo_se``. Seeded, so the same seed and count give the same p-value.
+    as extreme; its Monte-Carlo standard error is ``sqrt(p (1-p) / B)``.
+
+    References
+    ----------
+    Good, P. (2005). Permutation, Parametric and Bootstrap Tests of Hypotheses, 3rd ed.,
+    Springer, ch. 3 and 5.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> test = ex.stats.permutation_f(results, 999, seed=1)
+    >>> test.pvalue, test.permutations
+    (0.001, 999)
     """
     b_total = int(permutations)
     if b_total < 1:

@@ -108,9 +108,37 @@ def _flag(row_ids: np.ndarray, mask: np.ndarray, order_by: np.ndarray) -> tuple[
 def bonferroni_outlier_test(results: Results, *, alpha: float = 0.05) -> OutlierScreen:
     """Externally studentized residuals; flag rows whose Bonferroni p-value is below ``alpha``.
 
+    Parameters
+    ----------
+    results : Results
+        The analysis of any model the engines fit.
+    alpha : float, default 0.05
+        Family-wise level over the N rows.
+
+    Returns
+    -------
+    OutlierScreen
+        The score of every kept row, the threshold and the rows that pass it (flagged
+        for a look, never left out). ``df``, ``n_params`` and ``smallest_pvalue`` are set.
+
+    Notes
+    -----
     The threshold is the ``|t|`` above which a row is flagged, ``t_(1 - alpha/(2N))``
     on ``N - p - 1`` df (p = number of fitted means). Rows with leverage 1 (a level with
     one observation) have no studentized residual (score NaN, never flagged).
+
+    References
+    ----------
+    Cook, R. D. and Weisberg, S. (1982). Residuals and Influence in Regression. Chapman &
+    Hall, sec. 2.2.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> screen = ex.stats.bonferroni_outlier_test(results)
+    >>> screen.flagged, round(screen.smallest_pvalue, 3)
+    ((), 1.0)
     """
     if not 0 < alpha < 1:
         raise ExplorerError(f"alpha must be between 0 and 1, not {alpha!r}")
@@ -146,7 +174,32 @@ def bonferroni_outlier_test(results: Results, *, alpha: float = 0.05) -> Outlier
 
 
 def grubbs_critical(n: int, alpha: float = 0.05) -> float:
-    """Two-sided Grubbs critical value (NIST/SEMATECH e-Handbook 1.3.5.17.1)."""
+    """Two-sided Grubbs critical value for ``n`` observations.
+
+    Parameters
+    ----------
+    n : int
+        Number of observations (at least 3).
+    alpha : float, default 0.05
+        Level of the test.
+
+    Returns
+    -------
+    float
+        ``(n - 1) / sqrt(n) sqrt(t^2 / (n - 2 + t^2))`` with ``t`` the upper
+        ``alpha / (2n)`` quantile of t on ``n - 2`` df.
+
+    References
+    ----------
+    NIST/SEMATECH e-Handbook of Statistical Methods, sec. 1.3.5.17.1 (Grubbs' test).
+    Grubbs, F. E. (1969). Technometrics 11, 1-21.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> round(ex.stats.grubbs_critical(20), 4)
+    2.7082
+    """
     if n < 3:
         raise ExplorerError(f"Grubbs' critical value needs at least 3 observations, not {n}")
     t = -t_ppf(alpha / (2 * n), n - 2)
@@ -156,9 +209,38 @@ def grubbs_critical(n: int, alpha: float = 0.05) -> float:
 def grubbs_test(results: Results, *, alpha: float = 0.05) -> OutlierScreen:
     """Grubbs' two-sided test for a single outlier among the residuals (one pass, not repeated).
 
+    Parameters
+    ----------
+    results : Results
+        The analysis (at least 7 residuals).
+    alpha : float, default 0.05
+        Level of the test.
+
+    Returns
+    -------
+    OutlierScreen
+        The score of every kept row, the threshold and the rows that pass it (flagged
+        for a look, never left out). ``statistic`` (G) and ``alpha`` are set.
+
+    Notes
+    -----
     Scores are ``|e_i - ebar| / s`` (s with N - 1 df). Only the most extreme row can be
     flagged. The residuals of a k-level fit have N - k df, not N - 1; with few rows per
     level the test is approximate.
+
+    References
+    ----------
+    Grubbs, F. E. (1969). Procedures for detecting outlying observations in samples.
+    Technometrics 11, 1-21.
+    NIST/SEMATECH e-Handbook of Statistical Methods, sec. 1.3.5.17.1.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> screen = ex.stats.grubbs_test(results)
+    >>> round(screen.statistic, 3), round(screen.threshold, 3), screen.flagged
+    (1.518, 2.412, ())
     """
     fit = results.fit
     e = np.asarray(fit.residuals, dtype=float)
@@ -184,7 +266,33 @@ def grubbs_test(results: Results, *, alpha: float = 0.05) -> OutlierScreen:
 
 
 def robust_z_screen(results: Results, *, cutoff: float = 3.5) -> OutlierScreen:
-    """Modified z-scores of the residuals from the median and the MAD (Iglewicz and Hoaglin 1993)."""
+    """Modified z-scores of the residuals from the median and the MAD.
+
+    Parameters
+    ----------
+    results : Results
+        The analysis of any model the engines fit.
+    cutoff : float, default 3.5
+        Rows with ``|0.6745 (e - median) / MAD|`` above it are flagged.
+
+    Returns
+    -------
+    OutlierScreen
+        The score of every kept row, the threshold and the rows that pass it (flagged
+        for a look, never left out). ``median`` and ``mad`` are set.
+
+    References
+    ----------
+    Iglewicz, B. and Hoaglin, D. C. (1993). How to Detect and Handle Outliers. ASQC.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> screen = ex.stats.robust_z_screen(results)
+    >>> screen.flagged, round(screen.mad, 3)
+    ((), 0.2)
+    """
     if not cutoff > 0:
         raise ExplorerError(f"cutoff must be positive, not {cutoff!r}")
     fit = results.fit

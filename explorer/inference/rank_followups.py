@@ -81,7 +81,33 @@ class DunnTable:
 
 
 def dunn(results: Results, *, adjust: str = "holm") -> DunnTable:
-    """Dunn's pairwise rank test of a one-factor study (the follow-up of Kruskal-Wallis)."""
+    """Dunn's pairwise rank test of a one-factor study (the follow-up of Kruskal-Wallis).
+
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+    adjust : {'holm', 'bonferroni', 'none'}, default 'holm'
+        Family-wise adjustment over the pairs.
+
+    Returns
+    -------
+    DunnTable
+        The mean rank of each level, and for each pair z (from the joint ranking, tie
+        corrected), p-value and adjusted p-value.
+
+    References
+    ----------
+    Dunn, O. J. (1964). Multiple comparisons using rank sums. Technometrics 6, 241-252.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> table = ex.stats.dunn(results)
+    >>> table.mean_rank.tolist(), table.adjusted.round(4).tolist()
+    ([5.5, 10.5, 3.5], [0.0997, 0.4328, 0.0181])
+    """
     require_oneway(results, "Dunn's test")
     fit = results.fit
     g = np.asarray(fit.group)
@@ -133,7 +159,34 @@ class FriedmanTest:
 
 
 def friedman(results: Results) -> FriedmanTest:
-    """Friedman's test: one treatment factor, one block, one observation per treatment and block."""
+    """Friedman's test: one treatment factor, one block, one observation per treatment and block.
+
+    Parameters
+    ----------
+    results : Results
+        The analysis of a study with one factor and one block (``blocks=``), each
+        combination observed once.
+
+    Returns
+    -------
+    FriedmanTest
+        The tie-corrected chi-square, its df and p-value, Kendall's W and the rank sums.
+
+    References
+    ----------
+    Friedman, M. (1937). The use of ranks to avoid the assumption of normality implicit
+    in the analysis of variance. JASA 32, 675-701.
+    Hollander, M., Wolfe, D. A. and Chicken, E. (2014). Nonparametric Statistical
+    Methods, 3rd ed., sec. 7.1.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("cure"), "hardness", "time", blocks="panel").results
+    >>> test = ex.stats.friedman(results)
+    >>> round(test.statistic, 3), test.df, round(test.kendall_w, 3)
+    (11.565, 2, 0.964)
+    """
     spec = results.spec
     if len(spec.factors) != 1 or len(spec.blocks) != 1 or spec.is_mixed or bool(getattr(spec, "covariates", ())):
         raise DesignError("Friedman's test needs a randomized complete block design: one treatment factor and one "

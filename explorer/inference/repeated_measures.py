@@ -287,9 +287,37 @@ def _multivariate(z: np.ndarray, x: np.ndarray, rows: slice, source: str) -> Mul
 def repeated_measures(results: Results, *, multivariate: bool = True) -> RepeatedMeasures:
     """Sphericity, epsilons, epsilon-corrected p-values and multivariate tests of a repeated-measures study.
 
-    ``results`` are the results of a study with ``subject=`` and ``within=``; the
-    within-subject F statistics are read from its partition (each against its
-    subject-by-within error term).
+    Parameters
+    ----------
+    results : Results
+        The results of a study with ``subject=`` and ``within=``; the within-subject F
+        statistics are read from its partition (each against its subject-by-within
+        error term).
+    multivariate : bool, default True
+        Whether to add the four multivariate tests of each within term.
+
+    Returns
+    -------
+    RepeatedMeasures
+        For each within term Mauchly's W and its test, the Greenhouse-Geisser,
+        Huynh-Feldt (and Lecoutre-corrected) epsilons with the corrected p-values, and
+        the multivariate tests.
+
+    References
+    ----------
+    Mauchly, J. W. (1940). Ann. Math. Stat. 11, 204-209.
+    Greenhouse, S. W. and Geisser, S. (1959). Psychometrika 24, 95-112.
+    Huynh, H. and Feldt, L. S. (1976). J. Educ. Stat. 1, 69-82.
+    Rencher, A. C. (2002). Methods of Multivariate Analysis, 2nd ed., ch. 6.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> study = ex.Study(ex.example_data("cure"), "hardness", "time", subject="panel", within="time")
+    >>> rm = ex.stats.repeated_measures(study.results)
+    >>> test = rm.sphericity[0]
+    >>> test.term, round(test.mauchly_w, 3), round(test.greenhouse_geisser, 3)
+    ('time', 0.83, 0.854)
     """
     spec = results.spec
     subjects = _subject_table(results)

@@ -90,8 +90,38 @@ def hc3_tests(
 ) -> RobustTermTests:
     """HC3 Wald F tests of every term of ``results``' fixed-effects model (types II or III).
 
-    ``ss_type`` defaults to the study's (type I has no robust counterpart here: type II
-    is used and a note says so).
+    Parameters
+    ----------
+    results : Results
+        The analysis (``study.results``) of a one-factor or fixed-effects factorial study.
+    ss_type : {'II', 'III'}, optional
+        The study's type by default (type I has no robust counterpart here: type II is
+        used and a note says so).
+    covariates : dict, optional
+        Covariate columns of an analysis of covariance (read from the results when
+        they carry them).
+
+    Returns
+    -------
+    RobustTermTests
+        For each term the Wald F on its df with the HC3 covariance, its p-value, and the
+        classic F beside it.
+
+    References
+    ----------
+    MacKinnon, J. G. and White, H. (1985). Some heteroskedasticity-consistent
+    covariance matrix estimators with improved finite sample properties. J.
+    Econometrics 29, 305-325.
+    Long, J. S. and Ervin, L. H. (2000). Using heteroscedasticity consistent standard
+    errors in the linear regression model. The American Statistician 54, 217-224.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("lines"), "thickness_um", ["nozzle", "speed"]).results
+    >>> tests = ex.stats.hc3_tests(results)
+    >>> tests.terms, [bool(p < 0.05) for p in tests.pvalue]
+    (('nozzle', 'speed', 'nozzle × speed'), [True, False, True])
     """
     spec = results.spec
     if spec.is_mixed:

@@ -156,12 +156,37 @@ def simple_effects(results: Results, factor: str, within: str, *, adjust: str = 
 
     Parameters
     ----------
-    results : results of a multi-factor study (two or more treatment factors).
-    factor, within : two different treatment factors.
-    adjust : family-wise adjustment over the levels of ``within``: 'holm' (default),
-        'bonferroni' or 'none' (see :data:`ADJUSTMENTS`).
-    alpha : level of the verdicts (default the study's).
-    confidence : level of the cell-mean intervals (default ``1 - alpha``).
+    results : Results
+        Results of a multi-factor study (two or more treatment factors).
+    factor, within : str
+        Two different treatment factors.
+    adjust : {'holm', 'bonferroni', 'none'}, default 'holm'
+        Family-wise adjustment over the levels of ``within``.
+    alpha : float, optional
+        Level of the verdicts (default the study's).
+    confidence : float, optional
+        Level of the cell-mean intervals (default ``1 - alpha``).
+
+    Returns
+    -------
+    SimpleEffects
+        F, df, p-value and adjusted p-value of ``factor`` at each level of ``within``,
+        the least-squares cell means with intervals, and the interaction's p-value.
+
+    References
+    ----------
+    Kirk, R. E. (2013). Experimental Design, 4th ed., sec. 9.6 (simple main effects
+    with the pooled error term).
+    Maxwell, S. E., Delaney, H. D. and Kelley, K. (2018). Designing Experiments and
+    Analyzing Data, 3rd ed., ch. 7.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("lines"), "thickness_um", ["nozzle", "speed"]).results
+    >>> effects = ex.stats.simple_effects(results, "speed", "nozzle")
+    >>> effects.levels, effects.adjusted_pvalue.round(4).tolist()
+    (('A', 'B', 'C'), [0.2922, 0.0249, 0.0096])
     """
     spec = results.spec
     a_level = alpha_or(alpha, spec.alpha)

@@ -108,10 +108,44 @@ def trend(
 ) -> ContrastTable:
     """Linear, quadratic, ... trend of ``factor``'s means over its numeric level values.
 
-    ``degree`` defaults to min(k - 1, 3); ``values`` maps levels to numbers when the
-    labels are not numbers (or to use other values than the labels). The table's joint
-    tests give the departure from the fitted degree (when k - 1 > degree) and the whole
-    trend set. Holm's adjustment by default, named in the table.
+    Parameters
+    ----------
+    results : Results
+        The analysis (``study.results``) of a one-factor or fixed-effects factorial study.
+    factor : str, optional
+        The factor (default the study's first).
+    degree : int, optional
+        Highest power; min(k - 1, 3) when not given.
+    values : mapping, optional
+        Level -> number, when the labels are not numbers (or to use other values).
+    weighting : {'equal', 'counts'}, default 'equal'
+        Orthogonal over the levels ('equal') or over the observations ('counts').
+    adjust : str, optional
+        Holm's adjustment by default, named in the table.
+    confidence : float, optional
+        Coverage of the intervals; ``1 - alpha`` of the analysis when not given.
+
+    Returns
+    -------
+    ContrastTable
+        One orthogonal-polynomial contrast per degree (unequal spacing and counts
+        handled); joint tests of the departure from the fitted degree (when k - 1 >
+        degree) and of the whole trend set.
+
+    References
+    ----------
+    Maxwell, S. E., Delaney, H. D. and Kelley, K. (2018). Designing Experiments and
+    Analyzing Data, 3rd ed., ch. 6.
+    Robson, D. S. (1959). A simple method for constructing orthogonal polynomials when
+    the independent variable is unequally spaced. Biometrics 15, 187-191.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("oven"), "hardness", "temperature").results
+    >>> table = ex.stats.trend(results, "temperature", degree=2)
+    >>> table.names, [bool(p < 0.05) for p in table.pvalue]
+    (('linear', 'quadratic'), [True, True])
     """
     lm = level_means(results, factor)
     k = len(lm.labels)

@@ -93,7 +93,36 @@ class TrimmedMeansTest:
 
 
 def trimmed_means_test(results: Results, *, trim: float = 0.2) -> TrimmedMeansTest:
-    """Wilcox's heteroscedastic one-way test of trimmed means on the kept rows (see module docstring)."""
+    """Wilcox's heteroscedastic one-way test of trimmed means on the kept rows.
+
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study (``study.results``).
+    trim : float, default 0.2
+        Share trimmed from each end of each level.
+
+    Returns
+    -------
+    TrimmedMeansTest
+        The trimmed means, winsorized SDs and standard errors of the levels, and the
+        test's F with its (fractional) df and p-value.
+
+    References
+    ----------
+    Wilcox, R. R. (2017). Introduction to Robust Estimation and Hypothesis Testing, 4th
+    ed., sec. 7.1.
+    Yuen, K. K. (1974). The two-sample trimmed t for unequal population variances.
+    Biometrika 61, 165-170.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> results = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results
+    >>> test = ex.stats.trimmed_means_test(results)
+    >>> test.trimmed_mean.round(3).tolist(), round(test.df_den, 2)
+    ([50.075, 51.225, 49.85], 6.0)
+    """
     require_oneway(results, "The trimmed-means test")
     if not 0 <= trim < 0.5:
         raise ExplorerError(f"trim is the share cut from each end, between 0 and 0.5, not {trim!r}")

@@ -87,7 +87,35 @@ class WelchT:
 
 
 def welch_t(results: Results, *, confidence: float | None = None) -> WelchT:
-    """Welch's two-sample t test and interval of the two levels of a one-factor study."""
+    """Welch's two-sample t test and interval of the two levels of a one-factor study.
+
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study with two levels.
+    confidence : float, optional
+        Coverage of the intervals; ``1 - alpha`` of the analysis when not given.
+
+    Returns
+    -------
+    WelchT
+        The difference (first level minus second), its standard error, t,
+        Welch-Satterthwaite df, p-value and interval.
+
+    References
+    ----------
+    Welch, B. L. (1947). The generalization of Student's problem when several different
+    population variances are involved. Biometrika 34, 28-35.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> df = ex.example_data("coating")
+    >>> results = ex.Study(df[df.nozzle != "C"], "thickness_um", "nozzle").results
+    >>> t = ex.stats.welch_t(results)
+    >>> (t.first, t.second), round(t.difference, 3), round(t.df, 2)
+    (('A', 'B'), -1.15, 6.0)
+    """
     _two(results, "Welch's two-sample t")
     conf = 1 - results.spec.alpha if confidence is None else float(confidence)
     gs = results.groups
@@ -153,7 +181,37 @@ def _u_distribution(m: int, n: int) -> np.ndarray:
 
 
 def mann_whitney(results: Results) -> MannWhitney:
-    """Mann-Whitney test of the two levels of a one-factor study (see module docstring)."""
+    """Mann-Whitney test of the two levels of a one-factor study.
+
+    Parameters
+    ----------
+    results : Results
+        The analysis of a one-factor study with two levels.
+
+    Returns
+    -------
+    MannWhitney
+        U of the first level, the two-sided p-value (exact without ties, the normal
+        approximation with tie and continuity corrections otherwise; ``method`` says
+        which) and the probability that a value of the first level exceeds one of the
+        second.
+
+    References
+    ----------
+    Mann, H. B. and Whitney, D. R. (1947). On a test of whether one of two random
+    variables is stochastically larger than the other. Ann. Math. Stat. 18, 50-60.
+    Hollander, M., Wolfe, D. A. and Chicken, E. (2014). Nonparametric Statistical
+    Methods, 3rd ed., sec. 4.1.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> df = ex.example_data("coating")
+    >>> results = ex.Study(df[df.nozzle != "C"], "thickness_um", "nozzle").results
+    >>> test = ex.stats.mann_whitney(results)
+    >>> test.u, round(test.pvalue, 4), test.method
+    (0.0, 0.0286, 'exact')
+    """
     _two(results, "The Mann-Whitney test")
     fit = results.fit
     g = np.asarray(fit.group)

@@ -201,12 +201,39 @@ def _pairwise_change(
 
 def case_deletion_scan(study: StudyLike, *, term: str | None = None, alpha: float | None = None,
                        record: bool = True) -> CaseDeletionScan:
-    """Leave each kept row of ``study`` out in turn; see :class:`CaseDeletionScan`.
+    """Leave each kept row of ``study`` out in turn and score the decision each time.
 
-    ``term`` is the term whose decision is scored (default: the term the study's
-    decision is about, ``study.decision.term``); the test is the study's chosen overall
-    test. The study is not changed; the ``n`` alternatives examined are added to its
-    disclosure count (``record=False`` skips that, for internal re-use).
+    Parameters
+    ----------
+    study : Study
+        The study to scan; it is not edited (the alternatives examined are added to its
+        count of searches unless ``record=False``).
+    term : str, optional
+        The term whose decision is scored (default: the term of ``study.decision``).
+    alpha : float, optional
+        Level of the decisions (default the study's).
+    record : bool, default True
+        Whether the alternatives examined count in the study's disclosure.
+
+    Returns
+    -------
+    CaseDeletionScan
+        For each row: the statistic and p-value of the study's chosen test with that row
+        left out, whether the decision changes, the largest change in a pairwise t
+        (one factor) or every term's p-value (several factors).
+
+    References
+    ----------
+    Cook, R. D. and Weisberg, S. (1982). Residuals and Influence in Regression, ch. 3.
+    Welford, B. P. (1962). Technometrics 4(3), 419-420 (the downdate).
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> study = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle")
+    >>> scan = ex.stats.case_deletion_scan(study)
+    >>> int(scan.pvalue.argmax()), bool((scan.pvalue < 0.05).all())
+    (7, True)
     """
     target = scan_target(study, "case-deletion scan", term)
     name, verdict, data = target.term, target.verdict, target.oneway

@@ -268,13 +268,47 @@ def flip_finder(
 
     Parameters
     ----------
-    term : the term whose decision is flipped (default: the term the study's decision is
-        about, ``study.decision.term``), under the study's chosen overall test.
-    pair : two level names to flip that pairwise (Tukey-Kramer) decision instead (one factor).
-    method : 'exact' (exhaustive up to ``budget`` sets and ``max_size`` rows), 'greedy', or
-        'auto' (exact first; greedy when the exact search finds nothing within its reach).
-    budget : largest number of row sets the exact search may score.
-    max_steps : most removals the greedy search makes.
+    study : Study
+        The study to scan; it is not edited (the alternatives examined are added to its
+        count of searches unless ``record=False``).
+    term : str, optional
+        The term whose decision is scored (default: the term of ``study.decision``).
+    pair : (str, str), optional
+        Two level names to flip that pairwise (Tukey-Kramer) decision instead (one
+        factor).
+    method : {'auto', 'exact', 'greedy'}, default 'auto'
+        'exact' (exhaustive up to ``budget`` sets and ``max_size`` rows), 'greedy', or
+        'auto' (exact first; greedy when the exact search finds nothing within reach).
+    budget : int, default 200_000
+        Largest number of row sets the exact search may score.
+    max_size : int, default 5
+        Largest set the exact search tries.
+    max_steps : int, default 30
+        Most removals the greedy search makes.
+    alpha : float, optional
+        Level of the decisions (default the study's).
+    record : bool, default True
+        Whether the alternatives examined count in the study's disclosure.
+
+    Returns
+    -------
+    FlipSearch
+        The rows found (if any), the p-value after removing them, how far the exact
+        search reached and how many sets it examined.
+
+    References
+    ----------
+    Broderick, T., Giordano, R. and Meager, R. (2020). An automatic finite-sample
+    robustness metric: when can dropping a little data make a big difference?
+    arXiv:2011.14999 (the question; the search here is exhaustive or greedy).
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> study = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle")
+    >>> search = ex.stats.flip_finder(study, pair=("A", "C"))
+    >>> search.found, len(search.rows)
+    (True, 4)
     """
     if method not in ("auto", "exact", "greedy"):
         raise ExplorerError(f"method must be 'auto', 'exact' or 'greedy', not {method!r}")

@@ -132,8 +132,41 @@ def influence_measures(
 ) -> Influence:
     """Influence measures from residuals, leverages and the residual df of a least-squares fit.
 
-    ``scale`` (the magnitude of the response) decides when the residual mean square
-    counts as zero. ``alpha`` is the level of the Bonferroni outlier test flag.
+    Parameters
+    ----------
+    residuals, leverage : numpy.ndarray
+        Residuals and leverages (hat-matrix diagonal) of the kept rows.
+    df_resid : int
+        Residual df of the fit (``p = n - df_resid`` fitted parameters).
+    row_ids : numpy.ndarray, optional
+        Row ids to label the rows (positions when not given).
+    group : numpy.ndarray, optional
+        Each row's level or cell, for display.
+    alpha : float, default 0.05
+        Level of the Bonferroni outlier test flag.
+    scale : float, default 1.0
+        Magnitude of the response, which decides when the residual mean square counts
+        as zero (:func:`explorer.engine.numerics.is_zero_ss`).
+
+    Returns
+    -------
+    Influence
+        Internally and externally studentized residuals, Cook's distance, DFFITS,
+        Bonferroni outlier p-values and the stated cut-offs.
+
+    References
+    ----------
+    Cook, R. D. (1977). Detection of influential observation in linear regression.
+    Technometrics 19(1), 15-18.
+    Belsley, D. A., Kuh, E. and Welsch, R. E. (1980). Regression Diagnostics, ch. 2.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> fit = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle").results.fit
+    >>> infl = ex.stats.influence_measures(fit.residuals, fit.leverage, 9)
+    >>> round(float(infl.cooks_distance.max()), 3), infl.n_params
+    (0.279, 3)
     """
     e = np.asarray(residuals, dtype=np.float64)
     h = np.asarray(leverage, dtype=np.float64)

@@ -128,13 +128,41 @@ def regroup_scan(
 ) -> RegroupScan:
     """Every merge of two levels and every move of one row to another level of a factor of ``study``.
 
-    ``term`` is the term whose decision is scored (default: the term the study's decision
-    is about), under the study's chosen overall test. One-factor studies: closed-form
-    updates of the group statistics (rank sums for Kruskal-Wallis, shared permutations
-    for the permutation F; see :mod:`.chosen_test`). Factorial and block designs (see
-    :mod:`.cell_regroup`): ``factor`` names the factor to regroup (default the first).
-    The study is not changed; the alternatives examined are added to its disclosure.
-    ``moves=False`` skips the row moves (``n (k - 1)`` alternatives).
+    Parameters
+    ----------
+    study : Study
+        The study to scan; it is not edited (the alternatives examined are added to its
+        count of searches unless ``record=False``).
+    factor : str, optional
+        The factor to regroup in factorial and block designs (default the first).
+    term : str, optional
+        The term whose decision is scored (default: the term of ``study.decision``).
+    alpha : float, optional
+        Level of the decisions (default the study's).
+    moves : bool, default True
+        Whether to score the ``n (k - 1)`` moves of one row as well as the merges.
+    record : bool, default True
+        Whether the alternatives examined count in the study's disclosure.
+
+    Returns
+    -------
+    RegroupScan
+        The decision under each merge and each move. One-factor studies use closed-form
+        updates of the group statistics (rank sums for Kruskal-Wallis, shared
+        permutations for the permutation F); factorial and block designs cell fits.
+
+    References
+    ----------
+    Chan, T. F., Golub, G. H. and LeVeque, R. J. (1983). Algorithms for computing the
+    sample variance. The American Statistician 37(3), 242-247 (pooling group statistics).
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> study = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle")
+    >>> scan = ex.stats.regroup_scan(study, moves=False)
+    >>> scan.merge_levels, scan.merge_fits.pvalue.round(4).tolist()
+    ((('A', 'B'), ('A', 'C'), ('B', 'C')), [0.0444, 0.0, 0.2797])
     """
     if getattr(study.spec, "covariates", ()):
         raise ExplorerError(

@@ -371,17 +371,52 @@ def robustness_sweep(
     alpha: float | None = None,
     record: bool = True,
 ) -> SweepResult:
-    """Run every combination of the listed choices on ``study``; see :class:`SweepResult`.
+    """Run every combination of the listed choices on ``study``: a specification curve.
 
-    The first option of each choice is the default specification, which is the study's
-    own analysis: no outlier rule, the study's chosen test (``tests`` defaults to it,
-    then the classic F, Welch F and Kruskal-Wallis), no transform, no merge. ``term`` is
-    the term whose decision is scored (default: the term the study's decision is
-    about). ``merges`` lists level groups (of the first factor) the user considers
-    plausible to pool, e.g. ``[["N2", "N3"]]``; every subset of them is a specification.
-    Factorial and block designs are swept with the classic F test of ``term`` (the
-    other tests are one-factor tests), each specification analysed by the engine on a
-    derived view.
+    Parameters
+    ----------
+    study : Study
+        The study to scan; it is not edited (the alternatives examined are added to its
+        count of searches unless ``record=False``).
+    term : str, optional
+        The term whose decision is scored (default: the term of ``study.decision``).
+    outlier_rules : sequence of str
+        Rules for leaving rows out ('none', 'studentized', 'cooks', 'outlier_test').
+    tests : sequence of str, optional
+        Overall tests; default the study's, then the classic F, Welch F and
+        Kruskal-Wallis (factorial designs: the classic F only).
+    transforms : sequence, optional
+        Response transforms ('none', 'log', 'sqrt' or Box-Cox powers), starting from
+        the study's own.
+    merges : sequence of sequences of str
+        Level groups of the first factor that are plausible to pool, e.g.
+        ``[["N2", "N3"]]``; every subset of them is a specification.
+    alpha : float, optional
+        Level of the decisions (default the study's).
+    record : bool, default True
+        Whether the alternatives examined count in the study's disclosure.
+
+    Returns
+    -------
+    SweepResult
+        One row per distinct analysis with its p-value and decision, the share that
+        agrees with the current decision and the single choice that moves the p-value
+        most. The first option of each choice is the study's own analysis.
+
+    References
+    ----------
+    Steegen, S., Tuerlinckx, F., Gelman, A. and Vanpaemel, W. (2016). Increasing
+    transparency through a multiverse analysis. Perspect. Psychol. Sci. 11(5), 702-712.
+    Simonsohn, U., Simmons, J. P. and Nelson, L. D. (2020). Specification curve
+    analysis. Nature Human Behaviour 4, 1208-1214.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> study = ex.Study(ex.example_data("coating"), "thickness_um", "nozzle")
+    >>> sweep = ex.stats.robustness_sweep(study, outlier_rules=["none"], tests=["classic", "welch"])
+    >>> sweep.n_specifications, sweep.share_agreeing
+    (4, 1.0)
     """
     spec = study.spec
     target = scan_target(study, "robustness sweep", term)

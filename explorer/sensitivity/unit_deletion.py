@@ -124,7 +124,39 @@ def _scan(study: StudyLike, column: str, groups: list[tuple[str, np.ndarray]], r
 
 
 def unit_deletion(study: StudyLike, column: str, *, record: bool = True) -> UnitDeletionScan:
-    """Each level of ``column`` (subject, operator, part, lot, block ...) left out in turn, refitted."""
+    """Each level of ``column`` (subject, operator, part, lot, block ...) left out in turn, refitted.
+
+    Parameters
+    ----------
+    study : Study
+        The study to scan; it is not edited (the alternatives examined are added to its
+        count of searches unless ``record=False``).
+    column : str
+        The column whose levels are left out one at a time.
+    record : bool, default True
+        Whether the alternatives examined count in the study's disclosure.
+
+    Returns
+    -------
+    UnitDeletionScan
+        For each unit: rows removed, every term's p-value with its own error term, the
+        headline decision and every variance component; a status says why a refit was
+        refused.
+
+    References
+    ----------
+    Cook, R. D. and Weisberg, S. (1982). Residuals and Influence in Regression, ch. 3
+    (deletion of groups of cases).
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> study = ex.Study(ex.example_data("gauge"), "diameter_mm", ["part", "operator"],
+    ...                  random=["part", "operator"])
+    >>> scan = ex.stats.unit_deletion(study, "operator")
+    >>> scan.units
+    ('ana', 'ben', 'cho')
+    """
     view = study.view
     if column not in view.levels:
         raise ExplorerError(f"{column!r} is not a column of the study's model {list(view.levels)}")
@@ -138,7 +170,36 @@ def unit_deletion(study: StudyLike, column: str, *, record: bool = True) -> Unit
 
 
 def row_deletion(study: StudyLike, *, max_rows: int = 5000, record: bool = True) -> UnitDeletionScan:
-    """Each kept row left out in turn, refitted (models with random terms; at most ``max_rows`` rows)."""
+    """Each kept row left out in turn, refitted (models with random terms).
+
+    Parameters
+    ----------
+    study : Study
+        The study to scan; it is not edited (the alternatives examined are added to its
+        count of searches unless ``record=False``).
+    max_rows : int, default 5000
+        Refused above this many kept rows (one refit each).
+    record : bool, default True
+        Whether the alternatives examined count in the study's disclosure.
+
+    Returns
+    -------
+    UnitDeletionScan
+        As :func:`unit_deletion`, one line per row.
+
+    References
+    ----------
+    Cook, R. D. and Weisberg, S. (1982). Residuals and Influence in Regression, ch. 3.
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> study = ex.Study(ex.example_data("gauge"), "diameter_mm", ["part", "operator"],
+    ...                  random=["part", "operator"])
+    >>> scan = ex.stats.row_deletion(study)
+    >>> len(scan.units)
+    30
+    """
     pos = np.flatnonzero(study.view.kept)
     if pos.size > max_rows:
         raise ExplorerError(

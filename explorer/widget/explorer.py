@@ -644,8 +644,34 @@ class Explorer(W.VBox):
 def explore(data: pd.DataFrame | str, response: str, factors: str | Sequence[str], **kwargs: Any) -> Explorer:
     """Open the explorer on a table: ``explore(df, response="thickness_um", factors="nozzle")``.
 
-    Keyword arguments go to :class:`~explorer.study.Study` (blocks, interactions,
-    ss_type, alpha) except ``panels`` and ``max_points``, which go to :class:`Explorer`.
+    Parameters
+    ----------
+    data : pandas.DataFrame or str
+        The table, or the path of a CSV, Parquet or Excel file.
+    response : str
+        The response column.
+    factors : str or sequence of str
+        The treatment factor(s).
+    **kwargs
+        Passed to :class:`~explorer.Study` (blocks, interactions, ss_type, alpha, ...)
+        except ``panels`` and ``max_points``, which go to :class:`Explorer`.
+
+    Returns
+    -------
+    Explorer
+        The notebook widget on a new :class:`~explorer.Study`; ``.study`` is that study.
+
+    References
+    ----------
+    Montgomery, D. C. (2017). Design and Analysis of Experiments, 9th ed., ch. 3 (the
+    analysis it opens on).
+
+    Examples
+    --------
+    >>> import explorer as ex
+    >>> widget = ex.explore(ex.example_data("coating"), response="thickness_um", factors="nozzle")
+    >>> widget.study.decision.verdict
+    'differences detected'
     """
     ex_kwargs = {k: kwargs.pop(k) for k in ("panels", "max_points") if k in kwargs}
     return Explorer(Study(data, response=response, factors=factors, **kwargs), **ex_kwargs)
