@@ -47,7 +47,7 @@ from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
 from contextvars import ContextVar
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -369,7 +369,7 @@ def html_cells(frame: pd.DataFrame, *, units: str | None = None) -> tuple[list[s
     return heads, rows
 
 
-class ResultFrame(pd.DataFrame):
+class ResultFrame(pd.DataFrame):  # type: ignore[misc,unused-ignore]  # pandas is untyped without its stubs
     """A DataFrame of full-precision results that *displays* with the kit's digits.
 
     ``to_frame()`` of the kit's results returns one: computing with it uses every digit;
@@ -379,12 +379,12 @@ class ResultFrame(pd.DataFrame):
 
     @property
     def _constructor(self) -> type[pd.DataFrame]:  # derived frames are plain DataFrames
-        return pd.DataFrame
+        return cast("type[pd.DataFrame]", pd.DataFrame)
 
     def __repr__(self) -> str:
         return text_table(self)
 
-    def _repr_html_(self) -> str:  # type: ignore[override]
+    def _repr_html_(self) -> str:  # type: ignore[override,unused-ignore]
         heads, rows = html_cells(self)
         body = "".join("<tr>" + "".join(f"<td style='text-align:{'right' if num else 'left'}'>{t}</td>"
                                         for t, num in row) + "</tr>" for row in rows)
