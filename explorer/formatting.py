@@ -77,6 +77,8 @@ __all__ = [
     "show_stat",
     "significant",
     "text_table",
+    "html_cells",
+    "result_frame",
 ]
 
 #: Smallest p-value written as a number; smaller ones read "< 1e-10" (never "0").
