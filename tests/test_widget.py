@@ -91,7 +91,7 @@ def test_undo_redo_and_back_to_unedited(demo):
     e.reset_button.click()
     assert e.study.dropped == () and e.cards["partition"].html.value == base_html
     assert "class='vx-diff'" not in e.cards["compare"].html.value
-    assert "0 edit(s) in effect, 2 made in all (3 undone)" in e.header.value
+    assert "0 edit(s) in effect; 2 made in all (3 undone)" in e.header.value
     assert [s.action.split(":")[0] for s in e.history] == [
         "unedited data", "leave out row(s) 6", "leave out row(s) 70", "undo", "redo", "reset"]
 

@@ -2,8 +2,9 @@
 
 The page needs no network: styles are inline, charts are inline SVG, there is no
 script, and a content-security policy in the page forbids loading anything else. It
-shows, in order: the scenario and the data's provenance, the disclosure count, the
-cautions, baseline and current results side by side, every edit with its reason and
+shows, in order: the scenario, the decision card (unedited and current decisions, what
+changed, the disclosure count, one line per caution), the data's provenance, the
+cautions in full, baseline and current results side by side, every edit with its reason and
 time, the test battery, the sensitivity summary and the replay code. The saved study
 (the same JSON as ``study.save``) is embedded, so the edit log can be taken out again.
 """
@@ -19,6 +20,7 @@ from typing import TYPE_CHECKING
 from ..engine.errors import ExplorerError
 from ..engine.tables import esc
 from ..formatting import format_value, heading, scale
+from ..study.decision_card import DECISION_CARD_CSS
 from ..study.output_files import check_output_path, write_text_atomic
 from .cautions import cautions_html
 from .extras import Part, battery_part, planned_part, sensitivity_part
@@ -212,12 +214,13 @@ def _report_html(study: "Study", *, title: str | None, scenario: str | None, cha
     planned = planned_part(study, charts=charts)
     sensitivity = sensitivity_part(study, charts=charts)
     disclosure = study.disclosure  # read after the sensitivity scan, which may add to it
+    card = study.decision_card()  # likewise: its searching count includes the scans above
     now = datetime.now(timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
     saved = json.dumps(study.to_dict(), indent=1).replace("<", "\\u003c")  # inert inside <script>
     code = study_to_code(study)
     sections = [
         f"<header><h1>{esc(title)}</h1><p class='scenario'>{esc(scenario)}</p>"
-        f"<p class='disclosure'><strong>Disclosure:</strong> {esc(disclosure.sentence())}.</p></header>",
+        f"<section id='decision'>{card.html(caution_links='#caution-')}</section></header>",
         f"<section id='provenance'><h2>Data and provenance</h2>{_provenance(study)}</section>",
         f"<section id='cautions'><h2>Cautions</h2>{cautions_html()}</section>",
         "<section id='comparison'><h2>Baseline and current results</h2>" + _headline(study)
@@ -241,7 +244,7 @@ def _report_html(study: "Study", *, title: str | None, scenario: str | None, cha
         "<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
         f"<meta http-equiv='Content-Security-Policy' content=\"{CSP}\">"
         "<meta name='viewport' content='width=device-width, initial-scale=1'>"
-        f"<title>{esc(title)}</title><style>{STYLE}</style></head><body>"
+        f"<title>{esc(title)}</title><style>{STYLE}{DECISION_CARD_CSS}</style></head><body>"
         + "\n".join(sections)
         + "</body></html>\n"
     )

@@ -6,6 +6,7 @@ The top of the statistical layers: it may import engine, inference and sensitivi
 
 from ..engine.disclosure import Disclosure
 from .decision import Decision, TermVerdict, decide
+from .decision_card import DecisionCard
 from .study import Study, StudyEvent
 
-__all__ = ["Study", "StudyEvent", "Disclosure", "Decision", "TermVerdict", "decide"]
+__all__ = ["Study", "StudyEvent", "Disclosure", "Decision", "DecisionCard", "TermVerdict", "decide"]

@@ -30,6 +30,7 @@ from ..engine.transforms import with_transform
 from ..engine.view import DataView, initial_view
 from ..formatting import Scale
 from .decision import Decision, decide
+from .decision_card import DecisionCard, decision_card
 from .output_files import write_text_atomic
 from .persistence import check_study_doc, describe_mismatch, edits_from_doc, read_study_file, study_to_dict
 from .planned import PlannedAnalyses, planned_from_doc
@@ -196,6 +197,11 @@ class Study(PlannedAnalyses):
         if hit is None or hit[0] is not res:  # a redo branch or a new test made other results
             hit = cache[pos] = (res, decide(res))
         return hit[1]
+
+    def decision_card(self) -> DecisionCard:
+        """The unedited and current decisions, what changed, the searching so far and the cautions, as they
+        are now (see :mod:`.decision_card`); the explorer and the report show it first."""
+        return decision_card(self)
 
     def set_test(self, test: str) -> Decision:
         """Read the decision from another overall test; recorded as a specification choice.

@@ -16,24 +16,11 @@ from explorer.study.decision import Decision
 from ..engine.tables import esc
 from ..formatting import format_value, heading, show_measure, show_share
 
-__all__ = ["CAUTIONS_HTML", "comparison_html", "disclosure_html", "partition_html"]
-
-CAUTIONS_HTML = (
-    "<div class='vx-small' style='border-left:3px solid #b35c00;padding:2px 8px;max-width:1100px'>"
-    "<b>Before you rely on an edit:</b> leaving data out needs a documented reason, and the unedited "
-    "result stays in view. Checking which rows or regroupings change the decision shows how fragile it is; "
-    "it is not a licence to pick the analysis that gives the wanted answer (the count of alternatives tried "
-    "is shown with every result). Decisions on safety, health, regulation or product release follow your "
-    "organisation's procedures and qualified statistical review. The F test assumes independent "
-    "observations, normal residuals and equal variances: read the model checks before the p-value.</div>"
-)
-
+__all__ = ["comparison_html", "disclosure_html", "partition_html"]
 
 def disclosure_html(study: Study) -> str:
-    d = study.disclosure
-    return (f"<span class='vx-disclosure'><b>Searching so far:</b> {d.edits_in_effect} edit(s) in effect, "
-            f"{d.edits_made} made in all ({d.undos} undone), {d.specifications} alternative analyses examined"
-            "</span>")
+    """The searching so far, in the words of every surface (read from the study now)."""
+    return (f"<span class='vx-disclosure'><b>Searching so far:</b> {esc(study.disclosure.sentence())}</span>")
 
 
 def partition_html(results: Results, decision: Decision) -> str:

@@ -34,7 +34,6 @@ from . import (  # noqa: F401  (register the built-in panels)
     mixed_panels,
     planned_panels,
 )
-from .compare import CAUTIONS_HTML, disclosure_html
 from .host import PanelCard
 from .panels import PanelContext, Settings, panels_in_order
 from .resize import ResizeRelay
@@ -184,8 +183,8 @@ class Explorer(W.VBox):
         return box
 
     def _layout(self) -> list[W.Widget]:
-        """Header, status, then the body: controls beside the results (one column when narrow, see
-        :mod:`.stylesheet`), then the cautions."""
+        """The decision card (with the cautions), status, then the body: controls beside the results (one
+        column when narrow, see :mod:`.stylesheet`)."""
         controls = W.VBox([
             self._section("Model", self.response_picker, self.factor_picker, self.alpha_picker,
                           self.omnibus_picker, self.comparison_picker),
@@ -217,7 +216,7 @@ class Explorer(W.VBox):
         content.add_class("vx-content")
         body = W.Box([controls, content])
         body.add_class("vx-body")
-        return [W.HTML(STYLESHEET), ResizeRelay(), self.header, self.status, body, W.HTML(CAUTIONS_HTML)]
+        return [W.HTML(STYLESHEET), ResizeRelay(), self.header, self.status, body]
 
     # ================================================================= state
     def _context(self) -> PanelContext:
@@ -592,15 +591,8 @@ class Explorer(W.VBox):
             self._status("Some panels could not be drawn: " + "; ".join(errors), "warn")
 
     def _refresh_header(self) -> None:
-        res = self.study.results
-        s = self.study.spec
-        self.header.value = (
-            f"<div class='vx-banner'><b>{esc(s.response)} by {esc(' × '.join(s.factors))}</b> "
-            f"({res.n_used} rows in analysis, {len(self.study.dropped)} left out). "
-            f"<b>Current view:</b> {esc(self.study.decision.sentence())}. "
-            f"<b>Unedited data:</b> {esc(self.study.baseline_decision.sentence())}."
-            f"<br>{disclosure_html(self.study)}</div>"
-        )
+        """The decision card (:mod:`explorer.study.decision_card`), its disclosure count read now."""
+        self.header.value = self.study.decision_card().html()
 
     def _refresh_controls(self) -> None:
         study = self.study

@@ -10,6 +10,8 @@ text and, when their card is too narrow for their columns, stack each row into
 
 from __future__ import annotations
 
+from explorer.study.decision_card import DECISION_CARD_CSS
+
 __all__ = ["CONTROLS_WIDTH", "ONE_COLUMN_BELOW", "STACK_WIDTH_PER_COLUMN", "STYLESHEET", "stylesheet"]
 
 #: Width of the controls column in the two-column layout (px).
@@ -96,6 +98,7 @@ def stylesheet() -> str:
 .vx-card-title {{ font-weight: 700; font-size: 14px; margin: 4px 0 2px 0; }}
 .vx-banner {{ font-size: 13px; line-height: 1.45; }}
 {_stacking_rules()}
+{DECISION_CARD_CSS}
 </style>
 """
 

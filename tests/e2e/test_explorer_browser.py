@@ -120,7 +120,7 @@ def test_click_drop_and_undo_in_jupyterlab(lab, page):
     page.locator(".vx-btn-undo").click()
     expect(_f_cell(page)).to_have_text(f_before)
     expect(compare.locator("tr.vx-diff")).to_have_count(0)
-    expect(page.locator(".vx-header")).to_contain_text("0 edit(s) in effect, 1 made in all (1 undone)")
+    expect(page.locator(".vx-header")).to_contain_text("0 edit(s) in effect; 1 made in all (1 undone)")
     expect(resid_point).to_have_count(1)
     _shot(page, "explorer-after-undo.png")
 

@@ -111,3 +111,38 @@ def test_explorer_fits_800_1100_1500_with_file_browser_open(lab, page):
         print(f"\n[layout] {width}px window: explorer {box['width']:.0f} px wide")
     assert not problems, "elements wider than their box:\n" + "\n".join(
         f"{k}: {v}" for k, vs in problems.items() for v in vs[:8])
+
+
+def test_decision_card_is_in_the_first_screen_at_1100(lab, page):
+    """At 1,100 x 800 px with the file browser open, the decision card is wholly in the window the
+    notebook opens in, nothing in it overflows, and a caution line opens to its full text."""
+    from playwright.sync_api import expect
+
+    base, folder = lab
+    name = _notebook(folder).replace("layout", "card")
+    (folder / "layout.ipynb").rename(folder / name)
+    page.set_viewport_size({"width": 1100, "height": 800})
+    page.goto(f"{base}/lab/tree/{name}?token={TOKEN}&reset")
+    page.wait_for_function(KERNEL_IDLE_JS, polling=250)
+    page.evaluate("() => { window.jupyterapp.commands.execute('filebrowser:activate'); "
+                  "window.jupyterapp.commands.execute('notebook:run-all-cells'); }")  # fire, don't await
+    card = page.locator(".vx-explorer .vx-dcard")
+    expect(card).to_be_visible()
+    expect(page.locator(".vx-chart-observations .mark-symbol path").first).to_be_visible()
+    _settle(page)
+    page.evaluate("() => { const s = document.querySelector('.jp-WindowedPanel-outer, .jp-Notebook'); "
+                  "if (s) s.scrollTop = 0; }")  # the notebook as it opens: top of the first cell
+    page.wait_for_timeout(300)
+    box = card.bounding_box()
+    print(f"\n[card] 1100x800 window: card at y {box['y']:.0f}-{box['y'] + box['height']:.0f} px, "
+          f"{box['width']:.0f} px wide")
+    assert box["y"] >= 0 and box["y"] + box["height"] <= 800, f"the card is not wholly in the first screen: {box}"
+    expect(card).to_contain_text("The 3 edit(s) in effect change the decision.")
+    expect(card).to_contain_text("alternative analyses examined")
+    found = [p for p in page.evaluate(OVERFLOW_JS) if "vx-dcard" in p]
+    assert not found, "card elements wider than their box:\n" + "\n".join(found)
+    ARTIFACTS.mkdir(exist_ok=True)
+    page.screenshot(path=str(ARTIFACTS / "card-1100-first-screen.png"))
+    card.locator("summary").first.click()
+    expect(card.locator("details").first).to_contain_text("An observation is not an outlier because it is inconvenient")
+    card.screenshot(path=str(ARTIFACTS / "card-1100-caution-open.png"))
