@@ -6,8 +6,9 @@ Phases, each in its own process (so each peak resident memory is its own):
                    letters are not built above 150 levels (notes say so).
   ours-pairwise-t  the battery, then reading battery.pairwise_t (Holm, 1,999,000 pairs).
   ours-tukey       the battery, then reading battery.tukey (studentized range per pair).
-  ours-games-howell (with --all) the battery, then battery.games_howell (a quantile per
-                   pair: minutes at this size).
+  ours-games-howell (with --all) the battery, then battery.games_howell (a Welch df per
+                   pair: two million tail probabilities; the quantiles are interpolated
+                   in log df from a few dozen solves).
   ref-omnibus      what scipy does for the battery's eager parts on the same groups:
                    f_oneway, f_oneway(equal_var=False), kruskal, levene(center='median'),
                    bartlett.
@@ -18,7 +19,11 @@ the default threads; ours runs pinned. Rounds are interleaved; the script prints
 median wall time over rounds, each phase's largest peak resident memory, and the load
 average before and after.
 
-Run: python tests/benchmarks/bench_many_levels.py [--rounds 3] [--all]
+With --before DIR (a checkout of an earlier version of the package), the Games-Howell
+phase runs with that version and with this one, interleaved, and the script prints the
+ratio of the medians (earlier / now) with the load average.
+
+Run: python tests/benchmarks/bench_many_levels.py [--rounds 3] [--all] [--before DIR]
 """
 
 from __future__ import annotations
@@ -91,8 +96,10 @@ def _phase(name: str) -> dict:
     return out
 
 
-def _run(name: str, pinned: bool) -> dict:
+def _run(name: str, pinned: bool, package_dir: str | None = None) -> dict:
     env = dict(os.environ)
+    if package_dir is not None:
+        env["PYTHONPATH"] = package_dir
     if pinned:
         env.update({v: "1" for v in THREAD_VARS})
     else:
@@ -107,10 +114,14 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("--rounds", type=int, default=3)
     ap.add_argument("--all", action="store_true", help="also read the Games-Howell table (minutes)")
+    ap.add_argument("--before", help="folder holding an earlier version of the package (Games-Howell only)")
     ap.add_argument("--phase", help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.phase:
         print(json.dumps(_phase(args.phase)))
+        return
+    if args.before:
+        _before_after(args.before, args.rounds)
         return
     print(f"{LEVELS} levels, {ROWS} rows; load average before: {os.getloadavg()}")
     plan = [("ours-battery", True), ("ref-omnibus", True), ("ref-omnibus", False),
@@ -137,6 +148,22 @@ def main() -> None:
     print(f"ref-pairwise-t (1 thread) / ours-pairwise-t: {med['ref-pairwise-t: pairwise_t'] / pt:.2f}x "
           f"(default threads {med['ref-pairwise-t (default threads): pairwise_t'] / pt:.2f}x)")
     print(f"load average after: {os.getloadavg()}")
+
+
+def _before_after(before: str, rounds: int) -> None:
+    """Games-Howell at 2,000 levels with an earlier version and with this one, interleaved rounds."""
+    here = str(HERE.parent.parent)
+    print(f"{LEVELS} levels, {ROWS} rows, Games-Howell read; load average before: {os.getloadavg()}")
+    runs: dict[str, list[dict]] = {"earlier": [], "now": []}
+    for _ in range(rounds):
+        runs["earlier"].append(_run("ours-games-howell", True, before))
+        runs["now"].append(_run("ours-games-howell", True, here))
+    med = {k: statistics.median(r["games_howell"] for r in v) for k, v in runs.items()}
+    for k, v in runs.items():
+        each = ", ".join(f"{r['games_howell']:.1f}" for r in v)
+        print(f"{k:8s} games_howell median {med[k]:9.2f} s  peak {max(r['peak_mib'] for r in v):6.0f} MiB  "
+              f"(rounds: {each})")
+    print(f"earlier / now: {med['earlier'] / med['now']:.1f}x; load average after: {os.getloadavg()}")
 
 
 if __name__ == "__main__":
