@@ -2,13 +2,16 @@
 
 ``variance-explorer app STUDY.json --data DATA`` serves a one-cell notebook with Voila on
 127.0.0.1; the cell calls :func:`app_page`, which loads the saved study on its data and
-shows the :class:`~explorer.widget.Explorer` with two buttons below it: save the edit
-log (to a new file beside the original, so the colleague's review never overwrites the
-sender's file) and write the offline report.
+shows, above the :class:`~explorer.widget.Explorer`, two buttons: save the edit log (to a
+new file beside the original, so the colleague's review never overwrites the sender's
+file) and write the offline report. Each written file is then offered as a download link
+(the file's bytes in a ``data:`` address), so a colleague on a remote or headless server
+gets the file in their own browser rather than a path on the server.
 """
 
 from __future__ import annotations
 
+import base64
 from collections.abc import Callable
 from pathlib import Path
 
@@ -19,7 +22,7 @@ from .engine.tables import esc
 from .study import Study
 from .widget import Explorer
 
-__all__ = ["app_page", "review_paths"]
+__all__ = ["app_page", "download_link", "review_paths"]
 
 
 def review_paths(study_file: str | Path) -> tuple[Path, Path]:
@@ -39,8 +42,20 @@ def review_paths(study_file: str | Path) -> tuple[Path, Path]:
     raise ExplorerError(f"too many reviews of {p.name!r} in its folder; move some away")
 
 
+_MEDIA_TYPES = {".json": "application/json", ".html": "text/html"}
+
+
+def download_link(path: str | Path, label: str) -> str:
+    """An ``<a download>`` link holding the file's bytes (no server route, no server path shown)."""
+    p = Path(path)
+    media = _MEDIA_TYPES.get(p.suffix.lower(), "application/octet-stream")
+    payload = base64.b64encode(p.read_bytes()).decode("ascii")
+    return (f"<a class='vx-app-download' download='{esc(p.name)}' href='data:{media};base64,{payload}'>"
+            f"{esc(label)} ({esc(p.name)})</a>")
+
+
 def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
-    """The app page: a title line, the explorer on the saved study, and save/report buttons."""
+    """The app page: a title line, the save/report buttons with their download links, then the explorer."""
     study = Study.load(study_file, data=data)
     explorer = Explorer(study)
     log_path, report_path = review_paths(study_file)
@@ -57,13 +72,14 @@ def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
     status = W.HTML()
     status.add_class("vx-app-status")
 
-    def run(action: str, write: Callable[[], object], done: Callable[[], str]) -> None:
+    def run(action: str, write: Callable[[], object], done: Callable[[], str], path: Path, label: str) -> None:
         try:
             write()
+            link = download_link(path, label)
         except (OSError, ExplorerError) as exc:
             status.value = f"<span class='vx-status-error'>{action}: {esc(str(exc))}</span>"
             return
-        status.value = f"<span class='vx-status-ok'>{esc(done())}</span>"
+        status.value = f"<span class='vx-status-ok'>{esc(done())}</span> {link}"
 
     written: set[Path] = set()  # files this page wrote: it may replace those, and nothing else
 
@@ -72,11 +88,15 @@ def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
         written.add(path)
 
     save.on_click(lambda _: run("Not saved", lambda: write_once(log_path, lambda again: explorer.study.save(
-        log_path, overwrite=again)), lambda: f"Saved {len(explorer.study.edits)} edit(s) to {log_path}"))
+        log_path, overwrite=again)), lambda: f"Saved {len(explorer.study.edits)} edit(s).", log_path,
+        "Download the edit log"))
     report.on_click(lambda _: run("No report", lambda: write_once(report_path, lambda again: explorer.study.report(
-        report_path, overwrite=again)), lambda: f"Wrote the report to {report_path}"))
-    page = W.VBox([title, explorer, W.HBox([save, report, status])])
+        report_path, overwrite=again)), lambda: "Wrote the report.", report_path, "Download the report"))
+    actions = W.HBox([save, report, status], layout=W.Layout(flex_flow="row wrap", align_items="center"))
+    actions.add_class("vx-app-actions")
+    page = W.VBox([title, actions, explorer])
     page.add_class("vx-app")
     page.explorer = explorer  # type: ignore[attr-defined]
     page.review_files = (log_path, report_path)  # type: ignore[attr-defined]
+    page.actions = actions  # type: ignore[attr-defined]
     return page

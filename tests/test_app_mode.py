@@ -6,6 +6,7 @@ and saves the reviewed log. Drives Debian's chromium with Playwright (no browser
 
 from __future__ import annotations
 
+import base64
 import os
 import re
 import signal
@@ -84,15 +85,21 @@ def test_app_page_buttons_save_the_review_and_write_the_report(tmp_path):
     saved = study.save(tmp_path / "coating.study.json")
     page = app_page(saved, DEMO)
     page.explorer.study.drop([70], reason=REASON_70)
-    save, report, status = page.children[-1].children
+    assert page.children[1] is page.actions  # the buttons are above the explorer
+    save, report, status = page.actions.children
     save.click()
     assert "Saved 2 edit(s)" in status.value
     log_path, report_path = page.review_files
+    link = re.search(r"<a class='vx-app-download' download='([^']+)' href='data:application/json;base64,([^']+)'",
+                     status.value)
+    assert link and link.group(1) == log_path.name and str(tmp_path) not in status.value
+    assert base64.b64decode(link.group(2)) == log_path.read_bytes()  # the link holds the saved file
     assert log_path.name == "coating-reviewed.study.json"
     assert ex.Study.load(log_path, DEMO).results.partition == page.explorer.study.results.partition
     assert ex.Study.load(saved, DEMO).edits[-1].reason == REASON_6  # the sender's file is untouched
     report.click()
     assert report_path.exists() and REASON_70 in report_path.read_text(encoding="utf-8")
+    assert f"download='{report_path.name}' href='data:text/html;base64," in status.value
     page.explorer.study.undo()
     save.click()  # the page replaces its own file
     report.click()
@@ -136,8 +143,18 @@ def test_app_shows_saved_state_takes_an_edit_and_saves(served, tmp_path):
         expect(header).to_contain_text("113 rows in analysis, 1 left out")
         expect(table).to_contain_text(f_after)
         # The reviewed log is saved beside the original and replays to the same state.
-        page.get_by_role("button", name="Save the edit log").click()
+        save_button = page.get_by_role("button", name="Save the edit log")
+        assert save_button.bounding_box()["y"] < header.bounding_box()["y"]  # the buttons come first
+        save_button.click()
         expect(page.locator(".vx-app-status")).to_contain_text("Saved 3 edit(s)")
+        # The file is offered as a download in the browser, not as a path on the server.
+        link = page.locator(".vx-app-status a.vx-app-download")
+        expect(link).to_have_attribute("download", "coating-reviewed.study.json")
+        assert str(saved.parent) not in page.locator(".vx-app-status").inner_text()
+        with page.expect_download() as got:
+            link.click()
+        fetched = Path(got.value.path()).read_bytes()
+        assert fetched == saved.with_name("coating-reviewed.study.json").read_bytes()
         page.screenshot(path=str(tmp_path / "app.png"), full_page=True)
         ctx.close()
     reviewed = saved.with_name("coating-reviewed.study.json")
