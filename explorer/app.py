@@ -60,7 +60,7 @@ def app_page(study_file: str | Path, data: str | Path) -> W.VBox:
     explorer = Explorer(study)
     log_path, report_path = review_paths(study_file)
     title = W.HTML(
-        f"<h2 style='margin:4px 0'>{esc(study.spec.response)} by {esc(', '.join(study.spec.factors))}</h2>"
+        f"<h2 class='vx-app-title'>{esc(study.spec.response)} by {esc(', '.join(study.spec.factors))}</h2>"
         f"<div class='vx-small'>Saved study <code>{esc(Path(study_file).name)}</code> on data "
         f"<code>{esc(Path(data).name)}</code>: {len(study.edits)} edit(s) loaded. Pick points, write a "
         "reason, edit; then save your review.</div>"

@@ -34,13 +34,14 @@ never leaks between threads or into another study's rendering); there is no glob
 option. With units, headings of measure columns read ``mean (µm)`` and sums of squares
 ``sum of squares (µm²)``.
 
-This module imports only numpy and pandas and nothing of the kit, so that every layer
-(engine included) may use it.
+This module imports numpy, pandas and, of the kit, only the HTML renderer's leaf
+(:mod:`explorer.rendering`, which imports nothing of the kit), so that every layer (engine
+included) may use it. ``esc``, the one escaping helper, lives in that leaf and is
+re-exported here.
 """
 
 from __future__ import annotations
 
-import html
 import math
 import re
 from collections.abc import Iterator, Mapping
@@ -51,6 +52,8 @@ from typing import Any, cast
 
 import numpy as np
 import pandas as pd
+
+from .rendering import esc, output, table
 
 __all__ = [
     "P_FLOOR",
@@ -136,13 +139,6 @@ def measurement_decimals(values: Any, *, most: int = 6) -> int | None:
         if np.all(err <= 1e-7 * np.maximum(1.0, np.abs(scaled)) + 1e-9):
             return d
     return None
-
-
-def esc(value: object) -> str:
-    """The one escaping helper: any value as HTML text (``& < > " '`` escaped), safe in content and
-    quoted attributes. Every user string (names, levels, row ids, reasons, paths) goes through it
-    (``explorer.engine.tables.esc`` is this function)."""
-    return html.escape(str(value), quote=True)
 
 
 # --------------------------------------------------------------------------- single values
@@ -387,11 +383,8 @@ class ResultFrame(pd.DataFrame):  # type: ignore[misc,unused-ignore]  # pandas i
         return text_table(self)
 
     def _repr_html_(self) -> str:  # type: ignore[override,unused-ignore]
-        heads, rows = html_cells(self)
-        body = "".join("<tr>" + "".join(f"<td style='text-align:{'right' if num else 'left'}'>{t}</td>"
-                                        for t, num in row) + "</tr>" for row in rows)
-        return (f"<table class='vx-table vx-cols-{len(heads)}'><thead><tr>"
-                + "".join(f"<th>{h}</th>" for h in heads) + f"</tr></thead><tbody>{body}</tbody></table>")
+        """The frame through the one renderer (:mod:`explorer.rendering`), numbers by :func:`format_frame`."""
+        return output(lambda: table(*html_cells(self)))
 
 
 def result_frame(data: Any = None, *, roles: Mapping[str, str] | None = None, **kwargs: Any) -> ResultFrame:

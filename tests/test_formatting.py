@@ -90,7 +90,7 @@ def test_result_frames_compute_with_every_digit_and_display_the_kits_digits():
     assert frame["sum of squares"].sum() == pytest.approx(660.2191)
     text = repr(frame)
     assert "609.32" in text and "3.063" in text and "0.0311" in text and "609.317" not in text
-    assert "<td style='text-align:right'>0.0311</td>" in frame._repr_html_()
+    assert "<td class='vx-num' data-label='p-value'>0.0311</td>" in frame._repr_html_()
     derived = frame[frame["df"] > 5]
     assert type(derived) is pd.DataFrame  # selections are ordinary frames
 

@@ -32,7 +32,8 @@ RANKS: dict[str, int] = {
     "app_server": 5,  # Voila with the app's locks; imports no kit module, the cli starts it
     "notebooks": 5,  # builds notebooks whose cells import the kit (as text, not as imports)
     "_version": 0,  # the version string, readable by every layer
-    "formatting": -1,  # the one number formatter: imports nothing of the kit, below the engine
+    "formatting": -1,  # the one number formatter: imports only the renderer's leaf, below the engine
+    "rendering": -2,  # the one HTML renderer and its stylesheet: imports nothing of the kit
     "__main__": 7,
     "__init__": 8,  # ``explorer`` itself re-exports the public surface
     "stats": 8,  # the documented public module of statistical functions, a facade over the layers

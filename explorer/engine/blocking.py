@@ -27,6 +27,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from ..formatting import show_share, show_ss
+from ..rendering import footnote, html_repr
 from .tables import esc
 
 __all__ = ["BlockingEfficiency", "blocking_efficiency"]
@@ -44,13 +45,13 @@ class BlockingEfficiency:
     df_resid_unblocked: int
     notes: tuple[str, ...] = ()
 
+    @html_repr
     def _repr_html_(self) -> str:
         text = (
             f"Relative efficiency of blocking: {show_share(self.relative_efficiency)} (residual mean square "
             f"{show_ss(self.ms_resid_blocked)} with blocks against an estimated {show_ss(self.ms_resid_unblocked)} without)"
         )
-        notes = "".join(f"<div style='font-size:90%;color:#555'>{esc(n)}</div>" for n in self.notes)
-        return f"<div>{esc(text)}</div>{notes}"
+        return f"<div>{esc(text)}</div>" + "".join(footnote(n) for n in self.notes)
 
 
 def blocking_efficiency(

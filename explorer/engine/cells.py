@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from ..formatting import result_frame
+from ..rendering import html_repr
 from .groupstats import GroupStats
 from .tables import html_table
 
@@ -152,6 +153,7 @@ class CellTable:
         """Cell counts as a two-way table of ``rows`` by ``cols`` (summed over other columns)."""
         return self.to_frame().pivot_table(index=rows, columns=cols, values="n", aggfunc="sum", fill_value=0, sort=False)
 
+    @html_repr
     def _repr_html_(self) -> str:
         caption = "Cells: " + ("balanced" if self.balanced else "unbalanced") + " (count, raw and fitted mean of each)"
         return html_table(self.to_frame(), caption)

@@ -36,6 +36,7 @@ import numpy as np
 import pandas as pd
 
 from ..formatting import show_p, show_stat
+from ..rendering import html_repr
 from .cells import CellTable, layout_cells
 from .dataset import Dataset, RowId
 from .design import cell_design, fitted_terms, sequential_order
@@ -110,6 +111,7 @@ class CovariateSummary:
                              "common slope": self.slope, "standard error": self.se, "t": self.statistic,
                              "df": np.full(len(self.names), self.df), "p-value": self.pvalue})
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), "Covariates: common slopes", (self.slope_check.sentence(),))
 

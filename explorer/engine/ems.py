@@ -40,6 +40,7 @@ import numpy as np
 import pandas as pd
 
 from ..formatting import result_frame, show_coefficient
+from ..rendering import html_repr
 from .cellfit import CellFit, model_comparisons
 from .design import Term, term_columns
 from .spec import ModelSpec
@@ -103,6 +104,7 @@ class ExpectedMeanSquares:
         frame["expected mean square"] = [self.expression(r) for r in self.rows]
         return result_frame(frame)
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame()[["source", "random", "expected mean square"]],
                           f"Expected mean squares ({self.method})", ())

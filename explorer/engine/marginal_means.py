@@ -31,6 +31,7 @@ import numpy as np
 import pandas as pd
 
 from ..formatting import result_frame
+from ..rendering import html_repr
 from .cellfit import CellFit
 from .distributions import t_ppf
 from .pairwise import PairwiseTable, simultaneous_pairs
@@ -90,6 +91,7 @@ class MarginalMeans:
             }
         )
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), f"Marginal (least-squares) means of {self.factor}", self.notes)
 

@@ -27,6 +27,7 @@ import numpy as np
 import pandas as pd
 
 from ..formatting import result_frame
+from ..rendering import html_repr
 from .distributions import t_ppf, t_two_sided_p
 from .errors import DesignError, ExplorerError, preview
 from .numerics import read_only_copy
@@ -108,6 +109,7 @@ class PairwiseTable:
         side = "" if self.alternative == "two-sided" else f", one-sided ({self.alternative})"
         return f"{self.method} comparisons{side}: {self.adjustment}, family of {self.family_size}"
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), self.title, self.notes)
 

@@ -20,6 +20,7 @@ from ..formatting import (
     show_stat,
     text_table,
 )
+from ..rendering import block, html_repr, note
 from .dataset import RowId
 from .errors import ExplorerError
 from .groupstats import GroupStats
@@ -81,6 +82,7 @@ class LevelTable:
             frame.attrs.update(units=self.display.units, decimals=self.display.measure_decimals)
         return frame
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), f"Levels of {self.factor}", self.notes)
 
@@ -105,6 +107,7 @@ class TwoSampleT:
     def confidence_interval(self) -> tuple[float | None, float | None]:
         return (self.ci_low, self.ci_high)
 
+    @html_repr
     def _repr_html_(self) -> str:
         return (
             f"<div>Pooled t test, {esc(self.first)} − {esc(self.second)}: difference "
@@ -242,6 +245,7 @@ class Results:
         factors = " × ".join(self.spec.factors)
         return f"<Results {self.spec.response} by {factors}: n = {self.n_used}; print() for the tables>"
 
+    @html_repr
     def _repr_html_(self) -> str:
         with scale(of=self.display_scale()):
             return self._html()
@@ -258,5 +262,5 @@ class Results:
         parts.extend(x._repr_html_() for x in extras if x is not None)
         if self.two_groups is not None:
             parts.append(self.two_groups._repr_html_())
-        parts.extend(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
-        return "<div class='vx-results'>" + "".join(parts) + "</div>"
+        parts.extend(note(n) for n in self.notes)
+        return block("results", parts)

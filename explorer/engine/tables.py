@@ -13,6 +13,7 @@ from typing import Any
 import pandas as pd
 
 from ..formatting import esc, format_value, html_cells, result_frame
+from ..rendering import html_repr, table
 
 __all__ = ["TermRow", "AnovaTable", "COLUMNS", "ERROR_COLUMNS", "html_table", "fmt", "esc"]
 
@@ -35,35 +36,23 @@ def fmt(x: Any, digits: int | None = None) -> str:
 MAX_HTML_ROWS = 500
 
 
-def html_table(frame: pd.DataFrame, caption: str = "", notes: tuple[str, ...] = (), digits: int | None = None) -> str:
-    """A small self-contained HTML table (no styling framework needed).
+def html_table(frame: pd.DataFrame, caption: str = "", notes: tuple[str, ...] = (), digits: int | None = None, *,
+               spanning: tuple[tuple[str, str], ...] = ()) -> str:
+    """A result's table through the one renderer (:func:`explorer.rendering.table`).
 
     Numbers go through the one formatter (:func:`explorer.formatting.format_frame`: each
     column by its role, units in the headings under a display scale). Each cell carries its
     column heading (``data-label``) and the table its column count (``vx-cols-N``), so a
     narrow page can stack a row into "heading: value" lines. At most
-    :data:`MAX_HTML_ROWS` rows are shown, with a note saying how many there are.
-    ``digits`` is ignored.
+    :data:`MAX_HTML_ROWS` rows are shown, with a note saying how many there are;
+    ``spanning`` rows (label, sentence) follow the table's rows. ``digits`` is ignored.
     """
     if len(frame) > MAX_HTML_ROWS:
         notes = (f"Showing the first {MAX_HTML_ROWS:,} of {len(frame):,} rows; the whole table is in to_frame().",
                  *notes)
         frame = frame.iloc[:MAX_HTML_ROWS]
     heads, rows = html_cells(frame)
-    head = "".join(f"<th>{c}</th>" for c in heads)
-    body = []
-    for row in rows:
-        cells = "".join(
-            f"<td class='vx-num' data-label='{lab}'>{text}</td>" if num else f"<td data-label='{lab}'>{text}</td>"
-            for lab, (text, num) in zip(heads, row)
-        )
-        body.append(f"<tr>{cells}</tr>")
-    cap = f"<caption style='text-align:left;font-weight:600'>{esc(caption)}</caption>" if caption else ""
-    foot = "".join(f"<div style='font-size:90%;color:#555'>{esc(n)}</div>" for n in notes)
-    return (
-        f"<table class='vx-table vx-cols-{len(heads)}'>{cap}<thead><tr>{head}</tr></thead>"
-        f"<tbody>{''.join(body)}</tbody></table>{foot}"
-    )
+    return table(heads, rows, caption=caption, notes=notes, spanning=spanning)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -134,15 +123,8 @@ class AnovaTable:
         """The table's caption as one line of text."""
         return f"{self.title} ({self.ss_caption})"
 
+    @html_repr
     def _repr_html_(self) -> str:
-        caption = self.title_line()
-        out = html_table(self.to_frame(), caption, self.notes)
-        if self.aliased:  # named inside the table, below the fitted terms
-            width = len(self.to_frame().columns)
-            extra = "".join(
-                f"<tr><td>{esc(name)}</td><td colspan='{width - 1}'>not estimable: aliased with "
-                f"{esc(other)} (left out of the fit)</td></tr>"
-                for name, other in self.aliased
-            )
-            out = out.replace("</tbody>", extra + "</tbody>", 1)
-        return out
+        # aliased terms are named inside the table, below the fitted terms
+        return html_table(self.to_frame(), self.title_line(), self.notes, spanning=tuple(
+            (name, f"not estimable: aliased with {other} (left out of the fit)") for name, other in self.aliased))

@@ -43,6 +43,7 @@ import numpy as np
 import pandas as pd
 
 from ..formatting import result_frame
+from ..rendering import html_repr
 from .noncentral_f import confidence_matching_test, f_test_power, noncentrality_interval
 from .tables import AnovaTable, html_table
 
@@ -119,6 +120,7 @@ class TermEffects:
             roles={f"{pct}CI low (partial)": "share", f"{pct}CI high (partial)": "share"},
         )
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), f"Effect size of each term (type {self.ss_type} sums of squares)", self.notes)
 

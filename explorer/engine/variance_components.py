@@ -38,6 +38,7 @@ import pandas as pd
 from scipy import special
 
 from ..formatting import result_frame
+from ..rendering import html_repr
 from .cellfit import CellFit
 from .design import Term
 from .ems import RESIDUAL, ExpectedMeanSquares, is_random, random_indicators
@@ -162,6 +163,7 @@ class VarianceComponents:
             f"{pct} CI high": pd.array([c.ci_high for c in self.components], dtype="Float64"),
         })
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), f"Variance components ({self.method}; intervals: {self.interval_method})",
                           self.notes)

@@ -40,6 +40,7 @@ from ..engine.groupstats import group_stats
 from ..engine.spec import TEST_LABELS, alpha_or
 from ..engine.tables import esc
 from ..formatting import result_frame, show_df, show_p, show_stat
+from ..rendering import footnote, html_repr, note
 from .oneway_inputs import row_sample_notes
 from .result_extras import WithExtras
 
@@ -81,8 +82,9 @@ class CheckResult(WithExtras):
     def to_frame(self) -> pd.DataFrame:
         return result_frame([self.row()])
 
+    @html_repr
     def _repr_html_(self) -> str:
-        notes = "".join(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
+        notes = "".join(note(n) for n in self.notes)
         return (
             f"<div><b>{esc(self.method)}</b> ({esc(self.tests)}): statistic {show_stat(self.statistic)}, "
             f"p = {show_p(self.pvalue)}. <i>{esc(self.limits)}</i>{notes}</div>"
@@ -330,8 +332,9 @@ class Recommendation:
     chosen: str = "classic F"
     references: tuple[str, ...] = (WELCH_DEFAULT_REFERENCE, PRETEST_REFERENCE)
 
+    @html_repr
     def _repr_html_(self) -> str:
-        refs = "".join(f"<div style='font-size:90%;color:#555'>{esc(r)}.</div>" for r in self.references)
+        refs = "".join(footnote(f"{r}.") for r in self.references)
         return (f"<div><b>Suggested overall test (information, not a switch): {esc(self.test)}.</b> "
                 f"{esc(self.sentence)}{refs}</div>")
 

@@ -22,8 +22,9 @@ import pandas as pd
 
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.spec import alpha_or
-from ..engine.tables import esc, html_table
+from ..engine.tables import html_table
 from ..formatting import Scale, result_frame, scale, show_p, show_share, text_table
+from ..rendering import block, footnote, html_repr, note, small
 from .assumptions import (
     CheckResult,
     Recommendation,
@@ -243,6 +244,7 @@ class Battery:
         return (f"<Battery at alpha {self.alpha:g}: classic F p = {show_p(self.classic.pvalue)}, Welch F p = "
                 f"{show_p(self.welch.pvalue)}, suggested {self.recommendation.test}; print() for the tables>")
 
+    @html_repr
     def _repr_html_(self) -> str:
         with scale(of=self.display or Scale()):
             return self._html()
@@ -257,8 +259,8 @@ class Battery:
         for name in (*_PAIRWISE, "dunnett"):
             if name in waiting:
                 part = object.__getattribute__(self, name)
-                parts.append(f"<div class='vx-small'>{esc(part.what)}: {part.size:,} comparisons, computed "
-                             f"when first read (battery.{name}).</div>")
+                parts.append(small(f"{part.what}: {part.size:,} comparisons, computed when first read "
+                                   f"(battery.{name})."))
             elif getattr(self, name) is not None:
                 parts.append(getattr(self, name)._repr_html_())
         parts.append(self.letters._repr_html_())
@@ -269,11 +271,10 @@ class Battery:
         for s in self.screens:
             parts.append(s._repr_html_())
         parts.append(
-            "<div style='font-size:90%;color:#555'>Screens flag rows for a look; leaving a row out needs a "
-            "documented reason.</div>"
+            footnote("Screens flag rows for a look; leaving a row out needs a documented reason.")
         )
-        parts.extend(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
-        return "<div class='vx-battery'>" + "".join(parts) + "</div>"
+        parts.extend(note(n) for n in self.notes)
+        return block("battery", parts)
 
 
 def run_battery(

@@ -27,7 +27,6 @@ Draper, N. R. and Smith, H. (1998). Applied Regression Analysis, 3rd ed., sec. 1
 
 from __future__ import annotations
 
-import html
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
@@ -41,6 +40,7 @@ from ..engine.row_model import design_of
 from ..engine.tables import html_table
 from ..engine.transforms import inverse
 from ..formatting import show_number
+from ..rendering import html_repr, small
 
 __all__ = ["BoxCoxProfile", "ProfileEstimate", "box_cox", "profile_estimate", "profile_loglik", "SIMPLE_POWERS"]
 
@@ -104,9 +104,10 @@ class BoxCoxProfile:
         names = ", ".join(self.inside) if self.inside else "none of the simple powers"
         return f"Simple powers inside the interval: {names}."
 
+    @html_repr
     def _repr_html_(self) -> str:
         return (html_table(self.to_frame(), self.title, (self.sentence(),) + self.notes)
-                + f"<div class='vx-small'>{html.escape('The analysis now uses: ' + str(self.current))}</div>")
+                + small(f"The analysis now uses: {self.current}"))
 
     def to_text(self) -> str:
         return f"{self.title}\n{self.sentence()}\n" + "\n".join(self.notes)

@@ -49,6 +49,7 @@ from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
 from ..engine.tables import html_table
 from ..formatting import show_df, show_measure, show_p, show_stat
+from ..rendering import html_repr
 from .level_means import LevelMeans, level_means
 
 __all__ = [
@@ -151,6 +152,7 @@ class ContrastTable:
         })
         return frame
 
+    @html_repr
     def _repr_html_(self) -> str:
         notes = [j.sentence() for j in self.joint] + list(self.notes)
         return html_table(self.to_frame(), self.title, tuple(notes))

@@ -46,6 +46,7 @@ from ..engine.noncentral_f import confidence_matching_test, noncentrality_interv
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_share
+from ..rendering import html_repr
 from .oneway_inputs import require_oneway
 
 if TYPE_CHECKING:
@@ -95,6 +96,7 @@ class EffectSizes:
             frame[c] = pd.array([None if v is None else float(v) for v in frame[c]], dtype="Float64")
         return result_frame(frame, roles={c: "share" for c in frame.columns[1:]})  # proportions, not the response
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), "Effect sizes (interval: population proportion of variance explained)",
                           self.notes)

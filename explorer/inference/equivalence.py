@@ -45,6 +45,7 @@ from ..engine.results import Results
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from ..formatting import show_measure
+from ..rendering import html_repr
 from .level_means import level_means
 
 __all__ = ["EquivalenceTable", "equivalence", "parse_margin"]
@@ -103,6 +104,7 @@ class EquivalenceTable:
             "equivalent": ["yes" if e else "no" for e in self.equivalent],
         })
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), self.title, self.notes)
 

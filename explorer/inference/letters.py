@@ -29,6 +29,7 @@ import pandas as pd
 from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
 from ..formatting import result_frame
+from ..rendering import html_repr
 from .comparisons import PairwiseTable
 
 __all__ = ["MAX_LEVELS", "MAX_WORK", "LetterDisplay", "compact_letters"]
@@ -70,6 +71,7 @@ class LetterDisplay:
     def to_frame(self) -> pd.DataFrame:
         return result_frame({"level": list(self.labels), "estimate": self.estimates, "letters": list(self.letters)})
 
+    @html_repr
     def _repr_html_(self) -> str:
         cap = f"Letters (same letter: not declared different by {self.method} at alpha {self.alpha:g})"
         return html_table(self.to_frame(), cap, self.notes)

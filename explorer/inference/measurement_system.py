@@ -41,6 +41,7 @@ from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
 from ..engine.variance_components import NEGATIVE_RULE, VarianceComponents
 from ..formatting import result_frame
+from ..rendering import html_repr
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -99,6 +100,7 @@ class MeasurementSystem:
         data[f"variance {pct} CI high"] = pd.array([x.ci_high for x in self.lines], dtype="Float64")
         return result_frame(data)
 
+    @html_repr
     def _repr_html_(self) -> str:
         ndc = "—" if self.distinct_categories is None else str(self.distinct_categories)
         caption = (f"Measurement system ({self.layout} parts and operators; {self.method}); "

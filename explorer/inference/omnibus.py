@@ -29,6 +29,7 @@ import pandas as pd
 from ..engine.errors import ExplorerError
 from ..engine.tables import esc
 from ..formatting import result_frame, show_df, show_number, show_p, show_stat
+from ..rendering import html_repr, note
 from .omnibus_batch import brown_forsythe_batch, kruskal_batch, welch_batch
 from .oneway_inputs import require_oneway, row_sample_notes
 from .result_extras import WithExtras
@@ -87,6 +88,7 @@ class OmnibusTest(WithExtras):
     def to_frame(self) -> pd.DataFrame:
         return result_frame([self.row()])
 
+    @html_repr
     def _repr_html_(self) -> str:
         dfs = ", ".join(show_number(x) for x in (self.df_num, self.df_den) if x is not None)
         extra = "; ".join(f"{esc(k)} {show_stat(v) if not isinstance(v, str) else esc(v)}"
@@ -95,7 +97,7 @@ class OmnibusTest(WithExtras):
             first = (f"with the original k - 1 = {show_df(self.original_df_num)} numerator df, "
                      f"p = {show_p(self.original_pvalue)} (liberal when variances differ)")
             extra = f"{extra}; {first}" if extra else first
-        notes = "".join(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
+        notes = "".join(note(n) for n in self.notes)
         return (
             f"<div><b>{esc(self.method)}</b>: statistic {show_stat(self.statistic)}"
             f"{f' on ({dfs}) df' if dfs else ''}, p = {show_p(self.pvalue)}"

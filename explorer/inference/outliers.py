@@ -36,6 +36,7 @@ from ..engine.errors import ExplorerError
 from ..engine.numerics import read_only_copy
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_stat
+from ..rendering import html_repr
 from .oneway_inputs import row_sample_notes
 from .result_extras import WithExtras
 
@@ -94,6 +95,7 @@ class OutlierScreen(WithExtras):
         pos = {r: i for i, r in enumerate(self.row_ids.tolist())}
         return result_frame({"row": ids, "score": [float(self.scores[pos[r]]) for r in ids]})
 
+    @html_repr
     def _repr_html_(self) -> str:
         cap = f"{self.method}: {self.rule} (threshold {show_stat(self.threshold)}); {len(self.flagged)} row(s) flagged"
         return html_table(self.to_frame(), cap, self.notes)

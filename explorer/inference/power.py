@@ -27,6 +27,7 @@ from ..engine.noncentral_f import f_test_power as _f_power
 from ..engine.spec import alpha_or
 from ..engine.tables import esc
 from ..formatting import show_share
+from ..rendering import html_repr, note
 from .oneway_inputs import require_oneway
 
 if TYPE_CHECKING:
@@ -169,8 +170,9 @@ class PowerPlan:
         return (f"With Cohen's f = {show_share(self.effect_f)} ({self.effect_source}), alpha {self.alpha:g}, "
                 f"{self.k} levels and {self.n_total} observations, the F test has power {show_share(self.power)}; {need}.")
 
+    @html_repr
     def _repr_html_(self) -> str:
-        notes = "".join(f"<div style='color:#8a4b00'>{esc(n)}</div>" for n in self.notes)
+        notes = "".join(note(n) for n in self.notes)
         return f"<div><b>Power</b>: {esc(self.sentence())}{notes}</div>"
 
 

@@ -33,6 +33,7 @@ from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
 from ..engine.tables import esc, html_table
 from ..formatting import show_p, show_share, show_stat
+from ..rendering import html_repr, note
 from .oneway_inputs import require_oneway, row_sample_notes
 from .two_levels import mid_ranks
 
@@ -72,6 +73,7 @@ class DunnTable:
     def title(self) -> str:
         return f"Dunn's rank comparisons: {self.adjustment} adjustment, family of {len(self.first)}"
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), self.title, self.notes)
 
@@ -145,12 +147,13 @@ class FriedmanTest:
     rank_sums: tuple[tuple[str, float], ...]
     notes: tuple[str, ...] = field(default=())
 
+    @html_repr
     def _repr_html_(self) -> str:
         sums = ", ".join(f"{esc(k)} {show_stat(v)}" for k, v in self.rank_sums)
         return (f"<div><b>Friedman rank test</b> of {esc(self.factor)} within {esc(self.block)} "
                 f"({self.blocks} blocks): chi-square = {show_stat(self.statistic)} on {self.df} df, p = {show_p(self.pvalue)}; "
                 f"Kendall's W = {show_share(self.kendall_w)}; rank sums: {sums}</div>"
-                + "".join(f"<div class='note'>{esc(n)}</div>" for n in self.notes))
+                + "".join(note(n) for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Friedman rank test of {self.factor} within {self.block} ({self.blocks} blocks): "

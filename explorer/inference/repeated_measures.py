@@ -53,6 +53,7 @@ from scipy import special
 from ..engine.distributions import f_sf
 from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
+from ..rendering import html_repr
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -126,6 +127,7 @@ class RepeatedMeasures:
                              "df numerator": df1, "df denominator": df2, "p-value": p})
         return pd.DataFrame(rows)
 
+    @html_repr
     def _repr_html_(self) -> str:
         parts = [html_table(self.sphericity_frame(), "Sphericity of the within-subject terms (Mauchly)", self.notes),
                  html_table(self.corrected_frame(), "Within-subject F tests with epsilon-corrected df")]

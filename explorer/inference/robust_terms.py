@@ -36,6 +36,7 @@ from ..engine.errors import DesignError, ExplorerError
 from ..engine.results import Results
 from ..engine.row_model import RowFit, design_of, fit_rows, hc_meat
 from ..engine.tables import html_table
+from ..rendering import html_repr
 
 __all__ = ["RobustTermTests", "hc3_tests"]
 
@@ -69,6 +70,7 @@ class RobustTermTests:
     def title(self) -> str:
         return f"Terms tested with HC3 standard errors (type {self.ss_type}, robust to unequal variances)"
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), self.title, self.notes)
 

@@ -40,6 +40,7 @@ from ..engine.results import Results
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from ..formatting import show_p, show_ss
+from ..rendering import block, html_repr
 
 __all__ = ["ADJUSTMENTS", "SimpleEffects", "simple_effects"]
 
@@ -109,12 +110,13 @@ class SimpleEffects:
     def cells_frame(self) -> pd.DataFrame:
         return self.cells.copy()
 
+    @html_repr
     def _repr_html_(self) -> str:
         cap = (f"Simple effects of {self.factor} at each level of {self.within} (full model's residual mean square, "
                f"{self.df_den} df; {ADJUSTMENTS[self.adjustment]} adjustment over {self.family_size} tests)")
         pct = f"{self.confidence:.0%}"
-        return ("<div class='vx-simple-effects'>" + html_table(self.to_frame(), cap, self.notes)
-                + html_table(self.cells, f"Cell means (least squares) with {pct} intervals") + "</div>")
+        return block("simple-effects", [html_table(self.to_frame(), cap, self.notes),
+                                        html_table(self.cells, f"Cell means (least squares) with {pct} intervals")])
 
 
 def _layout(results: Results) -> tuple[tuple[str, ...], list[tuple[str, ...]], np.ndarray]:

@@ -36,6 +36,7 @@ from ..engine.errors import DesignError, ExplorerError
 from ..engine.results import Results
 from ..engine.tables import html_table
 from ..formatting import show_df, show_p, show_stat
+from ..rendering import html_repr
 from .oneway_inputs import require_oneway, row_sample_notes
 
 __all__ = ["TrimmedMeansTest", "trimmed_means_test", "trimmed_stats"]
@@ -84,6 +85,7 @@ class TrimmedMeansTest:
         return (f"Trimmed means ({self.trim:.0%} from each end) of {self.factor}: F = {show_stat(self.statistic)} on "
                 f"({show_df(self.df_num)}, {show_df(self.df_den)}) df, p = {show_p(self.pvalue)}")
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), self.title, self.notes)
 

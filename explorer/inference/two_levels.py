@@ -33,6 +33,7 @@ from ..engine.errors import DesignError
 from ..engine.results import Results
 from ..engine.tables import esc
 from ..formatting import show_df, show_measure, show_p, show_share, show_stat
+from ..rendering import html_repr, note
 from .oneway_inputs import require_oneway, row_sample_notes
 
 __all__ = ["WelchT", "MannWhitney", "welch_t", "mann_whitney", "mid_ranks"]
@@ -73,12 +74,13 @@ class WelchT:
     confidence: float
     notes: tuple[str, ...] = field(default=())
 
+    @html_repr
     def _repr_html_(self) -> str:
         return (f"<div><b>Welch two-sample t</b>, {esc(self.first)} − {esc(self.second)}: "
                 f"difference {show_measure(self.difference)}, t = {show_stat(self.statistic)} on {show_df(self.df)} df, "
                 f"p = {show_p(self.pvalue)}, {self.confidence:.0%} interval ({show_measure(self.ci_low)}, "
                 f"{show_measure(self.ci_high)})"
-                "</div>" + "".join(f"<div class='note'>{esc(n)}</div>" for n in self.notes))
+                "</div>" + "".join(note(n) for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Welch two-sample t, {self.first} - {self.second}: difference {show_measure(self.difference)}, "
@@ -150,12 +152,13 @@ class MannWhitney:
     z: float | None = None
     notes: tuple[str, ...] = field(default=())
 
+    @html_repr
     def _repr_html_(self) -> str:
         z = "" if self.z is None else f", z = {show_stat(self.z)}"
         return (f"<div><b>Mann-Whitney</b> ({esc(self.method)}), {esc(self.first)} vs "
                 f"{esc(self.second)}: U = {show_stat(self.u)}{z}, p = {show_p(self.pvalue)}; "
                 f"P({esc(self.first)} above {esc(self.second)}) estimated {show_share(self.probability)}</div>"
-                + "".join(f"<div class='note'>{esc(n)}</div>" for n in self.notes))
+                + "".join(note(n) for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Mann-Whitney ({self.method}), {self.first} vs {self.second}: U = {show_stat(self.u)}, "

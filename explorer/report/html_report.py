@@ -1,6 +1,7 @@
 """One self-contained HTML file that hands a study to a colleague who has no Jupyter.
 
-The page needs no network: styles are inline, charts are inline SVG, there is no
+The page needs no network: styles are in the page (its layout, then the one result
+stylesheet of :mod:`explorer.rendering`), charts are inline SVG, there is no
 script, and a content-security policy in the page forbids loading anything else. It
 shows, in order: the scenario, the decision card (unedited and current decisions, what
 changed, the disclosure count, one line per caution), the data's provenance, the
@@ -20,6 +21,8 @@ from typing import TYPE_CHECKING
 from ..engine.errors import ExplorerError
 from ..engine.tables import esc
 from ..formatting import format_value, heading, scale
+from ..rendering import STYLESHEET as RESULTS_STYLESHEET
+from ..rendering import styled
 from ..study.decision_card import DECISION_CARD_CSS
 from ..study.output_files import check_output_path, write_text_atomic
 from .cautions import cautions_html
@@ -35,6 +38,7 @@ __all__ = ["report_html", "write_report"]
 
 CSP = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; font-src data:"
 
+#: The page's own rules (layout, headings, figures), then the one result stylesheet of the renderer.
 STYLE = """
 body{font-family:system-ui,-apple-system,"Segoe UI",Roboto,sans-serif;margin:2em auto;max-width:1180px;
  padding:0 1em;color:#1d1d1d;line-height:1.4}
@@ -43,21 +47,16 @@ h1{font-size:1.6em;margin-bottom:.2em} h2{font-size:1.2em;border-bottom:1px soli
 .side{display:grid;grid-template-columns:1fr 1fr;gap:1.5em}
 .side>div{overflow-x:auto}
 .side table.vx-table{font-size:80%;width:100%}
-table.vx-table{border-collapse:collapse;margin:.5em 0;font-size:90%;min-width:min(100%,34em)}
-table.vx-table caption{text-align:left;font-weight:600;padding-bottom:.2em}
-table.vx-table th,table.vx-table td{border:1px solid #ddd;padding:2px 6px;text-align:left;vertical-align:top}
-table.vx-table td.vx-num{text-align:right;white-space:nowrap;font-variant-numeric:tabular-nums}
 figure.vx-chart{margin:.5em 0;max-width:100%;overflow:hidden}
 figure.vx-chart svg{max-width:100%;height:auto}
 figure.vx-chart figcaption{font-size:85%;color:#444;max-width:36em}
 .disclosure{background:#fff6e0;border-left:4px solid #d08c00;padding:.4em .8em}
 .vx-cautions li{margin:.3em 0}
 .vx-figures{display:flex;flex-wrap:wrap;gap:1em}
-.note{color:#8a4b00}
 table.vx-edits td{text-align:left}
 pre{background:#f6f6f6;padding:.8em;overflow-x:auto;font-size:85%}
 @media print{.side{grid-template-columns:1fr}}
-"""
+""" + RESULTS_STYLESHEET
 
 
 def _kv_table(rows: list[tuple[str, str]]) -> str:
@@ -86,7 +85,7 @@ def _provenance(study: "Study") -> str:
         out += f"<p>{len(ds.set_aside)} row(s) set aside when the data were loaded:</p><ul>{items}</ul>"
     else:
         out += "<p>No rows were set aside when the data were loaded.</p>"
-    out += "".join(f"<p class='note'>{esc(n)}</p>" for n in ds.notes)
+    out += "".join(f"<p class='vx-note'>{esc(n)}</p>" for n in ds.notes)
     return out
 
 
@@ -116,11 +115,11 @@ def _headline(study: "Study") -> str:
         line("decision", db.sentence(), dc.sentence(), "text"),
     ]
     body = "".join(f"<tr><th>{k}</th><td>{a}</td><td>{b}</td></tr>" for k, a, b in rows)
-    caveats = "".join(f"<p class='note'>{esc(c)}</p>" for c in dict.fromkeys((db.caveat, dc.caveat)) if c)
+    caveats = "".join(f"<p class='vx-note'>{esc(c)}</p>" for c in dict.fromkeys((db.caveat, dc.caveat)) if c)
     return (
         "<table class='vx-table vx-headline'><thead><tr><th></th><th>baseline (unedited)</th>"
         f"<th>current (after {len(study.edits)} edit(s))</th></tr></thead><tbody>{body}</tbody></table>"
-        f"<p class='note'>Decisions read from the {esc(dc.method)} at alpha {dc.alpha:g}.</p>{caveats}"
+        f"<p class='vx-note'>Decisions read from the {esc(dc.method)} at alpha {dc.alpha:g}.</p>{caveats}"
     )
 
 
@@ -164,7 +163,7 @@ def _interaction(study: "Study", charts: bool) -> str:
     try:
         effects = study.simple_effects(pair[0], within=pair[1])
     except ExplorerError as exc:
-        return f"<section id='interaction'><h2>Interaction</h2><p class='note'>{esc(str(exc))}</p></section>"
+        return f"<section id='interaction'><h2>Interaction</h2><p class='vx-note'>{esc(str(exc))}</p></section>"
     figure = interaction_figure(effects).html() if charts else ""
     return (f"<section id='interaction'><h2>Interaction: {esc(pair[0])} by {esc(pair[1])}</h2>"
             f"{figure}{effects._repr_html_()}</section>")
@@ -188,7 +187,7 @@ def _edits(study: "Study") -> str:
 def _part(part: Part) -> str:
     if part.present:
         return part.html
-    return f"<p class='note'>Not included: {esc(part.note or '')}.</p>"
+    return f"<p class='vx-note'>Not included: {esc(part.note or '')}.</p>"
 
 
 def report_html(study: "Study", *, title: str | None = None, scenario: str | None = None, charts: bool = True) -> str:
@@ -196,7 +195,7 @@ def report_html(study: "Study", *, title: str | None = None, scenario: str | Non
 
     Numbers follow the study's display scale (:mod:`explorer.formatting`), as in the explorer.
     """
-    with scale(of=study.display_scale()):
+    with scale(of=study.display_scale()), styled():  # the page carries the stylesheet once, in its head
         return _report_html(study, title=title, scenario=scenario, charts=charts)
 
 

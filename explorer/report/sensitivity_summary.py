@@ -28,6 +28,7 @@ import pandas as pd
 from ..engine.errors import DesignError
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_p
+from ..rendering import html_repr
 
 if TYPE_CHECKING:
     from ..study.study import Study
@@ -98,6 +99,7 @@ class SensitivitySummary:
         body = [f"{q.ljust(width)}  {a}" for q, a in self.lines()]
         return "\n".join(body + list(self.notes))
 
+    @html_repr
     def _repr_html_(self) -> str:
         return html_table(self.to_frame(), "Sensitivity of the current decision", self.notes)
 

@@ -47,7 +47,7 @@ class Figure:
 
     def html(self) -> str:
         if not self.svg:
-            return f"<p class='note'>{esc(self.why)}</p>"
+            return f"<p class='vx-note'>{esc(self.why)}</p>"
         cap = "".join(f"<div>{esc(line)}</div>" for line in self.caption)
         return f"<figure class='vx-chart'>{self.svg}<figcaption>{cap}</figcaption></figure>"
 

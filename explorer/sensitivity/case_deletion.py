@@ -27,6 +27,7 @@ from ..engine.disclosure import Disclosure
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_p
+from ..rendering import html_repr
 from .alternatives import (
     STATUS_NOTES,
     OnewayInput,
@@ -133,6 +134,7 @@ class CaseDeletionScan:
             }
         )
 
+    @html_repr
     def _repr_html_(self) -> str:
         frame = self.to_frame().head(20)
         n_flip = int(self.flips.sum())

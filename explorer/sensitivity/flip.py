@@ -49,6 +49,7 @@ from ..engine.spec import alpha_or
 from ..engine.studentized_range import srange_ppf, srange_sf
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_p, show_stat
+from ..rendering import html_repr
 from .alternatives import OnewayInput, evaluate_alternatives
 from .chosen_test import ChosenTest
 from .scan_target import scan_target
@@ -110,6 +111,7 @@ class FlipSearch:
             }
         )
 
+    @html_repr
     def _repr_html_(self) -> str:
         wanted = "not significant" if self.base_significant else "significant"
         if self.found:

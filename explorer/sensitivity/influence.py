@@ -38,6 +38,7 @@ from ..engine.numerics import is_zero_ss, response_scale
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_stat
+from ..rendering import html_repr
 from .study_like import StudyLike
 
 __all__ = ["Influence", "influence", "influence_measures"]
@@ -108,6 +109,7 @@ class Influence:
             frame[f"beyond {rule}"] = self.flagged(rule)
         return result_frame(frame)
 
+    @html_repr
     def _repr_html_(self) -> str:
         frame = self.to_frame()
         flags = frame[[c for c in frame.columns if c.startswith("beyond ")]].any(axis=1)

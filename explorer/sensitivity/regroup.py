@@ -26,6 +26,7 @@ from ..engine.errors import ExplorerError
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_p
+from ..rendering import html_repr
 from .alternatives import (
     AlternativeFits,
     leave_one_out,
@@ -111,6 +112,7 @@ class RegroupScan:
         """Merges then moves, each with the flips first (then p-values moving furthest from the decision)."""
         return result_frame(pd.concat([self.merges_frame(), self.moves_frame()], ignore_index=True))
 
+    @html_repr
     def _repr_html_(self) -> str:
         merges = self.merges_frame()
         moves = self.moves_frame()

@@ -57,6 +57,7 @@ from ..engine.transforms import NAMED, check_transform, with_transform
 from ..formatting import result_frame, show_p
 from ..inference.omnibus import overall_test
 from ..inference.outliers import bonferroni_outlier_test
+from ..rendering import html_repr
 from .alternatives import OnewayInput
 from .case_deletion import nullable
 from .influence import influence_measures
@@ -122,6 +123,7 @@ class SweepResult:
         """The specification-curve table (a copy)."""
         return result_frame(self.table.copy())
 
+    @html_repr
     def _repr_html_(self) -> str:
         verdict = "significant" if self.current_significant else "not significant"
         share = "—" if self.share_agreeing is None else f"{self.share_agreeing:.0%}"

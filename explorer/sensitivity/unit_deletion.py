@@ -22,6 +22,7 @@ import pandas as pd
 from ..engine.analysis import analyze
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.tables import html_table
+from ..rendering import html_repr
 from .study_like import StudyLike
 
 __all__ = ["UnitDeletionScan", "headline_term", "row_deletion", "unit_deletion"]
@@ -74,6 +75,7 @@ class UnitDeletionScan:
         frame["status"] = list(self.status)
         return frame.sort_values("decision flips", ascending=False, kind="stable").reset_index(drop=True)
 
+    @html_repr
     def _repr_html_(self) -> str:
         n_flip = int(self.flips.sum())
         cap = (f"Each {self.column} left out in turn ({len(self.units)} refits): {n_flip} change the decision on "

@@ -40,6 +40,7 @@ from ..engine.spec import TEST_LABELS
 from ..engine.tables import esc, html_table
 from ..formatting import show_p
 from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
+from ..rendering import block, html_repr
 
 __all__ = ["TEST_LABELS", "Decision", "TermVerdict", "decide", "interaction_verdict"]
 
@@ -151,10 +152,11 @@ class Decision:
         ordered = [self.verdict_for(self.term)] + [t for t in self.terms if t.term != self.term]
         return pd.DataFrame([t.row() for t in ordered])
 
+    @html_repr
     def _repr_html_(self) -> str:
         notes = ((self.caveat,) if self.caveat else ()) + self.notes
-        return ("<div class='vx-decision-value'>" + f"<div><b>{esc(self.sentence())}</b></div>"
-                + html_table(self.to_frame(), f"Verdict on every term ({self.method})", notes) + "</div>")
+        return block("decision", [f"<div><b>{esc(self.sentence())}</b></div>",
+                                  html_table(self.to_frame(), f"Verdict on every term ({self.method})", notes)])
 
 
 def _significant(p: float | None, alpha: float) -> bool | None:

@@ -25,6 +25,7 @@ from typing import TYPE_CHECKING, Any
 
 from ..engine.errors import ExplorerError, ReplayError
 from ..engine.tables import esc
+from ..rendering import html_repr, note
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -210,10 +211,11 @@ class PlannedOutcome:
     value: Any = None
     problem: str | None = None
 
+    @html_repr
     def _repr_html_(self) -> str:
         head = f"<h4>{esc(self.request.label())}</h4>"
         if self.problem is not None:
-            return head + f"<p class='note'>Not available on this view: {esc(self.problem)}</p>"
+            return head + note(f"Not available on this view: {self.problem}")
         body = self.value._repr_html_() if hasattr(self.value, "_repr_html_") else esc(str(self.value))
         return head + body
 

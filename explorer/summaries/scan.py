@@ -30,6 +30,7 @@ from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_p
 from ..inference.omnibus import overall_test
+from ..rendering import html_repr
 from .view import Condition, SummaryView
 
 __all__ = ["SetAsideScan", "set_aside_scan"]
@@ -58,6 +59,7 @@ class SetAsideScan:
     def to_frame(self) -> pd.DataFrame:
         return result_frame(self.table.copy())
 
+    @html_repr
     def _repr_html_(self) -> str:
         caption = (f"Set-aside scan of {self.term} at alpha {self.alpha:g}: {len(self.flips)} of "
                    f"{self.examined} alternatives flip the decision (now p = {show_p(self.current_pvalue)})")

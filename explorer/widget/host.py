@@ -17,6 +17,7 @@ from explorer.charts import PICK
 from explorer.charts.style import split_subtitle
 
 from ..engine.tables import esc
+from ..rendering import styled
 from .panels import Panel, PanelContext
 
 __all__ = ["EMBED_OPTIONS", "PanelCard", "parse_pick"]
@@ -81,14 +82,15 @@ class PanelCard:
         if not force and token == self._token:
             return False
         self._token = token
-        try:
-            out = self.panel.build(ctx)
-            self.error = ""
-        except Exception as exc:  # noqa: BLE001  a panel must never break the explorer
-            self.error = f"{self.panel.title}: {type(exc).__name__}: {exc}"
-            self._show_html(f"<div class='vx-status-error'>This panel could not be drawn: {esc(str(exc))}</div>")
-            return True
-        self._show(out)
+        with styled():  # the explorer's stylesheet is on the page: results add no <style> of their own
+            try:
+                out = self.panel.build(ctx)
+                self.error = ""
+            except Exception as exc:  # noqa: BLE001  a panel must never break the explorer
+                self.error = f"{self.panel.title}: {type(exc).__name__}: {exc}"
+                self._show_html(f"<div class='vx-status-error'>This panel could not be drawn: {esc(str(exc))}</div>")
+                return True
+            self._show(out)
         return True
 
     # ----------------------------------------------------------------- display

@@ -6,11 +6,21 @@ explorer itself, not the window, so JupyterLab's side panels count): two columns
 :data:`ONE_COLUMN_BELOW` pixels. Charts take the width of their card; tables wrap their
 text and, when their card is too narrow for their columns, stack each row into
 "heading: value" lines instead of being clipped.
+
+The rules for results (tables, notes, footnotes, small print) are not written here: they
+are the one result stylesheet of :mod:`explorer.rendering`, put inside this ``<style>``
+block, so a result looks the same in the explorer, in the report and in a notebook. This
+module adds the explorer's layout and its own parts (cards, tabs, controls, status line,
+the comparison's marks). The explorer draws its panels inside
+:func:`explorer.rendering.styled`, so the results in them add no second ``<style>``.
 """
 
 from __future__ import annotations
 
 from explorer.study.decision_card import DECISION_CARD_CSS
+
+from ..rendering import NOTE_COLOUR
+from ..rendering import STYLESHEET as RESULTS_STYLESHEET
 
 __all__ = ["CONTROLS_WIDTH", "ONE_COLUMN_BELOW", "STACK_WIDTH_PER_COLUMN", "STYLESHEET", "stylesheet"]
 
@@ -80,23 +90,16 @@ def stylesheet() -> str:
 .vx-explorer .widget-html-content {{ white-space: normal; line-height: 1.45; }}
 .vx-explorer .vx-level-row {{ display: flex; flex-wrap: wrap; gap: 2px 6px; align-items: center; }}
 .vx-explorer .vx-level-row .widget-html {{ flex: 1 1 150px; min-width: 0; }}
-.vx-table {{ border-collapse: collapse; font-size: 13px; margin: 2px 0 6px 0; max-width: 100%;
-  min-width: min(100%, 30em); }}
-.vx-table caption {{ font-size: 13px; padding-bottom: 3px; text-align: left; font-weight: 600; }}
-.vx-table th {{ text-align: left; padding: 3px 8px; border-bottom: 2px solid #999; background: #f4f4f4;
-  vertical-align: bottom; }}
-.vx-table td {{ padding: 3px 8px; border-bottom: 1px solid #e3e3e3; text-align: left; vertical-align: top; }}
-.vx-table td.vx-num {{ text-align: right; white-space: nowrap; font-variant-numeric: tabular-nums; }}
-.vx-table tr.vx-diff td {{ background: #fff1df; }}
+{RESULTS_STYLESHEET}.vx-table tr.vx-diff td {{ background: #fff1df; }}
 .vx-table td.vx-mark {{ color: #b35c00; font-weight: 600; text-align: left; }}
 .vx-decision-flip {{ color: #9b1c1c; font-weight: 700; }}
-.vx-small {{ font-size: 12px; color: #444; }}
 .vx-explorer .vx-chart-note {{ font-size: 12px; color: #555; margin: 0 0 2px 4px; }}
 .vx-status-error {{ color: #9b1c1c; font-weight: 600; }}
-.vx-status-warn {{ color: #8a4b00; }}
+.vx-status-warn {{ color: {NOTE_COLOUR}; }}
 .vx-status-ok {{ color: #285e2b; }}
 .vx-card-title {{ font-weight: 700; font-size: 14px; margin: 4px 0 2px 0; }}
 .vx-banner {{ font-size: 13px; line-height: 1.45; }}
+.vx-app-title {{ margin: 4px 0; }}
 {_stacking_rules()}
 {DECISION_CARD_CSS}
 </style>
