@@ -13,6 +13,8 @@ vx-note        a caution about the result (what it assumes, what was set aside)
 vx-footnote    a table's footnote (rules, references, how many rows are shown)
 vx-small       a side remark in small print
 vx-result      one result's block; ``vx-result-KIND`` names the kind (``vx-result-battery``)
+vx-dcard       the decision card and its parts (``vx-dcard-pair``, ``vx-dcard-side``, ...)
+vx-disclosure  the searching done so far (the card's line, the explorer's header)
 ============== ============================================================================
 
 The stylesheet goes out once per output: the outermost ``_repr_html_`` of a notebook
@@ -41,6 +43,7 @@ from typing import TypeVar
 __all__ = [
     "CLASSES",
     "CLASS_PATTERNS",
+    "DECISION_CARD_RULES",
     "NOTE_COLOUR",
     "STYLESHEET",
     "block",
@@ -58,8 +61,8 @@ __all__ = [
 #: Colour of a caution (also the explorer's warning status).
 NOTE_COLOUR = "#8a4b00"
 
-#: The rules for every result's markup: tables, notes, footnotes, small print.
-STYLESHEET = f"""\
+#: The rules for tables, notes, footnotes and small print.
+_BASE_RULES = f"""\
 .vx-table {{ border-collapse: collapse; font-size: 13px; margin: 2px 0 6px 0; max-width: 100%;
   min-width: min(100%, 30em); }}
 .vx-table caption {{ font-size: 13px; padding-bottom: 3px; text-align: left; font-weight: 600; }}
@@ -73,10 +76,34 @@ STYLESHEET = f"""\
 .vx-result {{ margin: 2px 0 6px 0; }}
 """
 
+#: The decision card's rules (:mod:`explorer.study.decision_card`), scoped to ``.vx-dcard``.
+DECISION_CARD_RULES = """
+.vx-dcard{border:1px solid #c9c9c9;border-left:5px solid #2f5d8a;border-radius:4px;padding:6px 10px;margin:0 0 6px 0;
+ background:#fafbfc;font-size:13px;line-height:1.4;max-width:100%;box-sizing:border-box;overflow-wrap:anywhere}
+.vx-dcard.vx-dcard-flip{border-left-color:#9b1c1c}
+.vx-dcard-head{font-size:13px}
+.vx-dcard-pair{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,260px),1fr));gap:4px 12px;margin:4px 0}
+.vx-dcard-side{padding:3px 8px;background:#fff;border:1px solid #e3e3e3;border-radius:3px;min-width:0}
+.vx-dcard-side.vx-dcard-differs{background:#fff1df;border-color:#d08c00}
+.vx-dcard-label{font-size:11px;color:#555;font-weight:700;letter-spacing:.02em}
+.vx-dcard-sentence{font-weight:600}
+.vx-dcard-change{background:#fff1df;padding:0 4px;border-radius:2px;display:inline-block;margin:1px 6px 1px 0}
+.vx-dcard-flipnote{color:#9b1c1c;font-weight:700}
+.vx-dcard-disclosure{margin-top:2px}
+.vx-dcard-cautions{margin:4px 0 0 0;padding:0;list-style:none;font-size:12px;display:grid;
+ grid-template-columns:repeat(auto-fit,minmax(min(100%,340px),1fr));gap:0 14px}
+.vx-dcard-cautions summary{cursor:pointer;color:#7a3f00}
+.vx-dcard-cautions details>div{padding:2px 0 4px 14px;color:#333}
+"""
+
+#: The one stylesheet of every result's markup: tables, notes and footnotes, then the decision card.
+STYLESHEET = _BASE_RULES + DECISION_CARD_RULES
+
 #: Every class name the renderer writes (``vx-cols-N`` and ``vx-result-KIND`` by pattern).
-CLASSES = frozenset({"vx-table", "vx-num", "vx-note", "vx-footnote", "vx-small", "vx-result"})
+CLASSES = frozenset({"vx-table", "vx-num", "vx-note", "vx-footnote", "vx-small", "vx-result", "vx-disclosure"})
 #: The class names written by pattern: a table's column count and a block's kind.
-CLASS_PATTERNS = (re.compile(r"vx-cols-\d+"), re.compile(r"vx-result-[a-z][a-z-]*"))
+CLASS_PATTERNS = (re.compile(r"vx-cols-\d+"), re.compile(r"vx-result-[a-z][a-z-]*"),
+                  re.compile(r"vx-dcard(-[a-z]+)?"))
 
 _STYLED: ContextVar[bool] = ContextVar("explorer_html_styled", default=False)
 _T = TypeVar("_T")

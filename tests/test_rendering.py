@@ -101,10 +101,12 @@ def results_by_type() -> dict[type, Any]:
         covariate = ex.Study(_covariate_frame(), response="thickness_um", factors="nozzle",
                              covariates="surface_temp")
         one.contrast("nozzle", {"A": -1, "B": 1})
+        one.drop([0], reason="invented: a smeared panel")  # the card then shows a change
         one.equivalence("nozzle", margin=1.0, pairs=[("A", "C")])
         summary = SummaryStudy(example_data("lines"), "thickness_um", ["nozzle", "speed"], sample_size=0)
         values = [
-            one, one.results, one.decision, one.battery(), one.influence(), one.case_deletion(), one.flip_finder(),
+            one, one.results, one.decision, one.decision_card(), one.battery(), one.influence(),
+            one.case_deletion(), one.flip_finder(),
             one.regroup_scan(), one.robustness_sweep(), one.box_cox(record=False), one.planned(),
             one.results.partition.to_frame(), sensitivity_summary(one),
             st.dunn(one.results), st.trimmed_means_test(one.results), st.hc3_tests(two.results),

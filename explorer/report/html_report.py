@@ -23,7 +23,6 @@ from ..engine.tables import esc
 from ..formatting import format_value, heading, scale
 from ..rendering import STYLESHEET as RESULTS_STYLESHEET
 from ..rendering import styled
-from ..study.decision_card import DECISION_CARD_CSS
 from ..study.output_files import check_output_path, write_text_atomic
 from .cautions import cautions_html
 from .extras import Part, battery_part, planned_part, sensitivity_part
@@ -243,7 +242,7 @@ def _report_html(study: "Study", *, title: str | None, scenario: str | None, cha
         "<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
         f"<meta http-equiv='Content-Security-Policy' content=\"{CSP}\">"
         "<meta name='viewport' content='width=device-width, initial-scale=1'>"
-        f"<title>{esc(title)}</title><style>{STYLE}{DECISION_CARD_CSS}</style></head><body>"
+        f"<title>{esc(title)}</title><style>{STYLE}</style></head><body>"
         + "\n".join(sections)
         + "</body></html>\n"
     )

@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 
 from ..engine.disclosure import Disclosure
 from ..formatting import Scale, esc, format_value, scale
+from ..rendering import DECISION_CARD_RULES, html_repr
 from .cautions import CAUTION_ITEMS, Caution
 from .decision import Decision
 
@@ -22,25 +23,8 @@ if TYPE_CHECKING:
 
 __all__ = ["DECISION_CARD_CSS", "DecisionCard", "DecisionChange", "decision_card", "disclosure_line"]
 
-#: Styles of the card (scoped to ``.vx-dcard``): the explorer's stylesheet and the report include them.
-DECISION_CARD_CSS = """
-.vx-dcard{border:1px solid #c9c9c9;border-left:5px solid #2f5d8a;border-radius:4px;padding:6px 10px;margin:0 0 6px 0;
- background:#fafbfc;font-size:13px;line-height:1.4;max-width:100%;box-sizing:border-box;overflow-wrap:anywhere}
-.vx-dcard.vx-dcard-flip{border-left-color:#9b1c1c}
-.vx-dcard-head{font-size:13px}
-.vx-dcard-pair{display:grid;grid-template-columns:repeat(auto-fit,minmax(min(100%,260px),1fr));gap:4px 12px;margin:4px 0}
-.vx-dcard-side{padding:3px 8px;background:#fff;border:1px solid #e3e3e3;border-radius:3px;min-width:0}
-.vx-dcard-side.vx-dcard-differs{background:#fff1df;border-color:#d08c00}
-.vx-dcard-label{font-size:11px;color:#555;font-weight:700;letter-spacing:.02em}
-.vx-dcard-sentence{font-weight:600}
-.vx-dcard-change{background:#fff1df;padding:0 4px;border-radius:2px;display:inline-block;margin:1px 6px 1px 0}
-.vx-dcard-flipnote{color:#9b1c1c;font-weight:700}
-.vx-dcard-disclosure{margin-top:2px}
-.vx-dcard-cautions{margin:4px 0 0 0;padding:0;list-style:none;font-size:12px;display:grid;
- grid-template-columns:repeat(auto-fit,minmax(min(100%,340px),1fr));gap:0 14px}
-.vx-dcard-cautions summary{cursor:pointer;color:#7a3f00}
-.vx-dcard-cautions details>div{padding:2px 0 4px 14px;color:#333}
-"""
+#: Styles of the card (scoped to ``.vx-dcard``): part of the renderer's one stylesheet.
+DECISION_CARD_CSS = DECISION_CARD_RULES
 
 
 @dataclass(frozen=True)
@@ -74,8 +58,9 @@ class DecisionCard:
     """What the study concludes now and on the unedited data, what changed, the searching and the cautions.
 
     Made by :meth:`Study.decision_card`; ``disclosure`` is the study's count when the
-    card was made. ``html()`` is the card (styles in :data:`DECISION_CARD_CSS`),
-    ``_repr_html_()`` the card with its styles, ``to_text()`` the same as text.
+    card was made. ``html()`` is the card (its rules are in the renderer's stylesheet,
+    :data:`explorer.rendering.STYLESHEET`), ``_repr_html_()`` the card with the stylesheet,
+    ``to_text()`` the same as text.
     """
 
     subject: str
@@ -156,8 +141,9 @@ class DecisionCard:
             f"<ul class='vx-dcard-cautions'>{''.join(items)}</ul></div>"
         )
 
+    @html_repr
     def _repr_html_(self) -> str:
-        return f"<style>{DECISION_CARD_CSS}</style>{self.html()}"
+        return self.html()
 
 
 def _changes(study: Study, base: Decision, cur: Decision) -> tuple[DecisionChange, ...]:

@@ -17,8 +17,6 @@ the comparison's marks). The explorer draws its panels inside
 
 from __future__ import annotations
 
-from explorer.study.decision_card import DECISION_CARD_CSS
-
 from ..rendering import NOTE_COLOUR
 from ..rendering import STYLESHEET as RESULTS_STYLESHEET
 
@@ -101,7 +99,6 @@ def stylesheet() -> str:
 .vx-banner {{ font-size: 13px; line-height: 1.45; }}
 .vx-app-title {{ margin: 4px 0; }}
 {_stacking_rules()}
-{DECISION_CARD_CSS}
 </style>
 """
 
