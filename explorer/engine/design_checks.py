@@ -59,7 +59,9 @@ def _check_nesting(layout: CellLayout, spec: ModelSpec) -> None:
         a, b = layout.columns[i], layout.columns[j]
         if _declared(a, b, spec):
             continue
-        pairs = np.unique(layout.cell_levels[:, [i, j]], axis=0)
+        nb = max(len(layout.levels[j]), 1)
+        keys = np.unique(layout.cell_levels[:, i] * nb + layout.cell_levels[:, j])  # sorted as the (a, b) pairs
+        pairs = np.stack(np.divmod(keys, nb), axis=1)
         per_b = np.bincount(pairs[:, 1], minlength=len(layout.levels[j]))
         per_a = np.bincount(pairs[:, 0], minlength=len(layout.levels[i]))
         b_in_a = bool(np.all(per_b == 1))

@@ -21,6 +21,8 @@ from dataclasses import replace
 import numpy as np
 
 from ..formatting import show_p
+from .balanced import METHOD as BALANCED_METHOD
+from .balanced import balanced_counts, balanced_ems, fit_balanced
 from .blocking import BlockingEfficiency, blocking_efficiency
 from .cellfit import SS_TYPES, CellFit, fit_cells
 from .cells import CellLayout, CellTable, layout_cells
@@ -153,11 +155,12 @@ def factorial_tables(
 
 
 def _tables_and_ems(
-    fit: CellFit, spec: ModelSpec, layout: CellLayout | None
+    fit: CellFit, spec: ModelSpec, layout: CellLayout | None, counts: dict[str, int] | None = None
 ) -> tuple[dict[str, AnovaTable], dict[str, ExpectedMeanSquares]]:
     zero = _zero_residual(fit)
     if spec.is_mixed and layout is not None:
-        return mixed_tables(fit, spec, layout.cell_levels, layout.columns, zero)
+        ems = balanced_ems(fit, spec, counts) if counts is not None else None
+        return mixed_tables(fit, spec, layout.cell_levels, layout.columns, zero, balanced_ems=ems)
     return {k: _partition(fit, k, zero) for k in SS_TYPES}, {}
 
 
@@ -269,9 +272,14 @@ def factorial_from_cells(
     if spec.subject is not None and (spec.subject, *spec.within) not in terms:
         top = " × ".join((spec.subject, *spec.within))
         notes.append(f"One observation per subject and cell: the residual is the {top} interaction.")
-    fit = fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec, terms=terms)
+    # Complete balanced layouts: closed form from marginal means; anything else: the least-squares engine.
+    counts = balanced_counts(layout, cells.n, terms, spec.nesting)
+    closed = fit_balanced(cells, layout, spec, terms, counts) if counts is not None else None
+    if closed is None:
+        counts = None
+    fit = closed or fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec, terms=terms)
     cell_table = CellTable.from_stats(layout, cells, fit.cell_fitted)
-    tables, ems_by_type = _tables_and_ems(fit, spec, layout)
+    tables, ems_by_type = _tables_and_ems(fit, spec, layout, counts)
     type_notes = _type_notes(tables, fit, cell_table.balanced, spec.alpha)
     notes += [a.sentence() for a in fit.aliased]
     notes += type_notes
@@ -306,7 +314,8 @@ def factorial_from_cells(
         fit=row_fit_,
         n_used=fit.n,
         dropped=dropped,
-        method=method or f"least squares, {kind} (cell sufficient statistics, QR)",
+        method=method or (f"least squares, {kind} ({BALANCED_METHOD})" if closed is not None
+                          else f"least squares, {kind} (cell sufficient statistics, QR)"),
         notes=tuple(notes),
         partitions=tables,
         marginal_means=means,

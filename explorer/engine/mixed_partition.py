@@ -66,20 +66,22 @@ def _notes(ems: ExpectedMeanSquares, errors: dict[str, ErrorTerm]) -> list[str]:
 
 
 def mixed_tables(
-    fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str], zero_resid: bool
+    fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str], zero_resid: bool,
+    *, balanced_ems: ExpectedMeanSquares | None = None,
 ) -> tuple[dict[str, AnovaTable], dict[str, ExpectedMeanSquares]]:
     """The partition and E(MS) for each SS type; complete balanced layouts are computed once
-    (the three types coincide there)."""
-    indicators = random_indicators(fit, spec, cell_levels, columns)
+    (the three types coincide there). ``balanced_ems`` are the exact-count E(MS) of a
+    layout already known to be complete and balanced (:func:`.balanced.balanced_ems`)."""
     tables: dict[str, AnovaTable] = {}
     ems_by_type: dict[str, ExpectedMeanSquares] = {}
-    if complete_balanced(fit, cell_levels, columns):
-        ems = expected_mean_squares(fit, spec, cell_levels, columns, "I", indicators=indicators)
+    if balanced_ems is not None or complete_balanced(fit, cell_levels, columns):
+        ems = balanced_ems if balanced_ems is not None else expected_mean_squares(fit, spec, cell_levels, columns, "I")
         table, _, _ = mixed_partition(fit, spec, cell_levels, columns, "I", zero_resid, ems=ems)
         for k in SS_TYPES:
             ems_by_type[k] = replace(ems, ss_type=k)
             tables[k] = replace(table, ss_type=k) if k != "I" else table
         return tables, ems_by_type
+    indicators = random_indicators(fit, spec, cell_levels, columns)
     for k in SS_TYPES:
         ems_by_type[k] = expected_mean_squares(fit, spec, cell_levels, columns, k, indicators=indicators)
         tables[k] = mixed_partition(fit, spec, cell_levels, columns, k, zero_resid, ems=ems_by_type[k])[0]

@@ -14,7 +14,16 @@ Statistical Models*, 5th ed., sec. 19.4):
    order, the one with the smallest p-value): "the effect of A depends on B";
 2. otherwise the first treatment factor's main effect (the factor listed first is the
    study's factor of interest);
-3. blocks are in the model to remove their variation and are never the decision term.
+3. blocks are in the model to remove their variation and are never the decision term;
+4. terms with a random factor are variance components: when the model has fixed
+   treatment terms the decision is read from those; when every treatment term is random
+   (a measurement-system study, a random-effects model) the decision reads the F test
+   of a variance component, H0: sigma^2[term] = 0, F = MS[term] / its error term (the
+   mean square, or Satterthwaite combination, whose expectation equals the term's when
+   sigma^2[term] = 0; Montgomery, *Design and Analysis of Experiments*, 8th ed., ch. 13,
+   from memory), with the term chosen by rules 1 and 2. ``Decision.error_term`` names
+   the denominator, ``test_label`` says it is a variance-component test, and the notes
+   say which term and which test.
 
 Main effects of factors that take part in a detected interaction are still reported,
 with the caveat that they are averages over the other factor's levels and can hide
@@ -42,11 +51,14 @@ from ..formatting import show_p
 from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 from ..rendering import block, html_repr
 
-__all__ = ["TEST_LABELS", "Decision", "TermVerdict", "decide", "interaction_verdict"]
+__all__ = ["TEST_LABELS", "Decision", "TermVerdict", "all_random", "decide", "interaction_verdict"]
 
 DETECTED = "differences detected"
 NOT_DETECTED = "no differences detected"
 NO_INTERACTION = "no interaction detected"
+COMPONENT_DETECTED = "variance component detected (greater than zero)"
+COMPONENT_NOT_DETECTED = "no variance component detected"
+COMPONENT_TEST = "variance-component F"
 
 
 def _listing(names: list[str]) -> str:
@@ -78,10 +90,15 @@ class TermVerdict:
     significant: bool | None
     verdict: str
     caveat: str = ""
+    #: The denominator of the term's F in models with random terms ("" otherwise).
+    error_term: str = ""
 
     def row(self) -> dict[str, Any]:
-        return {"term": self.term, "role": self.role, "statistic": self.statistic, "df (term)": self.df_num,
-                "df (residual)": self.df_den, "p-value": self.pvalue, "verdict": self.verdict, "caveat": self.caveat}
+        out = {"term": self.term, "role": self.role, "statistic": self.statistic, "df (term)": self.df_num,
+               "df (residual)": self.df_den, "p-value": self.pvalue, "verdict": self.verdict, "caveat": self.caveat}
+        if self.error_term:
+            out["tested against"] = self.error_term
+        return out
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -114,6 +131,8 @@ class Decision:
     terms: tuple[TermVerdict, ...]
     notes: tuple[str, ...] = field(default=())
     pair: tuple[str, str] | None = None
+    #: The denominator of the decision's F in models with random terms ("" otherwise).
+    error_term: str = ""
 
     @property
     def simple_effects_pair(self) -> tuple[str, str] | None:
@@ -125,7 +144,10 @@ class Decision:
         """One line: ``"A × B: the effect of A depends on B at alpha 0.05 (classic F, p = 6.066e-08)"``."""
         if self.pvalue is None:
             return f"{self.term}: {self.verdict}"
-        return f"{self.term}: {self.verdict} at alpha {self.alpha:g} ({self.test_label}, p = {show_p(self.pvalue)})"
+        test = self.test_label
+        if self.error_term and self.error_term != "residual":
+            test += f" against {self.error_term}"
+        return f"{self.term}: {self.verdict} at alpha {self.alpha:g} ({test}, p = {show_p(self.pvalue)})"
 
     def verdict_for(self, term: str) -> TermVerdict:
         """The verdict on one treatment term (``KeyError`` naming the terms when absent)."""
@@ -144,7 +166,7 @@ class Decision:
             "term": self.term, "role": self.role, "verdict": self.verdict, "significant": self.significant,
             "pvalue": self.pvalue, "statistic": self.statistic, "df_num": self.df_num, "df_den": self.df_den,
             "test": self.test, "method": self.method, "alpha": self.alpha, "caveat": self.caveat,
-            "sentence": self.sentence(),
+            "error_term": self.error_term, "sentence": self.sentence(),
         }
 
     def to_frame(self) -> pd.DataFrame:
@@ -188,7 +210,8 @@ def _term_verdicts(results: Results) -> tuple[list[TermVerdict], list[str]]:
 
     Blocks are left out; so are terms with a random factor (variance components) when the
     model has fixed treatment terms. A term tested against another error term (mixed
-    models) carries that error term's df.
+    models) carries that error term's name and df. When every treatment term is random,
+    each verdict is about the term's variance component.
     """
     spec = results.spec
     alpha = spec.alpha
@@ -202,6 +225,7 @@ def _term_verdicts(results: Results) -> tuple[list[TermVerdict], list[str]]:
                      "the decision is read from the fixed terms.".format(
                          ", ".join(term_name(t, nesting) for t in treatment if t not in fixed)))
     chosen = {term_name(t, nesting): t for t in (fixed or treatment)}
+    components = not fixed and bool(set(c for t in treatment for c in t) & random)
     out = []
     for row in results.partition.rows:
         names = chosen.get(row.source)
@@ -212,6 +236,8 @@ def _term_verdicts(results: Results) -> tuple[list[TermVerdict], list[str]]:
         inter = len(names) > 1
         if sig is None:
             verdict = "no test on this view"
+        elif components:
+            verdict = COMPONENT_DETECTED if sig else COMPONENT_NOT_DETECTED
         elif inter:
             verdict = interaction_verdict(names) if sig else NO_INTERACTION
         else:
@@ -219,8 +245,33 @@ def _term_verdicts(results: Results) -> tuple[list[TermVerdict], list[str]]:
         df_den = float(row.df_error) if row.df_error is not None else float(results.df_resid)
         out.append(TermVerdict(term=row.source, factors=names, role="interaction" if inter else "main effect",
                                statistic=row.statistic, df_num=float(row.df), df_den=df_den, pvalue=p,
-                               significant=sig, verdict=verdict))
+                               significant=sig, verdict=verdict, error_term=row.error_term or ""))
     return out, notes
+
+
+def all_random(spec: Any) -> bool:
+    """True when every treatment term contains a random factor (the decision reads a variance component)."""
+    random = set(spec.random_columns)
+    treatment = [t for t in model_terms(spec) if set(t) <= set(spec.factors)]
+    return bool(treatment) and all(set(t) & random for t in treatment)
+
+
+def _component_caveat(head: TermVerdict, terms: list[TermVerdict]) -> str:
+    """What the variance-component verdict is about, and which test it reads."""
+    test = (f"F = MS[{head.term}] / MS[{head.error_term}] on ({head.df_num:g}, {head.df_den:g}) df"
+            if head.error_term and "·" not in head.error_term and " + " not in head.error_term
+            and " − " not in head.error_term
+            else f"F = MS[{head.term}] / ({head.error_term}) on ({head.df_num:g}, {head.df_den:.4g}) df (Satterthwaite)")
+    text = (f"Every treatment term is random, so the decision is the test of the variance component of {head.term} "
+            f"(H0: σ²[{head.term}] = 0; {test}): it is about the population the levels were drawn from, not "
+            "about these levels' means.")
+    inter = [t for t in terms if t.role == "interaction"]
+    if head.role == "interaction":
+        text += " A component of an interaction is read before those of the main effects it contains."
+    elif inter:
+        tested = "; ".join(f"{t.term}: p = {show_p(t.pvalue)}" for t in inter)
+        text += f" No interaction component was detected ({tested})."
+    return text
 
 
 def _with_caveats(terms: list[TermVerdict], spec: Any) -> list[TermVerdict]:
@@ -254,7 +305,10 @@ def _multi(results: Results) -> Decision:
         if hits:
             head = min(hits, key=lambda x: x.pvalue if x.pvalue is not None else 1.0)
             break
-    if head is not None:
+    components = all_random(spec)
+    if head is not None and components:
+        caveat = _component_caveat(head, terms)
+    elif head is not None:
         a, b = head.factors[0], head.factors[1]
         where = ("the cell means of each combination" if spec.is_mixed else
                  f"the simple effects (study.simple_effects({a!r}, within={b!r})) and the interaction chart")
@@ -265,8 +319,13 @@ def _multi(results: Results) -> Decision:
     else:
         head = next((t for t in terms if t.factors == (spec.factors[0],)), terms[0])
         others = [f for f in spec.factors if f != head.factors[0]]
+        if components:
+            terms = [TermVerdict(**{**t.__dict__, "caveat": ""}) for t in terms]
+            head = next(t for t in terms if t.term == head.term)
         mine = [t for t in interactions if head.factors[0] in t.factors]
-        if not others:
+        if components:
+            caveat = _component_caveat(head, terms)
+        elif not others:
             caveat = ""
         elif not mine:
             caveat = (f"The model has no interaction term involving {head.term}, so its effect is taken to be the same "
@@ -283,14 +342,21 @@ def _multi(results: Results) -> Decision:
     method = f"classic F, type {spec.ss_type} sums of squares"
     if spec.is_mixed:
         method += ", each term against its own error term"
+    test_label = TEST_LABELS[spec.test]
+    if components:
+        test_label = COMPONENT_TEST
+        method = (f"F test of a variance component (H0: σ² = 0), type {spec.ss_type} sums of squares, each term "
+                  "against its own error term")
+        notes.append(f"The decision reads the variance-component F test of {head.term}, against "
+                     f"{head.error_term or 'the residual'} (see the partition's 'tested against' column).")
     fixed = [t.factors[0] for t in terms if t.role == "main effect"]
     pair = (head.factors[0], head.factors[1]) if head.role == "interaction" else (
         (fixed[0], fixed[1]) if len(fixed) >= 2 and not spec.is_mixed else None)
     return Decision(term=head.term, factors=head.factors, role=head.role, verdict=head.verdict,
                     significant=head.significant, pvalue=head.pvalue, statistic=head.statistic, df_num=head.df_num,
-                    df_den=head.df_den, test=spec.test, test_label=TEST_LABELS[spec.test], method=method,
+                    df_den=head.df_den, test=spec.test, test_label=test_label, method=method,
                     alpha=spec.alpha, caveat=caveat, terms=tuple(terms), notes=tuple(notes),
-                    pair=None if spec.is_mixed else pair)
+                    pair=None if spec.is_mixed else pair, error_term=head.error_term)
 
 
 def _no_term(results: Results, notes: list[str]) -> Decision:
