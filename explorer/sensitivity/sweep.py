@@ -47,41 +47,34 @@ import numpy as np
 import pandas as pd
 
 from ..engine.disclosure import Disclosure
-from ..engine.errors import DataError, DesignError, ExplorerError, closest_names
+from ..engine.errors import DesignError
 from ..engine.numerics import response_scale
 from ..engine.oneway import fit_oneway
 from ..engine.results import Results
-from ..engine.spec import OVERALL_TESTS, alpha_or
+from ..engine.spec import alpha_or
 from ..engine.tables import html_table
-from ..engine.transforms import NAMED, check_transform, with_transform
 from ..formatting import result_frame, show_p
 from ..inference.omnibus import overall_test
-from ..inference.outliers import bonferroni_outlier_test
 from ..rendering import html_repr
 from .alternatives import OnewayInput
 from .case_deletion import nullable
-from .influence import influence_measures
+from .cell_sweep import factorial_rows
 from .scan_target import scan_target
 from .study_like import StudyLike
+from .sweep_choices import (
+    DEFAULT_TESTS,
+    OUTLIER_RULES,
+    TESTS,
+    TRANSFORMS,
+    check_merge_names,
+    check_options,
+    check_transforms,
+    outlier_keep,
+    transformed_responses,
+)
 from .sweep_coincide import distinct_analyses
 
 __all__ = ["OUTLIER_RULES", "TESTS", "TRANSFORMS", "SweepResult", "robustness_sweep"]
-
-#: Outlier rules: name -> plain description.
-OUTLIER_RULES = {
-    "none": "keep every row",
-    "studentized": "leave out |external studentized residual| > 3",
-    "cooks": "leave out Cook's distance > 4/n",
-    "outlier_test": "leave out rows the Bonferroni outlier test flags",
-}
-#: Overall tests: name -> plain description (the study's tests, :data:`.spec.OVERALL_TESTS`).
-TESTS = dict(OVERALL_TESTS)
-#: Tests swept by default after the study's own.
-DEFAULT_TESTS = ("classic", "welch", "kruskal")
-#: Response transforms by name: name -> plain description (a number is a Box-Cox power).
-TRANSFORMS = NAMED
-#: Transforms swept besides the study's own when none are listed.
-DEFAULT_TRANSFORMS = ("none", "log")
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -172,92 +165,12 @@ def _fit(yt: np.ndarray, codes: np.ndarray, labels: tuple[str, ...], data: Onewa
 
 
 def _check_merges(data: OnewayInput, merges: Sequence[Sequence[str]]) -> list[tuple[str, ...]]:
-    return _check_merge_names(data.factor, data.labels, merges)
-
-
-def _check_merge_names(factor: str, labels: tuple[str, ...], merges: Sequence[Sequence[str]]) -> list[tuple[str, ...]]:
-    out = []
-    for m in merges:
-        if isinstance(m, str):
-            raise ExplorerError("each plausible merge is a list of level names, e.g. merges=[['N2', 'N3']]")
-        names = tuple(str(x) for x in m)
-        for lv in names:
-            if lv not in labels:
-                near = closest_names(lv, labels)
-                hint = f" Did you mean {near[0]!r}?" if near else ""
-                raise ExplorerError(f"merge {list(names)}: {factor!r} has no level {lv!r} with kept rows "
-                                    f"(levels: {list(labels)}).{hint}")
-        if len(set(names)) < 2:
-            raise ExplorerError(f"merge {list(names)} needs two or more different levels")
-        out.append(names)
-    return out
-
-
-def _check_options(name: str, chosen: Sequence[str], known: dict[str, str]) -> tuple[str, ...]:
-    chosen = tuple(chosen)
-    bad = [c for c in chosen if c not in known]
-    if bad or not chosen:
-        raise ExplorerError(f"{name} must be a non-empty list from {list(known)}; got {list(chosen)}")
-    return chosen
-
-
-def transform_name(t: object) -> str:
-    """The sweep's name of a transform: 'none', 'log', 'sqrt' or 'power 0.37' (a Box-Cox power)."""
-    return t if isinstance(t, str) else f"power {float(t):g}"  # type: ignore[arg-type]
-
-
-def _check_transforms(transforms: Sequence[object] | None, current: object) -> tuple[object, ...]:
-    """Canonical transforms (the study's own first by default), each once."""
-    if transforms is None:
-        transforms = (current, *DEFAULT_TRANSFORMS)
-    if isinstance(transforms, str) or not len(transforms):
-        raise ExplorerError(f"transforms must be a non-empty list from {list(TRANSFORMS)} or Box-Cox powers; "
-                            f"got {transforms!r}")
-    out = []
-    for t in transforms:
-        try:
-            c = check_transform(t)
-        except ExplorerError as exc:
-            raise ExplorerError(f"transforms: {exc}") from None
-        if c not in out:
-            out.append(c)
-    return tuple(out)
-
-
-def _responses(dataset: object, positions: np.ndarray, transforms: Sequence[object], notes: list[str]
-               ) -> dict[str, tuple[np.ndarray, float]]:
-    """The response of the rows at ``positions`` on the shifted scale for each transform.
-
-    Each transform starts from the values as measured (the study's own transform is the
-    study's dataset as it is, bit for one bit); one the response cannot take (the log of
-    zero) is left out with a note.
-    """
-    out: dict[str, tuple[np.ndarray, float]] = {}
-    for t in transforms:
-        try:
-            ds = with_transform(dataset, t)  # type: ignore[arg-type]
-        except DataError as exc:
-            notes.append(f"{transform_name(t).capitalize()} transform left out: {exc}")
-            continue
-        out[transform_name(t)] = (np.asarray(ds.y)[positions], float(ds.offset))
-    return out
-
-
-def _outlier_keep(res: Results, rule: str, alpha: float, scale: float, row_ids: np.ndarray) -> np.ndarray:
-    """Rows of ``res.fit`` kept by an outlier rule (one pass on that fit)."""
-    f = res.fit
-    if rule == "none":
-        return np.ones(f.row_ids.size, dtype=bool)
-    if rule == "outlier_test":
-        flagged = bonferroni_outlier_test(res, alpha=alpha).flagged
-        return ~np.isin(row_ids, np.asarray(flagged, dtype=row_ids.dtype))
-    infl = influence_measures(f.residuals, f.leverage, res.df_resid, alpha=alpha, scale=scale)
-    return ~infl.flagged("studentized" if rule == "studentized" else "cooks_4_over_n")
+    return check_merge_names(data.factor, data.labels, merges)
 
 
 def _oneway_rows(study, data, outlier_rules, tests, transforms, merges, a, notes):  # type: ignore[no-untyped-def]
     merge_list = _check_merges(data, merges)
-    responses = _responses(study.dataset, data.positions, transforms, notes)
+    responses = transformed_responses(study.dataset, data.positions, transforms, notes)
     subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
     spec = study.spec
     rows = []
@@ -270,7 +183,7 @@ def _oneway_rows(study, data, outlier_rules, tests, transforms, merges, a, notes
             for rule in outlier_rules:
                 keep = np.ones(data.n, dtype=bool)
                 if isinstance(fit_all, Results):
-                    keep = _outlier_keep(fit_all, rule, a, scale, data.row_ids)
+                    keep = outlier_keep(fit_all, rule, a, scale, data.row_ids)
                 res = _fit(yt, codes, labels, data, keep, off, spec)
                 left_out = data.row_ids[~keep].tolist()
                 for test in tests:
@@ -288,78 +201,6 @@ def _oneway_rows(study, data, outlier_rules, tests, transforms, merges, a, notes
                         "statistic": stat, "df (term)": d1, "df (residual)": d2, "p-value": p, "note": note,
                     })
     return rows, responses
-
-
-def _factorial_rows(study, term, outlier_rules, transforms, merges, a, notes):  # type: ignore[no-untyped-def]
-    """Specifications of a factorial or block design, each analysed by the engine on a derived view.
-
-    Merges pool levels of the first treatment factor; outlier rules read the fit of the
-    specification (influence measures from its cell-level leverages); ``term``'s F test
-    is read from each.
-    """
-    import dataclasses
-
-    from ..engine.analysis import analyze
-    from ..engine.edits import MergeLevels
-
-    dataset, view, spec = study.dataset, study.view, study.spec
-    factor = spec.factors[0]
-    kept_pos = np.flatnonzero(view.kept)
-    present = tuple(lv for i, lv in enumerate(view.levels[factor]) if np.any(view.codes[factor][kept_pos] == i))
-    merge_list = _check_merge_names(factor, present, merges)
-    all_resp = _responses(dataset, np.arange(dataset.n), transforms, notes)
-    subsets = [c for r in range(len(merge_list) + 1) for c in itertools.combinations(range(len(merge_list)), r)]
-    rows = []
-    for t, (yt, off) in all_resp.items():
-        ds = dataclasses.replace(dataset, y=yt, offset=off)
-        scale = response_scale(off, yt[kept_pos])
-        for subset in subsets:
-            merge_name = "; ".join("+".join(merge_list[i]) for i in subset) or "none"
-            v = view
-            for group in _pooled_groups(present, [merge_list[i] for i in subset]):
-                v = MergeLevels(factor=factor, levels=group, into="+".join(group), reason="sweep").apply(v, ds)
-            try:
-                fit_all: Results | str = analyze(ds, v, spec)
-            except DesignError as exc:
-                fit_all = str(exc)
-            for rule in outlier_rules:
-                keep_fit = None
-                res: Results | str = fit_all
-                left_out: list = []
-                if isinstance(fit_all, Results) and rule != "none":
-                    keep_fit = _outlier_keep(fit_all, rule, a, scale, np.asarray(fit_all.fit.row_ids))
-                    drop_pos = np.asarray(fit_all.fit.positions)[~keep_fit]
-                    left_out = np.asarray(fit_all.fit.row_ids)[~keep_fit].tolist()
-                    if drop_pos.size:
-                        kept = v.kept.copy()
-                        kept[drop_pos] = False
-                        try:
-                            res = analyze(ds, v.replace(kept=kept), spec)
-                        except DesignError as exc:
-                            res = str(exc)
-                stat = d1 = d2 = p = None
-                note = res if isinstance(res, str) else " ".join(res.partition.notes) if res.pvalue(term) is None else ""
-                if isinstance(res, Results):
-                    row = res.partition.row(term)
-                    stat, d1, d2, p = row.statistic, float(row.df), float(res.df_resid), row.pvalue
-                n_used = res.n_used if isinstance(res, Results) else int(kept_pos.size) - len(left_out)
-                levels = len(res.levels[factor].labels) if isinstance(res, Results) else None
-                rows.append({
-                    "outlier rule": rule, "test": "classic", "transform": t, "merges": merge_name,
-                    "n": n_used, "levels": levels, "rows left out": left_out, "left out": len(left_out),
-                    "statistic": stat, "df (term)": d1, "df (residual)": d2, "p-value": p, "note": note,
-                })
-    return rows, all_resp
-
-
-def _pooled_groups(present: tuple[str, ...], chosen: list[tuple[str, ...]]) -> list[tuple[str, ...]]:
-    """Chosen merges pooled transitively (overlapping merges become one group)."""
-    groups: list[set[str]] = []
-    for m in chosen:
-        hit = [g for g in groups if g & set(m)]
-        merged = set(m).union(*hit) if hit else set(m)
-        groups = [g for g in groups if not (g & set(m))] + [merged]
-    return [tuple(lv for lv in present if lv in g) for g in groups]
 
 
 def robustness_sweep(
@@ -424,11 +265,11 @@ def robustness_sweep(
     target = scan_target(study, "robustness sweep", term)
     name, verdict = target.term, target.verdict
     a = alpha_or(alpha, spec.alpha)
-    outlier_rules = _check_options("outlier_rules", outlier_rules, OUTLIER_RULES)
+    outlier_rules = check_options("outlier_rules", outlier_rules, OUTLIER_RULES)
     if tests is None:
         tests = tuple(dict.fromkeys((spec.test, *DEFAULT_TESTS)))
-    tests = _check_options("tests", tests, TESTS)
-    transforms = _check_transforms(transforms, spec.transform)
+    tests = check_options("tests", tests, TESTS)
+    transforms = check_transforms(transforms, spec.transform)
     notes: list[str] = []
     if target.oneway is not None:
         rows, responses = _oneway_rows(study, target.oneway, outlier_rules, tests, transforms, merges, a, notes)
@@ -437,7 +278,7 @@ def robustness_sweep(
             notes.append("Welch, Brown-Forsythe, rank and permutation tests are one-factor tests; this design is swept "
                          "with the classic F test only.")
             tests = ("classic",)
-        rows, responses = _factorial_rows(study, name, outlier_rules, transforms, merges, a, notes)
+        rows, responses = factorial_rows(study, name, outlier_rules, transforms, merges, a, notes)
     notes.insert(0, f"Scored: the decision on {name}; the default specification is the study's own analysis "
                     f"({tests[0]} test).")
     every = pd.DataFrame(rows)
