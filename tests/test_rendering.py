@@ -243,3 +243,25 @@ def test_pages_carry_the_one_stylesheet(tmp_path):
     assert page.count(rendering.STYLESHEET) == 1 and page.count("<style") == 1
     body = page.split("</head>", 1)[1]
     assert not re.search(r"<(?!svg|path|rect|line|text|circle|g\b|polyline|polygon)[a-z]+[^>]*\sstyle=", body)
+
+
+def test_no_module_writes_its_own_styles():
+    """Read from the source: no string of the kit holds a ``style`` attribute, and only the renderer and
+    the two pages that carry its stylesheet (the explorer's, the report's) write a ``<style>`` element."""
+    import io
+    import tokenize
+    from pathlib import Path
+
+    root = Path(explorer.__file__).parent
+    pages = {"rendering.py", "widget/stylesheet.py", "report/html_report.py"}
+    found = []
+    for path in sorted(root.rglob("*.py")):
+        rel = path.relative_to(root).as_posix()
+        for tok in tokenize.generate_tokens(io.StringIO(path.read_text(encoding="utf-8")).readline):
+            if tok.type != tokenize.STRING and tok.type != getattr(tokenize, "FSTRING_MIDDLE", -1):
+                continue
+            if re.search(r"\sstyle\s*=\s*['\"\\{]", tok.string):
+                found.append(f"{rel}:{tok.start[0]}: style attribute")
+            if "<style" in tok.string and rel not in pages:
+                found.append(f"{rel}:{tok.start[0]}: <style> element")
+    assert not found, found
