@@ -234,3 +234,32 @@ def test_bad_contrasts_are_refused_with_a_reason():
         contrasts(res, "dose", {"0.5": -1, "2": 1}, adjust="tukey")
     with pytest.raises(ExplorerError, match="not numbers"):
         trend(ex.Study(pd.DataFrame({"y": [1., 2, 3, 4, 5, 6], "g": list("aabbcc")}), "y", "g").results, "g")
+
+
+@pytest.mark.parametrize("scale", [1e300, 1e-300, 3.0])
+def test_weights_of_any_scale_give_the_same_test(scale):
+    """Weights near 1e300 or 1e-300: t and p as statsmodels t_test with unit weights, estimate and SE scaled
+    (before, the variance overflowed to inf and gave t = 0, p = 1, or underflowed to a 'zero residual' error)."""
+    df = dose_frame()
+    res = ex.Study(df, "thickness", "dose").results
+    ref = _sm_oneway(df).t_test(np.array([[-1.0, 0, 0, 1]]))
+    got = contrasts(res, "dose", {"0.5": -scale, "4": scale})
+    assert got.statistic[0] == pytest.approx(float(np.ravel(ref.tvalue)[0]), rel=1e-10)
+    assert got.pvalue[0] == pytest.approx(float(ref.pvalue), rel=1e-8)
+    assert got.estimate[0] == pytest.approx(scale * float(ref.effect[0]), rel=1e-10)
+    assert got.se[0] == pytest.approx(scale * float(np.ravel(ref.sd)[0]), rel=1e-10)
+
+
+def test_weights_beyond_floating_point_are_refused():
+    res = ex.Study(dose_frame(), "thickness", "dose").results
+    with pytest.raises(ExplorerError, match="beyond the range of floating point"):
+        contrasts(res, "dose", {"0.5": -1e308, "4": 1e308, "1": 1e308, "2": -1e308})
+
+
+@pytest.mark.parametrize("degree", [0, 4, 1.5, True, "2"])
+def test_trend_degree_outside_the_levels_is_refused(degree):
+    """Four levels: degrees 1 to 3 only (before, 0 raised ZeroDivisionError, 4 gave four names for three rows,
+    1.5 was read as 1)."""
+    res = ex.Study(dose_frame(), "thickness", "dose").results
+    with pytest.raises(ExplorerError, match="the degree must be a whole number between 1 and 3"):
+        trend(res, "dose", degree=degree)

@@ -328,7 +328,14 @@ def build_dataset(
     if set_aside:
         notes.append(f"{len(set_aside)} row(s) set aside at load for missing values (see study.set_aside).")
     if not usable.any():
-        raise DataError(f"every row has a missing {response!r} or factor value; nothing to analyse")
+        counts: dict[str, int] = {}
+        for r in reasons.values():
+            for why in r:
+                counts[why] = counts.get(why, 0) + 1
+        worst = [f"{why.removeprefix('missing ')!r} on {'all ' if n == len(frame) else ''}{n} rows"
+                 for why, n in sorted(counts.items(), key=lambda kv: -kv[1])[:3]]
+        raise DataError(f"every row has a missing {response!r}, factor or covariate value (missing "
+                        f"{', '.join(worst)}); nothing to analyse")
 
     # Exact shift of the response, then an exact power-of-two unit when squares would overflow or underflow.
     if response in texts:

@@ -49,7 +49,10 @@ def parse_term(term: str | Sequence[str], columns: Sequence[str]) -> tuple[str, 
     column whose name contains a separator is still found).
     """
     if not isinstance(term, str):
-        parts = tuple(str(t) for t in term)
+        if not isinstance(term, (list, tuple)) or not all(isinstance(t, str) for t in term):
+            raise ExplorerError(f"a model term is a column name or a list of column names, not {term!r}; "
+                                "e.g. terms=['N', 'P', 'N × P'] or [('N',), ('P',), ('N', 'P')]")
+        parts = tuple(term)
     elif term in columns:
         parts = (term,)
     else:

@@ -247,6 +247,15 @@ def _check(k: int) -> int:
     return int(k)
 
 
+def _check_df(df: np.ndarray | float) -> np.ndarray:
+    d = np.asarray(df, dtype=float)
+    bad = ~(d > 0)  # NaN, zero and negative
+    if bad.any():
+        raise ExplorerError(f"the degrees of freedom must be positive (inf allowed), not {d[bad].ravel()[0]!r}"
+                            + (f" ({int(bad.sum())} such values)" if bad.sum() > 1 else ""))
+    return d
+
+
 def srange_sf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarray:
     """Upper-tail probability ``P(Q > q)`` of the studentized range (vectorised over q and df).
 
@@ -262,7 +271,7 @@ def srange_sf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarr
     Returns
     -------
     numpy.ndarray
-        The tail probabilities, accurate relative to their size down to about 1e-15.
+        The tail probabilities (NaN where q is NaN). Degrees of freedom must be positive.
 
     References
     ----------
@@ -278,8 +287,10 @@ def srange_sf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarr
     """
     k = _check(k)
     q = np.asarray(q, dtype=float)
-    sf, _ = _sf_pdf(np.maximum(q, 0.0), k, np.asarray(df, dtype=float))
-    return np.clip(np.where(q <= 0, 1.0, sf), 0.0, 1.0)
+    df = _check_df(df)
+    nan = np.isnan(q)
+    sf, _ = _sf_pdf(np.where(nan, 0.0, np.maximum(q, 0.0)), k, df, want_pdf=False)
+    return np.where(np.broadcast_to(nan, sf.shape), np.nan, np.clip(np.where(q <= 0, 1.0, sf), 0.0, 1.0))
 
 
 def srange_cdf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarray:
@@ -408,7 +419,7 @@ def srange_ppf(p: float, k: int, df: np.ndarray | float, *, tol: float = 1e-12) 
     k = _check(k)
     if not 0.5 <= p < 1:
         raise ExplorerError(f"probability must be in [0.5, 1) for studentized-range quantiles, not {p!r}")
-    df = np.atleast_1d(np.asarray(df, dtype=float))
+    df = np.atleast_1d(_check_df(df))
     q0 = _ppf_infinite_df(float(p), k)
     out = np.full(df.shape, q0)
     finite = np.isfinite(df)

@@ -53,6 +53,7 @@ from ..rendering import html_repr
 from .level_means import LevelMeans, level_means
 
 __all__ = [
+    "check_weight_spec", "weight_sets",
     "ADJUSTMENTS", "ContrastTable", "JointTest", "contrasts", "control_contrasts", "later_levels_contrasts",
     "contrast_table", "parse_weights",
 ]
@@ -185,15 +186,44 @@ def _one(weights: Mapping[Any, Any], lm: LevelMeans, name: str) -> np.ndarray:
     for level, w in weights.items():
         i = lm.index(str(level) if not isinstance(level, str) else level, what=f"contrast {name!r}: level")
         c[i] += _number(w, f"contrast {name!r}, level {level!r}")
-    scale = float(np.max(np.abs(c)))
+    _sum_check(c, name)
+    return c
+
+
+def _sum_check(c: np.ndarray, name: str) -> None:
+    scale = float(np.max(np.abs(c))) if c.size else 0.0
     if scale == 0:
         raise ExplorerError(f"contrast {name!r} has every weight zero")
-    if abs(float(np.sum(c))) > 1e-9 * scale * len(c):
+    if abs(float(np.sum(c / scale))) > 1e-9 * len(c):
         raise ExplorerError(
             f"contrast {name!r}: the weights sum to {float(np.sum(c)):.6g}, not zero; a contrast compares means, so "
             "its weights sum to zero (e.g. {'a': -1, 'b': 0.5, 'c': 0.5})"
         )
-    return c
+
+
+def weight_sets(spec: Any) -> list[tuple[str, Any]]:
+    """``(name, {level: weight})`` pairs of a user's contrast specification (names may be empty)."""
+    if isinstance(spec, Mapping) and spec and all(isinstance(v, Mapping) for v in spec.values()):
+        return [(str(k), v) for k, v in spec.items()]
+    if isinstance(spec, Mapping):
+        return [("", spec)]
+    if isinstance(spec, Sequence) and not isinstance(spec, (str, bytes)) and spec:
+        return [(f"contrast {i + 1}", v) for i, v in enumerate(spec)]
+    raise ExplorerError("contrasts are given as {level: weight}, {name: {level: weight}} or a list of "
+                        f"{{level: weight}}; got {spec!r}")
+
+
+def check_weight_spec(spec: Any) -> None:
+    """The checks on contrast weights that need no data: shape, numbers, finite, not all zero, sum zero.
+
+    Run when a request is made or read from a study file, so a broken request is refused
+    before it is kept (the level names are checked against the data when it runs).
+    """
+    for name, w in weight_sets(spec):
+        label = name or "contrast"
+        if not isinstance(w, Mapping) or not w:
+            raise ExplorerError(f"contrast {label!r}: give the weights as {{level: weight}}, e.g. {{'0.5': -1, '2': 1}}")
+        _sum_check(np.array([_number(v, f"contrast {label!r}, level {k!r}") for k, v in w.items()]), label)
 
 
 def parse_weights(spec: Any, lm: LevelMeans) -> tuple[tuple[str, ...], np.ndarray]:
@@ -202,15 +232,7 @@ def parse_weights(spec: Any, lm: LevelMeans) -> tuple[tuple[str, ...], np.ndarra
     ``spec`` is one mapping ``{level: weight}``, a mapping ``{name: {level: weight}}``, or a
     list of ``{level: weight}`` mappings (named 'contrast 1', 'contrast 2', ...).
     """
-    if isinstance(spec, Mapping) and spec and all(isinstance(v, Mapping) for v in spec.values()):
-        items = [(str(k), v) for k, v in spec.items()]
-    elif isinstance(spec, Mapping):
-        items = [("", spec)]
-    elif isinstance(spec, Sequence) and not isinstance(spec, (str, bytes)) and spec:
-        items = [(f"contrast {i + 1}", v) for i, v in enumerate(spec)]
-    else:
-        raise ExplorerError("contrasts are given as {level: weight}, {name: {level: weight}} or a list of "
-                            f"{{level: weight}}; got {spec!r}")
+    items = weight_sets(spec)
     names, rows = [], []
     for name, w in items:
         c = _one(w, lm, name or "contrast")
@@ -270,16 +292,26 @@ def contrast_table(
         raise ExplorerError(f"confidence must be between 0 and 1, not {confidence!r}")
     adj = _check_adjust(adjust if adjust is not None else ("none" if m == 1 else "holm"), family,
                         results.spec.is_oneway)
-    est = c @ lm.shifted  # weights sum to zero: the offset cancels
-    cov = c @ lm.covariance @ c.T
+    # Each contrast is computed with its weights scaled to a largest weight of 1 and the estimate and
+    # standard error scaled back: t and p do not depend on the scale, and weights near 1e300 or 1e-300
+    # neither overflow nor underflow the variance.
+    scale = np.max(np.abs(c), axis=1)
+    cn = c / scale[:, None]
+    est_n = cn @ lm.shifted  # weights sum to zero: the offset cancels
+    cov = cn @ lm.covariance @ cn.T
     var = np.diag(cov).copy()
-    se = np.sqrt(np.maximum(var, 0.0))
+    se_n = np.sqrt(np.maximum(var, 0.0))
     df = lm.df
     out_notes = list(notes)
-    if not np.all(se > 0):
+    if not np.all(se_n > 0):
         raise DesignError("the contrasts have no standard error: the residual mean square is zero "
                           "(every observation equals its fitted value)")
-    t = est / se
+    t = est_n / se_n
+    with np.errstate(over="ignore"):
+        est, se = est_n * scale, se_n * scale
+    if not (np.all(np.isfinite(est)) and np.all(np.isfinite(se))):
+        raise ExplorerError(f"contrast weights as large as {float(np.max(scale)):g} put the estimate beyond the range "
+                            "of floating point; scale the weights down (t and p do not depend on the scale)")
     p = np.asarray(t_two_sided_p(t, df), dtype=float)
     interval = {"none": "per contrast", "holm": "Bonferroni", "bonferroni": "Bonferroni", "scheffe": "Scheffe",
                 "dunnett": "Dunnett"}[adj]
@@ -309,7 +341,7 @@ def contrast_table(
         corr = cov / np.sqrt(np.outer(var, var))
     off = ~np.eye(m, dtype=bool)
     orth = bool(m == 1 or np.all(np.abs(corr[off]) < 1e-9))
-    w_orth = bool(m == 1 or np.all(np.abs((c @ c.T)[off]) < 1e-9 * float(np.max(np.abs(c))) ** 2))
+    w_orth = bool(m == 1 or np.all(np.abs((cn @ cn.T)[off]) < 1e-9))
     if m > 1:
         if orth:
             out_notes.append("The estimates are uncorrelated (orthogonal contrasts under this design).")

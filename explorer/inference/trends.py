@@ -149,10 +149,12 @@ def trend(
     """
     lm = level_means(results, factor)
     k = len(lm.labels)
-    if k < 3 and (degree is None or degree > 1):
-        degree = 1
     if k < 2:
         raise ExplorerError(f"{lm.factor!r} needs two or more levels with kept rows for a trend")
+    if degree is not None and (isinstance(degree, bool) or not isinstance(degree, (int, np.integer, float))
+                               or degree != int(degree) or not 1 <= degree <= k - 1):
+        raise ExplorerError(f"the degree must be a whole number between 1 and {k - 1} (one less than the {k} levels of "
+                            f"{lm.factor!r} with kept rows), not {degree!r}")
     if weighting not in ("equal", "counts"):
         raise ExplorerError(f"weighting must be 'equal' or 'counts', not {weighting!r}")
     if weighting == "counts" and lm.kind != "level means":

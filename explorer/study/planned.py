@@ -30,7 +30,7 @@ from ..rendering import html_repr, note
 if TYPE_CHECKING:
     from ..engine.results import Results
 
-__all__ = ["KINDS", "PlannedAnalyses", "PlannedOutcome", "PlannedRequest", "planned_from_doc"]
+__all__ = ["KINDS", "PlannedAnalyses", "PlannedOutcome", "PlannedRequest", "check_options", "planned_from_doc"]
 
 
 def _contrast(results: Results, factor: str, weights: Any, control: str | None = None, adjust: str | None = None,
@@ -134,6 +134,45 @@ def _plain(value: Any, where: str, depth: int = 0) -> Any:
     raise ExplorerError(f"{where}: a value of type {type(value).__name__} cannot be kept with the study")
 
 
+def _share(x: Any, what: str, low: float, high: float, *, open_low: bool = True) -> None:
+    if isinstance(x, bool) or not isinstance(x, (int, float)) or not (low < x < high if open_low else low <= x < high):
+        raise ExplorerError(f"{what} must be between {low:g} and {high:g}, not {x!r}")
+
+
+def check_options(kind: str, options: Mapping[str, Any]) -> None:
+    """The checks on a request's options that need no data (margins, weights, degrees, shares).
+
+    Run when a request is made and when it is read from a study file, so a broken request
+    is refused before it is kept; checks against the data (level names, the number of
+    levels) run when the request runs.
+    """
+    from ..inference.contrasts import check_weight_spec
+    from ..inference.equivalence import parse_margin
+
+    if kind == "equivalence":
+        parse_margin(options.get("margin"))
+    if kind == "contrast":
+        weights = options.get("weights")
+        if isinstance(weights, str):
+            if weights not in ("control", "later"):
+                raise ExplorerError(f"contrast weights are {{level: weight}}, or the sets 'control' and 'later'; "
+                                    f"not {weights!r}")
+            if weights == "control" and options.get("control") is None:
+                raise ExplorerError("the 'control' set needs control=level")
+        else:
+            check_weight_spec(weights)
+    degree = options.get("degree")
+    if kind == "trend" and degree is not None and (isinstance(degree, bool) or not isinstance(degree, int)
+                                                   or degree < 1):
+        raise ExplorerError(f"the degree must be a whole number of at least 1, not {degree!r}")
+    if "trim" in options:
+        _share(options["trim"], "trim (the share cut from each end)", 0.0, 0.5, open_low=False)
+    if "confidence" in options:
+        _share(options["confidence"], "confidence", 0.0, 1.0)
+    if "alpha" in options:
+        _share(options["alpha"], "alpha", 0.0, 1.0)
+
+
 @dataclass(frozen=True)
 class PlannedRequest:
     """One planned analysis asked for: its kind, the factor it reads and its options (plain values)."""
@@ -153,6 +192,7 @@ class PlannedRequest:
         if factor is not None and not isinstance(factor, str):
             raise ExplorerError(f"{kind}: the factor is a column name (text), not {factor!r}")
         kept = tuple(sorted((k, _plain(v, f"{kind} option {k!r}")) for k, v in options.items() if v is not None))
+        check_options(kind, dict(kept))
         return cls(kind=kind, factor=factor, options=kept)
 
     @property

@@ -21,7 +21,7 @@ from ..engine.analysis import analyze
 from ..engine.dataset import Dataset, RowId, SetAsideRow, build_dataset
 from ..engine.disclosure import Disclosure
 from ..engine.edits import DropRows, DropUnit, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, RestoreUnit
-from ..engine.errors import DesignError, EditError, ReplayError
+from ..engine.errors import DesignError, EditError, ExplorerError, ReplayError
 from ..engine.moves import MovedRow, moved_rows
 from ..engine.results import Results
 from ..engine.spec import ModelSpec
@@ -120,7 +120,7 @@ class Study(PlannedAnalyses):
         blocks_t = column_names(blocks, "blocks") if isinstance(blocks, str) or blocks else ()
         spec = ModelSpec(response=response, factors=factors_t, blocks=blocks_t,
                          interactions=interactions, ss_type=ss_type, alpha=alpha,  # type: ignore[arg-type]
-                         terms=None if terms is None else tuple(terms),  # type: ignore[arg-type]
+                         terms=terms if terms is None or isinstance(terms, str) else tuple(terms),  # type: ignore[arg-type]
                          max_order=max_order, random=random, nested=nested or (),  # type: ignore[arg-type]
                          subject=subject, within=within,  # type: ignore[arg-type]
                          variance_method=variance_method, test=test, transform=transform,  # type: ignore[arg-type]
@@ -421,7 +421,12 @@ class Study(PlannedAnalyses):
     def from_dict(cls, doc: dict[str, Any], data: pd.DataFrame | str | Path, *, allow_mismatch: bool = False) -> "Study":
         """Replay a saved study given as a dict (checked against the study-file schema first)."""
         check_study_doc(doc)
-        spec = ModelSpec.from_dict(doc["spec"])
+        try:
+            spec = ModelSpec.from_dict(doc["spec"])
+        except ReplayError:
+            raise
+        except ExplorerError as exc:
+            raise ReplayError(f"the study file: spec: {exc}") from None
         dataset = build_dataset(data, spec.response, spec.columns, doc["data"].get("id_column"), spec.covariates)
         problem = describe_mismatch(doc, dataset)
         if problem and not allow_mismatch:
