@@ -106,3 +106,18 @@ def test_quantiles_at_many_df_are_interpolated_accurately() -> None:
         assert got[i] == pytest.approx(stats.studentized_range.ppf(0.95, 30, df[i]), rel=1e-8)
     np.testing.assert_allclose(srange_cdf(got[pick], 30, df[pick]), 0.95, atol=1e-9)
     assert srange_ppf(0.95, 30, np.append(df, np.inf))[-1] == pytest.approx(srange_ppf(0.95, 30, np.inf)[0])
+
+
+@pytest.mark.parametrize("df", [5, 18, np.inf])
+def test_tails_that_round_to_one_are_one(df: float) -> None:
+    """Where P(Q <= q) is below half a unit in the last place of 1 (scipy.stats.studentized_range.cdf), the
+    tail is 1.0 (exactly, when the bound on P(Q <= q) shows it without integrating); just above, it is
+    integrated and matches scipy's sf."""
+    q = np.array([0.5, 1.0, 1.5, 2.0])
+    lower = np.array([stats.studentized_range.cdf(x, 2000, df) for x in q])
+    keep = lower < 5.5e-17
+    assert keep.sum() >= 2 and srange_sf(0.5, 2000, df) == 1.0
+    np.testing.assert_allclose(srange_sf(q[keep], 2000, df), 1.0, rtol=0, atol=2.3e-16)
+    near = np.array([3.5, 4.0, 5.0])
+    np.testing.assert_allclose(srange_sf(near, 2000, df), [stats.studentized_range.sf(x, 2000, df) for x in near],
+                               rtol=1e-9, atol=1e-15)

@@ -119,6 +119,51 @@ def _log_range_width(k: int) -> float:
     return float((np.log(w90) - np.log(w10)) / 2.563)
 
 
+@lru_cache(maxsize=64)
+def _range_cdf_floor(k: int) -> float:
+    """A range ``w`` below which ``P(range <= w) < 1e-18`` for k normals (0 when none is found).
+
+    ``P(range <= w) = k int phi(z) [Phi(z) - Phi(z - w)]^(k-1) dz`` summed in logs (the
+    difference taken on the side where it does not cancel), on a grid of w in steps of 1/64.
+    The bound is set 1e-18, not the 5.5e-17 that rounds ``1 - P`` to 1, as a margin for the
+    quadrature (scipy gives 1.9e-17 where this gives 1e-17 at k = 2,000).
+    """
+    h = 1.0 / 64.0
+    z = np.arange(-12.0, 12.0 + h / 2, h)
+    w = np.arange(1.0 / 64.0, _W_MAX, 1.0 / 64.0)
+    zw = z[None, :] - w[:, None]
+    upper = z[None, :] > w[:, None] / 2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        diff = np.where(upper, special.ndtr(-zw) - special.ndtr(-z)[None, :], special.ndtr(z)[None, :] - special.ndtr(zw))
+        log_in = -0.5 * z * z - 0.5 * np.log(2 * np.pi) + (k - 1) * np.log(np.maximum(diff, 0.0))
+    peak = np.max(log_in, axis=1, keepdims=True)
+    with np.errstate(invalid="ignore", under="ignore"):
+        log_cdf = np.log(k * h) + peak[:, 0] + np.log(np.exp(log_in - peak).sum(axis=1))
+    below = np.flatnonzero(~(log_cdf < np.log(1e-18)))
+    first = int(below[0]) if below.size else w.size
+    return float(w[first - 1]) if first > 0 else 0.0
+
+
+#: df grid (ratio 1.01) holding the point above which S = sqrt(chi2_df / df) has probability below 1e-17.
+_S0_DF = np.exp(np.arange(np.log(0.25), np.log(1e8), np.log(1.01)))
+_S0 = np.sqrt(special.chdtri(_S0_DF, 1e-17) / _S0_DF)
+
+
+def _certainly_one(q: np.ndarray, k: int, df: np.ndarray) -> np.ndarray:
+    """Points whose upper tail is 1 in double precision: ``P(Q <= q) <= P(S > s0) + P(R <= q s0) < 1.1e-17``
+    (below the 5.5e-17 that rounds ``1 - P`` to 1).
+
+    ``s0`` is read at the grid df just below each df (S's tail point falls as df grows, so
+    this overstates it, on the safe side); infinite df has ``s0 = 1``.
+    """
+    floor = _range_cdf_floor(k)
+    if floor <= 0:
+        return np.zeros(q.shape, dtype=bool)
+    at = np.searchsorted(_S0_DF, df, side="right") - 1
+    s0 = np.where(np.isinf(df), 1.0, _S0[np.clip(at, 0, _S0.size - 1)])
+    return (at >= 0) & (q * s0 < floor)
+
+
 _GRID_CACHE: dict[tuple[int, bytes], tuple[np.ndarray, np.ndarray]] = {}
 
 
@@ -134,6 +179,10 @@ def outer_grid(df: np.ndarray, k: int = 2) -> tuple[np.ndarray, np.ndarray]:
         hit = _GRID_CACHE[key] = _grid(dfa, int(np.max(_nodes(dfa, k), initial=1)), k)
     return hit
 
+
+#: Steps of the outer grid as shares of the spreads of log S and log R.
+_STEP_S = 0.5
+_STEP_R = 0.7
 
 #: Node counts a point may get (its own need rounded up): points of one size are computed together.
 _SIZES = np.array([9, 12, 16, 23, 32, 45, 64, 91, 128, 181, 256, 362, 512, 724, 1024, 1448, 2048, 2896, 4096])
@@ -152,7 +201,7 @@ def _nodes(df: np.ndarray, k: int) -> np.ndarray:
     log S (``1 / sqrt(2 nu)``) and log R (:func:`_log_range_width`), at most 0.15; rounded up to
     one of :data:`_SIZES`; one node for infinite df."""
     finite, nu, t_lo, t_hi = _ends(np.asarray(df, dtype=float))
-    h_want = np.minimum(np.minimum(0.5 / np.sqrt(2 * nu), 0.15), 0.5 * _log_range_width(k))
+    h_want = np.minimum(np.minimum(_STEP_S / np.sqrt(2 * nu), 0.15), _STEP_R * _log_range_width(k))
     need = np.ceil((t_hi - t_lo) / h_want) + 1
     sizes = _SIZES[np.minimum(np.searchsorted(_SIZES, need), _SIZES.size - 1)]
     return np.where(finite, sizes, 1).astype(np.int64)
@@ -286,11 +335,15 @@ def srange_sf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarr
     0.0439
     """
     k = _check(k)
-    q = np.asarray(q, dtype=float)
-    df = _check_df(df)
+    q, df = np.broadcast_arrays(np.asarray(q, dtype=float), _check_df(df))
     nan = np.isnan(q)
-    sf, _ = _sf_pdf(np.where(nan, 0.0, np.maximum(q, 0.0)), k, df, want_pdf=False)
-    return np.where(np.broadcast_to(nan, sf.shape), np.nan, np.clip(np.where(q <= 0, 1.0, sf), 0.0, 1.0))
+    qq = np.where(nan, 0.0, np.maximum(q, 0.0))
+    one = _certainly_one(qq, k, df)
+    sf = np.ones(q.shape)
+    rest = ~one
+    if rest.any():
+        sf[rest] = _sf_pdf(qq[rest], k, df[rest], want_pdf=False)[0]
+    return np.where(nan, np.nan, np.clip(np.where(q <= 0, 1.0, sf), 0.0, 1.0))
 
 
 def srange_cdf(q: np.ndarray | float, k: int, df: np.ndarray | float) -> np.ndarray:
