@@ -108,6 +108,7 @@ def _expected_calls(study, data_path):
             calls.append(("rename_level", (e.factor, e.old, e.new), {"reason": e.reason}))
         elif isinstance(e, MergeLevels):
             calls.append(("merge_levels", (e.factor, list(e.levels)), {"into": e.into, "reason": e.reason}))
+    calls.append(("restore_ledger", (json.loads(json.dumps(study.ledger.to_dict())),), {}))
     return calls
 
 
@@ -135,7 +136,7 @@ def test_replay_code_runs_only_the_expected_calls(case):
     assert scope.get("undone", []) == [e.to_dict() for e in study.redo_edits]
     assert scope["original_disclosure"] == study.disclosure.sentence()
     assert set(scope) <= {"__builtins__", "source", "fingerprint", "made_at", "ex", "study", "undone",
-                          "original_disclosure"}
+                          "original_disclosure", "ledger"}
 
 
 PROBE = """

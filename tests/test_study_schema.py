@@ -29,6 +29,7 @@ from explorer.study.schema_check import SCHEMA_FILES, first_violation, load_sche
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "data" / "coating_thickness.csv"
 FORMAT = "variance-explorer/study"
+VERSION = persistence.SCHEMA  # the version this kit writes
 
 
 def _schema_docs() -> list[dict]:
@@ -41,7 +42,7 @@ def _oracle(format_marker: str = FORMAT):
     from referencing import Registry, Resource
 
     registry = Registry().with_resources((d["$id"], Resource.from_contents(d)) for d in _schema_docs())
-    return jsonschema.Draft202012Validator(load_schema(format_marker, 1), registry=registry)
+    return jsonschema.Draft202012Validator(load_schema(format_marker, VERSION), registry=registry)
 
 
 def test_shipped_schemas_are_valid_draft_2020_12_and_packaged():
@@ -68,7 +69,7 @@ def saved_doc(tmp_path_factory) -> dict:
 
 
 def test_a_saved_study_is_valid_for_both_validators(saved_doc):
-    assert first_violation(saved_doc, load_schema(FORMAT, 1), load_schema(FORMAT, 1)["$id"]) is None
+    assert first_violation(saved_doc, load_schema(FORMAT, VERSION), load_schema(FORMAT, VERSION)["$id"]) is None
     assert _oracle().is_valid(saved_doc)
 
 
@@ -130,8 +131,18 @@ BROKEN = [
     ("rows negative", _set((("data", "rows"), -5)), "data.rows"),
     ("fingerprint short", _set((("data", "fingerprint"), "abc")), "data.fingerprint"),
     ("fingerprint a number", _set((("data", "fingerprint"), 12)), "data.fingerprint"),
-    ("searches count negative", _set((("searches", 0, "count"), -1)), "searches[0].count"),
-    ("searches what a number", _set((("searches", 0, "what"), 1)), "searches[0].what"),
+    ("search count negative", _set((("ledger", "entries", -1, "count"), -1)), "ledger.entries[6].count"),
+    ("search what a number", _set((("ledger", "entries", -1, "what"), 1)), "ledger.entries[6].what"),
+    ("ledger kind unknown", _set((("ledger", "entries", 0, "kind"), "exec")), "ledger.entries[0].kind"),
+    ("ledger time with newline", _set((("ledger", "entries", 1, "at"), "2026-03-01T09:30:00Z\nimport os")),
+     "ledger.entries[1].at"),
+    ("ledger time Feb 30", _set((("ledger", "entries", 1, "at"), "2026-02-30T09:30:00Z")), "ledger.entries[1].at"),
+    ("ledger edit missing", _drop("ledger", "entries", 0, "edit"), "ledger.entries[0]"),
+    ("ledger edit time words", _set((("ledger", "entries", 0, "edit", "at"), "soon")), "ledger.entries[0].edit.at"),
+    ("ledger origin a number", _set((("ledger", "entries", 0, "origin"), 3)), "ledger.entries[0].origin"),
+    ("ledger missing", _drop("ledger"), "ledger"),
+    ("ledger understates edits", _set((("ledger", "entries"), [])), "ledger: records 0 edit(s) made"),
+    ("comparisons unknown", _set((("comparisons",), "eyeball")), "comparisons"),
     ("schema text", _set((("schema",), "1")), "schema"),
     ("schema newer", _set((("schema",), 7)), "schema 7"),
 ]
@@ -269,7 +280,7 @@ def valid_doc(draw):
 @given(st.data())
 def test_in_package_validator_agrees_with_jsonschema(data):
     oracle = _oracle()
-    schema = load_schema(FORMAT, 1)
+    schema = load_schema(FORMAT, VERSION)
     doc = data.draw(valid_doc())
     assert first_violation(doc, schema, schema["$id"]) is None and oracle.is_valid(doc)
     broken = data.draw(mutated(doc))
@@ -293,7 +304,7 @@ def summary_doc():
 def test_summary_study_files_are_checked(summary_doc, tmp_path):
     frame, doc = summary_doc
     marker = "variance-explorer/summary-study"
-    schema = load_schema(marker, 1)
+    schema = load_schema(marker, VERSION)
     assert first_violation(doc, schema, schema["$id"]) is None and _oracle(marker).is_valid(doc)
     for mutate, field in [(_set((("edits", 0, "predicate"), 5)), "edits[0].predicate"),
                           (_set((("sample", "size"), -3)), "sample.size"),
@@ -314,7 +325,7 @@ def test_summary_study_files_are_checked(summary_doc, tmp_path):
 @given(st.data())
 def test_summary_validators_agree(summary_doc, data):
     marker = "variance-explorer/summary-study"
-    schema = load_schema(marker, 1)
+    schema = load_schema(marker, VERSION)
     broken = data.draw(mutated(summary_doc[1]))
     ours = first_violation(broken, schema, schema["$id"])
     assert (ours is None) == _oracle(marker).is_valid(broken)
@@ -350,5 +361,5 @@ def test_planned_analyses_are_checked(saved_doc, tmp_path, planned, field):
     path.write_text(json.dumps(doc))
     with pytest.raises(ReplayError, match=field):
         ex.Study.load(path, DEMO)
-    schema = load_schema(FORMAT, 1)
+    schema = load_schema(FORMAT, VERSION)
     assert first_violation(doc, schema, schema["$id"]) is not None and not _oracle().is_valid(doc)

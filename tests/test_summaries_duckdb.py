@@ -376,7 +376,7 @@ def test_row_tools_run_on_the_sample_study(frame):
     assert any("Sample: 80 rows" in n for n in ss.results.notes)
     assert influence(ss).n == 80 and len(case_deletion_scan(ss, record=False).to_frame()) == 80
     assert s.influence().n == 80 and len(s.case_deletion().to_frame()) == 80
-    assert s.disclosure.specifications == 80 and "seeded sample" in s._searches[0]["what"]
+    assert s.disclosure.specifications == 80 and "seeded sample" in s.ledger.of_kind("search")[0].what
     assert s.battery().kruskal_wallis.pvalue is not None
 
 

@@ -16,16 +16,21 @@ class Disclosure:
     """How much searching stands behind the current state.
 
     ``edits_made`` counts every edit ever applied (undone ones too); ``specifications``
-    counts alternative analyses computed by sensitivity tools (sweeps, scans).
+    counts alternative analyses examined: each specification choice (test, comparisons,
+    alpha, response, factors, transform, terms) and each case a sensitivity tool computed
+    (sweeps, scans). ``note`` says what a reader must know about the counts (for instance
+    that they come from an older study file that kept less). Computed by the study's
+    ledger (:class:`explorer.study.ledger.Ledger`).
     """
 
     edits_in_effect: int
     edits_made: int
     undos: int
     specifications: int
+    note: str = ""
 
     def sentence(self) -> str:
         return (
             f"{self.edits_in_effect} edit(s) in effect; {self.edits_made} made in all ({self.undos} undone); "
-            f"{self.specifications} alternative analyses examined"
+            f"{self.specifications} alternative analyses examined" + (f" ({self.note})" if self.note else "")
         )

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -22,6 +22,7 @@ from ..formatting import (
 )
 from ..rendering import block, html_repr, note
 from .dataset import RowId
+from .disclosure import Disclosure
 from .errors import ExplorerError
 from .groupstats import GroupStats
 from .spec import ModelSpec
@@ -174,6 +175,8 @@ class Results:
     aliased: "tuple[AliasedTerm, ...]" = ()  # terms left out because the cells cannot separate them
     # Analysis of covariance (covariate_fit.py): slopes, the means adjusted to, the homogeneity-of-slopes check.
     covariates: "CovariateSummary | None" = None
+    #: Reads the disclosure of the study these results belong to when they are shown (set by the study).
+    disclosure_source: "Callable[[], Disclosure | None] | None" = field(default=None, repr=False, compare=False)
 
     @property
     def covariate_values(self) -> Mapping[str, np.ndarray] | None:
@@ -263,4 +266,7 @@ class Results:
         if self.two_groups is not None:
             parts.append(self.two_groups._repr_html_())
         parts.extend(note(n) for n in self.notes)
+        disclosure = self.disclosure_source() if self.disclosure_source is not None else None
+        if disclosure is not None:
+            parts.append(f"<div class='vx-disclosure'><b>Searching so far:</b> {esc(disclosure.sentence())}</div>")
         return block("results", parts)

@@ -183,6 +183,24 @@ def _edits(study: "Study") -> str:
     return f"<table class='vx-table vx-edits'><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
 
 
+def _ledger(study: "Study") -> str:
+    """The study's whole record (its ledger), oldest first: edits undone and replaced show here too."""
+    ledger = study.ledger
+    if not len(ledger):
+        return ""
+    rows = [(e.at or "(not recorded)", e.kind, e.what,
+             f"{e.old} -> {e.new}" if e.kind == "specification" else
+             (str(e.count) if e.kind in ("search", "reset") else ""),
+             e.reason, e.origin or "this study") for e in ledger.entries]
+    head = "".join(f"<th>{h}</th>" for h in ("time (UTC)", "kind", "what", "change or count", "reason", "origin"))
+    body = "".join("<tr>" + "".join(f"<td>{esc(c)}</td>" for c in r) + "</tr>" for r in rows)
+    note = f"<p class='note'>{esc(ledger.note)}.</p>" if ledger.note else ""
+    return (f"<details class='vx-ledger'><summary>The whole record ({len(rows)} entries): every edit made, "
+            "undone ones included, every undo, redo and reset, specification choice and search</summary>"
+            f"{note}<table class='vx-table vx-ledger-table'><thead><tr>{head}</tr></thead><tbody>{body}</tbody>"
+            "</table></details>")
+
+
 def _part(part: Part) -> str:
     if part.present:
         return part.html
@@ -225,6 +243,7 @@ def _report_html(study: "Study", *, title: str | None, scenario: str | None, cha
         + _side_by_side(study, charts) + (_model_checks(study) if charts else "") + "</section>",
         _interaction(study, charts),
         f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}{_moved(study)}</section>",
+        *([f"<section id='record'><h2>Record of the work</h2>{_ledger(study)}</section>"] if len(study.ledger) else []),
         f"<section id='battery'><h2>{esc(battery.title)}</h2>{_part(battery)}</section>",
         *([f"<section id='strata'><h2>{esc(strata.title)}</h2>{_part(strata)}</section>"]
           if strata.present else []),

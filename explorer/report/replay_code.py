@@ -4,8 +4,9 @@ The code uses only the public API (``Study`` and its edit methods), so a colleag
 paste it into a cell or run it as a script and land in the same state: the same view,
 hence the same results, bit for bit (the analysis is a pure function of the data, the
 model spec and the ordered edits). Undone edits are not replayed but listed, and the
-sensitivity searches are re-counted so the disclosure (``study.disclosure``) still shows
-how many alternatives were examined.
+study's ledger (every edit made, undone ones too, every undo, specification choice and
+search, with times; :mod:`explorer.study.ledger`) is handed to the rebuilt study as a
+literal, so its disclosure (``study.disclosure``) equals the original's exactly.
 
 Safety: every value that comes from the user or a file (column and level names, row
 ids, reasons, edit times, paths) enters the code only as a Python literal built by
@@ -176,8 +177,12 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
         method, args, kwargs = study.planned_call(request)
         call = ", ".join([_lit(a) for a in args] + [f"{_name(k)}={_lit(v)}" for k, v in kwargs.items()])
         lines.append(f"{name}.{_name(method)}({call})  # planned analysis, recomputed after every edit")
-    for search in getattr(study, "_searches", []):
-        lines.append(f"{name}.record_search({_lit(str(search.get('what', '')))}, {int(search.get('count', 0))})")
+    if study.comparisons != "tukey-kramer":
+        lines.append(f"{name}.set_comparisons({_lit(study.comparisons)})")
+    lines.append("# The original study's record: every edit made (undone ones too), undo, redo, reset,")
+    lines.append("# specification choice and search, with times; the rebuilt study takes it as its own.")
+    lines.append(f"ledger = {_lit(study.ledger.to_dict())}")
+    lines.append(f"{name}.restore_ledger(ledger)")
     lines.append("# Disclosure of the original study, to compare with study.disclosure.sentence():")
     lines.append(f"original_disclosure = {_lit(study.disclosure.sentence())}")
     lines.append(f"{name}.results")

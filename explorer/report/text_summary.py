@@ -82,6 +82,9 @@ def _summary_text(study: "Study", *, cautions: bool) -> str:
     for part in (battery_part(study), *optional, sensitivity_part(study, charts=False)):
         out += ["", _heading(part.title), part.text if part.present else f"not included: {part.note}"]
     out += ["", f"Disclosure: {study.disclosure.sentence()}."]
+    if len(study.ledger):
+        out += ["", _heading("Record (every edit made, undo, redo, reset, specification choice and search)"),
+                study.ledger.to_text()]
     if cautions:
         out += ["", _heading("Cautions"), cautions_text()]
     return "\n".join(out) + "\n"

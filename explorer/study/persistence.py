@@ -1,13 +1,20 @@
 """Save and load a study's edit log as JSON, guarded by the data's fingerprint.
 
-File layout (schema 1)::
+File layout (schema 2)::
 
-    {"format": "variance-explorer/study", "schema": 1, "spec": {...},
+    {"format": "variance-explorer/study", "schema": 2, "spec": {...},
      "data": {"source", "fingerprint", "rows", "id_source", "row_check": {"ids", "digests"}},
      "edits": [{"kind": ..., "reason": ..., "at": ..., ...}, ...],
-     "position": k, "searches": [...]}
+     "position": k, "comparisons": "tukey-kramer",
+     "ledger": {"complete": true, "entries": [{"kind", "what", "at", "count", ...}, ...]}}
 
 ``position`` is the undo cursor: edits after it were undone but are kept for redo.
+``ledger`` is the whole record (:mod:`.ledger`): every edit made, undone ones included
+(also those a later edit replaced on the redo branch), every undo, redo, reset,
+specification choice and search, each with its time; the disclosure is computed from it.
+Schema 1 had ``searches`` (``[{"what", "count"}]``) instead of ``ledger`` and no
+``comparisons``; such files still load, with a ledger rebuilt from what they hold and
+marked incomplete (:data:`~.ledger.OLDER_FILE_NOTE`).
 The published JSON Schema of each format and version ships in ``explorer/schemas``;
 :func:`read_study_file` checks a file against it before anything uses the file.
 """
@@ -25,16 +32,19 @@ from ..engine.dataset import Dataset, decode_digests, encode_digests
 from ..engine.edits import Edit, check_utc_time, edit_from_dict
 from ..engine.errors import ReplayError, preview
 from ..engine.spec import ModelSpec
+from .ledger import Ledger
 from .schema_check import SCHEMA_FILES, first_violation, load_schema
 
-__all__ = ["FORMAT", "MAX_DEPTH", "MAX_STUDY_FILE_BYTES", "SCHEMA", "check_study_doc", "describe_mismatch",
-           "edits_from_doc", "parse_study_json", "read_study_file", "study_to_dict"]
+__all__ = ["FORMAT", "MAX_DEPTH", "MAX_STUDY_FILE_BYTES", "SCHEMA", "check_ledger", "check_study_doc",
+           "describe_mismatch", "edits_from_doc", "ledger_from_doc", "parse_study_json", "read_study_file",
+           "study_to_dict"]
 
 FORMAT = "variance-explorer/study"
-SCHEMA = 1
+SCHEMA = 2
 
 
-def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position: int, searches: list[dict]) -> dict[str, Any]:
+def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position: int, ledger: Ledger,
+                  comparisons: str = "tukey-kramer") -> dict[str, Any]:
     return {
         "format": FORMAT,
         "schema": SCHEMA,
@@ -49,8 +59,26 @@ def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position
         },
         "edits": [e.to_dict() for e in edits],
         "position": position,
-        "searches": searches,
+        "comparisons": comparisons,
+        "ledger": ledger.to_dict(),
     }
+
+
+def ledger_from_doc(doc: dict[str, Any], edits: list[Edit], position: int) -> Ledger:
+    """The saved ledger (schema 2), or for a schema-1 file one rebuilt from its log and searches."""
+    if "ledger" in doc:
+        return Ledger.from_dict(doc["ledger"], "ledger")  # checked with the file (check_study_doc)
+    return Ledger.from_older_file(edits, position, doc.get("searches", []))
+
+
+def check_ledger(ledger: Ledger, logged: int, position: int, name: str = "the study file") -> None:
+    """Refuse a ledger that records fewer edits or undos than the edit log shows (it would understate the search)."""
+    if ledger.edits_made < logged:
+        raise ReplayError(f"{name}: ledger: records {ledger.edits_made} edit(s) made but the edit log holds {logged}; "
+                          "the file's history is incomplete or was altered")
+    if ledger.undos - ledger.redos < logged - position:
+        raise ReplayError(f"{name}: ledger: records {ledger.undos} undo(s) and {ledger.redos} redo(s), too few for the "
+                          f"{logged - position} undone edit(s) in the log; the file's history was altered")
 
 
 #: A study file larger than this is refused before it is read (row ids and digests of ~20 million rows).
@@ -171,6 +199,8 @@ def check_study_doc(doc: Any, format_marker: str = FORMAT, name: str = "the stud
         raise ReplayError(f"{name}: position: {position} is past the end of the edit log ({len(doc['edits'])} edits)")
     for i, edit in enumerate(doc["edits"]):
         check_utc_time(edit["at"], f"{name}: edits[{i}].at")
+    if "ledger" in doc:  # its times, each edit's saved form, and counts that cover the log
+        check_ledger(Ledger.from_dict(doc["ledger"], f"{name}: ledger"), len(doc["edits"]), position, name)
     check = doc["data"].get("row_check")
     if check is not None:
         try:

@@ -36,8 +36,10 @@ ANNOTATIONS = frozenset({"$schema", "$id", "$comment", "title", "description"})
 SCHEMA_FILES = {
     ("variance-explorer/study", 1): "study-1.schema.json",
     ("variance-explorer/summary-study", 1): "summary-study-1.schema.json",
+    ("variance-explorer/study", 2): "study-2.schema.json",
+    ("variance-explorer/summary-study", 2): "summary-study-2.schema.json",
 }
-_SHARED = ("defs-1.schema.json",)
+_SHARED = ("defs-1.schema.json", "defs-2.schema.json")
 
 _TYPE_WORDS = {"string": "text (a string)", "integer": "a whole number", "number": "a number",
                "boolean": "true or false", "null": "null", "array": "a list", "object": "an object"}

@@ -10,7 +10,9 @@ from __future__ import annotations
 
 import json
 import warnings
-from collections.abc import Callable, Iterable, Sequence
+import weakref
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -31,8 +33,17 @@ from ..engine.view import DataView, initial_view
 from ..formatting import Scale
 from .decision import Decision, decide
 from .decision_card import DecisionCard, decision_card
+from .ledger import Ledger
 from .output_files import write_text_atomic
-from .persistence import check_study_doc, describe_mismatch, edits_from_doc, read_study_file, study_to_dict
+from .persistence import (
+    check_ledger,
+    check_study_doc,
+    describe_mismatch,
+    edits_from_doc,
+    ledger_from_doc,
+    read_study_file,
+    study_to_dict,
+)
 from .planned import PlannedAnalyses, planned_from_doc
 
 if TYPE_CHECKING:
@@ -47,12 +58,15 @@ if TYPE_CHECKING:
     from ..sensitivity.sweep import SweepResult
     from ..sensitivity.unit_deletion import UnitDeletionScan
 
-__all__ = ["Study", "StudyEvent", "Disclosure"]
+__all__ = ["COMPARISON_METHODS", "Study", "StudyEvent", "Disclosure"]
+
+#: The methods the pairwise comparisons between levels are read from (``Study.set_comparisons``).
+COMPARISON_METHODS = ("tukey-kramer", "games-howell", "dunnett", "holm")
 
 
 @dataclass(frozen=True)
 class StudyEvent:
-    """What changed: ``kind`` is 'edit', 'undo', 'redo', 'reset', 'search' or 'spec' (the overall test)."""
+    """What changed: ``kind`` is 'edit', 'undo', 'redo', 'reset', 'search' or 'spec' (a specification choice)."""
 
     kind: str
     edit: Edit | None
@@ -139,9 +153,9 @@ class Study(PlannedAnalyses):
         self._results: dict[int, Results] = {}
         self._decisions: dict[int, tuple[Results, Decision]] = {}
         self._position = 0
-        self._made = 0
-        self._undos = 0
-        self._searches: list[dict[str, Any]] = []
+        self._ledger = Ledger()  # every edit, undo, redo, reset, choice and search, with times
+        self._comparisons = COMPARISON_METHODS[0]  # how levels are compared pairwise (set_comparisons)
+        self.edits_not_carried: tuple[Edit, ...] = ()  # edits respecify could not carry over
         self._listeners: list[Callable[["Study", StudyEvent], None]] = []
         self._planned = []  # planned analyses asked for (see explorer.study.planned)
         self._results[0] = analyze(dataset, self._views[0], spec)
@@ -168,13 +182,19 @@ class Study(PlannedAnalyses):
 
     @property
     def results(self) -> Results:
-        """Results on the current view."""
-        return self._results_at(self._position)
+        """Results on the current view (their HTML shows the study's live disclosure)."""
+        return self._with_disclosure(self._results_at(self._position))
 
     @property
     def baseline(self) -> Results:
         """Results on the unedited data."""
-        return self._results_at(0)
+        return self._with_disclosure(self._results_at(0))
+
+    def _with_disclosure(self, res: Results) -> Results:
+        """Let ``res`` show this study's disclosure, read when it is shown (a weak link: no cycle)."""
+        if getattr(res, "disclosure_source", None) is None:
+            object.__setattr__(res, "disclosure_source", _LiveDisclosure(self))
+        return res
 
     @property
     def decision(self) -> Decision:
@@ -220,6 +240,112 @@ class Study(PlannedAnalyses):
         self._emit("spec", None)
         return self.decision
 
+    def set_alpha(self, alpha: float) -> Decision:
+        """Read the decision at another level; recorded as a specification choice. Returns the new decision."""
+        new_spec = replace(self.spec, alpha=alpha)
+        if new_spec.alpha == self.spec.alpha:
+            return self.decision
+        self._respec(new_spec, "alpha", self.spec.alpha, new_spec.alpha)
+        return self.decision
+
+    @property
+    def comparisons(self) -> str:
+        """The method levels are compared by (one of :data:`COMPARISON_METHODS`; change it with :meth:`set_comparisons`)."""
+        return self.__dict__.get("_comparisons", COMPARISON_METHODS[0])
+
+    def set_comparisons(self, method: str) -> str:
+        """Compare the levels pairwise by another method; recorded as a specification choice.
+
+        ``method`` is one of :data:`COMPARISON_METHODS`: 'tukey-kramer' (all pairs),
+        'games-howell' (all pairs, unequal variances), 'dunnett' (each level against the
+        first), 'holm' (t tests, Holm-adjusted). Returns the method now in use.
+        """
+        if method not in COMPARISON_METHODS:
+            raise EditError(f"comparison method {method!r} is not one of {list(COMPARISON_METHODS)}")
+        if method != self.comparisons:
+            old, self._comparisons = self.comparisons, method
+            self._record_choice("comparison method", old, method)
+            self._emit("spec", None)
+        return self.comparisons
+
+    def set_terms(self, terms: Sequence[str | Sequence[str]] | None = None, *, max_order: int | None = None,
+                  interactions: bool | None = None) -> Results:
+        """Fit other model terms (``terms``, ``max_order`` or ``interactions`` as in the constructor);
+        recorded as a specification choice. The edits stay in effect; a model the current view
+        cannot fit is refused and the study is unchanged."""
+        changes: dict[str, Any] = {"terms": None if terms is None else tuple(terms), "max_order": max_order}
+        if interactions is not None:
+            changes["interactions"] = interactions
+        new_spec = replace(self.spec, **changes)
+        if _term_key(new_spec) == _term_key(self.spec):
+            return self.results
+        return self._respec(new_spec, "model terms", _term_text(self.spec), _term_text(new_spec))
+
+    def _respec(self, new_spec: ModelSpec, what: str, old: object, new: object) -> Results:
+        """Analyse under ``new_spec`` (same data, edits in effect), or refuse and change nothing; record the choice."""
+        try:
+            res = analyze(self.dataset, self.view, new_spec)
+        except DesignError as exc:
+            raise EditError(f"{what} refused ({new}): {exc}") from None
+        self.spec = new_spec
+        self._results = {self._position: res}
+        self.__dict__["_decisions"] = {}
+        self._record_choice(what, old, new)
+        self._emit("spec", None)
+        return self.results
+
+    def respecify(self, *, response: str | None = None, factors: str | Sequence[str] | None = None,
+                  **spec_changes: Any) -> "Study":
+        """A new study of the same data with another response, factors or column roles.
+
+        ``spec_changes`` are constructor arguments (``blocks``, ``random``, ``nested``,
+        ``subject``, ``within``, ``alpha``, ...). The data are read again from the original
+        file when there is one. The edits in effect are replayed; those that no longer apply
+        are listed in ``edits_not_carried`` of the new study. The new study continues this
+        study's ledger, with each change recorded as a specification choice.
+        """
+        if hasattr(self, "sample_study"):
+            raise EditError("a summary-backed study keeps its model; build a new one for another response or factors")
+        o = self.spec
+        factors_t = o.factors if factors is None else column_names(factors, "factors")
+        response = o.response if response is None else response
+        kept = set(factors_t) | set(o.blocks)
+        subject = o.subject if o.subject is not None and o.subject not in factors_t else None
+        args: dict[str, Any] = dict(
+            blocks=o.blocks, interactions=o.interactions, ss_type=o.ss_type, alpha=o.alpha,
+            test=o.test if len(factors_t) == 1 and not o.blocks else "classic",
+            id_column=self.dataset.id_column, variance_method=o.variance_method,
+            random=[c for c in o.random if c in kept],
+            nested={c: list(p) for c, p in o.nested if c in kept and set(p) <= kept} or None,
+            subject=subject, within=[w for w in o.within if w in factors_t] if subject else [],
+            covariates=[c for c in o.covariates if c != response and c not in kept])
+        if response == o.response:  # units and transform belong to the response
+            args.update(units=o.units, transform=o.transform)
+        if factors_t == o.factors:
+            args.update(terms=o.terms, max_order=o.max_order)
+        args.update(spec_changes)
+        source = self.data_source if self.data_source is not None else self.dataset.table
+        try:
+            new = type(self)(source, response, factors_t, **args)
+        except ExplorerError:
+            if args["test"] == "classic" or "test" in spec_changes:
+                raise
+            args["test"] = "classic"  # the other overall tests need one fixed factor without blocks
+            new = type(self)(source, response, factors_t, **args)
+        new.data_source = self.data_source
+        new._comparisons = self._comparisons
+        skipped = []
+        for e in self.edits:
+            try:
+                new.apply(e)
+            except EditError:
+                skipped.append(e)
+        new.edits_not_carried = tuple(skipped)
+        new._ledger = self._ledger.copy()
+        for what, before, after in _spec_changes(o, new.spec):
+            new._record_choice(what, before, after)
+        return new
+
     def set_transform(self, transform: str | float, *, reason: str = "") -> Results:
         """Analyse another transform of the response: 'none', 'log', 'sqrt' or a Box-Cox power (a number).
 
@@ -251,8 +377,13 @@ class Study(PlannedAnalyses):
                          record)
 
     def _record_choice(self, what: str, old: object, new: object) -> None:
-        """Count a specification choice as one alternative analysis examined (kept in the study file)."""
-        self._searches.append({"what": f"specification: {what} {old} -> {new}", "count": 1})
+        """Count a specification choice as one alternative analysis examined (kept in the ledger)."""
+        self._ledger.record_choice(what, old, new)
+
+    @property
+    def ledger(self) -> Ledger:
+        """The record of every edit, undo, redo, reset, specification choice and search (see :mod:`.ledger`)."""
+        return self._ledger
 
     @property
     def set_aside(self) -> tuple[SetAsideRow, ...]:
@@ -264,12 +395,8 @@ class Study(PlannedAnalyses):
 
     @property
     def disclosure(self) -> Disclosure:
-        return Disclosure(
-            edits_in_effect=self._position,
-            edits_made=self._made,
-            undos=self._undos,
-            specifications=sum(int(s.get("count", 0)) for s in self._searches),
-        )
+        """How much searching stands behind the current state, computed from the ledger now."""
+        return self._ledger.disclosure(self._position)
 
     def _results_at(self, pos: int) -> Results:
         if pos not in self._results:
@@ -284,8 +411,14 @@ class Study(PlannedAnalyses):
         return moved_rows(self.dataset, self.view, self.edits)
 
     # ----------------------------------------------------------------- edits
-    def apply(self, edit: Edit) -> Results:
-        """Apply any edit; refuse it (state unchanged) if the result cannot be analysed."""
+    def apply(self, edit: Edit, *, origin: str = "") -> Results:
+        """Apply any edit; refuse it (state unchanged) if the result cannot be analysed.
+
+        ``origin`` says where the edit came from when it was not made here (it is kept in the
+        ledger, e.g. ``"adopted from a colleague's study file"``).
+        """
+        if not isinstance(origin, str):
+            raise EditError(f"the origin must be text, not {type(origin).__name__}")
         if not isinstance(edit.reason, str):
             raise EditError(f"the reason must be text, not {type(edit.reason).__name__} ({edit.reason!r})")
         new_view = edit.apply(self.view, self.dataset)
@@ -301,7 +434,7 @@ class Study(PlannedAnalyses):
         self._views.append(new_view)
         self._position += 1
         self._results[self._position] = res
-        self._made += 1
+        self._ledger.record_edit(edit, origin=origin)
         self._emit("edit", edit)
         return res
 
@@ -329,11 +462,39 @@ class Study(PlannedAnalyses):
         """Bring back every row of one level of ``column``."""
         return self.apply(RestoreUnit(column=column, level=level, reason=reason))
 
+    @contextmanager
+    def all_or_nothing(self) -> Iterator["Study"]:
+        """Several edits as one action: all of them, or (when one is refused or anything raises) none.
+
+        ``with study.all_or_nothing(): study.reassign(...); study.reassign(...)``. On an error the
+        study returns exactly to where it was (edits in effect, the redo branch, cached results,
+        the ledger: the partial action is not on the record, as it never took effect) and the
+        error propagates. Change listeners hear of the edits only once all of them are applied.
+        """
+        if self.__dict__.get("_held") is not None:  # inside another all-or-nothing action: that one decides
+            yield self
+            return
+        saved = (list(self._log), list(self._views), dict(self._results), self._position,
+                 dict(self.__dict__.get("_decisions", {})), len(self._ledger))
+        held: list[tuple[str, Edit | None]] = []
+        self._held: list[tuple[str, Edit | None]] | None = held
+        try:
+            yield self
+        except BaseException:
+            self._held = None
+            self._log, self._views, self._results, self._position, decisions, mark = saved
+            self.__dict__["_decisions"] = decisions
+            self._ledger.rollback_to(mark)
+            raise
+        self._held = None
+        for kind, edit in held:
+            self._emit(kind, edit)
+
     def undo(self) -> Results:
         if self._position == 0:
             raise EditError("nothing to undo: the study is at its baseline")
         self._position -= 1
-        self._undos += 1
+        self._ledger.record_undo(self._log[self._position])
         self._emit("undo", self._log[self._position])
         return self.results
 
@@ -341,20 +502,21 @@ class Study(PlannedAnalyses):
         if self._position >= len(self._log):
             raise EditError("nothing to redo")
         self._position += 1
+        self._ledger.record_redo(self._log[self._position - 1])
         self._emit("redo", self._log[self._position - 1])
         return self.results
 
     def reset(self) -> Results:
         """Go back to the baseline; the edits stay available to redo."""
         if self._position:
-            self._undos += self._position
+            self._ledger.record_reset(self._position)
             self._position = 0
             self._emit("reset", None)
         return self.results
 
-    def record_search(self, what: str, count: int) -> None:
-        """Count alternative analyses a sensitivity tool examined (shown in the disclosure)."""
-        self._searches.append({"what": what, "count": int(count)})
+    def record_search(self, what: str, count: int, *, origin: str = "") -> None:
+        """Count alternative analyses a sensitivity tool examined (kept in the ledger, shown in the disclosure)."""
+        self._ledger.record_search(what, count, origin=origin)
         self._emit("search", None)
 
     # ----------------------------------------------------------------- events
@@ -369,6 +531,10 @@ class Study(PlannedAnalyses):
         return unsubscribe
 
     def _emit(self, kind: str, edit: Edit | None) -> None:
+        held = self.__dict__.get("_held")
+        if held is not None:  # inside all_or_nothing: told once the whole action stands
+            held.append((kind, edit))
+            return
         event = StudyEvent(kind, edit, self._position)
         for cb in list(self._listeners):
             try:
@@ -378,7 +544,7 @@ class Study(PlannedAnalyses):
 
     # ----------------------------------------------------------------- files
     def to_dict(self) -> dict[str, Any]:
-        doc = study_to_dict(self.dataset, self.spec, self._log, self._position, self._searches)
+        doc = study_to_dict(self.dataset, self.spec, self._log, self._position, self._ledger, self.comparisons)
         if self.planned_requests:
             doc["planned"] = self.planned_to_dict()
         return doc
@@ -441,13 +607,21 @@ class Study(PlannedAnalyses):
                 study.apply(e)
             except EditError as exc:
                 raise ReplayError(f"edit {i + 1} of the saved log ({e.describe()}) does not apply: {exc}") from None
-        study._searches = list(doc.get("searches", []))
         for request, at in planned_from_doc(doc):
             study._keep_request(request, record=False, at=at)
         while study._position > position:
             study.undo()
-        study._made, study._undos = len(edits), 0
+        study._comparisons = doc.get("comparisons", COMPARISON_METHODS[0])
+        study._ledger = ledger_from_doc(doc, edits, position)
         return study
+
+    def restore_ledger(self, saved: dict[str, Any]) -> None:
+        """Take the ledger saved with this state (``Ledger.to_dict()``), as replay code does, so that the
+        replayed study discloses exactly what the original did. Refused (:class:`ReplayError`) when
+        it is malformed or cannot account for the edits in effect."""
+        ledger = Ledger.from_dict(saved)
+        check_ledger(ledger, len(self._log), self._position, "the saved ledger")
+        self._ledger = ledger
 
     # ----------------------------------------------------------------- hand-off
     def report(self, path: str | Path, *, title: str | None = None, scenario: str | None = None,
@@ -621,4 +795,47 @@ class Study(PlannedAnalyses):
         return self.to_text()
 
     def _repr_html_(self) -> str:
+        """The current results with the live disclosure (read from the ledger when shown)."""
         return self.results._repr_html_()
+
+
+class _LiveDisclosure:
+    """The disclosure of a study, read when called; holds the study weakly (results may outlive it)."""
+
+    __slots__ = ("_study",)
+
+    def __init__(self, study: Study) -> None:
+        self._study = weakref.ref(study)
+
+    def __call__(self) -> Disclosure | None:
+        study = self._study()
+        return None if study is None else study.disclosure
+
+
+def _term_key(spec: ModelSpec) -> tuple[object, ...]:
+    return (spec.terms, spec.max_order, spec.interactions)
+
+
+def _term_text(spec: ModelSpec) -> str:
+    """The treatment terms as chosen: listed, or the rule that builds them."""
+    if spec.terms is not None:
+        return ", ".join(" × ".join(t) for t in spec.terms)
+    if spec.max_order is not None:
+        return f"interactions of up to {spec.max_order} factors"
+    return "all interactions" if spec.interactions else "main effects only"
+
+
+def _spec_changes(old: ModelSpec, new: ModelSpec) -> list[tuple[str, object, object]]:
+    """The specification choices that lead from ``old`` to ``new``, as the ledger records them."""
+    out: list[tuple[str, object, object]] = []
+    for what, attr in (("response", "response"), ("factors", "factors"), ("blocks", "blocks"), ("alpha", "alpha"),
+                       ("overall test", "test"), ("transform", "transform"), ("random factors", "random"),
+                       ("subject", "subject"), ("within-subject factors", "within")):
+        if getattr(old, attr) != getattr(new, attr):
+            out.append((what, getattr(old, attr), getattr(new, attr)))
+    if old.nested != new.nested:
+        out.append(("nesting", [f"{c} in {' × '.join(p)}" for c, p in old.nested],
+                    [f"{c} in {' × '.join(p)}" for c, p in new.nested]))
+    if _term_key(old) != _term_key(new) and old.factors == new.factors:
+        out.append(("model terms", _term_text(old), _term_text(new)))
+    return out or [("model", "unchanged", "rebuilt")]

@@ -40,9 +40,10 @@ from ..engine.response_unit import SAFE, unit_exponent, unit_note
 from ..engine.results import Results
 from ..engine.spec import ModelSpec
 from ..engine.view import DataView
+from ..study.ledger import Ledger
 from ..study.output_files import write_text_atomic
-from ..study.persistence import check_study_doc, read_study_file
-from ..study.study import Study, StudyEvent
+from ..study.persistence import check_study_doc, ledger_from_doc, read_study_file
+from ..study.study import COMPARISON_METHODS, Study, StudyEvent
 from .atoms import MOVE_PREFIX, AtomTable, downdate, level_order, merge_atoms
 from .edits import (
     DropCell,
@@ -59,7 +60,7 @@ from .view import SummaryData, SummaryView
 __all__ = ["SummaryStudy", "as_source"]
 
 FORMAT = "variance-explorer/summary-study"
-SCHEMA = 1
+SCHEMA = 2
 
 
 def as_source(data: Any, **options: Any) -> Any:
@@ -156,9 +157,9 @@ class SummaryStudy(Study):
         self._views: list[SummaryView] = [view]  # type: ignore[assignment]
         self._results: dict[int, Results] = {}
         self._position = 0
-        self._made = 0
-        self._undos = 0
-        self._searches: list[dict[str, Any]] = []
+        self._ledger = Ledger()
+        self._comparisons = COMPARISON_METHODS[0]
+        self.edits_not_carried: tuple[Edit, ...] = ()
         self._listeners: list[Callable[[Study, StudyEvent], None]] = []
         self._results[0] = self._analyze(view)
 
@@ -409,8 +410,11 @@ class SummaryStudy(Study):
         return self._results[pos]
 
     # ------------------------------------------------------------ edits
-    def apply(self, edit: Edit) -> Results:
-        """Apply an edit; refuse it (state unchanged) if the result cannot be analysed."""
+    def apply(self, edit: Edit, *, origin: str = "") -> Results:
+        """Apply an edit; refuse it (state unchanged) if the result cannot be analysed (``origin``: as
+        :meth:`explorer.study.Study.apply`)."""
+        if not isinstance(origin, str):
+            raise EditError(f"the origin must be text, not {type(origin).__name__}")
         if not isinstance(edit.reason, str):
             raise EditError(f"the reason must be text, not {type(edit.reason).__name__} ({edit.reason!r})")
         old = self._summary_view
@@ -438,7 +442,7 @@ class SummaryStudy(Study):
         self._views.append(new)  # type: ignore[arg-type]
         self._position += 1
         self._results[self._position] = res
-        self._made += 1
+        self._ledger.record_edit(edit, origin=origin)
         self._emit("edit", edit)
         return res
 
@@ -505,9 +509,11 @@ class SummaryStudy(Study):
     def _on_sample(self, method: str, **options: Any) -> Any:
         """Run a row-level tool of :class:`~explorer.study.Study` on the sample study; count its search here."""
         sample = self.sample_study()
+        mark = len(sample.ledger)
         out = getattr(sample, method)(**options)
-        for entry in sample._searches:
-            self.record_search(f"{entry.get('what', method)} (on the seeded sample)", int(entry.get("count", 0)))
+        for entry in sample.ledger.since(mark):
+            if entry.kind == "search":
+                self.record_search(f"{entry.what or method} (on the seeded sample)", entry.count)
         return out
 
     def influence(self, **options: Any) -> Any:
@@ -543,7 +549,8 @@ class SummaryStudy(Study):
             "sample": {"size": self.sample_size, "seed": self.seed},
             "edits": [e.to_dict() for e in self._log],
             "position": self._position,
-            "searches": self._searches,
+            "comparisons": self.comparisons,
+            "ledger": self._ledger.to_dict(),
         }
 
     def save(self, path: str | Path, *, overwrite: bool = False) -> Path:
@@ -590,11 +597,11 @@ class SummaryStudy(Study):
                 study.apply(e)
             except EditError as exc:
                 raise ReplayError(f"edit {i + 1} of the saved log ({e.describe()}) does not apply: {exc}") from None
-        study._searches = list(doc.get("searches", []))
         position = int(doc.get("position", len(edits)))
         while study._position > position:
             study.undo()
-        study._made, study._undos = len(edits), 0
+        study._comparisons = doc.get("comparisons", COMPARISON_METHODS[0])
+        study._ledger = ledger_from_doc(doc, edits, position)
         return study
 
     def to_code(self, data: str | Path | None = None) -> str:

@@ -39,7 +39,7 @@ from .panels import PanelContext, Settings, panels_in_order
 from .resize import ResizeRelay
 from .stylesheet import STYLESHEET
 
-__all__ = ["COMPARISON_CHOICES", "OMNIBUS_CHOICES", "Explorer", "explore"]
+__all__ = ["COMPARISON_CHOICES", "OMNIBUS_CHOICES", "Explorer", "explore", "level_steps"]
 
 OMNIBUS_CHOICES = [(label, name) for name, label in OVERALL_TESTS.items()]
 COMPARISON_CHOICES = [("Tukey-Kramer (all pairs)", "tukey-kramer"), ("Games-Howell (all pairs, unequal SD)", "games-howell"),
@@ -97,7 +97,7 @@ class Explorer(W.VBox):
         self._ids_of: tuple[Any, dict[str, Any]] | None = None  # chart text id -> row id, per dataset
         self.history: list[HistoryStep] = []
         self._record("unedited data")
-        self.settings = Settings(alpha=study.spec.alpha, max_points=max_points)
+        self.settings = Settings(alpha=study.spec.alpha, comparisons=study.comparisons, max_points=max_points)
         self._build_controls()
         self.cards = {p.key: PanelCard(p, self._on_pick) for p in panels_in_order(panels)}
         super().__init__(children=self._layout(), **kwargs)
@@ -118,7 +118,8 @@ class Explorer(W.VBox):
         self.alpha_picker = W.Dropdown(description="alpha", options=[(f"{a:g}", a) for a in alphas],
                                        value=study.spec.alpha)
         self.omnibus_picker = W.Dropdown(description="overall test", options=OMNIBUS_CHOICES, value=study.spec.test)
-        self.comparison_picker = W.Dropdown(description="comparisons", options=COMPARISON_CHOICES, value="tukey-kramer")
+        self.comparison_picker = W.Dropdown(description="comparisons", options=COMPARISON_CHOICES,
+                                            value=study.comparisons)
         for w in (self.response_picker, self.factor_picker, self.alpha_picker, self.omnibus_picker, self.comparison_picker):
             w.style.description_width = "90px"
             w.layout.width = "300px"
@@ -126,7 +127,7 @@ class Explorer(W.VBox):
         self.factor_picker.observe(self._on_model_choice, "value")
         self.alpha_picker.observe(self._on_model_choice, "value")
         self.omnibus_picker.observe(self._on_test_choice, "value")
-        self.comparison_picker.observe(self._on_setting, "value")
+        self.comparison_picker.observe(self._on_comparison_choice, "value")
 
         self.picked_label = W.HTML()
         self.picked_label.add_class("vx-picked")
@@ -231,7 +232,11 @@ class Explorer(W.VBox):
 
     def _on_study_change(self, study: Study, event: StudyEvent) -> None:
         if event.kind == "spec":
-            self._record(f"overall test: {study.decision.test_label}")
+            last = study.ledger.entries[-1] if len(study.ledger) else None
+            self._record(f"{last.what}: {last.new}"
+                         if last is not None and last.kind == "specification" and last.what != "overall test"
+                         else f"overall test: {study.decision.test_label}")
+            self.settings = replace(self.settings, alpha=study.spec.alpha, comparisons=study.comparisons)
         elif event.kind != "search":
             what = event.edit.describe() if event.edit is not None else "all edits"
             self._record(what if event.kind == "edit" else f"{event.kind}: {what}")
@@ -263,12 +268,16 @@ class Explorer(W.VBox):
             return None
         return reason
 
-    def _edit(self, what: str, fn: Any, *args: Any, done: str = "", used_reason: bool = True, **kwargs: Any) -> bool:
+    def _edit(self, what: str, fn: Any, *args: Any, done: str = "", used_reason: bool = True,
+              compound: bool = False, **kwargs: Any) -> bool:
         """Run one study call; report a refusal in the status line instead of raising.
 
         The status line says ``done`` before the redraw starts, so it appears with the tables; on
-        success the reason box is emptied, so that the next edit needs its own reason.
+        success the reason box is emptied, so that the next edit needs its own reason. A
+        ``compound`` action (several edits under ``Study.all_or_nothing``) that fails changed nothing,
+        and the status line says so.
         """
+        none = " (Nothing was changed: this action applies all of its edits or none.)" if compound else ""
         try:
             with self._one_redraw():
                 fn(*args, **kwargs)
@@ -276,10 +285,10 @@ class Explorer(W.VBox):
                     self.reason_box.value = ""  # the next edit must not inherit this reason
                 self._status(done or "Done.")
         except ExplorerError as exc:
-            self._status(f"Not done ({what}): {exc}", "error")
+            self._status(f"Not done ({what}): {exc}{none}", "error")
             return False
         except Exception as exc:  # noqa: BLE001  never raise into the notebook
-            self._status(f"Not done ({what}): unexpected {type(exc).__name__}: {exc}", "error")
+            self._status(f"Not done ({what}): unexpected {type(exc).__name__}: {exc}{none}", "error")
             return False
         return True
 
@@ -374,10 +383,12 @@ class Explorer(W.VBox):
         rows = self._picked
 
         def move_all() -> None:
-            for r in rows:
-                self.study.reassign(r, f, level, reason=reason)
+            with self.study.all_or_nothing():  # every row moves, or none does
+                for r in rows:
+                    self.study.reassign(r, f, level, reason=reason)
 
-        ok = self._edit("move", move_all, done=f"Moved row(s) {', '.join(map(str, rows))} to {f} = {level}.")
+        ok = self._edit("move", move_all, done=f"Moved row(s) {', '.join(map(str, rows))} to {f} = {level}.",
+                        compound=len(rows) > 1)
         if ok:
             self.pick(())
         return ok
@@ -393,7 +404,8 @@ class Explorer(W.VBox):
                           done="Back to the unedited data; the edits can be redone step by step.")
 
     def apply_regrouping(self) -> bool:
-        """Turn the level editor's new names into merges and renames (one edit each)."""
+        """Turn the level editor's new names into merges and renames (one edit each, all of them or none;
+        a swap of two names passes one level through a temporary name, see :func:`level_steps`)."""
         reason = self._reason(True, "merge or rename levels")
         if reason is None:
             return False
@@ -415,29 +427,22 @@ class Explorer(W.VBox):
                     self._status(f"Level {now!r} of {f} cannot be split into {sorted(targets)} here; undo the merge "
                                  "instead.", "error")
                     return False
-            by_target: dict[str, list[str]] = {}
-            for now, targets in target_of.items():
-                by_target.setdefault(next(iter(targets)), []).append(now)
-            levels_now = self.study.levels(f)
-            for target, sources in by_target.items():
-                if len(sources) > 1 or (target in levels_now and target not in sources):
-                    plans.append((f, sources, target))
-                elif sources[0] != target:
-                    plans.append((f, [], f"{sources[0]}\x00{target}"))
+            final = {now: next(iter(targets)) for now, targets in target_of.items()}
+            plans += [(f, sources, target) for sources, target in level_steps(self.study.levels(f), final)]
         if not plans:
             self._status("No level changes to apply: type a new name beside a level (the same name for two "
                          "levels merges them).", "warn")
             return False
 
         def run() -> None:
-            for f, sources, target in plans:
-                if sources:
-                    self.study.merge_levels(f, sources, into=target, reason=reason)
-                else:
-                    old, new = target.split("\x00")
-                    self.study.rename_level(f, old, new, reason=reason)
+            with self.study.all_or_nothing():  # every change, or none
+                for f, sources, target in plans:
+                    if len(sources) > 1:
+                        self.study.merge_levels(f, sources, into=target, reason=reason)
+                    else:
+                        self.study.rename_level(f, sources[0], target, reason=reason)
 
-        return self._edit("level changes", run, done=f"Applied {len(plans)} level change(s).")
+        return self._edit("level changes", run, done=f"Applied {len(plans)} level change(s).", compound=True)
 
     def _original_to_current(self, f: str) -> dict[str, str | None]:
         """Where each recorded level of ``f`` is now, after the merges and renames in effect.
@@ -451,9 +456,19 @@ class Explorer(W.VBox):
         return {orig: (home if home in levels_now else None) for orig, home in homes.items()}
 
     # ================================================================= model choices
-    def _on_setting(self, _: Any) -> None:
-        self.settings = replace(self.settings, comparisons=self.comparison_picker.value)
-        self.refresh()
+    def _on_comparison_choice(self, _: Any) -> None:
+        """The comparison method is a specification choice: the study records it (see ``Study.set_comparisons``)."""
+        choice = self.comparison_picker.value
+        if choice == self.study.comparisons:
+            return
+        try:
+            self.study.set_comparisons(choice)
+        except ExplorerError as exc:
+            self.comparison_picker.value = self.study.comparisons
+            self._status(str(exc), "error")
+            return
+        self._status(f"Levels are now compared by {dict((v, k) for k, v in COMPARISON_CHOICES)[choice]} "
+                     "(recorded as a specification choice).")
 
     def _on_test_choice(self, _: Any) -> None:
         """The overall test is part of the model: the study reads its decision from it (recorded)."""
@@ -482,6 +497,16 @@ class Explorer(W.VBox):
         if response in factors:
             self._status(f"{response!r} is the response; it cannot also be a factor.", "error")
             return
+        if (response, factors) == (spec.response, spec.factors):  # alpha only: the same study, recorded
+            try:
+                self.study.set_alpha(alpha)
+            except ExplorerError as exc:
+                with self._hold_pickers():
+                    self.alpha_picker.value = spec.alpha
+                self._status(f"alpha {alpha:g} refused: {exc}", "error")
+                return
+            self._status(f"Decisions are now read at alpha {alpha:g} (recorded as a specification choice).")
+            return
         try:
             new, skipped = self._rebuilt(response, factors, alpha)
         except Exception as exc:  # noqa: BLE001  never raise into the notebook
@@ -493,42 +518,17 @@ class Explorer(W.VBox):
                      "warn" if skipped else "ok")
 
     def _rebuilt(self, response: str, factors: tuple[str, ...], alpha: float) -> tuple[Study, list[Any]]:
-        old = self.study
-        if (response, factors) == (old.spec.response, old.spec.factors):
-            new = Study.from_dataset(old.dataset, replace(old.spec, alpha=alpha))
-        elif hasattr(old, "sample_study"):
-            raise ExplorerError("a summary-backed study keeps its model; build a new one for another response or factors")
-        else:
-            # Reread the original file when there is one, so the exact decimal reading, the
-            # id column and the replay code carry over to the new model.
-            source = old.data_source if old.data_source is not None else old.dataset.table
-            test = old.spec.test if len(factors) == 1 and not old.spec.blocks else "classic"
-            o = old.spec
-            kept = set(factors) | set(o.blocks)
-            subject = o.subject if o.subject is not None and o.subject not in factors else None
-            new = Study(source, response, factors, blocks=o.blocks, interactions=o.interactions,
-                        ss_type=o.ss_type, alpha=alpha, test=test, id_column=old.dataset.id_column,
-                        # roles of the columns that stay in the model carry over
-                        random=[c for c in o.random if c in kept],
-                        nested={c: list(p) for c, p in o.nested if c in kept and set(p) <= kept} or None,
-                        subject=subject, within=[w for w in o.within if w in factors] if subject else [],
-                        variance_method=o.variance_method)
-            new.data_source = old.data_source
-        skipped = []
-        for e in old.edits:
-            try:
-                new.apply(e)
-            except ExplorerError:
-                skipped.append(e)
-        new.record_search("analysis choices tried in the explorer", old.disclosure.specifications + 1)
-        return new, skipped
+        """The study on another response or factors (``Study.respecify``: the original file is read again,
+        the edits in effect replayed, the ledger continued with each change recorded)."""
+        new = self.study.respecify(response=response, factors=factors, alpha=alpha)
+        return new, list(new.edits_not_carried)
 
     def set_study(self, study: Study, action: str = "new study") -> None:
         """Show another study (e.g. one loaded from a saved file); the history keeps going."""
         self._unsubscribe()
         self.study = study
         self._unsubscribe = study.on_change(self._on_study_change)
-        self.settings = replace(self.settings, alpha=study.spec.alpha)
+        self.settings = replace(self.settings, alpha=study.spec.alpha, comparisons=study.comparisons)
         self._picked, self._picked_from = (), ""
         self._record(action)
         with self._hold_pickers():
@@ -538,6 +538,7 @@ class Explorer(W.VBox):
                 self.alpha_picker.options = list(self.alpha_picker.options) + [(f"{study.spec.alpha:g}", study.spec.alpha)]
             self.alpha_picker.value = study.spec.alpha
         self.omnibus_picker.value = study.spec.test  # the study's own test (no new choice recorded)
+        self.comparison_picker.value = study.comparisons  # likewise
         self.refresh(force=True)
 
     @contextmanager
@@ -564,9 +565,12 @@ class Explorer(W.VBox):
             self._dirty = False
             with scale(of=self.study.display_scale()):
                 self._refresh_header()  # a scan added to the disclosure count while drawing
+                ctx = self._context()
                 for card in self.cards.values():
                     if card.panel.group == "main":
-                        card.update(self._context())
+                        card.update(ctx)
+                    else:
+                        card.refresh_live(ctx)  # one number everywhere: the live lines of the tabs too
 
     def _redraw(self, force: bool) -> None:
         ctx = self._context()
@@ -631,6 +635,36 @@ class Explorer(W.VBox):
             self._level_boxes[fac] = boxes
         self.level_editor.children = rows
         self._level_widgets += rows
+
+
+def level_steps(levels_now: Sequence[str], final: dict[str, str]) -> list[tuple[list[str], str]]:
+    """The renames and merges (``(sources, target)``; one source renames, several merge) that give each
+    current level of a factor its ``final`` name, in an order that never merges a level into a name
+    another level still holds: a swap or a cycle of names passes one level through a temporary name.
+    """
+    name = {lv: lv for lv in levels_now if lv in final}
+    groups: dict[str, list[str]] = {}
+    for lv in name:
+        groups.setdefault(final[lv], []).append(lv)
+    todo = {t: srcs for t, srcs in groups.items() if srcs != [t]}
+    steps: list[tuple[list[str], str]] = []
+    while todo:
+        held = {name.get(lv, lv): lv for lv in levels_now}
+        ready = [t for t, srcs in todo.items() if t not in held or held[t] in srcs]
+        if ready:
+            t = ready[0]
+            srcs = todo.pop(t)
+            steps.append(([name[x] for x in srcs], t))
+            for x in srcs:
+                name[x] = t
+            continue
+        blocker = held[next(iter(todo))]  # a cycle of names: move one level aside first
+        temp, k = f"{name[blocker]} (renaming)", 2
+        while temp in held or temp in groups:
+            temp, k = f"{name[blocker]} (renaming {k})", k + 1
+        steps.append(([name[blocker]], temp))
+        name[blocker] = temp
+    return steps
 
 
 def explore(data: pd.DataFrame | str, response: str, factors: str | Sequence[str], **kwargs: Any) -> Explorer:

@@ -61,7 +61,10 @@ class PanelCard:
         self.note = W.HTML()  # a chart's subtitle, as text the browser wraps to the card's width
         self.note.add_class("vx-chart-note")
         self.title = W.HTML(f"<div class='vx-card-title'>{esc(spec.title)}</div>")
-        self.widget = W.VBox([self.title, self.body], layout=W.Layout(padding="4px 8px", border="1px solid #e2e2e2"))
+        self.live = W.HTML()  # the panel's live line (see Panel.live), redrawn on every refresh
+        self.live.add_class("vx-live")
+        parts = [self.title, self.body] + ([self.live] if spec.live is not None else [])
+        self.widget = W.VBox(parts, layout=W.Layout(padding="4px 8px", border="1px solid #e2e2e2"))
         self.widget.add_class("vx-card")
         self.widget.add_class(f"vx-card-{spec.key}")
         self.error: str = ""
@@ -74,13 +77,32 @@ class PanelCard:
         self._token = _UNSET
 
     def update(self, ctx: PanelContext, *, force: bool = False) -> bool:
-        """Redraw if the token changed (or ``force``); return whether it redrew."""
+        """Redraw if the token changed (or ``force``); return whether it redrew. The live line is
+        redrawn every time, after the panel (whose scan may have added to the count)."""
         try:
             token: Hashable = self.panel.token(ctx)
         except Exception:  # noqa: BLE001  a token that fails means "always redraw"
             token = object()
         if not force and token == self._token:
+            self.refresh_live(ctx)
             return False
+        try:
+            return self._rebuild(ctx, token)
+        finally:
+            self.refresh_live(ctx)
+
+    def refresh_live(self, ctx: PanelContext) -> None:
+        """Redraw the live line from the study as it is now (cheap: no panel is rebuilt)."""
+        if self.panel.live is None:
+            return
+        try:
+            text = self.panel.live(ctx)
+        except Exception as exc:  # noqa: BLE001  a panel must never break the explorer
+            text = f"<div class='vx-status-error'>{esc(str(exc))}</div>"
+        if self.live.value != text:
+            self.live.value = text
+
+    def _rebuild(self, ctx: PanelContext, token: Hashable) -> bool:
         self._token = token
         with styled():  # the explorer's stylesheet is on the page: results add no <style> of their own
             try:

@@ -30,7 +30,8 @@ ROLES = ("fixed", "random", "nested in", "subject", "within")
 
 
 def respecified(study: Study, roles: dict[str, str], parents: dict[str, str]) -> Study:
-    """A new study on the same data with the column roles given; the edits in effect are replayed.
+    """A new study on the same data with the column roles given (``Study.respecify``: the edits in effect
+    are replayed, the ledger continues with each change of role recorded as a specification choice).
 
     ``roles[column]`` is one of :data:`ROLES`; ``parents[column]`` names the column a
     ``"nested in"`` column is nested in (it is random when listed in ``random`` too; here a
@@ -54,19 +55,8 @@ def respecified(study: Study, roles: dict[str, str], parents: dict[str, str]) ->
                        nested=tuple((c, (p,)) for c, p in nested.items()),  # type: ignore[arg-type]
                        subject=subject[0] if subject else None, within=within)
     ModelSpec(**{f: getattr(new_spec, f) for f in new_spec.__dataclass_fields__})  # validate now, clear message
-    source = study.data_source if study.data_source is not None else study.dataset.table
-    new = Study(source, spec.response, factors, blocks=spec.blocks, interactions=spec.interactions,
-                ss_type=spec.ss_type, alpha=spec.alpha, id_column=study.dataset.id_column, terms=spec.terms,
-                max_order=spec.max_order, random=new_spec.random, nested=dict(nested) or None,
-                subject=new_spec.subject, within=within, variance_method=spec.variance_method)
-    new.data_source = study.data_source
-    for e in study.edits:
-        try:
-            new.apply(e)
-        except ExplorerError:
-            continue
-    new.record_search("model roles tried in the explorer", 1)
-    return new
+    return study.respecify(factors=factors, terms=spec.terms, max_order=spec.max_order, random=new_spec.random,
+                           nested=dict(nested) or None, subject=new_spec.subject, within=within)
 
 
 class RolePickers(W.VBox):

@@ -9,6 +9,11 @@ the explorer's settings and its step history) and returns what to show:
 - an HTML string, or any object with ``_repr_html_`` (e.g. a result value);
 - ``None``: nothing to show for this study (the panel says so).
 
+A panel may also give ``live``: a function of the context returning a short HTML line that
+is redrawn on every refresh, even when the panel itself is not rebuilt. Counts that change
+while a result stands (the disclosure of the searching done) go there, so that every
+panel shows the number the study's ledger holds now, not the one when it was drawn.
+
 Register a panel with :func:`register_panel` (or the :func:`panel` decorator). Panels in
 group ``"main"`` sit beside the observations; the others go into tabs named by their
 group and are only rebuilt when their tab is open.
@@ -100,6 +105,7 @@ class Panel:
     order: int = 100
     token: Callable[[PanelContext], Hashable] = field(default=state_token)
     help: str = ""
+    live: Callable[[PanelContext], str] | None = None
 
 
 PANELS: dict[str, Panel] = {}
@@ -120,12 +126,14 @@ def unregister_panel(key: str) -> None:
 
 
 def panel(key: str, title: str, *, group: str = "more", order: int = 100,
-          token: Callable[[PanelContext], Hashable] = state_token, help: str = ""
+          token: Callable[[PanelContext], Hashable] = state_token, help: str = "",
+          live: Callable[[PanelContext], str] | None = None,
           ) -> Callable[[Callable[[PanelContext], Any]], Callable[[PanelContext], Any]]:
     """Decorator form of :func:`register_panel`."""
 
     def wrap(fn: Callable[[PanelContext], Any]) -> Callable[[PanelContext], Any]:
-        register_panel(Panel(key=key, title=title, build=fn, group=group, order=order, token=token, help=help))
+        register_panel(Panel(key=key, title=title, build=fn, group=group, order=order, token=token, help=help,
+                             live=live))
         return fn
 
     return wrap
