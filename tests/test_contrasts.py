@@ -10,7 +10,10 @@ table of orthogonal polynomials (k = 3: -1 0 1 / 1 -2 1; k = 4: -3 -1 1 3 / 1 -1
 (Gram-Schmidt on 1, x, x^2 at x = 1, 2, 4: linear -4 -1 5, quadratic 2 -3 1, as in the
 worked unequal-spacing derivations of Maxwell, Delaney and Kelley, ch. 6 - the method from
 memory, the numbers derived here by hand) and the dose levels 0.5, 1, 2, 4 checked against
-the orthogonality conditions directly.
+the orthogonality conditions directly and against patsy's ``Poly(scores=...)`` coding (an
+independent construction of orthogonal polynomials at unequal scores). No published data
+set with unequal spacing was at hand to check against; the tests of the contrasts
+themselves are statsmodels' ``t_test`` with the same weights.
 """
 
 from __future__ import annotations
@@ -263,3 +266,15 @@ def test_trend_degree_outside_the_levels_is_refused(degree):
     res = ex.Study(dose_frame(), "thickness", "dose").results
     with pytest.raises(ExplorerError, match="the degree must be a whole number between 1 and 3"):
         trend(res, "dose", degree=degree)
+
+
+def test_unequal_spacing_weights_match_patsy_poly_scores():
+    """Doses 0.5, 1, 2, 4 and the spacing 1, 2, 4, 8, 9: weights proportional to patsy's Poly(scores=...) columns
+    (patsy 0.5, an independent Gram-Schmidt of the same powers; its columns are orthonormal, ours scaled to 1)."""
+    from patsy.contrasts import Poly
+
+    for x in ([0.5, 1, 2, 4], [1, 2, 4, 8, 9]):
+        ref = Poly(scores=x).code_without_intercept(list(range(len(x)))).matrix.T
+        ref = ref / np.abs(ref).max(axis=1, keepdims=True)
+        ref = ref * np.sign(ref[:, -1:])  # ours: last nonzero weight positive
+        np.testing.assert_allclose(orthogonal_polynomials(np.asarray(x, dtype=float)), ref, atol=1e-12)

@@ -176,3 +176,15 @@ def test_widget_shows_planned_analyses():
     chart = PANELS["equivalence_intervals"].build(ctx)
     spec = chart.to_dict()
     assert "Equivalence against your margin" in json.dumps(spec)
+
+
+def test_a_trend_whose_degree_outgrows_the_levels_says_why_after_an_edit():
+    """Degree 3 on four doses; a merge leaves three, so the request reports why it has no value there, and
+    undoing the merge brings the value back (recomputed, never a stale or truncated table)."""
+    study = ex.Study(coating(), "thickness", "dose")
+    study.trend("dose", degree=3)
+    study.merge_levels("dose", ["2", "4"], into="4", reason="invented")
+    out = study.planned()[0]
+    assert out.value is None and "between 1 and 2" in out.problem
+    study.undo()
+    assert study.planned()[0].value.names == ("linear", "quadratic", "cubic")
