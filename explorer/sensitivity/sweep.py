@@ -47,7 +47,7 @@ import numpy as np
 import pandas as pd
 
 from ..engine.disclosure import Disclosure
-from ..engine.errors import DesignError
+from ..engine.errors import DesignError, ExplorerError
 from ..engine.numerics import response_scale
 from ..engine.oneway import fit_oneway
 from ..engine.results import Results
@@ -279,6 +279,8 @@ def robustness_sweep(
                          "with the classic F test only.")
             tests = ("classic",)
         rows, responses = factorial_rows(study, name, outlier_rules, transforms, merges, a, notes)
+    if not rows:
+        raise ExplorerError("the robustness sweep has no analysis to run: " + " ".join(notes))
     notes.insert(0, f"Scored: the decision on {name}; the default specification is the study's own analysis "
                     f"({tests[0]} test).")
     every = pd.DataFrame(rows)
