@@ -188,3 +188,23 @@ def test_a_trend_whose_degree_outgrows_the_levels_says_why_after_an_edit():
     assert out.value is None and "between 1 and 2" in out.problem
     study.undo()
     assert study.planned()[0].value.names == ("linear", "quadratic", "cubic")
+
+
+def test_versions_tried_are_named_in_the_ledger_and_kept_in_the_file(tmp_path):
+    """Each further version of a question is one search entry of the disclosure ledger naming that version
+    (the first is free); the saved study brings the same entries back and the same count."""
+    df = coating()
+    study = ex.Study(df, "thickness", "dose")
+    study.equivalence("dose", margin=1.0, pairs=[("1", "2")])
+    study.equivalence("dose", margin=1.5, pairs=[("1", "2")])
+    study.contrast("dose", {"0.5": -1, "4": 1})
+    study.trend("dose", degree=2)
+    searches = [e for e in study.ledger.entries if e.kind == "search"]
+    assert [e.count for e in searches] == [1, 1]
+    assert "another version of equivalence of dose: Equivalence of dose" in searches[0].what
+    assert 'margin=1.5' in searches[0].what
+    assert "Polynomial trend of dose (degree=2)" in searches[1].what
+    again = ex.Study.load(study.save(tmp_path / "s.study.json"), df)
+    assert [(e.what, e.count) for e in again.ledger.entries if e.kind == "search"] == \
+        [(e.what, e.count) for e in searches]
+    assert _searched(again) == _searched(study)

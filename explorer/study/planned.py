@@ -330,7 +330,8 @@ class PlannedAnalyses:
         planned.append((request, at or datetime.now(timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")))
         if record and earlier:
             q, f = request.question
-            self.record_search(f"planned analyses: another version of {q}" + (f" of {f}" if f else ""), 1)
+            self.record_search(f"planned analyses: another version of {q}" + (f" of {f}" if f else "")
+                               + f": {request.label()}", 1)
 
     def planned(self) -> tuple[PlannedOutcome, ...]:
         """Every planned analysis on the current view (recomputed after each edit; memoised per view)."""
