@@ -114,7 +114,7 @@ class Dataset:
     untransformed: Dataset | None = field(default=None, repr=False)
     #: Numeric covariates of the usable rows (read-only float64), by column name.
     covariates: Mapping[str, np.ndarray] = field(default_factory=dict)
-    _positions: dict[RowId, int] = field(default_factory=dict, repr=False)
+    _positions: dict[str, Any] = field(default_factory=dict, repr=False)  # id lookup, built on first use
     _memo: dict[str, int | None] = field(default_factory=dict, repr=False)  # derived once from the frozen data
 
     @property
@@ -135,31 +135,57 @@ class Dataset:
         return self._memo["decimals"]
 
     def positions(self, rows: Iterable[RowId] | RowId) -> np.ndarray:
-        """Positions (among usable rows) of the given row ids; clear error for unknown ids."""
+        """Positions (among usable rows) of the given row ids; clear error for unknown ids.
+
+        Looked up without a per-row table: integer ids by binary search over the ids in
+        order (no copy when they are already increasing, as positions and ranges are),
+        text ids through one hashed index built on first use.
+        """
         if isinstance(rows, (str, int, np.integer)):
             rows = [rows]
-        rows = list(rows)
-        if not self._positions:
-            self._positions.update({_py(r): i for i, r in enumerate(self.row_ids.tolist())})
-        out: list[int] = []
+        keys = [_py(r) for r in rows]
+        found = self._find(keys)
         missing: list[RowId] = []
         aside: list[RowId] = []
-        set_aside_ids = {s.row for s in self.set_aside}
-        for r in rows:
-            key = _py(r)
-            pos = self._positions.get(key)
-            if pos is None and isinstance(key, str) and _INT_TEXT.fullmatch(key):
-                pos = self._positions.get(int(key))
-            if pos is None:
+        set_aside_ids = {s.row for s in self.set_aside} if (found < 0).any() else set()
+        for key, pos in zip(keys, found.tolist()):
+            if pos < 0:
                 (aside if key in set_aside_ids else missing).append(key)
-            else:
-                out.append(pos)
         if aside:
             raise EditError(f"rows {preview(aside)} were set aside when the data were loaded (see study.set_aside)")
         if missing:
             sample = preview(self.row_ids[:5].tolist(), 5)
             raise EditError(f"no rows with ids {preview(missing)}; row ids look like {sample} ({self.id_source})")
-        return np.asarray(out, dtype=np.int64)
+        return found
+
+    def _find(self, keys: list[RowId]) -> np.ndarray:
+        """Position of each key among the usable rows, -1 where there is none (an integer's text finds it too)."""
+        ids = self.row_ids
+        if ids.dtype.kind in "iu":
+            wanted = np.array([k if isinstance(k, int) else int(k) if _INT_TEXT.fullmatch(k) else 0 for k in keys],
+                              dtype=object)
+            usable = np.array([isinstance(k, int) or bool(_INT_TEXT.fullmatch(k)) for k in keys], dtype=bool)
+            usable &= np.array([-(2**63) <= int(w) < 2**63 for w in wanted], dtype=bool)
+            w = np.where(usable, wanted, 0).astype(np.int64)
+            order = self._id_order()
+            sorted_ids = ids if order is None else ids[order]
+            at = np.minimum(np.searchsorted(sorted_ids, w), max(ids.size - 1, 0))
+            hit = usable & (ids.size > 0) & (sorted_ids[at] == w)
+            pos = at if order is None else order[at]
+            return np.where(hit, pos, -1).astype(np.int64)
+        index = self._positions.get("index")
+        if index is None:
+            index = self._positions["index"] = pd.Index(ids)
+        direct = np.asarray(index.get_indexer(pd.Index(keys, dtype=object)), dtype=np.int64)
+        return direct
+
+    def _id_order(self) -> np.ndarray | None:
+        """``None`` when integer ids are increasing (the common case), else the order that sorts them (kept)."""
+        if "order" not in self._positions:
+            ids = self.row_ids
+            self._positions["order"] = None if bool(np.all(ids[1:] > ids[:-1])) else np.argsort(ids, kind="stable")
+        order: np.ndarray | None = self._positions["order"]
+        return order
 
     def row_id(self, position: int) -> RowId:
         return _py(self.row_ids[position])

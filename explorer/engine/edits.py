@@ -19,6 +19,7 @@ from .dataset import Dataset, RowId
 from .errors import EditError, ReplayError, closest_names, preview
 from .numerics import read_only
 from .view import DataView
+from .view_delta import CodeChange, ViewDelta, diff_views
 
 __all__ = [
     "Edit",
@@ -94,6 +95,15 @@ class Edit:
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:  # pragma: no cover - abstract
         raise NotImplementedError
+
+    def change(self, view: DataView, dataset: Dataset) -> ViewDelta:
+        """What this edit changes in ``view``: the changed rows only (:mod:`.view_delta`).
+
+        ``change(view, dataset).forward(view)`` is ``apply(view, dataset)``. The kinds of
+        this module say it directly in O(changed rows); a kind that does not is diffed
+        against its ``apply`` (one pass over the rows).
+        """
+        return diff_views(view, self.apply(view, dataset))
 
     def describe(self) -> str:  # pragma: no cover - abstract
         raise NotImplementedError
@@ -182,14 +192,17 @@ class _RowsEdit(Edit):
             raise EditError(f"{self.kind} needs at least one row id")
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
-        pos = dataset.positions(self.rows)
-        unchanged = [dataset.row_id(int(p)) for p in pos if bool(view.kept[p]) == self.keep]
-        if unchanged and len(unchanged) == len(pos):
+        return self.change(view, dataset).forward(view)
+
+    def change(self, view: DataView, dataset: Dataset) -> ViewDelta:
+        asked = dataset.positions(self.rows)
+        pos = np.unique(asked)
+        flips = pos[view.kept[pos] != self.keep]
+        if not flips.size:
+            unchanged = [dataset.row_id(int(p)) for p in asked]
             state = "in the analysis; nothing to restore" if self.keep else "already left out"
             raise EditError(f"rows {preview(unchanged)} are {state}")
-        kept = view.kept.copy()
-        kept[pos] = self.keep
-        return view.replace(kept=read_only(kept))
+        return ViewDelta.keep(flips, self.keep)
 
     def describe(self) -> str:
         return f"{self.verb} row(s) {preview(list(self.rows))}"
@@ -231,18 +244,20 @@ class Reassign(Edit):
         object.__setattr__(self, "level", level_name(self.level))
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        return self.change(view, dataset).forward(view)
+
+    def change(self, view: DataView, dataset: Dataset) -> ViewDelta:
         require_factor(view, self.factor)
         pos = int(dataset.positions([self.row])[0])
-        levels = view.levels[self.factor]
-        if self.level == levels[view.codes[self.factor][pos]]:
+        before = view.levels[self.factor]
+        old = int(view.codes[self.factor][pos])
+        if self.level == before[old]:
             raise EditError(f"row {self.row} is already at level {self.level!r} of {self.factor!r}")
-        if self.level not in levels:
-            levels = levels + (self.level,)
-        codes = view.codes[self.factor].copy()
-        codes[pos] = levels.index(self.level)
-        return view.replace(
-            codes={**view.codes, self.factor: read_only(codes)}, levels={**view.levels, self.factor: levels}
-        )
+        after = before if self.level in before else before + (self.level,)
+        move = CodeChange(self.factor, before, after, read_only(np.array([pos], dtype=np.int64)),
+                          read_only(np.array([old], dtype=np.int32)),
+                          read_only(np.array([after.index(self.level)], dtype=np.int32)))
+        return ViewDelta(codes=(move,))
 
     def describe(self) -> str:
         return f"move row {self.row} to {self.factor} = {self.level}"
@@ -264,7 +279,8 @@ class MergeLevels(Edit):
         object.__setattr__(self, "levels", tuple(str(x) for x in self.levels))
         object.__setattr__(self, "into", level_name(self.into))
 
-    def apply(self, view: DataView, dataset: Dataset) -> DataView:
+    def _plan(self, view: DataView) -> tuple[list[int], int]:
+        """The level codes merged (sorted) and the one whose place the merged level takes."""
         require_factor(view, self.factor)
         known = view.levels[self.factor]
         sources = require_levels(view, self.factor, self.levels)
@@ -273,7 +289,25 @@ class MergeLevels(Edit):
         sources = sorted(set(sources))
         if len(sources) < 2:
             raise EditError(f"merging needs two or more distinct levels of {self.factor!r}; got {list(self.levels)}")
-        target = known.index(self.into) if self.into in known else sources[0]
+        return sources, (known.index(self.into) if self.into in known else sources[0])
+
+    def change(self, view: DataView, dataset: Dataset) -> ViewDelta:
+        sources, target = self._plan(view)
+        known = view.levels[self.factor]
+        remap, new_levels = self._remap(known, sources, target)
+        unmap = np.empty(len(new_levels), dtype=np.int32)
+        for i in range(len(known)):
+            if i not in sources or i == target:
+                unmap[remap[i]] = i
+        codes = view.codes[self.factor]
+        moved = [i for i in sources if i != target]
+        pos = np.flatnonzero(np.isin(codes, moved)) if len(moved) > 1 else np.flatnonzero(codes == moved[0])
+        merge = CodeChange(self.factor, known, new_levels, read_only(pos), read_only(codes[pos].astype(np.int32)),
+                           read_only(np.full(pos.size, remap[target], dtype=np.int32)), read_only(remap),
+                           read_only(unmap))
+        return ViewDelta(codes=(merge,))
+
+    def _remap(self, known: tuple[str, ...], sources: list[int], target: int) -> tuple[np.ndarray, tuple[str, ...]]:
         new_levels: list[str] = []
         remap = np.empty(len(known), dtype=np.int32)
         for i, name in enumerate(known):
@@ -283,10 +317,15 @@ class MergeLevels(Edit):
             new_levels.append(self.into if i == target else name)
         for i in sources:
             remap[i] = remap[target]
+        return remap, tuple(new_levels)
+
+    def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        sources, target = self._plan(view)
+        remap, new_levels = self._remap(view.levels[self.factor], sources, target)
         codes = remap[view.codes[self.factor]]
         return view.replace(
             codes={**view.codes, self.factor: read_only(codes)},
-            levels={**view.levels, self.factor: tuple(new_levels)},
+            levels={**view.levels, self.factor: new_levels},
         )
 
     def describe(self) -> str:
@@ -318,6 +357,10 @@ class RenameLevel(Edit):
         levels = known[:i] + (self.new,) + known[i + 1 :]
         return view.replace(levels={**view.levels, self.factor: levels})
 
+    def change(self, view: DataView, dataset: Dataset) -> ViewDelta:
+        new = self.apply(view, dataset)  # names only: no row changes
+        return ViewDelta(codes=(CodeChange(self.factor, view.levels[self.factor], new.levels[self.factor]),))
+
     def describe(self) -> str:
         return f"rename {self.factor} level {self.old} to {self.new}"
 
@@ -335,15 +378,17 @@ class _UnitEdit(Edit):
         object.__setattr__(self, "level", str(self.level))
 
     def apply(self, view: DataView, dataset: Dataset) -> DataView:
+        return self.change(view, dataset).forward(view)
+
+    def change(self, view: DataView, dataset: Dataset) -> ViewDelta:
         require_factor(view, self.column)
         (code,) = require_levels(view, self.column, (self.level,))
-        rows = view.codes[self.column] == code
-        if bool(np.all(view.kept[rows] == self.keep)):
+        rows = np.flatnonzero(view.codes[self.column] == code)
+        flips = rows[view.kept[rows] != self.keep]
+        if not flips.size:
             state = "in the analysis; nothing to restore" if self.keep else "already left out"
             raise EditError(f"every row of {self.column} = {self.level!r} is {state}")
-        kept = view.kept.copy()
-        kept[rows] = self.keep
-        return view.replace(kept=read_only(kept))
+        return ViewDelta.keep(flips, self.keep)
 
     def describe(self) -> str:
         return f"{self.verb} every row of {self.column} = {self.level}"

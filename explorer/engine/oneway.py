@@ -21,7 +21,7 @@ from .errors import DesignError, preview
 from .fitrows import RowSet, row_fit
 from .groupstats import GroupStats, group_stats
 from .numerics import is_zero_ss, response_scale
-from .results import LevelTable, Results, TwoSampleT
+from .results import Fit, LevelTable, Results, TwoSampleT
 from .spec import ModelSpec
 from .tables import AnovaTable, TermRow
 
@@ -111,7 +111,7 @@ def oneway_from_stats(
     full: GroupStats,
     spec: ModelSpec,
     *,
-    rows: RowSet,
+    rows: RowSet | Fit,
     dropped: tuple[RowId, ...] = (),
     confidence: float | None = None,
     method: str = "least squares, one-way (group sufficient statistics)",
@@ -120,7 +120,9 @@ def oneway_from_stats(
 
     ``full`` holds every level of the factor (empty ones allowed); ``rows`` are the rows
     whose fitted values and residuals the results report (all kept rows, a sample of
-    them, or none), their ``group`` codes indexing ``full``'s levels. Intervals (level
+    them, or none), their ``group`` codes indexing ``full``'s levels; or the fit of those rows
+    already made (a deferred one: see :func:`.results.deferred_fit`), whose groups index the
+    non-empty levels. Intervals (level
     means, the two-level difference) are ``1 - alpha`` of ``spec`` unless ``confidence``
     is given.
     """
@@ -190,7 +192,8 @@ def oneway_from_stats(
         two = TwoSampleT(first=gs.labels[0], second=gs.labels[1], difference=diff, statistic=t_stat, df=df_w,
                          pvalue=p2, ci_low=lo, ci_high=hi, confidence=confidence)
 
-    fit = row_fit(rows.regrouped(remap) if empty else rows, gs.mean, 1.0 / nn, offset)
+    fit = rows if isinstance(rows, Fit) else row_fit(rows.regrouped(remap) if empty else rows, gs.mean, 1.0 / nn,
+                                                     offset)
     sst = ssb + ssw
     return Results(
         spec=spec,

@@ -38,7 +38,7 @@ if TYPE_CHECKING:  # multi-factor result parts (see factorial.py)
     from .term_effects import TermEffects
     from .variance_components import VarianceComponents
 
-__all__ = ["LevelTable", "TwoSampleT", "Fit", "Results"]
+__all__ = ["LevelTable", "TwoSampleT", "Fit", "Results", "deferred_fit"]
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -134,6 +134,36 @@ class Fit:
             {"row": self.row_ids, "observed": self.y, "fitted": self.fitted,
              "residual": self.residuals, "leverage": self.leverage}
         )
+
+
+_FIT_FIELDS = ("row_ids", "positions", "y", "fitted", "residuals", "leverage", "group")
+
+
+class _DeferredFit(Fit):
+    """A :class:`Fit` whose per-row arrays are made on first reading (all at once), then kept."""
+
+    def __init__(self, make: Callable[[], Fit]) -> None:  # noqa: D107 - the dataclass fields come later
+        object.__setattr__(self, "_make", make)
+
+    def __getattr__(self, name: str) -> Any:
+        make = self.__dict__.get("_make")
+        if name not in _FIT_FIELDS or make is None:
+            raise AttributeError(name)
+        fit = make()
+        for f in _FIT_FIELDS:
+            object.__setattr__(self, f, getattr(fit, f))
+        object.__setattr__(self, "_make", None)
+        return getattr(self, name)
+
+
+def deferred_fit(make: Callable[[], Fit]) -> Fit:
+    """A fit whose per-row arrays (eight bytes a row each) are computed by ``make()`` when first read.
+
+    The partition and tables of an edit need only group statistics; the per-row part
+    costs memory and time proportional to the table, so results of an edit make it
+    only when something (a chart, a check, a scan) reads it.
+    """
+    return _DeferredFit(make)
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)

@@ -2,8 +2,10 @@
 
 The study is the only stateful object of the statistical layers. Its state is the list of edits and
 a cursor into it; the current view is the fold of the edits up to the cursor over the
-dataset's initial view, and ``results`` is ``analyze`` of that view (memoised per
-cursor position, so undo and redo cost nothing).
+dataset's initial view, and ``results`` is ``analyze`` of that view. The log keeps each edit's
+change (the changed rows only, :mod:`explorer.engine.view_delta`), one current view, and the
+results of the baseline and the last position used (:mod:`.result_cache`); undo and redo step
+the current view and the running statistics by the changed rows.
 """
 
 from __future__ import annotations
@@ -19,7 +21,7 @@ from typing import TYPE_CHECKING, Any
 
 import pandas as pd
 
-from ..engine.analysis import analyze
+from ..engine.analysis import AnalysisState, analysis_after, analysis_state, analyze
 from ..engine.dataset import Dataset, RowId, SetAsideRow, build_dataset
 from ..engine.disclosure import Disclosure
 from ..engine.edits import DropRows, DropUnit, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, RestoreUnit
@@ -30,6 +32,7 @@ from ..engine.spec import ModelSpec
 from ..engine.table_checks import column_names
 from ..engine.transforms import with_transform
 from ..engine.view import DataView, initial_view
+from ..engine.view_delta import ViewDelta
 from ..formatting import Scale
 from .decision import Decision, decide
 from .decision_card import DecisionCard, decision_card
@@ -45,6 +48,7 @@ from .persistence import (
     study_to_dict,
 )
 from .planned import PlannedAnalyses, planned_from_doc
+from .result_cache import RECENT_POSITIONS, BoundedCache
 
 if TYPE_CHECKING:
     from ..inference.battery import Battery
@@ -142,28 +146,32 @@ class Study(PlannedAnalyses):
         self._init(build_dataset(data, response, spec.columns, id_column, spec.covariates), spec,
                    data_source=data if isinstance(data, (str, Path)) else None)
 
-    def _init(self, dataset: Dataset, spec: ModelSpec, data_source: str | Path | None = None) -> None:
+    def _init(self, dataset: Dataset, spec: ModelSpec, data_source: str | Path | None = None,
+              baseline: DataView | None = None) -> None:
         self.dataset = with_transform(dataset, spec.transform)  # the response as the model reads it
+        self._baseline_view = baseline
         self.spec = spec
         self.data_source = data_source  # the file the data came from, for replay code
         self._read_files: list[Path] = [Path(data_source).resolve()] if data_source is not None else []
         self._own_files: list[Path] = []  # study files this study was loaded from or saved to
         self._log: list[Edit] = []
-        self._views: list[DataView] = [initial_view(dataset)]
-        self._results: dict[int, Results] = {}
-        self._decisions: dict[int, tuple[Results, Decision]] = {}
+        self._deltas: list[ViewDelta] = []  # what each edit of the log changes, for undo and redo
+        self._results: dict[int, Results] = BoundedCache()
+        self._decisions: dict[int, tuple[Results, Decision]] = BoundedCache()
         self._position = 0
         self._ledger = Ledger()  # every edit, undo, redo, reset, choice and search, with times
         self._comparisons = COMPARISON_METHODS[0]  # how levels are compared pairwise (set_comparisons)
         self.edits_not_carried: tuple[Edit, ...] = ()  # edits respecify could not carry over
         self._listeners: list[Callable[["Study", StudyEvent], None]] = []
         self._planned = []  # planned analyses asked for (see explorer.study.planned)
-        self._results[0] = analyze(dataset, self._views[0], spec)
+        self._forget_results()
+        self._results[0] = self._base[2].results
 
     @classmethod
-    def from_dataset(cls, dataset: Dataset, spec: ModelSpec) -> "Study":
+    def from_dataset(cls, dataset: Dataset, spec: ModelSpec, *, baseline: DataView | None = None) -> "Study":
+        """A study of ``dataset``; ``baseline`` is the view its edits start from (all rows by default)."""
         study = cls.__new__(cls)
-        study._init(dataset, spec)
+        study._init(dataset, spec, baseline=baseline)
         return study
 
     # ----------------------------------------------------------------- state
@@ -178,7 +186,36 @@ class Study(PlannedAnalyses):
 
     @property
     def view(self) -> DataView:
-        return self._views[self._position]
+        return self._sync()[1]
+
+    def _forget_results(self) -> None:
+        """Drop every result (the spec or the response changed); the baseline is fitted again."""
+        self._results = BoundedCache()
+        self.__dict__["_decisions"] = BoundedCache()
+        view = self._baseline_view if getattr(self, "_baseline_view", None) is not None else initial_view(self.dataset)
+        self._base = self._now = (0, view, analysis_state(self.dataset, view, self.spec))
+
+    def _sync(self) -> tuple[int, DataView, AnalysisState]:
+        """The current view and its analysis state, stepped from the last ones by the edits' changes."""
+        at, view, state = self._now
+        target = self._position
+        if at == target:
+            return self._now
+        if target < abs(at - target):  # nearer the baseline: start there
+            at, view, state = self._base
+        stepped = state.groups is not None  # running statistics step with the view; other fits only at the end
+        while at != target:
+            forward = at < target
+            delta = self._deltas[at] if forward else self._deltas[at - 1].inverse()
+            new_view = delta.forward(view)
+            if stepped:
+                state = analysis_after(self.dataset, self.spec, state, view, new_view, delta)
+            at, view = at + (1 if forward else -1), new_view
+        if not stepped:
+            state = analysis_state(self.dataset, view, self.spec)
+        self._now = (at, view, state)
+        self._results[at] = state.results
+        return self._now
 
     @property
     def results(self) -> Results:
@@ -234,8 +271,7 @@ class Study(PlannedAnalyses):
             return self.decision
         old = self.spec.test
         self.spec = new_spec
-        self._results = {}
-        self.__dict__["_decisions"] = {}
+        self._forget_results()
         self._record_choice("overall test", old, new_spec.test)
         self._emit("spec", None)
         return self.decision
@@ -283,13 +319,15 @@ class Study(PlannedAnalyses):
 
     def _respec(self, new_spec: ModelSpec, what: str, old: object, new: object) -> Results:
         """Analyse under ``new_spec`` (same data, edits in effect), or refuse and change nothing; record the choice."""
+        view = self.view
         try:
-            res = analyze(self.dataset, self.view, new_spec)
+            state = analysis_state(self.dataset, view, new_spec)
         except DesignError as exc:
             raise EditError(f"{what} refused ({new}): {exc}") from None
         self.spec = new_spec
-        self._results = {self._position: res}
-        self.__dict__["_decisions"] = {}
+        self._forget_results()
+        self._now = (self._position, view, state)
+        self._results[self._position] = state.results
         self._record_choice(what, old, new)
         self._emit("spec", None)
         return self.results
@@ -364,8 +402,7 @@ class Study(PlannedAnalyses):
             raise EditError(f"transform refused ({new_spec.transform!r}): {exc}") from None
         old = self.spec.transform
         self.dataset, self.spec = dataset, new_spec
-        self._results = {}
-        self.__dict__["_decisions"] = {}
+        self._forget_results()
         self._record_choice("transform", old, new_spec.transform)
         self._emit("spec", None)
         return self.results
@@ -400,7 +437,12 @@ class Study(PlannedAnalyses):
 
     def _results_at(self, pos: int) -> Results:
         if pos not in self._results:
-            self._results[pos] = analyze(self.dataset, self._views[pos], self.spec)
+            if pos == self._position:
+                return self._sync()[2].results
+            view = self._base[1]
+            for delta in self._deltas[:pos]:
+                view = delta.forward(view)
+            self._results[pos] = analyze(self.dataset, view, self.spec)
         return self._results[pos]
 
     def levels(self, factor: str) -> tuple[str, ...]:
@@ -421,19 +463,23 @@ class Study(PlannedAnalyses):
             raise EditError(f"the origin must be text, not {type(origin).__name__}")
         if not isinstance(edit.reason, str):
             raise EditError(f"the reason must be text, not {type(edit.reason).__name__} ({edit.reason!r})")
-        new_view = edit.apply(self.view, self.dataset)
+        _, view, state = self._sync()
+        delta = edit.change(view, self.dataset)
+        new_view = delta.forward(view)
         try:
-            res = analyze(self.dataset, new_view, self.spec)
+            state = analysis_after(self.dataset, self.spec, state, view, new_view, delta)
         except DesignError as exc:
             raise EditError(f"edit refused ({edit.describe()}): {exc}") from None
         del self._log[self._position :]
-        del self._views[self._position + 1 :]
-        for k in [k for k in self._results if k > self._position]:
-            del self._results[k]
+        del self._deltas[self._position :]
+        for cache in (self._results, self.__dict__.get("_decisions", {})):
+            for k in [k for k in cache if k > self._position]:
+                del cache[k]
         self._log.append(edit)
-        self._views.append(new_view)
+        self._deltas.append(delta)
         self._position += 1
-        self._results[self._position] = res
+        self._now = (self._position, new_view, state)
+        res = self._results[self._position] = state.results
         self._ledger.record_edit(edit, origin=origin)
         self._emit("edit", edit)
         return res
@@ -474,16 +520,17 @@ class Study(PlannedAnalyses):
         if self.__dict__.get("_held") is not None:  # inside another all-or-nothing action: that one decides
             yield self
             return
-        saved = (list(self._log), list(self._views), dict(self._results), self._position,
-                 dict(self.__dict__.get("_decisions", {})), len(self._ledger))
+        saved = (list(self._log), list(self._deltas), dict(self._results), self._position,
+                 dict(self.__dict__.get("_decisions", {})), len(self._ledger), self._now, self._base)
         held: list[tuple[str, Edit | None]] = []
         self._held: list[tuple[str, Edit | None]] | None = held
         try:
             yield self
         except BaseException:
             self._held = None
-            self._log, self._views, self._results, self._position, decisions, mark = saved
-            self.__dict__["_decisions"] = decisions
+            self._log, self._deltas, results, self._position, decisions, mark, self._now, self._base = saved
+            self._results = BoundedCache(RECENT_POSITIONS, results)
+            self.__dict__["_decisions"] = BoundedCache(RECENT_POSITIONS, decisions)
             self._ledger.rollback_to(mark)
             raise
         self._held = None

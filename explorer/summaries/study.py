@@ -26,7 +26,6 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..engine.analysis import analyze
 from ..engine.cells import layout_cells
 from ..engine.dataset import Dataset, build_dataset, level_label
 from ..engine.edits import Edit, MergeLevels, RenameLevel, edit_from_dict
@@ -247,10 +246,9 @@ class SummaryStudy(Study):
         note = (f"Sample: {view.n_kept} rows drawn with seed {self.seed} by {self.source.engine} from the "
                 f"{self.results.n_used} rows of a summary-backed study; the exact results come from the summaries.")
         ds = dataclasses.replace(self.dataset, notes=self.dataset.notes + (note,))
-        study = Study.from_dataset(ds, self.spec)
-        res = analyze(ds, view, self.spec)
-        study._views[0] = view
-        study._results = {0: dataclasses.replace(res, notes=res.notes + (note,))}
+        study = Study.from_dataset(ds, self.spec, baseline=view)
+        res = study.baseline
+        study._results[0] = dataclasses.replace(res, notes=res.notes + (note,))
         return study
 
     def sample_results(self) -> Results:
@@ -488,6 +486,11 @@ class SummaryStudy(Study):
         return self.apply(RestoreCell(factors=tuple(cell), levels=tuple(str(v) for v in cell.values()), reason=reason))
 
     # ------------------------------------------------------------ checks and scans
+    def _forget_results(self) -> None:
+        """Drop every result (the test changed); positions are fitted again from the summaries when asked."""
+        self._results = {}
+        self.__dict__["_decisions"] = {}
+
     def set_test(self, test: str) -> Any:
         """As :meth:`Study.set_test`; the rank and permutation tests are refused (they need every row)."""
         _summary_test(test)
