@@ -192,8 +192,10 @@ class Study(PlannedAnalyses):
         """Drop every result (the spec or the response changed); the baseline is fitted again."""
         self._results = BoundedCache()
         self.__dict__["_decisions"] = BoundedCache()
-        view = self._baseline_view if getattr(self, "_baseline_view", None) is not None else initial_view(self.dataset)
-        self._base = self._now = (0, view, analysis_state(self.dataset, view, self.spec))
+        given: DataView | None = getattr(self, "_baseline_view", None)
+        view = given if given is not None else initial_view(self.dataset)
+        self._base: tuple[int, DataView, AnalysisState] = (0, view, analysis_state(self.dataset, view, self.spec))
+        self._now = self._base
 
     def _sync(self) -> tuple[int, DataView, AnalysisState]:
         """The current view and its analysis state, stepped from the last ones by the edits' changes."""
