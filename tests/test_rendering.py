@@ -103,6 +103,8 @@ def results_by_type() -> dict[type, Any]:
         one.contrast("nozzle", {"A": -1, "B": 1})
         one.drop([0], reason="invented: a smeared panel")  # the card then shows a change
         one.equivalence("nozzle", margin=1.0, pairs=[("A", "C")])
+        colleague = ex.Study(example_data("coating"), response="thickness_um", factors="nozzle")
+        colleague.merge_levels("nozzle", ["A", "B"], into="A+B", reason="invented: one supplier")
         summary = SummaryStudy(example_data("lines"), "thickness_um", ["nozzle", "speed"], sample_size=0)
         values = [
             one, one.results, one.decision, one.decision_card(), one.battery(), one.influence(),
@@ -115,6 +117,7 @@ def results_by_type() -> dict[type, Any]:
             gauge.results, gauge.measurement_system("part", "operator"), gauge.unit_deletion("part"),
             cure.results, cure.repeated_measures(), blocked.results, st.friedman(blocked.results),
             covariate.results, set_aside_scan(summary, record=False),
+            one.compare(colleague),
         ]
     found: dict[type, Any] = {}
     for v in values:

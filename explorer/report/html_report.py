@@ -5,9 +5,10 @@ stylesheet of :mod:`explorer.rendering`), charts are inline SVG, there is no
 script, and a content-security policy in the page forbids loading anything else. It
 shows, in order: the scenario, the decision card (unedited and current decisions, what
 changed, the disclosure count, one line per caution), the data's provenance, the
-cautions in full, baseline and current results side by side, every edit with its reason and
-time, the test battery, the sensitivity summary and the replay code. The saved study
-(the same JSON as ``study.save``) is embedded, so the edit log can be taken out again.
+cautions in full, baseline and current results side by side, every edit with its reason
+and time (and, when asked, a colleague's study of the same data beside it), the test
+battery, the sensitivity summary and the replay code. The saved study (the same JSON as
+``study.save``) is embedded, so the edit log can be taken out again.
 """
 
 from __future__ import annotations
@@ -31,6 +32,7 @@ from .strata_part import strata_part
 from .svg_charts import Figure, interaction_figure, model_check_figures, observation_figures
 
 if TYPE_CHECKING:
+    from ..study.compare import StudyComparison
     from ..study.study import Study
 
 __all__ = ["report_html", "write_report"]
@@ -207,16 +209,30 @@ def _part(part: Part) -> str:
     return f"<p class='vx-note'>Not included: {esc(part.note or '')}.</p>"
 
 
-def report_html(study: "Study", *, title: str | None = None, scenario: str | None = None, charts: bool = True) -> str:
+def report_html(study: "Study", *, title: str | None = None, scenario: str | None = None, charts: bool = True,
+                compare: "Study | str | Path | None" = None) -> str:
     """The report page as a string (see the module docstring for its contents).
 
     Numbers follow the study's display scale (:mod:`explorer.formatting`), as in the explorer.
+    With ``compare`` (a colleague's study of the same data, or the path of its study file),
+    the page has a section setting the two side by side (``study.compare``).
     """
+    comparison = None if compare is None else study.compare(compare)  # refused before anything is built
     with scale(of=study.display_scale()), styled():  # the page carries the stylesheet once, in its head
-        return _report_html(study, title=title, scenario=scenario, charts=charts)
+        return _report_html(study, title=title, scenario=scenario, charts=charts, comparison=comparison)
 
 
-def _report_html(study: "Study", *, title: str | None, scenario: str | None, charts: bool) -> str:
+def _colleague(comparison: "StudyComparison | None") -> list[str]:
+    if comparison is None:
+        return []
+    return [f"<section id='colleague'><h2>Beside {esc(comparison.theirs_label)}</h2>"
+            "<p>A second study of the same data: the two edit logs, the two analyses, and the edits that "
+            "make the decisions differ (replayed one edit at a time under this study's model).</p>"
+            f"{comparison._repr_html_()}</section>"]
+
+
+def _report_html(study: "Study", *, title: str | None, scenario: str | None, charts: bool,
+                 comparison: "StudyComparison | None" = None) -> str:
     from .._version import __version__
 
     spec = study.spec
@@ -244,6 +260,7 @@ def _report_html(study: "Study", *, title: str | None, scenario: str | None, cha
         _interaction(study, charts),
         f"<section id='edits'><h2>Edits, with reasons</h2>{_edits(study)}{_moved(study)}</section>",
         *([f"<section id='record'><h2>Record of the work</h2>{_ledger(study)}</section>"] if len(study.ledger) else []),
+        *_colleague(comparison),
         f"<section id='battery'><h2>{esc(battery.title)}</h2>{_part(battery)}</section>",
         *([f"<section id='strata'><h2>{esc(strata.title)}</h2>{_part(strata)}</section>"]
           if strata.present else []),
@@ -270,6 +287,7 @@ def _report_html(study: "Study", *, title: str | None, scenario: str | None, cha
 def write_report(
     study: "Study", path: str | Path, *, title: str | None = None, scenario: str | None = None, charts: bool = True,
     overwrite: bool = False, protect: Iterable[tuple[str, str | Path | None]] = (),
+    compare: "Study | str | Path | None" = None,
 ) -> Path:
     """Write :func:`report_html` to ``path`` (UTF-8, atomically) and return the path.
 
@@ -278,6 +296,8 @@ def write_report(
     description and a path) are never written over.
     """
     guard = [*study.files_read(), *protect]
+    if isinstance(compare, (str, Path)):
+        guard.append(("colleague's study file", compare))
     check_output_path(path, overwrite=overwrite, protect=guard)
-    page = report_html(study, title=title, scenario=scenario, charts=charts)
+    page = report_html(study, title=title, scenario=scenario, charts=charts, compare=compare)
     return write_text_atomic(path, page, overwrite=overwrite, protect=guard)

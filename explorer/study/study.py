@@ -34,6 +34,7 @@ from ..engine.transforms import with_transform
 from ..engine.view import DataView, initial_view
 from ..engine.view_delta import ViewDelta
 from ..formatting import Scale
+from .compare import StudyComparison, adopted_copy, compare_studies
 from .decision import Decision, decide
 from .decision_card import DecisionCard, decision_card
 from .ledger import Ledger
@@ -672,16 +673,41 @@ class Study(PlannedAnalyses):
         check_ledger(ledger, len(self._log), self._position, "the saved ledger")
         self._ledger = ledger
 
+    # ----------------------------------------------------------------- a colleague's study
+    def load_other(self, path: str | Path) -> "Study":
+        """A colleague's study file loaded onto this study's data (refused, saying what differs, when the
+        file was saved on other data)."""
+        data = self.data_source if self.data_source is not None else self.dataset.table
+        return Study.load(path, data)
+
+    def compare(self, other: "Study | str | Path", *, label: str | None = None) -> StudyComparison:
+        """This study beside a second study of the same data: the edit logs and analyses side by side and the
+        edits that make the decisions differ (see :mod:`.compare`). ``other`` is a study or the path of a
+        study file (loaded onto this study's data); ``label`` names it (the file name by default)."""
+        if not isinstance(other, Study):
+            label = label or Path(other).name
+            other = self.load_other(other)
+        return compare_studies(self, other, theirs_label=label or "theirs")
+
+    def adopt(self, edit: Edit, *, origin: str) -> Results:
+        """Apply an edit taken from another study, keeping its reason; the ledger records ``origin``
+        (e.g. ``"adopted from colleague.study.json"``). Refused, state unchanged, if it does not apply."""
+        if not isinstance(origin, str) or not origin.strip():
+            raise EditError("an adopted edit needs its origin (where it comes from), as text")
+        return self.apply(adopted_copy(edit), origin=origin)
+
     # ----------------------------------------------------------------- hand-off
     def report(self, path: str | Path, *, title: str | None = None, scenario: str | None = None,
-               overwrite: bool = False) -> Path:
+               overwrite: bool = False, compare: "Study | str | Path | None" = None) -> Path:
         """Write a self-contained HTML report (opens offline), atomically; see :mod:`explorer.report`.
 
         An existing file needs ``overwrite=True``; the data and study files are never written over.
+        ``compare``: a colleague's study of the same data (or its study file) to set beside this one
+        in a section of the report.
         """
         from ..report import write_report  # lazy: the report may draw charts with altair
 
-        return write_report(self, path, title=title, scenario=scenario, overwrite=overwrite)
+        return write_report(self, path, title=title, scenario=scenario, overwrite=overwrite, compare=compare)
 
     def to_code(self, data: str | Path | None = None, *, path: str | Path | None = None,
                 overwrite: bool = False) -> str:

@@ -28,6 +28,7 @@ from ..engine.tables import esc
 from ..formatting import scale, show_reading
 from . import (  # noqa: F401  (register the built-in panels)
     battery_panels,
+    colleague_panel,
     core_panels,
     fragility_panels,
     interaction_panels,
