@@ -85,6 +85,28 @@ def running_groups(y: np.ndarray, view: DataView, factor: str, offset: float) ->
     return RunningGroups(stats, read_only(dropped))
 
 
+_ZEROS: list[np.ndarray] = [np.zeros(0, dtype=np.intp)]
+
+
+def one_group(values: np.ndarray) -> tuple[int, float, float]:
+    """Count, mean and centred sum of squares of one group's values, bit for bit as
+    :func:`.groupstats.group_stats` gives them for that group (the same sequential sums), with one
+    temporary array; ``values`` (a private copy) is overwritten."""
+    m = int(values.size)
+    if m == 0:
+        return 0, 0.0, 0.0
+    if _ZEROS[0].size < m:
+        _ZEROS[0] = np.zeros(max(m, 2 * _ZEROS[0].size), dtype=np.intp)
+    zeros = _ZEROS[0][:m]
+    mean = float(np.bincount(zeros, weights=values)[0] / m)
+    np.subtract(values, mean, out=values)
+    rs = float(np.bincount(zeros, weights=values)[0])
+    np.multiply(values, values, out=values)
+    r2 = float(np.bincount(zeros, weights=values)[0])
+    corr = rs / m
+    return m, mean + corr, max(r2 - rs * corr, 0.0)
+
+
 def _touched(delta: ViewDelta, new: DataView, factor: str) -> tuple[set[int], np.ndarray | None]:
     """Groups (numbered as in ``new``) whose rows change, and the map from old group numbers to new ones
     (``None``: the same numbers)."""
@@ -129,8 +151,12 @@ def update_groups(rg: RunningGroups, y: np.ndarray, new: DataView, delta: ViewDe
         if index is None:
             index = GroupIndex.of(codes, k)
         rows = index.kept_rows(groups, new.kept)
-        part = group_stats(y[rows], codes[rows], labels, old.offset)
-        n[groups], mean[groups], m2[groups] = part.n[groups], part.mean[groups], part.m2[groups]
+        if groups.size == 1:
+            g = int(groups[0])
+            n[g], mean[g], m2[g] = one_group(y[rows])
+        else:
+            part = group_stats(y[rows], codes[rows], labels, old.offset)
+            n[groups], mean[groups], m2[groups] = part.n[groups], part.mean[groups], part.m2[groups]
     dropped = rg.dropped
     if delta.kept_positions.size:
         pos, after = delta.kept_positions, delta.kept_after
