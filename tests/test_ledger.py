@@ -328,3 +328,38 @@ def test_report_text_and_replay_read_the_ledger(tmp_path):
     replayed = scope["study"]
     assert replayed.disclosure == back.disclosure and replayed.ledger.to_dict() == back.ledger.to_dict()
     assert replayed.comparisons == "holm"
+
+
+# ------------------------------------------------------------------ transform and terms from the widget
+def test_transform_and_terms_pickers_are_recorded_and_follow_the_study():
+    e = ex.explore(str(DEMO), response="thickness_um", factors=["nozzle", "shift"], panels=["partition"])
+    e.transform_picker.value = "log"
+    assert e.study.spec.transform == "log"
+    e.terms_picker.value = 1
+    assert e.study.spec.max_order == 1 and len(e.study.results.partition.rows) == 4  # nozzle, shift, residual, total
+    whats = [(x.what, x.old, x.new) for x in e.study.ledger.of_kind("specification")]
+    assert whats == [("transform", "none", "log"), ("model terms", "all interactions", "interactions of up to 1 factors")]
+    # a choice made in code shows in the pickers, and showing it records nothing more
+    e.study.set_transform("sqrt")
+    e.study.set_terms()
+    assert e.transform_picker.value == "sqrt" and e.terms_picker.value == 0
+    assert e.study.disclosure.specifications == 4
+    # a study whose choices differ from the pickers' first options is shown without recording anything
+    other = ex.Study(DEMO, response="thickness_um", factors=["nozzle", "shift"], transform="log", max_order=1)
+    e.set_study(other)
+    assert (e.transform_picker.value, e.terms_picker.value) == ("log", 1) and len(other.ledger) == 0
+
+
+def test_summary_study_choices_and_file_keep_the_ledger(tmp_path):
+    pytest.importorskip("duckdb")
+    rng = np.random.default_rng(0)
+    frame = pd.DataFrame({"y": rng.normal(size=60), "g": list("abc") * 20, "h": list("xy") * 30})
+    s = ex.SummaryStudy(frame, response="y", factors=["g", "h"], sample_size=20)
+    s.merge_levels("g", ["a", "b"], into="ab", reason="same supplier")
+    s.undo()
+    s.drop_level("g", "c", reason="line down")
+    s.set_terms(max_order=1)
+    s.set_alpha(0.1)
+    assert len(s.results.partition.rows) == 4 and _counts(s) == (1, 2, 1, 2)
+    back = ex.SummaryStudy.load(s.save(tmp_path / "s.json"), frame)
+    assert _counts(back) == (1, 2, 1, 2) and back.ledger.to_dict() == s.ledger.to_dict()

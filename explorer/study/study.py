@@ -321,19 +321,31 @@ class Study(PlannedAnalyses):
         return self._respec(new_spec, "model terms", _term_text(self.spec), _term_text(new_spec))
 
     def _respec(self, new_spec: ModelSpec, what: str, old: object, new: object) -> Results:
-        """Analyse under ``new_spec`` (same data, edits in effect), or refuse and change nothing; record the choice."""
+        """Analyse under ``new_spec`` (same data, edits in effect), or refuse and change nothing; record the choice.
+
+        Every result is dropped and the current view fitted again (``_refit_current``: a
+        summary-backed study fits it its own way); a refusal puts everything back.
+        """
         view = self.view
+        saved: dict[str, Any] = {k: self.__dict__[k] for k in ("_results", "_decisions", "_base", "_now")
+                                 if k in self.__dict__}
+        old_spec, self.spec = self.spec, new_spec
         try:
-            state = analysis_state(self.dataset, view, new_spec)
+            self._forget_results()
+            self._refit_current(view)
         except DesignError as exc:
+            self.spec = old_spec
+            self.__dict__.update(saved)
             raise EditError(f"{what} refused ({new}): {exc}") from None
-        self.spec = new_spec
-        self._forget_results()
-        self._now = (self._position, view, state)
-        self._results[self._position] = state.results
         self._record_choice(what, old, new)
         self._emit("spec", None)
         return self.results
+
+    def _refit_current(self, view: DataView) -> None:
+        """Fit the current view under the spec now set (after ``_forget_results``)."""
+        state = analysis_state(self.dataset, view, self.spec)
+        self._now = (self._position, view, state)
+        self._results[self._position] = state.results
 
     def respecify(self, *, response: str | None = None, factors: str | Sequence[str] | None = None,
                   **spec_changes: Any) -> "Study":

@@ -491,6 +491,10 @@ class SummaryStudy(Study):
         self._results = {}
         self.__dict__["_decisions"] = {}
 
+    def _refit_current(self, view: Any) -> None:
+        """Fit the current view from the summaries under the spec now set."""
+        self._results_at(self._position)
+
     def set_test(self, test: str) -> Any:
         """As :meth:`Study.set_test`; the rank and permutation tests are refused (they need every row)."""
         _summary_test(test)

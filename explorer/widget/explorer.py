@@ -40,12 +40,34 @@ from .panels import PanelContext, Settings, panels_in_order
 from .resize import ResizeRelay
 from .stylesheet import STYLESHEET
 
-__all__ = ["COMPARISON_CHOICES", "OMNIBUS_CHOICES", "Explorer", "explore", "level_steps"]
+__all__ = ["COMPARISON_CHOICES", "OMNIBUS_CHOICES", "TRANSFORM_CHOICES", "Explorer", "explore", "level_steps",
+           "terms_choices", "terms_value"]
 
 OMNIBUS_CHOICES = [(label, name) for name, label in OVERALL_TESTS.items()]
 COMPARISON_CHOICES = [("Tukey-Kramer (all pairs)", "tukey-kramer"), ("Games-Howell (all pairs, unequal SD)", "games-howell"),
                       ("Dunnett (each level against the first)", "dunnett"), ("t tests, Holm-adjusted", "holm")]
+TRANSFORM_CHOICES: list[tuple[str, str | float]] = [("none", "none"), ("log", "log"), ("square root", "sqrt")]
 _ALPHAS = [0.01, 0.05, 0.10]
+
+
+def terms_choices(spec: Any) -> list[tuple[str, Any]]:
+    """The model-terms picker's options for a spec: all interactions, main effects only, or interactions of
+    up to k factors; terms listed through the API show as such (pick another option to replace them)."""
+    k = len(spec.factors)
+    out: list[tuple[str, Any]] = [("all interactions", 0), ("main effects only", 1)]
+    out += [(f"interactions of up to {m} factors", m) for m in range(2, k)]
+    if spec.terms is not None:
+        out.append(("as listed: " + ", ".join(" × ".join(t) for t in spec.terms), "listed"))
+    return out
+
+
+def terms_value(spec: Any) -> Any:
+    """The picker's value for a spec's terms (see :func:`terms_choices`)."""
+    if spec.terms is not None:
+        return "listed"
+    if not spec.interactions:
+        return 1
+    return 0 if spec.max_order is None or spec.max_order >= len(spec.factors) else spec.max_order
 _BUTTON = {"width": "auto", "flex": "0 0 auto"}
 
 
@@ -121,7 +143,11 @@ class Explorer(W.VBox):
         self.omnibus_picker = W.Dropdown(description="overall test", options=OMNIBUS_CHOICES, value=study.spec.test)
         self.comparison_picker = W.Dropdown(description="comparisons", options=COMPARISON_CHOICES,
                                             value=study.comparisons)
-        for w in (self.response_picker, self.factor_picker, self.alpha_picker, self.omnibus_picker, self.comparison_picker):
+        self.transform_picker = W.Dropdown(description="transform", options=TRANSFORM_CHOICES)
+        self.terms_picker = W.Dropdown(description="model terms")
+        self._sync_model_pickers(study)
+        for w in (self.response_picker, self.factor_picker, self.alpha_picker, self.omnibus_picker, self.comparison_picker,
+                  self.transform_picker, self.terms_picker):
             w.style.description_width = "90px"
             w.layout.width = "300px"
         self.response_picker.observe(self._on_model_choice, "value")
@@ -129,6 +155,8 @@ class Explorer(W.VBox):
         self.alpha_picker.observe(self._on_model_choice, "value")
         self.omnibus_picker.observe(self._on_test_choice, "value")
         self.comparison_picker.observe(self._on_comparison_choice, "value")
+        self.transform_picker.observe(self._on_transform_choice, "value")
+        self.terms_picker.observe(self._on_terms_choice, "value")
 
         self.picked_label = W.HTML()
         self.picked_label.add_class("vx-picked")
@@ -189,7 +217,7 @@ class Explorer(W.VBox):
         column when narrow, see :mod:`.stylesheet`)."""
         controls = W.VBox([
             self._section("Model", self.response_picker, self.factor_picker, self.alpha_picker,
-                          self.omnibus_picker, self.comparison_picker),
+                          self.omnibus_picker, self.comparison_picker, self.transform_picker, self.terms_picker),
             self._section("Edit the picked rows", self.picked_label, W.HBox([self.clear_pick_button]), self.reason_box,
                           W.HBox([self.drop_button, self.restore_button]),
                           W.HBox([self.move_button, self.move_target])),
@@ -238,6 +266,7 @@ class Explorer(W.VBox):
                          if last is not None and last.kind == "specification" and last.what != "overall test"
                          else f"overall test: {study.decision.test_label}")
             self.settings = replace(self.settings, alpha=study.spec.alpha, comparisons=study.comparisons)
+            self._show_choices(study)  # a choice made in code shows in the pickers (nothing recorded again)
         elif event.kind != "search":
             what = event.edit.describe() if event.edit is not None else "all edits"
             self._record(what if event.kind == "edit" else f"{event.kind}: {what}")
@@ -471,6 +500,65 @@ class Explorer(W.VBox):
         self._status(f"Levels are now compared by {dict((v, k) for k, v in COMPARISON_CHOICES)[choice]} "
                      "(recorded as a specification choice).")
 
+    def _show_choices(self, study: Study) -> None:
+        """Every model picker shows the study's current choice; their handlers see no change."""
+        if study.spec.alpha not in [v for _, v in self.alpha_picker.options]:
+            self.alpha_picker.options = list(self.alpha_picker.options) + [(f"{study.spec.alpha:g}", study.spec.alpha)]
+        with self._hold_pickers():
+            self.alpha_picker.value = study.spec.alpha
+        self.omnibus_picker.value = study.spec.test
+        self.comparison_picker.value = study.comparisons
+        self._sync_model_pickers(study)
+
+    def _sync_model_pickers(self, study: Study) -> None:
+        """Show the study's transform and terms in their pickers (the handlers are held: nothing recorded)."""
+        self._syncing = True
+        try:
+            self._fill_model_pickers(study)
+        finally:
+            self._syncing = False
+
+    def _fill_model_pickers(self, study: Study) -> None:
+        transform = study.spec.transform
+        options = list(TRANSFORM_CHOICES)
+        if transform not in [v for _, v in options]:
+            options.append((f"Box-Cox power {transform:g}" if isinstance(transform, float) else str(transform), transform))
+        self.transform_picker.options = options
+        self.transform_picker.value = transform
+        self.terms_picker.options = terms_choices(study.spec)
+        self.terms_picker.value = terms_value(study.spec)
+        self.terms_picker.disabled = len(study.spec.factors) < 2
+
+    def _on_transform_choice(self, _: Any) -> None:
+        """The transform of the response is a specification choice (``Study.set_transform``, recorded)."""
+        choice = self.transform_picker.value
+        if getattr(self, "_syncing", False) or choice == self.study.spec.transform:
+            return
+        reason = self.reason_box.value.strip()
+        try:
+            with self._one_redraw():
+                self.study.set_transform(choice, reason=reason)
+        except ExplorerError as exc:
+            self.transform_picker.value = self.study.spec.transform
+            self._status(str(exc), "error")
+            return
+        self._status(f"The response is now analysed as {self.transform_picker.label} (recorded as a specification "
+                     "choice).")
+
+    def _on_terms_choice(self, _: Any) -> None:
+        """The model's terms are a specification choice (``Study.set_terms``, recorded)."""
+        choice = self.terms_picker.value
+        if getattr(self, "_syncing", False) or choice == terms_value(self.study.spec) or choice == "listed":
+            return
+        try:
+            with self._one_redraw():
+                self.study.set_terms(max_order=None if choice == 0 else int(choice), interactions=True)
+        except ExplorerError as exc:
+            self.terms_picker.value = terms_value(self.study.spec)
+            self._status(str(exc), "error")
+            return
+        self._status(f"The model now has {self.terms_picker.label} (recorded as a specification choice).")
+
     def _on_test_choice(self, _: Any) -> None:
         """The overall test is part of the model: the study reads its decision from it (recorded)."""
         choice = self.omnibus_picker.value
@@ -540,6 +628,7 @@ class Explorer(W.VBox):
             self.alpha_picker.value = study.spec.alpha
         self.omnibus_picker.value = study.spec.test  # the study's own test (no new choice recorded)
         self.comparison_picker.value = study.comparisons  # likewise
+        self._sync_model_pickers(study)
         self.refresh(force=True)
 
     @contextmanager
