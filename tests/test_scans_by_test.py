@@ -11,6 +11,7 @@ equality of counts), and (2) an independent permutation test of the refit data
 from __future__ import annotations
 
 import itertools
+import re
 
 import numpy as np
 import pandas as pd
@@ -19,7 +20,7 @@ from scipy import stats
 from statsmodels.stats.oneway import anova_oneway
 
 import explorer as ex
-from explorer.inference.omnibus import PERMUTATIONS, permutation_f
+from explorer.inference.omnibus import permutation_f
 from explorer.sensitivity.alternatives import oneway_input
 from explorer.sensitivity.chosen_test import ChosenTest
 
@@ -99,32 +100,44 @@ def _f_of_groupings(values: np.ndarray, sizes: np.ndarray) -> np.ndarray:
 
 
 def test_case_deletion_under_permutation_on_a_subset():
-    """Rows 0, 5, 10, 15, 20, 25 (a stated subset). Same orderings, F of each permuted data set by scipy f_oneway:
-    the counts agree exactly; an independent permutation test of the refit (seed 1) agrees within 4 SE."""
+    """Rows 0, 5, 10, 15, 20, 25 (a stated subset). Same orderings (as many as the sequential rule drew), each
+    turned into a grouping of the other rows by the stated rule (row i's value taken out; when it landed in
+    another level's block, the first value of its own level's block moved into its place), F of each grouping by
+    the plain two-pass formula checked against scipy f_oneway: the counts agree exactly; an independent
+    permutation test of the refit (seed 1) agrees within 4 SE."""
     df = _data()
     study = ex.Study(df, "y", "g", test="permutation")
     scan = study.case_deletion(record=False)
     assert scan.permutations_used is not None and "orderings used" in scan.to_frame()
     chosen = ChosenTest(oneway_input(study), study.spec)
-    orderings = np.vstack(list(chosen.permutations._orderings()))
-    assert orderings.shape == (PERMUTATIONS, len(df))
-    codes = oneway_input(study).codes
-    y = df["y"].to_numpy()
-    subset = [0, 5, 10, 15, 20, 25]
-    for i in subset:
+    p_again, _ = chosen.permutations.deletion_pvalues(0.05)
+    drawn = chosen.permutations.drawn
+    assert np.array_equal(p_again, scan.pvalue) and f"orderings drawn: {drawn} for the deletions" in scan.how
+    assert (scan.permutations_used == drawn).all()
+    orderings = np.vstack(list(chosen.permutations.orderings(drawn)))
+    assert orderings.shape == (drawn, len(df))
+    by_level = chosen.permutations.by_level  # orderings are of the rows sorted by level (stable)
+    codes = oneway_input(study).codes[by_level]
+    y = df["y"].to_numpy()[by_level]
+    first = {c: int(np.flatnonzero(codes == c)[0]) for c in np.unique(codes)}  # first position of each block
+    for i in [0, 5, 10, 15, 20, 25]:
         j = scan.row_ids.tolist().index(i)
-        keep = np.arange(len(df)) != i
-        sizes = np.bincount(codes[keep], minlength=5)
+        ii = int(np.flatnonzero(by_level == i)[0])
+        sizes = np.bincount(oneway_input(study).codes[np.arange(len(df)) != i], minlength=5)
         f_obs = float(stats.f_oneway(*_groups(df.drop(index=i))).statistic)
-        pos = np.argmax(orderings == i, axis=1)  # where row i's value landed in each ordering
-        own = codes[pos] == codes[i]  # codes are sorted by level, so positions form contiguous blocks
-        rest = y[orderings[own][orderings[own] != i].reshape(int(own.sum()), -1)]
-        used = int(own.sum())
-        hits = int(np.sum(_f_of_groupings(rest, sizes) >= f_obs * (1 - 1e-12)))
-        assert scan.permutations_used[j] == used
-        assert scan.pvalue[j] == pytest.approx((hits + 1) / (used + 1), rel=1e-12)
+        lines = []
+        for o in orderings:
+            o = o.copy()
+            p = int(np.flatnonzero(o == ii)[0])
+            q = first[codes[ii]]
+            if codes[p] != codes[ii]:
+                o[p] = o[q]  # the first value of its own block takes its place
+                p = q
+            lines.append(np.delete(o, p))
+        hits = int(np.sum(_f_of_groupings(y[np.array(lines)], sizes) >= f_obs * (1 - 1e-12)))
+        assert scan.pvalue[j] == pytest.approx((hits + 1) / (drawn + 1), rel=1e-12)
         ref = permutation_f(ex.Study(df.drop(index=i), "y", "g").results, 9999, seed=1).pvalue
-        se = np.sqrt(ref * (1 - ref) / used + ref * (1 - ref) / 9999)
+        se = np.sqrt(ref * (1 - ref) / drawn + ref * (1 - ref) / 9999)
         assert abs(scan.pvalue[j] - ref) <= 4 * se + 1e-4
 
 
@@ -154,24 +167,28 @@ def test_regroup_scan_under_permutation():
     study = ex.Study(df, "y", "g", test="permutation")
     scan = study.regroup_scan(record=False)
     data = oneway_input(study)
-    orderings = np.vstack(list(ChosenTest(data, study.spec).permutations._orderings()))
-    y = data.y
+    how = next(n for n in scan.notes if n.startswith("Test:"))
+    drawn = {what: int(count) for count, what in re.findall(r"(\d+) for the (merges|moves)", how)}
+    assert set(drawn) == {"merges", "moves"}
+    perms = ChosenTest(data, study.spec).permutations
+    orderings = np.vstack(list(perms.orderings(max(drawn.values()))))
+    y = data.y[perms.by_level]
     labels = list(data.labels)
 
-    def brute(regrouped: pd.DataFrame) -> float:
+    def brute(regrouped: pd.DataFrame, count: int) -> float:
         groups = _groups(regrouped)
         f_obs = float(stats.f_oneway(*groups).statistic)
         sizes = np.array([len(v) for v in groups])
-        null = _f_of_groupings(y[orderings], sizes)
+        null = _f_of_groupings(y[orderings[:count]], sizes)
         return float((np.sum(null >= f_obs * (1 - 1e-12)) + 1) / (len(null) + 1))
 
     for (a, b), p in zip(scan.merge_levels, scan.merge_fits.pvalue):
         merged = df.assign(g=df.g.replace({b: a}))
-        assert p == pytest.approx(brute(merged), rel=1e-12), (a, b)
+        assert p == pytest.approx(brute(merged, drawn["merges"]), rel=1e-12), (a, b)
     for j in range(0, scan.move_rows.size, max(1, scan.move_rows.size // 8))[:8]:
         moved = df.copy()
         moved.loc[scan.move_rows[j], "g"] = scan.move_to[j]
-        assert scan.move_fits.pvalue[j] == pytest.approx(brute(moved), rel=1e-12)
+        assert scan.move_fits.pvalue[j] == pytest.approx(brute(moved, drawn["moves"]), rel=1e-12)
         ref = permutation_f(ex.Study(moved, "y", "g").results, 9999, seed=2).pvalue
         assert abs(scan.move_fits.pvalue[j] - ref) <= 4 * np.sqrt(2 * ref * (1 - ref) / 9999) + 1e-4
     assert labels == sorted(labels)

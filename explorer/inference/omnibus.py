@@ -33,6 +33,7 @@ from ..rendering import html_repr, note
 from .omnibus_batch import brown_forsythe_batch, kruskal_batch, welch_batch
 from .oneway_inputs import require_oneway, row_sample_notes
 from .result_extras import WithExtras
+from .sequential_mc import looks, ordering_chunks, settled, stopping_sentence
 
 if TYPE_CHECKING:
     from ..engine.results import Results
@@ -327,7 +328,8 @@ def kruskal_wallis(results: Results) -> OmnibusTest:
     )
 
 
-def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) -> OmnibusTest:
+def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0,
+                  alpha: float | None = None) -> OmnibusTest:
     """Permutation test of the classic F: shuffle the responses over the kept rows.
 
     Parameters
@@ -335,27 +337,34 @@ def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) 
     results : Results
         The analysis of a one-factor study (``study.results``).
     permutations : int, default 9999
-        Number of random permutations ``B``.
+        Number of random permutations ``B`` (the budget, when ``alpha`` is given).
     seed : int, default 0
         Seed of the permutations; the same seed and count give the same p-value.
+    alpha : float, optional
+        When given, orderings are drawn sequentially and drawing stops once the decision
+        at ``alpha`` is settled (:mod:`.sequential_mc`); ``permutations`` is then the most
+        drawn. Without it, exactly ``permutations`` are drawn.
 
     Returns
     -------
     OmnibusTest
-        The classic F and its permutation p-value, with ``permutations``, ``seed`` and
-        the Monte-Carlo standard error of the p-value (``monte_carlo_se``).
+        The classic F and its permutation p-value, with ``permutations`` (the number
+        drawn), ``seed`` and the Monte-Carlo standard error of the p-value
+        (``monte_carlo_se``).
 
     Notes
     -----
     With the group sizes fixed, F is an increasing function of ``sum_i S_i^2 / n_i``
     (``S_i`` the level sums of the centred response), which is what each permutation
     computes. The p-value is ``(b + 1) / (B + 1)`` with ``b`` the permutations at least
-    as extreme; its Monte-Carlo standard error is ``sqrt(p (1-p) / B)``.
+    as extreme; its Monte-Carlo standard error is ``sqrt(p (1-p) / B)``. The first ``L``
+    orderings of a sequential run are the first ``L`` of the fixed-count run.
 
     References
     ----------
     Good, P. (2005). Permutation, Parametric and Bootstrap Tests of Hypotheses, 3rd ed.,
     Springer, ch. 3 and 5.
+    Besag, J. and Clifford, P. (1991). Sequential Monte Carlo p-values. Biometrika 78, 301-304.
 
     Examples
     --------
@@ -370,41 +379,48 @@ def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0) 
         raise ExplorerError(f"permutations must be a positive whole number (e.g. 9999), not {permutations!r}")
     require_oneway(results, "the permutation F")
     fit = results.fit
-    g = fit.group
+    g = np.asarray(fit.group)
     k = results.groups.k
     n = np.bincount(g, minlength=k).astype(float)
-    y = np.asarray(fit.y, dtype=float)
+    by_level = np.argsort(g, kind="stable")
+    y = np.asarray(fit.y, dtype=float)[by_level]
     y = y - y.mean()
     inv_n = np.where(n > 0, 1 / np.maximum(n, 1), 0.0)
-    obs_stat = float(np.dot(np.bincount(g, weights=y, minlength=k) ** 2, inv_n))
-    rng = np.random.default_rng(seed)
-    big_n = len(y)
-    chunk = max(1, min(b_total, 2_000_000 // max(big_n, 1)))
+    present = n > 0
+    starts = np.concatenate([[0], np.cumsum(n)[:-1]]).astype(np.int64)[present]
+    obs_stat = float(np.dot(np.add.reduceat(y, starts) ** 2, inv_n[present]))
+    marks = looks(b_total) if alpha is not None else ()
     hits = 0
     done = 0
-    offsets = (np.arange(chunk) * k)[:, None]
-    while done < b_total:
-        c = min(chunk, b_total - done)
-        perm = rng.permuted(np.broadcast_to(y, (c, big_n)), axis=1)
-        sums = np.bincount((offsets[:c] + g[None, :]).ravel(), weights=perm.ravel(), minlength=c * k).reshape(c, k)
-        stat = (sums**2) @ inv_n
+    stopped = False
+    for order in ordering_chunks(len(y), b_total, seed, marks):
+        # rows sorted by level: contiguous blocks of a random ordering are a random grouping of these sizes
+        stat = (np.add.reduceat(y[order], starts, axis=1) ** 2) @ inv_n[present]
         hits += int(np.sum(stat >= obs_stat * (1 - 1e-12)))
-        done += c
-    p = (hits + 1) / (b_total + 1)
-    se = float(np.sqrt(p * (1 - p) / b_total))
+        done += order.shape[0]
+        if alpha is not None and done in marks and done < b_total and bool(
+                settled(np.array([hits]), np.array([done]), alpha, len(marks))[0]):
+            stopped = True
+            break
+    p = (hits + 1) / (done + 1)
+    se = float(np.sqrt(p * (1 - p) / done))
     classic = results.partition.row(results.spec.factors[0])
+    notes = row_sample_notes(results)
+    if alpha is not None:
+        notes += (stopping_sentence(done, b_total, alpha, stopped),)
     return OmnibusTest(
         method="permutation F", statistic=classic.statistic, df_num=None, df_den=None, pvalue=float(p),
         assumes="exchangeable observations under the null (same distribution in every level)",
-        permutations=b_total, seed=int(seed), monte_carlo_se=se,
-        notes=row_sample_notes(results),
+        permutations=done, seed=int(seed), monte_carlo_se=se,
+        notes=notes,
     )
 
 
 def overall_test(results: Results, test: str) -> OmnibusTest:
     """The one-factor overall test named ``test`` (a key of :data:`.spec.OVERALL_TESTS`) on ``results``.
 
-    The permutation F uses :data:`PERMUTATIONS` orderings with seed :data:`PERMUTATION_SEED`.
+    The permutation F draws at most :data:`PERMUTATIONS` orderings with seed :data:`PERMUTATION_SEED`,
+    stopping once its decision at the study's alpha is settled (:mod:`.sequential_mc`).
     """
     if test == "classic":
         return classic_f(results)
@@ -415,5 +431,5 @@ def overall_test(results: Results, test: str) -> OmnibusTest:
     if test == "kruskal":
         return kruskal_wallis(results)
     if test == "permutation":
-        return permutation_f(results, PERMUTATIONS, seed=PERMUTATION_SEED)
+        return permutation_f(results, PERMUTATIONS, seed=PERMUTATION_SEED, alpha=float(results.spec.alpha))
     raise ExplorerError(f"no overall test named {test!r}")

@@ -37,7 +37,7 @@ from ..rendering import html_repr, note
 from .oneway_inputs import require_oneway, row_sample_notes
 from .two_levels import mid_ranks
 
-__all__ = ["DunnTable", "FriedmanTest", "dunn", "friedman"]
+__all__ = ["DunnTable", "FriedmanTest", "dunn", "dunn_holm", "friedman"]
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -131,6 +131,37 @@ def dunn(results: Results, *, adjust: str = "holm") -> DunnTable:
     return DunnTable(labels=labels, mean_rank=rbar, first=tuple(labels[a] for a in i),
                      second=tuple(labels[b] for b in j), z=z, pvalue=p, adjusted=adjust_pvalues(p, adjust),
                      adjustment=adjust, alpha=float(results.spec.alpha), notes=notes)
+
+
+def dunn_holm(n: np.ndarray, rank_sum: np.ndarray, tie_term: np.ndarray) -> np.ndarray:
+    """Dunn's Holm-adjusted p-values of every pair for many alternatives at once.
+
+    ``n`` and ``rank_sum`` are ``(m, k)`` level counts and mid-rank sums (each line one
+    ranking of its kept rows), ``tie_term`` the ``(m,)`` sums of ``t^3 - t`` over tie
+    blocks. Returns ``(m, k (k - 1) / 2)`` adjusted p-values, pairs in upper-triangle
+    order (as :func:`dunn`); pairs with an empty level are NaN and left out of the family,
+    as :func:`dunn` leaves out a level with no kept rows.
+    """
+    n = np.atleast_2d(np.asarray(n, dtype=float))
+    rank_sum = np.atleast_2d(np.asarray(rank_sum, dtype=float))
+    tie_term = np.atleast_1d(np.asarray(tie_term, dtype=float))
+    big_n = n.sum(axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        s2 = big_n * (big_n + 1) / 12.0 - tie_term / (12.0 * (big_n - 1))
+        rbar = np.where(n > 0, rank_sum / n, np.nan)
+        i, j = np.triu_indices(n.shape[1], 1)
+        z = (rbar[:, i] - rbar[:, j]) / np.sqrt(s2[:, None] * (1 / n[:, i] + 1 / n[:, j]))
+    p = special.erfc(np.abs(z) / np.sqrt(2.0))
+    p[~(s2 > 0)] = np.nan
+    finite = np.isfinite(p)
+    order = np.argsort(np.where(finite, p, np.inf), axis=1, kind="stable")
+    ps = np.take_along_axis(p, order, axis=1)
+    mult = finite.sum(axis=1, keepdims=True) - np.arange(p.shape[1])[None, :]
+    adj = np.minimum(np.maximum.accumulate(np.where(np.isfinite(ps), ps * mult, -np.inf), axis=1), 1.0)
+    adj[~np.isfinite(ps)] = np.nan
+    out = np.empty_like(adj)
+    np.put_along_axis(out, order, adj, axis=1)
+    return out
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -243,7 +243,7 @@ def case_deletion_scan(study: StudyLike, *, term: str | None = None, alpha: floa
         return _factorial_scan(study, name, verdict, alpha, record)
     spec = study.spec
     a = alpha_or(alpha, data.alpha)
-    chosen = ChosenTest(data, spec)
+    chosen = ChosenTest(data, spec, a)
     deleted = chosen.deletion()
     fits, new_n, new_mean, used = deleted.fits, deleted.n, deleted.mean, deleted.permutations_used
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -9,7 +9,9 @@ is read from (``study.spec.test``), each test with the fastest exact route:
 * Kruskal-Wallis H: exact rank-sum updates without re-ranking (:mod:`.rank_updates`);
 * permutation F: one set of seeded orderings shared by every alternative
   (:mod:`.shared_permutations`): merges and moves exactly as a permutation test of each
-  alternative, deletions from the orderings that place the row's value in its own level.
+  alternative, deletions from the orderings that place the row's value in its own level;
+  drawn sequentially, stopping once every alternative's decision at alpha is settled
+  (:mod:`..inference.sequential_mc`).
 
 Every result keeps the classic partition's sums of squares and eta squared beside the
 test's own statistic and p-value, and :attr:`ChosenTest.how` says how it was computed.
@@ -22,9 +24,13 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special
 
+from ..engine.errors import DesignError
+from ..engine.oneway import fit_oneway
+from ..engine.results import Results
 from ..engine.spec import ModelSpec
 from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 from ..inference.omnibus_batch import kruskal_batch
+from ..inference.sequential_mc import RESAMPLING_RISK
 from .alternatives import (
     MOMENT_TESTS,
     AlternativeFits,
@@ -49,9 +55,11 @@ HOW = {
     "brown-forsythe": ("Brown-Forsythe F* (Mehrotra df) from closed-form updates of each level's count, mean and "
                        "variance"),
     "kruskal": "Kruskal-Wallis H from exact rank-sum updates (no re-ranking; ties kept as mid-ranks)",
-    "permutation": (f"permutation F from one set of {PERMUTATIONS} seeded orderings shared by every alternative "
-                    f"(seed {PERMUTATION_SEED}); for a row left out, the orderings that place its value in its own "
-                    "level (about n_level / n of them; the count is given per row)"),
+    "permutation": (f"permutation F from one set of up to {PERMUTATIONS} seeded orderings shared by every alternative "
+                    f"(seed {PERMUTATION_SEED}), drawn until every alternative's decision at alpha is settled "
+                    f"(sequential rule, resampling risk at most {RESAMPLING_RISK:g} each) or all are drawn; "
+                    "for a row left out, every ordering with the row's value taken out (and, when it landed "
+                    "in another level, the first value of its own level's block moved into its place)"),
 }
 
 
@@ -68,18 +76,25 @@ class RowDeletions:
 
 
 class ChosenTest:
-    """Score alternatives of the one-factor data ``data`` under the overall test of ``spec``."""
+    """Score alternatives of the one-factor data ``data`` under the overall test of ``spec`` (decisions at
+    ``alpha``, default the study's)."""
 
-    def __init__(self, data: OnewayInput, spec: ModelSpec) -> None:
+    def __init__(self, data: OnewayInput, spec: ModelSpec, alpha: float | None = None) -> None:
         self.data = data
         self.spec = spec
         self.test = spec.test
         self._ranks: RankData | None = None
         self._perms: SharedPermutations | None = None
         self._critical: dict[float, float] = {}
+        self._drawn: list[tuple[str, int]] = []
+        self.alpha = float(data.alpha if alpha is None else alpha)  # level at which sequential draws settle
 
     @property
     def how(self) -> str:
+        """How the scans compute the test; under the permutation F, with the orderings this scan drew."""
+        if self.test == "permutation" and self._drawn:
+            drawn = ", ".join(f"{count} for the {what}" for what, count in self._drawn)
+            return f"{HOW[self.test]}; orderings drawn: {drawn}"
         return HOW[self.test]
 
     @property
@@ -133,7 +148,8 @@ class ChosenTest:
         elif self.test == "kruskal":
             fits = self._ranked(classic, self.ranks.deletion())
         elif self.test == "permutation":
-            p, used = self.permutations.deletion_pvalues()
+            p, used = self.permutations.deletion_pvalues(self.alpha)
+            self._drawn.append(("deletions", self.permutations.drawn))
             fits = self._permuted(classic, p)
         else:
             fits = classic
@@ -147,7 +163,9 @@ class ChosenTest:
         if self.test == "permutation":
             sums = self._sums(n, mean)
             layout = np.arange(len(pairs))
-            return self._permuted(fits, self.permutations.layout_pvalues(n, layout, self.permutations.observed(n, sums)))
+            p = self.permutations.layout_pvalues(n, layout, self.permutations.observed(n, sums), self.alpha)
+            self._drawn.append(("merges", self.permutations.drawn))
+            return self._permuted(fits, p)
         return fits
 
     def moves(self, n: np.ndarray, mean: np.ndarray, m2: np.ndarray, rows: np.ndarray,
@@ -166,7 +184,9 @@ class ChosenTest:
             sizes[np.arange(keys.size), keys % k] += 1
             sums = self._sums(n, mean)
             obs = self.permutations.observed(n, sums)
-            return self._permuted(fits, self.permutations.layout_pvalues(sizes, layout, obs))
+            p = self.permutations.layout_pvalues(sizes, layout, obs, self.alpha)
+            self._drawn.append(("moves", self.permutations.drawn))
+            return self._permuted(fits, p)
         return fits
 
     def removal(self, sets: np.ndarray, n: np.ndarray, mean: np.ndarray, m2: np.ndarray,
@@ -179,12 +199,17 @@ class ChosenTest:
         """
         fits = self._moments(n, mean, m2)
         if self.test == "kruskal":
-            ranks = self.ranks
-            if kept is not None and not kept.all():
-                ranks = self._kept_ranks(kept)
-                sets = np.searchsorted(np.flatnonzero(kept), sets)
-            return self._ranked(fits, ranks.removal(sets))
+            return self._ranked(fits, self.rank_parts(sets, kept))
         return fits
+
+    def rank_parts(self, sets: np.ndarray, kept: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(count, rank sum of each level, tie term) after removing each row set from the kept rows
+        (mid-ranks of the remaining rows, by exact downdates)."""
+        ranks = self.ranks
+        if kept is not None and not kept.all():
+            ranks = self._kept_ranks(kept)
+            sets = np.searchsorted(np.flatnonzero(kept), sets)
+        return ranks.removal(sets)
 
     def _kept_ranks(self, kept: np.ndarray) -> RankData:
         d = self.data
@@ -217,16 +242,17 @@ class ChosenTest:
             self._critical[alpha] = self.permutations.critical_f(alpha)
         return self._critical[alpha]
 
+    def refit_results(self, keep: np.ndarray) -> Results | None:
+        """A fresh two-pass analysis of the kept rows (``None`` when the design cannot be fitted)."""
+        d = self.data
+        try:
+            return fit_oneway(d.y[keep], d.codes[keep], d.labels, row_ids=d.row_ids[keep], positions=d.positions[keep],
+                              offset=d.offset, spec=self.spec)
+        except DesignError:
+            return None
+
     def refit(self, keep: np.ndarray) -> float | None:
         """The test's p-value on the kept rows, computed afresh as the decision would be after leaving
         the others out (a two-pass fit, then the study's overall test on it)."""
-        from ..engine.errors import DesignError
-        from ..engine.oneway import fit_oneway
-
-        d = self.data
-        try:
-            res = fit_oneway(d.y[keep], d.codes[keep], d.labels, row_ids=d.row_ids[keep], positions=d.positions[keep],
-                             offset=d.offset, spec=self.spec)
-        except DesignError:
-            return None
-        return overall_test(res, self.test).pvalue
+        res = self.refit_results(keep)
+        return None if res is None else overall_test(res, self.test).pvalue

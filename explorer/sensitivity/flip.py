@@ -4,7 +4,11 @@ Works in both directions: if the decision's test currently rejects at alpha, it 
 for the smallest set of rows whose removal makes it not reject, and the other way
 round. The decision scored is the study's (its term and chosen overall test) unless the
 caller names another term; on request it does the same for one pairwise decision
-(Tukey-Kramer, at the same alpha) instead of the overall one.
+instead of the overall one, read by the pairwise comparison that follows the chosen test
+(:data:`PAIRWISE_FOR_TEST`: Tukey-Kramer after the classic F, Games-Howell after Welch's
+and Brown-Forsythe's, Dunn's rank test with Holm's adjustment after Kruskal-Wallis;
+Tukey-Kramer after the permutation F, which has no pairwise counterpart here, and the
+result says so), at the same alpha.
 
 Two searches:
 
@@ -43,19 +47,35 @@ from scipy import special
 
 from ..engine.dataset import RowId
 from ..engine.disclosure import Disclosure
-from ..engine.errors import ExplorerError, closest_names
+from ..engine.errors import DesignError, ExplorerError, closest_names
 from ..engine.groupstats import group_stats
 from ..engine.spec import alpha_or
 from ..engine.studentized_range import srange_ppf, srange_sf
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_p, show_stat
+from ..inference.comparisons import games_howell, tukey
+from ..inference.rank_followups import dunn, dunn_holm
 from ..rendering import html_repr
 from .alternatives import OnewayInput, evaluate_alternatives
 from .chosen_test import ChosenTest
 from .scan_target import scan_target
 from .study_like import StudyLike, VerdictLike
 
-__all__ = ["FlipSearch", "flip_finder"]
+__all__ = ["PAIRWISE_FOR_TEST", "FlipSearch", "flip_finder"]
+
+#: The pairwise comparison that scores a pairwise flip under each overall test.
+PAIRWISE_FOR_TEST = {"classic": "Tukey-Kramer", "welch": "Games-Howell", "brown-forsythe": "Games-Howell",
+                     "kruskal": "Dunn (Holm)", "permutation": "Tukey-Kramer"}
+_PAIRWISE_WHY = {
+    "classic": "Tukey-Kramer, the pairwise comparison of the classic F (pooled residual mean square)",
+    "welch": "Games-Howell, the pairwise comparison that, like Welch's F, gives each level its own variance",
+    "brown-forsythe": ("Games-Howell, the pairwise comparison that, like Brown-Forsythe's F*, gives each level its "
+                       "own variance"),
+    "kruskal": ("Dunn's rank comparison with Holm's adjustment over every pair, the follow-up of Kruskal-Wallis "
+                "(mid-ranks of the kept rows)"),
+    "permutation": ("Tukey-Kramer: the permutation F has no pairwise counterpart in the kit, so the pair is read by "
+                    "the studentized range on the pooled residual mean square"),
+}
 
 _CHUNK = 50_000
 
@@ -72,6 +92,8 @@ class FlipSearch:
     ``rows`` are in removal order; ``pvalues[i]`` is the p-value after removing
     ``rows[: i + 1]`` (``base_pvalue`` before any). ``found`` is False when no set
     within the search's reach flips it. ``method`` is 'exact' or 'greedy';
+    ``pairwise_method`` names the comparison that scored a pairwise decision (empty for
+    the overall one);
     ``exact_up_to`` is the largest set size the exhaustive search covered completely
     (0 when it did not run), so no smaller flipping set exists when the exact search
     found none up to that size.
@@ -91,6 +113,7 @@ class FlipSearch:
     flipping_sets_at_size: int | None
     term: str = ""
     test: str = "classic"
+    pairwise_method: str = ""
     disclosure: Disclosure | None = None
     notes: tuple[str, ...] = field(default=())
 
@@ -132,6 +155,7 @@ class _Scorer:
 
     def __init__(self, data: OnewayInput, alpha: float, pair: tuple[int, int] | None, chosen: ChosenTest) -> None:
         self.data, self.alpha, self.pair, self.chosen = data, alpha, pair, chosen
+        self.pairwise = PAIRWISE_FOR_TEST[chosen.test]
 
     def margin_of(self, sets: np.ndarray, keep: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
         """(margin, defined) after removing each row set (``(m, s)`` positions) from the kept rows."""
@@ -143,6 +167,10 @@ class _Scorer:
             crit = self.chosen.critical(fits, self.alpha)
             out[ok] = fits.statistic[ok] / crit[ok]
             return out, ok
+        if self.pairwise == "Games-Howell":
+            return self._games_howell(n, mean, m2)
+        if self.pairwise == "Dunn (Holm)":
+            return self._dunn(sets, keep)
         fits = evaluate_alternatives(n, mean, m2, self.data.scale())
         ok = fits.status == 0
         out = np.full(ok.shape, np.nan)
@@ -161,21 +189,68 @@ class _Scorer:
         out[ok] = q / crit
         return out, ok
 
+    def _log_margin(self, p: np.ndarray, ok: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """log(p) / log(alpha): above 1 exactly when p < alpha (inf at p = 0)."""
+        out = np.full(ok.shape, np.nan)
+        ok = ok & np.isfinite(p)
+        with np.errstate(divide="ignore"):
+            out[ok] = np.log(p[ok]) / math.log(self.alpha)
+        return out, ok
+
+    def _games_howell(self, n: np.ndarray, mean: np.ndarray, m2: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Games-Howell p of the pair after each removal (own variances, Welch df, studentized range over the
+        levels left), as a margin."""
+        a, b = self.pair  # type: ignore[misc]
+        na, nb = n[:, a], n[:, b]
+        ok = (na > 1) & (nb > 1)
+        p = np.full(na.shape, np.nan)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            va, vb = m2[:, a] / (na - 1) / na, m2[:, b] / (nb - 1) / nb
+            se = np.sqrt(va + vb)
+            df = (va + vb) ** 2 / (va * va / (na - 1) + vb * vb / (nb - 1))
+            q = math.sqrt(2.0) * np.abs(mean[:, a] - mean[:, b]) / se
+        ok &= (se > 0) & np.isfinite(q) & np.isfinite(df)
+        levels = (n > 0).sum(axis=1)
+        for kk in np.unique(levels[ok]):
+            sel = ok & (levels == kk)
+            p[sel] = np.asarray(srange_sf(q[sel], int(kk), df[sel]), dtype=float).reshape(-1)
+        return self._log_margin(p, ok)
+
+    def _dunn(self, sets: np.ndarray, keep: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+        """Dunn's Holm-adjusted p of the pair after each removal (mid-ranks re-read by exact downdates), as a
+        margin."""
+        n, rank_sum, tie = self.chosen.rank_parts(sets, keep)
+        adjusted = dunn_holm(n, rank_sum, tie)
+        a, b = sorted(self.pair)  # type: ignore[arg-type]
+        k = n.shape[1]
+        col = a * k - a * (a + 1) // 2 + (b - a - 1)  # position of (a, b) among the upper-triangle pairs
+        p = adjusted[:, col]
+        return self._log_margin(p, np.isfinite(p))
+
     def pvalue(self, keep: np.ndarray) -> float | None:
-        """p-value of the decision on the kept rows, computed afresh."""
-        d = self.data
+        """p-value of the decision on the kept rows, computed afresh (the overall test, or the pairwise
+        comparison of :data:`PAIRWISE_FOR_TEST` from its own function in :mod:`explorer.inference`)."""
         if self.pair is None:
             return self.chosen.refit(keep)
-        gs = group_stats(d.y[keep], d.codes[keep], d.labels, d.offset)
-        fits = evaluate_alternatives(gs.n[None, :], gs.mean[None, :], gs.m2[None, :], d.scale())
-        if fits.status[0]:
+        res = self.chosen.refit_results(keep)
+        if res is None:
             return None
-        a, b = self.pair
-        if gs.n[a] == 0 or gs.n[b] == 0:
+        labels = tuple(self.data.labels[i] for i in self.pair)
+        if any(lv not in res.groups.labels for lv in labels):
             return None
-        msw = fits.ss_within[0] / fits.df_within[0]
-        q = abs(gs.mean[a] - gs.mean[b]) / math.sqrt(msw / 2 * (1 / gs.n[a] + 1 / gs.n[b]))
-        return float(srange_sf(q, int(fits.levels[0]), float(fits.df_within[0])).reshape(-1)[0])
+        try:
+            if self.pairwise == "Dunn (Holm)":
+                ranked = dunn(res)
+                first, second, pvals = ranked.first, ranked.second, np.asarray(ranked.adjusted, dtype=float)
+            else:
+                table = games_howell(res) if self.pairwise == "Games-Howell" else tukey(res)
+                first, second, pvals = table.first, table.second, np.asarray(table.pvalue, dtype=float)
+        except DesignError:
+            return None
+        for u, v, p in zip(first, second, pvals):
+            if {u, v} == set(labels):
+                return float(p) if np.isfinite(p) else None
+        return None
 
     def flipped(self, keep: np.ndarray, want_sig: bool) -> tuple[bool, float | None]:
         """Whether the decision on the kept rows is the wanted one (fresh analysis), and its p-value."""
@@ -276,8 +351,9 @@ def flip_finder(
     term : str, optional
         The term whose decision is scored (default: the term of ``study.decision``).
     pair : (str, str), optional
-        Two level names to flip that pairwise (Tukey-Kramer) decision instead (one
-        factor).
+        Two level names to flip that pairwise decision instead (one factor), read by the
+        comparison that follows the study's test (:data:`PAIRWISE_FOR_TEST`; the result's
+        ``pairwise_method`` and notes say which).
     method : {'auto', 'exact', 'greedy'}, default 'auto'
         'exact' (exhaustive up to ``budget`` sets and ``max_size`` rows), 'greedy', or
         'auto' (exact first; greedy when the exact search finds nothing within reach).
@@ -326,7 +402,7 @@ def flip_finder(
                                 "F test of a term (leave out pair=)")
         return _factorial_flip(study, name, verdict, method, max_steps, alpha, record)
     a = alpha_or(alpha, data.alpha)
-    chosen = ChosenTest(data, spec)
+    chosen = ChosenTest(data, spec, a)
     pair_idx = None
     target = f"{chosen.statistic_name} test of {data.factor} ({spec.test})"
     if pair is not None:
@@ -340,7 +416,7 @@ def flip_finder(
         if idx[0] == idx[1]:
             raise ExplorerError("a pairwise decision needs two different levels")
         pair_idx = (idx[0], idx[1])
-        target = f"{pair[0]} vs {pair[1]} (Tukey-Kramer)"
+        target = f"{pair[0]} vs {pair[1]} ({PAIRWISE_FOR_TEST[spec.test]})"
     scorer = _Scorer(data, a, pair_idx, chosen)
     keep_all = np.ones(data.n, dtype=bool)
     base_p = verdict.pvalue if pair is None else scorer.pvalue(keep_all)
@@ -386,6 +462,8 @@ def flip_finder(
     for j in rows_found:
         keep[j] = False
         pvals.append(scorer.pvalue(keep))
+    if pair is not None:
+        notes.append(f"Pairwise decision: {_PAIRWISE_WHY[spec.test]}, at alpha {a:g}.")
     if pair is None:
         notes.append(f"Test: {chosen.how}.")
         if spec.test == "permutation":
@@ -399,6 +477,7 @@ def flip_finder(
         rows=tuple(_py_id(data.row_ids[j]) for j in rows_found),
         groups=tuple(data.labels[data.codes[j]] for j in rows_found), pvalues=tuple(pvals),
         exact_up_to=covered, sets_examined=examined, flipping_sets_at_size=at_size, term=name, test=spec.test,
+        pairwise_method="" if pair is None else PAIRWISE_FOR_TEST[spec.test],
         disclosure=study.disclosure if record else None,
         notes=tuple(notes),
     )

@@ -178,8 +178,8 @@ def regroup_scan(
     if factor is not None and factor != data.factor:
         raise ExplorerError(f"factor {factor!r} is not the factor of this one-factor study ({data.factor!r})")
     spec = study.spec
-    chosen = ChosenTest(data, spec)
     a = alpha_or(alpha, data.alpha)
+    chosen = ChosenTest(data, spec, a)
     gs, k = data.stats, data.k
     labels = data.labels
     # Merges: the pooled group takes the first level's place, the second is emptied.

@@ -196,7 +196,8 @@ def _oneway(results: Results) -> Decision:
         verdict = DETECTED if sig else NOT_DETECTED
     method = out.method
     if spec.test == "permutation":
-        method = f"permutation F ({PERMUTATIONS} permutations, seed {PERMUTATION_SEED})"
+        method = (f"permutation F ({out.permutations} of up to {PERMUTATIONS} orderings, seed {PERMUTATION_SEED}; "
+                  f"Monte Carlo SE of p {out.monte_carlo_se:.2g})")
     tv = TermVerdict(term=factor, factors=(factor,), role="factor", statistic=out.statistic, df_num=out.df_num,
                      df_den=out.df_den, pvalue=out.pvalue, significant=sig, verdict=verdict)
     return Decision(term=factor, factors=(factor,), role="factor", verdict=verdict, significant=sig,
