@@ -3,7 +3,7 @@
 ``variance-explorer`` (or ``python -m explorer``) with one of the commands::
 
     check  DATA --response Y --factor A [--factor B] [--block C] [--id-column ID] [--edits FILE]
-    report DATA --response Y --factor A [...] [--edits FILE] -o OUT.html
+    report DATA --response Y --factor A [...] [--edits FILE] [--compare FILE] -o OUT.html
     code   DATA --response Y --factor A [...] [--edits FILE]
     demo   [--no-browser] [--dry-run] [--port N] [-- extra JupyterLab options]
     app    STUDY_FILE --data DATA [--no-browser] [--dry-run] [--port N] [-- extra Voila options]
@@ -106,6 +106,8 @@ def build_parser() -> argparse.ArgumentParser:
     report.add_argument("--title", help="title of the report")
     report.add_argument("--scenario", help="one line saying what was compared and why")
     report.add_argument("--no-charts", action="store_true", help="tables only (no altair/vl-convert needed)")
+    report.add_argument("--compare", metavar="STUDY_FILE",
+                        help="a colleague's study file of the same data, set beside this study in its own section")
     code = sub.add_parser("code", help="print Python that rebuilds the study (load, then each edit)")
     _add_data_args(code)
     _output_args(code, "Python file to write instead of printing")
@@ -187,7 +189,9 @@ def load_study(args: argparse.Namespace) -> Study:
 # --------------------------------------------------------------------------- commands
 def _inputs(args: argparse.Namespace) -> list[tuple[str, str]]:
     """The files a command reads; no output may replace them, even with --force."""
-    return [("data file", args.data)] + ([("edit file", args.edits)] if args.edits else [])
+    other = getattr(args, "compare", None)
+    return ([("data file", args.data)] + ([("edit file", args.edits)] if args.edits else [])
+            + ([("colleague's study file", other)] if other else []))
 
 
 def _check_output(args: argparse.Namespace) -> None:
@@ -224,9 +228,16 @@ def _report(args: argparse.Namespace) -> int:
 
     _check_output(args)
     study = load_study(args)
+    other = None
+    if args.compare:
+        other = _check_path(args.compare, "edit file")
+        try:
+            study.compare(other)  # refused here (other data, other row ids or question), before any writing
+        except ExplorerError as exc:
+            raise CommandError(EXIT_BAD_EDITS, _about(other, exc)) from None
     try:
         out = write_report(study, args.output, title=args.title, scenario=args.scenario, charts=not args.no_charts,
-                           overwrite=args.force, protect=_inputs(args))
+                           overwrite=args.force, protect=_inputs(args), compare=other)
     except OutputError as exc:
         raise CommandError(EXIT_NO_OUTPUT, str(exc)) from None
     print(f"wrote {out} ({out.stat().st_size // 1024} KB): {study.decision.sentence()}")

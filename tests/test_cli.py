@@ -11,6 +11,7 @@ import time
 import urllib.request
 from pathlib import Path
 
+import pandas as pd
 import pytest
 
 import explorer as ex
@@ -255,3 +256,27 @@ def test_id_column_names_rows(capsys):
     assert code == 0 and "single rows whose removal flips it" in out and "P1007" in out
     code, _, err = run(capsys, "check", DEMO, *BASE, "--id-column", "panels")
     assert code == 2 and "'panels'" in err and "Did you mean" in err
+
+
+def test_report_sets_a_colleagues_study_beside(capsys, saved, tmp_path):
+    """--compare adds the section; a file of other data is refused (exit 3) and nothing is written."""
+    colleague = ex.Study(DEMO, response="thickness_um", factors="nozzle")
+    colleague.merge_levels("nozzle", ["N2", "N3"], into="N2+N3", reason="one supplier")
+    theirs = colleague.save(tmp_path / "colleague.study.json")
+    out_file = tmp_path / "side.html"
+    code, _, err = run(capsys, "report", DEMO, *BASE, "--edits", str(saved), "--compare", str(theirs),
+                       "-o", str(out_file), "--no-charts")
+    assert code == 0, err
+    page = out_file.read_text(encoding="utf-8")
+    assert "<section id='colleague'><h2>Beside colleague.study.json</h2>" in page and "one supplier" in page
+    other = pd.read_csv(DEMO)
+    other.loc[0, "thickness_um"] += 1
+    other.to_csv(tmp_path / "other.csv", index=False)
+    stranger = ex.Study(tmp_path / "other.csv", response="thickness_um", factors="nozzle").save(
+        tmp_path / "stranger.study.json")
+    code, _, err = run(capsys, "report", DEMO, *BASE, "--edits", str(saved), "--compare", str(stranger),
+                       "-o", str(tmp_path / "no.html"), "--no-charts")
+    assert code == 3 and "stranger.study.json" in err and not (tmp_path / "no.html").exists()
+    code, _, err = run(capsys, "report", DEMO, *BASE, "--edits", str(saved), "--compare", str(theirs),
+                       "-o", str(theirs), "--force", "--no-charts")
+    assert code == 4 and ex.Study.load(theirs, DEMO).edits[0].kind == "merge"  # never written over
