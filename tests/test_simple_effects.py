@@ -144,3 +144,82 @@ def test_chart_report_text_and_widget_show_the_interaction():
     assert "Simple effects of A" in e.cards["simple_effects"].html.value
     one = ex.Study(CROSSOVER, "y", "A")
     assert one.decision.simple_effects_pair is None and "id='interaction'" not in report_html(one, charts=False)
+
+
+def _pair_reference(df: pd.DataFrame, formula: str, factor: str, within: str,
+                    averaged: dict[str, list[str]] | None = None) -> pd.DataFrame:
+    """statsmodels OLS of the full model; every pair of ``factor`` levels at each level of ``within`` by
+    model.t_test of the difference of the two least-squares means (rows of the design averaged as above)."""
+    fit = smf.ols(formula, df).fit()
+    info = fit.model.data.model_spec
+    fa, fb = sorted(df[factor].unique()), sorted(df[within].unique())
+    extra = averaged or {}
+    grid_other = pd.MultiIndex.from_product(list(extra.values()), names=list(extra)).to_frame(index=False) if extra \
+        else pd.DataFrame(index=[0])
+    rows = {}
+    for a in fa:
+        for b in fb:
+            (x,) = patsy.build_design_matrices([info], grid_other.assign(**{factor: a, within: b, "y": 0.0}))
+            rows[(a, b)] = np.asarray(x).mean(axis=0)
+    out = []
+    for b in fb:
+        for i, a1 in enumerate(fa):
+            for a2 in fa[i + 1:]:
+                t = fit.t_test(rows[(a1, b)] - rows[(a2, b)])
+                out.append({"within": b, "first": a1, "second": a2, "difference": float(np.squeeze(t.effect)),
+                            "se": float(np.squeeze(t.sd)), "t": float(np.squeeze(t.tvalue)),
+                            "p": float(np.squeeze(t.pvalue)), "df": float(fit.df_resid)})
+    return pd.DataFrame(out)
+
+
+@pytest.mark.parametrize("adjust", ["holm", "bonferroni", "none"])
+def test_pairs_within_simple_effects_match_statsmodels(adjust):
+    """Unbalanced 3 x 4 x 2 (means averaged over W): every pair of A at each level of B equals statsmodels OLS
+    t_test of the same contrast (difference, SE, t, p to 1e-9); the adjustment over the one family of 12
+    comparisons equals multipletests; Bonferroni intervals at 1 - alpha from scipy.stats.t."""
+    from scipy import stats
+
+    df = _unbalanced()
+    study = ex.Study(df, "y", ["A", "B", "W"])
+    pairs = study.simple_effects("A", within="B").pairs(adjust=adjust)
+    ref = _pair_reference(df, "y ~ C(A, Sum) * C(B, Sum) * C(W, Sum)", "A", "B", {"W": ["w1", "w2"]})
+    got = pairs.to_frame()
+    assert list(zip(got["B"], got["first"], got["second"])) == list(zip(ref.within, ref["first"], ref.second))
+    np.testing.assert_allclose(got["difference"], ref.difference, rtol=1e-9)
+    np.testing.assert_allclose(got["standard error"], ref.se, rtol=1e-9)
+    np.testing.assert_allclose(got["t"], ref.t, rtol=1e-9)
+    np.testing.assert_allclose(got["p-value"], ref.p, rtol=1e-9)
+    want = ref.p.to_numpy() if adjust == "none" else multipletests(ref.p, method=adjust)[1]
+    np.testing.assert_allclose(got[f"p-value ({adjust})"], want, rtol=1e-9)
+    m = 1 if adjust == "none" else 12
+    crit = stats.t.ppf(1 - 0.05 / 2 / m, ref.df.iloc[0])
+    np.testing.assert_allclose(got["95% CI low"], ref.difference - crit * ref.se, rtol=1e-9)
+    assert pairs.family_size == 12 and pairs.df == int(ref.df.iloc[0])
+    assert ("one family of 12" in pairs.family) == (adjust != "none")
+
+
+def test_pairs_tukey_per_level_on_the_crossover():
+    """Balanced crossover with three levels of A: Tukey-Kramer at each level of B from the full model's residual
+    mean square; p and the interval's critical value from scipy.stats.studentized_range with 3 means on the
+    residual df; differences and SE equal statsmodels t_test; alpha 0.01 gives 99% intervals."""
+    from scipy import stats
+
+    rng = np.random.default_rng(4)
+    grid = pd.MultiIndex.from_product([["a1", "a2", "a3"], ["b1", "b2"], range(4)], names=["A", "B", "r"])
+    df = grid.to_frame(index=False).drop(columns="r")
+    df["y"] = 10 + rng.normal(size=len(df)) + np.where(df.B == "b1", 1.0, -1.0) * (df.A == "a1") * 2
+    study = ex.Study(df, "y", ["A", "B"], alpha=0.01)
+    pairs = study.simple_effects("A", within="B").pairs(adjust="tukey")
+    ref = _pair_reference(df, "y ~ C(A, Sum) * C(B, Sum)", "A", "B")
+    got = pairs.to_frame()
+    dfr = ref.df.iloc[0]
+    np.testing.assert_allclose(got["difference"], ref.difference, rtol=1e-9)
+    np.testing.assert_allclose(got["standard error"], ref.se, rtol=1e-9)
+    np.testing.assert_allclose(got["p-value (tukey)"], stats.studentized_range.sf(np.sqrt(2) * np.abs(ref.t), 3, dfr),
+                               rtol=1e-6)
+    crit = stats.studentized_range.ppf(0.99, 3, dfr) / np.sqrt(2)
+    np.testing.assert_allclose(got["99% CI high"], ref.difference + crit * ref.se, rtol=1e-6)
+    assert pairs.family_size == 3 and "at each of the 2 levels of B" in pairs.family
+    assert pairs.confidence == pytest.approx(0.99) and pairs.alpha == pytest.approx(0.01)
+    with pytest.raises(ExplorerError, match="adjust must be one of"):
+        study.simple_effects("A", within="B").pairs(adjust="scheffe")

@@ -13,6 +13,15 @@ of A within level b over (a - 1), divided by the full model's residual mean squa
 B form a family; their p-values are adjusted family-wise (Holm 1979 by default) and the
 adjustment is stated.
 
+:meth:`SimpleEffects.pairs` compares the levels of A two at a time at each level of B:
+the difference of two least-squares cell means, its standard error from the same
+covariance (full model's residual mean square), t on the residual df. The family and its
+adjustment are stated: Holm or Bonferroni over every comparison at every level of B (one
+family of ``b a (a - 1) / 2``), Tukey-Kramer's studentized range of ``a`` means at each
+level of B (a family per level, the levels of B not adjusted against one another), or
+none. Intervals are at ``1 - alpha`` with the matching simultaneous critical value
+(Bonferroni's for Holm, whose step-down has no simple intervals).
+
 References
 ----------
 Kirk, R. E. (2013). Experimental Design: Procedures for the Behavioral Sciences, 4th ed.
@@ -23,6 +32,10 @@ Holm, S. (1979). A simple sequentially rejective multiple test procedure. Scand.
 Statist. 6, 65-70.
 Searle, S. R., Speed, F. M. and Milliken, G. A. (1980). Population marginal means in the
 linear model. The American Statistician 34, 216-221.
+Kramer, C. Y. (1956). Extension of multiple range tests to group means with unequal
+numbers of replications. Biometrics 12, 307-310.
+Hayter, A. J. (1984). A proof of the conjecture that the Tukey-Kramer multiple
+comparisons procedure is conservative. Ann. Statist. 12, 61-75.
 """
 
 from __future__ import annotations
@@ -33,19 +46,57 @@ import numpy as np
 import pandas as pd
 
 from ..engine.cellfit import CellFit, fit_cells
-from ..engine.distributions import f_sf, t_ppf
+from ..engine.distributions import f_sf, t_ppf, t_two_sided_p
 from ..engine.errors import DesignError, ExplorerError, closest_names
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
 from ..engine.spec import alpha_or
+from ..engine.studentized_range import srange_ppf, srange_sf
 from ..engine.tables import html_table
 from ..formatting import show_p, show_ss
 from ..rendering import block, html_repr
 
-__all__ = ["ADJUSTMENTS", "SimpleEffects", "simple_effects"]
+__all__ = ["ADJUSTMENTS", "PAIR_ADJUSTMENTS", "SimpleEffects", "SimplePairs", "simple_effects"]
 
 #: Family-wise adjustments offered for the tests at the levels of the second factor.
 ADJUSTMENTS = {"holm": "Holm (1979) step-down", "bonferroni": "Bonferroni", "none": "none (each test at alpha)"}
+#: Adjustments offered for the pairwise comparisons within the simple effects.
+PAIR_ADJUSTMENTS = {**ADJUSTMENTS, "tukey": "Tukey-Kramer (studentized range)"}
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class SimplePairs:
+    """Every pair of levels of ``factor`` compared at each level of ``within`` (least-squares means).
+
+    ``table`` has one line per comparison: the level of ``within``, the two levels, the
+    difference (first minus second), its standard error, t on ``df`` (the full model's
+    residual df), the unadjusted and adjusted p-values, the interval at ``confidence``
+    and whether the adjusted p is below ``alpha``. ``family`` says what the adjustment
+    covers.
+    """
+
+    factor: str
+    within: str
+    table: pd.DataFrame
+    adjustment: str
+    family: str
+    family_size: int
+    df: int
+    alpha: float
+    confidence: float
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def title(self) -> str:
+        return (f"Pairs of {self.factor} at each level of {self.within} ({PAIR_ADJUSTMENTS[self.adjustment]}; "
+                f"{self.family})")
+
+    def to_frame(self) -> pd.DataFrame:
+        return self.table.copy()
+
+    @html_repr
+    def _repr_html_(self) -> str:
+        return block("simple-pairs", [html_table(self.table, self.title, self.notes)])
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -77,6 +128,93 @@ class SimpleEffects:
     interaction: str | None
     interaction_pvalue: float | None
     notes: tuple[str, ...] = field(default=())
+    factor_levels: tuple[str, ...] = ()
+    means: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
+    covariance: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)), repr=False)
+
+    def pairs(self, *, adjust: str = "holm", alpha: float | None = None,
+              confidence: float | None = None) -> SimplePairs:
+        """Every pair of levels of ``factor`` at each level of ``within``, on the full model.
+
+        Parameters
+        ----------
+        adjust : {'holm', 'bonferroni', 'tukey', 'none'}, default 'holm'
+            Holm or Bonferroni over every comparison at every level of ``within`` (one
+            family); 'tukey': Tukey-Kramer's studentized range of the ``factor`` means at
+            each level of ``within`` (one family per level); 'none'.
+        alpha : float, optional
+            Level of the verdicts (default the simple effects').
+        confidence : float, optional
+            Level of the intervals (default ``1 - alpha``).
+
+        Returns
+        -------
+        SimplePairs
+            Differences of least-squares cell means with standard errors from the full
+            model's residual mean square, t, p-values, adjusted p-values and intervals.
+
+        References
+        ----------
+        Kirk, R. E. (2013). Experimental Design, 4th ed., sec. 9.6.
+        Kramer, C. Y. (1956). Biometrics 12, 307-310.
+        Holm, S. (1979). Scand. J. Statist. 6, 65-70.
+        """
+        if adjust not in PAIR_ADJUSTMENTS:
+            raise ExplorerError(f"adjust must be one of {list(PAIR_ADJUSTMENTS)}, not {adjust!r}")
+        level = alpha_or(alpha, self.alpha)
+        conf = 1 - level if confidence is None else float(confidence)
+        if not 0 < conf < 1:
+            raise ExplorerError(f"confidence must be between 0 and 1, not {confidence!r}")
+        fa, fb = self.factor_levels, self.levels
+        a, b = len(fa), len(fb)
+        first, second = np.triu_indices(a, 1)
+        rows = []
+        for j in range(b):
+            for i, k in zip(first, second):
+                u, v = i * b + j, k * b + j
+                d = float(self.means[u] - self.means[v])
+                var = float(self.covariance[u, u] + self.covariance[v, v] - 2 * self.covariance[u, v])
+                rows.append((fb[j], fa[i], fa[k], d, float(np.sqrt(max(var, 0.0)))))
+        frame = pd.DataFrame(rows, columns=[self.within, "first", "second", "difference", "standard error"])
+        diff, se = frame["difference"].to_numpy(), frame["standard error"].to_numpy()
+        with np.errstate(divide="ignore", invalid="ignore"):
+            t = diff / se
+        df = float(self.df_den)
+        p = np.asarray(t_two_sided_p(t, df), dtype=float)
+        m = int(np.isfinite(p).sum())
+        per_level = a * (a - 1) // 2
+        if adjust == "tukey":
+            adjusted = np.asarray(srange_sf(np.sqrt(2.0) * np.abs(t), a, df), dtype=float).reshape(-1)
+            crit = float(np.asarray(srange_ppf(conf, a, df)).reshape(-1)[0]) / np.sqrt(2.0)
+            family = f"a family of {per_level} pairs at each of the {b} levels of {self.within}"
+        else:
+            adjusted = adjust_pvalues(p, adjust)
+            tail = (1 - conf) / 2 / (m if adjust != "none" else 1)
+            crit = float(t_ppf(1 - tail, df))
+            family = (f"one family of {m} comparisons over every level of {self.within}" if adjust != "none"
+                      else "each comparison at alpha")
+        pct = f"{conf:.0%}"
+        frame["t"] = t
+        frame["p-value"] = p
+        frame[f"p-value ({adjust})"] = adjusted
+        frame[f"{pct} CI low"] = diff - crit * se
+        frame[f"{pct} CI high"] = diff + crit * se
+        frame["significant"] = np.isfinite(adjusted) & (adjusted < level)
+        notes = [f"Differences of least-squares cell means; standard errors from the full model's residual mean "
+                 f"square ({show_ss(self.ms_resid)} on {self.df_den} df), t on {self.df_den} df."]
+        if adjust == "holm":
+            notes.append("Holm's step-down has no simple intervals: the intervals are Bonferroni's over the same "
+                         "family.")
+        if adjust == "tukey":
+            notes.append(f"Tukey-Kramer: studentized range of {a} means on {self.df_den} df at each level of "
+                         f"{self.within}, with each pair's own standard error; exact for balanced cells, Kramer's "
+                         "(1956) approximation otherwise (shown conservative for independent means, Hayter 1984).")
+        if self.interaction is None:
+            notes.append(f"The model has no {self.factor} × {self.within} term, so the differences are the same at "
+                         f"every level of {self.within}.")
+        return SimplePairs(factor=self.factor, within=self.within, table=frame, adjustment=adjust, family=family,
+                           family_size=m if adjust != "tukey" else per_level, df=self.df_den, alpha=level,
+                           confidence=conf, notes=tuple(notes))
 
     @property
     def significant(self) -> np.ndarray:
@@ -272,5 +410,5 @@ def simple_effects(results: Results, factor: str, within: str, *, adjust: str = 
         factor=factor, within=within, levels=fb, statistic=stat, df_num=df_num, df_den=int(fit.df_resid), pvalue=p,
         adjusted_pvalue=adjusted, adjustment=adjust, family_size=int(np.isfinite(p).sum()), alpha=a_level,
         ms_resid=float(ms), confidence=conf, cells=cells, interaction=inter, interaction_pvalue=inter_p,
-        notes=tuple(notes),
+        notes=tuple(notes), factor_levels=fa, means=est, covariance=cov,
     )
