@@ -223,3 +223,12 @@ def test_widget_panel_loads_compares_and_adopts(pair, tmp_path):
     assert "Adopted from colleague.study.json" in p.status.value
     assert len(p.adopt_box.children) == 2  # compared again: one of theirs left
     assert html.escape(mine.decision.sentence()) in e.header.value  # the explorer redrew on the adopted edit
+
+
+def test_summary_backed_studies_are_refused_plainly():
+    pytest.importorskip("duckdb")
+    from explorer.summaries import SummaryStudy
+
+    big = SummaryStudy(pd.read_csv(DATA), response="thickness_um", factors=["nozzle"])
+    with pytest.raises(ExplorerError, match="summary-backed"):
+        _fresh().compare(big)

@@ -309,6 +309,10 @@ def _try(dataset: Dataset, spec: ModelSpec, edits: Sequence[Edit]) -> tuple[Resu
 
 def compare_studies(mine: Study, theirs: Study, *, mine_label: str = "mine", theirs_label: str = "theirs") -> StudyComparison:
     """Compare two studies of the same data (see the module docstring)."""
+    for s in (mine, theirs):
+        if hasattr(s, "sample_study"):
+            raise ExplorerError("a summary-backed study (data kept in DuckDB or Spark) cannot be compared edit by "
+                                "edit; compare their saved logs with study.to_dict()['edits']")
     if mine_label == theirs_label:
         theirs_label += " (other)"
     sm, st = mine.spec, theirs.spec

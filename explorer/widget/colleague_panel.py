@@ -145,6 +145,9 @@ _PANELS: weakref.WeakKeyDictionary[Study, ColleaguePanel] = weakref.WeakKeyDicti
 @panel("colleague", "Compare with a colleague's study", group=GROUP, order=1)
 def colleague_panel(ctx: PanelContext) -> Any:
     """One panel per study shown; redrawn (compared again) whenever the current view changes."""
+    if hasattr(ctx.study, "sample_study"):
+        return ("<div class='vx-small'>Not available for a summary-backed study: its edits are conditions run "
+                "where the data are kept, and are not compared edit by edit here.</div>")
     held = _PANELS.get(ctx.study)
     if held is None:
         held = _PANELS[ctx.study] = ColleaguePanel(ctx.study)
