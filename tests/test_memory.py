@@ -148,3 +148,40 @@ def test_row_ids_are_found_without_a_table_per_row():
     with pytest.raises(ex.EditError, match="no rows with ids"):
         study.drop([1], reason="x")
     assert initial_view(study.dataset).n_kept == 50
+
+
+def _fingerprint_by_frame(dataset, frame, factors):
+    """The fingerprint as first defined: pandas' hash_pandas_object of a DataFrame of the columns as text."""
+    import hashlib
+
+    ids = dataset.all_row_ids
+    yv = pd.to_numeric(frame["y"], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+    hashed = pd.util.hash_pandas_object(pd.DataFrame(
+        {"id": [str(i) for i in ids.tolist()], "y": yv, **{f: frame[f].astype(str).to_numpy() for f in factors}}),
+        index=False).to_numpy()
+    head = f"y|{'|'.join(factors)}|{len(frame)}".encode()
+    return hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32], (hashed & 0xFFFFFFFF).astype(np.uint32)
+
+
+@pytest.mark.parametrize("index", ["range", "text", "shuffled"])
+def test_fingerprints_and_row_digests_are_unchanged_by_the_faster_build(index):
+    """Each distinct factor value is hashed once now; the digests must equal pandas' row hashes of the
+    DataFrame (the definition saved study files were written with)."""
+    from explorer.engine.dataset import build_dataset
+
+    rng = np.random.default_rng(5)
+    n = 2_000
+    frame = pd.DataFrame({
+        "y": rng.normal(0, 1, n), "g": rng.choice(["a", "b c", "é"], n), "h": rng.choice([1.0, 2.5, np.nan], n),
+        "k": pd.Categorical(rng.choice(["x", "y"], n)), "m": rng.integers(0, 4, n),
+    })
+    frame.loc[7, "y"] = np.nan
+    if index == "text":
+        frame.index = [f"r{i}" for i in range(n)]
+    elif index == "shuffled":
+        frame.index = rng.permutation(n) * 3
+    for factors in (("g",), ("h", "k", "m")):
+        ds = build_dataset(frame, "y", factors)
+        fingerprint, digests = _fingerprint_by_frame(ds, frame, factors)
+        assert ds.fingerprint == fingerprint
+        assert np.array_equal(ds.row_digests, digests)

@@ -26,6 +26,7 @@ from .errors import ColumnError, DataError, EditError, closest_names, preview
 from .loading import read_table
 from .numerics import read_only
 from .response_unit import rescale, safe_unit, unit_exponent, unit_note
+from .row_hash import row_hashes
 from .table_checks import check_response_values, column_names, decimal_comma_hint, refuse_text_collisions, text_columns
 
 __all__ = ["Dataset", "SetAsideRow", "RowId", "build_dataset", "level_label", "natural_key", "decode_digests", "encode_digests"]
@@ -47,9 +48,10 @@ def natural_key(s: str) -> tuple[object, ...]:
     return tuple(int(t) if t.isdecimal() else t.lower() for t in re.split(r"(\d+)", s))
 
 
-def _level_order(col: pd.Series, labels: pd.Series) -> tuple[list[str], list[str]]:
-    """Level names in display order, and any unused categorical levels."""
-    present = pd.unique(labels)
+def _level_order(col: pd.Series, values: pd.Series, labels: list[str]) -> tuple[list[str], list[str]]:
+    """Level names in display order, and any unused categorical levels (``values``: the column's distinct
+    values, ``labels`` their level names)."""
+    present = list(dict.fromkeys(labels))
     unused: list[str] = []
     if isinstance(col.dtype, pd.CategoricalDtype):
         cats = [str(c) for c in col.cat.categories]
@@ -57,7 +59,7 @@ def _level_order(col: pd.Series, labels: pd.Series) -> tuple[list[str], list[str
         unused = [c for c in cats if c not in present_set]
         return [c for c in cats if c in present_set], unused
     if pd.api.types.is_numeric_dtype(col.dtype) and not pd.api.types.is_bool_dtype(col.dtype):
-        nums = sorted({(float(v), s) for v, s in zip(col.dropna(), labels)})
+        nums = sorted({(float(v), s) for v, s in zip(values, labels)})
         seen: list[str] = []
         for _, s in nums:
             if s not in seen:
@@ -377,23 +379,22 @@ def build_dataset(
     codes: dict[str, np.ndarray] = {}
     levels: dict[str, tuple[str, ...]] = {}
     for f in factors:
-        fcol = frame[f][usable]
-        labels = fcol.map(level_label).astype(object)
-        refuse_text_collisions(fcol, labels, ids[usable], f"factor {f!r}")
-        order, unused = _level_order(fcol, labels)
+        fcol = frame[f][usable] if not usable.all() else frame[f]
+        # One factorisation: each distinct value is labelled once, rows get codes from their value's label.
+        raw, uniques = pd.factorize(fcol, sort=False)
+        unique_labels = [level_label(u) for u in uniques]
+        if fcol.dtype == object:
+            labels = pd.Series(np.asarray(unique_labels, dtype=object)[raw], index=fcol.index)
+            refuse_text_collisions(fcol, labels, ids[usable], f"factor {f!r}")
+        order, unused = _level_order(fcol, pd.Series(uniques), unique_labels)
         if unused:
             notes.append(f"Factor {f!r}: unused categories {preview(unused)} are left out.")
         lookup = {lab: i for i, lab in enumerate(order)}
-        codes[f], levels[f] = read_only(labels.map(lookup).to_numpy(dtype=np.int32)), tuple(order)
+        per_value = np.array([lookup[lab] for lab in unique_labels], dtype=np.int32)
+        codes[f], levels[f] = read_only(per_value[raw]), tuple(order)
 
     row_ids = read_only(ids[usable])
-    hashed = pd.util.hash_pandas_object(
-        pd.DataFrame(
-            {"id": [str(i) for i in ids.tolist()], "y": yv, **{f: frame[f].astype(str).to_numpy() for f in factors},
-             **{f"covariate {c}": v for c, v in cov_values.items()}}
-        ),
-        index=False,
-    ).to_numpy()
+    hashed = row_hashes(ids, yv, frame, factors, cov_values)
     head = f"{response}|{'|'.join(factors)}|{len(frame)}".encode()
     if cov_values:  # files of studies without covariates keep their fingerprints
         head += f"|covariates {'|'.join(cov_values)}".encode()
