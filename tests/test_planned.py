@@ -208,3 +208,16 @@ def test_versions_tried_are_named_in_the_ledger_and_kept_in_the_file(tmp_path):
     assert [(e.what, e.count) for e in again.ledger.entries if e.kind == "search"] == \
         [(e.what, e.count) for e in searches]
     assert _searched(again) == _searched(study)
+
+
+def test_widget_draws_every_equivalence_request():
+    """Two margins tried: the widget draws both interval charts (as the report does), not only the last."""
+    pytest.importorskip("ipywidgets")
+    from explorer.widget.panels import PANELS, PanelContext, Settings
+
+    study = ex.Study(coating(), "thickness", "dose")
+    study.equivalence("dose", margin=1.0, pairs=[("1", "2")])
+    study.equivalence("dose", margin=1.5, control="0.5")
+    spec = PANELS["equivalence_intervals"].build(PanelContext(study=study, settings=Settings())).to_dict()
+    assert len(spec["vconcat"]) == 2
+    assert json.dumps(spec).count("Equivalence against your margin") == 2

@@ -56,4 +56,14 @@ def equivalence_intervals(ctx: PanelContext) -> Any:
     tables = [o.value for o in getattr(ctx.study, "planned", lambda: ())() if isinstance(o.value, EquivalenceTable)]
     if not tables:
         return None
-    return equivalence_chart(tables[-1])
+    if len(tables) == 1:
+        return equivalence_chart(tables[0])
+    import altair as alt
+
+    charts = [equivalence_chart(t) for t in tables]  # one chart per request, in the order asked
+    config = charts[0].config
+    for c in charts:
+        c.config = alt.Undefined  # a concatenation carries the shared configuration once
+    out = alt.vconcat(*charts)
+    out.config = config
+    return out
