@@ -94,3 +94,45 @@ def test_a_one_factor_test_on_two_factors_is_refused_in_the_widget():
     e.omnibus_picker.value = "welch"
     assert e.study.spec.test == "classic" and e.omnibus_picker.value == "classic"
     assert "compares the levels of one fixed factor" in e.status.value
+
+
+def _cli_check(capsys, tmp_path, df, factors, test):  # type: ignore[no-untyped-def]
+    from explorer.cli import main
+
+    path = tmp_path / "data.csv"
+    df.to_csv(path, index=False)
+    argv = ["check", str(path), "--response", "y", *[a for f in factors for a in ("--factor", f)], "--test", test]
+    code = main(argv)
+    out = capsys.readouterr().out
+    assert code == 0
+    return out
+
+
+def test_command_line_states_the_decision(case, capsys, tmp_path):
+    """The command line's check (no edits: the unedited data) prints the baseline decision's sentence and method."""
+    name, _ = case
+    df, factors, test = CASES[name]
+    out = _cli_check(capsys, tmp_path, df, factors, test)
+    d = ex.Study(df, "y", factors, test=test).decision
+    assert d.sentence() in out and d.method in out
+
+
+@pytest.mark.parametrize("test", ["classic", "welch", "brown-forsythe", "kruskal", "permutation"])
+def test_one_factor_surfaces_under_each_test(test, capsys, tmp_path):
+    """Each overall test of a one-factor study: every scan scores the decision's test with its p as the base and
+    says how it computed the test; the sweep's default analysis, the report text and the command line state the
+    same decision."""
+    from explorer.sensitivity.chosen_test import HOW
+
+    study = ex.Study(RANKS_DISAGREE, "y", "g", test=test)
+    d = study.decision
+    assert d.test == test
+    for scan in (study.case_deletion(record=False), study.flip_finder(record=False, max_steps=2),
+                 study.regroup_scan(record=False)):
+        assert scan.test == test and scan.base_pvalue == d.pvalue and scan.base_significant == d.significant
+        assert any(n.startswith("Test: " + HOW[test]) for n in scan.notes), type(scan).__name__
+    sweep = study.robustness_sweep(record=False, transforms=["none"])
+    assert sweep.test == test and sweep.default_pvalue == pytest.approx(d.pvalue, rel=1e-12)
+    assert f"Decision ({d.method}): {d.sentence()}" in summary_text(study, cautions=False)
+    out = _cli_check(capsys, tmp_path, RANKS_DISAGREE, ["g"], test)
+    assert d.sentence() in out and d.method in out
