@@ -88,6 +88,7 @@ DECISION_CARD_RULES = """
 .vx-dcard-label{font-size:11px;color:#555;font-weight:700;letter-spacing:.02em}
 .vx-dcard-sentence{font-weight:600}
 .vx-dcard-change{background:#fff1df;padding:0 4px;border-radius:2px;display:inline-block;margin:1px 6px 1px 0}
+.vx-dcard-change.vx-dcard-decisive{background:#fde2e2;color:#7a1111;font-weight:600}
 .vx-dcard-flipnote{color:#9b1c1c;font-weight:700}
 .vx-dcard-disclosure{margin-top:2px}
 .vx-dcard-cautions{margin:4px 0 0 0;padding:0;list-style:none;font-size:12px;display:grid;
