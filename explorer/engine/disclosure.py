@@ -34,3 +34,8 @@ class Disclosure:
             f"{self.edits_in_effect} edit(s) in effect; {self.edits_made} made in all ({self.undos} undone); "
             f"{self.specifications} alternative analyses examined" + (f" ({self.note})" if self.note else "")
         )
+
+    def sentence_then(self) -> str:
+        """The sentence as a result computed under these counts shows it: the count of that moment, said so
+        (the study's own count, ``study.disclosure``, is read live and may have grown since)."""
+        return f"Searching when this was computed: {self.sentence()}"

@@ -142,7 +142,7 @@ class CaseDeletionScan:
             f"Leaving out one row at a time ({self.row_ids.size} rows): {n_flip} deletion(s) flip the decision on "
             f"{self.term} at alpha {self.alpha:g} (p with all rows = {show_p(self.base_pvalue)})"
         )
-        notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
+        notes = self.notes + ((self.disclosure.sentence_then(),) if self.disclosure else ())
         return "<div>" + html_table(frame, caption, notes) + "</div>"
 
 

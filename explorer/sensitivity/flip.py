@@ -142,7 +142,7 @@ class FlipSearch:
                     f"{self.alpha:g} ({self.method} search; p with all rows = {show_p(self.base_pvalue)})")
         else:
             head = f"{self.target}: no set of rows within the search's reach makes the decision {wanted}"
-        notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
+        notes = self.notes + ((self.disclosure.sentence_then(),) if self.disclosure else ())
         return "<div>" + html_table(self.to_frame(), head, notes) + "</div>"
 
 

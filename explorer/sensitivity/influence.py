@@ -117,7 +117,7 @@ class Influence:
         rules = "; ".join(f"{v} ({show_stat(self.cutoffs[k])})" for k, v in self.cutoff_rules.items())
         notes = (f"Cut-offs: {rules}.",) + self.notes
         if self.disclosure is not None:
-            notes += (self.disclosure.sentence(),)
+            notes += (self.disclosure.sentence_then(),)
         caption = f"Influence: {len(shown)} of {self.n} rows beyond a cut-off"
         return "<div>" + html_table(shown, caption, notes) + "</div>"
 

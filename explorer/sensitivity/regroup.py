@@ -120,7 +120,7 @@ class RegroupScan:
         cap1 = (f"Merging two levels of {self.factor} ({len(merges)} pairs; decision on {self.term}, p now "
                 f"{show_p(self.base_pvalue)}): {len(self.merge_flips)} flip the decision at alpha {self.alpha:g}")
         cap2 = f"Moving one row to another level: {len(self.move_flips)} of {self.move_rows.size} moves flip the decision"
-        notes = self.notes + ((self.disclosure.sentence(),) if self.disclosure else ())
+        notes = self.notes + ((self.disclosure.sentence_then(),) if self.disclosure else ())
         return ("<div>" + html_table(merges, cap1) + html_table(moves, cap2, notes) + "</div>")
 
 

@@ -128,7 +128,7 @@ class SweepResult:
             notes.insert(0, f"The single choice that moves p most: {best['choice']} = {best['option']} "
                             f"(p {show_p(self.default_pvalue)} -> {show_p(best['p-value'])}).")
         if self.disclosure is not None:
-            notes.append(self.disclosure.sentence())
+            notes.append(self.disclosure.sentence_then())
         shown = self.table.drop(columns=["rows left out"])
         return "<div>" + html_table(shown, cap, tuple(notes)) + "</div>"
 
