@@ -34,7 +34,7 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, special
 
-from ..engine.errors import DesignError
+from ..engine.errors import DesignError, ExplorerError
 from ..engine.results import Results
 from ..engine.row_model import design_of
 from ..engine.tables import html_table
@@ -42,7 +42,8 @@ from ..engine.transforms import inverse
 from ..formatting import show_number
 from ..rendering import html_repr, small
 
-__all__ = ["BoxCoxProfile", "ProfileEstimate", "box_cox", "profile_estimate", "profile_loglik", "SIMPLE_POWERS"]
+__all__ = ["BoxCoxProfile", "ProfileEstimate", "box_cox", "check_lambdas", "profile_estimate", "profile_loglik",
+           "SIMPLE_POWERS"]
 
 #: Powers with a plain name, listed when they fall inside the interval.
 SIMPLE_POWERS = {-1.0: "reciprocal", -0.5: "reciprocal square root", 0.0: "log", 0.5: "square root",
@@ -159,6 +160,19 @@ def profile_estimate(loglik: Callable[[float], float], confidence: float) -> Pro
     return ProfileEstimate(estimate=lam, low=lo, high=hi, loglik=top, notes=tuple(notes))
 
 
+def check_lambdas(lambdas: object) -> np.ndarray:
+    """The powers at which to show the profile: a non-empty list of finite numbers in [-10, 10] (the powers a
+    transform may take), at most 1,000 of them."""
+    ok = isinstance(lambdas, (list, tuple, np.ndarray)) and 0 < len(lambdas) <= 1000 and all(
+        not isinstance(v, (bool, np.bool_)) and isinstance(v, (int, float, np.integer, np.floating)) for v in lambdas)
+    if not ok:
+        raise ExplorerError(f"lambdas is a list of Box-Cox powers (numbers, 1 to 1,000 of them), not {lambdas!r}")
+    out = np.asarray(lambdas, dtype=float)
+    if not np.all(np.isfinite(out)) or np.any(np.abs(out) > 10):
+        raise ExplorerError(f"each of lambdas must be a finite number between -10 and 10, not {out.tolist()}")
+    return out
+
+
 def box_cox(results: Results, *, lambdas: list[float] | None = None, confidence: float | None = None) -> BoxCoxProfile:
     """Box-Cox profile of the measured response under ``results``' model.
 
@@ -197,6 +211,9 @@ def box_cox(results: Results, *, lambdas: list[float] | None = None, confidence:
     if spec.is_mixed:
         raise DesignError("the Box-Cox profile is computed for fixed-effects models; this model has random terms")
     conf = 1 - spec.alpha if confidence is None else float(confidence)
+    if not 0 < conf < 1:
+        raise ExplorerError(f"confidence must be between 0 and 1, not {confidence!r}")
+    chosen = None if lambdas is None else check_lambdas(lambdas)
     measured = inverse(np.asarray(results.fit.y, dtype=float), spec.transform)
     if results.fit.y.size != results.n_used:
         raise DesignError("the Box-Cox profile needs every kept row (this study's fit holds a sample of them)")
@@ -212,8 +229,7 @@ def box_cox(results: Results, *, lambdas: list[float] | None = None, confidence:
     loglik, _ = profile_loglik(measured, x)
     best = profile_estimate(loglik, conf)
     lam, lo, hi, top, notes = best.estimate, best.low, best.high, best.loglik, list(best.notes)
-    powers = np.unique(np.r_[np.arange(-2.0, 2.01, 0.5), [round(lam, 4)]] if lambdas is None
-                       else np.asarray(lambdas, dtype=float))
+    powers = np.unique(np.r_[np.arange(-2.0, 2.01, 0.5), [round(lam, 4)]] if chosen is None else chosen)
     ll = np.array([loglik(float(p)) for p in powers])
     inside = tuple(f"{name} ({p:g})" for p, name in SIMPLE_POWERS.items()
                    if (lo is None or p >= lo) and (hi is None or p <= hi))

@@ -90,7 +90,11 @@ def _level_values(lm: LevelMeans, values: Mapping[Any, Any] | None) -> np.ndarra
         missing = [lab for lab in lm.labels if lab not in values and str(lab) not in values]
         if missing:
             raise ExplorerError(f"values has no number for level(s) {missing} of {lm.factor!r}")
-        x = np.asarray([values.get(lab, values.get(str(lab))) for lab in lm.labels], dtype=float)
+        raw = [values.get(lab, values.get(str(lab))) for lab in lm.labels]
+        for lab, v in zip(lm.labels, raw):
+            if isinstance(v, (bool, np.bool_)) or not isinstance(v, (int, float, np.integer, np.floating)):
+                raise ExplorerError(f"values: the value of level {lab!r} must be a number, not {v!r}")
+        x = np.asarray(raw, dtype=float)
     if not np.all(np.isfinite(x)):
         raise ExplorerError(f"the level values of {lm.factor!r} must be finite numbers, not {x.tolist()}")
     return x

@@ -165,6 +165,10 @@ def check_options(kind: str, options: Mapping[str, Any]) -> None:
     if kind == "trend" and degree is not None and (isinstance(degree, bool) or not isinstance(degree, int)
                                                    or degree < 1):
         raise ExplorerError(f"the degree must be a whole number of at least 1, not {degree!r}")
+    if "lambdas" in options:
+        from ..inference.box_cox import check_lambdas
+
+        check_lambdas(options["lambdas"])
     if "trim" in options:
         _share(options["trim"], "trim (the share cut from each end)", 0.0, 0.5, open_low=False)
     if "confidence" in options:

@@ -425,8 +425,9 @@ class Study(PlannedAnalyses):
     def box_cox(self, *, lambdas: Sequence[float] | None = None, record: bool = True) -> Any:
         """Box-Cox profile likelihood of the power of the response under this model, with its interval
         (see :func:`explorer.inference.box_cox.box_cox`); kept with the planned analyses."""
-        return self._ask("box_cox", None, {"lambdas": None if lambdas is None else [float(v) for v in lambdas]},
-                         record)
+        chosen = lambdas if lambdas is None or isinstance(lambdas, (str, bytes)) or not hasattr(lambdas, "__iter__") \
+            else list(lambdas)
+        return self._ask("box_cox", None, {"lambdas": chosen}, record)
 
     def _record_choice(self, what: str, old: object, new: object) -> None:
         """Count a specification choice as one alternative analysis examined (kept in the ledger)."""
