@@ -4,8 +4,9 @@ Invented data: 2,000 levels, two rows each plus 20,000 spread at random (24,000 
 no real differences, so the noncentral-F interval has to be found near zero (where the
 root finder used to fail). References: scipy ``f_oneway`` (classic and Welch),
 ``kruskal``, ``levene``, ``bartlett``, ``ncf.cdf`` (the interval limits),
-``stats.t`` (pooled pairwise t) and statsmodels ``multipletests`` (Holm) on the same
-data. Memory is measured with ``tracemalloc`` (Python and numpy allocations).
+``stats.t`` (pooled pairwise t), statsmodels ``multipletests`` (Holm), and for a sample
+of Games-Howell pairs ``ttest_ind(equal_var=False)`` and ``studentized_range`` on the
+same data. Memory is measured with ``tracemalloc`` (Python and numpy allocations).
 """
 
 from __future__ import annotations
@@ -105,6 +106,27 @@ def test_deferred_pairwise_t_is_correct_when_read(big):
     assert np.allclose(table.statistic, t, rtol=1e-9)
     holm = multipletests(raw, method="holm")[1]
     assert np.allclose(table.pvalue, holm, rtol=1e-8, atol=1e-300)
+
+
+def test_deferred_games_howell_is_correct_when_read(big):
+    """Games-Howell at 2,000 levels (1,999,000 Welch df): read when asked; for a sample of pairs (the largest
+    |t| among them) the Welch t and df equal scipy ttest_ind(equal_var=False), the p-value scipy's
+    studentized_range.sf(sqrt(2)|t|, 2000, df) and the interval's half-width scipy's ppf / sqrt(2) times the SE."""
+    _, _, b, _, groups = big
+    table = b.games_howell
+    assert isinstance(table, PairwiseTable) and table.family_size == 1_999_000 and "games_howell" not in b.deferred
+    rng = np.random.default_rng(5)
+    pick = np.r_[rng.choice(table.family_size, 10, replace=False), np.argsort(-np.abs(table.statistic))[:2]]
+    i, j = np.triu_indices(2000, 1)
+    for m in pick:
+        ref = stats.ttest_ind(groups[i[m]], groups[j[m]], equal_var=False)
+        assert table.statistic[m] == pytest.approx(ref.statistic, rel=1e-9)
+        assert table.df[m] == pytest.approx(ref.df, rel=1e-9)
+        want = stats.studentized_range.sf(np.sqrt(2) * abs(ref.statistic), 2000, ref.df)
+        assert table.pvalue[m] == pytest.approx(want, rel=1e-7, abs=1e-15)
+    for m in pick[:2]:
+        half = stats.studentized_range.ppf(0.95, 2000, table.df[m]) / np.sqrt(2) * table.se[m]
+        assert table.ci_high[m] - table.difference[m] == pytest.approx(half, rel=1e-8)
 
 
 def test_studentized_range_in_blocks_equals_one_pass(monkeypatch):
