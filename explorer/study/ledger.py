@@ -28,13 +28,14 @@ multiverse analysis", Perspectives on Psychological Science 11(5), 702-712.
 
 from __future__ import annotations
 
+import numbers
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
 from ..engine.disclosure import Disclosure
 from ..engine.edits import Edit, check_utc_time, utc_now
-from ..engine.errors import ReplayError
+from ..engine.errors import EditError, ReplayError
 
 __all__ = ["KINDS", "Ledger", "LedgerEntry", "OLDER_FILE_NOTE", "choice_text"]
 
@@ -145,8 +146,8 @@ class Ledger:
 
     def record_search(self, what: str, count: int, *, origin: str = "") -> LedgerEntry:
         """A sensitivity search that examined ``count`` alternative analyses."""
-        if isinstance(count, bool) or int(count) != count or count < 0:
-            raise ValueError(f"a search examines a whole number of alternatives (0 or more), not {count!r}")
+        if isinstance(count, bool) or not isinstance(count, numbers.Real) or not float(count).is_integer() or count < 0:
+            raise EditError(f"a search examines a whole number of alternatives (0 or more), not {count!r}"[:300])
         return self._add(LedgerEntry("search", _text(what, "what"), utc_now(), int(count),
                                      origin=_text(origin, "origin")))
 
@@ -254,7 +255,7 @@ class Ledger:
 
 def _text(value: object, name: str) -> str:
     if not isinstance(value, str):
-        raise TypeError(f"the ledger's {name} must be text, not {type(value).__name__} ({value!r})"[:300])
+        raise EditError(f"the ledger's {name} must be text, not {type(value).__name__} ({value!r})"[:300])
     return value
 
 
