@@ -114,6 +114,7 @@ def results_by_type() -> dict[type, Any]:
             st.dunn(one.results), st.trimmed_means_test(one.results), st.hc3_tests(two.results),
             pair.results, st.welch_t(pair.results), st.mann_whitney(pair.results),
             two.results, two.decision, two.simple_effects("nozzle", within="speed"),
+            two.simple_effects("nozzle", within="speed").pairs(adjust="tukey"),
             gauge.results, gauge.measurement_system("part", "operator"), gauge.unit_deletion("part"),
             cure.results, cure.repeated_measures(), blocked.results, st.friedman(blocked.results),
             covariate.results, set_aside_scan(summary, record=False),

@@ -223,3 +223,24 @@ def test_pairs_tukey_per_level_on_the_crossover():
     assert pairs.confidence == pytest.approx(0.99) and pairs.alpha == pytest.approx(0.01)
     with pytest.raises(ExplorerError, match="adjust must be one of"):
         study.simple_effects("A", within="B").pairs(adjust="scheffe")
+
+
+def test_pairs_are_shown_beside_the_simple_effects_in_report_and_text():
+    """The report section, the text summary (command line) and the widget's table carry the Holm pairs with their
+    family stated; more than PAIRS_SHOWN comparisons are left to .pairs()."""
+    from explorer.inference.simple_effects import PAIRS_SHOWN
+    from explorer.report import report_html
+    from explorer.report.text_summary import summary_text
+
+    study = ex.Study(CROSSOVER, "y", ["A", "B"])
+    effects = study.simple_effects("A", within="B")
+    shown = effects.shown_pairs()
+    assert shown is not None and shown.adjustment == "holm"
+    assert shown.title in effects._repr_html_()
+    assert shown.title in report_html(study, charts=False).replace("&#x27;", "'")
+    assert shown.title in summary_text(study, cautions=False)
+    grid = pd.MultiIndex.from_product([[f"a{i:02d}" for i in range(12)], ["b1", "b2"], range(2)],
+                                      names=["A", "B", "r"]).to_frame(index=False)
+    grid["y"] = np.random.default_rng(0).normal(size=len(grid))
+    many = ex.Study(grid, "y", ["A", "B"]).simple_effects("A", within="B")
+    assert 2 * 66 > PAIRS_SHOWN and many.shown_pairs() is None and len(many.pairs().to_frame()) == 132

@@ -22,7 +22,7 @@ OVERALL_TESTS: dict[str, str] = {
     "welch": "Welch F (unequal variances)",
     "brown-forsythe": "Brown-Forsythe F* (unequal variances, Mehrotra df)",
     "kruskal": "Kruskal-Wallis H (ranks)",
-    "permutation": "permutation F (9999 seeded permutations)",
+    "permutation": "permutation F (up to 9999 seeded orderings, sequential)",
 }
 #: Short names of the overall tests, as a decision states them.
 TEST_LABELS: dict[str, str] = {

@@ -56,12 +56,14 @@ from ..engine.tables import html_table
 from ..formatting import show_p, show_ss
 from ..rendering import block, html_repr
 
-__all__ = ["ADJUSTMENTS", "PAIR_ADJUSTMENTS", "SimpleEffects", "SimplePairs", "simple_effects"]
+__all__ = ["ADJUSTMENTS", "PAIR_ADJUSTMENTS", "PAIRS_SHOWN", "SimpleEffects", "SimplePairs", "simple_effects"]
 
 #: Family-wise adjustments offered for the tests at the levels of the second factor.
 ADJUSTMENTS = {"holm": "Holm (1979) step-down", "bonferroni": "Bonferroni", "none": "none (each test at alpha)"}
 #: Adjustments offered for the pairwise comparisons within the simple effects.
 PAIR_ADJUSTMENTS = {**ADJUSTMENTS, "tukey": "Tukey-Kramer (studentized range)"}
+#: Most pairwise comparisons shown beside the simple effects (more: ``.pairs()`` lists them).
+PAIRS_SHOWN = 60
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -253,8 +255,20 @@ class SimpleEffects:
         cap = (f"Simple effects of {self.factor} at each level of {self.within} (full model's residual mean square, "
                f"{self.df_den} df; {ADJUSTMENTS[self.adjustment]} adjustment over {self.family_size} tests)")
         pct = f"{self.confidence:.0%}"
-        return block("simple-effects", [html_table(self.to_frame(), cap, self.notes),
-                                        html_table(self.cells, f"Cell means (least squares) with {pct} intervals")])
+        parts = [html_table(self.to_frame(), cap, self.notes),
+                 html_table(self.cells, f"Cell means (least squares) with {pct} intervals")]
+        shown = self.shown_pairs()
+        if shown is not None:
+            parts.append(html_table(shown.to_frame(), shown.title, shown.notes))
+        return block("simple-effects", parts)
+
+    def shown_pairs(self) -> SimplePairs | None:
+        """The pairs shown beside the simple effects (Holm over one family), or ``None`` when there are more
+        than :data:`PAIRS_SHOWN` comparisons (``.pairs()`` lists them)."""
+        a, b = len(self.factor_levels), len(self.levels)
+        if a < 2 or b * a * (a - 1) // 2 > PAIRS_SHOWN:
+            return None
+        return self.pairs()
 
 
 def _layout(results: Results) -> tuple[tuple[str, ...], list[tuple[str, ...]], np.ndarray]:

@@ -47,8 +47,12 @@ def _simple_effects_text(study: "Study") -> list[str]:
         effects = study.simple_effects(pair[0], within=pair[1])
     except ExplorerError as exc:
         return ["", _heading("Simple effects"), f"not available: {exc}"]
-    return ["", _heading(f"Simple effects of {pair[0]} at each level of {pair[1]}"),
-            frame_text(effects.to_frame()), *effects.verdicts(), "Cell means:", frame_text(effects.cells), *effects.notes]
+    out = ["", _heading(f"Simple effects of {pair[0]} at each level of {pair[1]}"),
+           frame_text(effects.to_frame()), *effects.verdicts(), "Cell means:", frame_text(effects.cells), *effects.notes]
+    shown = effects.shown_pairs()
+    if shown is not None:
+        out += [f"{shown.title}:", frame_text(shown.to_frame()), *shown.notes]
+    return out
 
 
 def summary_text(study: "Study", *, cautions: bool = True) -> str:
