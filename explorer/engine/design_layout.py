@@ -42,7 +42,10 @@ def layout_notes(layout: CellLayout, cell_n: np.ndarray, spec: ModelSpec) -> tup
     idx = [layout.columns.index(f) for f in factors]
     sizes = [layout.n_levels[i] for i in idx]
     possible = int(np.prod(sizes))
-    treat, treat_code = np.unique(layout.cell_levels[:, idx], axis=0, return_inverse=True)
+    key = np.zeros(layout.n_cells, dtype=np.int64)
+    for i, k in zip(idx, sizes):  # mixed-radix code: sorts as the level combinations do
+        key = key * int(k) + layout.cell_levels[:, i]
+    treat, treat_code = np.unique(key, return_inverse=True)
     treat_code = treat_code.reshape(-1)
     observed = treat.shape[0]
     notes: list[str] = []
@@ -54,7 +57,8 @@ def layout_notes(layout: CellLayout, cell_n: np.ndarray, spec: ModelSpec) -> tup
         )
     for b in spec.blocks:
         j = layout.columns.index(b)
-        pairs = np.unique(np.stack([layout.cell_levels[:, j], treat_code], axis=1), axis=0)
+        both = np.unique(layout.cell_levels[:, j] * observed + treat_code)
+        pairs = np.stack(np.divmod(both, observed), axis=1)
         per_block = np.bincount(pairs[:, 0], minlength=layout.n_levels[j])
         per_treat = np.bincount(pairs[:, 1], minlength=observed)
         if int(per_block.max()) < observed:
