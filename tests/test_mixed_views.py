@@ -61,6 +61,21 @@ def test_profile_chart_has_one_line_per_subject_and_pickable_rows():
     assert any(p.get("name") == "pick" for p in params)
 
 
+def test_profile_chart_draws_a_coloured_line_per_subject():
+    """Rendered offline by vl-convert: one line mark per subject, each with a stroke colour (the lines' group scale
+    and the points' row-state scale are independent; shared, the lines had no colour and did not show)."""
+    import re
+
+    vlc = pytest.importorskip("vl_convert")
+    from explorer.charts.mixed import profile_chart
+
+    study = ex.Study(rm_frame(), "y", ["group", "time"], subject="panel", within=["time"])
+    svg = vlc.vegalite_to_svg(profile_chart(study).to_dict())
+    lines = re.findall(r'<path[^>]*aria-roledescription="line mark"[^>]*>', svg)
+    assert len(lines) == 10
+    assert all(re.search(r'stroke="#[0-9a-f]{6}"', p) for p in lines)
+
+
 def test_panels_build_for_mixed_and_fixed_studies():
     from explorer.widget import Explorer
     from explorer.widget.panels import PANELS

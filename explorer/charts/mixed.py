@@ -112,6 +112,8 @@ def profile_chart(study: Study, within: str | None = None, *, width: int = WIDTH
     points = row_marks(base.encode(x=x, y=alt.Y("y:Q")), pick,
                        [alt.Tooltip("row:N"), alt.Tooltip("subject:N"), alt.Tooltip("level:N"),
                         alt.Tooltip("y:Q", format=".4g")], size=30, legend=False)
-    chart = alt.layer(lines, points).properties(width=width, height=height)
+    # the lines' colours (groups) and the points' (row state) are two scales: shared, the points' explicit
+    # domain would leave the groups without a colour and the lines undrawn
+    chart = alt.layer(lines, points).resolve_scale(color="independent").properties(width=width, height=height)
     return finish(chart, f"Each {spec.subject} across {w}",
                   "Lines join each subject's means; click a point to pick its row.")

@@ -8,6 +8,7 @@ cells, not the number of rows.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from itertools import product
@@ -57,6 +58,8 @@ class CellLayout:
 
     def missing_combinations(self, columns: Sequence[str]) -> list[tuple[str, ...]]:
         """Level combinations of ``columns`` that no kept row has (empty cells of that sub-table)."""
+        if self.n_cells == math.prod(len(lv) for lv in self.levels):
+            return []  # every combination of every column is observed, so every sub-table is complete
         idx = [self.columns.index(c) for c in columns]
         seen = {tuple(row) for row in self.cell_levels[:, idx].tolist()}
         sizes = [range(len(self.levels[j])) for j in idx]

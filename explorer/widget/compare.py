@@ -103,8 +103,10 @@ def comparison_html(study: Study) -> str:
     if moved:
         items = "; ".join(esc(m.describe()) for m in moved[:12]) + ("…" if len(moved) > 12 else "")
         left += f"<div class='vx-small vx-moved'>Moved to another level now: {len(moved)} row(s): {items}</div>"
+    # Four columns, but its labels and marked changes are long: it turns to tiles at the width a
+    # five-column table does (at 800 px with the file browser open it overflowed as a table).
     return (
-        f"<div class='vx-compare'><table class='vx-table vx-cols-4'><thead>{head}</thead>"
+        f"<div class='vx-compare'><table class='vx-table vx-cols-5'><thead>{head}</thead>"
         f"<tbody>{''.join(rows)}</tbody></table>{flip}{left}"
         f"<div class='vx-small'>{disclosure_html(study)}</div></div>"
     )

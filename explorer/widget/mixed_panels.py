@@ -76,12 +76,14 @@ class RolePickers(W.VBox):
             role = ("subject" if c == spec.subject else "within" if c in spec.within else
                     "nested in" if c in nest else "random" if c in spec.random else "fixed")
             self.pickers[c] = W.Dropdown(options=list(ROLES), value=role, description=c,
-                                         layout=W.Layout(width="260px"), style={"description_width": "110px"})
+                                         layout=W.Layout(width="260px", max_width="100%"),
+                                         style={"description_width": "110px"})
             others = [o for o in columns if o != c]
             self.parents[c] = W.Dropdown(options=[""] + others, value=(nest.get(c) or ("",))[0],
-                                         description="in", layout=W.Layout(width="170px"),
+                                         description="in", layout=W.Layout(width="170px", max_width="100%"),
                                          style={"description_width": "30px"})
-            rows.append(W.HBox([self.pickers[c], self.parents[c]]))
+            # side by side where they fit, the parent picker under the role picker in a narrow card
+            rows.append(W.HBox([self.pickers[c], self.parents[c]], layout=W.Layout(flex_flow="row wrap")))
         self.apply_button = W.Button(description="Apply roles", button_style="primary")
         self.status = W.HTML()
         self.apply_button.on_click(lambda _: self.apply())

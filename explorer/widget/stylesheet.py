@@ -89,7 +89,7 @@ def stylesheet() -> str:
 .vx-explorer .vx-level-row {{ display: flex; flex-wrap: wrap; gap: 2px 6px; align-items: center; }}
 .vx-explorer .vx-level-row .widget-html {{ flex: 1 1 150px; min-width: 0; }}
 {RESULTS_STYLESHEET}.vx-table tr.vx-diff td {{ background: #fff1df; }}
-.vx-table td.vx-mark {{ color: #b35c00; font-weight: 600; text-align: left; }}
+.vx-table td.vx-mark {{ color: #b35c00; font-weight: 600; text-align: left; overflow-wrap: anywhere; }}
 .vx-decision-flip {{ color: #9b1c1c; font-weight: 700; }}
 .vx-explorer .vx-chart-note {{ font-size: 12px; color: #555; margin: 0 0 2px 4px; }}
 .vx-status-error {{ color: #9b1c1c; font-weight: 600; }}

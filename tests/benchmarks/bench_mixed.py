@@ -2,7 +2,8 @@
 
 Cases (median wall time of one edit + recompute; every figure from its own process):
   msa-balanced     10 parts x 3 operators x 3 repeats. Ours: drop (or restore) a whole
-                   part - the design stays balanced, closed-form moment estimates -
+                   part - the layout stays complete and balanced, so the fit takes the
+                   closed-form path (engine/balanced.py) and moment estimates -
                    + study.results + study.measurement_system(). Reference:
                    statsmodels ols + anova_lm on the edited table + the balanced
                    variance-component algebra by hand (the cheapest statsmodels route).
