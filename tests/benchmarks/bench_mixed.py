@@ -20,8 +20,9 @@ Cases (median wall time of one edit + recompute; every figure from its own proce
 Each reference runs pinned to one BLAS thread (OPENBLAS/OMP/MKL_NUM_THREADS=1) and
 again with the default threads; ours runs pinned to one thread. Rounds are
 interleaved (ours, reference 1 thread, reference default, ours, ...); the script prints
-the median over rounds, each process's peak resident memory, and the load average
-before and after. Targets: balanced (closed form) reference/ours >= 20; random-intercept
+the median over rounds (wall time, and the process's CPU time per call, which other
+jobs on a loaded machine disturb less), each process's peak resident memory, and the
+load average before and after. Targets: balanced (closed form) reference/ours >= 20; random-intercept
 reference/ours >= 1.
 
 Run: python tests/benchmarks/bench_mixed.py [--rounds 5] [--repeats 9]
@@ -36,6 +37,7 @@ import resource
 import statistics
 import subprocess
 import sys
+import time
 import warnings
 from pathlib import Path
 
@@ -141,12 +143,23 @@ def _reference(case: str):
     return step
 
 
+def _median_cpu(fn, repeats: int) -> float:
+    """Median CPU time of the process over ``repeats`` calls (less sensitive to other jobs than wall time)."""
+    times = []
+    for _ in range(repeats):
+        t0 = time.process_time()
+        fn()
+        times.append(time.process_time() - t0)
+    return statistics.median(times)
+
+
 def worker(case: str, side: str, repeats: int) -> None:
     fn = _ours(case) if side == "ours" else _reference(case)
     fn()  # warm
     t = median_time(fn, repeats)
+    cpu = _median_cpu(fn, repeats)
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024  # MiB on Linux
-    print(json.dumps({"seconds": t, "peak_mib": peak}))
+    print(json.dumps({"seconds": t, "cpu_seconds": cpu, "peak_mib": peak}))
 
 
 def _run(case: str, side: str, threads: str, repeats: int) -> dict:
@@ -181,18 +194,24 @@ def main() -> None:
             runs["ref1"].append(_run(case, "reference", "1", ref_repeats))
             runs["refdef"].append(_run(case, "reference", "default", ref_repeats))
         med = {k: statistics.median(r["seconds"] for r in v) for k, v in runs.items()}
+        cpu = {k: statistics.median(r["cpu_seconds"] for r in v) for k, v in runs.items()}
+        spread = {k: (min(r["seconds"] for r in v), max(r["seconds"] for r in v)) for k, v in runs.items()}
         mem = {k: max(r["peak_mib"] for r in v) for k, v in runs.items()}
         rows.append({
             "case": case, "ours ms": med["ours"] * 1e3,
             "statsmodels ms (1 thread)": med["ref1"] * 1e3, "statsmodels ms (default threads)": med["refdef"] * 1e3,
             "ratio (1 thread)": med["ref1"] / med["ours"], "ratio (default threads)": med["refdef"] / med["ours"],
+            "ours ms, min-max of rounds": f"{spread['ours'][0] * 1e3:.2f}-{spread['ours'][1] * 1e3:.2f}",
+            "CPU ms ours / statsmodels 1 thread": f"{cpu['ours'] * 1e3:.2f} / {cpu['ref1'] * 1e3:.2f}",
+            "CPU ratio (1 thread)": cpu["ref1"] / cpu["ours"],
             "ours peak MiB": mem["ours"], "statsmodels peak MiB": mem["ref1"],
         })
-    pd.set_option("display.width", 200)
+    pd.set_option("display.width", 320)
     print(pd.DataFrame(rows).to_string(index=False, float_format=lambda x: f"{x:,.2f}"))
     print(f"load average after: {os.getloadavg()}")
     print("medians over interleaved rounds; each figure from a fresh process (peak memory includes imports); "
-          "ratio > 1: we are faster")
+          "ratio > 1: we are faster; CPU: the process's CPU time per call (on a loaded machine wall time "
+          "favours the side whose calls are shorter, since a long call is interrupted more often)")
 
 
 if __name__ == "__main__":
