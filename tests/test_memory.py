@@ -11,6 +11,7 @@ bits: the path to a view must not change its numbers).
 from __future__ import annotations
 
 import gc
+import json
 import tracemalloc
 
 import numpy as np
@@ -185,3 +186,50 @@ def test_fingerprints_and_row_digests_are_unchanged_by_the_faster_build(index):
         fingerprint, digests = _fingerprint_by_frame(ds, frame, factors)
         assert ds.fingerprint == fingerprint
         assert np.array_equal(ds.row_digests, digests)
+
+
+def test_study_file_size_does_not_grow_with_the_rows(tmp_path):
+    sizes = {}
+    for n in (5_000, 50_000):
+        frame = _frame(n)
+        study = ex.Study(frame, "y", "g")
+        study.drop([3, 4], reason="smudged")
+        path = study.save(tmp_path / f"s{n}.study.json")
+        sizes[n] = path.stat().st_size
+        doc = json.loads(path.read_text())
+        assert "row_check" not in doc["data"] and doc["data"]["block_check"]["rows"] == n
+        again = ex.Study.load(path, frame)
+        assert again.results.pvalue() == study.results.pvalue() and again.dropped == (3, 4)
+    assert sizes[50_000] < sizes[5_000] + 200  # the same 1024 blocks, only longer numbers
+
+
+def test_changed_data_are_located_by_block(tmp_path):
+    n = 8_000
+    frame = _frame(n)
+    study = ex.Study(frame, "y", "g")
+    path = study.save(tmp_path / "s.study.json")
+    changed = frame.copy()
+    changed.loc[5000, "y"] += 1.0
+    with pytest.raises(ex.ReplayError, match=r"values changed within the rows \d+\.\.\d+") as err:
+        ex.Study.load(path, changed)
+    import re
+
+    lo, hi = (int(x) for x in re.search(r"values changed within the rows (\d+)\.\.(\d+)", str(err.value)).groups())
+    assert lo <= 5000 <= hi and hi - lo < n / 1024 + 1
+    fewer = frame.drop(index=[7_990])
+    with pytest.raises(ex.ReplayError, match=f"{n} rows then, {n - 1} now"):
+        ex.Study.load(path, fewer)
+    relabelled = frame.rename(index={100: 10**9})
+    with pytest.raises(ex.ReplayError, match="row ids differ within the rows now named"):
+        ex.Study.load(path, relabelled)
+
+
+def test_block_digests_of_the_wrong_length_are_refused(tmp_path):
+    frame = _frame(3_000)
+    path = ex.Study(frame, "y", "g").save(tmp_path / "s.study.json")
+    doc = json.loads(path.read_text())
+    doc["data"]["block_check"]["digests"] = "AAAA"
+    bad = tmp_path / "bad.study.json"
+    bad.write_text(json.dumps(doc))
+    with pytest.raises(ex.ReplayError, match="data.block_check.digests: holds 3 bytes"):
+        ex.Study.load(bad, frame)

@@ -26,7 +26,7 @@ from .errors import ColumnError, DataError, EditError, closest_names, preview
 from .loading import read_table
 from .numerics import read_only
 from .response_unit import rescale, safe_unit, unit_exponent, unit_note
-from .row_hash import row_hashes
+from .row_hash import block_digests, row_hashes
 from .table_checks import check_response_values, column_names, decimal_comma_hint, refuse_text_collisions, text_columns
 
 __all__ = ["Dataset", "SetAsideRow", "RowId", "build_dataset", "level_label", "natural_key", "decode_digests", "encode_digests"]
@@ -108,6 +108,8 @@ class Dataset:
     fingerprint: str
     row_digests: np.ndarray
     all_row_ids: np.ndarray
+    #: Per block of consecutive rows (:func:`.row_hash.block_digests`): digests of the ids and of the whole rows.
+    block_digests: np.ndarray = field(default_factory=lambda: np.zeros((0, 2), dtype=np.uint64), repr=False)
     id_column: str | None = None
     notes: tuple[str, ...] = field(default=())
     unit_exponent: int = 0
@@ -394,7 +396,9 @@ def build_dataset(
         codes[f], levels[f] = read_only(per_value[raw]), tuple(order)
 
     row_ids = read_only(ids[usable])
-    hashed = row_hashes(ids, yv, frame, factors, cov_values)
+    hashed, id_hashed = row_hashes(ids, yv, frame, factors, cov_values)
+    blocks = block_digests(hashed, id_hashed)
+    del id_hashed
     head = f"{response}|{'|'.join(factors)}|{len(frame)}".encode()
     if cov_values:  # files of studies without covariates keep their fingerprints
         head += f"|covariates {'|'.join(cov_values)}".encode()
@@ -424,6 +428,7 @@ def build_dataset(
         source=source,
         fingerprint=fingerprint,
         row_digests=(hashed & 0xFFFFFFFF).astype(np.uint32),
+        block_digests=read_only(blocks),
         all_row_ids=ids,
         id_column=id_column,
         notes=tuple(notes),

@@ -14,12 +14,16 @@ pandas.util.hash_array and hash_pandas_object (SipHash-2-4 of each value's UTF-8
 
 from __future__ import annotations
 
+import hashlib
 from collections.abc import Mapping, Sequence
 
 import numpy as np
 import pandas as pd
 
-__all__ = ["row_hashes"]
+__all__ = ["row_hashes", "block_digests", "BLOCKS", "block_bounds"]
+
+#: How many blocks of consecutive rows a study file keeps a digest of (its size does not grow with the rows).
+BLOCKS = 1024
 
 
 _MISSING = np.uint64(np.iinfo(np.uint64).max)  # what pandas gives a missing value
@@ -71,15 +75,37 @@ def _combine(hashes: Sequence[np.ndarray]) -> np.ndarray:
 
 
 def row_hashes(ids: np.ndarray, y: np.ndarray, frame: pd.DataFrame, factors: Sequence[str],
-               covariates: Mapping[str, np.ndarray]) -> np.ndarray:
-    """The 64-bit hash of every row of ``frame`` (all rows, set-aside ones included)."""
+               covariates: Mapping[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """The 64-bit hash of every row of ``frame`` (all rows, set-aside ones included), and of its id alone."""
     if ids.dtype.kind in "iu":
         id_text = _int_text(ids)
     else:
         id_text = np.array([str(i) for i in ids.tolist()], dtype=object)
     with np.errstate(over="ignore"):
-        cols = [_text_hash(id_text), np.asarray(pd.util.hash_array(np.asarray(y, dtype=np.float64)), dtype=np.uint64)]
+        id_hash = _text_hash(id_text)
+        del id_text
+        cols = [id_hash, np.asarray(pd.util.hash_array(np.asarray(y, dtype=np.float64)), dtype=np.uint64)]
         cols += [_column_text_hash(frame[f]) for f in factors]
         cols += [np.asarray(pd.util.hash_array(np.asarray(v, dtype=np.float64)), dtype=np.uint64)
                  for v in covariates.values()]
-        return _combine(cols)
+        return _combine(cols), id_hash
+
+
+def block_bounds(rows: int, blocks: int = BLOCKS) -> np.ndarray:
+    """Start positions of ``min(rows, blocks)`` blocks of consecutive rows, and ``rows`` at the end."""
+    count = max(min(rows, blocks), 1)
+    bounds: np.ndarray = np.linspace(0, rows, count + 1).round().astype(np.int64)
+    return bounds
+
+
+def block_digests(row_hash: np.ndarray, id_hash: np.ndarray, blocks: int = BLOCKS) -> np.ndarray:
+    """Per block of consecutive rows: an 8-byte digest (SHA-256) of the rows' ids and one of the whole rows,
+    as a (blocks, 2) uint64 array; a changed block names where the data changed without a digest per row."""
+    bounds = block_bounds(row_hash.size, blocks)
+    out = np.zeros((bounds.size - 1, 2), dtype=np.uint64)
+    ids_le, rows_le = id_hash.astype("<u8"), row_hash.astype("<u8")
+    for b in range(bounds.size - 1):
+        lo, hi = int(bounds[b]), int(bounds[b + 1])
+        out[b, 0] = int.from_bytes(hashlib.sha256(ids_le[lo:hi].tobytes()).digest()[:8], "little")
+        out[b, 1] = int.from_bytes(hashlib.sha256(rows_le[lo:hi].tobytes()).digest()[:8], "little")
+    return out

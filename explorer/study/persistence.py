@@ -3,11 +3,16 @@
 File layout (schema 2)::
 
     {"format": "variance-explorer/study", "schema": 2, "spec": {...},
-     "data": {"source", "fingerprint", "rows", "id_source", "row_check": {"ids", "digests"}},
+     "data": {"source", "fingerprint", "rows", "id_source", "block_check": {"rows", "digests"}},
      "edits": [{"kind": ..., "reason": ..., "at": ..., ...}, ...],
      "position": k, "comparisons": "tukey-kramer",
      "ledger": {"complete": true, "entries": [{"kind", "what", "at", "count", ...}, ...]}}
 
+``row_check`` (tables of at most 1024 rows) holds each row id and a 32-bit digest of its row;
+larger tables get ``block_check`` instead: two 8-byte digests (the ids; the whole rows) of
+each of 1024 blocks of consecutive rows, so the file's size stops growing with the table.
+When the data differ, the blocks whose digests differ say where, and the ids of the rows
+there are read from the data given.
 ``position`` is the undo cursor: edits after it were undone but are kept for redo.
 ``ledger`` is the whole record (:mod:`.ledger`): every edit made, undone ones included
 (also those a later edit replaced on the redo branch), every undo, redo, reset,
@@ -28,9 +33,12 @@ import stat
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from ..engine.dataset import Dataset, decode_digests, encode_digests
 from ..engine.edits import Edit, check_utc_time, edit_from_dict
 from ..engine.errors import ReplayError, preview
+from ..engine.row_hash import BLOCKS, block_bounds
 from ..engine.spec import ModelSpec
 from .ledger import Ledger
 from .schema_check import SCHEMA_FILES, first_violation, load_schema
@@ -55,13 +63,22 @@ def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position
             "rows": int(len(dataset.table)),
             "id_source": dataset.id_source,
             "id_column": dataset.id_column,
-            "row_check": encode_digests(dataset.all_row_ids, dataset.row_digests),
+            **_row_check(dataset),
         },
         "edits": [e.to_dict() for e in edits],
         "position": position,
         "comparisons": comparisons,
         "ledger": ledger.to_dict(),
     }
+
+
+def _row_check(dataset: Dataset) -> dict[str, Any]:
+    """A digest per row id for tables of at most :data:`~explorer.engine.row_hash.BLOCKS` rows (a mismatch names
+    each row), else digests of that many blocks of rows (the file's size stops growing with the table)."""
+    if len(dataset.table) <= BLOCKS:
+        return {"row_check": encode_digests(dataset.all_row_ids, dataset.row_digests)}
+    return {"block_check": {"rows": int(len(dataset.table)),
+                            "digests": base64.b64encode(dataset.block_digests.astype("<u8").tobytes()).decode()}}
 
 
 def ledger_from_doc(doc: dict[str, Any], edits: list[Edit], position: int) -> Ledger:
@@ -201,6 +218,16 @@ def check_study_doc(doc: Any, format_marker: str = FORMAT, name: str = "the stud
         check_utc_time(edit["at"], f"{name}: edits[{i}].at")
     if "ledger" in doc:  # its times, each edit's saved form, and counts that cover the log
         check_ledger(Ledger.from_dict(doc["ledger"], f"{name}: ledger"), len(doc["edits"]), position, name)
+    blocks = doc["data"].get("block_check")
+    if blocks is not None:
+        try:
+            raw = base64.b64decode(blocks["digests"], validate=True)
+        except (binascii.Error, ValueError) as exc:
+            raise ReplayError(f"{name}: data.block_check.digests: not valid base64 ({exc})") from None
+        expected = 16 * (len(block_bounds(blocks["rows"])) - 1)
+        if len(raw) != expected:
+            raise ReplayError(f"{name}: data.block_check.digests: holds {len(raw)} bytes, not the {expected} of "
+                              f"{expected // 16} blocks of {blocks['rows']} rows")
     check = doc["data"].get("row_check")
     if check is not None:
         try:
@@ -228,6 +255,8 @@ def describe_mismatch(doc: dict[str, Any], dataset: Dataset) -> str | None:
     data = doc["data"]
     if data.get("fingerprint") == dataset.fingerprint:
         return None
+    if "block_check" in data:
+        return _describe_blocks(data, dataset)
     saved = decode_digests(data["row_check"]) if "row_check" in data else {}
     now = {i: int(d) for i, d in zip([x for x in dataset.all_row_ids.tolist()], dataset.row_digests.tolist())}
     missing = [r for r in saved if r not in now]
@@ -243,3 +272,42 @@ def describe_mismatch(doc: dict[str, Any], dataset: Dataset) -> str | None:
     if not (missing or added or changed):
         parts.append("the response or factor columns differ")
     return "; ".join(parts)
+
+
+def _describe_blocks(data: dict[str, Any], dataset: Dataset) -> str:
+    """What differs, from the saved block digests and those of the data given (rows read from the data)."""
+    rows_then, rows_now = int(data["block_check"]["rows"]), int(len(dataset.table))
+    raw = base64.b64decode(data["block_check"]["digests"])
+    saved = np.frombuffer(raw, dtype="<u8").reshape(-1, 2)
+    parts = [f"the data differ from those the log was saved on ({data.get('rows', rows_then)} rows then, {rows_now} now)"]
+    if rows_then != rows_now:
+        now = dataset.block_digests
+        same = 0
+        while same < min(len(saved), len(now)) and bool(np.all(saved[same] == now[same])):
+            same += 1
+        if same and len(saved) == len(now):
+            start = int(block_bounds(rows_now)[same])
+            parts.append(f"the first {start} rows (positions 0..{start - 1}) are as saved")
+        return "; ".join(parts)
+    now = dataset.block_digests
+    bounds = block_bounds(rows_now)
+    ids_differ = [b for b in range(len(now)) if saved[b, 0] != now[b, 0]]
+    values_differ = [b for b in range(len(now)) if saved[b, 0] == now[b, 0] and saved[b, 1] != now[b, 1]]
+    ids = dataset.all_row_ids
+
+    def where(blocks: list[int]) -> str:
+        spans = [f"{_py_id(ids[int(bounds[b])])}..{_py_id(ids[int(bounds[b + 1]) - 1])}" for b in blocks[:4]]
+        more = f" and {len(blocks) - 4} more blocks" if len(blocks) > 4 else ""
+        return ", ".join(spans) + more
+
+    if ids_differ:
+        parts.append(f"row ids differ within the rows now named {where(ids_differ)}")
+    if values_differ:
+        parts.append(f"values changed within the rows {where(values_differ)}")
+    if not (ids_differ or values_differ):
+        parts.append("the response or factor columns differ")
+    return "; ".join(parts)
+
+
+def _py_id(v: Any) -> Any:
+    return v.item() if isinstance(v, np.generic) else v
