@@ -133,6 +133,7 @@ def test_one_factor_surfaces_under_each_test(test, capsys, tmp_path):
         assert any(n.startswith("Test: " + HOW[test]) for n in scan.notes), type(scan).__name__
     sweep = study.robustness_sweep(record=False, transforms=["none"])
     assert sweep.test == test and sweep.default_pvalue == pytest.approx(d.pvalue, rel=1e-12)
+    assert any("seeded orderings" in n for n in sweep.notes) == (test == "permutation")
     assert f"Decision ({d.method}): {d.sentence()}" in summary_text(study, cautions=False)
     out = _cli_check(capsys, tmp_path, RANKS_DISAGREE, ["g"], test)
     assert d.sentence() in out and d.method in out

@@ -54,7 +54,7 @@ from ..engine.results import Results
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
 from ..formatting import result_frame, show_p
-from ..inference.omnibus import overall_test
+from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 from ..rendering import html_repr
 from .alternatives import OnewayInput
 from .case_deletion import nullable
@@ -73,6 +73,10 @@ from .sweep_choices import (
     transformed_responses,
 )
 from .sweep_coincide import distinct_analyses
+
+#: How the sweep computes a permutation specification.
+_HOW_SWEPT = (f"up to {PERMUTATIONS} seeded orderings, seed {PERMUTATION_SEED}, drawn until its decision at the "
+              "study's alpha is settled")
 
 __all__ = ["OUTLIER_RULES", "TESTS", "TRANSFORMS", "SweepResult", "robustness_sweep"]
 
@@ -283,6 +287,8 @@ def robustness_sweep(
         raise ExplorerError("the robustness sweep has no analysis to run: " + " ".join(notes))
     notes.insert(0, f"Scored: the decision on {name}; the default specification is the study's own analysis "
                     f"({tests[0]} test).")
+    if "permutation" in tests:
+        notes.append(f"Test: each permutation specification is a fresh permutation F of its own rows ({_HOW_SWEPT}).")
     every = pd.DataFrame(rows)
     table, coincide = distinct_analyses(every)
     notes.extend(coincide)
