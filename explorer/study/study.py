@@ -78,6 +78,19 @@ class StudyEvent:
     position: int
 
 
+def _set_aside_hint(dataset: Dataset) -> str:
+    """'. N row(s) were set aside at load ...' when rows were set aside for missing values (else '')."""
+    aside = getattr(dataset, "set_aside", ())
+    if not aside:
+        return ""
+    counts: dict[str, int] = {}
+    for row in aside:
+        for why in str(row.reason).split("; "):
+            counts[why] = counts.get(why, 0) + 1
+    said = ", ".join(f"{why}: {n}" for why, n in sorted(counts.items(), key=lambda kv: -kv[1])[:4])
+    return f". {len(aside)} row(s) were set aside at load for missing values ({said}); see study.set_aside"
+
+
 class Study(PlannedAnalyses):
     """An analysis of variance whose data can be edited, with every edit logged.
 
@@ -165,8 +178,11 @@ class Study(PlannedAnalyses):
         self.edits_not_carried: tuple[Edit, ...] = ()  # edits respecify could not carry over
         self._listeners: list[Callable[["Study", StudyEvent], None]] = []
         self._planned = []  # planned analyses asked for (see explorer.study.planned)
-        self._forget_results()
-        self._results[0] = self._base[2].results
+        try:
+            self._forget_results()
+            self._results[0] = self._base[2].results
+        except DesignError as exc:
+            raise DesignError(f"{exc}{_set_aside_hint(dataset)}") from None
 
     @classmethod
     def from_dataset(cls, dataset: Dataset, spec: ModelSpec, *, baseline: DataView | None = None) -> "Study":
