@@ -59,7 +59,8 @@ HOW = {
                     f"(seed {PERMUTATION_SEED}), drawn until every alternative's decision at alpha is settled "
                     f"(sequential rule, resampling risk at most {RESAMPLING_RISK:g} each) or all are drawn; "
                     "for a row left out, every ordering with the row's value taken out (and, when it landed "
-                    "in another level, the first value of its own level's block moved into its place)"),
+                    "in another level, the first value of its own level's block moved into its place); "
+                    "each p's Monte Carlo SE is sqrt(p (1 - p) / L), L the orderings drawn"),
 }
 
 
