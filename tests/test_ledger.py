@@ -363,3 +363,22 @@ def test_summary_study_choices_and_file_keep_the_ledger(tmp_path):
     assert len(s.results.partition.rows) == 4 and _counts(s) == (1, 2, 1, 2)
     back = ex.SummaryStudy.load(s.save(tmp_path / "s.json"), frame)
     assert _counts(back) == (1, 2, 1, 2) and back.ledger.to_dict() == s.ledger.to_dict()
+
+
+def test_running_tallies_equal_the_entries_summed():
+    """The counts are kept as entries come (a read costs the same at any length); they equal the sums."""
+    study = _study()
+    study.drop([6], reason="a")
+    study.undo()
+    study.redo()
+    study.reset()
+    study.record_search("scan", 9)
+    with pytest.raises(ex.ExplorerError), study.all_or_nothing():
+        study.drop([7], reason="b")
+        study.drop(["no such row"], reason="c")
+    for ledger in (study.ledger, study.ledger.copy(), Ledger.from_dict(study.ledger.to_dict())):
+        entries = ledger.entries
+        assert ledger.edits_made == sum(e.kind == "edit" for e in entries) == 1
+        assert ledger.undos == sum(e.count for e in entries if e.kind in ("undo", "reset")) == 2
+        assert ledger.redos == 1
+        assert ledger.specifications == sum(e.count for e in entries if e.kind in ("search", "specification")) == 9

@@ -118,10 +118,12 @@ class Ledger:
     def __init__(self, entries: Iterable[LedgerEntry] = (), *, complete: bool = True) -> None:
         self._entries: list[LedgerEntry] = list(entries)
         self.complete = complete
+        self._tally = _tally(self._entries)  # edits made, undone, redone, alternatives: kept as entries come
 
     # ----------------------------------------------------------------- recording
     def _add(self, entry: LedgerEntry) -> LedgerEntry:
         self._entries.append(entry)
+        self._tally = _tally([entry], self._tally)
         return entry
 
     def record_edit(self, edit: Edit, *, origin: str = "") -> LedgerEntry:
@@ -163,21 +165,21 @@ class Ledger:
     @property
     def edits_made(self) -> int:
         """Every edit ever applied, undone ones included (redos are not new edits)."""
-        return sum(1 for e in self._entries if e.kind == "edit")
+        return self._tally[0]
 
     @property
     def undos(self) -> int:
         """Edits undone, one by one or by a reset."""
-        return sum(e.count for e in self._entries if e.kind in ("undo", "reset"))
+        return self._tally[1]
 
     @property
     def redos(self) -> int:
-        return sum(e.count for e in self._entries if e.kind == "redo")
+        return self._tally[2]
 
     @property
     def specifications(self) -> int:
         """Alternative analyses examined: each specification choice and each search's count."""
-        return sum(e.count for e in self._entries if e.kind in ("specification", "search"))
+        return self._tally[3]
 
     @property
     def note(self) -> str:
@@ -197,6 +199,7 @@ class Ledger:
         """Forget the entries after the first ``mark``: only for an all-or-nothing action that was rolled
         back, so none of its edits ever took effect (see ``Study.all_or_nothing``)."""
         del self._entries[mark:]
+        self._tally = _tally(self._entries)
 
     def __len__(self) -> int:
         return len(self._entries)
@@ -251,6 +254,21 @@ class Ledger:
                     what, _, old = head.rpartition(" ")
             entries.append(LedgerEntry(kind, what, None, count, old=old, new=new))
         return cls(entries, complete=False)
+
+
+def _tally(entries: Iterable[LedgerEntry], start: tuple[int, int, int, int] = (0, 0, 0, 0)) -> tuple[int, int, int, int]:
+    """(edits made, edits undone, edits redone, alternatives examined) of ``entries``, added to ``start``."""
+    made, undone, redone, alternatives = start
+    for e in entries:
+        if e.kind == "edit":
+            made += 1
+        elif e.kind in ("undo", "reset"):
+            undone += e.count
+        elif e.kind == "redo":
+            redone += e.count
+        else:
+            alternatives += e.count
+    return made, undone, redone, alternatives
 
 
 def _text(value: object, name: str) -> str:
