@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import resource
 import shutil
 import subprocess
@@ -110,7 +111,8 @@ def main() -> None:
         generate(small, int(args.pandas_rows))
         print(f"generated {int(args.rows):,} rows in {t_gen:.1f} s ({big.stat().st_size / 2**20:,.0f} MiB of Parquet)")
         ours = _child("ours", big)
-        print(f"\nDuckDB summary study, {int(args.rows):,} rows, 3 x 4 cells (each phase in a fresh process):")
+        print(f"\nDuckDB summary study, {int(args.rows):,} rows, 3 x 4 cells (each phase in a fresh process; "
+              f"load average {' '.join(f'{v:.2f}' for v in os.getloadavg())}; no BLAS in either side's path):")
         print(f"  summaries + sample + partition : {ours['summary_s']:7.2f} s   (target < 60 s)")
         print(f"  predicate edit + recompute     : {ours['edit_s']:7.2f} s   (target < 10 s)")
         print(f"  level merge + recompute        : {ours['merge_s']:7.3f} s   (no engine query)")

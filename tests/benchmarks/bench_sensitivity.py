@@ -14,7 +14,11 @@
    OLSInfluence's internal one by the closed form: its own ``resid_studentized_external``
    takes about 50 s at n = 2000 here, which would make the comparison meaningless.)
 
-Each section also checks that the scan agrees with the refits it is compared to.
+Each section also checks that the scan agrees with the refits it is compared to. Each runs
+with the references pinned to one BLAS thread, then again with the default threads (the
+ratio printed beside); the load average is printed per section and the peak memory at the
+end. The naive loops are timed on subsets and scaled (they would take hours in full), so
+these ratios are of medians per alternative, not of interleaved full runs.
 Run: python tests/benchmarks/bench_sensitivity.py [--quick]
 """
 
@@ -26,7 +30,7 @@ import time
 import numpy as np
 import pandas as pd
 import statsmodels.formula.api as smf
-from bench_support import median_time
+from bench_support import blas_threads, load_average, median_time, peak_mib
 
 
 def median_cpu(fn, repeats: int) -> float:  # type: ignore[no-untyped-def]
@@ -149,15 +153,21 @@ def main() -> None:
     ap.add_argument("--quick", action="store_true", help="smaller subsets for the naive loops")
     args = ap.parse_args()
     s = 3 if args.quick else 1
-    for name, res in [
-        ("case-deletion scan", bench_case_deletion(100_000, 300 // s)),
-        ("regroup scan", bench_regroup(10_000, 600 // s)),
-        ("robustness sweep", bench_sweep(10_000, 12 // s)),
-    ]:
-        print(f"{name}:")
+    sections = [
+        ("case-deletion scan", lambda: bench_case_deletion(100_000, 300 // s)),
+        ("regroup scan", lambda: bench_regroup(10_000, 600 // s)),
+        ("robustness sweep", lambda: bench_sweep(10_000, 12 // s)),
+    ]
+    for name, bench in sections:
+        load = load_average()
+        with blas_threads(1):
+            res = bench()
+        default = bench()
+        print(f"{name} (load average {load}; references pinned to one BLAS thread):")
         for key, val in res.items():
             print(f"  {key:24s} {val:.4g}" if isinstance(val, float) else f"  {key:24s} {val}")
-
+        print(f"  {'ratio, default threads':24s} {default['ratio']:.4g}")
+    print(f"peak resident memory {peak_mib():.0f} MiB; load average at the end {load_average()}")
 
 if __name__ == "__main__":
     main()

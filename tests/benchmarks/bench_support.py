@@ -1,10 +1,18 @@
-"""Shared pieces of the benchmark scripts: a median timer and a one-edit-per-call driver."""
+"""Shared pieces of the benchmark scripts: timers, interleaved rounds, thread pinning, load and memory.
+
+Every benchmark states the ratio of the medians of interleaved runs (ours, reference,
+ours, reference, ...), runs the reference libraries pinned to one BLAS thread and prints
+the default-thread figure beside it, prints the load average and the peak resident memory.
+"""
 
 from __future__ import annotations
 
+import os
+import resource
 import statistics
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from typing import Any
 
 
@@ -16,6 +24,48 @@ def median_time(fn: Callable[[], Any], repeats: int) -> float:
         fn()
         times.append(time.perf_counter() - t0)
     return statistics.median(times)
+
+
+def interleaved(fns: dict[str, Callable[[], Any]], rounds: int) -> dict[str, float]:
+    """Median wall time (seconds) of each function over ``rounds`` rounds that call them in turn."""
+    times: dict[str, list[float]] = {k: [] for k in fns}
+    for _ in range(rounds):
+        for name, fn in fns.items():
+            t0 = time.perf_counter()
+            fn()
+            times[name].append(time.perf_counter() - t0)
+    return {k: statistics.median(v) for k, v in times.items()}
+
+
+@contextmanager
+def blas_threads(limit: int | None) -> Iterator[None]:
+    """Run the block with the BLAS/OpenMP pools limited to ``limit`` threads (``None``: the default)."""
+    if limit is None:
+        yield
+        return
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=limit):
+        yield
+
+
+def load_average() -> str:
+    one, five, fifteen = os.getloadavg()
+    return f"{one:.2f} {five:.2f} {fifteen:.2f}"
+
+
+def peak_mib() -> float:
+    """Peak resident memory of this process so far (MiB; Linux reports KiB)."""
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+
+
+def rss_mib() -> float:
+    """Resident memory of this process now (MiB)."""
+    with open("/proc/self/status") as fh:
+        for line in fh:
+            if line.startswith("VmRSS:"):
+                return int(line.split()[1]) / 1024
+    return float("nan")
 
 
 def edit_and_recompute(study: Any, rows: int = 50) -> Callable[[], Any]:

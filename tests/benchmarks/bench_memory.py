@@ -1,0 +1,171 @@
+"""Benchmark: memory and time of edits from 1e4 to 5e6 rows, the study build and the study file.
+
+Each size runs in its own process (its peak resident memory is its own); invented data:
+8 levels "L0".."L7" drawn at random, normal response, row ids 0..n-1. Per size:
+  frame          memory of the input DataFrame (pandas memory_usage(deep=True))
+  build          ex.Study(frame, "y", "g") against the floor "read the two columns and one
+                 grouped pass" (pd.factorize of the factor + np.bincount counts and sums),
+                 interleaved; peak resident memory after the build, beside the frame's size
+  edits          resident memory after 1 and after k edits (each leaves out one more row and
+                 reads study.results), and after reset(); the growth per edit per row
+  edit cost      one edit + study.results (drop a row, then restore it) against
+                 scipy.stats.f_oneway on the groups already split (pinned to one BLAS thread,
+                 and with the default threads), and against the two-pass floor (np.bincount
+                 of counts and sums, then of squared deviations); medians of interleaved rounds
+  study file     size of study.save() and time of Study.load() on the same frame
+Prints the load average with each size. Run on a quiet machine, one size at a time for 5e6:
+  python tests/benchmarks/bench_memory.py [--sizes 1e4 1e5 1e6 5e6] [--edits 30] [--rounds 15]
+"""
+
+from __future__ import annotations
+
+import argparse
+import gc
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+from bench_support import (  # noqa: E402
+    blas_threads,
+    edit_and_recompute,
+    interleaved,
+    load_average,
+    peak_mib,
+    rss_mib,
+)
+
+
+def frame(n: int, k: int = 8, seed: int = 0) -> pd.DataFrame:
+    rng = np.random.default_rng(seed)
+    return pd.DataFrame({"g": rng.choice([f"L{i}" for i in range(k)], n), "y": rng.normal(50, 3, n)})
+
+
+def measure(n: int, edits: int, rounds: int) -> dict:
+    from scipy import stats
+
+    import explorer as ex
+
+    out: dict = {"n": n, "load_start": load_average()}
+    df = frame(n)
+    gc.collect()
+    out["frame_mib"] = df.memory_usage(deep=True).sum() / 2**20
+    out["rss_before_mib"] = rss_mib()
+
+    t0 = time.perf_counter()
+    study = ex.Study(df, "y", "g")
+    out["build_s"] = time.perf_counter() - t0
+    out["peak_after_build_mib"] = peak_mib()
+
+    def floor_build():
+        codes, _ = pd.factorize(df["g"])
+        y = df["y"].to_numpy()
+        return np.bincount(codes), np.bincount(codes, weights=y)
+
+    build_rounds = 3 if n >= 1e6 else 7
+    timed = interleaved({"ours": lambda: ex.Study(df, "y", "g"), "floor": floor_build}, build_rounds)
+    out["build_ratio"] = timed["ours"] / timed["floor"]
+    gc.collect()
+
+    built = rss_mib()
+    study.drop([0], reason="bench")
+    _ = study.results.pvalue()
+    gc.collect()
+    one = rss_mib()
+    for i in range(1, edits):
+        study.drop([i], reason="bench")
+        _ = study.results.pvalue()
+    gc.collect()
+    many = rss_mib()
+    study.reset()
+    gc.collect()
+    out.update(rss_built_mib=built, rss_1_edit_mib=one, rss_k_edits_mib=many, rss_reset_mib=rss_mib(),
+               bytes_per_edit_per_row=(many - one) * 2**20 / max(edits - 1, 1) / n,
+               k_edits_added_pct=100 * (many - built) / built)
+
+    step = edit_and_recompute(study)
+    step()
+    step()
+    groups = [g.to_numpy() for _, g in df.groupby("g")["y"]]
+    codes, uniq = pd.factorize(df["g"])
+    y = df["y"].to_numpy()
+    k = len(uniq)
+
+    def two_pass():
+        c = np.bincount(codes, minlength=k)
+        m = np.bincount(codes, weights=y, minlength=k) / c
+        r = y - m[codes]
+        return np.bincount(codes, weights=r * r, minlength=k)
+
+    reps = rounds if n >= 1e6 else rounds * 10
+    with blas_threads(1):
+        one_thread = interleaved({"ours": step, "f_oneway": lambda: stats.f_oneway(*groups), "floor": two_pass}, reps)
+    default = interleaved({"ours": step, "f_oneway": lambda: stats.f_oneway(*groups)}, reps)
+    out.update(edit_ms=one_thread["ours"] * 1e3, f_oneway_ms=one_thread["f_oneway"] * 1e3,
+               floor_ms=one_thread["floor"] * 1e3, f_oneway_over_ours=one_thread["f_oneway"] / one_thread["ours"],
+               f_oneway_over_ours_default=default["f_oneway"] / default["ours"],
+               ours_over_floor=one_thread["ours"] / one_thread["floor"])
+
+    del study
+    gc.collect()
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder) / "bench.study.json"
+        fresh = ex.Study(df, "y", "g")  # two edits only: the file's size is the data check's, not a long log's
+        fresh.drop([1, 2], reason="bench")
+        fresh.save(path)
+        out["file_bytes"] = path.stat().st_size
+        del fresh
+        gc.collect()
+        t0 = time.perf_counter()
+        again = ex.Study.load(path, df)
+        out["load_s"] = time.perf_counter() - t0
+        assert again.dropped == (1, 2)
+    out["peak_mib"] = peak_mib()
+    out["load_end"] = load_average()
+    return out
+
+
+def show(r: dict) -> None:
+    n = r["n"]
+    print(f"n = {n:.0e} (load average {r['load_start']} -> {r['load_end']}; peak resident {r['peak_mib']:.0f} MiB)")
+    extra = r["peak_after_build_mib"] - r["rss_before_mib"]
+    print(f"  frame {r['frame_mib']:.1f} MiB; build {r['build_s']:.2f} s, {r['build_ratio']:.1f}x the factorize + "
+          f"bincount floor (medians of interleaved rounds); peak after build {r['peak_after_build_mib']:.0f} MiB, "
+          f"{extra:.0f} MiB above the {r['rss_before_mib']:.0f} MiB resident before it ({extra / r['frame_mib']:.1f}x "
+          "the frame)")
+    print(f"  resident after build {r['rss_built_mib']:.0f} MiB, 1 edit {r['rss_1_edit_mib']:.0f}, k edits "
+          f"{r['rss_k_edits_mib']:.0f} (+{r['k_edits_added_pct']:.1f}%; {r['bytes_per_edit_per_row']:.2f} bytes per "
+          f"edit per row), after reset {r['rss_reset_mib']:.0f}")
+    print(f"  one edit + results {r['edit_ms']:.3f} ms; f_oneway on split groups {r['f_oneway_ms']:.3f} ms "
+          f"(f_oneway / ours {r['f_oneway_over_ours']:.2f}x one BLAS thread, {r['f_oneway_over_ours_default']:.2f}x "
+          f"default threads); two-pass floor {r['floor_ms']:.3f} ms (ours / floor {r['ours_over_floor']:.1f}x)")
+    print(f"  study file (two edits) {r['file_bytes'] / 1e3:.1f} kB, load {r['load_s']:.2f} s")
+
+
+if __name__ == "__main__":
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--sizes", nargs="*", type=float, default=[1e4, 1e5, 1e6])
+    ap.add_argument("--edits", type=int, default=30)
+    ap.add_argument("--rounds", type=int, default=15)
+    ap.add_argument("--one", type=float, help=argparse.SUPPRESS)
+    args = ap.parse_args()
+    if args.one:
+        print(json.dumps(measure(int(args.one), args.edits, args.rounds)))
+        sys.exit(0)
+    for size in args.sizes:
+        env = {**os.environ, "OPENBLAS_NUM_THREADS": os.environ.get("OPENBLAS_NUM_THREADS", "")}
+        env = {k: v for k, v in env.items() if v != ""}
+        proc = subprocess.run([sys.executable, __file__, "--one", str(size), "--edits", str(args.edits),
+                               "--rounds", str(args.rounds)], capture_output=True, text=True, env=env)
+        if proc.returncode:
+            print(proc.stderr[-3000:])
+            sys.exit(proc.returncode)
+        show(json.loads(proc.stdout.strip().splitlines()[-1]))
