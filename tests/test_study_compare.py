@@ -162,6 +162,10 @@ def test_other_data_or_another_question_is_refused(pair, tmp_path):
         mine.compare(ex.Study(other, **KW))
     with pytest.raises(ExplorerError, match="analyse different things"):
         mine.compare(ex.Study(DATA, response="thickness_um", factors="shift", id_column="panel"))
+    with pytest.raises(ExplorerError, match="not int"):
+        mine.compare(7)
+    with pytest.raises(ExplorerError, match="label must be text"):
+        mine.compare(mine, label=3)
     with pytest.raises(ExplorerError, match="name rows differently"):
         mine.compare(ex.Study(DATA, response="thickness_um", factors="nozzle"))
     elsewhere = ex.Study(other, **KW)

@@ -713,7 +713,11 @@ class Study(PlannedAnalyses):
         """This study beside a second study of the same data: the edit logs and analyses side by side and the
         edits that make the decisions differ (see :mod:`.compare`). ``other`` is a study or the path of a
         study file (loaded onto this study's data); ``label`` names it (the file name by default)."""
+        if label is not None and not isinstance(label, str):
+            raise ExplorerError(f"the label must be text, not {type(label).__name__}")
         if not isinstance(other, Study):
+            if not isinstance(other, (str, Path)):
+                raise ExplorerError(f"compare takes a study or the path of a study file, not {type(other).__name__}")
             label = label or Path(other).name
             other = self.load_other(other)
         return compare_studies(self, other, theirs_label=label or "theirs")
