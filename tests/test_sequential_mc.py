@@ -148,3 +148,12 @@ def test_null_rejection_rate_and_agreement_with_the_fixed_count_test():
         differ += seq != fixed
     assert abs(rejected / runs - 0.05) <= 3 * np.sqrt(0.05 * 0.95 / runs)
     assert differ <= 1
+
+
+def test_a_bad_alpha_is_refused():
+    from explorer.engine.errors import ExplorerError
+
+    results = ex.Study(_small(1, 0.0), "y", "g").results
+    for bad in (0.0, 1.5, "0.05", True):
+        with pytest.raises(ExplorerError, match="alpha"):
+            permutation_f(results, 99, alpha=bad)

@@ -27,6 +27,7 @@ import numpy as np
 import pandas as pd
 
 from ..engine.errors import ExplorerError
+from ..engine.spec import check_alpha
 from ..engine.tables import esc
 from ..formatting import result_frame, show_df, show_number, show_p, show_stat
 from ..rendering import html_repr, note
@@ -377,6 +378,8 @@ def permutation_f(results: Results, permutations: int = 9999, *, seed: int = 0,
     b_total = int(permutations)
     if b_total < 1:
         raise ExplorerError(f"permutations must be a positive whole number (e.g. 9999), not {permutations!r}")
+    if alpha is not None:
+        alpha = check_alpha(alpha)
     require_oneway(results, "the permutation F")
     fit = results.fit
     g = np.asarray(fit.group)
