@@ -53,12 +53,15 @@ from ..rendering import html_repr
 from .level_means import LevelMeans, level_means
 
 __all__ = [
-    "check_weight_spec", "weight_sets",
+    "check_weight_spec", "weight_sets", "MAX_CONTRASTS",
     "ADJUSTMENTS", "ContrastTable", "JointTest", "contrasts", "control_contrasts", "later_levels_contrasts",
     "contrast_table", "parse_weights",
 ]
 
 ADJUSTMENTS = ("none", "holm", "bonferroni", "scheffe", "dunnett")
+
+#: Contrasts one request may hold.
+MAX_CONTRASTS = 1000
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -202,7 +205,13 @@ def _sum_check(c: np.ndarray, name: str) -> None:
 
 
 def weight_sets(spec: Any) -> list[tuple[str, Any]]:
-    """``(name, {level: weight})`` pairs of a user's contrast specification (names may be empty)."""
+    """``(name, {level: weight})`` pairs of a user's contrast specification (names may be empty); at most
+    :data:`MAX_CONTRASTS` of them (their correlation matrix is contrasts x contrasts)."""
+    if isinstance(spec, (Mapping, Sequence)) and not isinstance(spec, (str, bytes)) and len(spec) > MAX_CONTRASTS:
+        many = isinstance(spec, Sequence) or all(isinstance(v, Mapping) for v in spec.values())
+        if many:
+            raise ExplorerError(f"{len(spec):,} contrasts in one request; at most {MAX_CONTRASTS:,} (ask for fewer, "
+                                "or for a built-in set)")
     if isinstance(spec, Mapping) and spec and all(isinstance(v, Mapping) for v in spec.values()):
         return [(str(k), v) for k, v in spec.items()]
     if isinstance(spec, Mapping):
