@@ -29,7 +29,8 @@ from .response_unit import rescale, safe_unit, unit_exponent, unit_note
 from .row_hash import block_digests, row_hashes
 from .table_checks import check_response_values, column_names, decimal_comma_hint, refuse_text_collisions, text_columns
 
-__all__ = ["Dataset", "SetAsideRow", "RowId", "build_dataset", "level_label", "natural_key", "decode_digests", "encode_digests"]
+__all__ = ["Dataset", "RowHashes", "SetAsideRow", "RowId",
+           "build_dataset", "level_label", "natural_key", "decode_digests", "encode_digests"]
 
 RowId = Union[int, str]
 
@@ -105,11 +106,9 @@ class Dataset:
     set_aside: tuple[SetAsideRow, ...]
     id_source: str
     source: str
-    fingerprint: str
-    row_digests: np.ndarray
     all_row_ids: np.ndarray
-    #: Per block of consecutive rows (:func:`.row_hash.block_digests`): digests of the ids and of the whole rows.
-    block_digests: np.ndarray = field(default_factory=lambda: np.zeros((0, 2), dtype=np.uint64), repr=False)
+    #: The rows' hashes behind ``fingerprint``, ``row_digests`` and ``block_digests``, made when first read.
+    hashes: RowHashes | None = field(default=None, repr=False)
     id_column: str | None = None
     notes: tuple[str, ...] = field(default=())
     unit_exponent: int = 0
@@ -120,6 +119,27 @@ class Dataset:
     covariates: Mapping[str, np.ndarray] = field(default_factory=dict)
     _positions: dict[str, Any] = field(default_factory=dict, repr=False)  # id lookup, built on first use
     _memo: dict[str, int | None] = field(default_factory=dict, repr=False)  # derived once from the frozen data
+
+    @property
+    def fingerprint(self) -> str:
+        """32 hexadecimal digits of SHA-256 over the response, factor and covariate names, the row count and
+        every row's hash (:mod:`.row_hash`): what a saved study is checked against."""
+        return self._hashes().fingerprint
+
+    @property
+    def row_digests(self) -> np.ndarray:
+        """The low 32 bits of every row's hash (all rows, set-aside ones included)."""
+        return self._hashes().row_digests
+
+    @property
+    def block_digests(self) -> np.ndarray:
+        """Per block of consecutive rows (:func:`.row_hash.block_digests`): digests of the ids and of the whole rows."""
+        return self._hashes().block_digests
+
+    def _hashes(self) -> RowHashes:
+        if self.hashes is None:
+            raise DataError("this dataset was built without its rows' hashes")
+        return self.hashes
 
     @property
     def n(self) -> int:
@@ -396,12 +416,10 @@ def build_dataset(
         codes[f], levels[f] = read_only(per_value[raw]), tuple(order)
 
     row_ids = read_only(ids[usable])
-    hashed, id_hashed = row_hashes(ids, yv, frame, factors, cov_values)
-    blocks = block_digests(hashed, id_hashed)
-    del id_hashed
     head = f"{response}|{'|'.join(factors)}|{len(frame)}".encode()
     if cov_values:  # files of studies without covariates keep their fingerprints
         head += f"|covariates {'|'.join(cov_values)}".encode()
+    hashes = RowHashes(head, ids, yv, frame, factors, cov_values)
     kept_cov = {}
     for c, v in cov_values.items():
         kv = np.ascontiguousarray(v[usable])
@@ -412,7 +430,6 @@ def build_dataset(
                          f"{'overflow' if e > 0 else 'underflow'}; its slope is per that unit, F tests and adjusted "
                          "means do not depend on it.")
         kept_cov[c] = read_only(kv)
-    fingerprint = hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
     return Dataset(
         table=frame,
         response=response,
@@ -426,15 +443,49 @@ def build_dataset(
         set_aside=set_aside,
         id_source=id_source,
         source=source,
-        fingerprint=fingerprint,
-        row_digests=(hashed & 0xFFFFFFFF).astype(np.uint32),
-        block_digests=read_only(blocks),
+        hashes=hashes,
         all_row_ids=ids,
         id_column=id_column,
         notes=tuple(notes),
         unit_exponent=unit,
         covariates=kept_cov,
     )
+
+
+class RowHashes:
+    """The hashes of a table's rows, computed when first asked for (a build need not wait for them).
+
+    Holds the columns it hashes until then; the fingerprint, per-row and per-block digests
+    are computed together once and the columns let go.
+    """
+
+    def __init__(self, head: bytes, ids: np.ndarray, y: np.ndarray, frame: pd.DataFrame, factors: Sequence[str],
+                 covariates: Mapping[str, np.ndarray]) -> None:
+        self._inputs: tuple[Any, ...] | None = (head, ids, y, frame, tuple(factors), dict(covariates))
+        self._done: tuple[str, np.ndarray, np.ndarray] | None = None
+
+    def _compute(self) -> tuple[str, np.ndarray, np.ndarray]:
+        if self._done is None:
+            assert self._inputs is not None
+            head, ids, y, frame, factors, covariates = self._inputs
+            hashed, id_hashed = row_hashes(ids, y, frame, factors, covariates)
+            fingerprint = hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
+            digests = read_only((hashed & 0xFFFFFFFF).astype(np.uint32))
+            self._done = (fingerprint, digests, read_only(block_digests(hashed, id_hashed)))
+            self._inputs = None
+        return self._done
+
+    @property
+    def fingerprint(self) -> str:
+        return self._compute()[0]
+
+    @property
+    def row_digests(self) -> np.ndarray:
+        return self._compute()[1]
+
+    @property
+    def block_digests(self) -> np.ndarray:
+        return self._compute()[2]
 
 
 def _covariate_values(frame: pd.DataFrame, covariates: Sequence[str], response: str, factors: Sequence[str],
