@@ -382,3 +382,14 @@ def test_running_tallies_equal_the_entries_summed():
         assert ledger.undos == sum(e.count for e in entries if e.kind in ("undo", "reset")) == 2
         assert ledger.redos == 1
         assert ledger.specifications == sum(e.count for e in entries if e.kind in ("search", "specification")) == 9
+
+
+def test_listeners_hear_a_compound_action_once_it_stands_each_edit_at_its_position():
+    study = _study()
+    events = []
+    study.on_change(lambda s, ev: events.append((ev.kind, ev.position, len(s.edits))))
+    with study.all_or_nothing():
+        study.drop([6], reason="a")
+        study.drop([7], reason="b")
+        assert events == []
+    assert events == [("edit", 1, 2), ("edit", 2, 2)]

@@ -554,8 +554,8 @@ class Study(PlannedAnalyses):
             return
         saved = (list(self._log), list(self._deltas), dict(self._results), self._position,
                  dict(self.__dict__.get("_decisions", {})), len(self._ledger), self._now, self._base)
-        held: list[tuple[str, Edit | None]] = []
-        self._held: list[tuple[str, Edit | None]] | None = held
+        held: list[tuple[str, Edit | None, int]] = []
+        self._held: list[tuple[str, Edit | None, int]] | None = held
         try:
             yield self
         except BaseException:
@@ -566,8 +566,8 @@ class Study(PlannedAnalyses):
             self._ledger.rollback_to(mark)
             raise
         self._held = None
-        for kind, edit in held:
-            self._emit(kind, edit)
+        for kind, edit, position in held:
+            self._emit(kind, edit, position)
 
     def undo(self) -> Results:
         if self._position == 0:
@@ -609,12 +609,12 @@ class Study(PlannedAnalyses):
 
         return unsubscribe
 
-    def _emit(self, kind: str, edit: Edit | None) -> None:
+    def _emit(self, kind: str, edit: Edit | None, position: int | None = None) -> None:
         held = self.__dict__.get("_held")
-        if held is not None:  # inside all_or_nothing: told once the whole action stands
-            held.append((kind, edit))
+        if held is not None:  # inside all_or_nothing: told once the whole action stands, each at its position
+            held.append((kind, edit, self._position))
             return
-        event = StudyEvent(kind, edit, self._position)
+        event = StudyEvent(kind, edit, self._position if position is None else position)
         for cb in list(self._listeners):
             try:
                 cb(self, event)
