@@ -133,12 +133,17 @@ def measurement_decimals(values: Any, *, most: int = 6) -> int | None:
     v = v[np.isfinite(v)]
     if v.size == 0:
         return None
-    for d in range(most + 1):
-        scaled = v * 10.0**d
+
+    def exact(part: np.ndarray, d: int) -> bool:
+        scaled = part * 10.0**d
         err = np.abs(scaled - np.round(scaled))
-        if np.all(err <= 1e-7 * np.maximum(1.0, np.abs(scaled)) + 1e-9):
-            return d
-    return None
+        return bool(np.all(err <= 1e-7 * np.maximum(1.0, np.abs(scaled)) + 1e-9))
+
+    # A step the first values cannot take, no longer table can: try the long table only from the
+    # first step its first 4,096 values take (the same answer, without seven passes over readings
+    # that have no fixed step).
+    start = next((d for d in range(most + 1) if exact(v[:4096], d)), most + 1) if v.size > 4096 else 0
+    return next((d for d in range(start, most + 1) if exact(v, d)), None)
 
 
 # --------------------------------------------------------------------------- single values
