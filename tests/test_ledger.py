@@ -393,3 +393,16 @@ def test_listeners_hear_a_compound_action_once_it_stands_each_edit_at_its_positi
         study.drop([7], reason="b")
         assert events == []
     assert events == [("edit", 1, 2), ("edit", 2, 2)]
+
+
+def test_the_command_line_reads_the_counts_and_record_from_the_study_file(tmp_path, capsys):
+    from explorer.cli import main
+
+    study = _study()
+    study.drop([6], reason="gauge slip")
+    study.undo()
+    study.drop([7], reason="wrong panel")
+    path = study.save(tmp_path / "s.study.json")
+    assert main(["check", str(DEMO), "--edits", str(path), "--no-cautions"]) == 0
+    out = capsys.readouterr().out
+    assert "1 edit(s) in effect; 2 made in all (1 undone)" in out and "undo of: leave out row(s) 6" in out
