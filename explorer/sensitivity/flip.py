@@ -156,6 +156,7 @@ class _Scorer:
     def __init__(self, data: OnewayInput, alpha: float, pair: tuple[int, int] | None, chosen: ChosenTest) -> None:
         self.data, self.alpha, self.pair, self.chosen = data, alpha, pair, chosen
         self.pairwise = PAIRWISE_FOR_TEST[chosen.test]
+        self._fresh: dict[bytes, float | None] = {}  # fresh p-values by the rows left out (a search asks twice)
 
     def margin_of(self, sets: np.ndarray, keep: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
         """(margin, defined) after removing each row set (``(m, s)`` positions) from the kept rows."""
@@ -230,6 +231,12 @@ class _Scorer:
     def pvalue(self, keep: np.ndarray) -> float | None:
         """p-value of the decision on the kept rows, computed afresh (the overall test, or the pairwise
         comparison of :data:`PAIRWISE_FOR_TEST` from its own function in :mod:`explorer.inference`)."""
+        key = np.flatnonzero(~keep).tobytes()
+        if key not in self._fresh:
+            self._fresh[key] = self._fresh_pvalue(keep)
+        return self._fresh[key]
+
+    def _fresh_pvalue(self, keep: np.ndarray) -> float | None:
         if self.pair is None:
             return self.chosen.refit(keep)
         res = self.chosen.refit_results(keep)

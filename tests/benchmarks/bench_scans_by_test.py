@@ -23,7 +23,7 @@ allocations during one scan (tracemalloc, numpy arrays included). Each test also
 reading the decision of a new view (n = 1e4 and 1e5), the cost an edit pays for it, and
 the permutation decision's ratio is printed under one BLAS thread and the default beside.
 
-Run: python tests/benchmarks/bench_scans_by_test.py [--quick] [--tests classic welch ...]
+Run: python tests/benchmarks/bench_scans_by_test.py [--quick] [--tests classic welch ...] [--flip-only]
 """
 
 from __future__ import annotations
@@ -216,6 +216,19 @@ def bench_permutation_decision(n: int, repeats: int) -> dict:
             "scipy peak MiB (999)": _peak_mib(lambda: _scipy_permutation(groups, 999))}
 
 
+def bench_flip(test: str, n: int) -> dict:
+    """The flip finder (default search) under the test: CPU time, rows found, and the classic F's beside it."""
+    out = {"n": n}
+    for name in dict.fromkeys((test, "classic")):
+        study = ex.Study(_data(n, 5), "y", "g", test=name)
+        _ = study.decision
+        c0 = time.process_time()
+        res = study.flip_finder(record=False)
+        out[f"{name}: CPU s"] = time.process_time() - c0
+        out[f"{name}: search, rows"] = f"{res.method}, {len(res.rows)}"
+    return out
+
+
 def bench_permutation_budget(n: int) -> dict:
     """The permutation F with all 9,999 orderings (the decision's bound when p sits at alpha), once."""
     results = ex.Study(_data(n, 5), "y", "g").results
@@ -240,7 +253,14 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller sizes and subsets")
     ap.add_argument("--tests", nargs="*", choices=TESTS, default=list(TESTS), help="tests to measure (default all)")
+    ap.add_argument("--flip-only", action="store_true", help="only the flip finder (n = 1e4) under each test")
     args = ap.parse_args()
+    if args.flip_only:
+        print(f"load average at start: {os.getloadavg()[0]:.2f}; one BLAS/OpenMP thread")
+        with threadpool_limits(limits=1):
+            for test in args.tests:
+                _show(f"flip finder, {test}", bench_flip(test, 10_000))
+        return
     quick = args.quick
     warnings.simplefilter("ignore")
     print(f"load average at start: {os.getloadavg()[0]:.2f} {os.getloadavg()[1]:.2f} {os.getloadavg()[2]:.2f}; "
