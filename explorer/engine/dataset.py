@@ -34,6 +34,8 @@ __all__ = ["Dataset", "RowHashes", "SetAsideRow", "RowId",
 
 RowId = Union[int, str]
 
+_COPY_ON_WRITE = int(pd.__version__.split(".")[0]) >= 3
+
 _INT_TEXT = re.compile(r"-?(?:0|[1-9][0-9]*)", re.ASCII)  # how an integer id prints; '01', '+1', ' 1' are not ids
 
 
@@ -306,7 +308,9 @@ def build_dataset(
         frame, texts = read_table(data, (response,))
     elif isinstance(data, pd.DataFrame):
         source = "DataFrame"
-        frame = data.copy(deep=True)
+        # pandas 3 copies on write: a shallow copy already behaves as a copy (the caller's later changes copy
+        # their side), without doubling the table in memory; older pandas needs the deep copy.
+        frame = data.copy(deep=not _COPY_ON_WRITE)
     else:
         raise DataError(f"data must be a pandas DataFrame or a file path, not {type(data).__name__}")
     factors = tuple(factors)
