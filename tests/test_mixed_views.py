@@ -106,6 +106,10 @@ def test_role_pickers_rebuild_the_study_with_edits_carried_over():
     new = explorer.study
     assert new.spec.random == ("part", "operator") and len(new.edits) == 1
     assert new.results.variance_components is not None
+    # the choice of roles is in the ledger, which carries over (the carried edit is not a new one)
+    last = new.ledger.entries[-1]
+    assert (last.kind, last.what, last.old, last.new) == ("specification", "random factors", "(none)", "part, operator")
+    assert new.disclosure.edits_made == 1 and new.disclosure.specifications == 1
     pickers = RolePickers(explorer._context(), explorer._context().replace_study)
     pickers.pickers["part"].value = "nested in"  # no parent picked
     assert pickers.apply() is None and "Not applied" in pickers.status.value
