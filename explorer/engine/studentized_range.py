@@ -246,7 +246,17 @@ def _blocks(n: int, nodes: int) -> list[slice]:
 
 def _integrate(q: np.ndarray, k: int, s: np.ndarray, wts: np.ndarray, want_pdf: bool
                ) -> tuple[np.ndarray, np.ndarray | None]:
-    sf, pdf = _range_sf_pdf(q[:, None] * s, k, want_pdf)
+    """The outer sums. For the tail alone, nodes where ``q s`` is below the range's 1e-18 point
+    (:func:`_range_cdf_floor`) have ``P_R = 1`` to that accuracy and are not looked up."""
+    x = q[:, None] * s
+    floor = 0.0 if want_pdf else _range_cdf_floor(k)
+    if floor > 0:  # node by node, so a point's value never depends on the block it was computed in
+        low = x < floor
+        vals = np.ones(x.shape)
+        high = ~low
+        vals[high] = _range_sf_pdf(x[high], k, False)[0]
+        return (vals * wts).sum(axis=1), None
+    sf, pdf = _range_sf_pdf(x, k, want_pdf)
     return (sf * wts).sum(axis=1), (None if pdf is None else (pdf * s * wts).sum(axis=1))
 
 
