@@ -20,8 +20,9 @@ median wall time over rounds, each phase's largest peak resident memory, and the
 average before and after.
 
 With --before DIR (a checkout of an earlier version of the package), the Games-Howell
-phase runs with that version and with this one, interleaved, and the script prints the
-ratio of the medians (earlier / now) with the load average.
+phase, then 200,000 studentized-range tails at k = 2,000 with real differences (q spread
+over 0 to 10, df over 3.4 to 44), run with that version and with this one, interleaved,
+and the script prints the ratios of the medians (earlier / now) with the load average.
 
 Run: python tests/benchmarks/bench_many_levels.py [--rounds 3] [--all] [--before DIR]
 """
@@ -56,8 +57,18 @@ def table(seed: int = 0) -> pd.DataFrame:
 def _phase(name: str) -> dict:
     import explorer as ex  # inside the phase: import cost is not timed, memory is
 
-    frame = table()
     out: dict = {}
+    if name == "ours-tails":  # tails with real differences: q spread over 0 to 10, Welch-like df
+        from explorer.engine.studentized_range import srange_sf
+
+        rng = np.random.default_rng(2)
+        q, df = rng.uniform(0, 10, 200_000), rng.uniform(3.4, 44, 200_000)
+        t0 = time.perf_counter()
+        srange_sf(q, LEVELS, df)
+        out["tails"] = time.perf_counter() - t0
+        out["peak_mib"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+        return out
+    frame = table()
     if name.startswith("ours"):
         study = ex.Study(frame, "y", "lot")
         t0 = time.perf_counter()
@@ -154,16 +165,17 @@ def _before_after(before: str, rounds: int) -> None:
     """Games-Howell at 2,000 levels with an earlier version and with this one, interleaved rounds."""
     here = str(HERE.parent.parent)
     print(f"{LEVELS} levels, {ROWS} rows, Games-Howell read; load average before: {os.getloadavg()}")
-    runs: dict[str, list[dict]] = {"earlier": [], "now": []}
-    for _ in range(rounds):
-        runs["earlier"].append(_run("ours-games-howell", True, before))
-        runs["now"].append(_run("ours-games-howell", True, here))
-    med = {k: statistics.median(r["games_howell"] for r in v) for k, v in runs.items()}
-    for k, v in runs.items():
-        each = ", ".join(f"{r['games_howell']:.1f}" for r in v)
-        print(f"{k:8s} games_howell median {med[k]:9.2f} s  peak {max(r['peak_mib'] for r in v):6.0f} MiB  "
-              f"(rounds: {each})")
-    print(f"earlier / now: {med['earlier'] / med['now']:.1f}x; load average after: {os.getloadavg()}")
+    for phase, key in (("ours-games-howell", "games_howell"), ("ours-tails", "tails")):
+        runs: dict[str, list[dict]] = {"earlier": [], "now": []}
+        for _ in range(rounds):
+            runs["earlier"].append(_run(phase, True, before))
+            runs["now"].append(_run(phase, True, here))
+        med = {k: statistics.median(r[key] for r in v) for k, v in runs.items()}
+        for k, v in runs.items():
+            each = ", ".join(f"{r[key]:.1f}" for r in v)
+            print(f"{k:8s} {key} median {med[k]:9.2f} s  peak {max(r['peak_mib'] for r in v):6.0f} MiB  "
+                  f"(rounds: {each})")
+        print(f"{key}: earlier / now: {med['earlier'] / med['now']:.1f}x; load average: {os.getloadavg()}")
 
 
 if __name__ == "__main__":
