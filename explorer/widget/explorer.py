@@ -20,7 +20,6 @@ import pandas as pd
 
 from explorer.charts import HistoryStep
 from explorer.engine import ExplorerError
-from explorer.engine.moves import level_homes
 from explorer.engine.spec import OVERALL_TESTS
 from explorer.study import Study, StudyEvent
 
@@ -35,6 +34,15 @@ from . import (  # noqa: F401  (register the built-in panels)
     mixed_panels,
     planned_panels,
 )
+from .controls import (
+    COMPARISON_CHOICES,
+    OMNIBUS_CHOICES,
+    TRANSFORM_CHOICES,
+    ExplorerControls,
+    terms_choices,
+    terms_value,
+)
+from .edit_actions import EditActions, level_steps
 from .host import PanelCard
 from .panels import PanelContext, Settings, panels_in_order
 from .resize import ResizeRelay
@@ -42,33 +50,6 @@ from .stylesheet import STYLESHEET
 
 __all__ = ["COMPARISON_CHOICES", "OMNIBUS_CHOICES", "TRANSFORM_CHOICES", "Explorer", "explore", "level_steps",
            "terms_choices", "terms_value"]
-
-OMNIBUS_CHOICES = [(label, name) for name, label in OVERALL_TESTS.items()]
-COMPARISON_CHOICES = [("Tukey-Kramer (all pairs)", "tukey-kramer"), ("Games-Howell (all pairs, unequal SD)", "games-howell"),
-                      ("Dunnett (each level against the first)", "dunnett"), ("t tests, Holm-adjusted", "holm")]
-TRANSFORM_CHOICES: list[tuple[str, str | float]] = [("none", "none"), ("log", "log"), ("square root", "sqrt")]
-_ALPHAS = [0.01, 0.05, 0.10]
-
-
-def terms_choices(spec: Any) -> list[tuple[str, Any]]:
-    """The model-terms picker's options for a spec: all interactions, main effects only, or interactions of
-    up to k factors; terms listed through the API show as such (pick another option to replace them)."""
-    k = len(spec.factors)
-    out: list[tuple[str, Any]] = [("all interactions", 0), ("main effects only", 1)]
-    out += [(f"interactions of up to {m} factors", m) for m in range(2, k)]
-    if spec.terms is not None:
-        out.append(("as listed: " + ", ".join(" × ".join(t) for t in spec.terms), "listed"))
-    return out
-
-
-def terms_value(spec: Any) -> Any:
-    """The picker's value for a spec's terms (see :func:`terms_choices`)."""
-    if spec.terms is not None:
-        return "listed"
-    if not spec.interactions:
-        return 1
-    return 0 if spec.max_order is None or spec.max_order >= len(spec.factors) else spec.max_order
-_BUTTON = {"width": "auto", "flex": "0 0 auto"}
 
 
 def _offline() -> str:
@@ -80,23 +61,7 @@ def _offline() -> str:
         return f"Charts load their runtime from the network ({exc}); install vl-convert-python to work offline."
 
 
-def _factor_candidates(table: pd.DataFrame, response: str, limit: int = 60) -> list[str]:
-    out = []
-    for c in table.columns:
-        col = table[c]
-        if str(c) == response:
-            continue
-        if not pd.api.types.is_numeric_dtype(col.dtype) or col.nunique(dropna=True) <= limit:
-            out.append(str(c))
-    return out
-
-
-def _response_candidates(table: pd.DataFrame) -> list[str]:
-    return [str(c) for c in table.columns
-            if pd.api.types.is_numeric_dtype(table[c].dtype) and not pd.api.types.is_bool_dtype(table[c].dtype)]
-
-
-class Explorer(W.VBox):
+class Explorer(EditActions, ExplorerControls, W.VBox):
     """Notebook dashboard for one :class:`~explorer.study.Study`.
 
     Parameters
@@ -130,82 +95,6 @@ class Explorer(W.VBox):
         self.refresh(force=True)
 
     # ================================================================= layout
-    def _build_controls(self) -> None:
-        study = self.study
-        table = study.dataset.table
-        self.response_picker = W.Dropdown(description="response", options=_response_candidates(table),
-                                          value=study.spec.response)
-        self.factor_picker = W.SelectMultiple(description="factors", options=_factor_candidates(table, study.spec.response),
-                                              value=tuple(study.spec.factors), rows=4)
-        alphas = sorted(set(_ALPHAS) | {study.spec.alpha})
-        self.alpha_picker = W.Dropdown(description="alpha", options=[(f"{a:g}", a) for a in alphas],
-                                       value=study.spec.alpha)
-        self.omnibus_picker = W.Dropdown(description="overall test", options=OMNIBUS_CHOICES, value=study.spec.test)
-        self.comparison_picker = W.Dropdown(description="comparisons", options=COMPARISON_CHOICES,
-                                            value=study.comparisons)
-        self.transform_picker = W.Dropdown(description="transform", options=TRANSFORM_CHOICES)
-        self.terms_picker = W.Dropdown(description="model terms")
-        self._sync_model_pickers(study)
-        for w in (self.response_picker, self.factor_picker, self.alpha_picker, self.omnibus_picker, self.comparison_picker,
-                  self.transform_picker, self.terms_picker):
-            w.style.description_width = "90px"
-            w.layout.width = "300px"
-        self.response_picker.observe(self._on_model_choice, "value")
-        self.factor_picker.observe(self._on_model_choice, "value")
-        self.alpha_picker.observe(self._on_model_choice, "value")
-        self.omnibus_picker.observe(self._on_test_choice, "value")
-        self.comparison_picker.observe(self._on_comparison_choice, "value")
-        self.transform_picker.observe(self._on_transform_choice, "value")
-        self.terms_picker.observe(self._on_terms_choice, "value")
-
-        self.picked_label = W.HTML()
-        self.picked_label.add_class("vx-picked")
-        self.reason_box = W.Textarea(placeholder="Reason for the edit (required to leave out or move rows): "
-                                                 "lab note, deviation number, what you saw",
-                                     layout=W.Layout(width="300px", height="58px"))
-        self.reason_box.add_class("vx-reason")
-        self.drop_button = W.Button(description="Leave out picked", button_style="warning", layout=W.Layout(**_BUTTON),
-                                    tooltip="Leave the picked rows out of the analysis (they stay drawn, grey)")
-        self.restore_button = W.Button(description="Restore picked", layout=W.Layout(**_BUTTON))
-        self.clear_pick_button = W.Button(description="Clear pick", layout=W.Layout(**_BUTTON))
-        self.move_target = W.Combobox(placeholder="level (new name allowed)", ensure_option=False,
-                                      layout=W.Layout(width="150px"))
-        self.move_button = W.Button(description="Move picked to", layout=W.Layout(**_BUTTON),
-                                    tooltip="Reassign the picked rows to the level named on the right")
-        self.undo_button = W.Button(description="Undo", icon="undo", layout=W.Layout(**_BUTTON))
-        self.redo_button = W.Button(description="Redo", icon="repeat", layout=W.Layout(**_BUTTON))
-        self.reset_button = W.Button(description="Back to unedited", layout=W.Layout(**_BUTTON),
-                                     tooltip="Undo every edit (they stay available to redo)")
-        for b, cls in ((self.drop_button, "drop"), (self.restore_button, "restore"), (self.move_button, "move"),
-                       (self.undo_button, "undo"), (self.redo_button, "redo"), (self.reset_button, "reset"),
-                       (self.clear_pick_button, "clear")):
-            b.add_class(f"vx-btn-{cls}")
-        self.drop_button.on_click(lambda _: self.leave_out_picked())
-        self.restore_button.on_click(lambda _: self.restore_picked())
-        self.move_button.on_click(lambda _: self.move_picked(self.move_target.value))
-        self.clear_pick_button.on_click(lambda _: self.pick(()))
-        self.undo_button.on_click(lambda _: self.undo())
-        self.redo_button.on_click(lambda _: self.redo())
-        self.reset_button.on_click(lambda _: self.reset())
-
-        self.left_out_list = W.SelectMultiple(options=[], rows=5, layout=W.Layout(width="300px"))
-        self.left_out_list.add_class("vx-left-out")
-        self.restore_chosen_button = W.Button(description="Restore chosen", layout=W.Layout(**_BUTTON))
-        self.restore_chosen_button.on_click(lambda _: self.restore_chosen())
-        self.level_editor = W.VBox()
-        self.regroup_button = W.Button(description="Apply level changes", layout=W.Layout(**_BUTTON),
-                                       tooltip="Same new name for two levels merges them; a new name renames")
-        self.regroup_button.add_class("vx-btn-regroup")
-        self.regroup_button.on_click(lambda _: self.apply_regrouping())
-        self._level_boxes: dict[str, dict[str, W.Text]] = {}
-        self._level_key: Any = None
-        self._level_widgets: list[W.Widget] = []
-
-        self.status = W.HTML()
-        self.status.add_class("vx-status")
-        self.header = W.HTML()
-        self.header.add_class("vx-header")
-
     def _section(self, title: str, *items: W.Widget) -> W.VBox:
         box = W.VBox([W.HTML(f"<div class='vx-card-title'>{esc(title)}</div>"), *items],
                      layout=W.Layout(margin="0 0 8px 0"))
@@ -290,38 +179,6 @@ class Explorer(W.VBox):
     def _status(self, text: str, kind: str = "ok") -> None:
         self.status.value = f"<div class='vx-status-{kind}'>{esc(text)}</div>"
 
-    def _reason(self, required: bool, what: str) -> str | None:
-        reason = self.reason_box.value.strip()
-        if required and not reason:
-            self._status(f"Write a reason in the reason box before you {what}: leaving data out or moving it "
-                         "needs a documented reason.", "error")
-            return None
-        return reason
-
-    def _edit(self, what: str, fn: Any, *args: Any, done: str = "", used_reason: bool = True,
-              compound: bool = False, **kwargs: Any) -> bool:
-        """Run one study call; report a refusal in the status line instead of raising.
-
-        The status line says ``done`` before the redraw starts, so it appears with the tables; on
-        success the reason box is emptied, so that the next edit needs its own reason. A
-        ``compound`` action (several edits under ``Study.all_or_nothing``) that fails changed nothing,
-        and the status line says so.
-        """
-        none = " (Nothing was changed: this action applies all of its edits or none.)" if compound else ""
-        try:
-            with self._one_redraw():
-                fn(*args, **kwargs)
-                if used_reason:
-                    self.reason_box.value = ""  # the next edit must not inherit this reason
-                self._status(done or "Done.")
-        except ExplorerError as exc:
-            self._status(f"Not done ({what}): {exc}{none}", "error")
-            return False
-        except Exception as exc:  # noqa: BLE001  never raise into the notebook
-            self._status(f"Not done ({what}): unexpected {type(exc).__name__}: {exc}{none}", "error")
-            return False
-        return True
-
     # ================================================================= picking
     def _on_pick(self, source: str, rows: list[str]) -> None:
         if not rows and source != self._picked_from:
@@ -335,16 +192,6 @@ class Explorer(W.VBox):
         self._show_picked()
         if self._picked:
             self._status(f"Picked {len(self._picked)} row(s). Write a reason, then choose an action.")
-
-    def pick(self, rows: Sequence[Any]) -> None:
-        """Pick rows by id, as a click in a chart would."""
-        self._picked = tuple(rows)
-        self._picked_from = "code"
-        self._show_picked()
-
-    @property
-    def picked(self) -> tuple[Any, ...]:
-        return self._picked
 
     def _show_picked(self) -> None:
         if not self._picked:
@@ -364,126 +211,6 @@ class Explorer(W.VBox):
             parts.append(f"row {r} ({f} {view.level_of(p, f)}, {value}, {state})")
         more = f" and {len(self._picked) - 8} more" if len(self._picked) > 8 else ""
         self.picked_label.value = f"<span class='vx-picked-rows'>Picked: {esc('; '.join(parts))}{more}</span>"
-
-    # ================================================================= actions
-    def leave_out_picked(self) -> bool:
-        if not self._picked:
-            self._status("Pick a row first: click a point in a chart.", "error")
-            return False
-        reason = self._reason(True, "leave rows out")
-        if reason is None:
-            return False
-        rows = self._picked
-        ok = self._edit("leave out", self.study.drop, list(rows), reason=reason,
-                        done=f"Left out row(s) {', '.join(map(str, rows))}: {reason}")
-        if ok:
-            self.pick(())
-        return ok
-
-    def restore_picked(self) -> bool:
-        if not self._picked:
-            self._status("Pick a left-out (grey) row first.", "error")
-            return False
-        return self._restore(self._picked)
-
-    def restore_chosen(self) -> bool:
-        chosen = list(self.left_out_list.value)
-        if not chosen:
-            self._status("Choose rows in the list of rows left out first.", "error")
-            return False
-        return self._restore(chosen)
-
-    def _restore(self, rows: Sequence[Any]) -> bool:
-        reason = self._reason(False, "restore rows") or ""
-        ok = self._edit("restore", self.study.restore, list(rows), reason=reason,
-                        done=f"Restored row(s) {', '.join(map(str, rows))}.")
-        if ok:
-            self.pick(())
-        return ok
-
-    def move_picked(self, level: str) -> bool:
-        f = self.study.spec.factors[0]
-        level = (level or "").strip()
-        if not self._picked or not level:
-            self._status(f"Pick rows and type or choose the level of {f} to move them to.", "error")
-            return False
-        reason = self._reason(True, "move rows to another level")
-        if reason is None:
-            return False
-        rows = self._picked
-
-        def move_all() -> None:
-            with self.study.all_or_nothing():  # every row moves, or none does
-                for r in rows:
-                    self.study.reassign(r, f, level, reason=reason)
-
-        ok = self._edit("move", move_all, done=f"Moved row(s) {', '.join(map(str, rows))} to {f} = {level}.",
-                        compound=len(rows) > 1)
-        if ok:
-            self.pick(())
-        return ok
-
-    def undo(self) -> bool:
-        return self._edit("undo", self.study.undo, done="Undid the last edit.", used_reason=False)
-
-    def redo(self) -> bool:
-        return self._edit("redo", self.study.redo, done="Redid the next edit.", used_reason=False)
-
-    def reset(self) -> bool:
-        return self._edit("back to unedited", self.study.reset, used_reason=False,
-                          done="Back to the unedited data; the edits can be redone step by step.")
-
-    def apply_regrouping(self) -> bool:
-        """Turn the level editor's new names into merges and renames (one edit each, all of them or none;
-        a swap of two names passes one level through a temporary name, see :func:`level_steps`)."""
-        reason = self._reason(True, "merge or rename levels")
-        if reason is None:
-            return False
-        plans: list[tuple[str, list[str], str]] = []
-        for f, boxes in self._level_boxes.items():
-            current = self._original_to_current(f)
-            target_of: dict[str, set[str]] = {}
-            for orig, box in boxes.items():
-                now = current.get(orig)
-                if now is None:
-                    continue
-                new = box.value.strip()
-                if not new:
-                    self._status(f"Level {orig!r} of {f} needs a name (an empty name is not allowed).", "error")
-                    return False
-                target_of.setdefault(now, set()).add(new)
-            for now, targets in target_of.items():
-                if len(targets) > 1:
-                    self._status(f"Level {now!r} of {f} cannot be split into {sorted(targets)} here; undo the merge "
-                                 "instead.", "error")
-                    return False
-            final = {now: next(iter(targets)) for now, targets in target_of.items()}
-            plans += [(f, sources, target) for sources, target in level_steps(self.study.levels(f), final)]
-        if not plans:
-            self._status("No level changes to apply: type a new name beside a level (the same name for two "
-                         "levels merges them).", "warn")
-            return False
-
-        def run() -> None:
-            with self.study.all_or_nothing():  # every change, or none
-                for f, sources, target in plans:
-                    if len(sources) > 1:
-                        self.study.merge_levels(f, sources, into=target, reason=reason)
-                    else:
-                        self.study.rename_level(f, sources[0], target, reason=reason)
-
-        return self._edit("level changes", run, done=f"Applied {len(plans)} level change(s).", compound=True)
-
-    def _original_to_current(self, f: str) -> dict[str, str | None]:
-        """Where each recorded level of ``f`` is now, after the merges and renames in effect.
-
-        Rows moved one by one do not count (they are listed in the comparison panel), so a
-        level stays editable after one of its rows was moved away; ``None`` only for a
-        level whose name no longer exists (every row of it moved elsewhere).
-        """
-        homes = level_homes(self.study.dataset, self.study.edits)[f]
-        levels_now = set(self.study.levels(f))
-        return {orig: (home if home in levels_now else None) for orig, home in homes.items()}
 
     # ================================================================= model choices
     def _on_comparison_choice(self, _: Any) -> None:
@@ -725,36 +452,6 @@ class Explorer(W.VBox):
             self._level_boxes[fac] = boxes
         self.level_editor.children = rows
         self._level_widgets += rows
-
-
-def level_steps(levels_now: Sequence[str], final: dict[str, str]) -> list[tuple[list[str], str]]:
-    """The renames and merges (``(sources, target)``; one source renames, several merge) that give each
-    current level of a factor its ``final`` name, in an order that never merges a level into a name
-    another level still holds: a swap or a cycle of names passes one level through a temporary name.
-    """
-    name = {lv: lv for lv in levels_now if lv in final}
-    groups: dict[str, list[str]] = {}
-    for lv in name:
-        groups.setdefault(final[lv], []).append(lv)
-    todo = {t: srcs for t, srcs in groups.items() if srcs != [t]}
-    steps: list[tuple[list[str], str]] = []
-    while todo:
-        held = {name.get(lv, lv): lv for lv in levels_now}
-        ready = [t for t, srcs in todo.items() if t not in held or held[t] in srcs]
-        if ready:
-            t = ready[0]
-            srcs = todo.pop(t)
-            steps.append(([name[x] for x in srcs], t))
-            for x in srcs:
-                name[x] = t
-            continue
-        blocker = held[next(iter(todo))]  # a cycle of names: move one level aside first
-        temp, k = f"{name[blocker]} (renaming)", 2
-        while temp in held or temp in groups:
-            temp, k = f"{name[blocker]} (renaming {k})", k + 1
-        steps.append(([name[blocker]], temp))
-        name[blocker] = temp
-    return steps
 
 
 def explore(data: pd.DataFrame | str, response: str, factors: str | Sequence[str], **kwargs: Any) -> Explorer:
