@@ -7,6 +7,9 @@ Cases (median wall time of one edit + recompute; every figure from its own proce
                    + study.results + study.measurement_system(). Reference:
                    statsmodels ols + anova_lm on the edited table + the balanced
                    variance-component algebra by hand (the cheapest statsmodels route).
+  msa-balanced-qr  the msa-balanced case of ours with the closed-form path switched off
+                   (the general QR cell engine), against the same reference: what the
+                   closed form saves.
   msa-balanced-vs-mixedlm  the same edit of ours; reference: statsmodels MixedLM REML
                    (part, operator and part x operator as variance components, one group)
                    on the edited balanced table - statsmodels' route to variance components
@@ -26,6 +29,7 @@ load average before and after. Targets: balanced (closed form) reference/ours >=
 reference/ours >= 1.
 
 Run: python tests/benchmarks/bench_mixed.py [--rounds 5] [--repeats 9]
+     python tests/benchmarks/bench_mixed.py --closed-vs-qr   (closed form vs QR engine, one process)
 """
 
 from __future__ import annotations
@@ -73,6 +77,10 @@ def intercept_table(n: int = 10_000, subjects: int = 200, seed: int = 0) -> pd.D
 def _ours(case: str):
     import explorer as ex
 
+    if case == "msa-balanced-qr":
+        from explorer.engine import factorial
+
+        factorial.balanced_counts = lambda *a, **k: None  # every layout through the QR engine
     if case.startswith("msa"):
         balanced = case.startswith("msa-balanced")
         frame = gauge_table()
@@ -111,7 +119,7 @@ def _reference(case: str):
     from statsmodels.stats.anova import anova_lm
 
     warnings.simplefilter("ignore")
-    if case == "msa-balanced":
+    if case in ("msa-balanced", "msa-balanced-qr"):
         edited = gauge_table()
         edited = edited[edited.part != "P03"]
 
@@ -153,6 +161,32 @@ def _median_cpu(fn, repeats: int) -> float:
     return statistics.median(times)
 
 
+def closed_form_vs_qr(rounds: int, calls: int) -> None:
+    """In one process, interleaved: the msa-balanced edit + recompute with the closed form and with
+    the QR engine (balanced_counts switched off), ``calls`` calls per turn; medians of wall and CPU."""
+    from explorer.engine import factorial
+
+    closed = factorial.balanced_counts
+    step = _ours("msa-balanced")
+    step()
+    out: dict[str, dict[str, list[float]]] = {k: {"wall": [], "cpu": []} for k in ("closed form", "QR engine")}
+    for _ in range(rounds):
+        for name, fn in (("closed form", closed), ("QR engine", lambda *a, **k: None)):
+            factorial.balanced_counts = fn
+            for _ in range(calls):
+                w0, c0 = time.perf_counter(), time.process_time()
+                step()
+                out[name]["cpu"].append(time.process_time() - c0)
+                out[name]["wall"].append(time.perf_counter() - w0)
+    factorial.balanced_counts = closed
+    med = {k: {m: statistics.median(v) * 1e3 for m, v in d.items()} for k, d in out.items()}
+    for k, d in med.items():
+        print(f"{k:12s} wall {d['wall']:.3f} ms  CPU {d['cpu']:.3f} ms")
+    print(f"QR / closed form: wall {med['QR engine']['wall'] / med['closed form']['wall']:.2f}, "
+          f"CPU {med['QR engine']['cpu'] / med['closed form']['cpu']:.2f} "
+          f"({rounds} interleaved turns of {calls} calls each)")
+
+
 def worker(case: str, side: str, repeats: int) -> None:
     fn = _ours(case) if side == "ours" else _reference(case)
     fn()  # warm
@@ -180,14 +214,25 @@ def main() -> None:
     ap.add_argument("--repeats", type=int, default=9)
     ap.add_argument("--cases", default="msa-balanced,msa-balanced-vs-mixedlm,msa-unbalanced,random-intercept")
     ap.add_argument("--worker", nargs=3, metavar=("CASE", "SIDE", "REPEATS"))
+    ap.add_argument("--closed-vs-qr", action="store_true",
+                    help="only the in-process comparison of the closed form with the QR engine")
     args = ap.parse_args()
+    if args.closed_vs_qr:
+        if any(os.environ.get(v) != "1" for v in THREAD_VARS):  # BLAS threads are fixed at import: re-run pinned
+            env = {**os.environ, **{v: "1" for v in THREAD_VARS}}
+            subprocess.run([sys.executable, __file__, "--closed-vs-qr"], env=env, check=True)
+            return
+        print(f"load average before: {os.getloadavg()}")
+        closed_form_vs_qr(rounds=15, calls=40)
+        print(f"load average after: {os.getloadavg()}")
+        return
     if args.worker:
         worker(args.worker[0], args.worker[1], int(args.worker[2]))
         return
     print(f"load average before: {os.getloadavg()}")
     rows = []
     for case in args.cases.split(","):
-        ref_repeats = max(3, args.repeats // 3) if case != "msa-balanced" else args.repeats
+        ref_repeats = max(3, args.repeats // 3) if case not in ("msa-balanced", "msa-balanced-qr") else args.repeats
         runs: dict[str, list[dict]] = {"ours": [], "ref1": [], "refdef": []}
         for _ in range(args.rounds):
             runs["ours"].append(_run(case, "ours", "1", args.repeats))
