@@ -130,20 +130,26 @@ def measurement_decimals(values: Any, *, most: int = 6) -> int | None:
     quantities, 15 significant digits) give ``None``.
     """
     v = np.asarray(values, dtype=float)
+    head = v[:4096]
+    head = head[np.isfinite(head)]
+    if v.size > 4096 and head.size and not any(_exact(head, d) for d in range(most + 1)):
+        return None  # no step the first values take: none the whole table takes (no pass over the rest)
     v = v[np.isfinite(v)]
     if v.size == 0:
         return None
 
-    def exact(part: np.ndarray, d: int) -> bool:
-        scaled = part * 10.0**d
-        err = np.abs(scaled - np.round(scaled))
-        return bool(np.all(err <= 1e-7 * np.maximum(1.0, np.abs(scaled)) + 1e-9))
-
     # A step the first values cannot take, no longer table can: try the long table only from the
     # first step its first 4,096 values take (the same answer, without seven passes over readings
     # that have no fixed step).
-    start = next((d for d in range(most + 1) if exact(v[:4096], d)), most + 1) if v.size > 4096 else 0
-    return next((d for d in range(start, most + 1) if exact(v, d)), None)
+    start = next((d for d in range(most + 1) if _exact(v[:4096], d)), most + 1) if v.size > 4096 else 0
+    return next((d for d in range(start, most + 1) if _exact(v, d)), None)
+
+
+def _exact(part: np.ndarray, d: int) -> bool:
+    """Whether ``d`` decimals write every value of ``part`` exactly (to the tolerance of decimal input)."""
+    scaled = part * 10.0**d
+    err = np.abs(scaled - np.round(scaled))
+    return bool(np.all(err <= 1e-7 * np.maximum(1.0, np.abs(scaled)) + 1e-9))
 
 
 # --------------------------------------------------------------------------- single values

@@ -419,11 +419,13 @@ def build_dataset(
         per_value = np.array([lookup[lab] for lab in unique_labels], dtype=np.int32)
         codes[f], levels[f] = read_only(per_value[raw]), tuple(order)
 
-    row_ids = read_only(ids[usable])
+    every = bool(usable.all())
+    row_ids = read_only(ids if every else ids[usable])  # all rows usable: the same array, no copy
     head = f"{response}|{'|'.join(factors)}|{len(frame)}".encode()
     if cov_values:  # files of studies without covariates keep their fingerprints
         head += f"|covariates {'|'.join(cov_values)}".encode()
-    hashes = RowHashes(head, ids, yv, frame, factors, cov_values)
+    hashes = RowHashes(head, ids, response, frame, factors, cov_values)
+    del yv
     kept_cov = {}
     for c, v in cov_values.items():
         kv = np.ascontiguousarray(v[usable])
@@ -463,16 +465,18 @@ class RowHashes:
     are computed together once and the columns let go.
     """
 
-    def __init__(self, head: bytes, ids: np.ndarray, y: np.ndarray, frame: pd.DataFrame, factors: Sequence[str],
+    def __init__(self, head: bytes, ids: np.ndarray, response: str, frame: pd.DataFrame, factors: Sequence[str],
                  covariates: Mapping[str, np.ndarray]) -> None:
-        self._inputs: tuple[Any, ...] | None = (head, ids, y, frame, tuple(factors), dict(covariates))
+        self._inputs: tuple[Any, ...] | None = (head, ids, response, frame, tuple(factors), dict(covariates))
         self._done: tuple[str, np.ndarray, np.ndarray] | None = None
 
     def _compute(self) -> tuple[str, np.ndarray, np.ndarray]:
         if self._done is None:
             assert self._inputs is not None
-            head, ids, y, frame, factors, covariates = self._inputs
+            head, ids, response, frame, factors, covariates = self._inputs
+            y = pd.to_numeric(frame[response], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
             hashed, id_hashed = row_hashes(ids, y, frame, factors, covariates)
+            del y
             fingerprint = hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
             digests = read_only((hashed & 0xFFFFFFFF).astype(np.uint32))
             self._done = (fingerprint, digests, read_only(block_digests(hashed, id_hashed)))
