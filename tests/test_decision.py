@@ -225,7 +225,10 @@ def test_all_random_reads_the_variance_component_of_the_first_factor():
     assert "H0: σ²[part] = 0" in d.caveat and "MS[part] / MS[part × operator] on (9, 18) df" in d.caveat
     assert "F test of a variance component" in d.method
     assert any("variance-component F test of part, against part × operator" in n for n in d.notes)
-    assert "variance-component F against part × operator" in d.sentence()
+    assert "variance-component F against part × operator, p = " in d.sentence()
+    from dataclasses import replace
+
+    assert replace(d, pvalue=1e-12).sentence().endswith("part × operator, p < 1e-10)")  # not "p = < 1e-10"
     assert d.to_dict()["error_term"] == "part × operator"
     assert list(d.to_frame()["tested against"]) == ["part × operator", "part × operator", "residual"]
     assert "averaged" not in " ".join(t.caveat for t in d.terms)  # no fixed-effect averaging caveats

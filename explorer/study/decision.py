@@ -147,7 +147,9 @@ class Decision:
         test = self.test_label
         if self.error_term and self.error_term != "residual":
             test += f" against {self.error_term}"
-        return f"{self.term}: {self.verdict} at alpha {self.alpha:g} ({test}, p = {show_p(self.pvalue)})"
+        shown = show_p(self.pvalue)
+        p = f"p {shown}" if shown.startswith("<") else f"p = {shown}"  # "p < 1e-10", not "p = < 1e-10"
+        return f"{self.term}: {self.verdict} at alpha {self.alpha:g} ({test}, {p})"
 
     def verdict_for(self, term: str) -> TermVerdict:
         """The verdict on one treatment term (``KeyError`` naming the terms when absent)."""
