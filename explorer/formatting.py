@@ -67,6 +67,7 @@ __all__ = [
     "format_value",
     "heading",
     "measurement_decimals",
+    "p_equals",
     "p_value",
     "scale",
     "show_coefficient",
@@ -240,6 +241,12 @@ def format_value(x: Any, role: str = "number", *, decimals: int | None = None) -
 def show_p(p: Any) -> str:
     """A p-value (role ``p``)."""
     return format_value(p, "p")
+
+
+def p_equals(p: Any, name: str = "p") -> str:
+    """A p-value in a sentence: ``p = 0.0312``, or ``p < 1e-10`` below the display floor."""
+    shown = show_p(p)
+    return f"{name} {shown}" if shown.startswith("<") else f"{name} = {shown}"
 
 
 def show_stat(x: Any) -> str:

@@ -20,7 +20,7 @@ import pandas as pd
 
 from explorer.inference.simple_effects import SimpleEffects
 
-from ..formatting import show_p
+from ..formatting import p_equals
 from .style import HEIGHT, WIDTH, finish
 
 __all__ = ["interaction_chart", "interaction_frame"]
@@ -64,7 +64,7 @@ def interaction_chart(effects: SimpleEffects, *, width: int = WIDTH, height: int
     sub = [f"Least-squares cell means with {pct} intervals (full model's residual mean square); parallel lines mean "
            "no interaction, crossing lines a reversal."]
     if effects.interaction is not None:
-        sub.append(f"{effects.interaction}: p = {show_p(effects.interaction_pvalue)}.")
+        sub.append(f"{effects.interaction}: {p_equals(effects.interaction_pvalue)}.")
     sub.append(f"Simple effects of {effects.factor} ({effects.adjustment} adjustment over {effects.family_size} tests):")
     sub.extend(effects.verdicts())
     return finish(chart, f"{effects.factor} by {effects.within}: cell means", sub)

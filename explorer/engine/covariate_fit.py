@@ -35,7 +35,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ..formatting import show_p, show_stat
+from ..formatting import p_equals, show_stat
 from ..rendering import html_repr
 from .cells import CellTable, layout_cells
 from .dataset import Dataset, RowId
@@ -82,7 +82,7 @@ class SlopeCheck:
             return f"Homogeneity of slopes (covariate × {by}) could not be checked: {self.problem}"
         head = (f"Homogeneity of slopes, checked before the adjusted test: separate slopes for each level of {by} "
                 f"against one common slope, F = {show_stat(self.statistic)} on ({self.df_num}, {self.df_den}) df, "
-                f"p = {show_p(self.pvalue)}.")
+                f"{p_equals(self.pvalue)}.")
         if self.slopes_differ:
             return head + (f" The slopes differ at alpha {self.alpha:g}: the adjusted comparison depends on the "
                            "covariate value, and the adjusted means below hold at the covariate mean only.")

@@ -20,7 +20,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from ..formatting import show_p
+from ..formatting import p_equals
 from .balanced import METHOD as BALANCED_METHOD
 from .balanced import balanced_counts, balanced_ems, fit_balanced
 from .blocking import BlockingEfficiency, blocking_efficiency
@@ -122,7 +122,7 @@ def _type_notes(tables: dict[str, AnovaTable], fit: CellFit, balanced: bool, alp
             continue
         verdicts = {k: p < alpha for k, p in ps.items()}  # type: ignore[operator]
         if len(set(verdicts.values())) > 1:
-            detail = ", ".join(f"type {k} p = {show_p(p)}" for k, p in ps.items())
+            detail = ", ".join(f"type {k} {p_equals(p)}" for k, p in ps.items())
             notes.append(f"The types disagree about {name!r} at alpha {alpha:g}: {detail}.")
     return notes
 

@@ -12,10 +12,10 @@ import pandas as pd
 from ..formatting import (
     Scale,
     measurement_decimals,
+    p_equals,
     result_frame,
     scale,
     show_measure,
-    show_p,
     show_share,
     show_stat,
     text_table,
@@ -112,7 +112,7 @@ class TwoSampleT:
     def _repr_html_(self) -> str:
         return (
             f"<div>Pooled t test, {esc(self.first)} − {esc(self.second)}: difference "
-            f"{show_measure(self.difference)}, t = {show_stat(self.statistic)} on {self.df} df, p = {show_p(self.pvalue)}, "
+            f"{show_measure(self.difference)}, t = {show_stat(self.statistic)} on {self.df} df, {p_equals(self.pvalue)}, "
             f"{self.confidence:.0%} CI ({show_measure(self.ci_low)}, {show_measure(self.ci_high)})</div>"
         )
 

@@ -39,7 +39,7 @@ from ..engine.errors import ExplorerError
 from ..engine.groupstats import group_stats
 from ..engine.spec import TEST_LABELS, alpha_or
 from ..engine.tables import esc
-from ..formatting import result_frame, show_df, show_p, show_stat
+from ..formatting import p_equals, result_frame, show_df, show_stat
 from ..rendering import footnote, html_repr, note
 from .oneway_inputs import row_sample_notes
 from .result_extras import WithExtras
@@ -87,7 +87,7 @@ class CheckResult(WithExtras):
         notes = "".join(note(n) for n in self.notes)
         return (
             f"<div><b>{esc(self.method)}</b> ({esc(self.tests)}): statistic {show_stat(self.statistic)}, "
-            f"p = {show_p(self.pvalue)}. <i>{esc(self.limits)}</i>{notes}</div>"
+            f"{p_equals(self.pvalue)}. <i>{esc(self.limits)}</i>{notes}</div>"
         )
 
 
@@ -397,10 +397,10 @@ def recommend(results: Results, spread: CheckResult, normality: CheckResult, *, 
     bal = "equal" if balanced else f"unequal ({int(n.min())} to {int(n.max())})"
     sp = (("spreads look different" if differ else "spreads look similar") if differ is not None
           else "spreads could not be compared")
-    sp += f" ({spread.method}, p = {show_p(spread.pvalue)})" if spread.pvalue is not None else ""
+    sp += f" ({spread.method}, {p_equals(spread.pvalue)})" if spread.pvalue is not None else ""
     nm = (("residuals depart from normal" if nonnormal else "residuals look normal") if nonnormal is not None
           else "normality could not be checked")
-    nm += f" (Shapiro-Wilk, p = {show_p(normality.pvalue)})" if normality.pvalue is not None else ""
+    nm += f" (Shapiro-Wilk, {p_equals(normality.pvalue)})" if normality.pvalue is not None else ""
     parts = [
         "Welch's F (Games-Howell for pairs) is suggested before looking at the data: it keeps its error rate "
         "whether or not the level spreads are equal and loses little power when they are, which is why "

@@ -23,7 +23,7 @@ import pandas as pd
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
-from ..formatting import Scale, result_frame, scale, show_p, show_share, text_table
+from ..formatting import Scale, p_equals, result_frame, scale, show_share, text_table
 from ..rendering import block, footnote, html_repr, note, small
 from .assumptions import (
     CheckResult,
@@ -241,8 +241,8 @@ class Battery:
         return self.to_text()
 
     def __repr__(self) -> str:
-        return (f"<Battery at alpha {self.alpha:g}: classic F p = {show_p(self.classic.pvalue)}, Welch F p = "
-                f"{show_p(self.welch.pvalue)}, suggested {self.recommendation.test}; print() for the tables>")
+        return (f"<Battery at alpha {self.alpha:g}: classic F {p_equals(self.classic.pvalue)}, "
+                f"Welch F {p_equals(self.welch.pvalue)}, suggested {self.recommendation.test}; print() for the tables>")
 
     @html_repr
     def _repr_html_(self) -> str:

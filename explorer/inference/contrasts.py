@@ -48,7 +48,7 @@ from ..engine.errors import DesignError, ExplorerError
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
 from ..engine.tables import html_table
-from ..formatting import show_df, show_measure, show_p, show_stat
+from ..formatting import p_equals, show_df, show_measure, show_p, show_stat
 from ..rendering import html_repr
 from .level_means import LevelMeans, level_means
 
@@ -76,7 +76,7 @@ class JointTest:
 
     def sentence(self) -> str:
         return (f"{self.label}: F = {show_stat(self.statistic)} on ({self.df_num}, {show_df(self.df_den)}) df, "
-                f"p = {show_p(self.pvalue)}.")
+                f"{p_equals(self.pvalue)}.")
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)

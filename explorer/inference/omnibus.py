@@ -29,7 +29,7 @@ import pandas as pd
 from ..engine.errors import ExplorerError
 from ..engine.spec import check_alpha
 from ..engine.tables import esc
-from ..formatting import result_frame, show_df, show_number, show_p, show_stat
+from ..formatting import p_equals, result_frame, show_df, show_number, show_stat
 from ..rendering import html_repr, note
 from .omnibus_batch import brown_forsythe_batch, kruskal_batch, welch_batch
 from .oneway_inputs import require_oneway, row_sample_notes
@@ -97,12 +97,12 @@ class OmnibusTest(WithExtras):
                           for k, v in self.extras())
         if self.original_pvalue is not None:
             first = (f"with the original k - 1 = {show_df(self.original_df_num)} numerator df, "
-                     f"p = {show_p(self.original_pvalue)} (liberal when variances differ)")
+                     f"{p_equals(self.original_pvalue)} (liberal when variances differ)")
             extra = f"{extra}; {first}" if extra else first
         notes = "".join(note(n) for n in self.notes)
         return (
             f"<div><b>{esc(self.method)}</b>: statistic {show_stat(self.statistic)}"
-            f"{f' on ({dfs}) df' if dfs else ''}, p = {show_p(self.pvalue)}"
+            f"{f' on ({dfs}) df' if dfs else ''}, {p_equals(self.pvalue)}"
             f"{'; ' + extra if extra else ''}. <i>Assumes {esc(self.assumes)}.</i>{notes}</div>"
         )
 

@@ -32,7 +32,7 @@ from ..engine.errors import DesignError
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
 from ..engine.tables import esc, html_table
-from ..formatting import show_p, show_share, show_stat
+from ..formatting import p_equals, show_share, show_stat
 from ..rendering import html_repr, note
 from .oneway_inputs import require_oneway, row_sample_notes
 from .two_levels import mid_ranks
@@ -182,13 +182,13 @@ class FriedmanTest:
     def _repr_html_(self) -> str:
         sums = ", ".join(f"{esc(k)} {show_stat(v)}" for k, v in self.rank_sums)
         return (f"<div><b>Friedman rank test</b> of {esc(self.factor)} within {esc(self.block)} "
-                f"({self.blocks} blocks): chi-square = {show_stat(self.statistic)} on {self.df} df, p = {show_p(self.pvalue)}; "
+                f"({self.blocks} blocks): chi-square = {show_stat(self.statistic)} on {self.df} df, {p_equals(self.pvalue)}; "
                 f"Kendall's W = {show_share(self.kendall_w)}; rank sums: {sums}</div>"
                 + "".join(note(n) for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Friedman rank test of {self.factor} within {self.block} ({self.blocks} blocks): "
-                f"chi-square = {show_stat(self.statistic)} on {self.df} df, p = {show_p(self.pvalue)}; "
+                f"chi-square = {show_stat(self.statistic)} on {self.df} df, {p_equals(self.pvalue)}; "
                 f"Kendall's W = {show_share(self.kendall_w)}")
 
 

@@ -53,7 +53,7 @@ from ..engine.results import Results
 from ..engine.spec import alpha_or
 from ..engine.studentized_range import srange_ppf, srange_sf
 from ..engine.tables import html_table
-from ..formatting import show_p, show_ss
+from ..formatting import p_equals, show_ss
 from ..rendering import block, html_repr
 
 __all__ = ["ADJUSTMENTS", "PAIR_ADJUSTMENTS", "PAIRS_SHOWN", "SimpleEffects", "SimplePairs", "simple_effects"]
@@ -232,7 +232,7 @@ class SimpleEffects:
                 out.append(f"{self.factor} at {self.within} = {lv}: no test")
             else:
                 word = "differences detected" if sig else "no differences detected"
-                out.append(f"{self.factor} at {self.within} = {lv}: {word} (adjusted p = {show_p(float(p))})")
+                out.append(f"{self.factor} at {self.within} = {lv}: {word} (adjusted {p_equals(float(p))})")
         return out
 
     def to_frame(self) -> pd.DataFrame:

@@ -35,7 +35,7 @@ from ..engine.distributions import f_sf
 from ..engine.errors import DesignError, ExplorerError
 from ..engine.results import Results
 from ..engine.tables import html_table
-from ..formatting import show_df, show_p, show_stat
+from ..formatting import p_equals, show_df, show_stat
 from ..rendering import html_repr
 from .oneway_inputs import require_oneway, row_sample_notes
 
@@ -83,7 +83,7 @@ class TrimmedMeansTest:
     @property
     def title(self) -> str:
         return (f"Trimmed means ({self.trim:.0%} from each end) of {self.factor}: F = {show_stat(self.statistic)} on "
-                f"({show_df(self.df_num)}, {show_df(self.df_den)}) df, p = {show_p(self.pvalue)}")
+                f"({show_df(self.df_num)}, {show_df(self.df_den)}) df, {p_equals(self.pvalue)}")
 
     @html_repr
     def _repr_html_(self) -> str:

@@ -32,7 +32,7 @@ from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import DesignError
 from ..engine.results import Results
 from ..engine.tables import esc
-from ..formatting import show_df, show_measure, show_p, show_share, show_stat
+from ..formatting import p_equals, show_df, show_measure, show_share, show_stat
 from ..rendering import html_repr, note
 from .oneway_inputs import require_oneway, row_sample_notes
 
@@ -78,13 +78,13 @@ class WelchT:
     def _repr_html_(self) -> str:
         return (f"<div><b>Welch two-sample t</b>, {esc(self.first)} − {esc(self.second)}: "
                 f"difference {show_measure(self.difference)}, t = {show_stat(self.statistic)} on {show_df(self.df)} df, "
-                f"p = {show_p(self.pvalue)}, {self.confidence:.0%} interval ({show_measure(self.ci_low)}, "
+                f"{p_equals(self.pvalue)}, {self.confidence:.0%} interval ({show_measure(self.ci_low)}, "
                 f"{show_measure(self.ci_high)})"
                 "</div>" + "".join(note(n) for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Welch two-sample t, {self.first} - {self.second}: difference {show_measure(self.difference)}, "
-                f"t = {show_stat(self.statistic)} on {show_df(self.df)} df, p = {show_p(self.pvalue)}, "
+                f"t = {show_stat(self.statistic)} on {show_df(self.df)} df, {p_equals(self.pvalue)}, "
                 f"{self.confidence:.0%} interval ({show_measure(self.ci_low)}, {show_measure(self.ci_high)})")
 
 
@@ -156,13 +156,13 @@ class MannWhitney:
     def _repr_html_(self) -> str:
         z = "" if self.z is None else f", z = {show_stat(self.z)}"
         return (f"<div><b>Mann-Whitney</b> ({esc(self.method)}), {esc(self.first)} vs "
-                f"{esc(self.second)}: U = {show_stat(self.u)}{z}, p = {show_p(self.pvalue)}; "
+                f"{esc(self.second)}: U = {show_stat(self.u)}{z}, {p_equals(self.pvalue)}; "
                 f"P({esc(self.first)} above {esc(self.second)}) estimated {show_share(self.probability)}</div>"
                 + "".join(note(n) for n in self.notes))
 
     def to_text(self) -> str:
         return (f"Mann-Whitney ({self.method}), {self.first} vs {self.second}: U = {show_stat(self.u)}, "
-                f"p = {show_p(self.pvalue)}, "
+                f"{p_equals(self.pvalue)}, "
                 f"P({self.first} above {self.second}) estimated {show_share(self.probability)}")
 
 

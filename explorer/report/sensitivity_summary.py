@@ -27,7 +27,7 @@ import pandas as pd
 
 from ..engine.errors import DesignError
 from ..engine.tables import html_table
-from ..formatting import result_frame, show_p
+from ..formatting import p_equals, result_frame
 from ..rendering import html_repr
 
 if TYPE_CHECKING:
@@ -88,7 +88,7 @@ class SensitivitySummary:
         if self.strongest_choice:
             c = self.strongest_choice
             out.append(("the single analysis choice that moves p most",
-                        f"{c['choice']} = {c['option']} (p = {show_p(c['p-value'])})"))
+                        f"{c['choice']} = {c['option']} ({p_equals(c['p-value'])})"))
         return out
 
     def to_frame(self) -> pd.DataFrame:

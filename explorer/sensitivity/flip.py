@@ -52,7 +52,7 @@ from ..engine.groupstats import group_stats
 from ..engine.spec import alpha_or
 from ..engine.studentized_range import srange_ppf, srange_sf
 from ..engine.tables import html_table
-from ..formatting import result_frame, show_p, show_stat
+from ..formatting import p_equals, result_frame, show_p, show_stat
 from ..inference.comparisons import games_howell, tukey
 from ..inference.rank_followups import dunn, dunn_holm
 from ..rendering import html_repr
@@ -449,7 +449,7 @@ def flip_finder(
                              f"{count} set(s) of {covered} row(s) flip the decision, the one shown moves it furthest.")
             else:
                 notes.append(f"Exact search: the best-scored set of {covered} row(s) does not flip the decision when "
-                             f"the remaining rows are tested afresh (p = {show_p(p_set)}).")
+                             f"the remaining rows are tested afresh ({p_equals(p_set)}).")
                 covered -= 1
         else:
             notes.append(f"Exact search: no set of up to {covered} row(s) flips the decision ({examined} sets scored; "

@@ -47,7 +47,7 @@ from ..engine.design import model_terms, term_name
 from ..engine.results import Results
 from ..engine.spec import TEST_LABELS
 from ..engine.tables import esc, html_table
-from ..formatting import show_p
+from ..formatting import p_equals, show_p
 from ..inference.omnibus import PERMUTATION_SEED, PERMUTATIONS, overall_test
 from ..rendering import block, html_repr
 
@@ -272,7 +272,7 @@ def _component_caveat(head: TermVerdict, terms: list[TermVerdict]) -> str:
     if head.role == "interaction":
         text += " A component of an interaction is read before those of the main effects it contains."
     elif inter:
-        tested = "; ".join(f"{t.term}: p = {show_p(t.pvalue)}" for t in inter)
+        tested = "; ".join(f"{t.term}: {p_equals(t.pvalue)}" for t in inter)
         text += f" No interaction component was detected ({tested})."
     return text
 
@@ -334,7 +334,7 @@ def _multi(results: Results) -> Decision:
             caveat = (f"The model has no interaction term involving {head.term}, so its effect is taken to be the same "
                       f"at every level of {_listing(others)}.")
         else:
-            tested = "; ".join(f"{t.term}: p = {show_p(t.pvalue)}" for t in mine)
+            tested = "; ".join(f"{t.term}: {p_equals(t.pvalue)}" for t in mine)
             caveat = (f"The effect of {head.term} is averaged over the levels of {_listing(others)}; no interaction "
                       f"involving it was detected ({tested}).")
     if spec.blocks:

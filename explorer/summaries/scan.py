@@ -28,7 +28,7 @@ from ..engine.edits import MergeLevels
 from ..engine.errors import DesignError
 from ..engine.spec import alpha_or
 from ..engine.tables import html_table
-from ..formatting import result_frame, show_p
+from ..formatting import p_equals, result_frame
 from ..inference.omnibus import overall_test
 from ..rendering import html_repr
 from .view import Condition, SummaryView
@@ -62,7 +62,7 @@ class SetAsideScan:
     @html_repr
     def _repr_html_(self) -> str:
         caption = (f"Set-aside scan of {self.term} at alpha {self.alpha:g}: {len(self.flips)} of "
-                   f"{self.examined} alternatives flip the decision (now p = {show_p(self.current_pvalue)})")
+                   f"{self.examined} alternatives flip the decision (now {p_equals(self.current_pvalue)})")
         return html_table(self.table, caption)
 
 
