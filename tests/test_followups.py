@@ -226,3 +226,17 @@ def test_hc3_one_way_and_leverage_one_refused():
     # cell (b, y) has one row: leverage one under the interaction model
     with pytest.raises(DesignError, match="leverage one"):
         hc3_tests(ex.Study(df2, "y", ["A", "B"]).results)
+
+
+def test_tost_with_a_margin_near_the_float_limit_is_quietly_equivalent():
+    """A margin of 1e308 (hostile, but a number): both one-sided t are infinite, p = 0 (scipy.stats.t.sf(inf) = 0),
+    and no overflow warning reaches the user."""
+    import warnings
+
+    rng = np.random.default_rng(3)
+    df = pd.DataFrame({"g": ["a"] * 6 + ["b"] * 6, "y": rng.normal(10, 1, 12)})
+    res = ex.Study(df, "y", "g").results
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        table = equivalence(res, "g", margin=1e308, pairs=[("a", "b")])
+    assert table.pvalue[0] == stats.t.sf(np.inf, 10) == 0.0
