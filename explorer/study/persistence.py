@@ -220,24 +220,26 @@ def check_study_doc(doc: Any, format_marker: str = FORMAT, name: str = "the stud
         check_ledger(Ledger.from_dict(doc["ledger"], f"{name}: ledger"), len(doc["edits"]), position, name)
     blocks = doc["data"].get("block_check")
     if blocks is not None:
-        try:
-            raw = base64.b64decode(blocks["digests"], validate=True)
-        except (binascii.Error, ValueError) as exc:
-            raise ReplayError(f"{name}: data.block_check.digests: not valid base64 ({exc})") from None
+        raw = _base64_field(blocks["digests"], f"{name}: data.block_check.digests")
         expected = 16 * (len(block_bounds(blocks["rows"])) - 1)
         if len(raw) != expected:
             raise ReplayError(f"{name}: data.block_check.digests: holds {len(raw)} bytes, not the {expected} of "
                               f"{expected // 16} blocks of {blocks['rows']} rows")
     check = doc["data"].get("row_check")
     if check is not None:
-        try:
-            raw = base64.b64decode(check["digests"], validate=True)
-        except (binascii.Error, ValueError) as exc:
-            raise ReplayError(f"{name}: data.row_check.digests: not valid base64 ({exc})") from None
+        raw = _base64_field(check["digests"], f"{name}: data.row_check.digests")
         if len(raw) != 4 * len(check["ids"]):
             raise ReplayError(f"{name}: data.row_check.digests: holds {len(raw)} bytes, not 4 for each of the "
                               f"{len(check['ids'])} row ids")
     return doc
+
+
+def _base64_field(text: str, field: str) -> bytes:
+    """The bytes of a base64 field of a study file, or a ReplayError naming the field."""
+    try:
+        return base64.b64decode(text, validate=True)
+    except (binascii.Error, ValueError) as exc:
+        raise ReplayError(f"{field}: not valid base64 ({exc})") from None
 
 
 def edits_from_doc(doc: dict[str, Any]) -> list[Edit]:
