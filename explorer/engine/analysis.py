@@ -3,7 +3,8 @@
 ``analysis_state`` and ``analysis_after`` give the same results with what an edit log needs
 to go on cheaply: for one factor without covariates, the running group statistics, so
 the next edit recomputes only the groups it touches (:mod:`.running_groups`), and a fit whose per-row
-arrays are made only when read (:func:`.results.deferred_fit`).
+arrays are made only when read; for every model the tables around the partition may be made when
+first read (:mod:`.deferred`).
 """
 
 from __future__ import annotations
@@ -14,10 +15,11 @@ import numpy as np
 
 from ..formatting import Scale
 from .dataset import Dataset, RowId
+from .deferred import deferred, replace_deferred
 from .fitrows import RowSet, row_fit
 from .oneway import fit_oneway, oneway_from_stats
 from .response_unit import unit_note
-from .results import Fit, Results, deferred_fit
+from .results import Fit, Results
 from .running_groups import RunningGroups, running_groups, update_groups
 from .spec import ModelSpec
 from .transforms import transform_label, with_transform
@@ -53,7 +55,7 @@ def analysis_state(dataset: Dataset, view: DataView, spec: ModelSpec) -> Analysi
     dataset = with_transform(dataset, spec.transform)
     if _running(spec):
         groups = running_groups(dataset.y, view, spec.factors[0], dataset.offset)
-        return AnalysisState(_finish(dataset, spec, _oneway(dataset, view, spec, groups)), groups)
+        return AnalysisState(_notes(dataset, spec, _oneway(dataset, view, spec, groups)), groups)
     positions = np.flatnonzero(view.kept)
     dropped = view.dropped_ids(dataset)
     y = dataset.y[positions]
@@ -69,7 +71,7 @@ def analysis_after(dataset: Dataset, spec: ModelSpec, state: AnalysisState, old:
         return analysis_state(dataset, new, spec)
     dataset = with_transform(dataset, spec.transform)
     groups = update_groups(state.groups, dataset.y, new, delta, spec.factors[0])
-    return AnalysisState(_finish(dataset, spec, _oneway(dataset, new, spec, groups)), groups)
+    return AnalysisState(_notes(dataset, spec, _oneway(dataset, new, spec, groups)), groups)
 
 
 def _oneway(dataset: Dataset, view: DataView, spec: ModelSpec, groups: RunningGroups) -> Results:
@@ -88,24 +90,31 @@ def _oneway(dataset: Dataset, view: DataView, spec: ModelSpec, groups: RunningGr
                        gs.mean, 1.0 / nn, full.offset)
 
     dropped_ids = tuple(dataset.row_ids[groups.dropped].tolist())
-    return oneway_from_stats(full, spec, rows=deferred_fit(rows), dropped=dropped_ids)
+    shown = Scale(decimals=dataset.reading_decimals(), units=spec.units)
+    return oneway_from_stats(full, spec, rows=deferred(rows), dropped=dropped_ids, display=shown)
 
 
 def _finish(dataset: Dataset, spec: ModelSpec, results: Results) -> Results:
+    return _with_display(_notes(dataset, spec, results), dataset.reading_decimals())
+
+
+def _notes(dataset: Dataset, spec: ModelSpec, results: Results) -> Results:
+    """The results with the notes on the response's unit and transform (deferred parts stay unmade)."""
+    notes = results.notes
     if dataset.unit_exponent:
-        results = replace(results, notes=results.notes + (unit_note(spec.response, dataset.unit_exponent),))
+        notes = notes + (unit_note(spec.response, dataset.unit_exponent),)
     if spec.transform != "none":
         label = transform_label(spec.transform, spec.response)
-        results = replace(results, notes=(f"Analysed on {label}: means, differences, intervals and residuals are on "
-                                          "that scale.",) + results.notes)
-    return _with_display(results, dataset.reading_decimals())
+        notes = (f"Analysed on {label}: means, differences, intervals and residuals are on that scale.",) + notes
+    return results if notes is results.notes else replace_deferred(results, notes=notes)
 
 
 def _with_display(results: Results, decimals: int | None) -> Results:
-    """The results with the readings' decimals and the units attached, for display only."""
+    """The results with the readings' decimals and the units attached, for display only (the level
+    tables take them when they are made)."""
     shown = Scale(decimals=decimals, units=results.spec.units)
-    levels = {f: replace(t, display=shown) for f, t in results.levels.items()}
-    return replace(results, reading_decimals=decimals, levels=levels)
+    levels = deferred(lambda: {f: replace(t, display=shown) for f, t in results.levels.items()})
+    return replace_deferred(results, reading_decimals=decimals, levels=levels)
 
 
 def _fit(dataset: Dataset, view: DataView, spec: ModelSpec, positions: np.ndarray, dropped: tuple[RowId, ...],

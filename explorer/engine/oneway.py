@@ -15,7 +15,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..formatting import Scale
 from .dataset import RowId
+from .deferred import deferred
 from .distributions import f_sf, t_ppf, t_two_sided_p
 from .errors import DesignError, preview
 from .fitrows import RowSet, row_fit
@@ -115,16 +117,20 @@ def oneway_from_stats(
     dropped: tuple[RowId, ...] = (),
     confidence: float | None = None,
     method: str = "least squares, one-way (group sufficient statistics)",
+    display: Scale | None = None,
 ) -> Results:
     """One-way results from group statistics alone (the rows-free entry point).
 
     ``full`` holds every level of the factor (empty ones allowed); ``rows`` are the rows
     whose fitted values and residuals the results report (all kept rows, a sample of
     them, or none), their ``group`` codes indexing ``full``'s levels; or the fit of those rows
-    already made (a deferred one: see :func:`.results.deferred_fit`), whose groups index the
-    non-empty levels. Intervals (level
-    means, the two-level difference) are ``1 - alpha`` of ``spec`` unless ``confidence``
-    is given.
+    already made or ``deferred(make)`` (:mod:`.deferred`), whose groups index the non-empty
+    levels. Intervals (level means, the two-level difference) are ``1 - alpha`` of ``spec``
+    unless ``confidence`` is given. ``display`` (the readings' decimals and the units) is
+    attached to the level tables for showing.
+
+    The partition (the decision's F and p) is made at once; the level table and the
+    two-level t are made when first read.
     """
     if confidence is None:  # intervals follow the analysis alpha
         confidence = 1 - spec.alpha
@@ -146,14 +152,48 @@ def oneway_from_stats(
             f"no residual degrees of freedom: each of the {k} levels of {factor!r} has one observation; "
             "the F test needs at least one level with two or more"
         )
-    remap = np.cumsum(full.n > 0) - 1
     table, raw, part_notes = oneway_partition(gs, factor, spec.ss_type)
     notes.extend(part_notes)
     df_w = n - k
     msw = float(table.rows[1].mean_sq or 0.0)
     ssb, ssw = gs.ss_between, gs.ss_within
+    singles = [lab for lab, c in zip(gs.labels, gs.n) if c == 1]
+    lt_notes: tuple[str, ...] = ()
+    if singles:
+        lt_notes = (f"Level(s) {preview(singles)} have one observation: their own SD and own-SD interval are undefined.",)
+        notes.extend(lt_notes)
 
-    # Per-level table.
+    if isinstance(rows, RowSet):
+        remap = np.cumsum(full.n > 0) - 1
+        fit = row_fit(rows.regrouped(remap) if empty else rows, gs.mean, 1.0 / gs.n.astype(float), offset)
+    else:
+        fit = rows
+    two = deferred(lambda: _two_sample_t(gs, msw, df_w, confidence)) if k == 2 else None
+    sst = ssb + ssw
+    return Results(
+        spec=spec,
+        partition=table,
+        uncorrected=raw,
+        r_squared=ssb / sst if sst > 0 else 0.0,
+        residual_sd=float(np.sqrt(msw)) if msw > 0 else 0.0,
+        df_resid=df_w,
+        ms_resid=msw,
+        levels=deferred(lambda: {factor: _level_table(gs, factor, msw, df_w, confidence, lt_notes, display)}),
+        groups=gs,
+        fit=fit,
+        n_used=n,
+        dropped=dropped,
+        two_groups=two,
+        method=method,
+        notes=tuple(notes),
+        reading_decimals=None if display is None else display.decimals,
+    )
+
+
+def _level_table(gs: GroupStats, factor: str, msw: float, df_w: int, confidence: float, notes: tuple[str, ...] = (),
+                display: Scale | None = None) -> LevelTable:
+    """Per-level n, mean, SD, standard error and two intervals (pooled residual SD on ``df_w`` df; own SD on
+    n - 1 df) of the non-empty groups ``gs``."""
     var = gs.variances()
     sd = np.sqrt(var)
     nn = gs.n.astype(float)
@@ -164,51 +204,28 @@ def oneway_from_stats(
     with np.errstate(invalid="ignore"):
         t_own = np.where(gs.n > 1, t_ppf(0.5 + confidence / 2, np.maximum(gs.n - 1, 1)), np.nan)
     half_own = t_own * se
-    singles = [lab for lab, c in zip(gs.labels, gs.n) if c == 1]
-    lt_notes: tuple[str, ...] = ()
-    if singles:
-        lt_notes = (f"Level(s) {preview(singles)} have one observation: their own SD and own-SD interval are undefined.",)
-        notes.extend(lt_notes)
-    level_table = LevelTable(
+    return LevelTable(
         factor=factor, labels=gs.labels, n=gs.n, mean=means, sd=sd, se=se,
         pooled_low=means - half_pool, pooled_high=means + half_pool,
-        own_low=means - half_own, own_high=means + half_own, confidence=confidence, notes=lt_notes,
+        own_low=means - half_own, own_high=means + half_own, confidence=confidence, notes=notes, display=display,
     )
 
-    two = None
-    if k == 2:
-        diff = float(gs.mean[0] - gs.mean[1])
-        se_d = float(np.sqrt(msw * (1 / nn[0] + 1 / nn[1])))
-        t_stat: float | None
-        p2: float | None
-        lo: float | None
-        hi: float | None
-        if se_d > 0:
-            t_stat = diff / se_d
-            p2 = float(t_two_sided_p(t_stat, df_w))
-            lo, hi = diff - t_pool * se_d, diff + t_pool * se_d
-        else:
-            t_stat = p2 = lo = hi = None
-        two = TwoSampleT(first=gs.labels[0], second=gs.labels[1], difference=diff, statistic=t_stat, df=df_w,
-                         pvalue=p2, ci_low=lo, ci_high=hi, confidence=confidence)
 
-    fit = rows if isinstance(rows, Fit) else row_fit(rows.regrouped(remap) if empty else rows, gs.mean, 1.0 / nn,
-                                                     offset)
-    sst = ssb + ssw
-    return Results(
-        spec=spec,
-        partition=table,
-        uncorrected=raw,
-        r_squared=ssb / sst if sst > 0 else 0.0,
-        residual_sd=float(np.sqrt(msw)) if msw > 0 else 0.0,
-        df_resid=df_w,
-        ms_resid=msw,
-        levels={factor: level_table},
-        groups=gs,
-        fit=fit,
-        n_used=n,
-        dropped=dropped,
-        two_groups=two,
-        method=method,
-        notes=tuple(notes),
-    )
+def _two_sample_t(gs: GroupStats, msw: float, df_w: int, confidence: float) -> TwoSampleT:
+    """Pooled two-sample t of the first level minus the second (two non-empty groups)."""
+    nn = gs.n.astype(float)
+    t_pool = float(t_ppf(0.5 + confidence / 2, df_w))
+    diff = float(gs.mean[0] - gs.mean[1])
+    se_d = float(np.sqrt(msw * (1 / nn[0] + 1 / nn[1])))
+    t_stat: float | None
+    p2: float | None
+    lo: float | None
+    hi: float | None
+    if se_d > 0:
+        t_stat = diff / se_d
+        p2 = float(t_two_sided_p(t_stat, df_w))
+        lo, hi = diff - t_pool * se_d, diff + t_pool * se_d
+    else:
+        t_stat = p2 = lo = hi = None
+    return TwoSampleT(first=gs.labels[0], second=gs.labels[1], difference=diff, statistic=t_stat, df=df_w,
+                      pvalue=p2, ci_low=lo, ci_high=hi, confidence=confidence)

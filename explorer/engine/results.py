@@ -22,6 +22,7 @@ from ..formatting import (
 )
 from ..rendering import block, html_repr, note
 from .dataset import RowId
+from .deferred import deferrable
 from .disclosure import Disclosure
 from .errors import ExplorerError
 from .groupstats import GroupStats
@@ -38,7 +39,7 @@ if TYPE_CHECKING:  # multi-factor result parts (see factorial.py)
     from .term_effects import TermEffects
     from .variance_components import VarianceComponents
 
-__all__ = ["LevelTable", "TwoSampleT", "Fit", "Results", "deferred_fit"]
+__all__ = ["LevelTable", "TwoSampleT", "Fit", "Results", "DEFERRABLE"]
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -136,36 +137,12 @@ class Fit:
         )
 
 
-_FIT_FIELDS = ("row_ids", "positions", "y", "fitted", "residuals", "leverage", "group")
+#: Fields of :class:`Results` a builder may give as ``deferred(make)`` (:mod:`.deferred`): made on first read.
+DEFERRABLE = ("levels", "fit", "two_groups", "partitions", "marginal_means", "term_effects", "cells", "blocking",
+              "expected_mean_squares", "variance_components", "covariates")
 
 
-class _DeferredFit(Fit):
-    """A :class:`Fit` whose per-row arrays are made on first reading (all at once), then kept."""
-
-    def __init__(self, make: Callable[[], Fit]) -> None:  # noqa: D107 - the dataclass fields come later
-        object.__setattr__(self, "_make", make)
-
-    def __getattr__(self, name: str) -> Any:
-        make = self.__dict__.get("_make")
-        if name not in _FIT_FIELDS or make is None:
-            raise AttributeError(name)
-        fit = make()
-        for f in _FIT_FIELDS:
-            object.__setattr__(self, f, getattr(fit, f))
-        object.__setattr__(self, "_make", None)
-        return getattr(self, name)
-
-
-def deferred_fit(make: Callable[[], Fit]) -> Fit:
-    """A fit whose per-row arrays (eight bytes a row each) are computed by ``make()`` when first read.
-
-    The partition and tables of an edit need only group statistics; the per-row part
-    costs memory and time proportional to the table, so results of an edit make it
-    only when something (a chart, a check, a scan) reads it.
-    """
-    return _DeferredFit(make)
-
-
+@deferrable(*DEFERRABLE)
 @dataclass(frozen=True, kw_only=True, eq=False)
 class Results:
     """Everything the analysis of one view produces.
@@ -175,6 +152,9 @@ class Results:
     raw sum of squares). ``levels`` maps each treatment factor to its level table
     (least-squares means for factorial designs). ``groups`` are the sufficient
     statistics of the groups (one-way) or cells (factorial) that were fitted.
+
+    The fields in :data:`DEFERRABLE` may be computed on first read (:mod:`.deferred`): an
+    edit's recompute makes the partition, and the tables around it when they are read.
     """
 
     spec: ModelSpec

@@ -28,6 +28,7 @@ import pandas as pd
 
 from ..engine.cells import layout_cells
 from ..engine.dataset import Dataset, build_dataset, level_label
+from ..engine.deferred import replace_deferred
 from ..engine.edits import Edit, MergeLevels, RenameLevel, edit_from_dict
 from ..engine.errors import DataError, DesignError, EditError, ExplorerError, ReplayError
 from ..engine.factorial import factorial_from_cells
@@ -308,7 +309,7 @@ class SummaryStudy(Study):
             kind = "randomized block" if spec.blocks else "factorial"
             res = factorial_from_cells(layout, cells, spec, rows=rows, dataset_notes=self.prepared.notes,
                                        method=f"least squares, {kind} ({method}, QR)")
-        return dataclasses.replace(res, notes=res.notes + self._notes(view, atoms, int(n.sum()), len(sample_y)))
+        return replace_deferred(res, notes=res.notes + self._notes(view, atoms, int(n.sum()), len(sample_y)))
 
     def _sample_rows(self, view: SummaryView) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Current level codes, shifted response and positions of the kept sample rows."""
