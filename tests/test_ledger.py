@@ -83,9 +83,12 @@ def test_the_whole_ledger_round_trips_through_the_file(tmp_path):
     assert again.ledger.to_dict() == before
 
 
-def _older_file(doc: dict) -> dict:
-    """The same study as schema 1 wrote it: no ledger, no comparisons, searches as {what, count}."""
+def _older_file(doc: dict, dataset) -> dict:
+    """The same study as schema 1 wrote it: no ledger, no comparisons, searches as {what, count}, the
+    fingerprint by its first definition."""
     old = copy.deepcopy(doc)
+    del old["data"]["fingerprint_method"]
+    old["data"]["fingerprint"] = dataset.fingerprint_by("pandas-row-hash")
     ledger = old.pop("ledger")
     old.pop("comparisons", None)
     old["schema"] = 1
@@ -105,7 +108,7 @@ def test_an_older_file_loads_with_an_honest_note(tmp_path):
     study.set_test("kruskal")
     study.record_search("flip finder", 40)
     path = tmp_path / "old.study.json"
-    path.write_text(json.dumps(_older_file(study.to_dict())))
+    path.write_text(json.dumps(_older_file(study.to_dict(), study.dataset)))
     back = ex.Study.load(path, DEMO)
     assert back.spec.test == "kruskal" and [e.rows for e in back.edits] == [(7,)]
     d = back.disclosure

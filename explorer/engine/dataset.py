@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from ..formatting import measurement_decimals
+from .column_digest import COLUMN_SHA256, FINGERPRINT_METHODS, PANDAS_ROW_HASH, ColumnBytes, column_bytes
 from .decimal_shift import shift_float, shift_text
 from .errors import ColumnError, DataError, EditError, closest_names, preview
 from .loading import read_table
@@ -124,19 +125,28 @@ class Dataset:
 
     @property
     def fingerprint(self) -> str:
-        """32 hexadecimal digits of SHA-256 over the response, factor and covariate names, the row count and
-        every row's hash (:mod:`.row_hash`): what a saved study is checked against."""
+        """32 hexadecimal digits of SHA-256 over the names, the row count and the columns' bytes
+        (:mod:`.column_digest`): what a saved study is checked against."""
         return self._hashes().fingerprint
+
+    def fingerprint_by(self, method: str) -> str:
+        """The fingerprint by a named definition (:data:`.column_digest.FINGERPRINT_METHODS`; older study
+        files were written with ``"pandas-row-hash"``)."""
+        return self._hashes().fingerprint_by(method)
 
     @property
     def row_digests(self) -> np.ndarray:
-        """The low 32 bits of every row's hash (all rows, set-aside ones included)."""
+        """The low 32 bits of every row's hash (:mod:`.row_hash`; all rows, set-aside ones included)."""
         return self._hashes().row_digests
 
     @property
     def block_digests(self) -> np.ndarray:
-        """Per block of consecutive rows (:func:`.row_hash.block_digests`): digests of the ids and of the whole rows."""
+        """Per block of consecutive rows (:mod:`.column_digest`): digests of the ids and of the whole rows."""
         return self._hashes().block_digests
+
+    def block_digests_by(self, method: str) -> np.ndarray:
+        """The per-block digests by a named definition (as :meth:`fingerprint_by`)."""
+        return self._hashes().block_digests_by(method)
 
     def _hashes(self) -> RowHashes:
         if self.hashes is None:
@@ -424,7 +434,7 @@ def build_dataset(
     head = f"{response}|{'|'.join(factors)}|{len(frame)}".encode()
     if cov_values:  # files of studies without covariates keep their fingerprints
         head += f"|covariates {'|'.join(cov_values)}".encode()
-    hashes = RowHashes(head, ids, response, frame, factors, cov_values)
+    hashes = RowHashes(head, ids, response, frame, factors, cov_values, codes, levels, np.flatnonzero(~usable))
     del yv
     kept_cov = {}
     for c, v in cov_values.items():
@@ -461,31 +471,69 @@ def build_dataset(
 class RowHashes:
     """The hashes of a table's rows, computed when first asked for (a build need not wait for them).
 
-    Holds the columns it hashes until then; the fingerprint, per-row and per-block digests
-    are computed together once and the columns let go.
+    Holds the columns it hashes. Two definitions (:mod:`.column_digest`): ``"column-sha256"``
+    over the columns' bytes (what study files are written with) and ``"pandas-row-hash"``
+    over per-row hashes (:mod:`.row_hash`; files without ``fingerprint_method``, and the
+    per-row digests of small tables); each is computed once, when first read.
     """
 
     def __init__(self, head: bytes, ids: np.ndarray, response: str, frame: pd.DataFrame, factors: Sequence[str],
-                 covariates: Mapping[str, np.ndarray]) -> None:
-        self._inputs: tuple[Any, ...] | None = (head, ids, response, frame, tuple(factors), dict(covariates))
+                 covariates: Mapping[str, np.ndarray], codes: Mapping[str, np.ndarray] | None = None,
+                 levels: Mapping[str, Sequence[str]] | None = None, aside: np.ndarray | None = None) -> None:
+        self._inputs: tuple[Any, ...] = (head, ids, response, frame, tuple(factors), dict(covariates))
+        self._columns = (codes, levels, np.zeros(0, dtype=np.int64) if aside is None else aside)
         self._done: tuple[str, np.ndarray, np.ndarray] | None = None
+        self._column_done: tuple[str, np.ndarray | None] | None = None
 
     def _compute(self) -> tuple[str, np.ndarray, np.ndarray]:
         if self._done is None:
-            assert self._inputs is not None
             head, ids, response, frame, factors, covariates = self._inputs
-            y = pd.to_numeric(frame[response], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
-            hashed, id_hashed = row_hashes(ids, y, frame, factors, covariates)
-            del y
+            hashed, id_hashed = row_hashes(ids, self._response(), frame, factors, covariates)
             fingerprint = hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
             digests = read_only((hashed & 0xFFFFFFFF).astype(np.uint32))
             self._done = (fingerprint, digests, read_only(block_digests(hashed, id_hashed)))
-            self._inputs = None
         return self._done
+
+    def _response(self) -> np.ndarray:
+        frame, response = self._inputs[3], self._inputs[2]
+        y: np.ndarray = pd.to_numeric(frame[response], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        return y
+
+    def _column_bytes(self) -> ColumnBytes:
+        head, ids, response, frame, factors, covariates = self._inputs
+        codes, levels, aside = self._columns
+        if codes is None or levels is None:
+            raise DataError("this dataset was built without its factor codes for the column fingerprint")
+        return column_bytes(response, factors, ids, self._response(), frame, codes, levels, aside, covariates)
+
+    def _column(self, blocks: bool) -> tuple[str, np.ndarray | None]:
+        done = self._column_done
+        if done is None or (blocks and done[1] is None):
+            cols = self._column_bytes()
+            done = self._column_done = (cols.fingerprint(), read_only(cols.block_digests()) if blocks else None)
+        return done
+
+    def fingerprint_by(self, method: str) -> str:
+        """The fingerprint by one of :data:`~.column_digest.FINGERPRINT_METHODS`."""
+        if method == COLUMN_SHA256:
+            return self._column(False)[0]
+        if method == PANDAS_ROW_HASH:
+            return self._compute()[0]
+        raise DataError(f"no fingerprint method {method!r}; known: {', '.join(FINGERPRINT_METHODS)}")
+
+    def block_digests_by(self, method: str) -> np.ndarray:
+        """The per-block digests by one of :data:`~.column_digest.FINGERPRINT_METHODS`."""
+        if method == COLUMN_SHA256:
+            digests = self._column(True)[1]
+            assert digests is not None
+            return digests
+        if method == PANDAS_ROW_HASH:
+            return self._compute()[2]
+        raise DataError(f"no fingerprint method {method!r}; known: {', '.join(FINGERPRINT_METHODS)}")
 
     @property
     def fingerprint(self) -> str:
-        return self._compute()[0]
+        return self.fingerprint_by(COLUMN_SHA256)
 
     @property
     def row_digests(self) -> np.ndarray:
@@ -493,7 +541,7 @@ class RowHashes:
 
     @property
     def block_digests(self) -> np.ndarray:
-        return self._compute()[2]
+        return self.block_digests_by(COLUMN_SHA256)
 
 
 def _covariate_values(frame: pd.DataFrame, covariates: Sequence[str], response: str, factors: Sequence[str],

@@ -3,11 +3,16 @@
 File layout (schema 2)::
 
     {"format": "variance-explorer/study", "schema": 2, "spec": {...},
-     "data": {"source", "fingerprint", "rows", "id_source", "block_check": {"rows", "digests"}},
+     "data": {"source", "fingerprint", "fingerprint_method", "rows", "id_source",
+              "block_check": {"rows", "digests"}},
      "edits": [{"kind": ..., "reason": ..., "at": ..., ...}, ...],
      "position": k, "comparisons": "tukey-kramer",
      "ledger": {"complete": true, "entries": [{"kind", "what", "at", "count", ...}, ...]}}
 
+``fingerprint_method`` names the definition the fingerprint and the block digests follow
+(:mod:`~explorer.engine.column_digest`): ``"column-sha256"`` (the columns' bytes) in files
+written now; a file without it was written with ``"pandas-row-hash"`` (per-row hashes,
+:mod:`~explorer.engine.row_hash`) and is checked that way.
 ``row_check`` (tables of at most 1024 rows) holds each row id and a 32-bit digest of its row;
 larger tables get ``block_check`` instead: two 8-byte digests (the ids; the whole rows) of
 each of 1024 blocks of consecutive rows, so the file's size stops growing with the table.
@@ -35,6 +40,7 @@ from typing import Any
 
 import numpy as np
 
+from ..engine.column_digest import COLUMN_SHA256, PANDAS_ROW_HASH
 from ..engine.dataset import Dataset, decode_digests, encode_digests
 from ..engine.edits import Edit, check_utc_time, edit_from_dict
 from ..engine.errors import ReplayError, preview
@@ -44,7 +50,7 @@ from .ledger import Ledger
 from .schema_check import SCHEMA_FILES, first_violation, load_schema
 
 __all__ = ["FORMAT", "MAX_DEPTH", "MAX_STUDY_FILE_BYTES", "SCHEMA", "check_ledger", "check_study_doc",
-           "describe_mismatch", "edits_from_doc", "ledger_from_doc", "parse_study_json", "read_study_file",
+           "describe_mismatch", "edits_from_doc", "fingerprint_method", "ledger_from_doc", "parse_study_json", "read_study_file",
            "study_to_dict"]
 
 FORMAT = "variance-explorer/study"
@@ -53,17 +59,19 @@ SCHEMA = 2
 
 def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position: int, ledger: Ledger,
                   comparisons: str = "tukey-kramer") -> dict[str, Any]:
+    check = _row_check(dataset)  # first: the block digests and the fingerprint then share one read of the columns
     return {
         "format": FORMAT,
         "schema": SCHEMA,
         "spec": spec.to_dict(),
         "data": {
             "source": dataset.source,
-            "fingerprint": dataset.fingerprint,
+            "fingerprint": dataset.fingerprint_by(COLUMN_SHA256),
+            "fingerprint_method": COLUMN_SHA256,
             "rows": int(len(dataset.table)),
             "id_source": dataset.id_source,
             "id_column": dataset.id_column,
-            **_row_check(dataset),
+            **check,
         },
         "edits": [e.to_dict() for e in edits],
         "position": position,
@@ -78,7 +86,8 @@ def _row_check(dataset: Dataset) -> dict[str, Any]:
     if len(dataset.table) <= BLOCKS:
         return {"row_check": encode_digests(dataset.all_row_ids, dataset.row_digests)}
     return {"block_check": {"rows": int(len(dataset.table)),
-                            "digests": base64.b64encode(dataset.block_digests.astype("<u8").tobytes()).decode()}}
+                            "digests": base64.b64encode(dataset.block_digests_by(COLUMN_SHA256).astype("<u8").tobytes())
+                            .decode()}}
 
 
 def ledger_from_doc(doc: dict[str, Any], edits: list[Edit], position: int) -> Ledger:
@@ -252,13 +261,20 @@ def edits_from_doc(doc: dict[str, Any]) -> list[Edit]:
     return out
 
 
+def fingerprint_method(data: dict[str, Any]) -> str:
+    """The definition a saved ``data`` section's fingerprint follows (files without the field: the first one)."""
+    method = data.get("fingerprint_method", PANDAS_ROW_HASH)
+    return str(method)
+
+
 def describe_mismatch(doc: dict[str, Any], dataset: Dataset) -> str | None:
-    """``None`` when the fingerprints match, else a sentence on what differs."""
+    """``None`` when the fingerprints match (by the definition the file names), else a sentence on what differs."""
     data = doc["data"]
-    if data.get("fingerprint") == dataset.fingerprint:
+    method = fingerprint_method(data)
+    if data.get("fingerprint") == dataset.fingerprint_by(method):
         return None
     if "block_check" in data:
-        return _describe_blocks(data, dataset)
+        return _describe_blocks(data, dataset, method)
     saved = decode_digests(data["row_check"]) if "row_check" in data else {}
     now = {i: int(d) for i, d in zip([x for x in dataset.all_row_ids.tolist()], dataset.row_digests.tolist())}
     missing = [r for r in saved if r not in now]
@@ -276,14 +292,14 @@ def describe_mismatch(doc: dict[str, Any], dataset: Dataset) -> str | None:
     return "; ".join(parts)
 
 
-def _describe_blocks(data: dict[str, Any], dataset: Dataset) -> str:
+def _describe_blocks(data: dict[str, Any], dataset: Dataset, method: str) -> str:
     """What differs, from the saved block digests and those of the data given (rows read from the data)."""
     rows_then, rows_now = int(data["block_check"]["rows"]), int(len(dataset.table))
     raw = base64.b64decode(data["block_check"]["digests"])
     saved = np.frombuffer(raw, dtype="<u8").reshape(-1, 2)
     parts = [f"the data differ from those the log was saved on ({data.get('rows', rows_then)} rows then, {rows_now} now)"]
     if rows_then != rows_now:
-        now = dataset.block_digests
+        now = dataset.block_digests_by(method)
         same = 0
         while same < min(len(saved), len(now)) and bool(np.all(saved[same] == now[same])):
             same += 1
@@ -291,7 +307,7 @@ def _describe_blocks(data: dict[str, Any], dataset: Dataset) -> str:
             start = int(block_bounds(rows_now)[same])
             parts.append(f"the first {start} rows (positions 0..{start - 1}) are as saved")
         return "; ".join(parts)
-    now = dataset.block_digests
+    now = dataset.block_digests_by(method)
     bounds = block_bounds(rows_now)
     ids_differ = [b for b in range(len(now)) if saved[b, 0] != now[b, 0]]
     values_differ = [b for b in range(len(now)) if saved[b, 0] == now[b, 0] and saved[b, 1] != now[b, 1]]
