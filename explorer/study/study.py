@@ -331,7 +331,7 @@ class Study(PlannedAnalyses, AnalysisMethods):
         Every result is dropped and the current view fitted again (``_refit_current``: a
         summary-backed study fits it its own way); a refusal puts everything back.
         """
-        view = self.view
+        view = self._view_to_refit()
         saved: dict[str, Any] = {k: self.__dict__[k] for k in ("_results", "_decisions", "_base", "_now")
                                  if k in self.__dict__}
         old_spec, self.spec = self.spec, new_spec
@@ -345,6 +345,10 @@ class Study(PlannedAnalyses, AnalysisMethods):
         self._record_choice(what, old, new)
         self._emit("spec", None)
         return self.results
+
+    def _view_to_refit(self) -> DataView:
+        """The current view, read before a new spec drops the results (``_refit_current`` fits it again)."""
+        return self.view
 
     def _refit_current(self, view: DataView) -> None:
         """Fit the current view under the spec now set (after ``_forget_results``)."""

@@ -86,10 +86,16 @@ class SummaryStudy(Study):
     ----------
     source : Parquet/CSV path(s) or a pandas DataFrame (read by DuckDB), a Spark
         DataFrame (summarised by Spark), or a source object from this package.
-    response, factors, blocks, interactions, ss_type, alpha : as for :class:`~explorer.study.Study`.
+    response, factors, blocks, interactions, ss_type, alpha, terms, max_order, units : as for
+        :class:`~explorer.study.Study`.
     test : 'classic', or with one factor 'welch' or 'brown-forsythe' (exact from the
         summaries); the rank and permutation tests need every row and are refused (run
         them on :meth:`sample_study`, which says it is a sample).
+
+    What needs every row is refused with a message saying so, and nothing changes: a
+    transform of the response (:meth:`set_transform`), covariates, random, nested or
+    repeated-measures roles, and the rank and permutation tests. Model terms
+    (:meth:`set_terms`), alpha, the overall test and the comparison method can change.
     sample_size : rows drawn (seeded, by the engine) for residuals and charts; 0 for none.
     seed : the sample's seed.
     """
@@ -105,16 +111,21 @@ class SummaryStudy(Study):
         ss_type: str = "II",
         alpha: float = 0.05,
         test: str = "classic",
+        terms: Sequence[str | Sequence[str]] | None = None,
+        max_order: int | None = None,
+        units: str = "",
         sample_size: int = 2000,
         seed: int = 0,
     ) -> None:
         spec = ModelSpec(response=response, factors=factors, blocks=blocks,  # type: ignore[arg-type]
-                         interactions=interactions, ss_type=ss_type, alpha=alpha, test=test)  # type: ignore[arg-type]
+                         interactions=interactions, ss_type=ss_type, alpha=alpha, test=test,  # type: ignore[arg-type]
+                         terms=None if terms is None else tuple(terms), max_order=max_order,  # type: ignore[arg-type]
+                         units=units)
         self._setup(as_source(source), spec, int(sample_size), int(seed))
         self._read_files = _local_files(source)
 
     def _setup(self, source: Any, spec: ModelSpec, sample_size: int, seed: int) -> None:
-        _summary_test(spec.test)
+        _summary_spec(spec)
         self._read_files = _local_files(source)
         self._own_files: list[Path] = []
         self.source = source
@@ -496,6 +507,22 @@ class SummaryStudy(Study):
         """Fit the current view from the summaries under the spec now set."""
         self._results_at(self._position)
 
+    def _view_to_refit(self) -> Any:
+        """Nothing to read first: a new spec is fitted again from the cached summaries (a study without a
+        sample has no row view)."""
+        return None
+
+    def set_transform(self, transform: str | float, *, reason: str = "") -> Results:
+        """Refused: a transform of the response needs every row, and the summaries hold the response as read.
+
+        Nothing changes (spec, results, ledger). To analyse a transformed response, put it
+        in a column of the data and build the study on that column, or try the transform
+        on :meth:`sample_study` (a seeded sample, and it says so).
+        """
+        if transform == self.spec.transform:
+            return self.results
+        raise EditError(f"transform refused ({transform!r}): {_transform_reason(self.spec.response)}")
+
     def set_test(self, test: str) -> Any:
         """As :meth:`Study.set_test`; the rank and permutation tests are refused (they need every row)."""
         _summary_test(test)
@@ -583,6 +610,10 @@ class SummaryStudy(Study):
                               "row studies load with explorer.Study.load")
         check_study_doc(doc, FORMAT)
         spec = ModelSpec.from_dict(doc["spec"])
+        try:
+            _summary_spec(spec)
+        except ExplorerError as exc:
+            raise ReplayError(f"the study file's spec cannot be analysed from cell summaries: {exc}") from None
         sample = doc.get("sample", {})
         study = cls.__new__(cls)
         study._setup(as_source(data), spec, int(sample.get("size", 2000)), int(sample.get("seed", 0)))
@@ -625,7 +656,10 @@ class SummaryStudy(Study):
             f"response={lit(s.response)}, factors={lit(list(s.factors))}, blocks={lit(list(s.blocks))}, "
             f"interactions={lit(bool(s.interactions))}, ss_type={lit(s.ss_type)}, alpha={lit(float(s.alpha))}, "
             f"test={lit(s.test)}, "
-            f"sample_size={lit(int(self.sample_size))}, seed={lit(int(self.seed))})",
+            + (f"terms={lit([list(t) for t in s.terms])}, " if s.terms is not None else "")
+            + (f"max_order={lit(s.max_order)}, " if s.max_order is not None else "")
+            + (f"units={lit(s.units)}, " if s.units else "")
+            + f"sample_size={lit(int(self.sample_size))}, seed={lit(int(self.seed))})",
         ]
         lines += [f"study.apply(edit_from_dict({lit(e.to_dict())}))" for e in self.edits]
         return "\n".join(lines) + "\n"
@@ -644,6 +678,32 @@ def _local_files(source: Any) -> list[Path]:
     """The existing local files named by a source argument (a path or a list of paths), resolved."""
     items = source if isinstance(source, (list, tuple)) else [source]
     return [Path(x).resolve() for x in items if isinstance(x, (str, Path)) and Path(x).is_file()]
+
+
+def _transform_reason(response: str) -> str:
+    return (f"a summary-backed study holds each cell's count, mean and sum of squares of {response!r} as read, and "
+            "a transform needs every row (the mean of the logs is not the log of the mean); put the transformed "
+            "response in a column of the data and build the study on that column, or try the transform on "
+            "study.sample_study() (a seeded sample, and it says so)")
+
+
+def _summary_spec(spec: ModelSpec) -> None:
+    """Refuse, naming why, what a summary-backed study cannot compute from cell summaries."""
+    if spec.transform != "none":
+        raise ExplorerError(f"transform {spec.transform!r} refused: {_transform_reason(spec.response)}")
+    if spec.covariates:
+        raise ExplorerError(
+            f"covariates {list(spec.covariates)} refused: an adjustment for a covariate needs the cross-products of "
+            f"{spec.response!r} and the covariate in every cell, and a summary-backed study holds only each cell's "
+            "count, mean and sum of squares of the response; fit it with explorer.Study on the rows")
+    roles = [name for name, used in (("random", spec.random), ("nested", spec.nested), ("subject", spec.subject))
+             if used]
+    if roles:
+        raise ExplorerError(
+            f"the role(s) {roles} refused: a summary-backed study fits crossed fixed factors and blocks only "
+            "(random, nested and repeated-measures terms are not computed from its cell summaries); fit them with "
+            "explorer.Study on the rows")
+    _summary_test(spec.test)
 
 
 def _summary_test(test: str) -> None:

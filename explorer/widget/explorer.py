@@ -252,6 +252,11 @@ class Explorer(EditActions, ExplorerControls, W.VBox):
             options.append((f"Box-Cox power {transform:g}" if isinstance(transform, float) else str(transform), transform))
         self.transform_picker.options = options
         self.transform_picker.value = transform
+        # A summary-backed study holds cell summaries of the response as read: a transform needs every row.
+        summaries = hasattr(study, "sample_study")
+        self.transform_picker.disabled = summaries
+        self.transform_picker.tooltip = ("A summary-backed study holds each cell's count, mean and sum of squares of "
+                                         "the response; a transform needs every row" if summaries else None)
         self.terms_picker.options = terms_choices(study.spec)
         self.terms_picker.value = terms_value(study.spec)
         self.terms_picker.disabled = len(study.spec.factors) < 2

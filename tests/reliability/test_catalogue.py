@@ -143,6 +143,13 @@ def cond(case_id: str, text: Any, fragment: str, error: type[BaseException] | No
                fragment)
 
 
+def summary_variant(s: Scene, name: str, field: str, value: Any) -> Path:
+    """The summary-backed study's saved form with one spec field changed, as a file of bad inputs."""
+    doc = s.summary.to_dict()
+    doc["spec"][field] = value
+    return s.file(name, json.dumps(doc))
+
+
 def frame_with(s: Scene, **cols: Any) -> pd.DataFrame:
     return s.frame.assign(**cols)
 
@@ -690,6 +697,34 @@ CATALOGUE: list[Bad] = [
     Bad("cond-drop-level-unknown", "condition", lambda s: s.summary.drop_level("nozzle", "N9", reason="x"),
         EditError, "no level(s) 'N9'"),
     Bad("cond-row-id-edit", "condition", lambda s: s.summary.drop([3], reason="x"), EditError, "drop_where"),
+    # ---------------- specification choices a summary-backed study cannot compute from cell summaries
+    Bad("summary-transform-log", "API argument", lambda s: s.summary.set_transform("log", reason="x"), EditError,
+        "a transform needs every row"),
+    Bad("summary-transform-power", "API argument", lambda s: s.summary.set_transform(0.5, reason="x"), EditError,
+        "sum of squares of 'y' as read"),
+    Bad("summary-test-kruskal", "API argument", lambda s: s.summary.set_test("kruskal"), ExplorerError,
+        "the kruskal test needs every row"),
+    Bad("summary-test-permutation", "API argument", lambda s: s.summary.set_test("permutation"), ExplorerError,
+        "the permutation test needs every row"),
+    Bad("summary-test-unknown", "API argument", lambda s: s.summary.set_test("median"), ExplorerError,
+        "test must be one of"),
+    Bad("summary-terms-unknown", "API argument", lambda s: s.summary.set_terms(["nozzle", "nozzle × day"]),
+        ExplorerError, "names ['day'] column(s) outside the model"),
+    Bad("summary-respecify", "API argument", lambda s: s.summary.respecify(factors=["note"]), EditError,
+        "a summary-backed study keeps its model"),
+    Bad("summary-box-cox", "API argument", lambda s: s.summary.box_cox(), DesignError, "needs every kept row"),
+    Bad("summary-file-transform", "study file",
+        lambda s: SummaryStudy.load(summary_variant(s, "st.json", "transform", "log"), s.frame), ReplayError,
+        "a transform needs every row"),
+    Bad("summary-file-covariate", "study file",
+        lambda s: SummaryStudy.load(summary_variant(s, "sc.json", "covariates", ["day"]), s.frame), ReplayError,
+        "cross-products"),
+    Bad("summary-file-random", "study file",
+        lambda s: SummaryStudy.load(summary_variant(s, "sr.json", "random", ["nozzle"]), s.frame), ReplayError,
+        "crossed fixed factors and blocks only"),
+    Bad("summary-file-rank-test", "study file",
+        lambda s: SummaryStudy.load(summary_variant(s, "sk.json", "test", "kruskal"), s.frame), ReplayError,
+        "the kruskal test needs every row"),
     # ---------------- widget fields (the widget shows refusals; it never raises into the notebook)
     Bad("widget-no-reason", "widget field",
         widget_action(lambda w: w.leave_out_picked(), pick=("P100",)), WidgetRefusal, "Write a reason"),

@@ -1,0 +1,169 @@
+"""Specification choices on a summary-backed study: exact where the cell summaries suffice, refused otherwise.
+
+References: statsmodels ``anova_oneway`` (use_var='bf' for Brown-Forsythe's F* with
+Mehrotra's df, 'unequal' for Welch's F), statsmodels ``anova_lm`` (typ=2) of ``ols`` fits
+and scipy ``f_oneway``, each on the same rows read with pandas and filtered with a pandas
+mask for the condition in effect. What needs every row (a transform of the response, the
+rank and permutation tests, covariates, random, nested or repeated-measures roles) is
+refused with a message naming why, and nothing changes: spec, results, ledger, saved form.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+from summaries_support import close, unbalanced_frame
+
+from explorer.engine.errors import EditError, ExplorerError, ReplayError
+from explorer.summaries import SummaryStudy
+
+pytest.importorskip("duckdb")
+
+CONDITION = "temperature > 80"
+
+
+@pytest.fixture(scope="module")
+def frame() -> pd.DataFrame:
+    return unbalanced_frame()
+
+
+@pytest.fixture(scope="module")
+def kept(frame) -> pd.DataFrame:
+    """The rows left after ``CONDITION``, by a pandas mask."""
+    return frame[~(frame["temperature"] > 80)]
+
+
+@pytest.fixture(scope="module")
+def parquet(frame, tmp_path_factory):
+    path = tmp_path_factory.mktemp("spec") / "readings.parquet"
+    frame.to_parquet(path, index=False)
+    return path
+
+
+def _state(study: SummaryStudy) -> tuple:
+    return (study.spec, len(study.ledger), json.dumps(study.to_dict(), sort_keys=True), id(study.results),
+            study.results.partition.rows[0].statistic)
+
+
+def _groups(rows: pd.DataFrame) -> list[np.ndarray]:
+    return [g.to_numpy() for _, g in rows.groupby("line")["thickness"]]
+
+
+@pytest.mark.parametrize("factors", [["line"], ["line", "shift"]])
+@pytest.mark.parametrize("sample_size", [0, 200])
+def test_a_transform_is_refused_and_changes_nothing(frame, factors, sample_size):
+    """Every transform (log, square root, a Box-Cox power) is refused naming why; 'none' is a no-op."""
+    s = SummaryStudy(frame, "thickness", factors, sample_size=sample_size)
+    s.drop_where(CONDITION, reason="sensor outside its range")
+    before = _state(s)
+    for transform in ("log", "sqrt", 0.5):
+        with pytest.raises(EditError, match="a transform needs every row") as info:
+            s.set_transform(transform, reason="skewed")
+        assert "sample_study()" in str(info.value) and "'thickness'" in str(info.value)
+        assert _state(s) == before
+    assert s.set_transform("none") is s.results and _state(s) == before
+
+
+@pytest.mark.parametrize("test", ["kruskal", "permutation"])
+def test_tests_that_need_rows_are_refused_and_change_nothing(frame, test):
+    s = SummaryStudy(frame, "thickness", "line", sample_size=0)
+    s.drop_where(CONDITION, reason="sensor outside its range")
+    before = _state(s)
+    with pytest.raises(ExplorerError, match="needs every row"):
+        s.set_test(test)
+    assert _state(s) == before
+
+
+def test_brown_forsythe_and_welch_after_a_condition_match_statsmodels(parquet, kept, frame):
+    """The decision under Brown-Forsythe's F* and Welch's F, exact from the summaries after a condition:
+    statsmodels anova_oneway(use_var='bf' / 'unequal') on the rows the pandas mask keeps; the baseline on
+    all rows."""
+    from statsmodels.stats.oneway import anova_oneway
+
+    s = SummaryStudy(parquet, "thickness", "line", sample_size=0)
+    s.drop_where(CONDITION, reason="sensor outside its range")
+    for test, use_var in (("brown-forsythe", "bf"), ("welch", "unequal")):
+        d = s.set_test(test)
+        ref = anova_oneway(_groups(kept), use_var=use_var)
+        assert d.test == test
+        assert close(d.statistic, ref.statistic) and close(d.pvalue, ref.pvalue) and close(d.df_den, ref.df[1])
+        base = anova_oneway(_groups(frame), use_var=use_var)
+        assert close(s.baseline_decision.pvalue, base.pvalue)
+    assert [e.what for e in s.ledger.of_kind("specification")] == ["overall test", "overall test"]
+
+
+def test_model_terms_after_a_condition_match_statsmodels(parquet, kept, tmp_path):
+    """set_terms on a study without a sample (no row view): the additive and the full two-way partitions
+    after a condition equal statsmodels anova_lm(typ=2) on the kept rows; the terms survive save/load and
+    the replay code."""
+    smf = pytest.importorskip("statsmodels.formula.api")
+    from statsmodels.stats.anova import anova_lm
+
+    s = SummaryStudy(parquet, "thickness", ["line", "shift"], sample_size=0)
+    s.drop_where(CONDITION, reason="sensor outside its range")
+    for max_order, formula in ((1, "thickness ~ C(line) + C(shift)"), (None, "thickness ~ C(line) * C(shift)")):
+        res = s.set_terms(max_order=max_order)
+        ref = anova_lm(smf.ols(formula, data=kept).fit(), typ=2)
+        names = {"line": "C(line)", "shift": "C(shift)", "line × shift": "C(line):C(shift)"}
+        sources = [r.source for r in res.partition.rows if r.source in names]
+        assert sources == ["line", "shift"] + (["line × shift"] if max_order is None else [])
+        for row in res.partition.rows:
+            if row.source in names:
+                ref_row = ref.loc[names[row.source]]
+                assert close(row.sum_sq, ref_row["sum_sq"], 1e-8) and close(row.statistic, ref_row["F"], 1e-8)
+                assert close(row.pvalue, ref_row["PR(>F)"], 1e-8)
+    s.set_terms(max_order=1)
+    assert [e.what for e in s.ledger.of_kind("specification")] == ["model terms"] * 3
+    path = s.save(tmp_path / "additive.json")
+    again = SummaryStudy.load(path, parquet)
+    assert again.spec.max_order == 1 and close(again.results.partition.rows[0].statistic,
+                                               s.results.partition.rows[0].statistic)
+    code = s.to_code(str(parquet))
+    assert "max_order=1" in code
+    scope: dict = {}
+    exec(code, scope)
+    assert close(scope["study"].results.partition.rows[0].statistic, s.results.partition.rows[0].statistic)
+
+
+def test_alpha_on_a_study_without_a_sample(kept, parquet):
+    """set_alpha needs no row view: the decision's p is scipy f_oneway's on the kept rows, read at the new alpha."""
+    from scipy.stats import f_oneway
+
+    s = SummaryStudy(parquet, "thickness", "line", sample_size=0)
+    s.drop_where(CONDITION, reason="sensor outside its range")
+    p = f_oneway(*_groups(kept)).pvalue
+    alpha = float(p) * 0.5
+    d = s.set_alpha(alpha)
+    assert close(d.pvalue, p) and d.alpha == alpha and d.significant is False
+
+
+@pytest.mark.parametrize("field,value,fragment", [
+    ("transform", "log", "a transform needs every row"),
+    ("covariates", ["temperature"], "cross-products"),
+    ("random", ["line"], "crossed fixed factors and blocks only"),
+    ("test", "kruskal", "needs every row"),
+])
+def test_a_saved_spec_the_summaries_cannot_compute_is_refused(frame, field, value, fragment):
+    """A study file whose spec asks for something the cell summaries cannot give is refused at load
+    (before, a transform or a covariate in the file was ignored and the raw response analysed)."""
+    doc = SummaryStudy(frame, "thickness", "line", sample_size=0).to_dict()
+    doc["spec"][field] = value
+    with pytest.raises(ReplayError, match=fragment):
+        SummaryStudy.from_dict(doc, frame)
+
+
+def test_the_widget_holds_the_transform_picker_of_a_summary_backed_study(frame):
+    """The transform picker is disabled (with a tooltip saying why); a value set anyway shows the refusal."""
+    pytest.importorskip("ipywidgets")
+    from explorer.widget.explorer import Explorer
+
+    s = SummaryStudy(frame, "thickness", "line", sample_size=60)
+    e = Explorer(s)
+    assert e.transform_picker.disabled and "needs every row" in e.transform_picker.tooltip
+    before = _state(s)
+    e.transform_picker.value = "log"
+    assert "a transform needs every row" in e.status.value
+    assert e.transform_picker.value == "none" and _state(s) == before
