@@ -167,3 +167,37 @@ def test_the_widget_holds_the_transform_picker_of_a_summary_backed_study(frame):
     e.transform_picker.value = "log"
     assert "a transform needs every row" in e.status.value
     assert e.transform_picker.value == "none" and _state(s) == before
+
+
+@pytest.mark.parametrize("ss_type", ["I", "II", "III"])
+@pytest.mark.parametrize("design", ["three factors, two-way terms", "blocks, a block-by-factor term"])
+def test_chosen_terms_match_statsmodels(ss_type, design):
+    """Terms chosen after a condition on a three-factor and a blocked study: every term's SS, F and p equal
+    statsmodels anova_lm (typ=1/2/3, sum-to-zero coding) of the same terms on the kept rows, to 1e-8."""
+    smf = pytest.importorskip("statsmodels.formula.api")
+    from statsmodels.stats.anova import anova_lm
+
+    rows = unbalanced_frame(n=600)
+    rows["lot"] = rows["lot"].astype(str)
+    rows["grade"] = np.where(rows["temperature"] > 70, "A", "B")
+    kept = rows[~(rows["temperature"] > 85)]
+    if design.startswith("three"):
+        s = SummaryStudy(rows, "thickness", ["line", "shift", "grade"], ss_type=ss_type, sample_size=0)
+        terms = {"max_order": 2}
+        names = {"line": "C(line, Sum)", "shift": "C(shift, Sum)", "grade": "C(grade, Sum)",
+                 "line × shift": "C(line, Sum):C(shift, Sum)", "line × grade": "C(line, Sum):C(grade, Sum)",
+                 "shift × grade": "C(shift, Sum):C(grade, Sum)"}
+    else:
+        s = SummaryStudy(rows, "thickness", ["line", "shift"], blocks="lot", ss_type=ss_type, sample_size=0)
+        terms = {"terms": ["line", "shift", "lot × line"]}
+        names = {"lot": "C(lot, Sum)", "line": "C(line, Sum)", "shift": "C(shift, Sum)",
+                 "lot × line": "C(lot, Sum):C(line, Sum)"}
+    s.drop_where("temperature > 85", reason="sensor outside its range")
+    res = s.set_terms(**terms)
+    formula = "thickness ~ " + " + ".join(names.values())
+    aov = anova_lm(smf.ols(formula, data=kept).fit(), typ={"I": 1, "II": 2, "III": 3}[ss_type])
+    assert sorted(r.source for r in res.partition.rows if r.source in names) == sorted(names)
+    for src, ref in names.items():
+        row = res.partition.row(src)
+        assert close(row.sum_sq, aov.loc[ref, "sum_sq"], 1e-8), (src, ss_type)
+        assert close(row.statistic, aov.loc[ref, "F"], 1e-8) and close(row.pvalue, aov.loc[ref, "PR(>F)"], 1e-8)
