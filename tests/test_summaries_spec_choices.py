@@ -155,8 +155,9 @@ def test_a_saved_spec_the_summaries_cannot_compute_is_refused(frame, field, valu
         SummaryStudy.from_dict(doc, frame)
 
 
-def test_the_widget_holds_the_transform_picker_of_a_summary_backed_study(frame):
-    """The transform picker is disabled (with a tooltip saying why); a value set anyway shows the refusal."""
+def test_the_widget_holds_the_model_pickers_of_a_summary_backed_study(frame):
+    """The transform, response and factor pickers are disabled (with a tooltip saying why); a value set anyway
+    shows the refusal and the picker goes back to the model analysed."""
     pytest.importorskip("ipywidgets")
     from explorer.widget.explorer import Explorer
 
@@ -167,6 +168,10 @@ def test_the_widget_holds_the_transform_picker_of_a_summary_backed_study(frame):
     e.transform_picker.value = "log"
     assert "a transform needs every row" in e.status.value
     assert e.transform_picker.value == "none" and _state(s) == before
+    assert e.factor_picker.disabled and e.response_picker.disabled and "keeps its response" in e.factor_picker.tooltip
+    e.factor_picker.value = ("line", "shift")  # set anyway: refused, and the picker shows the model still analysed
+    assert "keeps its model" in e.status.value and e.study is s and _state(s) == before
+    assert e.factor_picker.value == ("line",)
 
 
 @pytest.mark.parametrize("ss_type", ["I", "II", "III"])

@@ -257,6 +257,10 @@ class Explorer(EditActions, ExplorerControls, W.VBox):
         self.transform_picker.disabled = summaries
         self.transform_picker.tooltip = ("A summary-backed study holds each cell's count, mean and sum of squares of "
                                          "the response; a transform needs every row" if summaries else None)
+        for picker in (self.response_picker, self.factor_picker):  # respecify reads the rows again
+            picker.disabled = summaries
+            picker.tooltip = ("A summary-backed study keeps its response and factors; build a new one for others"
+                              if summaries else None)
         self.terms_picker.options = terms_choices(study.spec)
         self.terms_picker.value = terms_value(study.spec)
         self.terms_picker.disabled = len(study.spec.factors) < 2
@@ -331,6 +335,9 @@ class Explorer(EditActions, ExplorerControls, W.VBox):
         try:
             new, skipped = self._rebuilt(response, factors, alpha)
         except Exception as exc:  # noqa: BLE001  never raise into the notebook
+            with self._hold_pickers():  # the pickers show the model still analysed
+                self.response_picker.value = spec.response
+                self.factor_picker.value = tuple(spec.factors)
             self._status(f"Could not analyse {response} by {', '.join(factors)}: {exc}", "error")
             return
         self.set_study(new, action=f"model: {response} by {', '.join(factors)}, alpha {alpha:g}")
