@@ -135,15 +135,46 @@ def measurement_decimals(values: Any, *, most: int = 6) -> int | None:
     head = head[np.isfinite(head)]
     if v.size > 4096 and head.size and not any(_exact(head, d) for d in range(most + 1)):
         return None  # no step the first values take: none the whole table takes (no pass over the rest)
-    v = v[np.isfinite(v)]
-    if v.size == 0:
-        return None
+    if v.size <= _BLOCK:
+        v = v[np.isfinite(v)]
+        if v.size == 0:
+            return None
+        return next((d for d in range(most + 1) if _exact(v, d)), None)
 
     # A step the first values cannot take, no longer table can: try the long table only from the
     # first step its first 4,096 values take (the same answer, without seven passes over readings
-    # that have no fixed step).
-    start = next((d for d in range(most + 1) if _exact(v[:4096], d)), most + 1) if v.size > 4096 else 0
-    return next((d for d in range(start, most + 1) if _exact(v, d)), None)
+    # that have no fixed step). The table is read in blocks (no temporary the size of the table).
+    first = _first_finite(v, 4096)
+    if first.size == 0:
+        return None
+    start = next((d for d in range(most + 1) if _exact(first, d)), most + 1)
+    return next((d for d in range(start, most + 1) if _exact_blocks(v, d)), None)
+
+
+_BLOCK = 1 << 16
+
+
+def _first_finite(v: np.ndarray, m: int) -> np.ndarray:
+    """The first ``m`` finite values of ``v`` (fewer when it has fewer)."""
+    parts: list[np.ndarray] = []
+    got = 0
+    for i in range(0, v.size, _BLOCK):
+        block = v[i:i + _BLOCK]
+        block = block[np.isfinite(block)][:m - got]
+        parts.append(block)
+        got += block.size
+        if got >= m:
+            break
+    return np.concatenate(parts) if parts else v[:0]
+
+
+def _exact_blocks(v: np.ndarray, d: int) -> bool:
+    """:func:`_exact` over the finite values of ``v``, block by block (stops at the first block that fails)."""
+    for i in range(0, v.size, _BLOCK):
+        block = v[i:i + _BLOCK]
+        if not _exact(block[np.isfinite(block)], d):
+            return False
+    return True
 
 
 def _exact(part: np.ndarray, d: int) -> bool:

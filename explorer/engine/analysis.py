@@ -78,7 +78,7 @@ def _oneway(dataset: Dataset, view: DataView, spec: ModelSpec, groups: RunningGr
     """One-way results from running statistics; the per-row fit is made when first read."""
     factor = spec.factors[0]
     full = groups.stats
-    kept, codes, y, ids = view.kept, view.codes[factor], dataset.y, dataset.row_ids
+    kept, codes, y = view.kept, view.codes[factor], dataset.y
 
     def rows() -> Fit:
         positions = np.flatnonzero(kept)
@@ -86,10 +86,10 @@ def _oneway(dataset: Dataset, view: DataView, spec: ModelSpec, groups: RunningGr
         remap = np.cumsum(full.n > 0) - 1
         group = remap[codes[positions]]
         nn = gs.n.astype(float)
-        return row_fit(RowSet(y=y[positions], group=group, row_ids=ids[positions], positions=positions),
+        return row_fit(RowSet(y=y[positions], group=group, row_ids=dataset.ids_at(positions), positions=positions),
                        gs.mean, 1.0 / nn, full.offset)
 
-    dropped_ids = tuple(dataset.row_ids[groups.dropped].tolist())
+    dropped_ids = tuple(dataset.ids_at(groups.dropped).tolist())
     shown = Scale(decimals=dataset.reading_decimals(), units=spec.units)
     return oneway_from_stats(full, spec, rows=deferred(rows), dropped=dropped_ids, display=shown)
 

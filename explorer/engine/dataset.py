@@ -31,7 +31,7 @@ from .row_hash import block_digests, row_hashes
 from .table_checks import check_response_values, column_names, decimal_comma_hint, refuse_text_collisions, text_columns
 
 __all__ = ["Dataset", "RowHashes", "SetAsideRow", "RowId",
-           "build_dataset", "level_label", "natural_key", "decode_digests", "encode_digests"]
+           "build_dataset", "id_array", "level_label", "natural_key", "decode_digests", "encode_digests"]
 
 RowId = Union[int, str]
 
@@ -86,7 +86,9 @@ class Dataset:
     ----------
     table : the table as loaded (a private copy; all rows, set-aside ones included).
     response, factors : the column names in use.
-    row_ids : ids of the usable rows, in table order.
+    row_ids : ids of the usable rows, in table order (``all_row_ids``: of every row). Held as ``ids`` and
+        ``all_ids``: a ``range`` when the ids are row positions or a RangeIndex (no array of n ids is made
+        unless ``row_ids`` or ``all_row_ids`` is read; ``ids_at`` and the id look-ups work on the range).
     y : response of the usable rows minus ``offset`` (read-only float64), in units of
         ``2**unit_exponent`` (0, i.e. the response's own unit, unless its squares would
         overflow or underflow; see :mod:`.response_unit`). ``offset`` is in the same unit,
@@ -100,7 +102,7 @@ class Dataset:
     table: pd.DataFrame
     response: str
     factors: tuple[str, ...]
-    row_ids: np.ndarray
+    ids: np.ndarray | range
     y: np.ndarray
     offset: float
     offset_text: str
@@ -109,7 +111,7 @@ class Dataset:
     set_aside: tuple[SetAsideRow, ...]
     id_source: str
     source: str
-    all_row_ids: np.ndarray
+    all_ids: np.ndarray | range
     #: The rows' hashes behind ``fingerprint``, ``row_digests`` and ``block_digests``, made when first read.
     hashes: RowHashes | None = field(default=None, repr=False)
     id_column: str | None = None
@@ -158,6 +160,33 @@ class Dataset:
         return int(self.y.size)
 
     @property
+    def row_ids(self) -> np.ndarray:
+        """Ids of the usable rows (read-only; made from the range when first read, then kept)."""
+        return self._id_array("row_ids", self.ids)
+
+    @property
+    def all_row_ids(self) -> np.ndarray:
+        """Ids of every row, set-aside ones included (read-only; as ``row_ids``)."""
+        return self._id_array("all_row_ids", self.all_ids)
+
+    def _id_array(self, key: str, ids: np.ndarray | range) -> np.ndarray:
+        if not isinstance(ids, range):
+            return ids
+        made = self._positions.get(key)
+        if made is None:
+            made = self._positions[key] = read_only(id_array(ids))
+        out: np.ndarray = made
+        return out
+
+    def ids_at(self, positions: np.ndarray) -> np.ndarray:
+        """Ids of the usable rows at ``positions`` (integers; computed from the range when the ids are one)."""
+        ids = self.ids
+        if isinstance(ids, range):
+            return ids.start + ids.step * np.asarray(positions, dtype=np.int64)
+        out: np.ndarray = ids[positions]
+        return out
+
+    @property
     def y_original(self) -> np.ndarray:
         return self.y + self.offset
 
@@ -166,7 +195,9 @@ class Dataset:
         ``None`` when the readings have no fixed decimal step. Shown numbers follow it
         (:mod:`explorer.formatting`)."""
         if "decimals" not in self._memo:
-            raw = pd.to_numeric(self.table[self.response], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+            col = self.table[self.response]
+            raw = (col.to_numpy() if col.dtype == np.float64  # the column itself, no copy
+                   else pd.to_numeric(col, errors="coerce").to_numpy(dtype=float, na_value=np.nan))
             self._memo["decimals"] = measurement_decimals(raw)
         return self._memo["decimals"]
 
@@ -190,19 +221,24 @@ class Dataset:
         if aside:
             raise EditError(f"rows {preview(aside)} were set aside when the data were loaded (see study.set_aside)")
         if missing:
-            sample = preview(self.row_ids[:5].tolist(), 5)
+            sample = preview(self.ids_at(np.arange(min(self.n, 5))).tolist(), 5)
             raise EditError(f"no rows with ids {preview(missing)}; row ids look like {sample} ({self.id_source})")
         return found
 
     def _find(self, keys: list[RowId]) -> np.ndarray:
         """Position of each key among the usable rows, -1 where there is none (an integer's text finds it too)."""
-        ids = self.row_ids
-        if ids.dtype.kind in "iu":
+        ids = self.ids
+        if isinstance(ids, range) or ids.dtype.kind in "iu":
             wanted = np.array([k if isinstance(k, int) else int(k) if _INT_TEXT.fullmatch(k) else 0 for k in keys],
                               dtype=object)
             usable = np.array([isinstance(k, int) or bool(_INT_TEXT.fullmatch(k)) for k in keys], dtype=bool)
             usable &= np.array([-(2**63) <= int(w) < 2**63 for w in wanted], dtype=bool)
             w = np.where(usable, wanted, 0).astype(np.int64)
+            if isinstance(ids, range):  # position = (id - start) / step when that is a whole number in range
+                off = w - ids.start
+                pos = off // ids.step
+                hit = usable & (off % ids.step == 0) & (pos >= 0) & (pos < len(ids))
+                return np.where(hit, pos, -1).astype(np.int64)
             order = self._id_order()
             sorted_ids = ids if order is None else ids[order]
             at = np.minimum(np.searchsorted(sorted_ids, w), max(ids.size - 1, 0))
@@ -224,7 +260,7 @@ class Dataset:
         return order
 
     def row_id(self, position: int) -> RowId:
-        return _py(self.row_ids[position])
+        return _py(self.ids[position])
 
     def describe_ids(self) -> str:
         if self.id_source == "index":
@@ -238,12 +274,38 @@ class Dataset:
         return "row ids are row positions 0..n-1 (the table's index was not unique or not usable as ids)"
 
 
+def id_array(ids: np.ndarray | range) -> np.ndarray:
+    """Row ids as an array (int64 for a range)."""
+    if isinstance(ids, range):
+        return np.arange(ids.start, ids.stop, ids.step, dtype=np.int64)
+    return ids
+
+
 def _py(v: object) -> RowId:
     if isinstance(v, np.integer):
         return int(v)
     if isinstance(v, (int, str)):
         return v
     return str(v)
+
+
+def factorize(col: pd.Series) -> tuple[np.ndarray, Any]:
+    """Integer codes of a column (-1 where missing) and its distinct values, in order of first appearance.
+
+    As ``pd.factorize``; an Arrow-backed text column without missing values is encoded by Arrow's
+    dictionary encoding, whose 32-bit codes are read without the 64-bit copy pandas makes.
+    """
+    if isinstance(col.dtype, pd.StringDtype) and col.dtype.storage == "pyarrow" and not col.hasnans:
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        chunked = col.array.__arrow_array__()  # the Arrow data itself (the Arrow interchange protocol)
+        if chunked.num_chunks == 1:  # codes from the system allocator: freed when let go, not kept by a pool
+            encoded = pc.dictionary_encode(chunked.chunk(0), memory_pool=pa.system_memory_pool())
+            codes: np.ndarray = encoded.indices.to_numpy(zero_copy_only=False)
+            return codes, encoded.dictionary.to_numpy(zero_copy_only=False)
+    raw, uniques = pd.factorize(col, sort=False)
+    return raw, uniques
 
 
 def _id_index(frame: pd.DataFrame, id_column: str, response: str, factors: Sequence[str]) -> pd.Index:
@@ -336,47 +398,56 @@ def build_dataset(
     int_index = pd.api.types.is_integer_dtype(idx.dtype)
     blank_index = not int_index and any(isinstance(v, str) and not v.strip() for v in idx)
     usable_index = idx.is_unique and not blank_index and (int_index or all(isinstance(v, str) for v in idx))
+    ids: np.ndarray | range
     if id_column is not None:
         ids = np.asarray(idx, dtype=np.int64) if pd.api.types.is_integer_dtype(idx.dtype) else np.asarray(
             [str(v) for v in idx], dtype=object)
         id_source = f"column {id_column!r}"
     elif usable_index:
         ids = (np.asarray([_py(v) for v in idx], dtype=object) if not pd.api.types.is_integer_dtype(idx.dtype)
+               else range(idx.start, idx.stop, idx.step) if isinstance(idx, pd.RangeIndex)
                else np.asarray(idx, dtype=np.int64))
         id_source = "index"
     else:
-        ids = np.arange(len(frame), dtype=np.int64)
+        ids = range(len(frame))
         id_source = "position"
         why = ("not unique" if not idx.is_unique else "made of strings, some of them blank" if blank_index
                else "neither integers nor strings")
         notes.append(f"The table's index is {why}, so rows are identified by position 0..{len(frame) - 1}.")
 
-    # Response: numeric, finite.
+    # Response: numeric, finite. A float64 column is read where it lies (no copy; copy-on-write keeps it).
     col = frame[response]
     check_response_values(col, response)
-    numeric = pd.to_numeric(col, errors="coerce")
-    bad = numeric.isna() & col.notna()
-    if bad.any():
-        bad_ids = ids[np.flatnonzero(bad.to_numpy())].tolist()
-        shown = [str(v) for v in col[bad].head(3)]
-        raise DataError(
-            f"response column {response!r} has non-numeric values in rows {preview(bad_ids)} (e.g. {preview(shown, 3)}); "
-            f"fix or remove them, or pick another response.{decimal_comma_hint(shown)}"
-        )
-    yv = numeric.to_numpy(dtype=np.float64, na_value=np.nan)
-    inf = np.isinf(yv)
-    if inf.any():
-        raise DataError(
-            f"response column {response!r} has infinite values in rows {preview(ids[inf].tolist())}; "
-            "replace them with real measurements or drop those rows before loading"
-        )
+    if col.dtype == np.float64:
+        yv = col.to_numpy()
+    else:
+        numeric = pd.to_numeric(col, errors="coerce")
+        bad = numeric.isna() & col.notna()
+        if bad.any():
+            bad_ids = id_array(ids)[np.flatnonzero(bad.to_numpy())].tolist()
+            shown = [str(v) for v in col[bad].head(3)]
+            raise DataError(
+                f"response column {response!r} has non-numeric values in rows {preview(bad_ids)} (e.g. "
+                f"{preview(shown, 3)}); fix or remove them, or pick another response.{decimal_comma_hint(shown)}"
+            )
+        yv = numeric.to_numpy(dtype=np.float64, na_value=np.nan)
+        del numeric, bad
+    all_finite = bool(np.isfinite(yv.max()) and np.isfinite(yv.min())) if yv.size else True  # NaN propagates
+    if not all_finite:
+        inf = np.isinf(yv)
+        if inf.any():
+            raise DataError(
+                f"response column {response!r} has infinite values in rows {preview(id_array(ids)[inf].tolist())}; "
+                "replace them with real measurements or drop those rows before loading"
+            )
+        del inf
 
     # Rows with a missing response, factor or covariate value are set aside with a reason.
-    missing_y = np.isnan(yv)
     reasons: dict[int, list[str]] = {}
-    for i in np.flatnonzero(missing_y):
+    for i in ([] if all_finite else np.flatnonzero(np.isnan(yv))):
         reasons.setdefault(int(i), []).append(f"missing {response}")
-    cov_values = _covariate_values(frame, covariates, response, factors, id_column, ids)
+    cov_values = _covariate_values(frame, covariates, response, factors, id_column,
+                                    id_array(ids) if covariates else np.empty(0, dtype=np.int64))
     for c, v in cov_values.items():
         for i in np.flatnonzero(np.isnan(v)):
             reasons.setdefault(int(i), []).append(f"missing {c}")
@@ -386,6 +457,7 @@ def build_dataset(
             reasons.setdefault(int(i), []).append(f"missing {f}")
         if pd.api.types.is_float_dtype(fcol.dtype) or pd.api.types.is_integer_dtype(fcol.dtype):
             notes.append(f"Factor {f!r} is numeric; each distinct value is treated as a level, not as a quantity.")
+    every = not reasons
     usable = np.ones(len(frame), dtype=bool)
     usable[list(reasons)] = False
     set_aside = tuple(SetAsideRow(_py(ids[i]), "; ".join(r)) for i, r in sorted(reasons.items()))
@@ -406,8 +478,8 @@ def build_dataset(
         t = texts[response][usable].str.strip().tolist()
         y, offset, offset_text = shift_text(t)
     else:
-        y, offset, offset_text = shift_float(yv[usable])
-    y, offset, unit = safe_unit(y, offset, yv[usable])
+        y, offset, offset_text = shift_float(yv if every else yv[usable])
+    y, offset, unit = safe_unit(y, offset, yv if every else yv[usable])
     if unit:
         notes.append(unit_note(response, unit))
     y = read_only(np.ascontiguousarray(y, dtype=np.float64))
@@ -415,22 +487,25 @@ def build_dataset(
     codes: dict[str, np.ndarray] = {}
     levels: dict[str, tuple[str, ...]] = {}
     for f in factors:
-        fcol = frame[f][usable] if not usable.all() else frame[f]
+        fcol = frame[f] if every else frame[f][usable]
         # One factorisation: each distinct value is labelled once, rows get codes from their value's label.
-        raw, uniques = pd.factorize(fcol, sort=False)
+        raw, uniques = factorize(fcol)
         unique_labels = [level_label(u) for u in uniques]
         if fcol.dtype == object:
             labels = pd.Series(np.asarray(unique_labels, dtype=object)[raw], index=fcol.index)
-            refuse_text_collisions(fcol, labels, ids[usable], f"factor {f!r}")
+            refuse_text_collisions(fcol, labels, id_array(ids)[usable], f"factor {f!r}")
         order, unused = _level_order(fcol, pd.Series(uniques), unique_labels)
         if unused:
             notes.append(f"Factor {f!r}: unused categories {preview(unused)} are left out.")
         lookup = {lab: i for i, lab in enumerate(order)}
         per_value = np.array([lookup[lab] for lab in unique_labels], dtype=np.int32)
         codes[f], levels[f] = read_only(per_value[raw]), tuple(order)
+        del raw
 
-    every = bool(usable.all())
-    row_ids = read_only(ids if every else ids[usable])  # all rows usable: the same array, no copy
+    # All rows usable: the same ids (an array or a range), no copy.
+    row_ids = ids if every else read_only(id_array(ids)[usable])
+    if not isinstance(ids, range):
+        read_only(ids)
     head = f"{response}|{'|'.join(factors)}|{len(frame)}".encode()
     if cov_values:  # files of studies without covariates keep their fingerprints
         head += f"|covariates {'|'.join(cov_values)}".encode()
@@ -450,7 +525,7 @@ def build_dataset(
         table=frame,
         response=response,
         factors=factors,
-        row_ids=row_ids,
+        ids=row_ids,
         y=y,
         offset=offset,
         offset_text=offset_text,
@@ -460,7 +535,7 @@ def build_dataset(
         id_source=id_source,
         source=source,
         hashes=hashes,
-        all_row_ids=ids,
+        all_ids=ids,
         id_column=id_column,
         notes=tuple(notes),
         unit_exponent=unit,
@@ -477,7 +552,8 @@ class RowHashes:
     per-row digests of small tables); each is computed once, when first read.
     """
 
-    def __init__(self, head: bytes, ids: np.ndarray, response: str, frame: pd.DataFrame, factors: Sequence[str],
+    def __init__(self, head: bytes, ids: np.ndarray | range, response: str, frame: pd.DataFrame,
+                 factors: Sequence[str],
                  covariates: Mapping[str, np.ndarray], codes: Mapping[str, np.ndarray] | None = None,
                  levels: Mapping[str, Sequence[str]] | None = None, aside: np.ndarray | None = None) -> None:
         self._inputs: tuple[Any, ...] = (head, ids, response, frame, tuple(factors), dict(covariates))
@@ -488,7 +564,7 @@ class RowHashes:
     def _compute(self) -> tuple[str, np.ndarray, np.ndarray]:
         if self._done is None:
             head, ids, response, frame, factors, covariates = self._inputs
-            hashed, id_hashed = row_hashes(ids, self._response(), frame, factors, covariates)
+            hashed, id_hashed = row_hashes(id_array(ids), self._response(), frame, factors, covariates)
             fingerprint = hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
             digests = read_only((hashed & 0xFFFFFFFF).astype(np.uint32))
             self._done = (fingerprint, digests, read_only(block_digests(hashed, id_hashed)))
@@ -504,7 +580,7 @@ class RowHashes:
         codes, levels, aside = self._columns
         if codes is None or levels is None:
             raise DataError("this dataset was built without its factor codes for the column fingerprint")
-        return column_bytes(response, factors, ids, self._response(), frame, codes, levels, aside, covariates)
+        return column_bytes(response, factors, id_array(ids), self._response(), frame, codes, levels, aside, covariates)
 
     def _column(self, blocks: bool) -> tuple[str, np.ndarray | None]:
         done = self._column_done

@@ -120,13 +120,17 @@ def group_stats(y: np.ndarray, codes: np.ndarray, labels: tuple[str, ...], offse
     used to correct both the mean and the sum of squares for rounding in pass one.
     """
     k = len(labels)
+    codes = np.asarray(codes, dtype=np.intp)  # np.bincount reads intp: convert once, not in each of its four calls
     n = np.bincount(codes, minlength=k).astype(np.int64)
     s = np.bincount(codes, weights=y, minlength=k)
     with np.errstate(divide="ignore", invalid="ignore"):
         mean = np.where(n > 0, s / np.maximum(n, 1), 0.0)
-    r = y - mean[codes]
+    r = mean[codes]  # one row-sized temporary: y - mean, then its square, in place
+    np.subtract(y, r, out=r)
     rs = np.bincount(codes, weights=r, minlength=k)
-    r2 = np.bincount(codes, weights=r * r, minlength=k)
+    np.multiply(r, r, out=r)
+    r2 = np.bincount(codes, weights=r, minlength=k)
+    del r, codes
     with np.errstate(divide="ignore", invalid="ignore"):
         corr = np.where(n > 0, rs / np.maximum(n, 1), 0.0)
     mean = mean + corr

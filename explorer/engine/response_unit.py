@@ -79,12 +79,13 @@ def safe_unit(y: np.ndarray, offset: float, raw: np.ndarray) -> tuple[np.ndarray
     When the shift itself overflows (values of both signs near the float limit), the raw
     values are scaled first: scaling by a power of two commutes with the subtraction.
     """
-    if y.size and not np.all(np.isfinite(y)):
+    top, bottom = (float(y.max()), float(y.min())) if y.size else (0.0, 0.0)  # no row-sized temporary
+    if not (np.isfinite(top) and np.isfinite(bottom)):
         pre = 8
         y, offset, _ = shift_float(rescale(raw, pre))
         e = pre + unit_exponent(float(np.max(np.abs(y))))
         return rescale(y, e - pre), float(np.ldexp(offset, pre - e)), e
-    e = unit_exponent(float(np.max(np.abs(y)))) if y.size else 0
+    e = unit_exponent(max(abs(top), abs(bottom)))
     if not e:
         return y, offset, 0
     return rescale(y, e), float(np.ldexp(offset, -e)), e

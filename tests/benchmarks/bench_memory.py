@@ -5,7 +5,11 @@ Each size runs in its own process (its peak resident memory is its own); invente
   frame          memory of the input DataFrame (pandas memory_usage(deep=True))
   build          ex.Study(frame, "y", "g") against the floor "read the two columns and one
                  grouped pass" (pd.factorize of the factor + np.bincount counts and sums),
-                 interleaved; peak resident memory after the build, beside the frame's size
+                 interleaved; the build's peak above the resident memory before it, in units of
+                 the frame's size, measured twice: the resident high-water mark reset just
+                 before the build (Linux /proc/self/clear_refs; ru_maxrss alone would report the
+                 peak of making the frame, which is higher) and tracemalloc's peak of a second
+                 build (numpy and Python allocations; not Arrow's own memory pool)
   edits          resident memory after 1 and after k edits (each leaves out one more row and
                  reads study.results), and after reset(); the growth per edit per row
   edit cost      one edit + study.results (drop a row, then restore it) against
@@ -27,6 +31,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import tracemalloc
 from pathlib import Path
 
 import numpy as np
@@ -37,9 +42,11 @@ sys.path.insert(0, str(HERE))
 from bench_support import (  # noqa: E402
     blas_threads,
     edit_and_recompute,
+    hwm_mib,
     interleaved,
     load_average,
     peak_mib,
+    reset_peak,
     rss_mib,
 )
 
@@ -59,11 +66,21 @@ def measure(n: int, edits: int, rounds: int) -> dict:
     gc.collect()
     out["frame_mib"] = df.memory_usage(deep=True).sum() / 2**20
     out["rss_before_mib"] = rss_mib()
+    out["maxrss_before_mib"] = peak_mib()  # the high-water mark of making the frame
 
+    fresh_peak = reset_peak()
     t0 = time.perf_counter()
     study = ex.Study(df, "y", "g")
     out["build_s"] = time.perf_counter() - t0
-    out["peak_after_build_mib"] = peak_mib()
+    out["build_peak_above_mib"] = hwm_mib() - out["rss_before_mib"] if fresh_peak else float("nan")
+    out["rss_after_build_mib"] = rss_mib()
+    del study
+    gc.collect()
+    tracemalloc.start()
+    study = ex.Study(df, "y", "g")
+    _, top = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    out["build_traced_peak_mib"] = top / 2**20
 
     def floor_build():
         codes, _ = pd.factorize(df["g"])
@@ -136,11 +153,12 @@ def measure(n: int, edits: int, rounds: int) -> dict:
 def show(r: dict) -> None:
     n = r["n"]
     print(f"n = {n:.0e} (load average {r['load_start']} -> {r['load_end']}; peak resident {r['peak_mib']:.0f} MiB)")
-    extra = r["peak_after_build_mib"] - r["rss_before_mib"]
-    print(f"  frame {r['frame_mib']:.1f} MiB; build {r['build_s']:.2f} s, {r['build_ratio']:.1f}x the factorize + "
-          f"bincount floor (medians of interleaved rounds); peak after build {r['peak_after_build_mib']:.0f} MiB, "
-          f"{extra:.0f} MiB above the {r['rss_before_mib']:.0f} MiB resident before it ({extra / r['frame_mib']:.1f}x "
-          "the frame)")
+    extra, traced, frame_mib = r["build_peak_above_mib"], r["build_traced_peak_mib"], r["frame_mib"]
+    print(f"  frame {frame_mib:.1f} MiB; build {r['build_s']:.2f} s, {r['build_ratio']:.1f}x the factorize + "
+          f"bincount floor (medians of interleaved rounds); build's peak {extra:.0f} MiB above the "
+          f"{r['rss_before_mib']:.0f} MiB resident before it ({extra / frame_mib:.1f}x the frame; "
+          f"{r['rss_after_build_mib'] - r['rss_before_mib']:.0f} MiB still held after it), tracemalloc peak "
+          f"{traced:.0f} MiB ({traced / frame_mib:.1f}x)")
     print(f"  resident after build {r['rss_built_mib']:.0f} MiB, 1 edit {r['rss_1_edit_mib']:.0f}, k edits "
           f"{r['rss_k_edits_mib']:.0f} (+{r['k_edits_added_pct']:.1f}%; {r['bytes_per_edit_per_row']:.2f} bytes per "
           f"edit per row), after reset {r['rss_reset_mib']:.0f}")

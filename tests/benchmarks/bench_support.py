@@ -59,6 +59,31 @@ def peak_mib() -> float:
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
 
 
+def reset_peak() -> bool:
+    """Start the resident high-water mark (``VmHWM``) afresh from the resident memory now.
+
+    ``ru_maxrss`` is the process's high-water mark since it started and cannot be reset: read
+    after a step, it is the larger of that step's peak and every earlier one (building the
+    input data, say). Linux (4.0 and later) resets ``VmHWM`` when ``5`` is written to
+    ``/proc/self/clear_refs``; False where that is not possible (then use tracemalloc).
+    """
+    try:
+        with open("/proc/self/clear_refs", "w") as fh:
+            fh.write("5")
+    except OSError:
+        return False
+    return True
+
+
+def hwm_mib() -> float:
+    """Resident high-water mark of this process since the last :func:`reset_peak` (MiB)."""
+    with open("/proc/self/status") as fh:
+        for line in fh:
+            if line.startswith("VmHWM:"):
+                return int(line.split()[1]) / 1024
+    return float("nan")
+
+
 def rss_mib() -> float:
     """Resident memory of this process now (MiB)."""
     with open("/proc/self/status") as fh:
