@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from itertools import combinations
 
 import numpy as np
@@ -46,22 +47,95 @@ __all__ = ["METHOD", "balanced_counts", "balanced_ems", "fit_balanced"]
 
 METHOD = "complete balanced layout: sums of squares from marginal means"
 
-#: Cell designs of recent layouts: a complete layout's design depends only on its shape, which an edit
-#: that drops or restores whole units revisits (the matrix is read-only).
-_DESIGNS: dict[tuple[object, ...], CellDesign] = {}
+#: What a complete layout's fit needs besides the cell means - the design, the marginal-mean keys, the
+#: coefficient picks and (X'WX)^-1 - depends only on the layout's shape and the count per cell, which an
+#: edit that drops or restores whole units revisits; kept for recent shapes (arrays read-only).
+_PLANS: dict[tuple[object, ...], "_Plan"] = {}
 
 
-def _design(terms: tuple[Term, ...], layout: CellLayout, nesting: Mapping[str, Sequence[str]]) -> CellDesign:
-    key = (terms, layout.columns, layout.n_levels, layout.cell_levels.tobytes(),
-           tuple(sorted((c, tuple(p)) for c, p in nesting.items())))
-    design = _DESIGNS.get(key)
-    if design is None:
-        design = cell_design(terms, layout.columns, layout.n_levels, layout.cell_levels, nesting)
-        design.matrix.flags.writeable = False
-        if len(_DESIGNS) >= 32:
-            _DESIGNS.clear()
-        _DESIGNS[key] = design
-    return design
+@dataclass(frozen=True, eq=False)
+class _TermPlan:
+    term: Term
+    marginals: tuple[tuple[float, frozenset[str]], ...]  # (sign, columns) of the inclusion-exclusion sum, in order
+    coef_slice: slice
+    pick: np.ndarray | None  # crossed term: a cell of each coefficient's level combination
+    nested: tuple[np.ndarray, np.ndarray] | None  # nested term: X_t and (X_t'X_t)^-1
+
+
+@dataclass(frozen=True, eq=False)
+class _Plan:
+    design: CellDesign
+    terms: tuple[_TermPlan, ...]
+    keys: dict[frozenset[str], tuple[np.ndarray, int, int]]  # columns -> (cell key, combinations, cells each)
+    cov: np.ndarray
+    df: dict[Term, int]
+    sequence: tuple[Term, ...]
+
+
+def _read_only(a: np.ndarray) -> np.ndarray:
+    a.flags.writeable = False
+    return a
+
+
+def _make_plan(terms: tuple[Term, ...], layout: CellLayout, spec: ModelSpec, counts: Mapping[str, int],
+               n0: float) -> _Plan:
+    nesting = spec.nesting
+    columns, n_levels, cell_levels = layout.columns, layout.n_levels, layout.cell_levels
+    pos = {c: i for i, c in enumerate(columns)}
+    design = cell_design(terms, columns, n_levels, cell_levels, nesting)
+    design.matrix.flags.writeable = False
+    p = design.n_params
+    cells = layout.n_cells
+    n = n0 * cells
+    cov = np.zeros((p, p))
+    cov[0, 0] = 1.0 / n
+    keys: dict[frozenset[str], tuple[np.ndarray, int, int]] = {}
+    plans = []
+    for t in terms:
+        parents = term_columns(t, nesting) - set(t)
+        marginals = []
+        for k in range(len(t) + 1):
+            sign = -1.0 if (len(t) - k) % 2 else 1.0
+            for sub in combinations(t, k):
+                cols = frozenset(parents | set(sub))
+                marginals.append((sign, cols))
+                if cols and cols not in keys:
+                    key = np.zeros(cells, dtype=np.int64)
+                    size = 1
+                    for j in sorted(pos[c] for c in cols):
+                        key = key * int(n_levels[j]) + cell_levels[:, j]
+                        size *= int(n_levels[j])
+                    keys[cols] = (_read_only(key), size, cells // math.prod(counts[c] for c in cols))
+        sl = design.slices[t]
+        pick = nested = None
+        if not parents:  # crossed term: coefficients and (X'WX)^-1 in closed form
+            shape = tuple(counts[c] for c in t)
+            where = np.zeros(shape, dtype=np.int64)
+            where[tuple(cell_levels[:, pos[c]] for c in t)] = np.arange(cells)
+            pick = _read_only(where[tuple(slice(0, k - 1) for k in shape)].ravel())
+            cov[sl, sl] = _kron_centering(shape) * (math.prod(shape) / n)
+        else:  # nested: the term's own block of the (block-diagonal) normal equations
+            x_t = design.matrix[:, sl]
+            inv = np.linalg.inv(x_t.T @ x_t)
+            nested = (x_t, _read_only(inv))
+            cov[sl, sl] = inv / n0
+        plans.append(_TermPlan(term=t, marginals=tuple(marginals), coef_slice=sl, pick=pick, nested=nested))
+    return _Plan(design=design, terms=tuple(plans), keys=keys, cov=_read_only(cov),
+                 df={t: design.slices[t].stop - design.slices[t].start for t in terms},
+                 sequence=sequential_order(terms, spec.blocks))
+
+
+def _plan(terms: tuple[Term, ...], layout: CellLayout, spec: ModelSpec, counts: Mapping[str, int],
+          n0: float) -> _Plan:
+    key = (terms, layout.columns, layout.n_levels, layout.cell_levels.tobytes(), n0, spec.blocks,
+           tuple(sorted((c, tuple(p)) for c, p in spec.nesting.items())))
+    plan = _PLANS.get(key)
+    if plan is None:
+        plan = _make_plan(terms, layout, spec, counts, n0)
+        if len(_PLANS) >= 32:
+            _PLANS.clear()
+        _PLANS[key] = plan
+    return plan
 
 
 def _kron_centering(shape: Sequence[int]) -> np.ndarray:
@@ -98,6 +172,22 @@ def balanced_counts(
     """
     if cell_n.size == 0 or not bool(np.all(cell_n == cell_n[0])):
         return None
+    nested = tuple(sorted((c, tuple(p)) for c, p in nesting.items()))
+    key = (layout.columns, layout.n_levels, layout.n_cells, tuple(terms), nested,
+           layout.cell_levels.tobytes() if any(c in nesting for c in layout.columns) else None)
+    if key not in _COUNTS:
+        if len(_COUNTS) >= 64:
+            _COUNTS.clear()
+        _COUNTS[key] = _counts(layout, terms, nesting)
+    counts = _COUNTS[key]
+    return None if counts is None else dict(counts)
+
+
+#: balanced_counts of recent layouts (a complete layout's answer depends on its shape and terms only).
+_COUNTS: dict[tuple[object, ...], dict[str, int] | None] = {}
+
+
+def _counts(layout: CellLayout, terms: Sequence[Term], nesting: Mapping[str, Sequence[str]]) -> dict[str, int] | None:
     columns, n_levels = layout.columns, layout.n_levels
     pos = {c: i for i, c in enumerate(columns)}
     counts: dict[str, int] = {}
@@ -123,18 +213,6 @@ def balanced_counts(
     return counts
 
 
-def _marginal(cell_levels: np.ndarray, n_levels: Sequence[int], cols: Sequence[int], z: np.ndarray,
-              cells_each: int) -> np.ndarray:
-    """Mean of ``z`` over the cells of each level combination of ``cols``, one value per cell."""
-    key = np.zeros(cell_levels.shape[0], dtype=np.int64)
-    size = 1
-    for j in cols:
-        key = key * int(n_levels[j]) + cell_levels[:, j]
-        size *= int(n_levels[j])
-    sums = np.bincount(key, weights=z, minlength=size)
-    return sums[key] / cells_each
-
-
 def fit_balanced(
     stats: GroupStats, layout: CellLayout, spec: ModelSpec, terms: Sequence[Term], counts: Mapping[str, int]
 ) -> CellFit | None:
@@ -144,15 +222,11 @@ def fit_balanced(
     (the general engine then says what is wrong).
     """
     terms = tuple(terms)
-    nesting = spec.nesting
-    columns, n_levels, cell_levels = layout.columns, layout.n_levels, layout.cell_levels
-    pos = {c: i for i, c in enumerate(columns)}
-    design = _design(terms, layout, nesting)
-    p = design.n_params
     n_c = stats.n.astype(np.float64)
     n0 = float(n_c[0])
-    cells = layout.n_cells
     n = int(stats.n.sum())
+    plan = _plan(terms, layout, spec, counts, n0)
+    p = plan.design.n_params
     if n - p < 1:
         return None
     mean = stats.mean
@@ -166,51 +240,36 @@ def fit_balanced(
     def marginal(cols: frozenset[str]) -> np.ndarray | float:
         if not cols:
             return grand
-        if cols not in means:
-            combos = math.prod(counts[c] for c in cols)
-            order = sorted((pos[c] for c in cols))
-            means[cols] = _marginal(cell_levels, n_levels, order, zc, cells // combos)
-        return means[cols]
+        m = means.get(cols)
+        if m is None:
+            key, size, each = plan.keys[cols]
+            m = means[cols] = np.bincount(key, weights=zc, minlength=size)[key] / each
+        return m
 
     ss_t: dict[Term, float] = {}
-    fitted = np.zeros(cells)
+    fitted = np.zeros(layout.n_cells)
     coef = np.zeros(p)
     coef[0] = center
-    cov = np.zeros((p, p))
-    cov[0, 0] = 1.0 / n
-    for t in terms:
-        parents = term_columns(t, nesting) - set(t)
-        effect = np.zeros(cells)
-        for k in range(len(t) + 1):
-            sign = -1.0 if (len(t) - k) % 2 else 1.0
-            for sub in combinations(t, k):
-                effect = effect + sign * marginal(frozenset(parents | set(sub)))
-        ss_t[t] = float(n0 * np.dot(effect, effect))
+    for tp in plan.terms:
+        effect = np.zeros(layout.n_cells)
+        for sign, cols in tp.marginals:
+            effect = effect + sign * marginal(cols)
+        ss_t[tp.term] = float(n0 * np.dot(effect, effect))
         fitted += effect
-        sl = design.slices[t]
-        if not parents:  # crossed term: coefficients and (X'WX)^-1 in closed form
-            shape = tuple(counts[c] for c in t)
-            table = np.zeros(shape)
-            table[tuple(cell_levels[:, pos[c]] for c in t)] = effect
-            coef[sl] = table[tuple(slice(0, k - 1) for k in shape)].ravel()
-            cov[sl, sl] = _kron_centering(shape) * (math.prod(shape) / n)
-        else:  # nested: the term's own block of the (block-diagonal) normal equations
-            x_t = design.matrix[:, sl]
-            gram = x_t.T @ x_t
-            inv = np.linalg.inv(gram)
-            coef[sl] = inv @ (x_t.T @ effect)
-            cov[sl, sl] = inv / n0
+        if tp.pick is not None:
+            coef[tp.coef_slice] = effect[tp.pick]
+        elif tp.nested is not None:
+            x_t, inv = tp.nested
+            coef[tp.coef_slice] = inv @ (x_t.T @ effect)
     pure = float(np.sum(stats.m2))
     lof = float(n0 * np.sum((zc - fitted) ** 2))
-    ss = {k: dict(ss_t) for k in SS_TYPES}
-    df = {k: {t: design.slices[t].stop - design.slices[t].start for t in terms} for k in SS_TYPES}
     return CellFit(
         terms=terms,
-        sequence=sequential_order(terms, spec.blocks),
-        design=design,
+        sequence=plan.sequence,
+        design=plan.design,
         stats=stats,
-        ss=ss,
-        df=df,
+        ss={k: dict(ss_t) for k in SS_TYPES},
+        df={k: dict(plan.df) for k in SS_TYPES},
         n=n,
         ss_resid=pure + lof,
         df_resid=n - p,
@@ -220,11 +279,15 @@ def fit_balanced(
         df_lack_of_fit=stats.k - p,
         ss_total=pure + float(n0 * np.dot(zc, zc)),
         coef=coef,
-        cov_unscaled=cov,
+        cov_unscaled=plan.cov,
         cell_fitted=center + fitted,
-        cell_leverage=np.full(cells, p / n),
+        cell_leverage=np.full(layout.n_cells, p / n),
         bases={},
     )
+
+
+#: E(MS) tables of recent complete layouts: they depend on the terms, the random columns and the counts only.
+_EMS: dict[tuple[object, ...], ExpectedMeanSquares] = {}
 
 
 def balanced_ems(fit: CellFit, spec: ModelSpec, counts: Mapping[str, int]) -> ExpectedMeanSquares:
@@ -232,8 +295,23 @@ def balanced_ems(fit: CellFit, spec: ModelSpec, counts: Mapping[str, int]) -> Ex
     E(MS_T) is N / (level combinations of U) when U's columns include all of T's (else 0).
 
     The same table as :func:`.ems.expected_mean_squares` returns there, without forming
-    the indicator matrices.
+    the indicator matrices. Recent tables are kept (coefficients read-only): an edit that
+    keeps the layout's shape gets the same value.
     """
+    nesting = fit.design.nesting
+    key = (fit.terms, tuple(sorted((c, tuple(p)) for c, p in (nesting or {}).items())), spec.random_columns,
+           tuple(sorted(counts.items())), fit.n)
+    ems = _EMS.get(key)
+    if ems is None:
+        ems = _balanced_ems(fit, spec, counts)
+        ems.coefficients.flags.writeable = False
+        if len(_EMS) >= 32:
+            _EMS.clear()
+        _EMS[key] = ems
+    return ems
+
+
+def _balanced_ems(fit: CellFit, spec: ModelSpec, counts: Mapping[str, int]) -> ExpectedMeanSquares:
     nesting = fit.design.nesting
     random_terms = sorted((t for t in fit.terms if is_random(t, spec)), key=lambda t: -len(term_columns(t, nesting)))
     n = float(fit.n)

@@ -27,6 +27,11 @@ __all__ = ["CellLayout", "CellTable", "layout_cells"]
 _DENSE_LIMIT = 4_000_000
 
 
+#: Cell labels of recent layouts of at most this many cells.
+_LABELS_KEPT_UP_TO = 4096
+_LABELS: dict[object, tuple[str, ...]] = {}
+
+
 @dataclass(frozen=True, kw_only=True, eq=False)
 class CellLayout:
     """Which level combinations occur.
@@ -50,11 +55,21 @@ class CellLayout:
         return tuple(len(lv) for lv in self.levels)
 
     def cell_labels(self) -> tuple[str, ...]:
-        """One label per cell, e.g. ``"machine=M1, shift=day"``."""
-        return tuple(
-            ", ".join(f"{c}={self.levels[j][code]}" for j, (c, code) in enumerate(zip(self.columns, row)))
-            for row in self.cell_levels.tolist()
-        )
+        """One label per cell, e.g. ``"machine=M1, shift=day"`` (kept for recent small layouts, which an
+        edit that drops and restores whole units revisits)."""
+        small = self.n_cells <= _LABELS_KEPT_UP_TO
+        key = (self.columns, self.levels, self.cell_levels.tobytes()) if small else None
+        labels = _LABELS.get(key) if small else None
+        if labels is None:
+            labels = tuple(
+                ", ".join(f"{c}={self.levels[j][code]}" for j, (c, code) in enumerate(zip(self.columns, row)))
+                for row in self.cell_levels.tolist()
+            )
+            if small:
+                if len(_LABELS) >= 32:
+                    _LABELS.clear()
+                _LABELS[key] = labels
+        return labels
 
     def missing_combinations(self, columns: Sequence[str]) -> list[tuple[str, ...]]:
         """Level combinations of ``columns`` that no kept row has (empty cells of that sub-table)."""

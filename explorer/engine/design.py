@@ -19,6 +19,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from functools import lru_cache
 from itertools import combinations
 
 import numpy as np
@@ -71,7 +72,7 @@ def _crosses_parent(combo: Sequence[str], nesting: Mapping[str, Sequence[str]]) 
 
 
 def model_terms(spec: ModelSpec) -> tuple[Term, ...]:
-    """Terms in display order.
+    """Terms in display order (a specification's terms are kept: every edit asks again).
 
     Without a subject: treatment terms (``spec.terms``, or main effects and the
     interactions up to ``spec.max_order`` - all orders when ``spec.interactions``, none
@@ -81,6 +82,11 @@ def model_terms(spec: ModelSpec) -> tuple[Term, ...]:
     within factors (none first), the fixed terms whose within part is that set, then
     the subject term crossed with it (``subject (within between factors) × time``).
     """
+    return _model_terms(spec)
+
+
+@lru_cache(maxsize=64)
+def _model_terms(spec: ModelSpec) -> tuple[Term, ...]:
     nesting = spec.nesting
     if spec.terms is not None:
         treatment = list(spec.terms)

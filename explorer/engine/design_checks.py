@@ -16,6 +16,7 @@ cell) and ch. 14 (nested designs).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from itertools import combinations
 
@@ -55,6 +56,8 @@ def _declared(a: str, b: str, spec: ModelSpec) -> bool:
 
 def _check_nesting(layout: CellLayout, spec: ModelSpec) -> None:
     """Raise when one grouping column is nested in (or confounded with) another without being declared so."""
+    if layout.n_cells == math.prod(layout.n_levels):
+        return  # every combination observed and every column at two or more levels: each level meets several
     for i, j in combinations(range(len(layout.columns)), 2):
         a, b = layout.columns[i], layout.columns[j]
         if _declared(a, b, spec):

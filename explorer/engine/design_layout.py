@@ -13,6 +13,8 @@ block designs), ch. 7 (confounding in blocks) and ch. 8 (fractional factorials).
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from .cells import CellLayout
@@ -37,8 +39,8 @@ def layout_notes(layout: CellLayout, cell_n: np.ndarray, spec: ModelSpec) -> tup
     """Notes on replication, fractions and incomplete blocks of the observed cells."""
     nested = set(spec.nesting)
     factors = [f for f in spec.factors if f not in nested]
-    if not factors:
-        return ()
+    if not factors or layout.n_cells == math.prod(layout.n_levels):
+        return ()  # a complete layout: no fraction, every block holds every combination, every cell observed
     idx = [layout.columns.index(f) for f in factors]
     sizes = [layout.n_levels[i] for i in idx]
     possible = int(np.prod(sizes))

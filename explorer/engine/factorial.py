@@ -16,6 +16,8 @@ Searle, S. R. (1987). Linear Models for Unbalanced Data. Wiley.
 
 from __future__ import annotations
 
+import math
+from collections.abc import Callable
 from dataclasses import replace
 
 import numpy as np
@@ -27,6 +29,7 @@ from .blocking import BlockingEfficiency, blocking_efficiency
 from .cellfit import SS_TYPES, CellFit, fit_cells
 from .cells import CellLayout, CellTable, layout_cells
 from .dataset import Dataset, RowId
+from .deferred import deferred
 from .design import fitted_terms
 from .design_checks import check_design
 from .design_layout import layout_notes
@@ -278,28 +281,16 @@ def factorial_from_cells(
     if closed is None:
         counts = None
     fit = closed or fit_cells(cells, layout.cell_levels, layout.columns, layout.n_levels, spec, terms=terms)
-    cell_table = CellTable.from_stats(layout, cells, fit.cell_fitted)
+    balanced = bool(layout.n_cells == math.prod(layout.n_levels) and np.all(cells.n == cells.n[0]))
     tables, ems_by_type = _tables_and_ems(fit, spec, layout, counts)
-    type_notes = _type_notes(tables, fit, cell_table.balanced, spec.alpha)
+    type_notes = _type_notes(tables, fit, balanced, spec.alpha)
     notes += [a.sentence() for a in fit.aliased]
     notes += type_notes
     table = tables[spec.ss_type]
     zero = table.row("residual").mean_sq == 0.0
     ms_e = 0.0 if zero else fit.ms_resid
     ems = ems_by_type.get(spec.ss_type)
-
-    levels: dict[str, LevelTable] = {}
-    means: dict[str, MarginalMeans] = {}
-    nested = spec.nesting
-    for j, f in enumerate(spec.factors):
-        gs = level_stats[j] if level_stats is not None else level_stats_from_cells(layout, cells, j)
-        ms_f, df_f = _error_of(table, fit.name((f,)), ms_e, fit.df_resid)
-        levels[f] = raw_level_table(gs, f, ms_f, df_f, confidence)
-        if f not in nested and f not in spec.random:
-            means[f] = marginal_means(fit, f, layout.levels[j], gs.original_means, gs.n, ms_f, confidence, df=df_f)
-    effects = term_effects(table, fit.term_names(), fit.n, alpha=spec.alpha)
-
-    row_fit_ = row_fit(rows, fit.cell_fitted, fit.cell_leverage, cells.offset)
+    tables_around = _around(layout, cells, spec, fit, table, ms_e, level_stats, confidence)
     kind = "randomized block" if spec.blocks else "factorial"
     return Results(
         spec=spec,
@@ -309,24 +300,49 @@ def factorial_from_cells(
         residual_sd=float(np.sqrt(ms_e)),
         df_resid=fit.df_resid,
         ms_resid=ms_e,
-        levels=levels,
+        levels=deferred(lambda: tables_around()[0]),
         groups=cells,
-        fit=row_fit_,
+        fit=deferred(lambda: row_fit(rows, fit.cell_fitted, fit.cell_leverage, cells.offset)),
         n_used=fit.n,
         dropped=dropped,
         method=method or (f"least squares, {kind} ({BALANCED_METHOD})" if closed is not None
                           else f"least squares, {kind} (cell sufficient statistics, QR)"),
         notes=tuple(notes),
         partitions=tables,
-        marginal_means=means,
-        term_effects=effects,
-        cells=cell_table,
-        blocking=None if spec.is_mixed else _blocking(table, fit, spec, cell_table.balanced),
+        marginal_means=deferred(lambda: tables_around()[1]),
+        term_effects=deferred(lambda: term_effects(table, fit.term_names(), fit.n, alpha=spec.alpha)),
+        cells=deferred(lambda: CellTable.from_stats(layout, cells, fit.cell_fitted)),
+        blocking=None if spec.is_mixed else _blocking(table, fit, spec, balanced),
         expected_mean_squares=ems,
         variance_components=None if ems is None else estimate_components(
             fit, spec, layout.cell_levels, layout.columns, ems, table, confidence),
         aliased=fit.aliased,
     )
+
+
+def _around(
+    layout: CellLayout, cells: GroupStats, spec: ModelSpec, fit: CellFit, table: AnovaTable, ms_e: float,
+    level_stats: list[GroupStats] | None, confidence: float,
+) -> Callable[[], tuple[dict[str, LevelTable], dict[str, MarginalMeans]]]:
+    """The level tables and marginal means, made together on the first call (results read them when shown)."""
+    made: list[tuple[dict[str, LevelTable], dict[str, MarginalMeans]]] = []
+
+    def make() -> tuple[dict[str, LevelTable], dict[str, MarginalMeans]]:
+        if not made:
+            levels: dict[str, LevelTable] = {}
+            means: dict[str, MarginalMeans] = {}
+            nested = spec.nesting
+            for j, f in enumerate(spec.factors):
+                gs = level_stats[j] if level_stats is not None else level_stats_from_cells(layout, cells, j)
+                ms_f, df_f = _error_of(table, fit.name((f,)), ms_e, fit.df_resid)
+                levels[f] = raw_level_table(gs, f, ms_f, df_f, confidence)
+                if f not in nested and f not in spec.random:
+                    means[f] = marginal_means(fit, f, layout.levels[j], gs.original_means, gs.n, ms_f, confidence,
+                                              df=df_f)
+            made.append((levels, means))
+        return made[0]
+
+    return make
 
 
 def layout_of(dataset: Dataset, view: DataView, spec: ModelSpec) -> CellLayout:

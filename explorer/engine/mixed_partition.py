@@ -14,6 +14,7 @@ Satterthwaite, F. E. (1946). Biometrics Bulletin 2, 110-114.
 
 from __future__ import annotations
 
+import weakref
 from collections.abc import Sequence
 from dataclasses import replace
 
@@ -65,6 +66,18 @@ def _notes(ems: ExpectedMeanSquares, errors: dict[str, ErrorTerm]) -> list[str]:
     return notes
 
 
+#: E(MS) of one complete layout labelled with each SS type (the three coincide there), by the "I" table.
+_BY_TYPE: "weakref.WeakKeyDictionary[ExpectedMeanSquares, dict[str, ExpectedMeanSquares]]" = weakref.WeakKeyDictionary()
+
+
+def _each_type(ems: ExpectedMeanSquares) -> dict[str, ExpectedMeanSquares]:
+    """``ems`` as the table of each SS type; kept while ``ems`` lives (a balanced layout's E(MS) are reused)."""
+    each = _BY_TYPE.get(ems)
+    if each is None:
+        each = _BY_TYPE[ems] = {k: replace(ems, ss_type=k) for k in SS_TYPES}
+    return dict(each)
+
+
 def mixed_tables(
     fit: CellFit, spec: ModelSpec, cell_levels: np.ndarray, columns: Sequence[str], zero_resid: bool,
     *, balanced_ems: ExpectedMeanSquares | None = None,
@@ -78,9 +91,8 @@ def mixed_tables(
         ems = balanced_ems if balanced_ems is not None else expected_mean_squares(fit, spec, cell_levels, columns, "I")
         table, _, _ = mixed_partition(fit, spec, cell_levels, columns, "I", zero_resid, ems=ems)
         for k in SS_TYPES:
-            ems_by_type[k] = replace(ems, ss_type=k)
             tables[k] = replace(table, ss_type=k) if k != "I" else table
-        return tables, ems_by_type
+        return tables, _each_type(ems)
     indicators = random_indicators(fit, spec, cell_levels, columns)
     for k in SS_TYPES:
         ems_by_type[k] = expected_mean_squares(fit, spec, cell_levels, columns, k, indicators=indicators)

@@ -30,6 +30,8 @@ Searle, S. R., Casella, G. and McCulloch, C. E. (1992). Variance Components. Wil
 
 from __future__ import annotations
 
+import math
+from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from fractions import Fraction
 
@@ -40,6 +42,7 @@ from scipy import special
 from ..formatting import result_frame
 from ..rendering import html_repr
 from .cellfit import CellFit
+from .deferred import deferrable, deferred
 from .design import Term
 from .ems import RESIDUAL, ExpectedMeanSquares, is_random, random_indicators
 from .reml import reml_fit
@@ -59,19 +62,37 @@ NEGATIVE_RULE = (
 
 def chi2_interval(estimate: float, df: float | None, confidence: float) -> tuple[float | None, float | None]:
     """nu s^2 / chi^2 quantiles (Satterthwaite 1946); undefined for non-positive estimates or df."""
-    if df is None or not np.isfinite(df) or df <= 0 or estimate <= 0:
-        return None, None
+    return chi2_intervals([estimate], [df], confidence)[0]
+
+
+def chi2_intervals(
+    estimates: list[float], dfs: list[float | None], confidence: float
+) -> list[tuple[float | None, float | None]]:
+    """:func:`chi2_interval` of several estimates, the quantiles found in one call (the same numbers)."""
+    out: list[tuple[float | None, float | None]] = [(None, None)] * len(estimates)
+    valid = [i for i, (e, df) in enumerate(zip(estimates, dfs))
+             if not (df is None or not math.isfinite(df) or df <= 0 or e <= 0)]
+    if not valid:
+        return out
     a = 1 - confidence
-    hi_q = float(special.chdtri(df, a / 2))  # upper a/2 quantile
-    lo_q = float(special.chdtri(df, 1 - a / 2))  # lower a/2 quantile: underflows to 0 for tiny df
-    low = df * estimate / hi_q if hi_q > 0 else None
-    high = df * estimate / lo_q if lo_q > 0 and np.isfinite(df * estimate / lo_q) else None
-    return low, high
+    nu = np.array([dfs[i] for i in valid], dtype=float)
+    hi_qs = special.chdtri(nu, a / 2)  # upper a/2 quantiles
+    lo_qs = special.chdtri(nu, 1 - a / 2)  # lower a/2 quantiles: underflow to 0 for tiny df
+    for i, hi_q, lo_q in zip(valid, hi_qs.tolist(), lo_qs.tolist()):
+        df, estimate = float(dfs[i]), estimates[i]  # type: ignore[arg-type]
+        low = df * estimate / hi_q if hi_q > 0 else None
+        high = df * estimate / lo_q if lo_q > 0 and math.isfinite(df * estimate / lo_q) else None
+        out[i] = (low, high)
+    return out
 
 
+@deferrable("df", "ci_low", "ci_high")
 @dataclass(frozen=True, kw_only=True)
 class VarianceComponent:
-    """One component: the estimate as computed, its df and interval, share of the total."""
+    """One component: the estimate as computed, its df and interval, share of the total.
+
+    The df and interval may be made when first read (:mod:`.deferred`; moment estimates after an edit).
+    """
 
     source: str
     estimate: float
@@ -133,23 +154,33 @@ class VarianceComponents:
         components count as computed in the estimate of the sum (it is unbiased); an
         interval needs a positive sum.
         """
-        picked = [self.component(s) for s in sources]
-        est = float(sum(c.estimate for c in picked))
-        df: float | None = None
-        if self.mean_squares:
-            coef: dict[str, float] = {}
-            for c in picked:
-                for row, k in c.combination:
-                    coef[row] = coef.get(row, 0.0) + k
-            ms = {row: (m, d) for row, m, d in self.mean_squares}
-            denom = sum((k * ms[row][0]) ** 2 / ms[row][1] for row, k in coef.items() if abs(k) > 1e-15)
-            df = est**2 / denom if denom > 0 and est > 0 else None
-        elif self.covariance is not None:
-            idx = [self.components.index(c) for c in picked]
-            var = float(np.sum(self.covariance[np.ix_(idx, idx)]))
-            df = 2 * est**2 / var if var > 0 and est > 0 else None
-        lo, hi = chi2_interval(est, df, self.confidence)
-        return CombinedComponents(sources=tuple(sources), estimate=est, df=df, ci_low=lo, ci_high=hi)
+        return self.combined_many([sources])[0]
+
+    def combined_many(self, groups: Sequence[Sequence[str]]) -> list[CombinedComponents]:
+        """:meth:`combined` of each list of sources in ``groups`` (the quantiles found in one call)."""
+        ms = {row: (m, d) for row, m, d in self.mean_squares}
+        ests: list[float] = []
+        dfs: list[float | None] = []
+        for sources in groups:
+            picked = [self.component(s) for s in sources]
+            est = float(sum(c.estimate for c in picked))
+            df: float | None = None
+            if self.mean_squares:
+                coef: dict[str, float] = {}
+                for c in picked:
+                    for row, k in c.combination:
+                        coef[row] = coef.get(row, 0.0) + k
+                denom = sum((k * ms[row][0]) ** 2 / ms[row][1] for row, k in coef.items() if abs(k) > 1e-15)
+                df = est**2 / denom if denom > 0 and est > 0 else None
+            elif self.covariance is not None:
+                idx = [self.components.index(c) for c in picked]
+                var = float(np.sum(self.covariance[np.ix_(idx, idx)]))
+                df = 2 * est**2 / var if var > 0 and est > 0 else None
+            ests.append(est)
+            dfs.append(df)
+        bounds = chi2_intervals(ests, dfs, self.confidence)
+        return [CombinedComponents(sources=tuple(sources), estimate=est, df=df, ci_low=lo, ci_high=hi)
+                for sources, est, df, (lo, hi) in zip(groups, ests, dfs, bounds)]
 
     def to_frame(self) -> pd.DataFrame:
         pct = f"{self.confidence:.0%}"
@@ -224,9 +255,10 @@ def moment_components(
 ) -> VarianceComponents:
     """Method-of-moments (ANOVA) estimates from the random rows' mean squares and their E(MS)."""
     rows = [i for i, r in enumerate(ems.rows) if ems.random_rows[i]]
+    by_source = {r.source: r for r in table.rows}
     a = ems.coefficients[rows]  # random rows x components
-    ms = np.array([table.row(ems.rows[i]).mean_sq or 0.0 for i in rows])
-    dfs = np.array([float(table.row(ems.rows[i]).df) for i in rows])
+    ms = np.array([by_source[ems.rows[i]].mean_sq or 0.0 for i in rows])
+    dfs = np.array([float(by_source[ems.rows[i]].df) for i in rows])
     exact = _exact_inverse(a)
     if exact is not None:  # balanced: integer E(MS) coefficients, rational inverse, one division per estimate
         nums, dens = exact
@@ -235,21 +267,34 @@ def moment_components(
     else:
         inv = np.linalg.solve(a, np.eye(len(rows))) if a.shape[0] == a.shape[1] else np.linalg.pinv(a)
         est = inv @ ms
-    comps = []
     names = list(ems.components)
-    shares = _shares(list(est))
-    for j, name in enumerate(names):
-        coef = inv[j]
-        combo = tuple((ems.rows[rows[i]], float(c)) for i, c in enumerate(coef) if abs(c) > 1e-12)
-        terms = np.array([c * table.row(r).mean_sq for r, c in combo])  # type: ignore[operator]
-        denom = float(np.sum(terms**2 / np.array([table.row(r).df for r, _ in combo])))
-        df = float(est[j] ** 2 / denom) if denom > 0 and est[j] > 0 else None
-        if name == RESIDUAL:
-            df = float(table.row(RESIDUAL).df)
-        lo, hi = chi2_interval(float(est[j]), df, confidence)
-        comps.append(VarianceComponent(source=name, estimate=float(est[j]), df=df, ci_low=lo, ci_high=hi,
-                                       share=shares[j], combination=combo))
-    notes = _negative_notes(names, list(est))
+    estimates = est.tolist()
+    shares = _shares(estimates)
+    combos = [tuple((ems.rows[rows[i]], c) for i, c in enumerate(inv[j].tolist()) if abs(c) > 1e-12)
+              for j in range(len(names))]
+    made: list[list[tuple[float | None, float | None, float | None]]] = []
+
+    def intervals() -> list[tuple[float | None, float | None, float | None]]:
+        """Satterthwaite's df and the chi-square interval of every component (made once, when first read)."""
+        if not made:
+            comp_dfs: list[float | None] = []
+            for j, name in enumerate(names):
+                terms = np.array([c * by_source[r].mean_sq for r, c in combos[j]])
+                denom = float(np.sum(terms**2 / np.array([by_source[r].df for r, _ in combos[j]])))
+                df = float(est[j] ** 2 / denom) if denom > 0 and est[j] > 0 else None
+                if name == RESIDUAL:
+                    df = float(by_source[RESIDUAL].df)
+                comp_dfs.append(df)
+            bounds = chi2_intervals(estimates, comp_dfs, confidence)
+            made.append([(df, lo, hi) for df, (lo, hi) in zip(comp_dfs, bounds)])
+        return made[0]
+
+    comps = [VarianceComponent(source=name, estimate=estimates[j], share=shares[j], combination=combos[j],
+                               df=deferred(lambda j=j: intervals()[j][0]),  # type: ignore[misc]
+                               ci_low=deferred(lambda j=j: intervals()[j][1]),  # type: ignore[misc]
+                               ci_high=deferred(lambda j=j: intervals()[j][2]))  # type: ignore[misc]
+             for j, name in enumerate(names)]
+    notes = _negative_notes(names, estimates)
     if ems.method.startswith("unbalanced"):
         notes.append(f"Unbalanced data: these moment estimates depend on the type {ems.ss_type} sums of squares "
                      "used; REML estimates do not.")
@@ -267,13 +312,16 @@ def reml_components(
     """Components from a REML fit (:func:`.reml.reml_fit`), residual last."""
     est = list(map(float, variances)) + [float(sigma2)]
     shares = _shares(est)
-    comps = []
-    for j, name in enumerate(list(names) + [RESIDUAL]):
+    all_names = list(names) + [RESIDUAL]
+    dfs: list[float | None] = []
+    for j in range(len(all_names)):
         df = None
         if covariance is not None and covariance[j, j] > 0:
             df = 2.0 * est[j] ** 2 / float(covariance[j, j])
-        lo, hi = chi2_interval(est[j], df, confidence)
-        comps.append(VarianceComponent(source=name, estimate=est[j], df=df, ci_low=lo, ci_high=hi, share=shares[j]))
+        dfs.append(df)
+    bounds = chi2_intervals(est, dfs, confidence)
+    comps = [VarianceComponent(source=name, estimate=est[j], df=dfs[j], ci_low=bounds[j][0], ci_high=bounds[j][1],
+                               share=shares[j]) for j, name in enumerate(all_names)]
     extra = list(notes)
     zero = [n for n, e in zip(names, est) if e <= 0]
     if zero:

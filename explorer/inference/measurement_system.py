@@ -36,6 +36,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
+from ..engine.deferred import deferrable, deferred
 from ..engine.ems import RESIDUAL
 from ..engine.errors import ExplorerError
 from ..engine.tables import html_table
@@ -49,9 +50,10 @@ if TYPE_CHECKING:
 __all__ = ["GaugeLine", "MeasurementSystem", "measurement_system"]
 
 
+@deferrable("df", "ci_low", "ci_high")
 @dataclass(frozen=True, kw_only=True)
 class GaugeLine:
-    """One line of the measurement-system table."""
+    """One line of the measurement-system table (the df and interval are made when first read)."""
 
     source: str
     variance: float
@@ -188,19 +190,31 @@ def measurement_system(
     value = {c.source: c.truncated for c in vc.components}
     total_var = sum(value.values())
     total_sd = math.sqrt(total_var)
+    made: list[list[tuple[float | None, float | None, float | None]]] = []
+
+    def intervals() -> list[tuple[float | None, float | None, float | None]]:
+        """Each line's df and interval (made once, when one is first read)."""
+        if not made:
+            out: list[tuple[float | None, float | None, float | None]] = []
+            for (_, parts), summed in zip(groups, vc.combined_many([parts for _, parts in groups])):
+                if any(vc.component(p).estimate < 0 for p in parts):
+                    out.append((None, None, None))  # the interval of a sum with a negative part is not defined
+                else:
+                    out.append((summed.df, summed.ci_low, summed.ci_high))
+            made.append(out)
+        return made[0]
+
     lines = []
-    for label, parts in groups:
+    for i, (label, parts) in enumerate(groups):
         var = float(sum(value[p] for p in parts))
         sd = math.sqrt(var)
-        summed = vc.combined(parts)
-        df, lo, hi = summed.df, summed.ci_low, summed.ci_high
-        if any(vc.component(p).estimate < 0 for p in parts):
-            df = lo = hi = None  # the interval of a sum with a negative part is not defined by this rule
         lines.append(GaugeLine(
             source=label, variance=var, share_of_variance=var / total_var if total_var > 0 else 0.0, sd=sd,
             study_variation=multiplier * sd, share_of_sd=sd / total_sd if total_sd > 0 else 0.0,
             share_of_tolerance=None if tolerance is None else multiplier * sd / tolerance,
-            df=df, ci_low=lo, ci_high=hi,
+            df=deferred(lambda i=i: intervals()[i][0]),  # type: ignore[misc]
+            ci_low=deferred(lambda i=i: intervals()[i][1]),  # type: ignore[misc]
+            ci_high=deferred(lambda i=i: intervals()[i][2]),  # type: ignore[misc]
         ))
     grr = math.sqrt(sum(value[p] for p in [RESIDUAL] + reproducibility))
     pv = math.sqrt(value[part_name])

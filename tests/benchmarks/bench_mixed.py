@@ -1,25 +1,35 @@
 """Benchmark: edit + recompute of random-factor designs, against statsmodels in the same run.
 
-Cases (median wall time of one edit + recompute; every figure from its own process):
+Cases (median time of one edit + recompute; every figure from its own process):
   msa-balanced     10 parts x 3 operators x 3 repeats. Ours: drop (or restore) a whole
                    part - the layout stays complete and balanced, so the fit takes the
-                   closed-form path (engine/balanced.py) and moment estimates -
-                   + study.results + study.measurement_system(). Reference:
-                   statsmodels ols + anova_lm on the edited table + the balanced
-                   variance-component algebra by hand (the cheapest statsmodels route).
+                   closed-form path (engine/balanced.py) and moment estimates - then
+                   study.results and study.measurement_system("part", "operator"), and
+                   reads each term's F and p (each against its own error term: part and
+                   operator against part x operator, part x operator against the residual),
+                   every variance component's estimate and share, and every measurement-
+                   system line's variance, share of variance and SD. What an edit makes only
+                   when first read is not read here: level tables, effect sizes with their
+                   noncentral-F intervals and power, the cell table, the per-row fit, the
+                   components' Satterthwaite df and intervals, the measurement lines'
+                   intervals (engine/deferred.py; tests/test_mixed_deferred.py checks that
+                   they equal a fresh analysis). Reference: statsmodels ols + anova_lm on
+                   the edited table (SS, df, MS, F and p, every F against the residual) +
+                   the balanced variance-component algebra by hand (four estimates) - the
+                   cheapest statsmodels route to the components.
   msa-balanced-qr  the msa-balanced case of ours with the closed-form path switched off
                    (the general QR cell engine), against the same reference: what the
                    closed form saves.
-  msa-balanced-vs-mixedlm  the same edit of ours; reference: statsmodels MixedLM REML
-                   (part, operator and part x operator as variance components, one group)
-                   on the edited balanced table - statsmodels' route to variance components
-                   with a likelihood fit.
-  msa-unbalanced   the same study, one row dropped or restored (unbalanced: REML).
-                   Reference: statsmodels MixedLM REML with part and operator as
-                   variance components (one group).
+  msa-balanced-vs-mixedlm  the same edit and reads of ours; reference: statsmodels MixedLM
+                   REML (part, operator and part x operator as variance components, one
+                   group) on the edited balanced table - statsmodels' route to variance
+                   components with a likelihood fit (estimates, no intervals).
+  msa-unbalanced   the same study, one row dropped or restored (unbalanced: the QR engine,
+                   Hartley's E(MS) and REML), the same reads. Reference: statsmodels MixedLM
+                   REML with part and operator as variance components (one group).
   random-intercept 1e4 rows, 200 subjects of unequal size, a fixed 3-level factor.
-                   Ours: drop or restore one row + study.results (REML). Reference:
-                   statsmodels MixedLM("y ~ C(dose)", groups=subject).fit(reml=True).
+                   Ours: drop or restore one row + study.results.variance_components (REML).
+                   Reference: statsmodels MixedLM("y ~ C(dose)", groups=subject).fit(reml=True).
 Each reference runs pinned to one BLAS thread (OPENBLAS/OMP/MKL_NUM_THREADS=1) and
 again with the default threads; ours runs pinned to one thread. Rounds are
 interleaved (ours, reference 1 thread, reference default, ours, ...); the script prints
@@ -96,8 +106,13 @@ def _ours(case: str):
                 row = (i // 2) % 50
                 (study.drop if i % 2 == 0 else study.restore)([row], reason="bench")
             state["i"] += 1
-            _ = study.results
-            return study.measurement_system("part", "operator")
+            res = study.results
+            table = study.measurement_system("part", "operator")
+            # the numbers the reference computes (and more): each term's F and p, the components and shares
+            tests = [(r.statistic, r.pvalue) for r in res.partition.rows]
+            components = [(c.estimate, c.share) for c in res.variance_components.components]
+            lines = [(x.variance, x.share_of_variance, x.sd) for x in table.lines]
+            return tests, components, lines
 
         return step
     frame = intercept_table()
