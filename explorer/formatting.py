@@ -169,10 +169,27 @@ def _first_finite(v: np.ndarray, m: int) -> np.ndarray:
 
 
 def _exact_blocks(v: np.ndarray, d: int) -> bool:
-    """:func:`_exact` over the finite values of ``v``, block by block (stops at the first block that fails)."""
+    """:func:`_exact` over the finite values of ``v``, block by block (stops at the first block that fails).
+
+    The same operations in two reused block-sized arrays: no allocation per block.
+    """
+    scaled, err = np.empty(_BLOCK), np.empty(_BLOCK)
+    step = 10.0**d
     for i in range(0, v.size, _BLOCK):
         block = v[i:i + _BLOCK]
-        if not _exact(block[np.isfinite(block)], d):
+        finite = np.isfinite(block)
+        if not finite.all():
+            block = block[finite]
+        a, b = scaled[:block.size], err[:block.size]
+        np.multiply(block, step, out=a)
+        np.round(a, out=b)
+        np.subtract(a, b, out=b)
+        np.abs(b, out=b)  # |scaled - round(scaled)|
+        np.abs(a, out=a)
+        np.maximum(a, 1.0, out=a)
+        np.multiply(a, 1e-7, out=a)
+        np.add(a, 1e-9, out=a)  # the tolerance of _exact
+        if not np.all(b <= a):
             return False
     return True
 

@@ -32,10 +32,15 @@ def shift_float(y: np.ndarray) -> tuple[np.ndarray, float, str]:
     """Shift floats by the median data value; return (shifted, offset, offset as text)."""
     if y.size == 0:
         return y.astype(np.float64), 0.0, "0"
-    offset = float(np.partition(y, y.size // 2)[y.size // 2])
+    out = np.array(y, dtype=np.float64, copy=True)  # one array: partitioned for the median, then the result
+    k = y.size // 2
+    out.partition(k)
+    offset = float(out[k])
     if not np.isfinite(offset) or abs(offset) < 1.0:
-        return y.astype(np.float64, copy=True), 0.0, "0"
-    return y - offset, offset, repr(offset)
+        np.copyto(out, y)
+        return out, 0.0, "0"
+    np.subtract(y, offset, out=out)
+    return out, offset, repr(offset)
 
 
 def shift_text(texts: list[str]) -> tuple[np.ndarray, float, str]:

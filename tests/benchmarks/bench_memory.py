@@ -87,7 +87,7 @@ def measure(n: int, edits: int, rounds: int) -> dict:
         y = df["y"].to_numpy()
         return np.bincount(codes), np.bincount(codes, weights=y)
 
-    build_rounds = 3 if n >= 1e6 else 7
+    build_rounds = 5 if n >= 1e6 else 9
     timed = interleaved({"ours": lambda: ex.Study(df, "y", "g"), "floor": floor_build}, build_rounds)
     out["build_ratio"] = timed["ours"] / timed["floor"]
     gc.collect()
