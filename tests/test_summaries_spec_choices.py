@@ -206,3 +206,36 @@ def test_chosen_terms_match_statsmodels(ss_type, design):
         row = res.partition.row(src)
         assert close(row.sum_sq, aov.loc[ref, "sum_sq"], 1e-8), (src, ss_type)
         assert close(row.statistic, aov.loc[ref, "F"], 1e-8) and close(row.pvalue, aov.loc[ref, "PR(>F)"], 1e-8)
+
+
+@pytest.mark.parametrize("name,call", [
+    ("trimmed-means", lambda s: s.trimmed_means()),
+    ("Dunn's", lambda s: s.dunn()),
+    ("HC3", lambda s: s.hc3_tests()),
+    ("Box-Cox", lambda s: s.box_cox()),
+    ("Mann-Whitney", lambda s: s.mann_whitney()),
+    ("each row", lambda s: s.row_deletion()),
+    ("set_aside_scan", lambda s: s.unit_deletion("line")),
+])
+def test_analyses_that_read_every_row_are_refused_and_change_nothing(frame, name, call):
+    """Rank tests, trimmed means, HC3, Box-Cox and row deletion read every kept row; on a summary-backed study
+    (whose fit holds a seeded sample) they are refused rather than computed on the sample as if on all rows."""
+    rows = frame[frame["line"] != "L3"] if name == "Mann-Whitney" else frame
+    s = SummaryStudy(rows, "thickness", "line", sample_size=120)
+    s.drop_where(CONDITION, reason="sensor outside its range")
+    before = _state(s), s.planned_requests
+    with pytest.raises(ExplorerError, match=name) as info:
+        call(s)
+    assert "sample_study()" in str(info.value)
+    assert (_state(s), s.planned_requests) == before
+
+
+def test_a_direct_call_on_summary_results_is_refused_too(frame):
+    """The guard sits in the computations themselves: ex.stats on a summary study's results refuses as well,
+    while the same call on a row study of the same rows works (scipy kruskal-based Dunn is checked elsewhere)."""
+    import explorer as ex
+
+    s = SummaryStudy(frame, "thickness", "line", sample_size=120)
+    with pytest.raises(ExplorerError, match="every kept row is needed for Dunn's test"):
+        ex.stats.dunn(s.results)
+    assert ex.stats.dunn(ex.Study(frame, "thickness", "line").results).adjusted.size == 3

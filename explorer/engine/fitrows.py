@@ -13,9 +13,25 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .errors import DesignError
 from .results import Fit
 
-__all__ = ["RowSet", "row_fit"]
+__all__ = ["RowSet", "every_kept_row", "row_fit"]
+
+
+def every_kept_row(fit: Fit, n_used: int, what: str) -> Fit:
+    """``fit`` when it holds every kept row; else (a summary-backed study's seeded sample) refuse ``what``.
+
+    A rank test, a trimmed mean or a heteroscedasticity-consistent covariance computed on
+    a sample would be a number about the sample presented as one about all the rows.
+    """
+    m = int(np.asarray(fit.y).size)
+    if m != int(n_used):
+        raise DesignError(
+            f"every kept row is needed for {what}, and this study's fit holds a sample of {m} of its {int(n_used)} "
+            "rows (a summary-backed study keeps cell summaries); run it on study.sample_study() (a seeded sample, "
+            "and it says so)")
+    return fit
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)

@@ -35,6 +35,7 @@ import pandas as pd
 from scipy import optimize, special
 
 from ..engine.errors import DesignError, ExplorerError
+from ..engine.fitrows import every_kept_row
 from ..engine.results import Results
 from ..engine.row_model import design_of
 from ..engine.tables import html_table
@@ -214,9 +215,8 @@ def box_cox(results: Results, *, lambdas: list[float] | None = None, confidence:
     if not 0 < conf < 1:
         raise ExplorerError(f"confidence must be between 0 and 1, not {confidence!r}")
     chosen = None if lambdas is None else check_lambdas(lambdas)
-    measured = inverse(np.asarray(results.fit.y, dtype=float), spec.transform)
-    if results.fit.y.size != results.n_used:
-        raise DesignError("the Box-Cox profile needs every kept row (this study's fit holds a sample of them)")
+    measured = inverse(np.asarray(every_kept_row(results.fit, results.n_used, "the Box-Cox profile").y, dtype=float),
+                       spec.transform)
     bad = ~(measured > 0)
     if np.any(bad):
         ids = np.asarray(results.fit.row_ids)[bad][:8].tolist()

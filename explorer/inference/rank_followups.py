@@ -29,6 +29,7 @@ import pandas as pd
 from scipy import special
 
 from ..engine.errors import DesignError
+from ..engine.fitrows import every_kept_row
 from ..engine.pairwise import adjust_pvalues
 from ..engine.results import Results
 from ..engine.tables import esc, html_table
@@ -111,7 +112,7 @@ def dunn(results: Results, *, adjust: str = "holm") -> DunnTable:
     ([5.5, 10.5, 3.5], [0.0997, 0.4328, 0.0181])
     """
     require_oneway(results, "Dunn's test")
-    fit = results.fit
+    fit = every_kept_row(results.fit, results.n_used, "Dunn's test")
     g = np.asarray(fit.group)
     k = results.groups.k
     ranks, ties = mid_ranks(np.asarray(fit.y, dtype=float))
@@ -235,7 +236,7 @@ def friedman(results: Results) -> FriedmanTest:
             f"{spec.blocks[0]!r} ({k} x {b} = {k * b} cells); this view has {int(np.sum(cells.n))} rows in "
             f"{len(cells.n)} cells. Average replicates yourself or use the F test of the block design."
         )
-    fit = results.fit
+    fit = every_kept_row(results.fit, results.n_used, "Friedman's test")
     y = np.asarray(fit.y, dtype=float)
     cl = np.asarray(cells.cell_levels)[np.asarray(fit.group)]
     grid = np.empty((b, k))

@@ -33,6 +33,7 @@ import pandas as pd
 from ..engine.design import contains
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError, ExplorerError
+from ..engine.fitrows import every_kept_row
 from ..engine.results import Results
 from ..engine.row_model import RowFit, design_of, fit_rows, hc_meat
 from ..engine.tables import html_table
@@ -135,6 +136,7 @@ def hc3_tests(
         notes.append("Sequential (type I) tests have no HC3 counterpart here; type II is shown.")
     if kind not in ("II", "III"):
         raise ExplorerError(f"ss_type must be 'II' or 'III', not {ss_type!r}")
+    every_kept_row(results.fit, results.n_used, "HC3 tests")
     cov_values = covariates if covariates is not None else getattr(results, "covariate_values", None)
     design = design_of(results, cov_values)
     y = np.asarray(results.fit.y, dtype=float) - float(results.groups.offset)

@@ -33,6 +33,7 @@ import pandas as pd
 
 from ..engine.distributions import f_sf
 from ..engine.errors import DesignError, ExplorerError
+from ..engine.fitrows import every_kept_row
 from ..engine.results import Results
 from ..engine.tables import html_table
 from ..formatting import p_equals, show_df, show_stat
@@ -128,7 +129,7 @@ def trimmed_means_test(results: Results, *, trim: float = 0.2) -> TrimmedMeansTe
     require_oneway(results, "The trimmed-means test")
     if not 0 <= trim < 0.5:
         raise ExplorerError(f"trim is the share cut from each end, between 0 and 0.5, not {trim!r}")
-    fit = results.fit
+    fit = every_kept_row(results.fit, results.n_used, "the trimmed-means test")
     g = np.asarray(fit.group)
     offset = float(results.groups.offset)
     y = np.asarray(fit.y, dtype=float) - offset

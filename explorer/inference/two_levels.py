@@ -30,6 +30,7 @@ from scipy import special
 
 from ..engine.distributions import t_ppf, t_two_sided_p
 from ..engine.errors import DesignError
+from ..engine.fitrows import every_kept_row
 from ..engine.results import Results
 from ..engine.tables import esc
 from ..formatting import p_equals, show_df, show_measure, show_share, show_stat
@@ -216,7 +217,7 @@ def mann_whitney(results: Results) -> MannWhitney:
     (0.0, 0.0286, 'exact')
     """
     _two(results, "The Mann-Whitney test")
-    fit = results.fit
+    fit = every_kept_row(results.fit, results.n_used, "the Mann-Whitney test")
     g = np.asarray(fit.group)
     y = np.asarray(fit.y, dtype=float)
     ranks, ties = mid_ranks(y)

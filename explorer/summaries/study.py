@@ -569,6 +569,20 @@ class SummaryStudy(Study):
         pairs of levels exactly."""
         return self._on_sample("regroup_scan", **options)
 
+    def unit_deletion(self, column: str, **options: Any) -> Any:
+        """Refused: a scan of whole levels left out is :meth:`set_aside_scan` here (exact, from the summaries)."""
+        raise DesignError(
+            f"leaving out each level of {column!r} in turn refits every row; on a summary-backed study use "
+            "study.set_aside_scan() (each level and cell set aside, exact from the summaries), or run it on "
+            "study.sample_study() (a seeded sample, and it says so)")
+
+    def row_deletion(self, **options: Any) -> Any:
+        """Refused: leaving out each row in turn needs the rows (see :meth:`case_deletion` for the sample's rows)."""
+        raise DesignError(
+            "leaving out each row in turn needs every row, and a summary-backed study keeps cell summaries; "
+            "run it on study.sample_study() (a seeded sample, and it says so), or use study.set_aside_scan() "
+            "for whole levels and cells (exact)")
+
     def robustness_sweep(self, **options: Any) -> Any:
         """The robustness sweep on the sample rows (see :meth:`sample_study`)."""
         return self._on_sample("robustness_sweep", **options)
