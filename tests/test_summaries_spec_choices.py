@@ -239,3 +239,25 @@ def test_a_direct_call_on_summary_results_is_refused_too(frame):
     with pytest.raises(ExplorerError, match="every kept row is needed for Dunn's test"):
         ex.stats.dunn(s.results)
     assert ex.stats.dunn(ex.Study(frame, "thickness", "line").results).adjusted.size == 3
+
+
+def test_planned_contrasts_are_exact_and_kept_by_save_load_and_replay_code(parquet, kept, tmp_path):
+    """A contrast asked on a summary-backed study after a condition: estimate, t and p equal statsmodels OLS
+    t_test of the same weights on the kept rows; the request survives save/load (it was dropped before) and the
+    replay code, as does the comparison method."""
+    smf = pytest.importorskip("statsmodels.formula.api")
+
+    s = SummaryStudy(parquet, "thickness", "line", sample_size=0)
+    s.drop_where(CONDITION, reason="sensor outside its range")
+    table = s.contrast("line", {"L1": 1, "L2": -1})
+    s.set_comparisons("games-howell")
+    ref = smf.ols("thickness ~ C(line) - 1", data=kept).fit().t_test([1, -1, 0])
+    assert close(table.estimate[0], float(np.ravel(ref.effect)[0]))
+    assert close(table.statistic[0], float(np.ravel(ref.tvalue)[0]), 1e-8)
+    assert close(table.pvalue[0], float(np.ravel(ref.pvalue)[0]), 1e-8)
+    again = SummaryStudy.load(s.save(tmp_path / "planned.json"), parquet)
+    assert again.planned_requests == s.planned_requests and again.comparisons == "games-howell"
+    assert close(again.planned()[0].value.pvalue[0], table.pvalue[0])
+    scope: dict = {}
+    exec(s.to_code(str(parquet)), scope)
+    assert scope["study"].planned_requests == s.planned_requests and scope["study"].comparisons == "games-howell"

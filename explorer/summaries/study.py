@@ -43,6 +43,7 @@ from ..engine.view import DataView
 from ..study.ledger import Ledger
 from ..study.output_files import write_text_atomic
 from ..study.persistence import check_study_doc, ledger_from_doc, read_study_file
+from ..study.planned import planned_from_doc
 from ..study.study import COMPARISON_METHODS, Study, StudyEvent
 from .atoms import MOVE_PREFIX, AtomTable, downdate, level_order, merge_atoms
 from .edits import (
@@ -589,7 +590,7 @@ class SummaryStudy(Study):
 
     # ------------------------------------------------------------ files
     def to_dict(self) -> dict[str, Any]:
-        return {
+        doc = {
             "format": FORMAT,
             "schema": SCHEMA,
             "spec": self.spec.to_dict(),
@@ -601,6 +602,9 @@ class SummaryStudy(Study):
             "comparisons": self.comparisons,
             "ledger": self._ledger.to_dict(),
         }
+        if self.planned_requests:
+            doc["planned"] = self.planned_to_dict()
+        return doc
 
     def save(self, path: str | Path, *, overwrite: bool = False) -> Path:
         """Write the spec, the summaries' fingerprint and the edit log (with undone edits) as JSON, atomically
@@ -650,6 +654,8 @@ class SummaryStudy(Study):
                 study.apply(e)
             except EditError as exc:
                 raise ReplayError(f"edit {i + 1} of the saved log ({e.describe()}) does not apply: {exc}") from None
+        for request, at in planned_from_doc(doc):
+            study._keep_request(request, record=False, at=at)
         position = int(doc.get("position", len(edits)))
         while study._position > position:
             study.undo()
@@ -676,6 +682,12 @@ class SummaryStudy(Study):
             + f"sample_size={lit(int(self.sample_size))}, seed={lit(int(self.seed))})",
         ]
         lines += [f"study.apply(edit_from_dict({lit(e.to_dict())}))" for e in self.edits]
+        for request in self.planned_requests:
+            method, args, kwargs = self.planned_call(request)
+            call = ", ".join([lit(a) for a in args] + [f"{k}={lit(v)}" for k, v in kwargs.items()])
+            lines.append(f"study.{method}({call})  # planned analysis, recomputed after every edit")
+        if self.comparisons != COMPARISON_METHODS[0]:
+            lines.append(f"study.set_comparisons({lit(self.comparisons)})")
         return "\n".join(lines) + "\n"
 
     def __repr__(self) -> str:
