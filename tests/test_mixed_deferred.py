@@ -32,7 +32,7 @@ from explorer.engine import balanced, cells, ems, variance_components
 from explorer.engine.analysis import analyze
 from explorer.engine.deferred import is_made
 
-DEFERRED_PARTS = ("levels", "marginal_means", "term_effects", "cells", "fit")
+DEFERRED_PARTS = ("uncorrected", "levels", "marginal_means", "term_effects", "cells", "fit")
 
 
 def gauge(parts: int = 10, operators: int = 3, reps: int = 3, seed: int = 0) -> pd.DataFrame:

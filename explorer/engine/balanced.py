@@ -70,6 +70,7 @@ class _Plan:
     cov: np.ndarray
     df: dict[Term, int]
     sequence: tuple[Term, ...]
+    leverage: np.ndarray  # every cell's hat value, p / N
 
 
 def _read_only(a: np.ndarray) -> np.ndarray:
@@ -122,7 +123,7 @@ def _make_plan(terms: tuple[Term, ...], layout: CellLayout, spec: ModelSpec, cou
         plans.append(_TermPlan(term=t, marginals=tuple(marginals), coef_slice=sl, pick=pick, nested=nested))
     return _Plan(design=design, terms=tuple(plans), keys=keys, cov=_read_only(cov),
                  df={t: design.slices[t].stop - design.slices[t].start for t in terms},
-                 sequence=sequential_order(terms, spec.blocks))
+                 sequence=sequential_order(terms, spec.blocks), leverage=_read_only(np.full(cells, p / int(n))))
 
 
 def _plan(terms: tuple[Term, ...], layout: CellLayout, spec: ModelSpec, counts: Mapping[str, int],
@@ -233,7 +234,7 @@ def fit_balanced(
     center = float(np.dot(n_c, mean) / n)
     center += float(np.dot(n_c, mean - center) / n)
     zc = mean - center
-    grand = float(np.mean(zc))
+    grand = float(np.add.reduce(zc) / zc.size)  # np.mean's arithmetic, without its wrapper
 
     means: dict[frozenset[str], np.ndarray] = {}
 
@@ -281,7 +282,7 @@ def fit_balanced(
         coef=coef,
         cov_unscaled=plan.cov,
         cell_fitted=center + fitted,
-        cell_leverage=np.full(layout.n_cells, p / n),
+        cell_leverage=plan.leverage,
         bases={},
     )
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import cached_property
 from itertools import product
 
 import numpy as np
@@ -50,7 +51,7 @@ class CellLayout:
     def n_cells(self) -> int:
         return int(self.cell_levels.shape[0])
 
-    @property
+    @cached_property
     def n_levels(self) -> tuple[int, ...]:
         return tuple(len(lv) for lv in self.levels)
 
@@ -61,10 +62,8 @@ class CellLayout:
         key = (self.columns, self.levels, self.cell_levels.tobytes()) if small else None
         labels = _LABELS.get(key) if small else None
         if labels is None:
-            labels = tuple(
-                ", ".join(f"{c}={self.levels[j][code]}" for j, (c, code) in enumerate(zip(self.columns, row)))
-                for row in self.cell_levels.tolist()
-            )
+            pieces = [[f"{c}={lv}" for lv in levels] for c, levels in zip(self.columns, self.levels)]
+            labels = tuple(", ".join([p[code] for p, code in zip(pieces, row)]) for row in self.cell_levels.tolist())
             if small:
                 if len(_LABELS) >= 32:
                     _LABELS.clear()

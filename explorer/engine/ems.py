@@ -32,8 +32,10 @@ Searle, S. R., Casella, G. and McCulloch, C. E. (1992). Variance Components. Wil
 
 from __future__ import annotations
 
+import weakref
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import lru_cache
 from itertools import combinations
 
 import numpy as np
@@ -127,15 +129,21 @@ class ErrorTerm:
 
     @property
     def label(self) -> str:
-        if not self.parts:
-            return "none"
-        out = ""
-        for i, (name, c) in enumerate(self.parts):
-            sign = "−" if c < 0 else "+"
-            mag = abs(c)
-            piece = name if abs(mag - 1) < 1e-9 else f"{show_coefficient(mag)}·{name}"
-            out += (piece if i == 0 and c > 0 else (f"{sign}{piece}" if i == 0 else f" {sign} {piece}"))
-        return out
+        return _label(self.parts)
+
+
+@lru_cache(maxsize=256)
+def _label(parts: tuple[tuple[str, float], ...]) -> str:
+    """``MS_A + MS_B - MS_AB`` written with the rows' names (kept: a layout's error terms recur)."""
+    if not parts:
+        return "none"
+    out = ""
+    for i, (name, c) in enumerate(parts):
+        sign = "−" if c < 0 else "+"
+        mag = abs(c)
+        piece = name if abs(mag - 1) < 1e-9 else f"{show_coefficient(mag)}·{name}"
+        out += (piece if i == 0 and c > 0 else (f"{sign}{piece}" if i == 0 else f" {sign} {piece}"))
+    return out
 
 
 def _combos(cell_levels: np.ndarray, idx: Sequence[int]) -> tuple[np.ndarray, int]:
@@ -256,6 +264,7 @@ def expected_mean_squares(
 
 _Denominators = tuple[tuple[tuple[tuple[str, float], ...], bool], ...]
 _DENOMINATORS: dict[tuple[object, ...], _Denominators] = {}
+_BY_TABLE: "weakref.WeakKeyDictionary[ExpectedMeanSquares, _Denominators]" = weakref.WeakKeyDictionary()
 
 
 def _denominators(ems: ExpectedMeanSquares) -> tuple[tuple[tuple[tuple[str, float], ...], bool], ...]:
@@ -264,9 +273,13 @@ def _denominators(ems: ExpectedMeanSquares) -> tuple[tuple[tuple[tuple[str, floa
     Depends on the E(MS) coefficients only, so it is memoised (a balanced design keeps its
     coefficients from one edit to the next).
     """
+    known = _BY_TABLE.get(ems)
+    if known is not None:
+        return known
     coef = ems.coefficients
     key = (ems.rows, ems.components, ems.random_rows, coef.shape, coef.tobytes())
     if key in _DENOMINATORS:
+        _BY_TABLE[ems] = _DENOMINATORS[key]
         return _DENOMINATORS[key]
     comp_index = {c: j for j, c in enumerate(ems.components)}
     out = []
@@ -285,7 +298,7 @@ def _denominators(ems: ExpectedMeanSquares) -> tuple[tuple[tuple[tuple[str, floa
         out.append((parts, exact))
     if len(_DENOMINATORS) > 256:
         _DENOMINATORS.clear()
-    _DENOMINATORS[key] = tuple(out)
+    _DENOMINATORS[key] = _BY_TABLE[ems] = tuple(out)
     return _DENOMINATORS[key]
 
 

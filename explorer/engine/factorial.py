@@ -295,7 +295,7 @@ def factorial_from_cells(
     return Results(
         spec=spec,
         partition=table,
-        uncorrected=_uncorrected(fit),
+        uncorrected=deferred(lambda: _uncorrected(fit)),
         r_squared=1.0 - fit.ss_resid / fit.ss_total if fit.ss_total > 0 else 0.0,
         residual_sd=float(np.sqrt(ms_e)),
         df_resid=fit.df_resid,

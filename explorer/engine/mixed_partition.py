@@ -113,14 +113,21 @@ def mixed_partition(
     dfs = {name: float(fit.df[ss_type][t]) for name, t in zip(names, fit.terms)}
     dfs[RESIDUAL] = float(fit.df_resid)
     errors = error_terms(ems, ms, dfs)
+    tested: dict[str, tuple[float, float, float]] = {}  # row -> (F, df, error df)
+    for name, t in zip(names, fit.terms):
+        e = errors[name]
+        if (e.parts and e.mean_sq is not None and e.mean_sq > 0 and e.df is not None
+                and not (zero_resid and any(n == RESIDUAL for n, _ in e.parts))):
+            tested[name] = (ms[name] / e.mean_sq, fit.df[ss_type][t], e.df)
+    if tested:  # every p-value from one call (the same numbers as one call each)
+        f_df = np.array(list(tested.values()), dtype=float).T
+        pvalues = dict(zip(tested, f_sf(f_df[0], f_df[1], f_df[2]).tolist()))
     rows = []
     for name, t in zip(names, fit.terms):
         e = errors[name]
         F = p = None
-        usable = e.parts and e.mean_sq is not None and e.mean_sq > 0 and e.df is not None
-        if usable and not (zero_resid and any(n == RESIDUAL for n, _ in e.parts)):
-            F = ms[name] / e.mean_sq  # type: ignore[operator]
-            p = float(f_sf(F, fit.df[ss_type][t], e.df))
+        if name in tested:
+            F, p = tested[name][0], pvalues[name]
         rows.append(TermRow(source=name, df=fit.df[ss_type][t], sum_sq=fit.ss[ss_type][t], mean_sq=ms[name],
                             statistic=F, pvalue=p, error_term=e.label, ms_error=e.mean_sq, df_error=e.df))
     rows.append(TermRow(source=RESIDUAL, df=fit.df_resid, sum_sq=fit.ss_resid, mean_sq=0.0 if zero_resid else ms[RESIDUAL]))

@@ -138,8 +138,8 @@ class Fit:
 
 
 #: Fields of :class:`Results` a builder may give as ``deferred(make)`` (:mod:`.deferred`): made on first read.
-DEFERRABLE = ("levels", "fit", "two_groups", "partitions", "marginal_means", "term_effects", "cells", "blocking",
-              "expected_mean_squares", "variance_components", "covariates")
+DEFERRABLE = ("uncorrected", "levels", "fit", "two_groups", "partitions", "marginal_means", "term_effects", "cells",
+              "blocking", "expected_mean_squares", "variance_components", "covariates")
 
 
 @deferrable(*DEFERRABLE)

@@ -31,8 +31,9 @@ Searle, S. R., Casella, G. and McCulloch, C. E. (1992). Variance Components. Wil
 from __future__ import annotations
 
 import math
+import weakref
 from collections.abc import Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from fractions import Fraction
 
 import numpy as np
@@ -250,28 +251,57 @@ def _rational_inverse(a: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
     return nums, dens
 
 
+@dataclass(frozen=True, eq=False)
+class _MomentPlan:
+    """What the moment estimates need from an E(MS) table alone (the same for every edit of a balanced layout)."""
+
+    row_names: tuple[str, ...]  # the random rows, whose mean squares are equated to their expectations
+    names: list[str]  # the components
+    exact: tuple[np.ndarray, np.ndarray] | None  # rational inverse (numerators, denominators) when integer
+    inverse: np.ndarray
+    combinations: list[tuple[tuple[str, float], ...]]  # each estimate as (mean square, coefficient)
+
+
+_MOMENT_PLANS: "weakref.WeakKeyDictionary[ExpectedMeanSquares, _MomentPlan]" = weakref.WeakKeyDictionary()
+
+
+def _moment_plan(ems: ExpectedMeanSquares) -> _MomentPlan:
+    plan = _MOMENT_PLANS.get(ems)
+    if plan is None:
+        rows = [i for i, r in enumerate(ems.rows) if ems.random_rows[i]]
+        a = ems.coefficients[rows]  # random rows x components
+        exact = _exact_inverse(a)
+        if exact is not None:
+            nums, dens = exact
+            inv = nums / dens[:, None]
+        else:
+            inv = np.linalg.solve(a, np.eye(len(rows))) if a.shape[0] == a.shape[1] else np.linalg.pinv(a)
+        combos = [tuple((ems.rows[rows[i]], c) for i, c in enumerate(inv[j].tolist()) if abs(c) > 1e-12)
+                  for j in range(len(ems.components))]
+        plan = _MOMENT_PLANS[ems] = _MomentPlan(row_names=tuple(ems.rows[i] for i in rows),
+                                                names=list(ems.components), exact=exact, inverse=inv,
+                                                combinations=combos)
+    return plan
+
+
 def moment_components(
-    ems: ExpectedMeanSquares, table: AnovaTable, confidence: float = 0.95
+    ems: ExpectedMeanSquares, table: AnovaTable, confidence: float = 0.95, extra_notes: tuple[str, ...] = ()
 ) -> VarianceComponents:
-    """Method-of-moments (ANOVA) estimates from the random rows' mean squares and their E(MS)."""
-    rows = [i for i, r in enumerate(ems.rows) if ems.random_rows[i]]
+    """Method-of-moments (ANOVA) estimates from the random rows' mean squares and their E(MS)
+    (``extra_notes`` follow the note on negative estimates)."""
+    plan = _moment_plan(ems)
     by_source = {r.source: r for r in table.rows}
-    a = ems.coefficients[rows]  # random rows x components
-    ms = np.array([by_source[ems.rows[i]].mean_sq or 0.0 for i in rows])
-    dfs = np.array([float(by_source[ems.rows[i]].df) for i in rows])
-    exact = _exact_inverse(a)
-    if exact is not None:  # balanced: integer E(MS) coefficients, rational inverse, one division per estimate
-        nums, dens = exact
-        inv = nums / dens[:, None]
+    ms = np.array([by_source[name].mean_sq or 0.0 for name in plan.row_names])
+    dfs = np.array([float(by_source[name].df) for name in plan.row_names])
+    if plan.exact is not None:  # balanced: integer E(MS) coefficients, rational inverse, one division per estimate
+        nums, dens = plan.exact
         est = np.array([float(np.dot(nums[j], ms)) / dens[j] for j in range(len(dens))])
     else:
-        inv = np.linalg.solve(a, np.eye(len(rows))) if a.shape[0] == a.shape[1] else np.linalg.pinv(a)
-        est = inv @ ms
-    names = list(ems.components)
+        est = plan.inverse @ ms
+    names = plan.names
     estimates = est.tolist()
     shares = _shares(estimates)
-    combos = [tuple((ems.rows[rows[i]], c) for i, c in enumerate(inv[j].tolist()) if abs(c) > 1e-12)
-              for j in range(len(names))]
+    combos = plan.combinations
     made: list[list[tuple[float | None, float | None, float | None]]] = []
 
     def intervals() -> list[tuple[float | None, float | None, float | None]]:
@@ -279,7 +309,7 @@ def moment_components(
         if not made:
             comp_dfs: list[float | None] = []
             for j, name in enumerate(names):
-                terms = np.array([c * by_source[r].mean_sq for r, c in combos[j]])
+                terms = np.array([c * by_source[r].mean_sq for r, c in combos[j]])  # type: ignore[operator]
                 denom = float(np.sum(terms**2 / np.array([by_source[r].df for r, _ in combos[j]])))
                 df = float(est[j] ** 2 / denom) if denom > 0 and est[j] > 0 else None
                 if name == RESIDUAL:
@@ -294,11 +324,11 @@ def moment_components(
                                ci_low=deferred(lambda j=j: intervals()[j][1]),  # type: ignore[misc]
                                ci_high=deferred(lambda j=j: intervals()[j][2]))  # type: ignore[misc]
              for j, name in enumerate(names)]
-    notes = _negative_notes(names, estimates)
+    notes = _negative_notes(names, estimates) + list(extra_notes)
     if ems.method.startswith("unbalanced"):
         notes.append(f"Unbalanced data: these moment estimates depend on the type {ems.ss_type} sums of squares "
                      "used; REML estimates do not.")
-    mean_squares = tuple((ems.rows[i], float(ms[k]), float(dfs[k])) for k, i in enumerate(rows))
+    mean_squares = tuple((name, float(ms[k]), float(dfs[k])) for k, name in enumerate(plan.row_names))
     return VarianceComponents(
         components=tuple(comps), method="method of moments (ANOVA estimates)", confidence=confidence,
         interval_method="Satterthwaite's chi-square approximation", notes=tuple(notes), mean_squares=mean_squares,
@@ -348,11 +378,11 @@ def estimate_components(
     if len(ems.components) < 2:
         return None
     balanced = ems.method.startswith("balanced")
+    if spec.variance_method == "auto" and balanced:
+        return moment_components(ems, table, confidence,
+                                 ("Balanced data: moment estimates (equal to REML when none is negative).",))
     moments = moment_components(ems, table, confidence)
-    if spec.variance_method == "moments" or (spec.variance_method == "auto" and balanced):
-        if spec.variance_method == "auto":
-            return replace(moments, notes=moments.notes + (
-                "Balanced data: moment estimates (equal to REML when none is negative).",))
+    if spec.variance_method == "moments":
         return moments
     if indicators is None:
         indicators = random_indicators(fit, spec, cell_levels, columns)
