@@ -71,6 +71,26 @@ def test_fingerprint_is_the_documented_bytes():
     assert got == _reference([0, 1, 2, 3, 4], y, {"g": g, "h": [3.0, 1.0, 3.0, None, 2.0]}, {"c": list(two["c"])})
 
 
+def test_block_digests_are_the_documented_bytes():
+    n = 2_100  # 1024 blocks of 2 or 3 rows
+    i = np.arange(n)
+    ids = [f"id{k * 7 % 1000}-{k}" for k in range(n)]
+    y = [float(v) for v in (i * 13 % 17) / 3.0]
+    g = [None if k % 97 == 5 else ["x", "w", "v"][k % 3] for k in range(n)]
+    frame = pd.DataFrame({"y": y, "g": g}, index=pd.Index(ids, dtype=object))
+    got = build_dataset(frame, "y", "g").block_digests
+    bounds = [round(b * n / 1024) for b in range(1025)]
+    for b in (0, 1, 2, 511, 1023):  # block 2 holds row 5, whose factor value is missing
+        lo, hi = bounds[b], bounds[b + 1]
+        raw = [t.encode() for t in ids[lo:hi]]
+        id_part = b"t" + struct.pack(f"<{hi - lo}q", *map(len, raw)) + b"".join(raw)
+        texts = sorted({v for v in g[lo:hi] if v is not None})
+        codes = [-1 if v is None else texts.index(v) for v in g[lo:hi]]
+        row_part = id_part + struct.pack(f"<{hi - lo}d", *y[lo:hi]) + _texts(texts) + struct.pack(f"<{hi - lo}i", *codes)
+        first8 = [int.from_bytes(hashlib.sha256(part).digest()[:8], "little") for part in (id_part, row_part)]
+        assert got[b].tolist() == first8
+
+
 def test_text_ids_without_arrow_give_the_same_bytes(monkeypatch):
     import builtins
 

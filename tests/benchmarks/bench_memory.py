@@ -16,14 +16,20 @@ Each size runs in its own process (its peak resident memory is its own); invente
                  scipy.stats.f_oneway on the groups already split (pinned to one BLAS thread,
                  and with the default threads), and against the two-pass floor (np.bincount
                  of counts and sums, then of squared deviations); medians of interleaved rounds
-  study file     size of study.save() and time of Study.load() on the same frame
+  study file     size of study.save(), the time of that first save (it computes the
+                 fingerprint and the block digests) and of Study.load() on the same frame
+                 and of the same file as the first definition wrote it (medians of --load-rounds
+                 interleaved loads); the data check alone by each fingerprint
+                 definition (column-sha256, what files are written with; pandas-row-hash,
+                 what older files are checked by), medians of interleaved rounds less the build
 Prints the load average with each size. Run on a quiet machine, one size at a time for 5e6:
-  python tests/benchmarks/bench_memory.py [--sizes 1e4 1e5 1e6 5e6] [--edits 30] [--rounds 15]
+  python tests/benchmarks/bench_memory.py [--sizes 1e4 1e5 1e6 5e6] [--edits 30] [--rounds 15] [--load-rounds 3]
 """
 
 from __future__ import annotations
 
 import argparse
+import base64
 import gc
 import json
 import os
@@ -56,12 +62,12 @@ def frame(n: int, k: int = 8, seed: int = 0) -> pd.DataFrame:
     return pd.DataFrame({"g": rng.choice([f"L{i}" for i in range(k)], n), "y": rng.normal(50, 3, n)})
 
 
-def measure(n: int, edits: int, rounds: int) -> dict:
+def measure(n: int, edits: int, rounds: int, load_rounds: int = 3) -> dict:
     from scipy import stats
 
     import explorer as ex
 
-    out: dict = {"n": n, "load_start": load_average()}
+    out: dict = {"n": n, "load_start": load_average(), "load_rounds": load_rounds}
     df = frame(n)
     gc.collect()
     out["frame_mib"] = df.memory_usage(deep=True).sum() / 2**20
@@ -137,15 +143,39 @@ def measure(n: int, edits: int, rounds: int) -> dict:
         path = Path(folder) / "bench.study.json"
         fresh = ex.Study(df, "y", "g")  # two edits only: the file's size is the data check's, not a long log's
         fresh.drop([1, 2], reason="bench")
-        fresh.save(path)
-        out["file_bytes"] = path.stat().st_size
-        del fresh
-        gc.collect()
         t0 = time.perf_counter()
-        again = ex.Study.load(path, df)
-        out["load_s"] = time.perf_counter() - t0
-        assert again.dropped == (1, 2)
+        fresh.save(path)  # the first save computes the fingerprint and the block digests
+        out["save_s"] = time.perf_counter() - t0
+        out["file_bytes"] = path.stat().st_size
+        # The same study as a file of the first definition (every file saved before the field existed): it is
+        # checked by pandas' per-row hashes.
+        older = Path(folder) / "older.study.json"
+        doc = json.loads(path.read_text())
+        doc["data"].pop("fingerprint_method")
+        doc["data"]["fingerprint"] = fresh.dataset.fingerprint_by("pandas-row-hash")
+        blocks = fresh.dataset.block_digests_by("pandas-row-hash").astype("<u8").tobytes()
+        doc["data"]["block_check"]["digests"] = base64.b64encode(blocks).decode()
+        older.write_text(json.dumps(doc))
+        del fresh, doc
+        gc.collect()
+
+        def load(p: Path) -> None:
+            again = ex.Study.load(p, df)
+            assert again.dropped == (1, 2)
+
+        loads = interleaved({"new": lambda: load(path), "older": lambda: load(older)}, load_rounds)
+        gc.collect()
+        out.update(load_s=loads["new"], load_older_s=loads["older"])
     out["peak_mib"] = peak_mib()
+    # The data check alone by each definition: each is computed once per dataset, so each round builds one.
+    from explorer.engine.dataset import build_dataset
+
+    checks = interleaved({
+        "build": lambda: build_dataset(df, "y", ["g"]),
+        "column-sha256": lambda: build_dataset(df, "y", ["g"]).fingerprint_by("column-sha256"),
+        "pandas-row-hash": lambda: build_dataset(df, "y", ["g"]).fingerprint_by("pandas-row-hash"),
+    }, load_rounds)
+    out.update(check_new_s=checks["column-sha256"] - checks["build"], check_old_s=checks["pandas-row-hash"] - checks["build"])
     out["load_end"] = load_average()
     return out
 
@@ -165,7 +195,12 @@ def show(r: dict) -> None:
     print(f"  one edit + results {r['edit_ms']:.3f} ms; f_oneway on split groups {r['f_oneway_ms']:.3f} ms "
           f"(f_oneway / ours {r['f_oneway_over_ours']:.2f}x one BLAS thread, {r['f_oneway_over_ours_default']:.2f}x "
           f"default threads); two-pass floor {r['floor_ms']:.3f} ms (ours / floor {r['ours_over_floor']:.1f}x)")
-    print(f"  study file (two edits) {r['file_bytes'] / 1e3:.1f} kB, load {r['load_s']:.2f} s")
+    print(f"  study file (two edits) {r['file_bytes'] / 1e3:.1f} kB, save {r['save_s']:.2f} s, load {r['load_s']:.2f} s; "
+          f"the same file of the first definition (older files) {r['load_older_s']:.2f} s "
+          f"({r['load_older_s'] / r['load_s']:.1f}x; medians of {r['load_rounds']} interleaved loads)")
+    print("  the data check alone: "
+          f"column-sha256 {r['check_new_s']:.3f} s, pandas-row-hash (older files) {r['check_old_s']:.3f} s "
+          f"({r['check_old_s'] / max(r['check_new_s'], 1e-9):.0f}x; medians of interleaved rounds, build subtracted)")
 
 
 if __name__ == "__main__":
@@ -173,16 +208,18 @@ if __name__ == "__main__":
     ap.add_argument("--sizes", nargs="*", type=float, default=[1e4, 1e5, 1e6])
     ap.add_argument("--edits", type=int, default=30)
     ap.add_argument("--rounds", type=int, default=15)
+    ap.add_argument("--load-rounds", type=int, default=3, help="loads of the study file (median printed)")
     ap.add_argument("--one", type=float, help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.one:
-        print(json.dumps(measure(int(args.one), args.edits, args.rounds)))
+        print(json.dumps(measure(int(args.one), args.edits, args.rounds, args.load_rounds)))
         sys.exit(0)
     for size in args.sizes:
         env = {**os.environ, "OPENBLAS_NUM_THREADS": os.environ.get("OPENBLAS_NUM_THREADS", "")}
         env = {k: v for k, v in env.items() if v != ""}
         proc = subprocess.run([sys.executable, __file__, "--one", str(size), "--edits", str(args.edits),
-                               "--rounds", str(args.rounds)], capture_output=True, text=True, env=env)
+                               "--rounds", str(args.rounds), "--load-rounds", str(args.load_rounds)],
+                              capture_output=True, text=True, env=env)
         if proc.returncode:
             print(proc.stderr[-3000:])
             sys.exit(proc.returncode)
