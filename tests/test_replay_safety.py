@@ -98,7 +98,8 @@ class _Recorder:
 def _expected_calls(study, data_path):
     spec = study.spec
     calls = [("Study", (data_path,), {"response": spec.response, "factors": spec.factors[0],
-                                       "id_column": study.dataset.id_column})]
+                                       "id_column": study.dataset.id_column}),
+             ("fingerprint_by", ("column-sha256",), {})]  # the data check names its definition
     for e in study.edits:
         if isinstance(e, DropRows):
             calls.append(("drop", (list(e.rows),), {"reason": e.reason}))
@@ -129,7 +130,7 @@ def test_replay_code_runs_only_the_expected_calls(case):
     scope = {"__builtins__": {"__import__": only_the_kit}}
     exec(compile(code, "<replay>", "exec"), scope)  # noqa: S102 - builtins that can do nothing else
     got = [(path.removeprefix("Study.").removeprefix("result."), args, kwargs) for path, args, kwargs in log]
-    # the recorder answers study.dataset.fingerprint and study.results through attribute access, not calls
+    # the recorder answers study.results through attribute access, the fingerprint through one call
     assert [(p.split(".")[-1], a, k) for p, a, k in got] == _expected_calls(study, data_path)
     assert scope["source"] == "DataFrame" and scope["fingerprint"] == study.dataset.fingerprint
     assert scope["made_at"] == [e.at for e in study.edits]

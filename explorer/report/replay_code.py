@@ -22,6 +22,7 @@ import math
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from ..engine.column_digest import COLUMN_SHA256
 from ..engine.edits import DropRows, DropUnit, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, RestoreUnit
 
 if TYPE_CHECKING:
@@ -152,9 +153,9 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
     aside = f", {len(ds.set_aside)} set aside at load for missing values" if ds.set_aside else ""
     lines = [
         "# Replay of an analysis-of-variance study: the original data, then each edit with its reason.",
-        f"# The data: {len(ds.table)} rows{aside}; their source and fingerprint:",
+        f"# The data: {len(ds.table)} rows{aside}; their source and fingerprint ({COLUMN_SHA256}):",
         f"source = {_lit(ds.source)}",
-        f"fingerprint = {_lit(ds.fingerprint)}",
+        f"fingerprint = {_lit(ds.fingerprint_by(COLUMN_SHA256))}",
         "# When each edit in effect was made (UTC), in order:",
         f"made_at = {_lit([e.at for e in study.edits])}",
         "import explorer as ex",
@@ -166,7 +167,8 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
     else:
         data_expr = _lit(Path(src).as_posix() if isinstance(src, Path) else str(src))
     lines.append(f"{name} = ex.Study({data_expr}, {_spec_args(study)})")
-    lines.append(f"assert {name}.dataset.fingerprint == fingerprint, 'the data differ from the original'")
+    lines.append(f"assert {name}.dataset.fingerprint_by({_lit(COLUMN_SHA256)}) == fingerprint, "
+                 "'the data differ from the original'")
     for i, edit in enumerate(study.edits, 1):
         lines.append(f"{edit_to_code(edit, name)}  # edit {i}, made at made_at[{i - 1}]")
     undone = study.redo_edits

@@ -600,6 +600,12 @@ CATALOGUE: list[Bad] = [
     Bad("study-bad-base64", "study file",
         lambda s: ex.Study.load(s.study_variant("b64.json", lambda d: d["data"]["row_check"].update(digests="@@@")),
                                 s.frame), ReplayError, "is not base64 text"),
+    Bad("study-unknown-fingerprint-method", "study file",
+        lambda s: ex.Study.load(s.study_variant("fm.json", lambda d: d["data"].update(fingerprint_method="md5")),
+                                s.frame), ReplayError, "data.fingerprint_method"),
+    Bad("study-fingerprint-method-swapped", "study file",  # a fingerprint checked by another definition never matches
+        lambda s: ex.Study.load(s.study_variant("fm2.json", lambda d: d["data"].update(
+            fingerprint_method="pandas-row-hash")), s.frame), ReplayError, "data differ"),
     Bad("study-negative-position", "study file",
         lambda s: ex.Study.load(s.study_variant("neg.json", lambda d: d.update(position=-1)), s.frame), ReplayError,
         "position: must be at least 0"),
