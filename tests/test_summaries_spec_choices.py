@@ -172,6 +172,8 @@ def test_the_widget_holds_the_model_pickers_of_a_summary_backed_study(frame):
     e.factor_picker.value = ("line", "shift")  # set anyway: refused, and the picker shows the model still analysed
     assert "keeps its model" in e.status.value and e.study is s and _state(s) == before
     assert e.factor_picker.value == ("line",)
+    e.omnibus_picker.value = "kruskal"  # offered to every study; refused here, naming why
+    assert "needs every row" in e.status.value and e.omnibus_picker.value == "classic" and _state(s) == before
 
 
 @pytest.mark.parametrize("ss_type", ["I", "II", "III"])
