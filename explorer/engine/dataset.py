@@ -212,9 +212,11 @@ class Dataset:
             rows = [rows]
         keys = [_py(r) for r in rows]
         found = self._find(keys)
+        if not found.size or found.min() >= 0:
+            return found
         missing: list[RowId] = []
         aside: list[RowId] = []
-        set_aside_ids = {s.row for s in self.set_aside} if (found < 0).any() else set()
+        set_aside_ids = {s.row for s in self.set_aside}
         for key, pos in zip(keys, found.tolist()):
             if pos < 0:
                 (aside if key in set_aside_ids else missing).append(key)
@@ -228,6 +230,10 @@ class Dataset:
     def _find(self, keys: list[RowId]) -> np.ndarray:
         """Position of each key among the usable rows, -1 where there is none (an integer's text finds it too)."""
         ids = self.ids
+        if isinstance(ids, range):
+            ints = [k for k in keys if type(k) is int]
+            if len(ints) == len(keys):  # integer ids in a range: an id's position is arithmetic
+                return np.array([ids.index(k) if k in ids else -1 for k in ints], dtype=np.int64)
         if isinstance(ids, range) or ids.dtype.kind in "iu":
             wanted = np.array([k if isinstance(k, int) else int(k) if _INT_TEXT.fullmatch(k) else 0 for k in keys],
                               dtype=object)

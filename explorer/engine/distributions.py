@@ -20,6 +20,8 @@ __all__ = ["f_sf", "t_sf", "t_ppf", "t_two_sided_p"]
 
 def f_sf(x: ArrayOrFloat, dfn: ArrayOrFloat, dfd: ArrayOrFloat) -> Any:
     """Upper-tail probability P(F > x) of the F(dfn, dfd) distribution."""
+    if type(x) is float:  # one statistic: clip without an array (NaN stays NaN, as np.maximum keeps it)
+        return special.fdtrc(dfn, dfd, 0.0 if x < 0.0 else x)
     return special.fdtrc(dfn, dfd, np.maximum(x, 0.0))
 
 

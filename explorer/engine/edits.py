@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 import re
+import time
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from typing import Any, ClassVar
@@ -39,8 +40,18 @@ __all__ = [
 EDIT_KINDS: dict[str, type["Edit"]] = {}
 
 
+_LAST_SECOND: list[tuple[int, str]] = [(-1, "")]  # the last whole second written, with its text
+
+
 def utc_now() -> str:
-    return datetime.now(timezone.utc).isoformat(timespec="seconds").replace("+00:00", "Z")
+    """The time now in UTC to the second (truncated), as ISO 8601 text (``2026-03-01T09:30:00Z``); the text of
+    a second is made once (the edits and ledger entries of one second share it)."""
+    second = int(time.time())
+    last = _LAST_SECOND[0]
+    if last[0] != second:
+        text = datetime.fromtimestamp(second, timezone.utc).isoformat().replace("+00:00", "Z")
+        last = _LAST_SECOND[0] = (second, text)
+    return last[1]
 
 
 _UTC_TIME = re.compile(r"\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}(\.\d{1,6})?(Z|\+00:00)", re.ASCII)
@@ -196,7 +207,7 @@ class _RowsEdit(Edit):
 
     def change(self, view: DataView, dataset: Dataset) -> ViewDelta:
         asked = dataset.positions(self.rows)
-        pos = np.unique(asked)
+        pos = asked if asked.size == 1 else np.unique(asked)
         flips = pos[view.kept[pos] != self.keep]
         if not flips.size:
             unchanged = [dataset.row_id(int(p)) for p in asked]

@@ -61,7 +61,7 @@ def response_scale(offset: float, values: Any = ()) -> float:
         ``max(|offset|, max |values|)``, at least :data:`TINY`.
     """
     v = np.asarray(values, dtype=np.float64)
-    largest = float(np.max(np.abs(v))) if v.size else 0.0
+    largest = float(np.abs(v).max()) if v.size else 0.0
     return max(abs(float(offset)), largest, TINY)
 
 
@@ -71,7 +71,10 @@ def is_zero_ss(ss: Any, n: Any, scale: float) -> Any:
     ``ss`` and ``n`` may be numbers (returns ``bool``) or arrays of alternatives
     (returns a boolean array). The rule is ``ss <= n (8 eps scale)^2``.
     """
-    zero = np.asarray(ss) <= np.asarray(n) * (8 * EPS * max(float(scale), TINY)) ** 2
+    bound = (8 * EPS * max(float(scale), TINY)) ** 2
+    if type(ss) is float and type(n) is int:  # one number: the same IEEE operations without arrays
+        return ss <= n * bound
+    zero = np.asarray(ss) <= np.asarray(n) * bound
     return bool(zero) if zero.ndim == 0 else zero
 
 

@@ -34,8 +34,15 @@ NOT_FINITE = ("F is undefined: the sums of squares are not finite numbers (the r
               "64-bit float range); no decision is drawn.")
 
 
-def _zero_residual(ss_within: float, gs: GroupStats) -> bool:
-    return bool(is_zero_ss(ss_within, gs.n_total, response_scale(gs.offset, gs.mean)))
+def _zero_residual(ss_within: float, n: int, gs: GroupStats) -> bool:
+    return bool(is_zero_ss(ss_within, n, response_scale(gs.offset, gs.mean)))
+
+
+def _sums(gs: GroupStats) -> tuple[int, float, float]:
+    """(n, between-groups SS, within-groups SS) of the non-empty groups ``gs``, each computed once."""
+    n = gs.n_total
+    d = gs.mean - float(np.dot(gs.n, gs.mean) / n)  # GroupStats.ss_between, with n summed once
+    return n, float(np.dot(gs.n, d * d)), gs.ss_within
 
 
 def oneway_partition(gs: GroupStats, factor: str, ss_type: str = "I") -> tuple[AnovaTable, AnovaTable, tuple[str, ...]]:
@@ -44,21 +51,26 @@ def oneway_partition(gs: GroupStats, factor: str, ss_type: str = "I") -> tuple[A
     With one factor the three types of sums of squares coincide; the table records the
     type asked for (``ss_type``) and says that they coincide.
     """
-    n, k = gs.n_total, gs.k
-    ssb, ssw = gs.ss_between, gs.ss_within
+    n, ssb, ssw = _sums(gs)
+    table, notes = _partition(gs, factor, ss_type, n, ssb, ssw)
+    return table, _uncorrected(gs, factor, n, ssb, ssw), notes
+
+
+def _partition(gs: GroupStats, factor: str, ss_type: str, n: int, ssb: float, ssw: float
+               ) -> tuple[AnovaTable, tuple[str, ...]]:
+    """The corrected partition (the F test of ``factor``) and its notes."""
+    k = gs.k
     df_b, df_w = k - 1, n - k
-    notes: list[str] = []
+    notes: tuple[str, ...] = ()
     msb = ssb / df_b
     msw = ssw / df_w
     if not (np.isfinite(ssb) and np.isfinite(ssw)):
         F = p = None
-        notes.append(NOT_FINITE)
-    elif _zero_residual(ssw, gs):
+        notes = (NOT_FINITE,)
+    elif _zero_residual(ssw, n, gs):
         F = p = None
         msw = 0.0
-        notes.append(
-            "F is undefined: the residual sum of squares is zero (every observation equals its level mean)."
-        )
+        notes = ("F is undefined: the residual sum of squares is zero (every observation equals its level mean).",)
     else:
         F = msb / msw
         p = float(f_sf(F, df_b, df_w))
@@ -70,11 +82,17 @@ def oneway_partition(gs: GroupStats, factor: str, ss_type: str = "I") -> tuple[A
         ),
         ss_type=ss_type,
         types_coincide=True,
-        notes=tuple(notes),
+        notes=notes,
     )
+    return table, notes
+
+
+def _uncorrected(gs: GroupStats, factor: str, n: int, ssb: float, ssw: float) -> AnovaTable:
+    """The raw sum of squares split into the correction for the mean, the factor and the residual."""
+    df_b, df_w = gs.k - 1, n - gs.k
     gm = gs.grand_mean + gs.offset
     ct = n * gm * gm
-    raw = AnovaTable(
+    return AnovaTable(
         title="Uncorrected decomposition of the raw sum of squares",
         rows=(
             TermRow(source="mean (correction term)", df=1, sum_sq=ct),
@@ -84,7 +102,6 @@ def oneway_partition(gs: GroupStats, factor: str, ss_type: str = "I") -> tuple[A
         ),
         ss_type="I",
     )
-    return table, raw, tuple(notes)
 
 
 def fit_oneway(
@@ -137,7 +154,7 @@ def oneway_from_stats(
     factor = spec.factors[0]
     offset = full.offset
     notes: list[str] = []
-    empty = [lab for lab, c in zip(full.labels, full.n) if c == 0]
+    empty = [lab for lab, c in zip(full.labels, full.n.tolist()) if c == 0] if full.n.size and full.n.min() == 0 else []
     if empty:
         notes.append(f"Level(s) {preview(empty)} of {factor!r} have no observations in this view and are left out.")
     gs = full.nonempty()
@@ -146,18 +163,18 @@ def oneway_from_stats(
         raise DesignError(
             f"fewer than two levels of {factor!r} have observations{only}; restore rows or undo a merge to compare groups"
         )
-    n, k = gs.n_total, gs.k
+    n, ssb, ssw = _sums(gs)
+    k = gs.k
     if n - k < 1:
         raise DesignError(
             f"no residual degrees of freedom: each of the {k} levels of {factor!r} has one observation; "
             "the F test needs at least one level with two or more"
         )
-    table, raw, part_notes = oneway_partition(gs, factor, spec.ss_type)
+    table, part_notes = _partition(gs, factor, spec.ss_type, n, ssb, ssw)
     notes.extend(part_notes)
     df_w = n - k
     msw = float(table.rows[1].mean_sq or 0.0)
-    ssb, ssw = gs.ss_between, gs.ss_within
-    singles = [lab for lab, c in zip(gs.labels, gs.n) if c == 1]
+    singles = [lab for lab, c in zip(gs.labels, gs.n.tolist()) if c == 1] if gs.n.min() == 1 else []
     lt_notes: tuple[str, ...] = ()
     if singles:
         lt_notes = (f"Level(s) {preview(singles)} have one observation: their own SD and own-SD interval are undefined.",)
@@ -173,7 +190,7 @@ def oneway_from_stats(
     return Results(
         spec=spec,
         partition=table,
-        uncorrected=raw,
+        uncorrected=deferred(lambda: _uncorrected(gs, factor, n, ssb, ssw)),
         r_squared=ssb / sst if sst > 0 else 0.0,
         residual_sd=float(np.sqrt(msw)) if msw > 0 else 0.0,
         df_resid=df_w,

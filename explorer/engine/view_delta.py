@@ -75,7 +75,7 @@ class ViewDelta:
     def keep(cls, positions: np.ndarray, keep: bool) -> ViewDelta:
         """Set the kept flag of ``positions`` (rows whose flag already is ``keep`` must be left out)."""
         pos = read_only(np.asarray(positions, dtype=np.int64))
-        return cls(pos, read_only(np.full(pos.size, keep, dtype=bool)))
+        return cls(pos, read_only((np.ones if keep else np.zeros)(pos.size, dtype=bool)))
 
     def inverse(self) -> ViewDelta:
         return ViewDelta(self.kept_positions, read_only(~self.kept_after), tuple(c.inverse() for c in reversed(self.codes)))

@@ -29,6 +29,8 @@ class BoundedCache(dict[int, V], Generic[V]):
         if key in self:
             super().__delitem__(key)
         super().__setitem__(key, value)
+        if len(self) - (0 in self) <= self.recent:  # nothing to let go
+            return
         others = [k for k in self if k != 0]
         for k in others[: max(len(others) - self.recent, 0)]:
             super().__delitem__(k)
