@@ -460,3 +460,68 @@ def test_arrays_the_caller_shares_with_the_frame_changed_after_the_build_change_
     got, want = _surfaces(study), _surfaces(twin)
     for key in want:
         assert got[key] == want[key], f"{key} changed with the caller's array (shared: {shared})"
+
+
+# --------------------------------------------------------------------------- ids made on demand
+
+
+def _indexed(kind: str) -> tuple[pd.DataFrame, dict[str, Any], list[Any]]:
+    """A table with one kind of row labels, the build arguments, and the ids its rows must get."""
+    rng = np.random.default_rng(5)
+    frame = pd.DataFrame({"g": np.repeat(list("ABC"), 6), "y": np.round(rng.normal(10, 2, 18), 2),
+                          "h": np.tile(list("uv"), 9)})
+    kw: dict[str, Any] = {}
+    if kind == "range":
+        ids: list[Any] = list(range(18))
+    elif kind == "range from 100":
+        frame.index = pd.RangeIndex(100, 118)
+        ids = list(range(100, 118))
+    elif kind == "range step 3":
+        frame.index = pd.RangeIndex(5, 5 + 3 * 18, 3)
+        ids = list(range(5, 5 + 3 * 18, 3))
+    elif kind == "descending ints":
+        ids = list(np.arange(18)[::-1] * 2)
+        frame.index = ids
+    elif kind == "repeated labels":  # not unique: positions
+        frame.index = [0] * 18
+        ids = list(range(18))
+    elif kind == "text":
+        ids = [f"s{i}" for i in range(18)]
+        frame.index = ids
+    else:  # id column
+        ids = [int(i) * 7 for i in range(18)]
+        frame["id"] = ids
+        kw["id_column"] = "id"
+    return frame, kw, [int(i) if isinstance(i, (int, np.integer)) else i for i in ids]
+
+
+@pytest.mark.parametrize("kind", ["range", "range from 100", "range step 3", "descending ints", "repeated labels",
+                                  "text", "id column"])
+@pytest.mark.parametrize("missing", [False, True])
+def test_ids_made_on_demand_are_the_row_labels_in_every_surface(kind, missing):
+    """The ids (a range kept as one, or an array) are the table's labels in the results, the set-aside list, the
+    study file, the replay code and the moved-rows list (the same values the build gave before ids were made
+    on demand: checked against that build's output for these tables)."""
+    frame, kw, ids = _indexed(kind)
+    if missing:
+        frame.iloc[3, frame.columns.get_loc("y")] = np.nan
+        frame.iloc[10, frame.columns.get_loc("g")] = None
+    usable = [i for j, i in enumerate(ids) if not (missing and j in (3, 10))]
+    study = ex.Study(frame, "y", ["g", "h"], **kw)
+    assert study.dataset.row_ids.tolist() == usable and study.dataset.all_row_ids.tolist() == ids
+    assert [a.row for a in study.set_aside] == ([ids[3], ids[10]] if missing else [])
+    study.drop([usable[1], usable[7]], reason="r")
+    study.reassign(usable[2], "g", "B", reason="r")
+    res = study.results
+    kept = [i for i in usable if i not in (usable[1], usable[7])]
+    assert np.asarray(res.fit.row_ids).tolist() == kept
+    assert res.fit.to_frame()["row"].tolist() == kept
+    assert list(study.dropped) == [usable[1], usable[7]]
+    assert [m.row for m in study.moved_rows()] == [usable[2]]
+    doc = study.to_dict()
+    assert [e.get("rows", e.get("row")) for e in doc["edits"]] == [[usable[1], usable[7]], usable[2]]
+    code = study.to_code("data.csv")
+    assert f"study.drop({[usable[1], usable[7]]!r}" in code and f"study.reassign({usable[2]!r}, 'g', 'B'" in code
+    back = ex.Study.from_dict(doc, frame)
+    assert np.asarray(back.results.fit.row_ids).tolist() == kept
+    assert every_part(back.results) == every_part(res)
