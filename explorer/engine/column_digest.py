@@ -175,15 +175,26 @@ class ColumnBytes:
             rows = ids.copy()
             rows.update(_mem(self.response[lo:hi]))
             for f in self.factors:  # in the block's own numbering: a level added elsewhere changes no other block
-                used, local = np.unique(f.codes[lo:hi], return_inverse=True)
-                missing = bool(used.size) and used[0] < 0
-                rows.update(text_list([f.texts[int(c)] for c in used[int(missing):]]))
-                rows.update(_mem((local - int(missing)).astype("<i4")))
+                used, local = _renumber(f.codes[lo:hi], len(f.texts))
+                rows.update(text_list([f.texts[int(c)] for c in used]))
+                rows.update(_mem(local))
             for c in self.covariates:
                 rows.update(_mem(c[lo:hi]))
             out[b, 0] = int.from_bytes(ids.digest()[:8], "little")
             out[b, 1] = int.from_bytes(rows.digest()[:8], "little")
         return out
+
+
+def _renumber(codes: np.ndarray, levels: int) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct codes (>= 0) of ``codes`` in order, and each code's position among them ('<i4', -1 stays -1)."""
+    if levels > 4 * codes.size:  # many levels: sort the block's codes
+        used, local = np.unique(codes, return_inverse=True)
+        missing = int(bool(used.size) and used[0] < 0)
+        return used[missing:], (local.reshape(-1) - missing).astype("<i4")
+    present = np.bincount(codes + 1, minlength=levels + 1)[1:] > 0  # few levels: mark those present
+    rank = np.cumsum(present, dtype=np.int32) - 1
+    local = np.where(codes < 0, -1, rank[np.maximum(codes, 0)]).astype("<i4")
+    return np.flatnonzero(present), local
 
 
 def _factor(col: pd.Series, codes: np.ndarray, n_levels: int, usable: np.ndarray | None) -> _Factor:

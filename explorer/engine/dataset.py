@@ -578,7 +578,11 @@ class RowHashes:
 
     def _response(self) -> np.ndarray:
         frame, response = self._inputs[3], self._inputs[2]
-        y: np.ndarray = pd.to_numeric(frame[response], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        col = frame[response]
+        if col.dtype == np.float64:  # numpy float64: read where it lies (NaN is already its missing value)
+            read: np.ndarray = col.to_numpy()
+            return read
+        y: np.ndarray = pd.to_numeric(col, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
         return y
 
     def _column_bytes(self) -> ColumnBytes:
