@@ -77,16 +77,19 @@ def test_block_digests_are_the_documented_bytes():
     ids = [f"id{k * 7 % 1000}-{k}" for k in range(n)]
     y = [float(v) for v in (i * 13 % 17) / 3.0]
     g = [None if k % 97 == 5 else ["x", "w", "v"][k % 3] for k in range(n)]
-    frame = pd.DataFrame({"y": y, "g": g}, index=pd.Index(ids, dtype=object))
-    got = build_dataset(frame, "y", "g").block_digests
+    h = [f"lot {k * 11 % 1500}" for k in range(n)]  # many levels: blocks renumbered by sorting, not counting
+    frame = pd.DataFrame({"y": y, "g": g, "h": h}, index=pd.Index(ids, dtype=object))
+    got = build_dataset(frame, "y", ["g", "h"]).block_digests
     bounds = [round(b * n / 1024) for b in range(1025)]
     for b in (0, 1, 2, 511, 1023):  # block 2 holds row 5, whose factor value is missing
         lo, hi = bounds[b], bounds[b + 1]
         raw = [t.encode() for t in ids[lo:hi]]
         id_part = b"t" + struct.pack(f"<{hi - lo}q", *map(len, raw)) + b"".join(raw)
-        texts = sorted({v for v in g[lo:hi] if v is not None})
-        codes = [-1 if v is None else texts.index(v) for v in g[lo:hi]]
-        row_part = id_part + struct.pack(f"<{hi - lo}d", *y[lo:hi]) + _texts(texts) + struct.pack(f"<{hi - lo}i", *codes)
+        row_part = id_part + struct.pack(f"<{hi - lo}d", *y[lo:hi])
+        for values in (g, h):
+            texts = sorted({v for v in values[lo:hi] if v is not None})
+            codes = [-1 if v is None else texts.index(v) for v in values[lo:hi]]
+            row_part += _texts(texts) + struct.pack(f"<{hi - lo}i", *codes)
         first8 = [int.from_bytes(hashlib.sha256(part).digest()[:8], "little") for part in (id_part, row_part)]
         assert got[b].tolist() == first8
 
