@@ -525,3 +525,38 @@ def test_ids_made_on_demand_are_the_row_labels_in_every_surface(kind, missing):
     back = ex.Study.from_dict(doc, frame)
     assert np.asarray(back.results.fit.row_ids).tolist() == kept
     assert every_part(back.results) == every_part(res)
+
+
+# --------------------------------------------------------------------------- look-alike layouts, refused actions
+
+
+@pytest.mark.parametrize("kw", [{"random": ["part", "operator"]}, {"random": ["part"]}])
+def test_look_alike_layouts_each_read_late_equal_their_own_analysis(kw):
+    """Leaving out any one part gives layouts of one shape (the same counts, codes and plan); each result read
+    after all the others were made is its own view's."""
+    study = ex.Study(gauge(parts=5), "y", ["part", "operator"], **kw)
+    points = Points(study)
+    for p in study.levels("part"):
+        study.drop_unit("part", p, reason="r")
+        points.take(f"without {p}")
+        study.drop([next(iter(study.results.fit.row_ids.tolist()))], reason="r")  # unbalanced, then back
+        points.take(f"without {p} and one row")
+        study.undo()
+        study.undo()
+    points.check()
+
+
+def test_a_refused_action_leaves_old_results_their_own_numbers():
+    """``all_or_nothing`` puts back the results it held; they are read only after the refusal and later edits."""
+    study = ex.Study(two_way_blocks(), "y", ["a", "b"], blocks="block")
+    study.drop([1], reason="r")
+    points = Points(study)
+    points.take("before the action")
+    with pytest.raises(ex.ExplorerError):
+        with study.all_or_nothing():
+            study.drop([2, 3], reason="r")
+            study.reassign(4, "a", "a9", reason="r")  # no such level: refused, the whole action undone
+    points.take("after the refusal")
+    study.drop([5], reason="r")
+    study.set_alpha(0.2)
+    points.check()
