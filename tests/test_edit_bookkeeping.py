@@ -72,3 +72,15 @@ def test_bounded_cache_keeps_the_baseline_and_the_last_positions():
     for key in (1, 2, 3):
         no_base[key] = str(key)
     assert list(no_base) == [2, 3]
+
+
+def test_an_edits_ledger_entry_reads_as_written_at_once():
+    from explorer.engine.deferred import is_made
+
+    study = ex.Study(_frame(60, 3), "y", "g")
+    study.drop([4, 9], reason="smudge")
+    edit = study.edits[-1]
+    entry = study.ledger.entries[-1]
+    assert not is_made(entry, "what") and not is_made(entry, "edit")
+    assert (entry.kind, entry.what, entry.edit, entry.reason) == ("edit", edit.describe(), edit.to_dict(), "smudge")
+    assert entry.to_dict()["edit"] == edit.to_dict() and entry.describe().endswith("(smudge)")

@@ -126,6 +126,8 @@ def with_transform(dataset: Dataset, transform: Transform) -> Dataset:
     The measured dataset is kept in ``untransformed``, so asking for another transform
     (or none) always starts from the values as measured. Memoised per dataset.
     """
+    if type(transform) is str and transform == getattr(dataset, "transform", "none"):  # as written: no check
+        return dataset
     transform = check_transform(transform)
     base = dataset.untransformed if dataset.untransformed is not None else dataset
     if transform == getattr(dataset, "transform", "none"):

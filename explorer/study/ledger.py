@@ -33,6 +33,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
+from ..engine.deferred import deferrable, deferred
 from ..engine.disclosure import Disclosure
 from ..engine.edits import Edit, check_utc_time, utc_now
 from ..engine.errors import EditError, ReplayError
@@ -58,6 +59,7 @@ def choice_text(value: object) -> str:
     return format(value, "g") if isinstance(value, float) else str(value)
 
 
+@deferrable("what", "edit")
 @dataclass(frozen=True)
 class LedgerEntry:
     """One thing done to a study, with when and (for edits) why.
@@ -69,6 +71,7 @@ class LedgerEntry:
     form (``Edit.to_dict()``), ``old``/``new`` a choice's values as text, ``origin`` where an
     entry came from when it was not made in this study (``""``: made here). ``at`` is
     ``None`` only for entries rebuilt from an older study file that did not keep the time.
+    An edit's ``what`` and ``edit`` are written from the (frozen) edit when first read.
     """
 
     kind: str
@@ -128,8 +131,8 @@ class Ledger:
 
     def record_edit(self, edit: Edit, *, origin: str = "") -> LedgerEntry:
         """An edit applied (``origin``: where it came from, when not made in this study)."""
-        return self._add(LedgerEntry("edit", edit.describe(), utc_now(), 1, reason=edit.reason,
-                                     edit=edit.to_dict(), origin=_text(origin, "origin")))
+        return self._add(LedgerEntry("edit", deferred(edit.describe), utc_now(), 1, reason=edit.reason,
+                                     edit=deferred(edit.to_dict), origin=_text(origin, "origin")))
 
     def record_undo(self, edit: Edit) -> LedgerEntry:
         return self._add(LedgerEntry("undo", edit.describe(), utc_now(), 1))
