@@ -253,8 +253,8 @@ def fit_balanced(
     coef[0] = center
     for tp in plan.terms:
         effect = np.zeros(layout.n_cells)
-        for sign, cols in tp.marginals:
-            effect = effect + sign * marginal(cols)
+        for sign, cols in tp.marginals:  # effect + sign * m: x * 1.0 is x and a + (-b) is a - b, bit for bit
+            (np.add if sign > 0 else np.subtract)(effect, marginal(cols), out=effect)
         ss_t[tp.term] = float(n0 * np.dot(effect, effect))
         fitted += effect
         if tp.pick is not None:

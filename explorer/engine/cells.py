@@ -97,23 +97,27 @@ def layout_cells(
     absent: dict[str, tuple[str, ...]] = {}
     for c, col_codes, lv in zip(columns, codes, levels):
         counts = np.bincount(col_codes, minlength=len(lv))
+        if counts.all():  # every level has rows
+            compact.append(np.asarray(col_codes))
+            present_levels.append(tuple(lv))
+            continue
         present = counts > 0
-        if not present.all():
-            absent[c] = tuple(name for name, p in zip(lv, present) if not p)
+        absent[c] = tuple(name for name, p in zip(lv, present) if not p)
         remap = np.cumsum(present) - 1
-        compact.append(remap[col_codes] if not present.all() else np.asarray(col_codes))
+        compact.append(remap[col_codes])
         present_levels.append(tuple(name for name, p in zip(lv, present) if p))
     sizes = [len(lv) for lv in present_levels]
-    total = int(np.prod(sizes, dtype=np.float64))
+    total = math.prod(sizes)
     if total <= _DENSE_LIMIT:
         key = np.zeros(compact[0].shape[0], dtype=np.int64)
         for c_codes, k in zip(compact, sizes):
             key = key * k + c_codes
         seen = np.bincount(key, minlength=total) > 0
-        where = np.flatnonzero(seen)
-        remap = np.cumsum(seen) - 1
-        row_cell = remap[key]
-        keys = where
+        if seen.all():  # a complete layout: the cell codes are the combination codes
+            row_cell, keys = key, np.arange(total, dtype=np.int64)
+        else:
+            remap = np.cumsum(seen) - 1
+            row_cell, keys = remap[key], np.flatnonzero(seen)
     else:  # pragma: no cover - very many combinations
         stacked = np.stack(compact, axis=1)
         uniq, row_cell = np.unique(stacked, axis=0, return_inverse=True)
