@@ -145,3 +145,24 @@ def test_sweep_offers_the_chosen_transform():
     by2 = dict(zip(sweep2.table["transform"], sweep2.table["p-value"]))
     assert by2["power 0.5"] == pytest.approx(stats.f_oneway(*[stats.boxcox(g, 0.5) for g in groups]).pvalue, rel=1e-9)
     assert by2["sqrt"] == pytest.approx(by2["power 0.5"], rel=1e-9)
+
+
+def test_a_transformed_study_once_dropped_frees_its_data():
+    """The memo of transformed datasets keeps none alive: a study that changed its transform, once dropped,
+    leaves no copy of its table behind (it used to stay for as long as the process ran)."""
+    import gc
+    import weakref
+
+    from explorer.engine.transforms import with_transform
+
+    rng = np.random.default_rng(1)
+    frame = pd.DataFrame({"g": np.repeat(list("ABC"), 5), "y": rng.uniform(1, 9, 15)})
+    study = ex.Study(frame, "y", "g")
+    measured = study.dataset
+    study.set_transform("log")
+    logged = study.dataset
+    assert with_transform(measured, "log") is logged  # memoised while held
+    gone = weakref.ref(measured), weakref.ref(logged)
+    del study, measured, logged
+    gc.collect()
+    assert gone[0]() is None and gone[1]() is None

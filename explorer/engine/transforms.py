@@ -117,7 +117,10 @@ def inverse(t: np.ndarray, transform: Transform) -> np.ndarray:
     return out
 
 
-_CACHE: weakref.WeakKeyDictionary[Any, dict[Any, Any]] = weakref.WeakKeyDictionary()
+#: Transformed datasets while something holds them, by (the measured dataset's id, transform). Values are weak: a
+#: transformed dataset holds its measured one (``untransformed``), so a cache holding it would keep both alive for
+#: as long as the process runs; a live value's measured dataset is alive too, so its id is not reused.
+_CACHE: weakref.WeakValueDictionary[tuple[int, Any], Any] = weakref.WeakValueDictionary()
 
 
 def with_transform(dataset: Dataset, transform: Transform) -> Dataset:
@@ -134,9 +137,9 @@ def with_transform(dataset: Dataset, transform: Transform) -> Dataset:
         return dataset
     if transform == "none":
         return base
-    per = _CACHE.setdefault(base, {})
-    hit = per.get(transform)
-    if hit is not None:
+    key = (id(base), transform)
+    hit = _CACHE.get(key)
+    if hit is not None and hit.untransformed is base:
         return hit  # type: ignore[no-any-return]
     measured = np.ldexp(base.y_original, base.unit_exponent)  # exact, also where 2.0**e would overflow
     t = transform_values(measured, transform, base.response, base.row_ids)
@@ -150,5 +153,5 @@ def with_transform(dataset: Dataset, transform: Transform) -> Dataset:
     notes = base.notes + ((unit_note(transform_label(transform, base.response), unit),) if unit else ())
     out = dataclasses.replace(base, y=y, offset=offset, offset_text=repr(offset), unit_exponent=unit,
                               transform=transform, untransformed=base, notes=notes)
-    per[transform] = out
+    _CACHE[key] = out
     return out
