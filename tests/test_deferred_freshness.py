@@ -560,3 +560,47 @@ def test_a_refused_action_leaves_old_results_their_own_numbers():
     study.drop([5], reason="r")
     study.set_alpha(0.2)
     points.check()
+
+
+_MULTI_EDITS = st.lists(st.tuples(st.sampled_from(["drop", "restore", "drop_unit", "restore_unit", "merge", "undo",
+                                                   "redo", "reset"]),
+                                  st.integers(0, 35), st.integers(0, 5)), min_size=1, max_size=8)
+
+
+def _apply_multi(study: ex.Study, kind: str, i: int, j: int) -> None:
+    parts, operators = list(study.levels("part")), list(study.levels("operator"))
+    try:
+        if kind == "drop":
+            study.drop([i, (i + 7) % 36][: 1 + j % 2], reason="r")
+        elif kind == "restore":
+            study.restore([i], reason="r")
+        elif kind == "drop_unit":
+            study.drop_unit("part", parts[j % len(parts)], reason="r")
+        elif kind == "restore_unit":
+            study.restore_unit("part", f"P{j}", reason="r")
+        elif kind == "merge" and len(operators) > 2:
+            study.merge_levels("operator", operators[:2], into="O01", reason="r")
+        elif kind == "undo" and study.edits:
+            study.undo()
+        elif kind == "redo" and study.redo_edits:
+            study.redo()
+        elif kind == "reset":
+            study.reset()
+    except ex.ExplorerError:
+        pass
+
+
+@settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(_MULTI_EDITS, _MULTI_EDITS, st.sampled_from([("part", "operator"), ("part",), ()]))
+def test_random_mixed_histories(first, then, random):
+    """Balanced and unbalanced layouts of a measurement study in any order; the plan caches emptied before
+    the late reads."""
+    study = ex.Study(gauge(), "y", ["part", "operator"], random=list(random))
+    points = Points(study)
+    for kind, i, j in first:
+        _apply_multi(study, kind, i, j)
+        points.take(kind)
+    for kind, i, j in then:
+        _apply_multi(study, kind, i, j)
+    _empty_layout_caches()
+    points.check()
