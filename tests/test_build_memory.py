@@ -105,3 +105,24 @@ def test_decimals_of_long_columns_read_in_blocks_match_one_pass(n):
         finite = values[np.isfinite(values)]
         one_pass = next((d for d in range(7) if finite.size and _exact(finite, d)), None)
         assert measurement_decimals(values) == one_pass
+
+
+def test_changes_to_the_callers_frame_after_the_build_do_not_reach_the_study():
+    """The response is read where it lies (no copy): copy-on-write must keep the caller's later
+    changes, in place or through pandas, out of the study's table, decimals and fingerprint (both
+    computed when first read, here after the changes)."""
+    rng = np.random.default_rng(0)
+    frame = pd.DataFrame({"g": rng.choice(["a", "b", "c"], 300), "y": np.round(rng.normal(50, 3, 300), 1)})
+    reference = ex.Study(frame.copy(deep=True), "y", "g")
+    study = ex.Study(frame, "y", "g")
+    first = float(frame["y"].iloc[0])
+    frame.loc[0, "y"] = 1e9
+    frame["y"] *= 2.123456789
+    frame.iloc[5, 0] = "zzz"
+    assert float(study.dataset.table["y"].iloc[0]) == first
+    assert np.array_equal(study.dataset.y, reference.dataset.y)
+    assert study.dataset.reading_decimals() == reference.dataset.reading_decimals() == 1
+    assert study.dataset.fingerprint == reference.dataset.fingerprint
+    study.drop([3], reason="x")
+    study.undo()
+    assert study.results.pvalue() == reference.results.pvalue()
