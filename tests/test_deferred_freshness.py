@@ -609,3 +609,42 @@ def test_random_mixed_histories(first, then, random):
         _apply_multi(study, kind, i, j)
     _empty_layout_caches()
     points.check()
+
+
+# --------------------------------------------------------------------------- summary-backed studies
+
+
+@pytest.mark.parametrize("factors,sample", [("line", 0), (["line", "shift"], 0), (["line", "shift"], 60)])
+def test_summary_backed_old_results_read_late(factors, sample):
+    """A summary-backed study's old results (cells pooled from its summaries, a seeded sample of rows) read after
+    later edits equal a twin study's results read at once after the same edits."""
+    pytest.importorskip("duckdb")
+    from summaries_support import unbalanced_frame
+
+    from explorer.summaries import DuckDBSource, SummaryStudy
+
+    frame = unbalanced_frame(n=300)
+    steps: list[Callable[[Any], Any]] = [
+        lambda s: s.drop_where("temperature > 80", reason="r"),
+        lambda s: s.drop_level("line", "L3", reason="r"),
+        lambda s: s.undo(),
+        lambda s: s.drop_where("lot = 2", reason="r"),
+        lambda s: s.set_alpha(0.1),
+        lambda s: s.reset(),
+    ]
+
+    def study() -> Any:
+        return SummaryStudy(DuckDBSource(frame), "thickness", factors, sample_size=sample, seed=3)
+
+    late = study()
+    held = []
+    for k, step in enumerate(steps):
+        step(late)
+        held.append((k, late.results))
+    late.redo()
+    late.drop_where("temperature < 60", reason="r")
+    for k, res in held:
+        twin = study()
+        for step in steps[: k + 1]:
+            step(twin)
+        assert every_part(res) == every_part(twin.results), f"after step {k}"
