@@ -648,3 +648,33 @@ def test_summary_backed_old_results_read_late(factors, sample):
         for step in steps[: k + 1]:
             step(twin)
         assert every_part(res) == every_part(twin.results), f"after step {k}"
+
+
+def nested_lots(seed: int = 6) -> pd.DataFrame:
+    """Invented: three suppliers, four lots each (lots nested in suppliers), three readings per lot."""
+    rng = np.random.default_rng(seed)
+    rows = []
+    for s in range(3):
+        for lot in range(4):
+            u = rng.normal(scale=0.8)
+            rows += [(f"S{s}", f"S{s}L{lot}", 30 + s + u + rng.normal(scale=0.5)) for _ in range(3)]
+    return pd.DataFrame(rows, columns=["supplier", "lot", "y"])
+
+
+@pytest.mark.parametrize("random", [["lot"], ["supplier", "lot"]])
+def test_nested_old_results_read_late(random):
+    steps: list[Step] = [
+        ("drop lot", lambda s: s.drop_unit("lot", "S0L1", reason="r")),  # per-supplier counts differ
+        ("restore lot", lambda s: s.restore_unit("lot", "S0L1", reason="r")),  # balanced again
+        ("drop row", lambda s: s.drop([4], reason="r")),  # unbalanced within a lot
+        ("drop lot 2", lambda s: s.drop_unit("lot", "S2L3", reason="r")),
+        ("undo", lambda s: s.undo()),
+        ("undo", lambda s: s.undo()),
+        ("alpha", lambda s: s.set_alpha(0.1)),
+        ("reset", lambda s: s.reset()),
+        ("redo", lambda s: s.redo()),
+    ]
+    study = ex.Study(nested_lots(), "y", ["supplier", "lot"], random=random, nested={"lot": "supplier"})
+    points = _run(study, steps)
+    _empty_layout_caches()
+    points.check()
