@@ -122,7 +122,7 @@ def test_changes_to_the_callers_frame_after_the_build_do_not_reach_the_study():
     assert float(study.dataset.table["y"].iloc[0]) == first
     assert np.array_equal(study.dataset.y, reference.dataset.y)
     assert study.dataset.reading_decimals() == reference.dataset.reading_decimals() == 1
-    assert study.dataset.fingerprint == reference.dataset.fingerprint
+    assert study.dataset.column_fingerprint == reference.dataset.column_fingerprint
     study.drop([3], reason="x")
     study.undo()
     assert study.results.pvalue() == reference.results.pvalue()

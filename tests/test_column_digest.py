@@ -63,11 +63,11 @@ def test_fingerprint_is_the_documented_bytes():
     y = [1.5, -0.0, 2.25, None, 7.0]
     g = ["b", "a", "é", "a", "b"]
     frame = pd.DataFrame({"y": y, "g": g})
-    assert build_dataset(frame, "y", "g").fingerprint == _reference([0, 1, 2, 3, 4], y, {"g": g})
+    assert build_dataset(frame, "y", "g").column_fingerprint == _reference([0, 1, 2, 3, 4], y, {"g": g})
     texts = frame.set_index(pd.Index(["r1", "r10", "x", "ü", "r2"], dtype=object))
-    assert build_dataset(texts, "y", "g").fingerprint == _reference(["r1", "r10", "x", "ü", "r2"], y, {"g": g})
+    assert build_dataset(texts, "y", "g").column_fingerprint == _reference(["r1", "r10", "x", "ü", "r2"], y, {"g": g})
     two = frame.assign(h=[3, 1, 3, None, 2], c=[0.5, 1.0, 1.5, 2.0, 2.5])
-    got = build_dataset(two, "y", ["g", "h"], covariates=["c"]).fingerprint
+    got = build_dataset(two, "y", ["g", "h"], covariates=["c"]).column_fingerprint
     assert got == _reference([0, 1, 2, 3, 4], y, {"g": g, "h": [3.0, 1.0, 3.0, None, 2.0]}, {"c": list(two["c"])})
 
 
@@ -133,7 +133,7 @@ def _same(a, b, factors=("g",), **kw):
     if not kw:  # the pandas reference of the first definition agrees with the kit's
         assert da.fingerprint_by(PANDAS_ROW_HASH) == _fingerprint_by_frame(da, a, factors)
         assert db.fingerprint_by(PANDAS_ROW_HASH) == _fingerprint_by_frame(db, b, factors)
-    return old, da.fingerprint == db.fingerprint
+    return old, da.column_fingerprint == db.column_fingerprint
 
 
 def _base(n=12):
@@ -223,7 +223,7 @@ def test_missing_values_are_missing_however_written():
     raw = payload["y"].to_numpy().copy()
     raw.view(np.uint64)[5] = 0x7FF8000000000001
     payload["y"] = raw
-    assert build_dataset(payload, "y", "g").fingerprint == build_dataset(frame, "y", "g").fingerprint
+    assert build_dataset(payload, "y", "g").column_fingerprint == build_dataset(frame, "y", "g").column_fingerprint
     text = frame.copy()  # the text 'nan' is a value, not a missing one
     text.loc[2, "g"] = "nan"
     assert _same(frame, text) == (False, False)
@@ -237,19 +237,19 @@ def test_set_aside_rows_and_names_count():
     assert _same(frame, other) == (False, False)
     both = frame.rename(columns={"y": "y2"})
     a, b = build_dataset(frame, "y", "g"), build_dataset(both, "y2", "g")
-    assert a.fingerprint != b.fingerprint
+    assert a.column_fingerprint != b.column_fingerprint
     swapped = _base().assign(h=lambda d: d.g)  # the same two columns named the other way round
-    assert build_dataset(swapped, "y", ["g", "h"]).fingerprint == build_dataset(swapped, "y", ["g", "h"]).fingerprint
-    assert build_dataset(swapped.assign(h=lambda d: d.g.replace({"a": "q"})), "y", ["g", "h"]).fingerprint != \
-        build_dataset(swapped.assign(g=lambda d: d.g.replace({"a": "q"})), "y", ["g", "h"]).fingerprint
+    assert build_dataset(swapped, "y", ["g", "h"]).column_fingerprint == build_dataset(swapped, "y", ["g", "h"]).column_fingerprint
+    assert build_dataset(swapped.assign(h=lambda d: d.g.replace({"a": "q"})), "y", ["g", "h"]).column_fingerprint != \
+        build_dataset(swapped.assign(g=lambda d: d.g.replace({"a": "q"})), "y", ["g", "h"]).column_fingerprint
 
 
 def test_a_transform_keeps_the_fingerprint_of_the_measured_values():
     frame = _base()
     study = ex.Study(frame, "y", "g")
-    before = study.dataset.fingerprint
+    before = study.dataset.column_fingerprint
     study.set_transform("log")
-    assert study.dataset.fingerprint == before
+    assert study.dataset.column_fingerprint == before
 
 
 # ----------------------------------------------------------------- files of both definitions
@@ -259,7 +259,7 @@ def test_new_files_name_their_definition_and_locate_changes(tmp_path):
     path = study.save(tmp_path / "s.study.json")
     data = json.loads(path.read_text())["data"]
     assert data["fingerprint_method"] == COLUMN_SHA256 and "block_check" in data
-    assert data["fingerprint"] == study.dataset.fingerprint
+    assert data["fingerprint"] == study.dataset.column_fingerprint
     assert ex.Study.load(path, frame).results.pvalue("batch") == study.results.pvalue("batch")
     renamed = frame.copy()
     renamed.loc[2400, "batch"] = "new level"
@@ -285,7 +285,7 @@ def test_files_of_the_first_definition_still_load_and_are_still_checked(tmp_path
     frame = table()
     study = ex.Study.load(path, frame)
     fresh = ex.Study(frame, "y", **spec)
-    assert doc["data"]["fingerprint"] == fresh.dataset.fingerprint_by(PANDAS_ROW_HASH) != fresh.dataset.fingerprint
+    assert doc["data"]["fingerprint"] == fresh.dataset.fingerprint_by(PANDAS_ROW_HASH) != fresh.dataset.column_fingerprint
     for e in study.edits:
         fresh.apply(e)
     term = study.spec.factors[0]
@@ -298,7 +298,7 @@ def test_files_of_the_first_definition_still_load_and_are_still_checked(tmp_path
         ex.Study.load(path, changed)
     saved_again = study.save(tmp_path / "again.study.json")  # a study loaded from an older file saves the new way
     data = json.loads(saved_again.read_text())["data"]
-    assert data["fingerprint_method"] == COLUMN_SHA256 and data["fingerprint"] == fresh.dataset.fingerprint
+    assert data["fingerprint_method"] == COLUMN_SHA256 and data["fingerprint"] == fresh.dataset.column_fingerprint
     assert ex.Study.load(saved_again, frame).results.pvalue(term) == study.results.pvalue(term)
 
 

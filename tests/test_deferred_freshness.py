@@ -414,7 +414,7 @@ def _surfaces(study: ex.Study) -> dict[str, Any]:
         "row_ids": ds.row_ids.tolist(),
         "all_row_ids": ds.all_row_ids.tolist(),
         "decimals": ds.reading_decimals(),
-        "fingerprint": ds.fingerprint,
+        "fingerprint": ds.column_fingerprint,
         "column fingerprint": ds.fingerprint_by("column-sha256"),
         "blocks": [ds.block_digests_by(m).tolist() for m in ("column-sha256", "pandas-row-hash")],
         "file": re.sub(_TIME, "T", json.dumps(doc, sort_keys=True, default=str)),  # edit times differ by a second

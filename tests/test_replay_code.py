@@ -24,7 +24,7 @@ print(_json.dumps({
     "levels": {f: {"labels": list(t.labels), "mean": t.mean.tolist(), "sd": t.sd.tolist()} for f, t in _r.levels.items()},
     "residuals": _r.fit.residuals.tolist(),
     "rows": [str(r) for r in _r.fit.row_ids],
-    "fingerprint": study.dataset.fingerprint,
+    "fingerprint": study.dataset.column_fingerprint,
     "reasons": [e.reason for e in study.edits],
     "specifications": study.disclosure.specifications,
 }))
@@ -38,7 +38,7 @@ def _snapshot(study: ex.Study) -> dict:
                    for f, t in study.results.levels.items()},
         "residuals": study.results.fit.residuals.tolist(),
         "rows": [str(r) for r in study.results.fit.row_ids],
-        "fingerprint": study.dataset.fingerprint,
+        "fingerprint": study.dataset.column_fingerprint,
         "reasons": [e.reason for e in study.edits],
         "specifications": study.disclosure.specifications,
     }))
@@ -123,3 +123,21 @@ def test_other_edit_kinds_replay_from_their_saved_form():
         assert replayed.edits[0].reason == "stand-in kind" and replayed.edits[0].at == study.edits[0].at
     finally:
         EDIT_KINDS.pop("test-drop-first-of", None)
+
+
+def test_replay_code_written_before_the_column_fingerprint_still_passes(monkeypatch):
+    """Replay code from a kit whose files had one fingerprint definition (fixture made by that kit on the
+    bundled invented data) asserts ``study.dataset.fingerprint == <saved value>``: it must still pass on the
+    same data and still stop on changed data, so an archived script never calls unchanged data 'different'."""
+    code = (ROOT / "tests" / "fixtures" / "replay-code-pandas-row-hash.py.txt").read_text(encoding="utf-8")
+    monkeypatch.chdir(ROOT)
+    scope: dict = {}
+    exec(compile(code, "replay-code-pandas-row-hash.py", "exec"), scope)
+    study = scope["study"]
+    assert [e.reason for e in study.edits] == ["invented example: panel scratched before measuring"]
+    assert study.disclosure.sentence() == scope["original_disclosure"]
+    assert study.dataset.fingerprint == scope["fingerprint"] != study.dataset.column_fingerprint
+    changed = pd.read_csv(ROOT / "data" / "coating_thickness.csv")
+    changed.loc[3, "thickness_um"] += 0.1
+    other = ex.Study(changed, response="thickness_um", factors="nozzle", id_column="panel")
+    assert other.dataset.fingerprint != scope["fingerprint"]

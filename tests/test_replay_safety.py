@@ -132,7 +132,7 @@ def test_replay_code_runs_only_the_expected_calls(case):
     got = [(path.removeprefix("Study.").removeprefix("result."), args, kwargs) for path, args, kwargs in log]
     # the recorder answers study.results through attribute access, the fingerprint through one call
     assert [(p.split(".")[-1], a, k) for p, a, k in got] == _expected_calls(study, data_path)
-    assert scope["source"] == "DataFrame" and scope["fingerprint"] == study.dataset.fingerprint
+    assert scope["source"] == "DataFrame" and scope["fingerprint"] == study.dataset.column_fingerprint
     assert scope["made_at"] == [e.at for e in study.edits]
     assert scope.get("undone", []) == [e.to_dict() for e in study.redo_edits]
     assert scope["original_disclosure"] == study.disclosure.sentence()

@@ -76,7 +76,7 @@ def test_baseline_and_current_tables_side_by_side(edited, page):
 def test_provenance_and_disclosure(edited, page):
     doc = outline(page[1])
     prov = doc.section_text("provenance")
-    assert "coating_thickness.csv" in prov and edited.dataset.fingerprint in prov
+    assert "coating_thickness.csv" in prov and edited.dataset.column_fingerprint in prov
     assert "No rows were set aside" in prov
     assert _plain(edited.disclosure.sentence()) in doc.all_text()
 

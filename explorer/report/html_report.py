@@ -69,7 +69,7 @@ def _provenance(study: "Study") -> str:
     ds = study.dataset
     rows = [
         ("data file", esc(ds.source)),
-        ("fingerprint", f"<code>{esc(ds.fingerprint)}</code>"),
+        ("fingerprint (column-sha256)", f"<code>{esc(ds.column_fingerprint)}</code>"),
         ("rows in the file", str(len(ds.table))),
         ("rows usable", str(ds.n)),
         ("row ids", esc(ds.describe_ids())),

@@ -66,7 +66,7 @@ def _summary_text(study: "Study", *, cautions: bool) -> str:
     ds = study.dataset
     out = [
         _heading(f"{study.spec.response} by {', '.join(study.spec.factors)}"),
-        f"data: {ds.source} ({len(ds.table)} rows, {ds.n} usable), fingerprint {ds.fingerprint}",
+        f"data: {ds.source} ({len(ds.table)} rows, {ds.n} usable), fingerprint {ds.column_fingerprint} (column-sha256)",
         f"{ds.describe_ids()[:1].upper()}{ds.describe_ids()[1:]}.",
     ]
     out.extend(f"set aside at load: row {s.row}: {s.reason}" for s in ds.set_aside)

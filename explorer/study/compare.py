@@ -322,7 +322,7 @@ def compare_studies(mine: Study, theirs: Study, *, mine_label: str = "mine", the
     if mine.dataset.id_column != theirs.dataset.id_column:
         raise ExplorerError(f"the two studies name rows differently (id column {mine.dataset.id_column!r} here, "
                             f"{theirs.dataset.id_column!r} in the other), so their edits cannot be matched")
-    if mine.dataset.fingerprint != theirs.dataset.fingerprint:
+    if mine.dataset.column_fingerprint != theirs.dataset.column_fingerprint:
         raise ExplorerError("the two studies are not on the same data (their data fingerprints differ); "
                             "load the colleague's study file onto this study's data")
     shared, only_mine, only_theirs = _split(mine.edits, theirs.edits)
