@@ -4,10 +4,12 @@ their fingerprint's definition (so they hold the first one, ``pandas-row-hash``)
 
 from __future__ import annotations
 
+import hashlib
+
 import numpy as np
 import pandas as pd
 
-__all__ = ["small_table", "large_table", "SMALL_FILE", "LARGE_FILE"]
+__all__ = ["small_table", "large_table", "SMALL_FILE", "LARGE_FILE", "first_fingerprint_by_frame"]
 
 SMALL_FILE = "small-pandas-row-hash.study.json"
 LARGE_FILE = "large-pandas-row-hash.study.json"
@@ -31,3 +33,15 @@ def large_table() -> pd.DataFrame:
     frame["batch"] = frame["batch"].astype(object)
     frame.loc[30, "batch"] = None
     return frame
+
+
+def first_fingerprint_by_frame(dataset, frame: pd.DataFrame, factors) -> tuple[str, np.ndarray]:
+    """The fingerprint as first defined, made with pandas alone: ``hash_pandas_object`` of a DataFrame of
+    the ids as text, the response and the factors as text; with the low 32 bits of each row's hash."""
+    ids = dataset.all_row_ids
+    yv = pd.to_numeric(frame["y"], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+    hashed = pd.util.hash_pandas_object(pd.DataFrame(
+        {"id": [str(i) for i in ids.tolist()], "y": yv, **{f: frame[f].astype(str).to_numpy() for f in factors}}),
+        index=False).to_numpy()
+    head = f"y|{'|'.join(factors)}|{len(frame)}".encode()
+    return hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32], (hashed & 0xFFFFFFFF).astype(np.uint32)

@@ -3,7 +3,7 @@
 Outside reference: the fingerprint is recomputed here from the definition written in
 ``explorer/engine/column_digest.py``, with ``hashlib`` and ``struct`` alone (FIPS 180-4
 SHA-256), so the bytes are the documented ones. The first definition's answers come
-from pandas' ``hash_pandas_object`` (``_fingerprint_by_frame``, as in ``test_memory.py``).
+from pandas' ``hash_pandas_object`` (``fingerprint_support.first_fingerprint_by_frame``).
 Study files saved before the field existed (``tests/fixtures``, written by the kit at
 commit 5263fca on the invented tables of ``fingerprint_support.py``) still load and are
 still checked, by the first definition.
@@ -21,7 +21,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from fingerprint_support import LARGE_FILE, SMALL_FILE, large_table, small_table
+from fingerprint_support import LARGE_FILE, SMALL_FILE, first_fingerprint_by_frame, large_table, small_table
 
 import explorer as ex
 from explorer.engine.column_digest import COLUMN_SHA256, PANDAS_ROW_HASH
@@ -115,15 +115,6 @@ def test_text_ids_without_arrow_give_the_same_bytes(monkeypatch):
 
 
 # ----------------------------------------------------------------- same data, different data
-def _fingerprint_by_frame(dataset, frame, factors):
-    """The first definition: pandas' hash_pandas_object of a DataFrame of the columns as text."""
-    ids = dataset.all_row_ids
-    yv = pd.to_numeric(frame["y"], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
-    hashed = pd.util.hash_pandas_object(pd.DataFrame(
-        {"id": [str(i) for i in ids.tolist()], "y": yv, **{f: frame[f].astype(str).to_numpy() for f in factors}}),
-        index=False).to_numpy()
-    head = f"y|{'|'.join(factors)}|{len(frame)}".encode()
-    return hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32]
 
 
 def _same(a, b, factors=("g",), **kw):
@@ -131,8 +122,8 @@ def _same(a, b, factors=("g",), **kw):
     da, db = build_dataset(a, "y", factors, **kw), build_dataset(b, "y", factors, **kw)
     old = da.fingerprint_by(PANDAS_ROW_HASH) == db.fingerprint_by(PANDAS_ROW_HASH)
     if not kw:  # the pandas reference of the first definition agrees with the kit's
-        assert da.fingerprint_by(PANDAS_ROW_HASH) == _fingerprint_by_frame(da, a, factors)
-        assert db.fingerprint_by(PANDAS_ROW_HASH) == _fingerprint_by_frame(db, b, factors)
+        assert da.fingerprint_by(PANDAS_ROW_HASH) == first_fingerprint_by_frame(da, a, factors)[0]
+        assert db.fingerprint_by(PANDAS_ROW_HASH) == first_fingerprint_by_frame(db, b, factors)[0]
     return old, da.column_fingerprint == db.column_fingerprint
 
 

@@ -17,6 +17,7 @@ import tracemalloc
 import numpy as np
 import pandas as pd
 import pytest
+from fingerprint_support import first_fingerprint_by_frame
 from scipy import stats
 
 import explorer as ex
@@ -151,17 +152,6 @@ def test_row_ids_are_found_without_a_table_per_row():
     assert initial_view(study.dataset).n_kept == 50
 
 
-def _fingerprint_by_frame(dataset, frame, factors):
-    """The fingerprint as first defined: pandas' hash_pandas_object of a DataFrame of the columns as text."""
-    import hashlib
-
-    ids = dataset.all_row_ids
-    yv = pd.to_numeric(frame["y"], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
-    hashed = pd.util.hash_pandas_object(pd.DataFrame(
-        {"id": [str(i) for i in ids.tolist()], "y": yv, **{f: frame[f].astype(str).to_numpy() for f in factors}}),
-        index=False).to_numpy()
-    head = f"y|{'|'.join(factors)}|{len(frame)}".encode()
-    return hashlib.sha256(head + hashed.tobytes()).hexdigest()[:32], (hashed & 0xFFFFFFFF).astype(np.uint32)
 
 
 @pytest.mark.parametrize("index", ["range", "text", "shuffled"])
@@ -183,7 +173,7 @@ def test_fingerprints_and_row_digests_are_unchanged_by_the_faster_build(index):
         frame.index = rng.permutation(n) * 3
     for factors in (("g",), ("h", "k", "m")):
         ds = build_dataset(frame, "y", factors)
-        fingerprint, digests = _fingerprint_by_frame(ds, frame, factors)
+        fingerprint, digests = first_fingerprint_by_frame(ds, frame, factors)
         assert ds.fingerprint_by("pandas-row-hash") == fingerprint
         assert np.array_equal(ds.row_digests, digests)
 
