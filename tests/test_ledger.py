@@ -88,6 +88,7 @@ def _older_file(doc: dict, dataset) -> dict:
     fingerprint by its first definition."""
     old = copy.deepcopy(doc)
     del old["data"]["fingerprint_method"]
+    old["data"].pop("level_order", None)  # schema 2 only
     old["data"]["fingerprint"] = dataset.fingerprint_by("pandas-row-hash")
     ledger = old.pop("ledger")
     old.pop("comparisons", None)

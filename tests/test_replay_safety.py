@@ -89,7 +89,10 @@ class _Recorder:
         self._log.append((".".join(self._path), args, kwargs))
         return _Recorder(self._log, ("result",))
 
-    def __eq__(self, other):  # the fingerprint assertion
+    def __getitem__(self, key):  # study.dataset.levels[factor] in the level-order assertion
+        return _Recorder(self._log, self._path + (f"[{key!r}]",))
+
+    def __eq__(self, other):  # the fingerprint and level-order assertions
         return True
 
     __hash__ = object.__hash__

@@ -24,6 +24,7 @@ from typing import TYPE_CHECKING, Any
 
 from ..engine.column_digest import COLUMN_SHA256
 from ..engine.edits import DropRows, DropUnit, Edit, MergeLevels, Reassign, RenameLevel, RestoreRows, RestoreUnit
+from ..study.persistence import level_order
 
 if TYPE_CHECKING:
     from ..study.study import Study
@@ -85,6 +86,17 @@ def edit_to_code(edit: Edit, name: str = "study") -> str:
         verb = "drop_unit" if type(edit) is DropUnit else "restore_unit"
         return f"{name}.{verb}({_lit(edit.column)}, {_lit(edit.level)}, {r})"  # type: ignore[attr-defined]
     return f"{name}.apply(ex.edit_from_dict({_lit(edit.to_dict())}))"
+
+
+def _tuple_literal(labels: list[str]) -> str:
+    """A tuple of text literals (``Dataset.levels`` holds tuples; :func:`python_literal` writes lists)."""
+    return "(" + ", ".join(_lit(x) for x in labels) + ("," if len(labels) == 1 else "") + ")"
+
+
+def _order_message(factor: str, labels: list[str]) -> str:
+    target = repr(labels) if len(labels) <= 12 else "<the levels in the order asserted here>"
+    return (f"the levels of {factor!r} are in another order than the study was analysed with; put them in that "
+            f"order first, e.g. data[{factor!r}] = data[{factor!r}].cat.reorder_categories({target})")
 
 
 def _spec_args(study: "Study") -> str:
@@ -169,6 +181,13 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
     lines.append(f"{name} = ex.Study({data_expr}, {_spec_args(study)})")
     lines.append(f"assert {name}.dataset.fingerprint_by({_lit(COLUMN_SHA256)}) == fingerprint, "
                  "'the data differ from the original'")
+    order = level_order(ds)
+    if order:
+        lines.append("# Each factor's levels in the order the study was analysed with: 'later' contrasts and two-level")
+        lines.append("# differences (first - second) follow it, and the fingerprint does not see a categorical's order.")
+    for factor, labels in order.items():
+        lines.append(f"assert {name}.dataset.levels[{_lit(factor)}] == {_tuple_literal(labels)}, "
+                     f"{_lit(_order_message(factor, labels))}")
     for i, edit in enumerate(study.edits, 1):
         lines.append(f"{edit_to_code(edit, name)}  # edit {i}, made at made_at[{i - 1}]")
     undone = study.redo_edits

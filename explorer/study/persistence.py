@@ -4,7 +4,7 @@ File layout (schema 2)::
 
     {"format": "variance-explorer/study", "schema": 2, "spec": {...},
      "data": {"source", "fingerprint", "fingerprint_method", "rows", "id_source",
-              "block_check": {"rows", "digests"}},
+              "block_check": {"rows", "digests"}, "level_order": {factor: [label, ...]}},
      "edits": [{"kind": ..., "reason": ..., "at": ..., ...}, ...],
      "position": k, "comparisons": "tukey-kramer",
      "ledger": {"complete": true, "entries": [{"kind", "what", "at", "count", ...}, ...]}}
@@ -13,6 +13,11 @@ File layout (schema 2)::
 (:mod:`~explorer.engine.column_digest`): ``"column-sha256"`` (the columns' bytes) in files
 written now; a file without it was written with ``"pandas-row-hash"`` (per-row hashes,
 :mod:`~explorer.engine.row_hash`) and is checked that way.
+``level_order`` holds, for each factor of at most :data:`MAX_LEVEL_ORDER` levels, its level names in the
+order the study was analysed with (a categorical's categories, else numbers by value and text in natural
+order: :mod:`~explorer.engine.dataset`). Neither fingerprint sees a categorical's order, yet
+'later' contrasts and two-level differences (first - second) follow it, so a load on data whose shared
+levels are in another order is refused (:func:`describe_order_mismatch`); files without it load as before.
 ``row_check`` (tables of at most 1024 rows) holds each row id and a 32-bit digest of its row;
 larger tables get ``block_check`` instead: two 8-byte digests (the ids; the whole rows) of
 each of 1024 blocks of consecutive rows, so the file's size stops growing with the table.
@@ -39,6 +44,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 
 from ..engine.column_digest import COLUMN_SHA256, PANDAS_ROW_HASH
 from ..engine.dataset import Dataset, decode_digests, encode_digests
@@ -49,12 +55,14 @@ from ..engine.spec import ModelSpec
 from .ledger import Ledger
 from .schema_check import SCHEMA_FILES, first_violation, load_schema
 
-__all__ = ["FORMAT", "MAX_DEPTH", "MAX_STUDY_FILE_BYTES", "SCHEMA", "check_ledger", "check_study_doc",
-           "describe_mismatch", "edits_from_doc", "fingerprint_method", "ledger_from_doc", "parse_study_json", "read_study_file",
-           "study_to_dict"]
+__all__ = ["FORMAT", "MAX_DEPTH", "MAX_LEVEL_ORDER", "MAX_STUDY_FILE_BYTES", "SCHEMA", "check_ledger",
+           "check_study_doc", "describe_mismatch", "describe_order_mismatch", "edits_from_doc", "fingerprint_method",
+           "ledger_from_doc", "level_order", "parse_study_json", "read_study_file", "study_to_dict"]
 
 FORMAT = "variance-explorer/study"
 SCHEMA = 2
+#: Factors with more levels than this have no ``data.level_order`` entry (the schema's bound on each list).
+MAX_LEVEL_ORDER = 1000
 
 
 def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position: int, ledger: Ledger,
@@ -72,12 +80,18 @@ def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position
             "id_source": dataset.id_source,
             "id_column": dataset.id_column,
             **check,
+            **({"level_order": order} if (order := level_order(dataset)) else {}),
         },
         "edits": [e.to_dict() for e in edits],
         "position": position,
         "comparisons": comparisons,
         "ledger": ledger.to_dict(),
     }
+
+
+def level_order(dataset: Dataset) -> dict[str, list[str]]:
+    """Each factor's level names in the order the analysis uses (factors of at most MAX_LEVEL_ORDER levels)."""
+    return {f: list(dataset.levels[f]) for f in dataset.factors if len(dataset.levels[f]) <= MAX_LEVEL_ORDER}
 
 
 def _row_check(dataset: Dataset) -> dict[str, Any]:
@@ -234,6 +248,7 @@ def check_study_doc(doc: Any, format_marker: str = FORMAT, name: str = "the stud
         if len(raw) != expected:
             raise ReplayError(f"{name}: data.block_check.digests: holds {len(raw)} bytes, not the {expected} of "
                               f"{expected // 16} blocks of {blocks['rows']} rows")
+    _check_level_order(doc, name)
     check = doc["data"].get("row_check")
     if check is not None:
         raw = _base64_field(check["digests"], f"{name}: data.row_check.digests")
@@ -241,6 +256,53 @@ def check_study_doc(doc: Any, format_marker: str = FORMAT, name: str = "the stud
             raise ReplayError(f"{name}: data.row_check.digests: holds {len(raw)} bytes, not 4 for each of the "
                               f"{len(check['ids'])} row ids")
     return doc
+
+
+def _check_level_order(doc: dict[str, Any], name: str) -> None:
+    """``data.level_order`` (types and sizes already checked by the schema): known factors, no repeated level."""
+    order = doc["data"].get("level_order")
+    if order is None:
+        return
+    spec = doc["spec"]
+    known = [*spec["factors"], *spec.get("blocks", []), *([spec["subject"]] if "subject" in spec else [])]
+    for factor, labels in order.items():
+        if factor not in known:
+            raise ReplayError(f"{name}: data.level_order: {factor[:60]!r} is not a factor of the model "
+                              f"({preview(known)})")
+        seen: set[str] = set()
+        for label in labels:
+            if label in seen:
+                raise ReplayError(f"{name}: data.level_order.{factor[:60]}: level {label[:60]!r} appears twice")
+            seen.add(label)
+
+
+def describe_order_mismatch(doc: dict[str, Any], dataset: Dataset, name: str = "the study file") -> str | None:
+    """``None`` when each factor's levels shared by the file's ``data.level_order`` and ``dataset`` are in the same
+    order (or the file has no such field), else a sentence naming the factor, both orders and the fix."""
+    for factor, saved in doc["data"].get("level_order", {}).items():
+        if factor not in dataset.levels:
+            continue
+        now = list(dataset.levels[factor])
+        now_set, saved_set = set(now), set(saved)
+        then_shared = [x for x in saved if x in now_set]
+        now_shared = [x for x in now if x in saved_set]
+        if then_shared == now_shared:
+            continue
+        k = next(i for i, (a, b) in enumerate(zip(then_shared, now_shared)) if a != b)
+        short = len(then_shared) <= 12
+        target = repr(then_shared) if short else "order"
+        categorical = isinstance(dataset.table[factor].dtype, pd.CategoricalDtype)
+        fix = (f"df[{factor!r}] = df[{factor!r}].cat.reorder_categories({target})" if categorical
+               else f"df[{factor!r}] = df[{factor!r}].astype(pd.CategoricalDtype({target}))")
+        if not short:
+            fix += f", with order the list data.level_order[{factor!r}] of {name}"
+        return (f"{name}: data.level_order: factor {factor!r} was analysed with its levels in the order "
+                f"[{preview(then_shared)}], but the data given have them in the order [{preview(now_shared)}] "
+                f"(level {k + 1}: {then_shared[k]!r} then, {now_shared[k]!r} now). 'Later' contrasts, two-level "
+                "differences (first - second) and the order of tables follow this order, so the numbers would "
+                "change without any other sign. Put the levels in the saved order and load again, e.g. "
+                f"{fix}")
+    return None
 
 
 def _base64_field(text: str, field: str) -> bytes:

@@ -44,6 +44,7 @@ from .persistence import (
     check_ledger,
     check_study_doc,
     describe_mismatch,
+    describe_order_mismatch,
     edits_from_doc,
     ledger_from_doc,
     read_study_file,
@@ -649,7 +650,13 @@ class Study(PlannedAnalyses, AnalysisMethods):
 
     @classmethod
     def load(cls, path: str | Path, data: pd.DataFrame | str | Path, *, allow_mismatch: bool = False) -> "Study":
-        """Replay a saved log on ``data``; refuse (saying what differs) if the data changed."""
+        """Replay a saved log on ``data``; refuse (saying what differs) if the data changed.
+
+        ``allow_mismatch=True`` replays on changed rows; it never lets a factor's levels be in another
+        order than the file records (``data.level_order``): that order decides 'later' contrasts and the
+        sign of two-level differences for rows that did not change, so it is refused in any case (with
+        the one-line fix), nothing run.
+        """
         doc = read_study_file(path)
         study = cls.from_dict(doc, data, allow_mismatch=allow_mismatch)
         study._remember_own_file(path)
@@ -669,6 +676,9 @@ class Study(PlannedAnalyses, AnalysisMethods):
         problem = describe_mismatch(doc, dataset)
         if problem and not allow_mismatch:
             raise ReplayError(problem + ". Pass allow_mismatch=True to replay anyway (edits that no longer apply fail).")
+        reordered = describe_order_mismatch(doc, dataset)  # allow_mismatch or not: see load
+        if reordered:
+            raise ReplayError(reordered)
         study = cls.from_dataset(dataset, spec)
         study.data_source = data if isinstance(data, (str, Path)) else None
         study._read_files = [Path(data).resolve()] if isinstance(data, (str, Path)) else []

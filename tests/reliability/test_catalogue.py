@@ -671,6 +671,28 @@ CATALOGUE: list[Bad] = [
     Bad("study-other-columns", "study file",
         lambda s: ex.Study.load(s.study_file, s.frame.rename(columns={"nozzle": "head"})), ExplorerError,
         "nozzle"),
+    Bad("study-levels-reordered", "study file",  # same values, so the same fingerprint; 'later' contrasts would differ
+        lambda s: ex.Study.load(s.study_file, s.frame.assign(nozzle=pd.Categorical(
+            s.frame["nozzle"], categories=["N3", "N2", "N1"]))), ReplayError,
+        "data.level_order: factor 'nozzle' was analysed with its levels in the order ['N1', 'N2', 'N3']"),
+    Bad("study-levels-reordered-allow-mismatch", "study file",
+        lambda s: ex.Study.load(s.study_file, s.frame.assign(nozzle=pd.Categorical(
+            s.frame["nozzle"], categories=["N2", "N1", "N3"])), allow_mismatch=True), ReplayError,
+        "reorder_categories(['N1', 'N2', 'N3'])"),
+    Bad("study-level-order-text", "study file",
+        lambda s: ex.Study.load(s.study_variant("lo1.json", lambda d: d["data"].update(level_order={"nozzle": "N1"})),
+                                s.frame), ReplayError, "data.level_order.nozzle: must be a list"),
+    Bad("study-level-order-unknown-factor", "study file",
+        lambda s: ex.Study.load(s.study_variant("lo2.json", lambda d: d["data"].update(level_order={"head": ["a"]})),
+                                s.frame), ReplayError, "data.level_order: 'head' is not a factor of the model"),
+    Bad("study-level-order-repeated", "study file",
+        lambda s: ex.Study.load(s.study_variant("lo3.json", lambda d: d["data"].update(
+            level_order={"nozzle": ["N1", "N2", "N1"]})), s.frame), ReplayError,
+        "data.level_order.nozzle: level 'N1' appears twice"),
+    Bad("study-level-order-huge", "study file",
+        lambda s: ex.Study.load(s.study_variant("lo4.json", lambda d: d["data"].update(
+            level_order={"nozzle": [f"N{i}" for i in range(5000)]})), s.frame), ReplayError,
+        "data.level_order.nozzle: must have at most 1000 item(s)"),
     # ---------------- conditions (summary-backed study, DuckDB)
     cond("cond-text-vs-number", "nozzle > 5", "column 'nozzle' (text)"),
     cond("cond-bare-column", "nozzle", "must be true/false"),
