@@ -215,3 +215,16 @@ def test_replay_code_checks_the_order(tmp_path, build, saved, other):
             assert proc.returncode != 0
             assert "AssertionError: the levels of 'dose' are in another order" in proc.stderr
             assert f"reorder_categories({saved!r})" in proc.stderr
+
+
+def test_every_grouping_column_is_recorded_and_checked(tmp_path):
+    df = pd.DataFrame({"dose": pd.Categorical(["low", "high"] * 6, categories=["low", "high"]),
+                       "line": pd.Categorical(["B", "B", "A", "A", "C", "C"] * 2, categories=["B", "A", "C"]),
+                       "y": [10.2, 12.6, 10.9, 13.1, 10.4, 12.2, 10.0, 12.9, 11.1, 13.0, 10.6, 12.4]})
+    study = ex.Study(df, "y", "dose", blocks="line")
+    path = study.save(tmp_path / "s.study.json")
+    assert json.loads(path.read_text())["data"]["level_order"] == {"dose": ["low", "high"], "line": ["B", "A", "C"]}
+    other = df.assign(line=df["line"].cat.reorder_categories(["A", "B", "C"]))
+    with pytest.raises(ReplayError, match="factor 'line'"):
+        ex.Study.load(path, other)
+    assert "assert study.dataset.levels['line'] == ('B', 'A', 'C'), " in study.to_code()

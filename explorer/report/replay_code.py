@@ -181,7 +181,7 @@ def study_to_code(study: "Study", data: str | Path | None = None, *, name: str =
     lines.append(f"{name} = ex.Study({data_expr}, {_spec_args(study)})")
     lines.append(f"assert {name}.dataset.fingerprint_by({_lit(COLUMN_SHA256)}) == fingerprint, "
                  "'the data differ from the original'")
-    order = level_order(ds)
+    order = level_order(ds, study.spec)
     if order:
         lines.append("# Each factor's levels in the order the study was analysed with: 'later' contrasts and two-level")
         lines.append("# differences (first - second) follow it, and the fingerprint does not see a categorical's order.")

@@ -80,7 +80,7 @@ def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position
             "id_source": dataset.id_source,
             "id_column": dataset.id_column,
             **check,
-            **({"level_order": order} if (order := level_order(dataset)) else {}),
+            **({"level_order": order} if (order := level_order(dataset, spec)) else {}),
         },
         "edits": [e.to_dict() for e in edits],
         "position": position,
@@ -89,9 +89,11 @@ def study_to_dict(dataset: Dataset, spec: ModelSpec, edits: list[Edit], position
     }
 
 
-def level_order(dataset: Dataset) -> dict[str, list[str]]:
-    """Each factor's level names in the order the analysis uses (factors of at most MAX_LEVEL_ORDER levels)."""
-    return {f: list(dataset.levels[f]) for f in dataset.factors if len(dataset.levels[f]) <= MAX_LEVEL_ORDER}
+def level_order(dataset: Dataset, spec: ModelSpec) -> dict[str, list[str]]:
+    """Each of the model's factors (blocks and subject too) with its level names in the order the analysis uses
+    (factors of at most MAX_LEVEL_ORDER levels)."""
+    return {f: list(dataset.levels[f]) for f in spec.columns
+            if f in dataset.levels and len(dataset.levels[f]) <= MAX_LEVEL_ORDER}
 
 
 def _row_check(dataset: Dataset) -> dict[str, Any]:
